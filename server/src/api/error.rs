@@ -1,0 +1,160 @@
+//! Errors of the API layer and their one mapping to `tonic::Status`.
+
+use crate::physics::RangeError;
+use tonic::{Code, Status};
+use tonic_types::{ErrorDetails, StatusExt};
+
+/// One bad field: its path in the request and a sentence saying what is allowed.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct FieldViolation {
+    /// Path of the field in the request, e.g. `conditions.gas.gamma`.
+    pub field: String,
+    /// What is wrong, with the value given and the allowed range.
+    pub description: String,
+}
+
+/// Everything a request can fail with.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum ApiError {
+    /// Malformed or out-of-range input: `INVALID_ARGUMENT` with field violations.
+    #[error("invalid request: {0:?}")]
+    Invalid(Vec<FieldViolation>),
+    /// Input larger than a server limit: `RESOURCE_EXHAUSTED`.
+    #[error("{field}: {actual} exceeds the limit {limit}")]
+    TooLarge {
+        /// Field path.
+        field: String,
+        /// The limit, with its unit.
+        limit: String,
+        /// What was sent.
+        actual: String,
+    },
+    /// Well-formed but physically impossible: `FAILED_PRECONDITION`.
+    #[error("{0}")]
+    Precondition(String),
+}
+
+impl From<ApiError> for Status {
+    fn from(e: ApiError) -> Self {
+        match e {
+            ApiError::Invalid(violations) => {
+                let mut details = ErrorDetails::new();
+                for v in &violations {
+                    details.add_bad_request_violation(v.field.clone(), v.description.clone());
+                }
+                let summary = violations
+                    .iter()
+                    .map(|v| v.description.as_str())
+                    .collect::<Vec<_>>()
+                    .join("; ");
+                Status::with_error_details(Code::InvalidArgument, summary, details)
+            }
+            ApiError::TooLarge { field, limit, actual } => {
+                let msg = format!("{field}: {actual} exceeds the server limit of {limit}");
+                let mut details = ErrorDetails::new();
+                details.add_bad_request_violation(field, msg.clone());
+                Status::with_error_details(Code::ResourceExhausted, msg, details)
+            }
+            ApiError::Precondition(msg) => Status::failed_precondition(msg),
+        }
+    }
+}
+
+/// Collects field violations while a request is converted, so the caller hears about every
+/// bad field at once.
+#[derive(Debug, Default)]
+pub struct Check {
+    violations: Vec<FieldViolation>,
+}
+
+fn join(prefix: &str, leaf: &str) -> String {
+    if prefix.is_empty() {
+        leaf.to_string()
+    } else {
+        format!("{prefix}.{leaf}")
+    }
+}
+
+impl Check {
+    /// A collector with no violations.
+    pub fn new() -> Self {
+        Self::default()
+    }
+
+    /// Records a domain range error under `prefix` (the path of the message that holds the
+    /// field); returns the value when there was no error.
+    pub fn range<T>(&mut self, prefix: &str, r: Result<T, RangeError>) -> Option<T> {
+        match r {
+            Ok(v) => Some(v),
+            Err(e) => {
+                let field = join(prefix, e.quantity);
+                let value = if e.value.is_finite() {
+                    format!("{}", e.value)
+                } else {
+                    format!("{} (not a finite number)", e.value)
+                };
+                self.violations.push(FieldViolation {
+                    description: format!(
+                        "{field} = {value} is outside the allowed range {}",
+                        e.allowed
+                    ),
+                    field,
+                });
+                None
+            }
+        }
+    }
+
+    /// Records a required field that was not set.
+    pub fn missing(&mut self, field: impl Into<String>, what: &str) {
+        let field = field.into();
+        self.violations.push(FieldViolation {
+            description: format!("{field} is required: {what}"),
+            field,
+        });
+    }
+
+    /// Records any other violation with its own sentence.
+    pub fn other(&mut self, field: impl Into<String>, description: impl Into<String>) {
+        self.violations.push(FieldViolation { field: field.into(), description: description.into() });
+    }
+
+    /// True when nothing was recorded.
+    pub fn is_clean(&self) -> bool {
+        self.violations.is_empty()
+    }
+
+    /// Ends the check: the value when there were no violations.
+    ///
+    /// # Errors
+    /// [`ApiError::Invalid`] with every violation recorded.
+    pub fn finish<T>(self, value: Option<T>) -> Result<T, ApiError> {
+        match value {
+            Some(v) if self.violations.is_empty() => Ok(v),
+            _ if !self.violations.is_empty() => Err(ApiError::Invalid(self.violations)),
+            _ => Err(ApiError::Invalid(vec![FieldViolation {
+                field: String::new(),
+                description: "the request could not be converted".into(),
+            }])),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn invalid_argument_carries_bad_request_details() {
+        let mut c = Check::new();
+        let r: Result<f64, _> = Err(RangeError::new("gamma", f64::NAN, "(1, 5]"));
+        assert!(c.range("conditions.gas", r).is_none());
+        let status: Status = c.finish::<()>(None).unwrap_err().into();
+        assert_eq!(status.code(), Code::InvalidArgument);
+        let details = status.get_error_details();
+        let bad = details.bad_request().expect("bad request details");
+        assert_eq!(bad.field_violations[0].field, "conditions.gas.gamma");
+        assert!(bad.field_violations[0].description.contains("not a finite number"));
+        assert!(bad.field_violations[0].description.contains("(1, 5]"));
+    }
+}

@@ -1,0 +1,436 @@
+//! GasDynamicsService: request conversion and response building.
+
+use super::error::{ApiError, Check};
+use super::provenance::{provenance, Defaults};
+use crate::physics::gas::{self, Branch, Gas, Isentropic, IsentropicInput, NormalShock};
+use crate::physics::jet::{self, JetSize, JetState, Nozzle, OperatingPoint, Regime};
+use crate::physics::models;
+use jetloop_proto::pb;
+
+const AIR_REASON: &str = "dry air (common practice)";
+const ISA_REASON: &str = "ICAO standard atmosphere, sea level";
+
+/// A validated isentropic question.
+#[derive(Debug, Clone, PartialEq)]
+pub struct IsentropicQuery {
+    /// Gas.
+    pub gas: Gas,
+    /// The quantity given.
+    pub input: IsentropicInput,
+    /// Defaults applied.
+    pub defaults: Defaults,
+}
+
+/// A validated normal-shock question.
+#[derive(Debug, Clone, PartialEq)]
+pub struct NormalShockQuery {
+    /// Gas.
+    pub gas: Gas,
+    /// Upstream Mach number.
+    pub m1: f64,
+    /// Defaults applied.
+    pub defaults: Defaults,
+}
+
+/// Validated jet conditions: gas, nozzle and operating point.
+#[derive(Debug, Clone, PartialEq)]
+pub struct JetSpec {
+    /// Gas.
+    pub gas: Gas,
+    /// Nozzle.
+    pub nozzle: Nozzle,
+    /// Operating point.
+    pub op: OperatingPoint,
+    /// Defaults applied.
+    pub defaults: Defaults,
+}
+
+fn gamma_only(check: &mut Check, defaults: &mut Defaults, gamma: Option<f64>) -> Option<Gas> {
+    let g = defaults.or(gamma, "gamma", gas::AIR_GAMMA, "", AIR_REASON);
+    check.range("", Gas::new(g, gas::AIR_GAS_CONSTANT))
+}
+
+impl TryFrom<pb::IsentropicRatiosRequest> for IsentropicQuery {
+    type Error = ApiError;
+
+    fn try_from(req: pb::IsentropicRatiosRequest) -> Result<Self, ApiError> {
+        use pb::isentropic_ratios_request::Given;
+        let pb::IsentropicRatiosRequest { gamma, given, branch } = req;
+        let mut check = Check::new();
+        let mut defaults = Defaults::default();
+        let gas = gamma_only(&mut check, &mut defaults, gamma);
+        let branch = match pb::MachBranch::try_from(branch) {
+            Ok(pb::MachBranch::Subsonic) => Some(Some(Branch::Subsonic)),
+            Ok(pb::MachBranch::Supersonic) => Some(Some(Branch::Supersonic)),
+            Ok(pb::MachBranch::Unspecified) => Some(None),
+            Err(_) => {
+                check.other("branch", format!("branch = {branch} is not a MachBranch value (0, 1 or 2)"));
+                None
+            }
+        };
+        let supersonic_only = |check: &mut Check, field: &str| {
+            if branch == Some(Some(Branch::Subsonic)) {
+                check.other(
+                    field,
+                    format!(
+                        "{field} exists only on the supersonic branch (Mach >= 1); \
+                         branch must be MACH_BRANCH_SUPERSONIC or unset"
+                    ),
+                );
+            }
+        };
+        let input = match given {
+            None => {
+                check.missing(
+                    "given",
+                    "set exactly one of mach_number, temperature_ratio, pressure_ratio, \
+                     density_ratio, area_ratio, mach_angle_deg, prandtl_meyer_angle_deg",
+                );
+                None
+            }
+            Some(Given::MachNumber(m)) => {
+                check.range("", gas::MACH.check("mach_number", m)).map(IsentropicInput::Mach)
+            }
+            Some(Given::TemperatureRatio(r)) => Some(IsentropicInput::TemperatureRatio(r)),
+            Some(Given::PressureRatio(r)) => Some(IsentropicInput::PressureRatio(r)),
+            Some(Given::DensityRatio(r)) => Some(IsentropicInput::DensityRatio(r)),
+            Some(Given::AreaRatio(a)) => {
+                let b = match branch.flatten() {
+                    Some(b) => b,
+                    None => {
+                        defaults.note("branch", "MACH_BRANCH_SUPERSONIC", "jets of interest are supersonic");
+                        Branch::Supersonic
+                    }
+                };
+                Some(IsentropicInput::AreaRatio(a, b))
+            }
+            Some(Given::MachAngleDeg(mu)) => {
+                supersonic_only(&mut check, "mach_angle_deg");
+                Some(IsentropicInput::MachAngleDeg(mu))
+            }
+            Some(Given::PrandtlMeyerAngleDeg(nu)) => {
+                supersonic_only(&mut check, "prandtl_meyer_angle_deg");
+                Some(IsentropicInput::PrandtlMeyerDeg(nu))
+            }
+        };
+        let q = gas.zip(input).map(|(gas, input)| IsentropicQuery { gas, input, defaults });
+        check.finish(q)
+    }
+}
+
+impl TryFrom<pb::NormalShockRequest> for NormalShockQuery {
+    type Error = ApiError;
+
+    fn try_from(req: pb::NormalShockRequest) -> Result<Self, ApiError> {
+        let pb::NormalShockRequest { gamma, upstream_mach_number } = req;
+        let mut check = Check::new();
+        let mut defaults = Defaults::default();
+        let gas = gamma_only(&mut check, &mut defaults, gamma);
+        let m1 = check.range("", gas::SHOCK_MACH.check("upstream_mach_number", upstream_mach_number));
+        check.finish(gas.zip(m1).map(|(gas, m1)| NormalShockQuery { gas, m1, defaults }))
+    }
+}
+
+/// Converts jet conditions found at `path` in a request (e.g. `conditions`).
+///
+/// # Errors
+/// [`ApiError::Invalid`] naming every bad or missing field under `path`.
+pub fn jet_spec(c: Option<pb::JetConditions>, path: &str) -> Result<JetSpec, ApiError> {
+    let mut check = Check::new();
+    let Some(pb::JetConditions { nozzle, operating_point, gas: gas_msg }) = c else {
+        check.missing(path, "give the nozzle and the operating point");
+        return check.finish(None);
+    };
+    let mut defaults = Defaults::default();
+    let gp = format!("{path}.gas");
+    let pb::Gas { gamma, gas_constant_j_per_kg_k } = gas_msg.unwrap_or_default();
+    let g = defaults.or(gamma, &format!("{gp}.gamma"), gas::AIR_GAMMA, "", AIR_REASON);
+    let r = defaults.or(
+        gas_constant_j_per_kg_k,
+        &format!("{gp}.gas_constant_j_per_kg_k"),
+        gas::AIR_GAS_CONSTANT,
+        "J/(kg K)",
+        AIR_REASON,
+    );
+    let gas = check.range(&gp, Gas::new(g, r));
+    // The area-ratio design needs a valid gas; fall back to air only to keep checking fields.
+    let nozzle = nozzle_from(&mut check, nozzle, &format!("{path}.nozzle"), &gas.unwrap_or(Gas::AIR));
+    let op = operating_point_from(&mut check, &mut defaults, operating_point, &format!("{path}.operating_point"));
+    let spec = match (gas, nozzle, op) {
+        (Some(gas), Some(nozzle), Some(op)) => Some(JetSpec { gas, nozzle, op, defaults }),
+        _ => None,
+    };
+    check.finish(spec)
+}
+
+fn nozzle_from(check: &mut Check, n: Option<pb::Nozzle>, path: &str, gas: &Gas) -> Option<Nozzle> {
+    use pb::nozzle::Kind;
+    use pb::round_convergent_divergent_nozzle::Design;
+    let kind = match n.and_then(|n| n.kind) {
+        Some(k) => k,
+        None => {
+            check.missing(
+                path,
+                "set one of round_convergent, round_convergent_divergent, rectangular, planar",
+            );
+            return None;
+        }
+    };
+    match kind {
+        Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m }) => {
+            check.range(&format!("{path}.round_convergent"), Nozzle::round_convergent(exit_diameter_m))
+        }
+        Kind::RoundConvergentDivergent(pb::RoundConvergentDivergentNozzle { exit_diameter_m, design }) => {
+            let p = format!("{path}.round_convergent_divergent");
+            match design {
+                None => {
+                    check.missing(
+                        format!("{p}.design"),
+                        "set design_mach_number or exit_to_throat_area_ratio",
+                    );
+                    None
+                }
+                Some(Design::DesignMachNumber(md)) => check.range(&p, Nozzle::round_cd(exit_diameter_m, md)),
+                Some(Design::ExitToThroatAreaRatio(ar)) => {
+                    check.range(&p, Nozzle::round_cd_from_area_ratio(exit_diameter_m, ar, gas))
+                }
+            }
+        }
+        Kind::Rectangular(pb::RectangularNozzle { exit_height_m, exit_width_m, design_mach_number }) => {
+            let p = format!("{path}.rectangular");
+            if exit_width_m == 0.0 {
+                check.missing(format!("{p}.exit_width_m"), "a rectangular nozzle needs its exit width in m");
+                return None;
+            }
+            check.range(
+                &p,
+                Nozzle::rectangular(exit_height_m, exit_width_m, design_mach_number.unwrap_or(1.0)),
+            )
+        }
+        Kind::Planar(pb::PlanarNozzle { exit_height_m, design_mach_number }) => check.range(
+            &format!("{path}.planar"),
+            Nozzle::planar(exit_height_m, design_mach_number.unwrap_or(1.0)),
+        ),
+    }
+}
+
+fn operating_point_from(
+    check: &mut Check,
+    defaults: &mut Defaults,
+    op: Option<pb::OperatingPoint>,
+    path: &str,
+) -> Option<OperatingPoint> {
+    use pb::operating_point::Pressure;
+    let Some(pb::OperatingPoint { pressure, total_temperature_k, ambient_temperature_k, ambient_pressure_pa }) = op
+    else {
+        check.missing(path, "give the nozzle pressure ratio or the reservoir and ambient pressures");
+        return None;
+    };
+    let t_amb = defaults.or(
+        ambient_temperature_k,
+        &format!("{path}.ambient_temperature_k"),
+        jet::ISA_SEA_LEVEL_TEMPERATURE_K,
+        "K",
+        ISA_REASON,
+    );
+    let t0 = defaults.or(
+        total_temperature_k,
+        &format!("{path}.total_temperature_k"),
+        t_amb,
+        "K",
+        "unheated jet: reservoir at the ambient temperature",
+    );
+    match pressure {
+        None => {
+            check.missing(
+                format!("{path}.pressure"),
+                "set nozzle_pressure_ratio or pressures (total_pressure_pa, ambient_pressure_pa)",
+            );
+            None
+        }
+        Some(Pressure::NozzlePressureRatio(npr)) => {
+            let p_amb = defaults.or(
+                ambient_pressure_pa,
+                &format!("{path}.ambient_pressure_pa"),
+                jet::ISA_SEA_LEVEL_PRESSURE_PA,
+                "Pa",
+                ISA_REASON,
+            );
+            check.range(path, OperatingPoint::new(npr, p_amb, t0, t_amb))
+        }
+        Some(Pressure::Pressures(pb::ReservoirAndAmbientPressure { total_pressure_pa, ambient_pressure_pa: pa })) => {
+            if ambient_pressure_pa.is_some() {
+                check.other(
+                    format!("{path}.ambient_pressure_pa"),
+                    format!(
+                        "{path}.ambient_pressure_pa must be unset when pressures are given: \
+                         the ambient pressure is {path}.pressures.ambient_pressure_pa"
+                    ),
+                );
+            }
+            match OperatingPoint::from_pressures(total_pressure_pa, pa, t0, t_amb) {
+                Err(e) if e.quantity.ends_with("temperature_k") => check.range(path, Err(e)),
+                r => check.range(&format!("{path}.pressures"), r),
+            }
+        }
+    }
+}
+
+/// Builds the IsentropicRatios response.
+pub fn isentropic_response(q: &IsentropicQuery, r: &Isentropic) -> pb::IsentropicRatiosResponse {
+    let mut used = vec![models::ISENTROPIC];
+    if r.prandtl_meyer_deg.is_some() {
+        used.push(models::PRANDTL_MEYER);
+    }
+    pb::IsentropicRatiosResponse {
+        gamma: q.gas.gamma(),
+        mach_number: r.mach,
+        temperature_ratio: r.temperature_ratio,
+        pressure_ratio: r.pressure_ratio,
+        density_ratio: r.density_ratio,
+        area_ratio: r.area_ratio,
+        mach_angle_deg: r.mach_angle_deg,
+        prandtl_meyer_angle_deg: r.prandtl_meyer_deg,
+        critical_velocity_ratio: r.critical_velocity_ratio,
+        provenance: Some(provenance(&used, &q.defaults, Vec::new())),
+    }
+}
+
+/// Builds the NormalShock response.
+pub fn normal_shock_response(q: &NormalShockQuery, s: &NormalShock) -> pb::NormalShockResponse {
+    pb::NormalShockResponse {
+        gamma: q.gas.gamma(),
+        upstream_mach_number: s.upstream_mach,
+        downstream_mach_number: s.downstream_mach,
+        static_pressure_ratio: s.static_pressure_ratio,
+        density_ratio: s.density_ratio,
+        static_temperature_ratio: s.static_temperature_ratio,
+        total_pressure_ratio: s.total_pressure_ratio,
+        pitot_to_upstream_static_ratio: s.pitot_to_upstream_static_ratio,
+        provenance: Some(provenance(&[models::NORMAL_SHOCK], &q.defaults, Vec::new())),
+    }
+}
+
+/// Proto enum for a regime.
+pub fn regime(r: Regime) -> pb::ExpansionRegime {
+    match r {
+        Regime::Subsonic => pb::ExpansionRegime::Subsonic,
+        Regime::ShockInNozzle => pb::ExpansionRegime::ShockInNozzle,
+        Regime::OverExpanded => pb::ExpansionRegime::OverExpanded,
+        Regime::IdeallyExpanded => pb::ExpansionRegime::IdeallyExpanded,
+        Regime::UnderExpanded => pb::ExpansionRegime::UnderExpanded,
+    }
+}
+
+/// Proto message for a jet state.
+pub fn jet_state_message(s: &JetState) -> pb::JetState {
+    let (dj, hj, bj) = match s.size {
+        JetSize::Round { diameter_m } => (Some(diameter_m), None, None),
+        JetSize::Rectangular { height_m, width_m } => (None, Some(height_m), Some(width_m)),
+        JetSize::Planar { height_m } => (None, Some(height_m), None),
+    };
+    let planar = s.is_planar();
+    pb::JetState {
+        nozzle_pressure_ratio: s.npr,
+        total_pressure_pa: s.total_pressure_pa,
+        ambient_pressure_pa: s.ambient_pressure_pa,
+        total_temperature_k: s.total_temperature_k,
+        ambient_temperature_k: s.ambient_temperature_k,
+        gamma: s.gas.gamma(),
+        gas_constant_j_per_kg_k: s.gas.gas_constant(),
+        design_mach_number: s.md,
+        design_nozzle_pressure_ratio: s.design_npr,
+        regime: regime(s.regime) as i32,
+        supersonic: s.supersonic,
+        fully_expanded_mach_number: s.mj,
+        off_design_parameter: s.beta,
+        fully_expanded_temperature_k: s.tj_k,
+        fully_expanded_velocity_m_per_s: s.uj_m_s,
+        fully_expanded_density_kg_per_m3: s.rho_j_kg_m3,
+        jet_sound_speed_m_per_s: s.aj_m_s,
+        ambient_sound_speed_m_per_s: s.a_amb_m_s,
+        acoustic_mach_number: s.acoustic_mach,
+        exit_mach_number: s.exit_mach,
+        exit_pressure_pa: s.exit_pressure_pa,
+        fully_expanded_to_exit_area_ratio: s.area_ratio,
+        fully_expanded_diameter_m: dj,
+        fully_expanded_height_m: hj,
+        fully_expanded_width_m: bj,
+        mass_flow_kg_per_s: (!planar).then_some(s.mass_flow),
+        mass_flow_per_span_kg_per_s_m: planar.then_some(s.mass_flow),
+        choked: s.choked,
+        mach_disk_expected: s.mach_disk_expected,
+        temperature_ratio: s.temperature_ratio,
+        exit_area_m2: s.exit_area_m2,
+    }
+}
+
+/// Safety sentence added to every jet-state answer.
+pub const PRESSURE_CAUTION: &str = "Caution: reservoirs and nozzle supply lines are pressure \
+equipment, and jets at these conditions can produce tones above 140 dB near the nozzle. Follow \
+local codes, the facility's procedures and licensed practice; these numbers are no basis for \
+safety decisions.";
+
+/// Builds the JetState response.
+pub fn jet_state_response(spec: &JetSpec, s: &JetState) -> pb::JetStateResponse {
+    let mut notes = s.notes.clone();
+    notes.push(PRESSURE_CAUTION.to_string());
+    let mut used = vec![models::FULLY_EXPANDED_JET, models::ISENTROPIC, models::CHOKED_MASS_FLOW];
+    if spec.defaults.0.iter().any(|d| d.reason == ISA_REASON) {
+        used.push(models::STANDARD_ATMOSPHERE);
+    }
+    pb::JetStateResponse {
+        state: Some(jet_state_message(s)),
+        provenance: Some(provenance(&used, &spec.defaults, notes)),
+    }
+}
+
+/// Computes the jet state for validated conditions.
+pub fn compute_jet_state(spec: &JetSpec) -> JetState {
+    jet::jet_state(&spec.gas, &spec.nozzle, &spec.op)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn conditions(kind: pb::nozzle::Kind, npr: f64) -> Option<pb::JetConditions> {
+        Some(pb::JetConditions {
+            nozzle: Some(pb::Nozzle { kind: Some(kind) }),
+            operating_point: Some(pb::OperatingPoint {
+                pressure: Some(pb::operating_point::Pressure::NozzlePressureRatio(npr)),
+                ..Default::default()
+            }),
+            gas: None,
+        })
+    }
+
+    #[test]
+    fn defaults_are_recorded() {
+        let spec = jet_spec(
+            conditions(pb::nozzle::Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: 0.02 }), 3.0),
+            "conditions",
+        )
+        .unwrap();
+        let fields: Vec<_> = spec.defaults.0.iter().map(|d| d.field.as_str()).collect();
+        assert!(fields.contains(&"conditions.gas.gamma"));
+        assert!(fields.contains(&"conditions.operating_point.ambient_pressure_pa"));
+        assert!(fields.contains(&"conditions.operating_point.total_temperature_k"));
+    }
+
+    #[test]
+    fn every_bad_field_is_reported_at_once() {
+        let mut c = conditions(pb::nozzle::Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: -1.0 }), 0.5);
+        c.as_mut().unwrap().gas = Some(pb::Gas { gamma: Some(f64::NAN), gas_constant_j_per_kg_k: None });
+        let ApiError::Invalid(v) = jet_spec(c, "conditions").unwrap_err() else { panic!() };
+        let fields: Vec<_> = v.iter().map(|v| v.field.as_str()).collect();
+        assert_eq!(
+            fields,
+            [
+                "conditions.gas.gamma",
+                "conditions.nozzle.round_convergent.exit_diameter_m",
+                "conditions.operating_point.nozzle_pressure_ratio"
+            ]
+        );
+    }
+}

@@ -1,0 +1,64 @@
+//! Provenance attached to every response.
+
+use crate::physics::models::Model;
+use jetloop_proto::pb;
+
+/// Version of this server (from Cargo).
+pub const SERVER_VERSION: &str = env!("CARGO_PKG_VERSION");
+
+/// A default applied to a field the request left unset.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Default {
+    /// Field path.
+    pub field: String,
+    /// Value applied, with unit.
+    pub value: String,
+    /// Why.
+    pub reason: String,
+}
+
+/// Defaults applied while converting one request.
+#[derive(Debug, Clone, PartialEq, Eq, core::default::Default)]
+pub struct Defaults(pub Vec<Default>);
+
+impl Defaults {
+    /// Returns `given`, or `value` after recording that the default was used.
+    pub fn or(&mut self, given: Option<f64>, field: &str, value: f64, unit: &str, reason: &str) -> f64 {
+        given.unwrap_or_else(|| {
+            self.0.push(Default {
+                field: field.to_string(),
+                value: if unit.is_empty() { format!("{value}") } else { format!("{value} {unit}") },
+                reason: reason.to_string(),
+            });
+            value
+        })
+    }
+
+    /// Records a default that is not a number (an enum choice).
+    pub fn note(&mut self, field: &str, value: &str, reason: &str) {
+        self.0.push(Default { field: field.into(), value: value.into(), reason: reason.into() });
+    }
+}
+
+/// Builds the provenance message.
+pub fn provenance(models: &[Model], defaults: &Defaults, notes: Vec<String>) -> pb::Provenance {
+    pb::Provenance {
+        server_version: SERVER_VERSION.to_string(),
+        models: models.iter().map(model).collect(),
+        defaults_applied: defaults
+            .0
+            .iter()
+            .map(|d| pb::AppliedDefault {
+                field: d.field.clone(),
+                value: d.value.clone(),
+                reason: d.reason.clone(),
+            })
+            .collect(),
+        notes,
+    }
+}
+
+/// One model as a proto message.
+pub fn model(m: &Model) -> pb::ModelReference {
+    pb::ModelReference { name: m.name.to_string(), reference: m.reference.to_string() }
+}

@@ -1,0 +1,70 @@
+//! `jetloop-server`: parse flags, set up logging, bind, serve until SIGINT/SIGTERM.
+#![forbid(unsafe_code)]
+
+use clap::Parser;
+use jetloop_server::{config::Config, server};
+use std::io::Write;
+use std::process::ExitCode;
+
+#[tokio::main]
+async fn main() -> ExitCode {
+    let config = Config::parse();
+    tracing_subscriber::fmt()
+        .with_env_filter(
+            tracing_subscriber::EnvFilter::try_from_default_env()
+                .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info")),
+        )
+        .with_writer(std::io::stderr)
+        .init();
+    let listener = match tokio::net::TcpListener::bind(config.listen).await {
+        Ok(l) => l,
+        Err(e) => {
+            tracing::error!("cannot listen on {}: {e}", config.listen);
+            return ExitCode::from(3);
+        }
+    };
+    let addr = match listener.local_addr() {
+        Ok(a) => a,
+        Err(e) => {
+            tracing::error!("cannot read the bound address: {e}");
+            return ExitCode::from(3);
+        }
+    };
+    // The first line on stdout is the bound address, so scripts that start the server on
+    // port 0 can find it.
+    println!("jetloop-server listening on {addr}");
+    let _ = std::io::stdout().flush();
+    tracing::info!(%addr, version = env!("CARGO_PKG_VERSION"), "serving");
+    match server::serve(listener, config.limits(), shutdown_signal()).await {
+        Ok(()) => {
+            tracing::info!("stopped");
+            ExitCode::SUCCESS
+        }
+        Err(e) => {
+            tracing::error!("server failed: {e}");
+            ExitCode::from(1)
+        }
+    }
+}
+
+async fn shutdown_signal() {
+    let ctrl_c = async {
+        let _ = tokio::signal::ctrl_c().await;
+    };
+    #[cfg(unix)]
+    let term = async {
+        match tokio::signal::unix::signal(tokio::signal::unix::SignalKind::terminate()) {
+            Ok(mut s) => {
+                s.recv().await;
+            }
+            Err(_) => std::future::pending::<()>().await,
+        }
+    };
+    #[cfg(not(unix))]
+    let term = std::future::pending::<()>();
+    tokio::select! {
+        () = ctrl_c => {},
+        () = term => {},
+    }
+    tracing::info!("shutdown requested: finishing calls in flight");
+}

@@ -1,0 +1,58 @@
+//! Server configuration: command-line flags with environment fallbacks and safe defaults.
+
+use clap::Parser;
+use std::net::SocketAddr;
+use std::time::Duration;
+
+/// Limits enforced on every call.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Limits {
+    /// Largest accepted request message, bytes.
+    pub max_request_bytes: usize,
+    /// Server-side time limit for one call.
+    pub request_timeout: Duration,
+    /// Calls processed at once per connection before further ones wait.
+    pub max_concurrent_requests: usize,
+}
+
+impl Default for Limits {
+    fn default() -> Self {
+        Self {
+            max_request_bytes: 64 * 1024 * 1024,
+            request_timeout: Duration::from_secs(60),
+            max_concurrent_requests: 256,
+        }
+    }
+}
+
+/// `jetloop-server` flags.
+#[derive(Debug, Clone, Parser)]
+#[command(name = "jetloop-server", version, about = "jetloop gRPC server for supersonic-jet aeroacoustics")]
+pub struct Config {
+    /// Address to listen on (port 0 picks a free port; the bound address is printed).
+    #[arg(long, env = "JETLOOP_LISTEN", default_value = "127.0.0.1:50051")]
+    pub listen: SocketAddr,
+    /// Largest accepted request message in bytes.
+    #[arg(long, env = "JETLOOP_MAX_REQUEST_BYTES", default_value_t = 64 * 1024 * 1024,
+          value_parser = clap::value_parser!(u64).range(1024..=1024 * 1024 * 1024))]
+    pub max_request_bytes: u64,
+    /// Server-side time limit for one call, in seconds.
+    #[arg(long, env = "JETLOOP_REQUEST_TIMEOUT_S", default_value_t = 60,
+          value_parser = clap::value_parser!(u64).range(1..=3600))]
+    pub request_timeout_s: u64,
+    /// Calls processed at once per connection.
+    #[arg(long, env = "JETLOOP_MAX_CONCURRENT", default_value_t = 256,
+          value_parser = clap::value_parser!(u64).range(1..=65536))]
+    pub max_concurrent_requests: u64,
+}
+
+impl Config {
+    /// Limits from the flags.
+    pub fn limits(&self) -> Limits {
+        Limits {
+            max_request_bytes: usize::try_from(self.max_request_bytes).unwrap_or(usize::MAX),
+            request_timeout: Duration::from_secs(self.request_timeout_s),
+            max_concurrent_requests: usize::try_from(self.max_concurrent_requests).unwrap_or(usize::MAX),
+        }
+    }
+}

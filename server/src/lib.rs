@@ -1,0 +1,13 @@
+//! jetloop server library: pure physics and signal processing, the API edge that validates
+//! proto messages into domain types, thin gRPC services, and the server assembly.
+//!
+//! Layering (arrows point down only): `service -> api -> {physics, dsp}`; `physics` and `dsp`
+//! never import tonic, prost or tokio.
+#![forbid(unsafe_code)]
+
+pub mod api;
+pub mod config;
+pub mod dsp;
+pub mod physics;
+pub mod server;
+pub mod service;

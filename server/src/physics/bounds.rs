@@ -1,0 +1,106 @@
+//! Allowed ranges of physical inputs, defined once and reported verbatim in error messages.
+
+use std::fmt;
+
+/// A closed, open or half-open interval of allowed values with the unit they are given in.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Bounds {
+    /// Lower end of the interval.
+    pub min: f64,
+    /// Whether `min` itself is allowed.
+    pub min_inclusive: bool,
+    /// Upper end of the interval.
+    pub max: f64,
+    /// Whether `max` itself is allowed.
+    pub max_inclusive: bool,
+    /// Unit the values are given in ("" for dimensionless quantities).
+    pub unit: &'static str,
+}
+
+impl Bounds {
+    /// `(min, max]`: the usual range of a strictly positive quantity.
+    pub const fn open_closed(min: f64, max: f64, unit: &'static str) -> Self {
+        Self { min, min_inclusive: false, max, max_inclusive: true, unit }
+    }
+
+    /// `[min, max]`.
+    pub const fn closed(min: f64, max: f64, unit: &'static str) -> Self {
+        Self { min, min_inclusive: true, max, max_inclusive: true, unit }
+    }
+
+    /// `[min, max)`.
+    pub const fn closed_open(min: f64, max: f64, unit: &'static str) -> Self {
+        Self { min, min_inclusive: true, max, max_inclusive: false, unit }
+    }
+
+    /// True when `v` is finite and inside the interval (NaN and infinities are never inside).
+    pub fn contains(&self, v: f64) -> bool {
+        if !v.is_finite() {
+            return false;
+        }
+        let lo = if self.min_inclusive { v >= self.min } else { v > self.min };
+        let hi = if self.max_inclusive { v <= self.max } else { v < self.max };
+        lo && hi
+    }
+
+    /// Checks `v`, naming the quantity in the error.
+    ///
+    /// # Errors
+    /// [`RangeError`] when `v` is NaN, infinite or outside the interval.
+    pub fn check(&self, quantity: &'static str, v: f64) -> Result<f64, RangeError> {
+        if self.contains(v) {
+            Ok(v)
+        } else {
+            Err(RangeError::new(quantity, v, self.to_string()))
+        }
+    }
+}
+
+impl fmt::Display for Bounds {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let l = if self.min_inclusive { '[' } else { '(' };
+        let r = if self.max_inclusive { ']' } else { ')' };
+        write!(f, "{l}{}, {}{r}", self.min, self.max)?;
+        if !self.unit.is_empty() {
+            write!(f, " {}", self.unit)?;
+        }
+        Ok(())
+    }
+}
+
+/// A physical input outside its allowed range. `quantity` is the name of the input as the API
+/// spells it (the last part of the field path), so the API layer can prefix the path.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[error("{quantity} = {value} is outside the allowed range {allowed}")]
+pub struct RangeError {
+    /// Name of the offending input, e.g. `gamma`.
+    pub quantity: &'static str,
+    /// The value that was given.
+    pub value: f64,
+    /// The allowed range in words, with its unit.
+    pub allowed: String,
+}
+
+impl RangeError {
+    /// A new range error.
+    pub fn new(quantity: &'static str, value: f64, allowed: impl Into<String>) -> Self {
+        Self { quantity, value, allowed: allowed.into() }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn intervals_reject_nan_inf_and_respect_ends() {
+        let b = Bounds::open_closed(1.0, 5.0, "");
+        assert!(!b.contains(f64::NAN));
+        assert!(!b.contains(f64::INFINITY));
+        assert!(!b.contains(1.0));
+        assert!(b.contains(5.0));
+        assert_eq!(b.to_string(), "(1, 5]");
+        let e = Bounds::closed(0.0, 1.0, "K").check("t", -1.0).unwrap_err();
+        assert_eq!(e.allowed, "[0, 1] K");
+    }
+}

@@ -1,0 +1,67 @@
+//! Builds the tonic server: jetloop services, health, reflection and the limits around them.
+
+use crate::config::Limits;
+use crate::service::{gas_dynamics::GasDynamics, info::Info};
+use jetloop_proto::pb::{
+    gas_dynamics_service_server::GasDynamicsServiceServer, info_service_server::InfoServiceServer,
+};
+use std::future::Future;
+use tokio::net::TcpListener;
+use tokio_stream::wrappers::TcpListenerStream;
+use tonic::transport::Server;
+
+/// Error starting or running the server.
+#[derive(Debug, thiserror::Error)]
+pub enum ServeError {
+    /// Reflection could not load the descriptor set (a build defect).
+    #[error("reflection setup failed: {0}")]
+    Reflection(#[from] tonic_reflection::server::Error),
+    /// The transport failed.
+    #[error("transport: {0}")]
+    Transport(#[from] tonic::transport::Error),
+}
+
+/// Serves every jetloop service on an already bound listener until `shutdown` resolves, then
+/// finishes the calls in flight.
+///
+/// # Errors
+/// [`ServeError`] when reflection cannot be built or the transport fails.
+pub async fn serve(
+    listener: TcpListener,
+    limits: Limits,
+    shutdown: impl Future<Output = ()> + Send,
+) -> Result<(), ServeError> {
+    let (health_reporter, health) = tonic_health::server::health_reporter();
+    health_reporter.set_serving::<GasDynamicsServiceServer<GasDynamics>>().await;
+    health_reporter.set_serving::<InfoServiceServer<Info>>().await;
+
+    let reflection_v1 = tonic_reflection::server::Builder::configure()
+        .register_encoded_file_descriptor_set(jetloop_proto::FILE_DESCRIPTOR_SET)
+        .register_encoded_file_descriptor_set(tonic_health::pb::FILE_DESCRIPTOR_SET)
+        .build_v1()?;
+    // Python's grpcio-reflection client still speaks v1alpha.
+    let reflection_v1alpha = tonic_reflection::server::Builder::configure()
+        .register_encoded_file_descriptor_set(jetloop_proto::FILE_DESCRIPTOR_SET)
+        .register_encoded_file_descriptor_set(tonic_health::pb::FILE_DESCRIPTOR_SET)
+        .build_v1alpha()?;
+
+    let max = limits.max_request_bytes;
+    let gas = GasDynamicsServiceServer::new(GasDynamics).max_decoding_message_size(max);
+    let info = InfoServiceServer::new(Info::new(limits)).max_decoding_message_size(max);
+
+    Server::builder()
+        // A span per call, so logs carry the method path.
+        .trace_fn(|req| tracing::info_span!("grpc", path = %req.uri().path()))
+        // Server-side time limit; a shorter grpc-timeout from the client wins.
+        .timeout(limits.request_timeout)
+        // Bound the work one connection can queue.
+        .concurrency_limit_per_connection(limits.max_concurrent_requests)
+        .add_service(health)
+        .add_service(reflection_v1)
+        .add_service(reflection_v1alpha)
+        .add_service(gas)
+        .add_service(info)
+        .serve_with_incoming_shutdown(TcpListenerStream::new(listener), shutdown)
+        .await?;
+    Ok(())
+}

@@ -1,0 +1,51 @@
+//! `jetloop.v1.InfoService`.
+
+use crate::api::gas::PRESSURE_CAUTION;
+use crate::api::provenance::{model, provenance, Defaults, SERVER_VERSION};
+use crate::config::Limits;
+use crate::physics::models;
+use jetloop_proto::pb::{self, info_service_server::InfoService};
+use tonic::{Request, Response, Status};
+
+/// Fully qualified names of the services this server answers.
+pub const SERVICES: &[&str] = &[
+    "jetloop.v1.GasDynamicsService",
+    "jetloop.v1.InfoService",
+    "grpc.health.v1.Health",
+    "grpc.reflection.v1.ServerReflection",
+    "grpc.reflection.v1alpha.ServerReflection",
+];
+
+/// Answers ServerInfo from the limits the server was started with.
+#[derive(Debug, Clone)]
+pub struct Info {
+    limits: Limits,
+}
+
+impl Info {
+    /// Info for a server running with `limits`.
+    pub fn new(limits: Limits) -> Self {
+        Self { limits }
+    }
+}
+
+#[tonic::async_trait]
+impl InfoService for Info {
+    async fn server_info(
+        &self,
+        _request: Request<pb::ServerInfoRequest>,
+    ) -> Result<Response<pb::ServerInfoResponse>, Status> {
+        Ok(Response::new(pb::ServerInfoResponse {
+            server_version: SERVER_VERSION.to_string(),
+            services: SERVICES.iter().map(|s| s.to_string()).collect(),
+            models: models::ALL.iter().map(model).collect(),
+            limits: Some(pb::ServerLimits {
+                max_request_bytes: self.limits.max_request_bytes as u64,
+                request_timeout_s: self.limits.request_timeout.as_secs_f64(),
+                max_concurrent_requests: self.limits.max_concurrent_requests as u64,
+            }),
+            safety_notice: PRESSURE_CAUTION.to_string(),
+            provenance: Some(provenance(&[], &Defaults::default(), Vec::new())),
+        }))
+    }
+}
