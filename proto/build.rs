@@ -4,11 +4,8 @@
 use prost::Message;
 use std::{env, fs, path::PathBuf};
 
-const PROTOS: &[&str] = &[
-    "jetloop/v1/common.proto",
-    "jetloop/v1/gas_dynamics.proto",
-    "jetloop/v1/info.proto",
-];
+const PROTOS: &[&str] =
+    &["jetloop/v1/common.proto", "jetloop/v1/gas_dynamics.proto", "jetloop/v1/info.proto"];
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {
     for p in PROTOS {
@@ -17,9 +14,6 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let fds = protox::compile(PROTOS, ["."])?;
     let out = PathBuf::from(env::var("OUT_DIR")?);
     fs::write(out.join("jetloop_v1_descriptor.bin"), fds.encode_to_vec())?;
-    tonic_prost_build::configure()
-        .build_client(true)
-        .build_server(true)
-        .compile_fds(fds)?;
+    tonic_prost_build::configure().build_client(true).build_server(true).compile_fds(fds)?;
     Ok(())
 }

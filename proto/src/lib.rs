@@ -12,8 +12,7 @@ pub mod pb {
 }
 
 /// Encoded `google.protobuf.FileDescriptorSet` of every jetloop.v1 proto file.
-pub const FILE_DESCRIPTOR_SET: &[u8] =
-    include_bytes!(concat!(env!("OUT_DIR"), "/jetloop_v1_descriptor.bin"));
+pub const FILE_DESCRIPTOR_SET: &[u8] = include_bytes!(concat!(env!("OUT_DIR"), "/jetloop_v1_descriptor.bin"));
 
 #[cfg(test)]
 mod tests {
@@ -62,10 +61,7 @@ mod tests {
 
     #[test]
     fn messages_round_trip() {
-        let m = crate::pb::NormalShockRequest {
-            gamma: Some(1.4),
-            upstream_mach_number: 2.0,
-        };
+        let m = crate::pb::NormalShockRequest { gamma: Some(1.4), upstream_mach_number: 2.0 };
         let back = crate::pb::NormalShockRequest::decode(m.encode_to_vec().as_slice()).unwrap();
         assert_eq!(m, back);
     }

@@ -1,1 +1,69 @@
-//! placeholder
+//! Helpers for end-to-end tests: a real jetloop server on a loopback socket.
+#![forbid(unsafe_code)]
+
+use jetloop_server::config::Limits;
+use std::net::SocketAddr;
+use tokio::sync::oneshot;
+use tokio::task::JoinHandle;
+
+/// A server running in this process on `127.0.0.1:<free port>`.
+pub struct TestServer {
+    /// Bound address.
+    pub addr: SocketAddr,
+    shutdown: Option<oneshot::Sender<()>>,
+    handle: Option<JoinHandle<Result<(), jetloop_server::server::ServeError>>>,
+}
+
+impl TestServer {
+    /// Binds `127.0.0.1:0` first (so clients can connect at once, no sleeping) and serves.
+    ///
+    /// # Panics
+    /// When the loopback socket cannot be bound.
+    pub async fn start() -> Self {
+        Self::start_with(Limits::default()).await
+    }
+
+    /// As [`TestServer::start`] with explicit limits.
+    ///
+    /// # Panics
+    /// When the loopback socket cannot be bound.
+    pub async fn start_with(limits: Limits) -> Self {
+        let listener = tokio::net::TcpListener::bind("127.0.0.1:0").await.expect("bind loopback");
+        let addr = listener.local_addr().expect("local addr");
+        let (tx, rx) = oneshot::channel::<()>();
+        let handle = tokio::spawn(jetloop_server::server::serve(listener, limits, async {
+            let _ = rx.await;
+        }));
+        Self { addr, shutdown: Some(tx), handle: Some(handle) }
+    }
+
+    /// `http://127.0.0.1:<port>` for tonic clients.
+    pub fn url(&self) -> String {
+        format!("http://{}", self.addr)
+    }
+
+    /// A connected channel.
+    ///
+    /// # Panics
+    /// When the connection fails.
+    pub async fn channel(&self) -> tonic::transport::Channel {
+        tonic::transport::Endpoint::from_shared(self.url())
+            .expect("endpoint")
+            .connect()
+            .await
+            .expect("connect")
+    }
+
+    /// Requests a graceful shutdown and waits for the server task to end.
+    ///
+    /// # Panics
+    /// When the server task failed.
+    pub async fn stop(mut self) {
+        if let Some(tx) = self.shutdown.take() {
+            let _ = tx.send(());
+        }
+        if let Some(h) = self.handle.take() {
+            h.await.expect("server task").expect("server result");
+        }
+    }
+}

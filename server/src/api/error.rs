@@ -42,11 +42,8 @@ impl From<ApiError> for Status {
                 for v in &violations {
                     details.add_bad_request_violation(v.field.clone(), v.description.clone());
                 }
-                let summary = violations
-                    .iter()
-                    .map(|v| v.description.as_str())
-                    .collect::<Vec<_>>()
-                    .join("; ");
+                let summary =
+                    violations.iter().map(|v| v.description.as_str()).collect::<Vec<_>>().join("; ");
                 Status::with_error_details(Code::InvalidArgument, summary, details)
             }
             ApiError::TooLarge { field, limit, actual } => {
@@ -94,10 +91,7 @@ impl Check {
                     format!("{} (not a finite number)", e.value)
                 };
                 self.violations.push(FieldViolation {
-                    description: format!(
-                        "{field} = {value} is outside the allowed range {}",
-                        e.allowed
-                    ),
+                    description: format!("{field} = {value} is outside the allowed range {}", e.allowed),
                     field,
                 });
                 None
@@ -108,10 +102,7 @@ impl Check {
     /// Records a required field that was not set.
     pub fn missing(&mut self, field: impl Into<String>, what: &str) {
         let field = field.into();
-        self.violations.push(FieldViolation {
-            description: format!("{field} is required: {what}"),
-            field,
-        });
+        self.violations.push(FieldViolation { description: format!("{field} is required: {what}"), field });
     }
 
     /// Records any other violation with its own sentence.

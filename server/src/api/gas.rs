@@ -7,7 +7,7 @@ use crate::physics::jet::{self, JetSize, JetState, Nozzle, OperatingPoint, Regim
 use crate::physics::models;
 use jetloop_proto::pb;
 
-const AIR_REASON: &str = "dry air (common practice)";
+const AIR_REASON: &str = "dry air, common practice";
 const ISA_REASON: &str = "ICAO standard atmosphere, sea level";
 
 /// A validated isentropic question.
@@ -155,7 +155,8 @@ pub fn jet_spec(c: Option<pb::JetConditions>, path: &str) -> Result<JetSpec, Api
     let gas = check.range(&gp, Gas::new(g, r));
     // The area-ratio design needs a valid gas; fall back to air only to keep checking fields.
     let nozzle = nozzle_from(&mut check, nozzle, &format!("{path}.nozzle"), &gas.unwrap_or(Gas::AIR));
-    let op = operating_point_from(&mut check, &mut defaults, operating_point, &format!("{path}.operating_point"));
+    let op =
+        operating_point_from(&mut check, &mut defaults, operating_point, &format!("{path}.operating_point"));
     let spec = match (gas, nozzle, op) {
         (Some(gas), Some(nozzle), Some(op)) => Some(JetSpec { gas, nozzle, op, defaults }),
         _ => None,
@@ -221,7 +222,12 @@ fn operating_point_from(
     path: &str,
 ) -> Option<OperatingPoint> {
     use pb::operating_point::Pressure;
-    let Some(pb::OperatingPoint { pressure, total_temperature_k, ambient_temperature_k, ambient_pressure_pa }) = op
+    let Some(pb::OperatingPoint {
+        pressure,
+        total_temperature_k,
+        ambient_temperature_k,
+        ambient_pressure_pa,
+    }) = op
     else {
         check.missing(path, "give the nozzle pressure ratio or the reservoir and ambient pressures");
         return None;
@@ -258,7 +264,10 @@ fn operating_point_from(
             );
             check.range(path, OperatingPoint::new(npr, p_amb, t0, t_amb))
         }
-        Some(Pressure::Pressures(pb::ReservoirAndAmbientPressure { total_pressure_pa, ambient_pressure_pa: pa })) => {
+        Some(Pressure::Pressures(pb::ReservoirAndAmbientPressure {
+            total_pressure_pa,
+            ambient_pressure_pa: pa,
+        })) => {
             if ambient_pressure_pa.is_some() {
                 check.other(
                     format!("{path}.ambient_pressure_pa"),
@@ -408,7 +417,10 @@ mod tests {
     #[test]
     fn defaults_are_recorded() {
         let spec = jet_spec(
-            conditions(pb::nozzle::Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: 0.02 }), 3.0),
+            conditions(
+                pb::nozzle::Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: 0.02 }),
+                3.0,
+            ),
             "conditions",
         )
         .unwrap();
@@ -420,7 +432,10 @@ mod tests {
 
     #[test]
     fn every_bad_field_is_reported_at_once() {
-        let mut c = conditions(pb::nozzle::Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: -1.0 }), 0.5);
+        let mut c = conditions(
+            pb::nozzle::Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: -1.0 }),
+            0.5,
+        );
         c.as_mut().unwrap().gas = Some(pb::Gas { gamma: Some(f64::NAN), gas_constant_j_per_kg_k: None });
         let ApiError::Invalid(v) = jet_spec(c, "conditions").unwrap_err() else { panic!() };
         let fields: Vec<_> = v.iter().map(|v| v.field.as_str()).collect();

@@ -116,10 +116,7 @@ impl Gas {
     /// [`RangeError`] naming `gamma` or `gas_constant_j_per_kg_k` when outside [`GAMMA`] or
     /// [`GAS_CONSTANT`].
     pub fn new(gamma: f64, r: f64) -> Result<Self, RangeError> {
-        Ok(Self {
-            gamma: GAMMA.check("gamma", gamma)?,
-            r: GAS_CONSTANT.check("gas_constant_j_per_kg_k", r)?,
-        })
+        Ok(Self { gamma: GAMMA.check("gamma", gamma)?, r: GAS_CONSTANT.check("gas_constant_j_per_kg_k", r)? })
     }
 
     /// Ratio of specific heats.
@@ -271,8 +268,7 @@ impl Gas {
         let g = self.gamma;
         let supersonic = m >= 1.0;
         // V/a* = M sqrt((g+1)/2 / (1 + (g-1)/2 M^2))
-        let critical_velocity_ratio =
-            m * (0.5 * (g + 1.0) / self.total_to_static_temperature(m)).sqrt();
+        let critical_velocity_ratio = m * (0.5 * (g + 1.0) / self.total_to_static_temperature(m)).sqrt();
         Ok(Isentropic {
             mach: m,
             temperature_ratio: self.temperature_ratio(m),
@@ -386,7 +382,8 @@ mod tests {
     /// printed to 5 significant figures. Rows are M, p/p0, T/T0, rho/rho0, A/A*, nu (deg).
     /// The values were written down from memory (../shared/physics.md) and each one agrees with
     /// the closed forms of the same report to the printed digits, which this test also checks.
-    const NACA_1135_ISENTROPIC: &[(f64, f64, f64, f64, f64, Option<f64>)] = &[
+    type IsentropicRow = (f64, f64, f64, f64, f64, Option<f64>);
+    const NACA_1135_ISENTROPIC: &[IsentropicRow] = &[
         (0.5, 0.84302, 0.95238, 0.88517, 1.3398, None),
         (0.8, 0.65602, 0.88652, 0.74000, 1.0382, None),
         (1.5, 0.27240, 0.68966, 0.39498, 1.1762, Some(11.905)),

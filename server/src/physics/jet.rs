@@ -75,10 +75,7 @@ impl Nozzle {
     /// # Errors
     /// [`RangeError`] naming `exit_diameter_m` outside [`LENGTH`].
     pub fn round_convergent(d: f64) -> Result<Self, RangeError> {
-        Ok(Self {
-            shape: Shape::Round { diameter_m: LENGTH.check("exit_diameter_m", d)? },
-            design_mach: 1.0,
-        })
+        Ok(Self { shape: Shape::Round { diameter_m: LENGTH.check("exit_diameter_m", d)? }, design_mach: 1.0 })
     }
 
     /// Round convergent-divergent nozzle of exit diameter `d` in m and design Mach `md`.
@@ -119,8 +116,8 @@ impl Nozzle {
     /// height) or `design_mach_number`.
     pub fn rectangular(h: f64, b: f64, md: f64) -> Result<Self, RangeError> {
         let h = LENGTH.check("exit_height_m", h)?;
-        let b = Bounds::closed(h, LENGTH.max, "m (not less than the exit height)")
-            .check("exit_width_m", b)?;
+        let b =
+            Bounds::closed(h, LENGTH.max, "m (not less than the exit height)").check("exit_width_m", b)?;
         Ok(Self {
             shape: Shape::Rectangular { height_m: h, width_m: b },
             design_mach: DESIGN_MACH.check("design_mach_number", md)?,
@@ -323,14 +320,12 @@ pub fn jet_state(gas: &Gas, nozzle: &Nozzle, op: &OperatingPoint) -> JetState {
     let mj = gas.mach_from_total_to_static_pressure(npr);
     let design_npr = 1.0 / gas.pressure_ratio(md);
     let nozzle_area_ratio = gas.area_ratio(md); // Ae / A*
-    // NPR at which the throat just chokes with a subsonic exit, and at which a normal shock
-    // stands in the exit plane (both equal the critical ratio for a convergent nozzle).
+                                                // NPR at which the throat just chokes with a subsonic exit, and at which a normal shock
+                                                // stands in the exit plane (both equal the critical ratio for a convergent nozzle).
     let npr_choke = if md == 1.0 {
         gas.critical_pressure_ratio()
     } else {
-        let m_sub = gas
-            .mach_from_area_ratio(nozzle_area_ratio, Branch::Subsonic)
-            .unwrap_or(1.0);
+        let m_sub = gas.mach_from_area_ratio(nozzle_area_ratio, Branch::Subsonic).unwrap_or(1.0);
         1.0 / gas.pressure_ratio(m_sub)
     };
     let npr_exit_shock = if md == 1.0 {
@@ -401,13 +396,14 @@ pub fn jet_state(gas: &Gas, nozzle: &Nozzle, op: &OperatingPoint) -> JetState {
     let mass_flow = if choked {
         let throat = exit / nozzle_area_ratio;
         let p0 = npr * p_amb;
-        p0 * throat * (g / (gas.gas_constant() * t0)).sqrt()
+        p0 * throat
+            * (g / (gas.gas_constant() * t0)).sqrt()
             * (0.5 * (g + 1.0)).powf(-(g + 1.0) / (2.0 * (g - 1.0)))
     } else {
         rho_j * uj * exit
     };
-    let mach_disk_expected = regime == Regime::UnderExpanded
-        && exit_pressure_pa / p_amb > MACH_DISK_EXIT_PRESSURE_RATIO;
+    let mach_disk_expected =
+        regime == Regime::UnderExpanded && exit_pressure_pa / p_amb > MACH_DISK_EXIT_PRESSURE_RATIO;
     if mach_disk_expected {
         notes.push(format!(
             "Mach disk expected: exit-to-ambient pressure ratio {:.3} exceeds about {} \

@@ -13,17 +13,16 @@ pub struct Model {
 /// Isentropic perfect-gas relations.
 pub const ISENTROPIC: Model = Model {
     name: "isentropic perfect-gas relations",
-    reference: "NACA Report 1135 (Ames Research Staff, 1953), Equations, Tables and Charts for Compressible Flow",
+    reference:
+        "NACA Report 1135 (Ames Research Staff, 1953), Equations, Tables and Charts for Compressible Flow",
 };
 /// Prandtl-Meyer expansion function.
-pub const PRANDTL_MEYER: Model = Model {
-    name: "Prandtl-Meyer function",
-    reference: "Prandtl (1907), Meyer (1908); NACA Report 1135 (1953), eq. 171",
-};
+pub const PRANDTL_MEYER: Model =
+    Model { name: "Prandtl-Meyer function", reference: "Meyer (1908); NACA Report 1135 (1953)" };
 /// Normal-shock jump relations.
 pub const NORMAL_SHOCK: Model = Model {
     name: "normal-shock relations (Rankine-Hugoniot), Rayleigh pitot formula",
-    reference: "NACA Report 1135 (1953), eqs. 93-101",
+    reference: "NACA Report 1135 (1953)",
 };
 /// Fully expanded jet state.
 pub const FULLY_EXPANDED_JET: Model = Model {
@@ -31,10 +30,8 @@ pub const FULLY_EXPANDED_JET: Model = Model {
     reference: "Tam & Tanna (1982), J. Sound Vib. 81, 337-358",
 };
 /// Choked mass flow.
-pub const CHOKED_MASS_FLOW: Model = Model {
-    name: "choked nozzle mass flow",
-    reference: "NACA Report 1135 (1953); any gas-dynamics text",
-};
+pub const CHOKED_MASS_FLOW: Model =
+    Model { name: "choked nozzle mass flow", reference: "NACA Report 1135 (1953); any gas-dynamics text" };
 /// Standard atmosphere used for defaults.
 pub const STANDARD_ATMOSPHERE: Model = Model {
     name: "ICAO standard atmosphere, sea level (101325 Pa, 288.15 K)",
@@ -42,11 +39,5 @@ pub const STANDARD_ATMOSPHERE: Model = Model {
 };
 
 /// Every model the server implements.
-pub const ALL: &[Model] = &[
-    ISENTROPIC,
-    PRANDTL_MEYER,
-    NORMAL_SHOCK,
-    FULLY_EXPANDED_JET,
-    CHOKED_MASS_FLOW,
-    STANDARD_ATMOSPHERE,
-];
+pub const ALL: &[Model] =
+    &[ISENTROPIC, PRANDTL_MEYER, NORMAL_SHOCK, FULLY_EXPANDED_JET, CHOKED_MASS_FLOW, STANDARD_ATMOSPHERE];

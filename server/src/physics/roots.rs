@@ -19,11 +19,7 @@ pub(crate) fn newton_bracketed(f: impl Fn(f64) -> (f64, f64), mut lo: f64, mut h
             hi = x;
         }
         let newton = x - fx / dfx;
-        let next = if newton.is_finite() && newton > lo && newton < hi {
-            newton
-        } else {
-            0.5 * (lo + hi)
-        };
+        let next = if newton.is_finite() && newton > lo && newton < hi { newton } else { 0.5 * (lo + hi) };
         if (next - x).abs() <= 4.0 * f64::EPSILON * x.abs().max(f64::MIN_POSITIVE)
             || (hi - lo) <= 4.0 * f64::EPSILON * hi.abs()
         {

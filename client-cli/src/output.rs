@@ -1,0 +1,180 @@
+//! Output for people (aligned tables with units) and for machines (`--json`), from one
+//! description of the result.
+
+use jetloop_proto::pb;
+use serde_json::{json, Map, Value};
+
+/// A value in a report.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Val {
+    /// A number.
+    Num(f64),
+    /// A count or size.
+    Int(u64),
+    /// Text (enum names, flags).
+    Text(String),
+    /// Yes/no.
+    Flag(bool),
+}
+
+/// One line of a report: JSON key (with unit suffix), label for people, value, unit.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Row {
+    key: &'static str,
+    label: &'static str,
+    value: Val,
+    unit: &'static str,
+}
+
+/// A result to print.
+#[derive(Debug, Clone, Default)]
+pub struct Report {
+    title: String,
+    rows: Vec<Row>,
+    provenance: Option<pb::Provenance>,
+}
+
+impl Report {
+    /// An empty report with a title.
+    pub fn new(title: impl Into<String>) -> Self {
+        Self { title: title.into(), ..Self::default() }
+    }
+
+    /// Adds a number.
+    pub fn num(mut self, key: &'static str, label: &'static str, v: f64, unit: &'static str) -> Self {
+        self.rows.push(Row { key, label, value: Val::Num(v), unit });
+        self
+    }
+
+    /// Adds a number when present.
+    pub fn opt(self, key: &'static str, label: &'static str, v: Option<f64>, unit: &'static str) -> Self {
+        match v {
+            Some(v) => self.num(key, label, v, unit),
+            None => self,
+        }
+    }
+
+    /// Adds a count or size.
+    pub fn int(mut self, key: &'static str, label: &'static str, v: u64, unit: &'static str) -> Self {
+        self.rows.push(Row { key, label, value: Val::Int(v), unit });
+        self
+    }
+
+    /// Adds text.
+    pub fn text(mut self, key: &'static str, label: &'static str, v: impl Into<String>) -> Self {
+        self.rows.push(Row { key, label, value: Val::Text(v.into()), unit: "" });
+        self
+    }
+
+    /// Adds a yes/no flag.
+    pub fn flag(mut self, key: &'static str, label: &'static str, v: bool) -> Self {
+        self.rows.push(Row { key, label, value: Val::Flag(v), unit: "" });
+        self
+    }
+
+    /// Attaches the provenance of the answer.
+    pub fn provenance(mut self, p: Option<pb::Provenance>) -> Self {
+        self.provenance = p;
+        self
+    }
+
+    /// Machine output: one JSON object with the rows as keys and the provenance.
+    pub fn to_json(&self) -> Value {
+        let mut m = Map::new();
+        for r in &self.rows {
+            let v = match &r.value {
+                Val::Num(x) => json!(x),
+                Val::Int(x) => json!(x),
+                Val::Text(t) => json!(t),
+                Val::Flag(b) => json!(b),
+            };
+            m.insert(r.key.to_string(), v);
+        }
+        if let Some(p) = &self.provenance {
+            m.insert("provenance".into(), provenance_json(p));
+        }
+        Value::Object(m)
+    }
+
+    /// Human output: title, aligned "label  value unit" lines, then notes and sources.
+    pub fn to_table(&self) -> String {
+        let mut out = format!("{}\n", self.title);
+        let w = self.rows.iter().map(|r| r.label.len()).max().unwrap_or(0);
+        for r in &self.rows {
+            let v = match &r.value {
+                Val::Num(x) => fmt_num(*x),
+                Val::Int(x) => x.to_string(),
+                Val::Text(t) => t.clone(),
+                Val::Flag(b) => if *b { "yes" } else { "no" }.to_string(),
+            };
+            let line = format!("  {:<w$}  {:>14} {}", r.label, v, r.unit);
+            out.push_str(line.trim_end());
+            out.push('\n');
+        }
+        if let Some(p) = &self.provenance {
+            if !p.defaults_applied.is_empty() {
+                out.push_str("defaults applied:\n");
+                for d in &p.defaults_applied {
+                    out.push_str(&format!("  {} = {} ({})\n", d.field, d.value, d.reason));
+                }
+            }
+            if !p.notes.is_empty() {
+                out.push_str("notes:\n");
+                for n in &p.notes {
+                    out.push_str(&format!("  - {n}\n"));
+                }
+            }
+            out.push_str(&format!("models (server {}):\n", p.server_version));
+            for m in &p.models {
+                out.push_str(&format!("  {}: {}\n", m.name, m.reference));
+            }
+        }
+        out
+    }
+}
+
+/// Six significant digits, switching to exponent form for very large or small magnitudes.
+pub fn fmt_num(x: f64) -> String {
+    if !x.is_finite() {
+        return format!("{x}");
+    }
+    let a = x.abs();
+    if a != 0.0 && !(1e-4..1e7).contains(&a) {
+        format!("{x:.5e}")
+    } else {
+        let digits = if a == 0.0 { 0 } else { a.log10().floor() as i32 };
+        let decimals = (5 - digits).clamp(0, 10) as usize;
+        format!("{x:.decimals$}")
+    }
+}
+
+/// Provenance as JSON.
+pub fn provenance_json(p: &pb::Provenance) -> Value {
+    json!({
+        "server_version": p.server_version,
+        "models": p.models.iter().map(|m| json!({"name": m.name, "reference": m.reference})).collect::<Vec<_>>(),
+        "defaults_applied": p.defaults_applied.iter().map(|d| json!({"field": d.field, "value": d.value, "reason": d.reason})).collect::<Vec<_>>(),
+        "notes": p.notes,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn numbers_keep_six_significant_digits() {
+        assert_eq!(fmt_num(0.127_804_525), "0.127805");
+        assert_eq!(fmt_num(101_325.0), "101325");
+        assert_eq!(fmt_num(1.5588), "1.55880");
+        assert_eq!(fmt_num(1.0e-7), "1.00000e-7");
+    }
+
+    #[test]
+    fn table_and_json_carry_the_same_rows() {
+        let r = Report::new("t").num("mach_number", "Mach number", 2.0, "").flag("choked", "choked", true);
+        assert!(r.to_table().contains("Mach number"));
+        assert_eq!(r.to_json()["mach_number"], json!(2.0));
+        assert_eq!(r.to_json()["choked"], json!(true));
+    }
+}

@@ -1,0 +1,92 @@
+"""Fixtures for the cross-language tests: Python stubs generated from proto/ with grpcio-tools,
+and a real jetloop-server started on a free loopback port.
+
+The server binary comes from $JETLOOP_SERVER_BIN (CI passes the release build), else
+target/release/jetloop-server, else target/debug/jetloop-server.
+"""
+import importlib
+import os
+import pathlib
+import subprocess
+import sys
+
+import grpc
+import pytest
+
+ROOT = pathlib.Path(__file__).resolve().parents[2]
+PROTO_DIR = ROOT / "proto"
+GEN_DIR = pathlib.Path(__file__).resolve().parent / "_gen"
+
+
+def _generate_stubs():
+    from grpc_tools import protoc
+
+    GEN_DIR.mkdir(exist_ok=True)
+    protos = sorted(str(p.relative_to(PROTO_DIR)) for p in (PROTO_DIR / "jetloop" / "v1").glob("*.proto"))
+    include = pathlib.Path(protoc.__file__).parent / "_proto"
+    rc = protoc.main(
+        ["protoc", f"-I{PROTO_DIR}", f"-I{include}", f"--python_out={GEN_DIR}", f"--grpc_python_out={GEN_DIR}", *protos]
+    )
+    if rc != 0:
+        raise RuntimeError(f"grpc_tools.protoc failed with {rc}")
+    for d in (GEN_DIR / "jetloop", GEN_DIR / "jetloop" / "v1"):
+        (d / "__init__.py").touch()
+    if str(GEN_DIR) not in sys.path:
+        sys.path.insert(0, str(GEN_DIR))
+
+
+def _server_binary():
+    env = os.environ.get("JETLOOP_SERVER_BIN")
+    if env:
+        return pathlib.Path(env)
+    for profile in ("release", "debug"):
+        p = ROOT / "target" / profile / "jetloop-server"
+        if p.exists():
+            return p
+    raise RuntimeError("no jetloop-server binary: run `cargo build --release -p jetloop-server` first")
+
+
+@pytest.fixture(scope="session")
+def pb():
+    """The generated modules: pb.gas (gas_dynamics_pb2), pb.gas_grpc, pb.common, pb.info, pb.info_grpc."""
+    _generate_stubs()
+
+    class Modules:
+        gas = importlib.import_module("jetloop.v1.gas_dynamics_pb2")
+        gas_grpc = importlib.import_module("jetloop.v1.gas_dynamics_pb2_grpc")
+        common = importlib.import_module("jetloop.v1.common_pb2")
+        info = importlib.import_module("jetloop.v1.info_pb2")
+        info_grpc = importlib.import_module("jetloop.v1.info_pb2_grpc")
+
+    return Modules
+
+
+@pytest.fixture(scope="session")
+def server_address():
+    """Starts jetloop-server on 127.0.0.1:0 and yields host:port from its first stdout line."""
+    proc = subprocess.Popen(
+        [str(_server_binary()), "--listen", "127.0.0.1:0"],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.DEVNULL,
+        text=True,
+    )
+    try:
+        line = proc.stdout.readline().strip()
+        if not line.startswith("jetloop-server listening on "):
+            raise RuntimeError(f"unexpected first line from the server: {line!r}")
+        yield line.rsplit(" ", 1)[1]
+    finally:
+        proc.terminate()
+        try:
+            proc.wait(timeout=10)
+        except subprocess.TimeoutExpired:
+            proc.kill()
+    assert proc.returncode == 0, f"server did not shut down cleanly on SIGTERM: {proc.returncode}"
+
+
+@pytest.fixture(scope="session")
+def channel(server_address):
+    ch = grpc.insecure_channel(server_address)
+    grpc.channel_ready_future(ch).result(timeout=10)
+    yield ch
+    ch.close()
