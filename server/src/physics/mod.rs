@@ -4,10 +4,13 @@
 //! constructors, outputs are plain structs. The API layer converts proto messages into these
 //! types and back.
 
+pub mod bessel;
 pub mod bounds;
+pub mod cells;
 pub mod gas;
 pub mod jet;
 pub mod models;
+pub mod tones;
 mod roots;
 
 pub use bounds::{Bounds, RangeError};

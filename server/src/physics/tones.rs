@@ -1,0 +1,451 @@
+//! Screech and shock-associated-noise frequency models.
+//!
+//! - Powell's feedback criterion (Powell 1953): the loop time holds a whole number of periods,
+//!   `tau = n / f`. The loop is a list of paths, each a length over a speed (convected with the
+//!   instability waves at `Uc`, or acoustic at the ambient sound speed), plus fixed delays. The
+//!   default loop is the source distance `h` downstream at `Uc` and back upstream at `a`; a
+//!   reflector `d` upstream of the nozzle lip adds an acoustic path `2 d`.
+//! - Powell's fundamental for a source spacing `Ls`: `f = Uc / (Ls (1 + Mc))`, `Mc = Uc / a`.
+//! - Tam, Seiner & Yu (1986, J. Sound Vib. 110) for round jets:
+//!   `f Dj / Uj = 0.67 (Mj^2-1)^(-1/2) [1 + 0.7 Mj (1 + (g-1)/2 Mj^2)^(-1/2) (T0/Ta)^(1/2)]^(-1)`.
+//!   The bracket is `1 + Mc` with `Uc = 0.7 Uj`, and `0.67` is `0.7 j0,1 / (0.8 pi)` rounded:
+//!   convection at 0.7 Uj and 0.8 of the vortex-sheet spacing.
+//! - Shock-associated noise peak (Harper-Bourne & Fisher 1973; Tam & Tanna 1982):
+//!   `f_p(psi) = Uc / (Ls (1 - Mc cos psi))`, `psi` from the downstream jet axis.
+
+use super::bessel;
+use super::bounds::{Bounds, RangeError};
+use super::jet::{ExpandedJet, JetSize};
+use std::f64::consts::PI;
+
+/// Allowed convection ratio Uc/Uj.
+pub const CONVECTION_RATIO: Bounds = Bounds::open_closed(0.0, 1.5, "");
+/// Allowed speeds (convection or path speed), m/s.
+pub const SPEED: Bounds = Bounds::open_closed(0.0, 10_000.0, "m/s");
+/// Allowed source distance in shock cells.
+pub const SOURCE_CELLS: Bounds = Bounds::open_closed(0.0, 100.0, "cells");
+/// Allowed lengths of loop paths and source distances, m.
+pub const PATH_LENGTH: Bounds = Bounds::closed(0.0, 1000.0, "m");
+/// Allowed path length as a multiple of the source distance.
+pub const SOURCE_MULTIPLE: Bounds = Bounds::closed(0.0, 100.0, "source distances");
+/// Allowed reflector distance from the nozzle lip, m.
+pub const REFLECTOR_DISTANCE: Bounds = Bounds::closed(0.0, 1000.0, "m");
+/// Allowed fixed delay, s.
+pub const DELAY: Bounds = Bounds::closed(0.0, 10.0, "s");
+/// Allowed highest loop order n_max.
+pub const LOOP_ORDER: Bounds = Bounds::closed(1.0, 50.0, "");
+/// Allowed number of harmonics.
+pub const HARMONICS: Bounds = Bounds::closed(1.0, 20.0, "");
+/// Allowed observer angle from the downstream jet axis, degrees.
+pub const OBSERVER_ANGLE: Bounds = Bounds::closed(0.0, 180.0, "deg");
+/// Most segments or delays in one loop.
+pub const MAX_LOOP_PARTS: usize = 64;
+
+/// Published constant of the Tam, Seiner & Yu (1986) screech formula.
+pub const TAM_1986_CONSTANT: f64 = 0.67;
+/// Convection ratio Uc/Uj assumed by Tam, Seiner & Yu (1986).
+pub const TAM_1986_CONVECTION: f64 = 0.7;
+/// Fraction of the vortex-sheet spacing assumed by Tam, Seiner & Yu (1986).
+pub const TAM_1986_SPACING_FACTOR: f64 = 0.8;
+
+/// The constant 0.7 j0,1 / (0.8 pi) = 0.669795 that the published 0.67 rounds.
+pub fn tam_1986_exact_constant() -> f64 {
+    TAM_1986_CONVECTION * bessel::j01() / (TAM_1986_SPACING_FACTOR * PI)
+}
+
+/// How fast the instability waves are convected.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Convection {
+    /// Uc = ratio * Uj.
+    Ratio(f64),
+    /// Uc given in m/s.
+    Speed(f64),
+}
+
+impl Convection {
+    /// Checked convection ratio.
+    ///
+    /// # Errors
+    /// [`RangeError`] naming `convection_ratio`.
+    pub fn ratio(r: f64) -> Result<Self, RangeError> {
+        Ok(Self::Ratio(CONVECTION_RATIO.check("convection_ratio", r)?))
+    }
+
+    /// Checked convection speed in m/s.
+    ///
+    /// # Errors
+    /// [`RangeError`] naming `convection_speed_m_per_s`.
+    pub fn speed(v: f64) -> Result<Self, RangeError> {
+        Ok(Self::Speed(SPEED.check("convection_speed_m_per_s", v)?))
+    }
+
+    /// Uc in m/s for a jet.
+    pub fn uc(&self, jet: &ExpandedJet) -> f64 {
+        match *self {
+            Self::Ratio(r) => r * jet.uj_m_s,
+            Self::Speed(v) => v,
+        }
+    }
+}
+
+/// Where the sound source of the loop sits.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Source {
+    /// At the end of the N-th shock cell (N may be fractional).
+    Cells(f64),
+    /// At a given distance downstream of the nozzle exit, m.
+    Distance(f64),
+}
+
+/// Length of a loop path.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum PathLength {
+    /// In metres.
+    Metres(f64),
+    /// As a multiple of the source distance.
+    SourceDistances(f64),
+}
+
+/// Speed along a loop path.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum PathSpeed {
+    /// With the instability waves, at Uc.
+    Convected,
+    /// Acoustic, at the ambient sound speed.
+    Acoustic,
+    /// A given speed, m/s.
+    Given(f64),
+}
+
+/// One path of the loop.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Segment {
+    /// Description for the output.
+    pub label: String,
+    /// Length.
+    pub length: PathLength,
+    /// Speed.
+    pub speed: PathSpeed,
+}
+
+/// A feedback loop to evaluate.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LoopSpec {
+    /// Source location.
+    pub source: Source,
+    /// Reflector distance upstream of the nozzle lip, m.
+    pub reflector_m: Option<f64>,
+    /// Paths; empty means the default downstream-convected, upstream-acoustic pair.
+    pub segments: Vec<Segment>,
+    /// Fixed delays, s.
+    pub delays_s: Vec<f64>,
+    /// Highest loop order n_max.
+    pub max_order: u32,
+}
+
+impl Default for LoopSpec {
+    fn default() -> Self {
+        Self { source: Source::Cells(1.0), reflector_m: None, segments: Vec::new(), delays_s: Vec::new(), max_order: 4 }
+    }
+}
+
+/// One evaluated path.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SegmentTime {
+    /// Description.
+    pub label: String,
+    /// Length, m.
+    pub length_m: f64,
+    /// Speed, m/s.
+    pub speed_m_s: f64,
+    /// Time, s.
+    pub time_s: f64,
+}
+
+/// The evaluated loop.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LoopResult {
+    /// Source distance from the nozzle exit, m.
+    pub source_distance_m: f64,
+    /// Convection speed, m/s.
+    pub uc_m_s: f64,
+    /// Paths with their times.
+    pub segments: Vec<SegmentTime>,
+    /// Sum of fixed delays, s.
+    pub fixed_delay_s: f64,
+    /// Loop time tau, s.
+    pub loop_time_s: f64,
+    /// Frequencies n / tau for n = 1..=n_max, Hz.
+    pub frequencies_hz: Vec<f64>,
+}
+
+/// A loop that cannot close.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[error("the feedback loop takes no time (all paths have zero length and there are no delays): \
+no frequency satisfies tau = n / f")]
+pub struct ZeroLoopTime;
+
+/// Evaluates Powell's loop criterion for a jet with fundamental spacing `spacing_m` (factor
+/// already applied).
+///
+/// # Errors
+/// [`ZeroLoopTime`] when the loop time is zero.
+pub fn feedback_loop(
+    jet: &ExpandedJet,
+    spacing_m: f64,
+    convection: Convection,
+    spec: &LoopSpec,
+) -> Result<LoopResult, ZeroLoopTime> {
+    let uc = convection.uc(jet);
+    let a = jet.a_amb_m_s;
+    let h = match spec.source {
+        Source::Cells(n) => n * spacing_m,
+        Source::Distance(d) => d,
+    };
+    let default_loop;
+    let segments: &[Segment] = if spec.segments.is_empty() {
+        default_loop = [
+            Segment {
+                label: "instability wave convected from the lip to the source".into(),
+                length: PathLength::SourceDistances(1.0),
+                speed: PathSpeed::Convected,
+            },
+            Segment {
+                label: "sound returning upstream to the lip".into(),
+                length: PathLength::SourceDistances(1.0),
+                speed: PathSpeed::Acoustic,
+            },
+        ];
+        &default_loop
+    } else {
+        &spec.segments
+    };
+    let mut times: Vec<SegmentTime> = segments
+        .iter()
+        .map(|s| {
+            let length_m = match s.length {
+                PathLength::Metres(l) => l,
+                PathLength::SourceDistances(k) => k * h,
+            };
+            let speed_m_s = match s.speed {
+                PathSpeed::Convected => uc,
+                PathSpeed::Acoustic => a,
+                PathSpeed::Given(v) => v,
+            };
+            SegmentTime { label: s.label.clone(), length_m, speed_m_s, time_s: length_m / speed_m_s }
+        })
+        .collect();
+    if let Some(d) = spec.reflector_m {
+        times.push(SegmentTime {
+            label: "extra acoustic path to the reflector and back".into(),
+            length_m: 2.0 * d,
+            speed_m_s: a,
+            time_s: 2.0 * d / a,
+        });
+    }
+    let fixed_delay_s: f64 = spec.delays_s.iter().sum();
+    let tau = times.iter().map(|t| t.time_s).sum::<f64>() + fixed_delay_s;
+    if tau.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater) || !tau.is_finite() {
+        return Err(ZeroLoopTime);
+    }
+    Ok(LoopResult {
+        source_distance_m: h,
+        uc_m_s: uc,
+        segments: times,
+        fixed_delay_s,
+        loop_time_s: tau,
+        frequencies_hz: (1..=spec.max_order).map(|n| f64::from(n) / tau).collect(),
+    })
+}
+
+/// Powell's fundamental f = Uc / (Ls (1 + Uc/a)) in Hz, for a spacing in m and speeds in m/s.
+pub fn powell_fundamental(uc: f64, a_amb: f64, spacing_m: f64) -> f64 {
+    uc / (spacing_m * (1.0 + uc / a_amb))
+}
+
+/// Strouhal number f Dj / Uj of the Tam, Seiner & Yu (1986) formula with the given constant
+/// (the published 0.67, or [`tam_1986_exact_constant`]). `None` for non-round jets.
+pub fn tam_1986_strouhal(jet: &ExpandedJet, constant: f64) -> Option<f64> {
+    if !matches!(jet.size, JetSize::Round { .. }) {
+        return None;
+    }
+    let g = jet.gas.gamma();
+    let mj = jet.mj;
+    let mc = TAM_1986_CONVECTION
+        * mj
+        * (1.0 + 0.5 * (g - 1.0) * mj * mj).powf(-0.5)
+        * (jet.total_temperature_k / jet.ambient_temperature_k).sqrt();
+    Some(constant / (mj * mj - 1.0).sqrt() / (1.0 + mc))
+}
+
+/// Tam, Seiner & Yu (1986) screech frequency in Hz (round jets only).
+pub fn tam_1986_frequency(jet: &ExpandedJet, constant: f64) -> Option<f64> {
+    tam_1986_strouhal(jet, constant).map(|st| st * jet.uj_m_s / jet.reference_length_m())
+}
+
+/// Peak frequency of shock-associated noise in Hz at observer angle `psi_deg` from the
+/// downstream jet axis, for spacing `spacing_m`. `None` where 1 - Mc cos psi <= 0 (the source
+/// moves supersonically towards the observer: Mach-wave radiation, no peak of this kind).
+pub fn shock_noise_peak(uc: f64, a_amb: f64, spacing_m: f64, psi_deg: f64) -> Option<f64> {
+    let d = 1.0 - uc / a_amb * psi_deg.to_radians().cos();
+    (d > 1e-12).then(|| uc / (spacing_m * d))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::physics::cells;
+    use crate::physics::gas::Gas;
+    use crate::physics::jet::{jet_state, Nozzle, OperatingPoint};
+
+    fn rel(a: f64, b: f64) -> f64 {
+        ((a - b) / b).abs()
+    }
+
+    fn round_jet(npr: f64, t0: f64) -> ExpandedJet {
+        let s = jet_state(
+            &Gas::AIR,
+            &Nozzle::round_convergent(0.0254).unwrap(),
+            &OperatingPoint::new(npr, 101_325.0, t0, 288.15).unwrap(),
+        );
+        ExpandedJet::from_state(&s).unwrap()
+    }
+
+    #[test]
+    fn tam_formula_is_powell_with_uc_07_and_spacing_08() {
+        // Identity of two implementations: Tam, Seiner & Yu (1986) with its constant written
+        // as 0.7 j0,1 / (0.8 pi) equals Powell's fundamental with Uc = 0.7 Uj and 0.8 of the
+        // round-jet vortex-sheet spacing, for cold and heated jets (Tr = Ta and Tr != Ta).
+        for (npr, t0) in [(2.5, 288.15), (3.5, 288.15), (5.0, 288.15), (3.0, 600.0), (4.0, 900.0)] {
+            let jet = round_jet(npr, t0);
+            let tam = tam_1986_frequency(&jet, tam_1986_exact_constant()).unwrap();
+            let ls = cells::spacing(&jet, TAM_1986_SPACING_FACTOR);
+            let powell = powell_fundamental(0.7 * jet.uj_m_s, jet.a_amb_m_s, ls);
+            assert!(rel(tam, powell) < 1e-12, "NPR {npr} T0 {t0}: {tam} vs {powell}");
+        }
+        // The published 0.67 rounds 0.669795 (difference 3.1e-4 relative; closed form).
+        assert!((tam_1986_exact_constant() - 0.669_794_780_866_761).abs() < 1e-14);
+    }
+
+    #[test]
+    fn temperature_exponent_follows_from_uc_07_uj() {
+        // Mc = 0.7 Uj / a_amb = 0.7 Mj (aj / a_amb), and (aj/a_amb)^2 = Tj/Ta =
+        // (T0/Ta) / (1 + (g-1)/2 Mj^2): the reservoir-temperature exponent is +1/2, so a hotter
+        // jet has a larger Mc and a lower Strouhal number.
+        let cold = round_jet(4.0, 288.15);
+        let hot = round_jet(4.0, 4.0 * 288.15);
+        let mc_cold = 0.7 * cold.uj_m_s / cold.a_amb_m_s;
+        let mc_hot = 0.7 * hot.uj_m_s / hot.a_amb_m_s;
+        assert!(rel(mc_hot / mc_cold, 2.0) < 1e-12); // sqrt(4)
+        let st_cold = tam_1986_strouhal(&cold, 0.67).unwrap();
+        let st_hot = tam_1986_strouhal(&hot, 0.67).unwrap();
+        assert!(rel(st_cold * (1.0 + mc_cold), st_hot * (1.0 + mc_hot)) < 1e-12);
+        assert!(st_hot < st_cold);
+    }
+
+    #[test]
+    fn strouhal_falls_as_mj_rises_from_1_1_to_2() {
+        // Published trend: screech Strouhal number f Dj / Uj decreases with Mj (Tam, Seiner &
+        // Yu 1986, Fig. 7 and its data; Raman 1999, Prog. Aerosp. Sci. 35, review).
+        let air = Gas::AIR;
+        let mut last = f64::INFINITY;
+        for k in 0..=90 {
+            let mj = 1.1 + 0.01 * f64::from(k);
+            let npr = 1.0 / air.pressure_ratio(mj);
+            let st = tam_1986_strouhal(&round_jet(npr, 288.15), 0.67).unwrap();
+            assert!(st < last, "Mj {mj}");
+            last = st;
+        }
+    }
+
+    #[test]
+    fn loop_with_one_cell_and_order_one_is_powell_fundamental() {
+        let jet = round_jet(3.0, 288.15);
+        let ls = cells::spacing(&jet, 1.0);
+        let conv = Convection::ratio(0.7).unwrap();
+        let r = feedback_loop(&jet, ls, conv, &LoopSpec::default()).unwrap();
+        let p = powell_fundamental(0.7 * jet.uj_m_s, jet.a_amb_m_s, ls);
+        assert!(rel(r.frequencies_hz[0], p) < 1e-14);
+        // Source N cells downstream, order N: the same frequency.
+        let spec = LoopSpec { source: Source::Cells(3.0), max_order: 3, ..LoopSpec::default() };
+        let r3 = feedback_loop(&jet, ls, conv, &spec).unwrap();
+        assert!(rel(r3.frequencies_hz[2], p) < 1e-14);
+    }
+
+    #[test]
+    fn reflector_displacement_lines() {
+        // A reflector moved upstream by d lengthens the loop by 2d/a: f_n(d) = n / (tau0 + 2d/a).
+        // For n = 2, 3, 4 every line falls monotonically with d, and consecutive lines are
+        // exactly 1/tau(d) apart (closed form).
+        let jet = round_jet(3.5, 288.15);
+        let ls = cells::spacing(&jet, 1.0);
+        let conv = Convection::speed(2.0 / 3.0 * jet.a_amb_m_s).unwrap();
+        let mut last = [f64::INFINITY; 3];
+        for k in 0..=40 {
+            let d = 0.0025 * f64::from(k);
+            let spec = LoopSpec {
+                source: Source::Cells(4.0),
+                reflector_m: Some(d),
+                max_order: 4,
+                ..LoopSpec::default()
+            };
+            let r = feedback_loop(&jet, ls, conv, &spec).unwrap();
+            let tau0 = 4.0 * ls * (1.0 / conv.uc(&jet) + 1.0 / jet.a_amb_m_s);
+            let tau = tau0 + 2.0 * d / jet.a_amb_m_s;
+            for (i, n) in [2usize, 3, 4].iter().enumerate() {
+                let f = r.frequencies_hz[n - 1];
+                assert!(f < last[i]);
+                last[i] = f;
+                assert!(rel(f, *n as f64 / tau) < 1e-13);
+            }
+            assert!(rel(r.frequencies_hz[3] - r.frequencies_hz[2], 1.0 / tau) < 1e-12);
+            assert!(rel(r.frequencies_hz[2] - r.frequencies_hz[1], 1.0 / tau) < 1e-12);
+        }
+    }
+
+    #[test]
+    fn planar_rule_of_thumb_gives_a_few_millimetres() {
+        // Common practice, no source: convection at two-thirds of the ambient sound speed; a
+        // cold planar jet at NPR 3.4 screeching near 20 kHz has a fully expanded height of a
+        // few millimetres. Powell's fundamental is inversely proportional to hj, so the
+        // product f hj computed for a 1 mm nozzle gives hj at 20 kHz.
+        let s = jet_state(
+            &Gas::AIR,
+            &Nozzle::planar(0.001, 1.0).unwrap(),
+            &OperatingPoint::new(3.4, 101_325.0, 288.15, 288.15).unwrap(),
+        );
+        let jet = ExpandedJet::from_state(&s).unwrap();
+        let uc = 2.0 / 3.0 * jet.a_amb_m_s;
+        let f = powell_fundamental(uc, jet.a_amb_m_s, cells::spacing(&jet, 1.0));
+        let hj_mm = f * jet.reference_length_m() / 20_000.0 * 1000.0;
+        assert!((2.0..5.0).contains(&hj_mm), "hj = {hj_mm} mm");
+        // The same number in closed form: hj = (2/3) a / (2 beta (1 + 2/3) f).
+        let expect = (2.0 / 3.0) * jet.a_amb_m_s / (2.0 * jet.beta() * (5.0 / 3.0) * 20_000.0) * 1000.0;
+        assert!(rel(hj_mm, expect) < 1e-12);
+    }
+
+    #[test]
+    fn shock_noise_at_180_deg_is_powell_and_undefined_ahead_of_a_supersonic_source() {
+        let jet = round_jet(4.0, 288.15);
+        let ls = cells::spacing(&jet, 1.0);
+        let uc = 0.7 * jet.uj_m_s;
+        let f180 = shock_noise_peak(uc, jet.a_amb_m_s, ls, 180.0).unwrap();
+        assert!(rel(f180, powell_fundamental(uc, jet.a_amb_m_s, ls)) < 1e-14);
+        // Peak frequency rises towards the downstream direction.
+        let f90 = shock_noise_peak(uc, jet.a_amb_m_s, ls, 90.0).unwrap();
+        let f45 = shock_noise_peak(uc, jet.a_amb_m_s, ls, 45.0).unwrap();
+        assert!(f180 < f90 && f90 < f45);
+        assert!(rel(f90, uc / ls) < 1e-14);
+        assert!(shock_noise_peak(1.5 * jet.a_amb_m_s, jet.a_amb_m_s, ls, 10.0).is_none());
+    }
+
+    #[test]
+    fn zero_loop_is_rejected() {
+        let jet = round_jet(3.0, 288.15);
+        let spec = LoopSpec { source: Source::Distance(0.0), ..LoopSpec::default() };
+        assert_eq!(
+            feedback_loop(&jet, 0.01, Convection::Ratio(0.7), &spec).unwrap_err(),
+            ZeroLoopTime
+        );
+    }
+}
