@@ -1,9 +1,10 @@
 //! Builds the tonic server: jetloop services, health, reflection and the limits around them.
 
 use crate::config::Limits;
-use crate::service::{gas_dynamics::GasDynamics, info::Info};
+use crate::service::{gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells, tones::Tones};
 use jetloop_proto::pb::{
     gas_dynamics_service_server::GasDynamicsServiceServer, info_service_server::InfoServiceServer,
+    shock_cell_service_server::ShockCellServiceServer, tone_service_server::ToneServiceServer,
 };
 use std::future::Future;
 use tokio::net::TcpListener;
@@ -34,6 +35,8 @@ pub async fn serve(
     let (health_reporter, health) = tonic_health::server::health_reporter();
     health_reporter.set_serving::<GasDynamicsServiceServer<GasDynamics>>().await;
     health_reporter.set_serving::<InfoServiceServer<Info>>().await;
+    health_reporter.set_serving::<ShockCellServiceServer<ShockCells>>().await;
+    health_reporter.set_serving::<ToneServiceServer<Tones>>().await;
 
     let reflection_v1 = tonic_reflection::server::Builder::configure()
         .register_encoded_file_descriptor_set(jetloop_proto::FILE_DESCRIPTOR_SET)
@@ -48,6 +51,8 @@ pub async fn serve(
     let max = limits.max_request_bytes;
     let gas = GasDynamicsServiceServer::new(GasDynamics).max_decoding_message_size(max);
     let info = InfoServiceServer::new(Info::new(limits)).max_decoding_message_size(max);
+    let cells = ShockCellServiceServer::new(ShockCells).max_decoding_message_size(max);
+    let tones = ToneServiceServer::new(Tones).max_decoding_message_size(max);
 
     Server::builder()
         // A span per call, so logs carry the method path.
@@ -61,6 +66,8 @@ pub async fn serve(
         .add_service(reflection_v1alpha)
         .add_service(gas)
         .add_service(info)
+        .add_service(cells)
+        .add_service(tones)
         .serve_with_incoming_shutdown(TcpListenerStream::new(listener), shutdown)
         .await?;
     Ok(())

@@ -5,6 +5,8 @@
 
 pub mod error;
 pub mod gas;
+pub mod jet_input;
 pub mod provenance;
+pub mod tones;
 
 pub use error::{ApiError, Check, FieldViolation};

@@ -62,8 +62,13 @@ mod tests {
     fn first_zeros_of_j0_match_published_values() {
         // Abramowitz & Stegun (1964) Table 9.5; scipy.special.jn_zeros(0, 5) gives the same
         // digits (cross-checked in tests/python to 1e-13).
-        let published = [2.404_825_557_695_773, 5.520_078_110_286_311, 8.653_727_912_911_013,
-            11.791_534_439_014_281, 14.930_917_708_487_787];
+        let published = [
+            2.404_825_557_695_773,
+            5.520_078_110_286_311,
+            8.653_727_912_911_013,
+            11.791_534_439_014_281,
+            14.930_917_708_487_787,
+        ];
         for (z, p) in j0_zeros(5).iter().zip(published) {
             assert!((z - p).abs() < 1e-13, "{z} vs {p}");
         }

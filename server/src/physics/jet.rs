@@ -203,6 +203,29 @@ impl OperatingPoint {
     pub fn npr(&self) -> f64 {
         self.npr
     }
+
+    /// Ambient pressure, Pa.
+    pub fn ambient_pressure_pa(&self) -> f64 {
+        self.ambient_pressure_pa
+    }
+
+    /// Reservoir total temperature, K.
+    pub fn total_temperature_k(&self) -> f64 {
+        self.total_temperature_k
+    }
+
+    /// Ambient temperature, K.
+    pub fn ambient_temperature_k(&self) -> f64 {
+        self.ambient_temperature_k
+    }
+
+    /// The same point at another nozzle pressure ratio.
+    ///
+    /// # Errors
+    /// [`RangeError`] naming `nozzle_pressure_ratio`.
+    pub fn with_npr(&self, npr: f64) -> Result<Self, RangeError> {
+        Ok(Self { npr: NPR.check("nozzle_pressure_ratio", npr)?, ..*self })
+    }
 }
 
 /// How the flow leaves the nozzle.

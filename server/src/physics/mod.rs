@@ -10,7 +10,7 @@ pub mod cells;
 pub mod gas;
 pub mod jet;
 pub mod models;
-pub mod tones;
 mod roots;
+pub mod tones;
 
 pub use bounds::{Bounds, RangeError};

@@ -38,6 +38,49 @@ pub const STANDARD_ATMOSPHERE: Model = Model {
     reference: "ICAO Doc 7488/3 (1993), Manual of the ICAO Standard Atmosphere",
 };
 
+/// Vortex-sheet shock-cell spacing.
+pub const VORTEX_SHEET_CELLS: Model = Model {
+    name: "vortex-sheet shock-cell spacing (round: pi sqrt(Mj^2-1) Dj / j0,n; planar: 2 hj sqrt(Mj^2-1) / (2n-1))",
+    reference: "Prandtl (1904); Pack (1950), Q. J. Mech. Appl. Math. 3; Tam, Jackson & Seiner (1985), J. Fluid Mech. 153",
+};
+/// Rectangular-jet spacing.
+pub const TAM_1988_RECTANGULAR: Model = Model {
+    name: "rectangular-jet shock-cell spacing 2 sqrt(Mj^2-1) / sqrt(1/hj^2 + 1/bj^2)",
+    reference: "Tam (1988), J. Sound Vib. 121, 135-147",
+};
+/// Powell's fundamental.
+pub const POWELL_FUNDAMENTAL: Model = Model {
+    name: "Powell fundamental f = Uc / (Ls (1 + Mc))",
+    reference: "Powell (1953), Proc. Phys. Soc. B 66; Tam (1988) for rectangular jets",
+};
+/// Powell's loop criterion.
+pub const POWELL_LOOP: Model = Model {
+    name: "Powell feedback-loop criterion tau = n / f (paths, reflector, fixed delays)",
+    reference: "Powell (1953), Proc. Phys. Soc. B 66",
+};
+/// Tam, Seiner & Yu 1986.
+pub const TAM_1986: Model = Model {
+    name: "Tam, Seiner & Yu screech formula (round jets)",
+    reference: "Tam, Seiner & Yu (1986), J. Sound Vib. 110, 309-321",
+};
+/// Shock-noise peak frequency.
+pub const SHOCK_NOISE_PEAK: Model = Model {
+    name: "shock-associated noise peak f = Uc / (Ls (1 - Mc cos psi))",
+    reference: "Harper-Bourne & Fisher (1973), AGARD CP-131; Tam & Tanna (1982), J. Sound Vib. 81",
+};
+
 /// Every model the server implements.
-pub const ALL: &[Model] =
-    &[ISENTROPIC, PRANDTL_MEYER, NORMAL_SHOCK, FULLY_EXPANDED_JET, CHOKED_MASS_FLOW, STANDARD_ATMOSPHERE];
+pub const ALL: &[Model] = &[
+    ISENTROPIC,
+    PRANDTL_MEYER,
+    NORMAL_SHOCK,
+    FULLY_EXPANDED_JET,
+    CHOKED_MASS_FLOW,
+    STANDARD_ATMOSPHERE,
+    VORTEX_SHEET_CELLS,
+    TAM_1988_RECTANGULAR,
+    POWELL_FUNDAMENTAL,
+    POWELL_LOOP,
+    TAM_1986,
+    SHOCK_NOISE_PEAK,
+];

@@ -145,7 +145,13 @@ pub struct LoopSpec {
 
 impl Default for LoopSpec {
     fn default() -> Self {
-        Self { source: Source::Cells(1.0), reflector_m: None, segments: Vec::new(), delays_s: Vec::new(), max_order: 4 }
+        Self {
+            source: Source::Cells(1.0),
+            reflector_m: None,
+            segments: Vec::new(),
+            delays_s: Vec::new(),
+            max_order: 4,
+        }
     }
 }
 
@@ -181,8 +187,10 @@ pub struct LoopResult {
 
 /// A loop that cannot close.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
-#[error("the feedback loop takes no time (all paths have zero length and there are no delays): \
-no frequency satisfies tau = n / f")]
+#[error(
+    "the feedback loop takes no time (all paths have zero length and there are no delays): \
+no frequency satisfies tau = n / f"
+)]
 pub struct ZeroLoopTime;
 
 /// Evaluates Powell's loop criterion for a jet with fundamental spacing `spacing_m` (factor
@@ -443,9 +451,6 @@ mod tests {
     fn zero_loop_is_rejected() {
         let jet = round_jet(3.0, 288.15);
         let spec = LoopSpec { source: Source::Distance(0.0), ..LoopSpec::default() };
-        assert_eq!(
-            feedback_loop(&jet, 0.01, Convection::Ratio(0.7), &spec).unwrap_err(),
-            ZeroLoopTime
-        );
+        assert_eq!(feedback_loop(&jet, 0.01, Convection::Ratio(0.7), &spec).unwrap_err(), ZeroLoopTime);
     }
 }

@@ -11,6 +11,8 @@ use tonic::{Request, Response, Status};
 pub const SERVICES: &[&str] = &[
     "jetloop.v1.GasDynamicsService",
     "jetloop.v1.InfoService",
+    "jetloop.v1.ShockCellService",
+    "jetloop.v1.ToneService",
     "grpc.health.v1.Health",
     "grpc.reflection.v1.ServerReflection",
     "grpc.reflection.v1alpha.ServerReflection",

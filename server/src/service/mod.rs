@@ -2,3 +2,5 @@
 
 pub mod gas_dynamics;
 pub mod info;
+pub mod shock_cells;
+pub mod tones;

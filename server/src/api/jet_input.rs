@@ -1,0 +1,312 @@
+//! Conversion of the inputs shared by the shock-cell and tone services: the jet (conditions or
+//! a fully expanded state), cell options, convection, the feedback loop.
+
+use super::error::{ApiError, Check};
+use super::gas::{jet_spec, JetSpec};
+use super::provenance::Defaults;
+use crate::physics::cells::CellOptions;
+use crate::physics::gas::{self, Gas};
+use crate::physics::jet::{self, jet_state, ExpandedJet, JetSize, JetState};
+use crate::physics::tones::{self, Convection, LoopSpec, PathLength, PathSpeed, Segment, Source};
+use jetloop_proto::pb;
+
+/// A resolved jet: the expanded jet the models use, and the full state when conditions were
+/// given.
+#[derive(Debug, Clone)]
+pub struct ResolvedJet {
+    /// Expanded jet.
+    pub jet: ExpandedJet,
+    /// Full state (conditions only).
+    pub state: Option<JetState>,
+    /// Validated conditions (conditions only), for sweeps.
+    pub spec: Option<JetSpec>,
+    /// Defaults applied.
+    pub defaults: Defaults,
+}
+
+/// Converts a `JetInput` at `path` and resolves it to a supersonic expanded jet.
+///
+/// # Errors
+/// [`ApiError::Invalid`] for bad fields; [`ApiError::Precondition`] for a jet that is not
+/// supersonic.
+pub fn resolve_jet(input: Option<pb::JetInput>, path: &str) -> Result<ResolvedJet, ApiError> {
+    let r = convert_jet(input, path)?;
+    if r.state.as_ref().is_some_and(|s| !s.supersonic) {
+        let s = r.state.as_ref().map(|s| ExpandedJet::from_state(s).err());
+        if let Some(Some(e)) = s {
+            return Err(ApiError::Precondition(e.to_string()));
+        }
+    }
+    Ok(r)
+}
+
+/// Converts a `JetInput` without requiring a supersonic jet (sweeps keep subsonic points).
+/// For conditions, the expanded jet of a subsonic state is a placeholder and must not be used.
+///
+/// # Errors
+/// [`ApiError::Invalid`] for bad fields.
+pub fn convert_jet(input: Option<pb::JetInput>, path: &str) -> Result<ResolvedJet, ApiError> {
+    use pb::fully_expanded_jet::Size;
+    use pb::jet_input::Source as S;
+    let mut check = Check::new();
+    match input.and_then(|j| j.source) {
+        None => {
+            check.missing(path, "set conditions (nozzle and operating point) or fully_expanded");
+            check.finish(None)
+        }
+        Some(S::Conditions(c)) => {
+            let spec = jet_spec(Some(c), &format!("{path}.conditions"))?;
+            let state = jet_state(&spec.gas, &spec.nozzle, &spec.op);
+            let jet = ExpandedJet::from_state(&state).unwrap_or(ExpandedJet {
+                gas: state.gas,
+                mj: state.mj,
+                size: state.size,
+                total_temperature_k: state.total_temperature_k,
+                ambient_temperature_k: state.ambient_temperature_k,
+                uj_m_s: state.uj_m_s,
+                a_amb_m_s: state.a_amb_m_s,
+            });
+            let defaults = spec.defaults.clone();
+            Ok(ResolvedJet { jet, state: Some(state), spec: Some(spec), defaults })
+        }
+        Some(S::FullyExpanded(f)) => {
+            let p = format!("{path}.fully_expanded");
+            let pb::FullyExpandedJet {
+                fully_expanded_mach_number,
+                size,
+                total_temperature_k,
+                ambient_temperature_k,
+                gas: gas_msg,
+            } = f;
+            let mut defaults = Defaults::default();
+            let pb::Gas { gamma, gas_constant_j_per_kg_k } = gas_msg.unwrap_or_default();
+            let g =
+                defaults.or(gamma, &format!("{p}.gas.gamma"), gas::AIR_GAMMA, "", "dry air, common practice");
+            let r = defaults.or(
+                gas_constant_j_per_kg_k,
+                &format!("{p}.gas.gas_constant_j_per_kg_k"),
+                gas::AIR_GAS_CONSTANT,
+                "J/(kg K)",
+                "dry air, common practice",
+            );
+            let gas = check.range(&format!("{p}.gas"), Gas::new(g, r));
+            let t_amb = defaults.or(
+                ambient_temperature_k,
+                &format!("{p}.ambient_temperature_k"),
+                jet::ISA_SEA_LEVEL_TEMPERATURE_K,
+                "K",
+                "ICAO standard atmosphere, sea level",
+            );
+            let t0 = defaults.or(
+                total_temperature_k,
+                &format!("{p}.total_temperature_k"),
+                t_amb,
+                "K",
+                "unheated jet: reservoir at the ambient temperature",
+            );
+            let size = match size {
+                None => {
+                    check.missing(
+                        format!("{p}.size"),
+                        "set fully_expanded_diameter_m, planar_height_m or rectangular",
+                    );
+                    None
+                }
+                Some(Size::FullyExpandedDiameterM(d)) => Some(JetSize::Round { diameter_m: d }),
+                Some(Size::PlanarHeightM(h)) => Some(JetSize::Planar { height_m: h }),
+                Some(Size::Rectangular(pb::RectangularJetSize { height_m, width_m })) => {
+                    Some(JetSize::Rectangular { height_m, width_m })
+                }
+            };
+            let jet = match (gas, size) {
+                (Some(gas), Some(size)) => {
+                    let r = ExpandedJet::direct(gas, fully_expanded_mach_number, size, t0, t_amb);
+                    // Size errors name the oneof member the caller set.
+                    let r = r.map_err(|mut e| {
+                        e.quantity = match (e.quantity, size) {
+                            ("fully_expanded_height_m", JetSize::Planar { .. }) => "planar_height_m",
+                            ("fully_expanded_height_m", JetSize::Rectangular { .. }) => {
+                                "rectangular.height_m"
+                            }
+                            ("fully_expanded_width_m", _) => "rectangular.width_m",
+                            (q, _) => q,
+                        };
+                        e
+                    });
+                    check.range(&p, r)
+                }
+                _ => None,
+            };
+            let r = jet.map(|jet| ResolvedJet { jet, state: None, spec: None, defaults });
+            check.finish(r)
+        }
+    }
+}
+
+/// Cell options at `path`, with `default_modes` when unset.
+pub fn cell_options(
+    check: &mut Check,
+    defaults: &mut Defaults,
+    o: Option<pb::CellOptions>,
+    path: &str,
+    default_modes: u32,
+) -> Option<CellOptions> {
+    let pb::CellOptions { spacing_factor, modes, shock_count } = o.unwrap_or_default();
+    let factor =
+        defaults.or(spacing_factor, &format!("{path}.spacing_factor"), 1.0, "", "pure vortex-sheet spacing");
+    check.range(path, CellOptions::new(factor, modes.unwrap_or(default_modes), shock_count.unwrap_or(8)))
+}
+
+/// Convection at `path`; unset: 0.7 Uj (Tam 1986).
+pub fn convection(
+    check: &mut Check,
+    defaults: &mut Defaults,
+    c: Option<pb::Convection>,
+    path: &str,
+) -> Option<Convection> {
+    use pb::convection::Speed;
+    match c.and_then(|c| c.speed) {
+        None => {
+            defaults.note(&format!("{path}.convection_ratio"), "0.7", "Uc = 0.7 Uj (Tam, Seiner & Yu 1986)");
+            Some(Convection::Ratio(0.7))
+        }
+        Some(Speed::ConvectionRatio(r)) => check.range(path, Convection::ratio(r)),
+        Some(Speed::ConvectionSpeedMPerS(v)) => check.range(path, Convection::speed(v)),
+    }
+}
+
+/// Feedback loop at `path`.
+pub fn loop_spec(
+    check: &mut Check,
+    defaults: &mut Defaults,
+    l: Option<pb::FeedbackLoop>,
+    path: &str,
+) -> LoopSpec {
+    use pb::feedback_loop::Source as S;
+    use pb::loop_segment::Length;
+    let pb::FeedbackLoop { source, reflector_distance_m, segments, fixed_delays_s, max_loop_order } =
+        l.unwrap_or_default();
+    let source = match source {
+        None => {
+            defaults.note(&format!("{path}.source_cells"), "1", "source at the end of the first shock cell");
+            Source::Cells(1.0)
+        }
+        Some(S::SourceCells(n)) => check
+            .range(path, tones::SOURCE_CELLS.check("source_cells", n))
+            .map_or(Source::Cells(1.0), Source::Cells),
+        Some(S::SourceDistanceM(d)) => check
+            .range(path, tones::PATH_LENGTH.check("source_distance_m", d))
+            .map_or(Source::Distance(0.0), Source::Distance),
+    };
+    let reflector_m = reflector_distance_m
+        .and_then(|d| check.range(path, tones::REFLECTOR_DISTANCE.check("reflector_distance_m", d)));
+    if segments.len() > tones::MAX_LOOP_PARTS {
+        check.other(
+            format!("{path}.segments"),
+            format!(
+                "{path}.segments has {} paths; at most {} are allowed",
+                segments.len(),
+                tones::MAX_LOOP_PARTS
+            ),
+        );
+    }
+    if fixed_delays_s.len() > tones::MAX_LOOP_PARTS {
+        check.other(
+            format!("{path}.fixed_delays_s"),
+            format!(
+                "{path}.fixed_delays_s has {} values; at most {} are allowed",
+                fixed_delays_s.len(),
+                tones::MAX_LOOP_PARTS
+            ),
+        );
+    }
+    let segs: Vec<Segment> = segments
+        .into_iter()
+        .take(tones::MAX_LOOP_PARTS)
+        .enumerate()
+        .filter_map(|(i, s)| {
+            let sp = format!("{path}.segments[{i}]");
+            if s.label.chars().count() > 200 {
+                check.other(format!("{sp}.label"), format!("{sp}.label is longer than 200 characters"));
+            }
+            let length = match s.length {
+                None => {
+                    check.missing(format!("{sp}.length"), "set length_m or source_distances");
+                    None
+                }
+                Some(Length::LengthM(l)) => {
+                    check.range(&sp, tones::PATH_LENGTH.check("length_m", l)).map(PathLength::Metres)
+                }
+                Some(Length::SourceDistances(k)) => check
+                    .range(&sp, tones::SOURCE_MULTIPLE.check("source_distances", k))
+                    .map(PathLength::SourceDistances),
+            };
+            let speed = match pb::PathSpeed::try_from(s.speed) {
+                Ok(pb::PathSpeed::Convected) => Some(PathSpeed::Convected),
+                Ok(pb::PathSpeed::Acoustic) => Some(PathSpeed::Acoustic),
+                Ok(pb::PathSpeed::Given) => match s.speed_m_per_s {
+                    Some(v) => check.range(&sp, tones::SPEED.check("speed_m_per_s", v)).map(PathSpeed::Given),
+                    None => {
+                        check.missing(format!("{sp}.speed_m_per_s"), "PATH_SPEED_GIVEN needs the speed in m/s");
+                        None
+                    }
+                },
+                _ => {
+                    check.other(
+                        format!("{sp}.speed"),
+                        format!(
+                            "{sp}.speed = {} must be PATH_SPEED_CONVECTED, PATH_SPEED_ACOUSTIC or PATH_SPEED_GIVEN",
+                            s.speed
+                        ),
+                    );
+                    None
+                }
+            };
+            Some(Segment { label: s.label, length: length?, speed: speed? })
+        })
+        .collect();
+    let delays: Vec<f64> = fixed_delays_s
+        .into_iter()
+        .take(tones::MAX_LOOP_PARTS)
+        .enumerate()
+        .filter_map(|(i, d)| {
+            check.range(
+                &format!("{path}.fixed_delays_s[{i}]"),
+                tones::DELAY.check("value", d).map_err(|mut e| {
+                    e.quantity = "";
+                    e
+                }),
+            )
+        })
+        .collect();
+    let max_order = match max_loop_order {
+        None => {
+            defaults.note(&format!("{path}.max_loop_order"), "4", "loop orders 1 to 4");
+            4
+        }
+        Some(n) => {
+            check.range(path, tones::LOOP_ORDER.check("max_loop_order", f64::from(n))).map_or(4, |v| v as u32)
+        }
+    };
+    LoopSpec { source, reflector_m, segments: segs, delays_s: delays, max_order }
+}
+
+/// Summary message of an expanded jet.
+pub fn jet_summary(j: &ExpandedJet) -> pb::ExpandedJetSummary {
+    let (name, width) = match j.size {
+        JetSize::Round { .. } => ("fully expanded diameter", None),
+        JetSize::Planar { .. } => ("fully expanded height", None),
+        JetSize::Rectangular { width_m, .. } => ("fully expanded height", Some(width_m)),
+    };
+    pb::ExpandedJetSummary {
+        fully_expanded_mach_number: j.mj,
+        beta: j.beta(),
+        fully_expanded_velocity_m_per_s: j.uj_m_s,
+        ambient_sound_speed_m_per_s: j.a_amb_m_s,
+        reference_length_m: j.reference_length_m(),
+        reference_length_name: name.to_string(),
+        fully_expanded_width_m: width,
+        total_temperature_k: j.total_temperature_k,
+        ambient_temperature_k: j.ambient_temperature_k,
+    }
+}

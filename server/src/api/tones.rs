@@ -1,0 +1,621 @@
+//! ShockCellService and ToneService: request conversion, computation glue and responses.
+
+use super::error::{ApiError, Check};
+use super::gas::{jet_state_message, regime, PRESSURE_CAUTION};
+use super::jet_input::{
+    cell_options, convection, convert_jet, jet_summary, loop_spec, resolve_jet, ResolvedJet,
+};
+use super::provenance::{provenance, Defaults};
+use crate::physics::cells::{self, CellOptions, Cells};
+use crate::physics::jet::{jet_state, ExpandedJet};
+use crate::physics::models::{self, Model};
+use crate::physics::tones::{self, Convection, LoopResult, LoopSpec};
+use jetloop_proto::pb;
+
+/// Most points in one sweep.
+pub const MAX_SWEEP_POINTS: usize = 10_000;
+/// Most observer angles in one shock-noise request.
+pub const MAX_ANGLES: usize = 3600;
+
+/// A validated shock-cell question.
+#[derive(Debug, Clone)]
+pub struct CellQuery {
+    /// The jet.
+    pub jet: ResolvedJet,
+    /// Options.
+    pub options: CellOptions,
+}
+
+impl TryFrom<pb::CellSpacingRequest> for CellQuery {
+    type Error = ApiError;
+
+    fn try_from(req: pb::CellSpacingRequest) -> Result<Self, ApiError> {
+        let pb::CellSpacingRequest { jet, options } = req;
+        let mut jet = resolve_jet(jet, "jet")?;
+        let mut check = Check::new();
+        let o = cell_options(&mut check, &mut jet.defaults, options, "options", 3);
+        check.finish(o.map(|options| CellQuery { jet, options }))
+    }
+}
+
+fn cell_models(jet: &ExpandedJet) -> Vec<Model> {
+    let mut m = vec![models::VORTEX_SHEET_CELLS];
+    if matches!(jet.size, crate::physics::jet::JetSize::Rectangular { .. }) {
+        m.push(models::TAM_1988_RECTANGULAR);
+    }
+    m
+}
+
+fn with_state_models(mut m: Vec<Model>, r: &ResolvedJet) -> Vec<Model> {
+    if r.state.is_some() {
+        m.push(models::FULLY_EXPANDED_JET);
+    }
+    m
+}
+
+fn notes(r: &ResolvedJet) -> Vec<String> {
+    let mut n = r.state.as_ref().map(|s| s.notes.clone()).unwrap_or_default();
+    n.push(PRESSURE_CAUTION.to_string());
+    n
+}
+
+/// Computes and builds the CellSpacing response.
+pub fn cell_response(q: &CellQuery) -> pb::CellSpacingResponse {
+    let c = cells::cells(&q.jet.jet, &q.options);
+    let l = q.jet.jet.reference_length_m();
+    pb::CellSpacingResponse {
+        state: q.jet.state.as_ref().map(jet_state_message),
+        jet: Some(jet_summary(&q.jet.jet)),
+        spacing_factor: c.factor,
+        modes: c
+            .modes
+            .iter()
+            .map(|m| pb::CellMode {
+                mode: m.n,
+                vortex_sheet_spacing_m: m.vortex_sheet_m,
+                spacing_m: m.spacing_m,
+                spacing_over_reference_length: m.spacing_m / l,
+                bessel_zero: m.bessel_zero,
+            })
+            .collect(),
+        shocks: c
+            .shock_positions_m
+            .iter()
+            .enumerate()
+            .map(|(i, x)| pb::ShockPosition {
+                index: i as u32 + 1,
+                axial_position_m: *x,
+                axial_position_over_reference_length: x / l,
+            })
+            .collect(),
+        provenance: Some(provenance(
+            &with_state_models(cell_models(&q.jet.jet), &q.jet),
+            &q.jet.defaults,
+            notes(&q.jet),
+        )),
+    }
+}
+
+/// Validated screech options.
+#[derive(Debug, Clone)]
+pub struct ScreechSettings {
+    /// Convection.
+    pub convection: Convection,
+    /// Cell options.
+    pub cells: CellOptions,
+    /// Loop.
+    pub loop_spec: LoopSpec,
+    /// Harmonics per model.
+    pub harmonics: u32,
+}
+
+fn screech_settings(
+    check: &mut Check,
+    defaults: &mut Defaults,
+    o: Option<pb::ScreechOptions>,
+    path: &str,
+) -> Option<ScreechSettings> {
+    let pb::ScreechOptions { convection: c, cells: cl, r#loop, harmonics } = o.unwrap_or_default();
+    let conv = convection(check, defaults, c, &format!("{path}.convection"));
+    let cells = cell_options(check, defaults, cl, &format!("{path}.cells"), 1);
+    let loop_spec = loop_spec(check, defaults, r#loop, &format!("{path}.loop"));
+    let harmonics = match harmonics {
+        None => 3,
+        Some(h) => {
+            check.range(path, tones::HARMONICS.check("harmonics", f64::from(h))).map_or(3, |v| v as u32)
+        }
+    };
+    Some(ScreechSettings { convection: conv?, cells: cells?, loop_spec, harmonics })
+}
+
+/// A validated screech question.
+#[derive(Debug, Clone)]
+pub struct ScreechQuery {
+    /// The jet.
+    pub jet: ResolvedJet,
+    /// Settings.
+    pub settings: ScreechSettings,
+}
+
+impl TryFrom<pb::PredictScreechRequest> for ScreechQuery {
+    type Error = ApiError;
+
+    fn try_from(req: pb::PredictScreechRequest) -> Result<Self, ApiError> {
+        let pb::PredictScreechRequest { jet, options } = req;
+        let mut jet = resolve_jet(jet, "jet")?;
+        let mut check = Check::new();
+        let s = screech_settings(&mut check, &mut jet.defaults, options, "options");
+        check.finish(s.map(|settings| ScreechQuery { jet, settings }))
+    }
+}
+
+fn harmonics(f: f64, n: u32, jet: &ExpandedJet) -> Vec<pb::Tone> {
+    let l = jet.reference_length_m();
+    (1..=n)
+        .map(|k| {
+            let fk = f * f64::from(k);
+            pb::Tone { order: k, frequency_hz: fk, strouhal_number: fk * l / jet.uj_m_s }
+        })
+        .collect()
+}
+
+fn prediction(
+    m: &Model,
+    f: f64,
+    n: u32,
+    jet: &ExpandedJet,
+    assumptions: Vec<String>,
+) -> pb::ScreechModelPrediction {
+    pb::ScreechModelPrediction {
+        model: m.name.to_string(),
+        reference: m.reference.to_string(),
+        fundamental_hz: f,
+        strouhal_number: f * jet.reference_length_m() / jet.uj_m_s,
+        harmonics: harmonics(f, n, jet),
+        assumptions,
+    }
+}
+
+fn loop_message(r: &LoopResult, jet: &ExpandedJet) -> pb::FeedbackLoopResult {
+    let l = jet.reference_length_m();
+    pb::FeedbackLoopResult {
+        source_distance_m: r.source_distance_m,
+        convection_speed_m_per_s: r.uc_m_s,
+        convective_mach_number: r.uc_m_s / jet.a_amb_m_s,
+        segments: r
+            .segments
+            .iter()
+            .map(|s| pb::LoopSegmentTime {
+                label: s.label.clone(),
+                length_m: s.length_m,
+                speed_m_per_s: s.speed_m_s,
+                time_s: s.time_s,
+            })
+            .collect(),
+        fixed_delay_s: r.fixed_delay_s,
+        loop_time_s: r.loop_time_s,
+        orders: r
+            .frequencies_hz
+            .iter()
+            .enumerate()
+            .map(|(i, f)| pb::Tone {
+                order: i as u32 + 1,
+                frequency_hz: *f,
+                strouhal_number: f * l / jet.uj_m_s,
+            })
+            .collect(),
+    }
+}
+
+fn zero_loop(path: &str) -> ApiError {
+    ApiError::Invalid(vec![super::error::FieldViolation {
+        field: path.to_string(),
+        description: format!("{path}: {}", tones::ZeroLoopTime),
+    }])
+}
+
+/// Every screech model for one jet.
+struct ScreechResult {
+    cells: Cells,
+    powell: f64,
+    tam: Option<f64>,
+    feedback: LoopResult,
+}
+
+fn screech(
+    jet: &ExpandedJet,
+    s: &ScreechSettings,
+    loop_spec: &LoopSpec,
+) -> Result<ScreechResult, tones::ZeroLoopTime> {
+    let cells = cells::cells(jet, &s.cells);
+    let ls = cells.spacing_m();
+    let uc = s.convection.uc(jet);
+    let powell = tones::powell_fundamental(uc, jet.a_amb_m_s, ls);
+    let tam = tones::tam_1986_frequency(jet, tones::TAM_1986_CONSTANT);
+    let feedback = tones::feedback_loop(jet, ls, s.convection, loop_spec)?;
+    Ok(ScreechResult { cells, powell, tam, feedback })
+}
+
+/// Computes and builds the PredictScreech response.
+///
+/// # Errors
+/// [`ApiError::Invalid`] naming `options.loop` when the loop takes no time.
+pub fn screech_response(q: &ScreechQuery) -> Result<pb::PredictScreechResponse, ApiError> {
+    let jet = &q.jet.jet;
+    let s = &q.settings;
+    let r = screech(jet, s, &s.loop_spec).map_err(|_| zero_loop("options.loop"))?;
+    let uc = s.convection.uc(jet);
+    let mc = uc / jet.a_amb_m_s;
+    let mut predictions = vec![prediction(
+        &models::POWELL_FUNDAMENTAL,
+        r.powell,
+        s.harmonics,
+        jet,
+        vec![
+            format!("Convection speed Uc = {uc:.2} m/s (Mc = {mc:.4})."),
+            format!(
+                "Source spacing: vortex-sheet shock-cell spacing times {} = {:.6} m.",
+                r.cells.factor,
+                r.cells.spacing_m()
+            ),
+        ],
+    )];
+    let mut used = vec![models::POWELL_FUNDAMENTAL, models::POWELL_LOOP];
+    used.extend(cell_models(jet));
+    let mut notes = notes(&q.jet);
+    match r.tam {
+        Some(f) => {
+            used.push(models::TAM_1986);
+            predictions.push(prediction(
+                &models::TAM_1986,
+                f,
+                s.harmonics,
+                jet,
+                vec![
+                    "Uc = 0.7 Uj and 0.8 of the round-jet vortex-sheet spacing, built into the constant 0.67 (= 0.7 j0,1 / (0.8 pi) rounded).".into(),
+                    "Temperature term uses the reservoir-to-ambient ratio T0/Ta.".into(),
+                ],
+            ));
+        }
+        None => notes.push(
+            "Tam, Seiner & Yu (1986) applies to round jets only; for this jet Powell's fundamental \
+             uses the rectangular or planar spacing (Tam 1988)."
+                .into(),
+        ),
+    }
+    let used = with_state_models(used, &q.jet);
+    Ok(pb::PredictScreechResponse {
+        state: q.jet.state.as_ref().map(jet_state_message),
+        jet: Some(jet_summary(jet)),
+        spacing_m: r.cells.spacing_m(),
+        spacing_factor: r.cells.factor,
+        predictions,
+        feedback_loop: Some(loop_message(&r.feedback, jet)),
+        provenance: Some(provenance(&used, &q.jet.defaults, notes)),
+    })
+}
+
+/// A validated shock-noise question.
+#[derive(Debug, Clone)]
+pub struct ShockNoiseQuery {
+    jet: ResolvedJet,
+    convection: Convection,
+    cells: CellOptions,
+    angles: Vec<f64>,
+}
+
+impl TryFrom<pb::PredictShockNoiseRequest> for ShockNoiseQuery {
+    type Error = ApiError;
+
+    fn try_from(req: pb::PredictShockNoiseRequest) -> Result<Self, ApiError> {
+        let pb::PredictShockNoiseRequest { jet, convection: c, cells: cl, observer_angles_deg } = req;
+        if observer_angles_deg.len() > MAX_ANGLES {
+            return Err(ApiError::TooLarge {
+                field: "observer_angles_deg".into(),
+                limit: format!("{MAX_ANGLES} angles"),
+                actual: format!("{} angles", observer_angles_deg.len()),
+            });
+        }
+        let mut jet = resolve_jet(jet, "jet")?;
+        let mut check = Check::new();
+        let conv = convection(&mut check, &mut jet.defaults, c, "convection");
+        let cells = cell_options(&mut check, &mut jet.defaults, cl, "cells", 1);
+        let angles = if observer_angles_deg.is_empty() {
+            jet.defaults.note("observer_angles_deg", "30, 40, ..., 180 deg", "a polar arc in 10 deg steps");
+            (3..=18).map(|k| f64::from(k) * 10.0).collect()
+        } else {
+            observer_angles_deg
+                .iter()
+                .enumerate()
+                .filter_map(|(i, a)| {
+                    check.range(&format!("observer_angles_deg[{i}]"), tones::OBSERVER_ANGLE.check("", *a))
+                })
+                .collect()
+        };
+        let q = match (conv, cells) {
+            (Some(convection), Some(cells)) => Some(ShockNoiseQuery { jet, convection, cells, angles }),
+            _ => None,
+        };
+        check.finish(q)
+    }
+}
+
+/// Computes and builds the PredictShockNoise response.
+pub fn shock_noise_response(q: &ShockNoiseQuery) -> pb::PredictShockNoiseResponse {
+    let jet = &q.jet.jet;
+    let c = cells::cells(jet, &q.cells);
+    let uc = q.convection.uc(jet);
+    let l = jet.reference_length_m();
+    let mut missing = 0usize;
+    let mut peaks = Vec::with_capacity(q.angles.len() * c.modes.len());
+    for &psi in &q.angles {
+        for m in &c.modes {
+            let f = tones::shock_noise_peak(uc, jet.a_amb_m_s, m.spacing_m, psi);
+            missing += usize::from(f.is_none());
+            peaks.push(pb::ShockNoisePeak {
+                observer_angle_deg: psi,
+                mode: m.n,
+                peak_frequency_hz: f,
+                strouhal_number: f.map(|f| f * l / jet.uj_m_s),
+            });
+        }
+    }
+    let mut notes = notes(&q.jet);
+    if missing > 0 {
+        notes.push(format!(
+            "{missing} angle/mode pairs have no peak frequency: there 1 - Mc cos(angle) <= 0 \
+             (Mc = {:.3}), the region of Mach-wave radiation.",
+            uc / jet.a_amb_m_s
+        ));
+    }
+    let mut used = vec![models::SHOCK_NOISE_PEAK];
+    used.extend(cell_models(jet));
+    pb::PredictShockNoiseResponse {
+        state: q.jet.state.as_ref().map(jet_state_message),
+        jet: Some(jet_summary(jet)),
+        convection_speed_m_per_s: uc,
+        convective_mach_number: uc / jet.a_amb_m_s,
+        peaks,
+        provenance: Some(provenance(&with_state_models(used, &q.jet), &q.jet.defaults, notes)),
+    }
+}
+
+/// What a sweep varies.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SweepKind {
+    /// NPR.
+    Npr,
+    /// Mj.
+    Mach,
+    /// Reflector distance.
+    Reflector,
+}
+
+/// A validated sweep.
+#[derive(Debug, Clone)]
+pub struct SweepQuery {
+    jet: ResolvedJet,
+    kind: SweepKind,
+    values: Vec<f64>,
+    settings: ScreechSettings,
+}
+
+impl TryFrom<pb::SweepScreechRequest> for SweepQuery {
+    type Error = ApiError;
+
+    fn try_from(req: pb::SweepScreechRequest) -> Result<Self, ApiError> {
+        use pb::sweep_screech_request::Values;
+        let pb::SweepScreechRequest { jet, variable, values, options } = req;
+        // Sizes first: nothing large is expanded before the limit is known to hold.
+        let (count, field) = match &values {
+            Some(Values::Range(r)) => (r.count as usize, "range.count"),
+            Some(Values::List(l)) => (l.values.len(), "list.values"),
+            None => (0, "values"),
+        };
+        if count > MAX_SWEEP_POINTS {
+            return Err(ApiError::TooLarge {
+                field: field.into(),
+                limit: format!("{MAX_SWEEP_POINTS} sweep points"),
+                actual: format!("{count} points"),
+            });
+        }
+        let mut check = Check::new();
+        let kind = match pb::SweepVariable::try_from(variable) {
+            Ok(pb::SweepVariable::NozzlePressureRatio) => Some(SweepKind::Npr),
+            Ok(pb::SweepVariable::FullyExpandedMachNumber) => Some(SweepKind::Mach),
+            Ok(pb::SweepVariable::ReflectorDistanceM) => Some(SweepKind::Reflector),
+            _ => {
+                check.other(
+                    "variable",
+                    format!(
+                        "variable = {variable} must be SWEEP_VARIABLE_NOZZLE_PRESSURE_RATIO, \
+                         SWEEP_VARIABLE_FULLY_EXPANDED_MACH_NUMBER or SWEEP_VARIABLE_REFLECTOR_DISTANCE_M"
+                    ),
+                );
+                None
+            }
+        };
+        let mut jet = match convert_jet(jet, "jet") {
+            Ok(j) => j,
+            Err(e) => return Err(e),
+        };
+        if matches!(kind, Some(SweepKind::Npr | SweepKind::Mach)) && jet.spec.is_none() {
+            check.other(
+                "jet.conditions",
+                "NPR and Mj sweeps need jet.conditions (nozzle and operating point), not a fully expanded jet",
+            );
+        }
+        let values: Vec<f64> = match values {
+            None => {
+                check.missing("values", "set range (start, stop, count) or list");
+                Vec::new()
+            }
+            Some(Values::Range(pb::SweepRange { start, stop, count })) => {
+                for (name, v) in [("range.start", start), ("range.stop", stop)] {
+                    if !v.is_finite() {
+                        check.other(name, format!("{name} = {v} is not a finite number"));
+                    }
+                }
+                if count == 0 || (count == 1 && start != stop) {
+                    check.other(
+                        "range.count",
+                        format!("range.count = {count}: give at least 1 point (2 or more when start != stop), at most {MAX_SWEEP_POINTS}"),
+                    );
+                    Vec::new()
+                } else if count == 1 {
+                    vec![start]
+                } else {
+                    let step = (stop - start) / f64::from(count - 1);
+                    (0..count).map(|i| start + step * f64::from(i)).collect()
+                }
+            }
+            Some(Values::List(l)) => {
+                if l.values.is_empty() {
+                    check.missing("list.values", "give at least one value");
+                }
+                l.values
+            }
+        };
+        let settings = screech_settings(&mut check, &mut jet.defaults, options, "options");
+        // Each value must be valid for its variable; report the first few bad ones by index.
+        if let Some(kind) = kind {
+            let (bounds, name) = match kind {
+                SweepKind::Npr => (crate::physics::jet::NPR, "nozzle pressure ratio"),
+                SweepKind::Mach => {
+                    (crate::physics::bounds::Bounds::closed(0.0, 20.0, ""), "fully expanded Mach number")
+                }
+                SweepKind::Reflector => (tones::REFLECTOR_DISTANCE, "reflector distance"),
+            };
+            let mut bad = 0;
+            for (i, v) in values.iter().enumerate() {
+                if !bounds.contains(*v) {
+                    bad += 1;
+                    if bad <= 5 {
+                        check.other(
+                            format!("values[{i}]"),
+                            format!("sweep value {i} = {v} is outside the allowed {name} range {bounds}"),
+                        );
+                    }
+                }
+            }
+            if kind == SweepKind::Mach {
+                if let Some(spec) = &jet.spec {
+                    for (i, v) in values.iter().enumerate().filter(|(_, v)| bounds.contains(**v)) {
+                        let npr = 1.0 / spec.gas.pressure_ratio(*v);
+                        if !crate::physics::jet::NPR.contains(npr) {
+                            check.other(
+                                format!("values[{i}]"),
+                                format!(
+                                    "sweep value {i}: Mj = {v} needs NPR {npr:.4e}, outside {}",
+                                    crate::physics::jet::NPR
+                                ),
+                            );
+                            break;
+                        }
+                    }
+                }
+            }
+        }
+        let q = match (kind, settings) {
+            (Some(kind), Some(settings)) => Some(SweepQuery { jet, kind, values, settings }),
+            _ => None,
+        };
+        check.finish(q)
+    }
+}
+
+/// Runs the sweep and builds the response.
+///
+/// # Errors
+/// [`ApiError::Invalid`] naming `options.loop` when the loop takes no time, or
+/// [`ApiError::Precondition`] for a reflector sweep of a subsonic jet.
+pub fn sweep_response(q: &SweepQuery) -> Result<pb::SweepScreechResponse, ApiError> {
+    let t = std::time::Instant::now();
+    let s = &q.settings;
+    let mut points = Vec::with_capacity(q.values.len());
+    let mut subsonic = 0usize;
+    let mut loop_spec = s.loop_spec.clone();
+    if q.kind == SweepKind::Reflector {
+        if let Some(state) = &q.jet.state {
+            if let Err(e) = ExpandedJet::from_state(state) {
+                return Err(ApiError::Precondition(e.to_string()));
+            }
+        }
+    }
+    for &v in &q.values {
+        let (state, jet) = match (q.kind, &q.jet.spec) {
+            (SweepKind::Npr | SweepKind::Mach, Some(spec)) => {
+                let npr = if q.kind == SweepKind::Npr { v } else { 1.0 / spec.gas.pressure_ratio(v) };
+                let op = spec.op.with_npr(npr).map_err(|e| ApiError::Precondition(e.to_string()))?;
+                let st = jet_state(&spec.gas, &spec.nozzle, &op);
+                let j = ExpandedJet::from_state(&st).ok();
+                (Some(st), j)
+            }
+            _ => {
+                loop_spec.reflector_m = Some(v);
+                (q.jet.state.clone(), Some(q.jet.jet))
+            }
+        };
+        let (npr, mj, reg, uj, lref) = match &state {
+            Some(st) => (st.npr, st.mj, regime(st.regime) as i32, st.uj_m_s, reference_length(st)),
+            None => (
+                1.0 / q.jet.jet.gas.pressure_ratio(q.jet.jet.mj),
+                q.jet.jet.mj,
+                pb::ExpansionRegime::Unspecified as i32,
+                q.jet.jet.uj_m_s,
+                q.jet.jet.reference_length_m(),
+            ),
+        };
+        let mut p = pb::SweepPoint {
+            value: v,
+            nozzle_pressure_ratio: npr,
+            fully_expanded_mach_number: mj,
+            regime: reg,
+            supersonic: jet.is_some(),
+            fully_expanded_velocity_m_per_s: uj,
+            reference_length_m: lref,
+            ..Default::default()
+        };
+        match jet {
+            Some(j) => {
+                let r = screech(&j, s, &loop_spec).map_err(|_| zero_loop("options.loop"))?;
+                p.spacing_m = Some(r.cells.spacing_m());
+                p.powell_fundamental_hz = Some(r.powell);
+                p.tam_1986_hz = r.tam;
+                p.loop_frequencies_hz = r.feedback.frequencies_hz;
+            }
+            None => subsonic += 1,
+        }
+        points.push(p);
+    }
+    let mut notes = vec![PRESSURE_CAUTION.to_string()];
+    if subsonic > 0 {
+        notes.push(format!(
+            "{subsonic} of {} points are not supersonic jets (no shock cells): they are kept with supersonic = false and no frequencies.",
+            q.values.len()
+        ));
+    }
+    let mut used =
+        vec![models::POWELL_FUNDAMENTAL, models::POWELL_LOOP, models::TAM_1986, models::VORTEX_SHEET_CELLS];
+    if q.jet.spec.is_some() {
+        used.push(models::FULLY_EXPANDED_JET);
+    }
+    Ok(pb::SweepScreechResponse {
+        variable: match q.kind {
+            SweepKind::Npr => pb::SweepVariable::NozzlePressureRatio,
+            SweepKind::Mach => pb::SweepVariable::FullyExpandedMachNumber,
+            SweepKind::Reflector => pb::SweepVariable::ReflectorDistanceM,
+        } as i32,
+        points,
+        compute_time_s: t.elapsed().as_secs_f64(),
+        provenance: Some(provenance(&used, &q.jet.defaults, notes)),
+    })
+}
+
+fn reference_length(s: &crate::physics::jet::JetState) -> f64 {
+    match s.size {
+        crate::physics::jet::JetSize::Round { diameter_m } => diameter_m,
+        crate::physics::jet::JetSize::Rectangular { height_m, .. }
+        | crate::physics::jet::JetSize::Planar { height_m } => height_m,
+    }
+}

@@ -1,0 +1,43 @@
+//! `jetloop.v1.ToneService`.
+
+use crate::api::tones::{
+    screech_response, shock_noise_response, sweep_response, ScreechQuery, ShockNoiseQuery, SweepQuery,
+};
+use jetloop_proto::pb::{self, tone_service_server::ToneService};
+use tonic::{Request, Response, Status};
+
+/// Handlers for screech and shock-noise predictions. Single predictions run on the reactor
+/// (microseconds); sweeps (up to 10,000 points) run on the blocking pool.
+#[derive(Debug, Default, Clone, Copy)]
+pub struct Tones;
+
+#[tonic::async_trait]
+impl ToneService for Tones {
+    async fn predict_screech(
+        &self,
+        request: Request<pb::PredictScreechRequest>,
+    ) -> Result<Response<pb::PredictScreechResponse>, Status> {
+        let q = ScreechQuery::try_from(request.into_inner())?;
+        Ok(Response::new(screech_response(&q)?))
+    }
+
+    async fn predict_shock_noise(
+        &self,
+        request: Request<pb::PredictShockNoiseRequest>,
+    ) -> Result<Response<pb::PredictShockNoiseResponse>, Status> {
+        let q = ShockNoiseQuery::try_from(request.into_inner())?;
+        Ok(Response::new(shock_noise_response(&q)))
+    }
+
+    async fn sweep_screech(
+        &self,
+        request: Request<pb::SweepScreechRequest>,
+    ) -> Result<Response<pb::SweepScreechResponse>, Status> {
+        let q = SweepQuery::try_from(request.into_inner())?;
+        let r = tokio::task::spawn_blocking(move || sweep_response(&q)).await.map_err(|e| {
+            tracing::error!("sweep task failed: {e}");
+            Status::internal("the sweep computation failed; see the server log")
+        })??;
+        Ok(Response::new(r))
+    }
+}
