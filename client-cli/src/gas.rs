@@ -81,7 +81,7 @@ pub enum NozzleArg {
 /// `jetloop jet`.
 #[derive(Debug, Args)]
 #[command(allow_negative_numbers = true)]
-#[command(group(clap::ArgGroup::new("pressure").required(true).args(["npr", "total_pressure_pa"])))]
+#[command(group(clap::ArgGroup::new("pressure").args(["npr", "total_pressure_pa"])))]
 pub struct JetArgs {
     /// Nozzle kind.
     #[arg(long, value_enum, default_value = "convergent")]
@@ -180,6 +180,17 @@ impl JetArgs {
     }
 }
 
+impl JetArgs {
+    /// Total and ambient temperatures and the gas, for a jet given directly.
+    pub fn conditions_gas_and_temperatures(&self) -> (Option<f64>, Option<f64>, pb::Gas) {
+        (
+            self.total_temperature_k,
+            self.ambient_temperature_k,
+            pb::Gas { gamma: self.gamma, gas_constant_j_per_kg_k: self.gas_constant },
+        )
+    }
+}
+
 /// Runs `isentropic`.
 pub async fn isentropic(ch: Channel, a: IsentropicArgs) -> Result<Report, Failure> {
     let given = [
@@ -234,7 +245,11 @@ pub async fn shock(ch: Channel, a: ShockArgs) -> Result<Report, Failure> {
         .provenance(r.provenance))
 }
 
-fn regime_name(r: i32) -> String {
+/// Lower-case regime name for tables.
+pub fn regime_name(r: i32) -> String {
+    if r == pb::ExpansionRegime::Unspecified as i32 {
+        return "n/a (jet given directly)".into();
+    }
     pb::ExpansionRegime::try_from(r)
         .map(|e| e.as_str_name().trim_start_matches("EXPANSION_REGIME_").to_lowercase().replace('_', "-"))
         .unwrap_or_else(|_| format!("unknown ({r})"))

@@ -8,6 +8,7 @@
 
 mod gas;
 mod output;
+mod tones;
 
 use clap::{Parser, Subcommand};
 use std::process::ExitCode;
@@ -36,6 +37,14 @@ enum Command {
     Shock(gas::ShockArgs),
     /// Fully expanded jet state of a nozzle at an operating point.
     Jet(gas::JetArgs),
+    /// Shock-cell spacing (vortex-sheet model) and shock positions.
+    Cells(tones::CellsCmd),
+    /// Screech frequency by several models, harmonics and the feedback loop.
+    Screech(tones::ScreechCmd),
+    /// Peak frequency of shock-associated noise against observer angle.
+    ShockNoise(tones::ShockNoiseCmd),
+    /// Screech predictions over NPR, Mj or reflector distance (table, JSON or CSV).
+    Sweep(tones::SweepCmd),
     /// Server version, models with references, and limits.
     Info,
 }
@@ -69,6 +78,10 @@ async fn run(cli: Cli) -> Result<output::Report, Failure> {
         Command::Isentropic(a) => gas::isentropic(ch, a).await,
         Command::Shock(a) => gas::shock(ch, a).await,
         Command::Jet(a) => gas::jet(ch, a).await,
+        Command::Cells(a) => tones::cells(ch, a).await,
+        Command::Screech(a) => tones::screech(ch, a).await,
+        Command::ShockNoise(a) => tones::shock_noise(ch, a).await,
+        Command::Sweep(a) => tones::sweep(ch, a).await,
         Command::Info => gas::info(ch).await,
     }
 }
@@ -79,7 +92,8 @@ async fn main() -> ExitCode {
     let json = cli.json;
     match run(cli).await {
         Ok(report) => {
-            if json {
+            if report.is_quiet() {
+            } else if json {
                 println!("{}", serde_json::to_string_pretty(&report.to_json()).unwrap_or_default());
             } else {
                 print!("{}", report.to_table());

@@ -26,11 +26,125 @@ pub struct Row {
     unit: &'static str,
 }
 
+/// A table inside a report: JSON key, columns (JSON key, header with unit), rows.
+#[derive(Debug, Clone, Default)]
+pub struct Table {
+    key: &'static str,
+    title: String,
+    columns: Vec<(String, String)>,
+    rows: Vec<Vec<Option<Val>>>,
+}
+
+impl Table {
+    /// A table stored under `key` in JSON and shown with `title`.
+    pub fn new(key: &'static str, title: impl Into<String>) -> Self {
+        Self { key, title: title.into(), ..Self::default() }
+    }
+
+    /// Adds a column: JSON key and header (with unit) for people.
+    pub fn col(mut self, key: impl Into<String>, header: impl Into<String>) -> Self {
+        self.columns.push((key.into(), header.into()));
+        self
+    }
+
+    /// Adds a row; `None` cells print empty and are left out of the JSON object.
+    pub fn row(&mut self, cells: Vec<Option<Val>>) {
+        self.rows.push(cells);
+    }
+
+    fn cell_text(v: &Option<Val>) -> String {
+        match v {
+            None => "-".into(),
+            Some(Val::Num(x)) => fmt_num(*x),
+            Some(Val::Int(x)) => x.to_string(),
+            Some(Val::Text(t)) => t.clone(),
+            Some(Val::Flag(b)) => if *b { "yes" } else { "no" }.into(),
+        }
+    }
+
+    fn to_json(&self) -> Value {
+        Value::Array(
+            self.rows
+                .iter()
+                .map(|r| {
+                    let mut m = Map::new();
+                    for ((k, _), v) in self.columns.iter().zip(r) {
+                        if let Some(v) = v {
+                            m.insert(k.clone(), val_json(v));
+                        }
+                    }
+                    Value::Object(m)
+                })
+                .collect(),
+        )
+    }
+
+    fn to_text(&self) -> String {
+        let cells: Vec<Vec<String>> =
+            self.rows.iter().map(|r| r.iter().map(Self::cell_text).collect()).collect();
+        let widths: Vec<usize> = self
+            .columns
+            .iter()
+            .enumerate()
+            .map(|(i, (_, h))| cells.iter().map(|r| r[i].len()).chain([h.len()]).max().unwrap_or(0))
+            .collect();
+        let mut out = format!("{}\n", self.title);
+        let header: Vec<String> =
+            self.columns.iter().zip(&widths).map(|((_, h), w)| format!("{h:>w$}")).collect();
+        out.push_str(&format!("  {}\n", header.join("  ")));
+        for (r, raw) in cells.iter().zip(&self.rows) {
+            let line: Vec<String> = r
+                .iter()
+                .zip(&widths)
+                .zip(raw)
+                .map(|((c, w), v)| match v {
+                    Some(Val::Text(_)) => format!("{c:<w$}"),
+                    _ => format!("{c:>w$}"),
+                })
+                .collect();
+            out.push_str(&format!("  {}\n", line.join("  ")));
+        }
+        out
+    }
+
+    /// CSV with the JSON keys as header; empty cells for missing values.
+    pub fn to_csv(&self) -> String {
+        let mut out = self.columns.iter().map(|(k, _)| k.as_str()).collect::<Vec<_>>().join(",");
+        out.push('\n');
+        for r in &self.rows {
+            let line: Vec<String> = r
+                .iter()
+                .map(|v| match v {
+                    None => String::new(),
+                    Some(Val::Num(x)) => format!("{x}"),
+                    Some(Val::Int(x)) => x.to_string(),
+                    Some(Val::Text(t)) => t.replace(',', ";"),
+                    Some(Val::Flag(b)) => b.to_string(),
+                })
+                .collect();
+            out.push_str(&line.join(","));
+            out.push('\n');
+        }
+        out
+    }
+}
+
+fn val_json(v: &Val) -> Value {
+    match v {
+        Val::Num(x) => json!(x),
+        Val::Int(x) => json!(x),
+        Val::Text(t) => json!(t),
+        Val::Flag(b) => json!(b),
+    }
+}
+
 /// A result to print.
 #[derive(Debug, Clone, Default)]
 pub struct Report {
+    quiet: bool,
     title: String,
     rows: Vec<Row>,
+    tables: Vec<Table>,
     provenance: Option<pb::Provenance>,
 }
 
@@ -72,6 +186,23 @@ impl Report {
         self
     }
 
+    /// A report that prints nothing (its content went elsewhere, e.g. CSV on stdout).
+    pub fn quiet(mut self) -> Self {
+        self.quiet = true;
+        self
+    }
+
+    /// True for a report that prints nothing.
+    pub fn is_quiet(&self) -> bool {
+        self.quiet
+    }
+
+    /// Adds a table.
+    pub fn table(mut self, t: Table) -> Self {
+        self.tables.push(t);
+        self
+    }
+
     /// Attaches the provenance of the answer.
     pub fn provenance(mut self, p: Option<pb::Provenance>) -> Self {
         self.provenance = p;
@@ -82,13 +213,10 @@ impl Report {
     pub fn to_json(&self) -> Value {
         let mut m = Map::new();
         for r in &self.rows {
-            let v = match &r.value {
-                Val::Num(x) => json!(x),
-                Val::Int(x) => json!(x),
-                Val::Text(t) => json!(t),
-                Val::Flag(b) => json!(b),
-            };
-            m.insert(r.key.to_string(), v);
+            m.insert(r.key.to_string(), val_json(&r.value));
+        }
+        for t in &self.tables {
+            m.insert(t.key.to_string(), t.to_json());
         }
         if let Some(p) = &self.provenance {
             m.insert("provenance".into(), provenance_json(p));
@@ -110,6 +238,9 @@ impl Report {
             let line = format!("  {:<w$}  {:>14} {}", r.label, v, r.unit);
             out.push_str(line.trim_end());
             out.push('\n');
+        }
+        for t in &self.tables {
+            out.push_str(&t.to_text());
         }
         if let Some(p) = &self.provenance {
             if !p.defaults_applied.is_empty() {

@@ -67,6 +67,8 @@ pub struct Check {
 fn join(prefix: &str, leaf: &str) -> String {
     if prefix.is_empty() {
         leaf.to_string()
+    } else if leaf.is_empty() {
+        prefix.to_string()
     } else {
         format!("{prefix}.{leaf}")
     }

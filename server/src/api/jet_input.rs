@@ -31,11 +31,8 @@ pub struct ResolvedJet {
 /// supersonic.
 pub fn resolve_jet(input: Option<pb::JetInput>, path: &str) -> Result<ResolvedJet, ApiError> {
     let r = convert_jet(input, path)?;
-    if r.state.as_ref().is_some_and(|s| !s.supersonic) {
-        let s = r.state.as_ref().map(|s| ExpandedJet::from_state(s).err());
-        if let Some(Some(e)) = s {
-            return Err(ApiError::Precondition(e.to_string()));
-        }
+    if let Some(Err(e)) = r.state.as_ref().map(ExpandedJet::from_state) {
+        return Err(ApiError::Precondition(e.to_string()));
     }
     Ok(r)
 }

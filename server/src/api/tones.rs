@@ -435,10 +435,7 @@ impl TryFrom<pb::SweepScreechRequest> for SweepQuery {
                 None
             }
         };
-        let mut jet = match convert_jet(jet, "jet") {
-            Ok(j) => j,
-            Err(e) => return Err(e),
-        };
+        let mut jet = convert_jet(jet, "jet")?;
         if matches!(kind, Some(SweepKind::Npr | SweepKind::Mach)) && jet.spec.is_none() {
             check.other(
                 "jet.conditions",

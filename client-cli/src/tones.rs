@@ -1,0 +1,452 @@
+//! Shock-cell and tone subcommands: cells, screech, shock-noise, sweep.
+
+use crate::gas::{regime_name, JetArgs};
+use crate::output::{Report, Table, Val};
+use crate::Failure;
+use clap::{Args, ValueEnum};
+use jetloop_proto::pb::{
+    self, jet_input::Source, shock_cell_service_client::ShockCellServiceClient,
+    tone_service_client::ToneServiceClient,
+};
+use tonic::transport::Channel;
+
+/// The jet: nozzle and operating point, or the fully expanded state with --mj.
+#[derive(Debug, Args)]
+#[command(allow_negative_numbers = true)]
+pub struct JetSourceArgs {
+    #[command(flatten)]
+    conditions: JetArgs,
+    /// Give the fully expanded jet directly: its Mach number (then --dj-m, or --hj-m [--bj-m]).
+    #[arg(long, conflicts_with_all = ["npr", "total_pressure_pa"])]
+    mj: Option<f64>,
+    /// Fully expanded diameter in m (round jet, with --mj).
+    #[arg(long, requires = "mj")]
+    dj_m: Option<f64>,
+    /// Fully expanded height in m (planar jet, or rectangular with --bj-m; with --mj).
+    #[arg(long, requires = "mj")]
+    hj_m: Option<f64>,
+    /// Fully expanded width in m (rectangular jet, with --mj and --hj-m).
+    #[arg(long, requires = "hj_m")]
+    bj_m: Option<f64>,
+}
+
+impl JetSourceArgs {
+    fn input(&self) -> Result<pb::JetInput, Failure> {
+        use pb::fully_expanded_jet::Size;
+        let source = match self.mj {
+            None => Source::Conditions(self.conditions.conditions()?),
+            Some(mj) => {
+                let size = match (self.dj_m, self.hj_m, self.bj_m) {
+                    (Some(d), None, None) => Size::FullyExpandedDiameterM(d),
+                    (None, Some(h), None) => Size::PlanarHeightM(h),
+                    (None, Some(h), Some(b)) => {
+                        Size::Rectangular(pb::RectangularJetSize { height_m: h, width_m: b })
+                    }
+                    _ => return Err(Failure::Usage("with --mj give --dj-m, or --hj-m (and --bj-m)".into())),
+                };
+                let c = self.conditions.conditions_gas_and_temperatures();
+                Source::FullyExpanded(pb::FullyExpandedJet {
+                    fully_expanded_mach_number: mj,
+                    size: Some(size),
+                    total_temperature_k: c.0,
+                    ambient_temperature_k: c.1,
+                    gas: Some(c.2),
+                })
+            }
+        };
+        Ok(pb::JetInput { source: Some(source) })
+    }
+}
+
+/// Shock-cell model options.
+#[derive(Debug, Args)]
+pub struct CellArgs {
+    /// Factor on the vortex-sheet spacing (server default 1; 0.8 as Tam, Seiner & Yu 1986).
+    #[arg(long)]
+    spacing_factor: Option<f64>,
+    /// Number of waveguide modes.
+    #[arg(long)]
+    modes: Option<u32>,
+    /// Number of shock positions.
+    #[arg(long)]
+    shocks: Option<u32>,
+}
+
+impl CellArgs {
+    fn options(&self) -> pb::CellOptions {
+        pb::CellOptions { spacing_factor: self.spacing_factor, modes: self.modes, shock_count: self.shocks }
+    }
+}
+
+/// Convection speed options.
+#[derive(Debug, Args)]
+pub struct ConvectionArgs {
+    /// Uc / Uj (server default 0.7).
+    #[arg(long, conflicts_with = "convection_speed_m_per_s")]
+    convection_ratio: Option<f64>,
+    /// Uc in m/s (e.g. two-thirds of the ambient sound speed for cold jets).
+    #[arg(long)]
+    convection_speed_m_per_s: Option<f64>,
+}
+
+impl ConvectionArgs {
+    fn convection(&self) -> Option<pb::Convection> {
+        use pb::convection::Speed;
+        let speed = match (self.convection_ratio, self.convection_speed_m_per_s) {
+            (Some(r), _) => Some(Speed::ConvectionRatio(r)),
+            (None, Some(v)) => Some(Speed::ConvectionSpeedMPerS(v)),
+            _ => None,
+        };
+        speed.map(|s| pb::Convection { speed: Some(s) })
+    }
+}
+
+/// Screech model options.
+#[derive(Debug, Args)]
+#[command(allow_negative_numbers = true)]
+pub struct ScreechArgs {
+    #[command(flatten)]
+    convection: ConvectionArgs,
+    #[command(flatten)]
+    cells: CellArgs,
+    /// Loop source at the end of this many shock cells (server default 1).
+    #[arg(long, conflicts_with = "source_distance_m")]
+    source_cells: Option<f64>,
+    /// Loop source at this distance downstream of the exit, m.
+    #[arg(long)]
+    source_distance_m: Option<f64>,
+    /// Reflector this far upstream of the nozzle lip, m (adds 2 d of acoustic path).
+    #[arg(long)]
+    reflector_distance_m: Option<f64>,
+    /// Fixed delay added to the loop, s (repeatable).
+    #[arg(long = "delay-s")]
+    delays_s: Vec<f64>,
+    /// Highest loop order n_max (server default 4, at most 50).
+    #[arg(long)]
+    max_loop_order: Option<u32>,
+    /// Harmonics per model, including the fundamental (server default 3).
+    #[arg(long)]
+    harmonics: Option<u32>,
+}
+
+impl ScreechArgs {
+    fn options(&self) -> pb::ScreechOptions {
+        use pb::feedback_loop::Source as S;
+        let source = match (self.source_cells, self.source_distance_m) {
+            (Some(n), _) => Some(S::SourceCells(n)),
+            (None, Some(d)) => Some(S::SourceDistanceM(d)),
+            _ => None,
+        };
+        pb::ScreechOptions {
+            convection: self.convection.convection(),
+            cells: Some(self.cells.options()),
+            r#loop: Some(pb::FeedbackLoop {
+                source,
+                reflector_distance_m: self.reflector_distance_m,
+                segments: Vec::new(),
+                fixed_delays_s: self.delays_s.clone(),
+                max_loop_order: self.max_loop_order,
+            }),
+            harmonics: self.harmonics,
+        }
+    }
+}
+
+/// `jetloop cells`.
+#[derive(Debug, Args)]
+#[command(allow_negative_numbers = true)]
+pub struct CellsCmd {
+    #[command(flatten)]
+    jet: JetSourceArgs,
+    #[command(flatten)]
+    cells: CellArgs,
+}
+
+/// `jetloop screech`.
+#[derive(Debug, Args)]
+#[command(allow_negative_numbers = true)]
+pub struct ScreechCmd {
+    #[command(flatten)]
+    jet: JetSourceArgs,
+    #[command(flatten)]
+    screech: ScreechArgs,
+}
+
+/// `jetloop shock-noise`.
+#[derive(Debug, Args)]
+#[command(allow_negative_numbers = true)]
+pub struct ShockNoiseCmd {
+    #[command(flatten)]
+    jet: JetSourceArgs,
+    #[command(flatten)]
+    convection: ConvectionArgs,
+    #[command(flatten)]
+    cells: CellArgs,
+    /// Observer angles from the downstream jet axis in degrees, comma separated (server
+    /// default 30..180 in 10 degree steps).
+    #[arg(long, value_delimiter = ',')]
+    angles_deg: Vec<f64>,
+}
+
+/// Swept quantity.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum VaryArg {
+    /// Nozzle pressure ratio.
+    Npr,
+    /// Fully expanded Mach number.
+    Mj,
+    /// Reflector distance upstream of the lip, m.
+    Reflector,
+}
+
+/// `jetloop sweep`.
+#[derive(Debug, Args)]
+#[command(allow_negative_numbers = true)]
+pub struct SweepCmd {
+    #[command(flatten)]
+    jet: JetSourceArgs,
+    #[command(flatten)]
+    screech: ScreechArgs,
+    /// What to vary.
+    #[arg(long, value_enum)]
+    vary: VaryArg,
+    /// First value (with --to and --count).
+    #[arg(long, requires_all = ["to", "count"], conflicts_with = "values")]
+    from: Option<f64>,
+    /// Last value.
+    #[arg(long)]
+    to: Option<f64>,
+    /// Number of values (at most 10000).
+    #[arg(long)]
+    count: Option<u32>,
+    /// Explicit values, comma separated.
+    #[arg(long, value_delimiter = ',')]
+    values: Vec<f64>,
+    /// Also write the points as CSV to this file ("-" for standard output instead of the table).
+    #[arg(long)]
+    csv: Option<std::path::PathBuf>,
+}
+
+fn jet_rows(r: Report, j: &Option<pb::ExpandedJetSummary>) -> Report {
+    let j = j.clone().unwrap_or_default();
+    r.num("fully_expanded_mach_number", "Mj", j.fully_expanded_mach_number, "")
+        .num("beta", "sqrt(Mj^2-1)", j.beta, "")
+        .num("fully_expanded_velocity_m_per_s", "Uj", j.fully_expanded_velocity_m_per_s, "m/s")
+        .num("ambient_sound_speed_m_per_s", "a_ambient", j.ambient_sound_speed_m_per_s, "m/s")
+        .num("reference_length_m", "reference length (Dj or hj)", j.reference_length_m, "m")
+        .opt("fully_expanded_width_m", "bj", j.fully_expanded_width_m, "m")
+}
+
+/// Runs `cells`.
+pub async fn cells(ch: Channel, a: CellsCmd) -> Result<Report, Failure> {
+    let r = ShockCellServiceClient::new(ch)
+        .cell_spacing(pb::CellSpacingRequest { jet: Some(a.jet.input()?), options: Some(a.cells.options()) })
+        .await?
+        .into_inner();
+    let mut modes = Table::new("modes", "Waveguide modes")
+        .col("mode", "mode")
+        .col("vortex_sheet_spacing_m", "vortex sheet [m]")
+        .col("spacing_m", "spacing [m]")
+        .col("spacing_over_reference_length", "spacing / L")
+        .col("bessel_zero", "j0,n");
+    for m in &r.modes {
+        modes.row(vec![
+            Some(Val::Int(m.mode.into())),
+            Some(Val::Num(m.vortex_sheet_spacing_m)),
+            Some(Val::Num(m.spacing_m)),
+            Some(Val::Num(m.spacing_over_reference_length)),
+            m.bessel_zero.map(Val::Num),
+        ]);
+    }
+    let mut shocks = Table::new("shocks", "Shock positions (fundamental mode)")
+        .col("index", "shock")
+        .col("axial_position_m", "x [m]")
+        .col("axial_position_over_reference_length", "x / L");
+    for s in &r.shocks {
+        shocks.row(vec![
+            Some(Val::Int(s.index.into())),
+            Some(Val::Num(s.axial_position_m)),
+            Some(Val::Num(s.axial_position_over_reference_length)),
+        ]);
+    }
+    let rep = jet_rows(Report::new("Shock cells (vortex-sheet model)"), &r.jet).num(
+        "spacing_factor",
+        "spacing factor",
+        r.spacing_factor,
+        "",
+    );
+    Ok(rep.table(modes).table(shocks).provenance(r.provenance))
+}
+
+fn tone_table(key: &'static str, title: &str, tones: &[pb::Tone]) -> Table {
+    let mut t =
+        Table::new(key, title).col("order", "k").col("frequency_hz", "f [Hz]").col("strouhal_number", "St");
+    for x in tones {
+        t.row(vec![
+            Some(Val::Int(x.order.into())),
+            Some(Val::Num(x.frequency_hz)),
+            Some(Val::Num(x.strouhal_number)),
+        ]);
+    }
+    t
+}
+
+/// Runs `screech`.
+pub async fn screech(ch: Channel, a: ScreechCmd) -> Result<Report, Failure> {
+    let r = ToneServiceClient::new(ch)
+        .predict_screech(pb::PredictScreechRequest {
+            jet: Some(a.jet.input()?),
+            options: Some(a.screech.options()),
+        })
+        .await?
+        .into_inner();
+    let mut models = Table::new("predictions", "Screech predictions")
+        .col("model", "model")
+        .col("fundamental_hz", "f [Hz]")
+        .col("strouhal_number", "St = f L/Uj")
+        .col("harmonics_hz", "harmonics [Hz]");
+    for p in &r.predictions {
+        let h: Vec<String> = p.harmonics.iter().skip(1).map(|t| format!("{:.0}", t.frequency_hz)).collect();
+        models.row(vec![
+            Some(Val::Text(p.model.clone())),
+            Some(Val::Num(p.fundamental_hz)),
+            Some(Val::Num(p.strouhal_number)),
+            Some(Val::Text(h.join(" "))),
+        ]);
+    }
+    let fl = r.feedback_loop.clone().unwrap_or_default();
+    let mut paths = Table::new("loop_segments", "Feedback loop paths")
+        .col("label", "path")
+        .col("length_m", "length [m]")
+        .col("speed_m_per_s", "speed [m/s]")
+        .col("time_s", "time [s]");
+    for s in &fl.segments {
+        paths.row(vec![
+            Some(Val::Text(s.label.clone())),
+            Some(Val::Num(s.length_m)),
+            Some(Val::Num(s.speed_m_per_s)),
+            Some(Val::Num(s.time_s)),
+        ]);
+    }
+    let rep = jet_rows(Report::new("Screech prediction"), &r.jet)
+        .num("spacing_m", "shock-cell spacing", r.spacing_m, "m")
+        .num("spacing_factor", "spacing factor", r.spacing_factor, "")
+        .num("convection_speed_m_per_s", "Uc", fl.convection_speed_m_per_s, "m/s")
+        .num("convective_mach_number", "Mc = Uc/a", fl.convective_mach_number, "")
+        .num("source_distance_m", "loop source distance", fl.source_distance_m, "m")
+        .num("fixed_delay_s", "fixed delays", fl.fixed_delay_s, "s")
+        .num("loop_time_s", "loop time tau", fl.loop_time_s, "s");
+    Ok(rep
+        .table(models)
+        .table(paths)
+        .table(tone_table("loop_orders", "Loop orders n / tau", &fl.orders))
+        .provenance(r.provenance))
+}
+
+/// Runs `shock-noise`.
+pub async fn shock_noise(ch: Channel, a: ShockNoiseCmd) -> Result<Report, Failure> {
+    let r = ToneServiceClient::new(ch)
+        .predict_shock_noise(pb::PredictShockNoiseRequest {
+            jet: Some(a.jet.input()?),
+            convection: a.convection.convection(),
+            cells: Some(a.cells.options()),
+            observer_angles_deg: a.angles_deg,
+        })
+        .await?
+        .into_inner();
+    let mut t = Table::new("peaks", "Shock-associated noise peak")
+        .col("observer_angle_deg", "angle [deg]")
+        .col("mode", "mode")
+        .col("peak_frequency_hz", "f_peak [Hz]")
+        .col("strouhal_number", "St");
+    for p in &r.peaks {
+        t.row(vec![
+            Some(Val::Num(p.observer_angle_deg)),
+            Some(Val::Int(p.mode.into())),
+            p.peak_frequency_hz.map(Val::Num),
+            p.strouhal_number.map(Val::Num),
+        ]);
+    }
+    let rep = jet_rows(Report::new("Shock-associated noise"), &r.jet)
+        .num("convection_speed_m_per_s", "Uc", r.convection_speed_m_per_s, "m/s")
+        .num("convective_mach_number", "Mc = Uc/a", r.convective_mach_number, "");
+    Ok(rep.table(t).provenance(r.provenance))
+}
+
+/// Runs `sweep`; the CSV file, when asked for, is written here.
+pub async fn sweep(ch: Channel, a: SweepCmd) -> Result<Report, Failure> {
+    use pb::sweep_screech_request::Values;
+    let values = match (a.from, a.to, a.count) {
+        (Some(start), Some(stop), Some(count)) => Values::Range(pb::SweepRange { start, stop, count }),
+        _ if !a.values.is_empty() => Values::List(pb::SweepValues { values: a.values.clone() }),
+        _ => return Err(Failure::Usage("give --from, --to and --count, or --values".into())),
+    };
+    let variable = match a.vary {
+        VaryArg::Npr => pb::SweepVariable::NozzlePressureRatio,
+        VaryArg::Mj => pb::SweepVariable::FullyExpandedMachNumber,
+        VaryArg::Reflector => pb::SweepVariable::ReflectorDistanceM,
+    };
+    let r = ToneServiceClient::new(ch)
+        .sweep_screech(pb::SweepScreechRequest {
+            jet: Some(a.jet.input()?),
+            variable: variable as i32,
+            values: Some(values),
+            options: Some(a.screech.options()),
+        })
+        .await?
+        .into_inner();
+    let orders = r.points.iter().map(|p| p.loop_frequencies_hz.len()).max().unwrap_or(0);
+    let value_key = match a.vary {
+        VaryArg::Npr => ("nozzle_pressure_ratio_swept", "NPR"),
+        VaryArg::Mj => ("fully_expanded_mach_number_swept", "Mj set"),
+        VaryArg::Reflector => ("reflector_distance_m", "reflector [m]"),
+    };
+    let mut t = Table::new("points", "Sweep")
+        .col(value_key.0, value_key.1)
+        .col("nozzle_pressure_ratio", "NPR")
+        .col("fully_expanded_mach_number", "Mj")
+        .col("regime", "regime")
+        .col("fully_expanded_velocity_m_per_s", "Uj [m/s]")
+        .col("reference_length_m", "L [m]")
+        .col("spacing_m", "Ls [m]")
+        .col("powell_fundamental_hz", "Powell [Hz]")
+        .col("tam_1986_hz", "Tam 1986 [Hz]");
+    for n in 1..=orders {
+        t = t.col(format!("loop_n{n}_hz"), format!("n={n} [Hz]"));
+    }
+    for p in &r.points {
+        let mut row = vec![
+            Some(Val::Num(p.value)),
+            Some(Val::Num(p.nozzle_pressure_ratio)),
+            Some(Val::Num(p.fully_expanded_mach_number)),
+            Some(Val::Text(regime_name(p.regime))),
+            Some(Val::Num(p.fully_expanded_velocity_m_per_s)),
+            Some(Val::Num(p.reference_length_m)),
+            p.spacing_m.map(Val::Num),
+            p.powell_fundamental_hz.map(Val::Num),
+            p.tam_1986_hz.map(Val::Num),
+        ];
+        for n in 0..orders {
+            row.push(p.loop_frequencies_hz.get(n).copied().map(Val::Num));
+        }
+        t.row(row);
+    }
+    if let Some(path) = &a.csv {
+        let csv = t.to_csv();
+        if path.as_os_str() == "-" {
+            print!("{csv}");
+            return Ok(Report::new("").quiet());
+        }
+        std::fs::write(path, csv)
+            .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
+        eprintln!("wrote {} points to {}", r.points.len(), path.display());
+    }
+    Ok(Report::new(format!(
+        "Screech sweep ({} points, {:.3} ms server time)",
+        r.points.len(),
+        r.compute_time_s * 1e3
+    ))
+    .num("compute_time_s", "server compute time", r.compute_time_s, "s")
+    .table(t)
+    .provenance(r.provenance))
+}
