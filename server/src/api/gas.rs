@@ -382,7 +382,7 @@ safety decisions.";
 
 /// Builds the JetState response.
 pub fn jet_state_response(spec: &JetSpec, s: &JetState) -> pb::JetStateResponse {
-    let mut notes = s.notes.clone();
+    let mut notes = s.notes();
     notes.push(PRESSURE_CAUTION.to_string());
     let mut used = vec![models::FULLY_EXPANDED_JET, models::ISENTROPIC, models::CHOKED_MASS_FLOW];
     if spec.defaults.0.iter().any(|d| d.reason == ISA_REASON) {

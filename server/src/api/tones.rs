@@ -7,7 +7,7 @@ use super::jet_input::{
 };
 use super::provenance::{provenance, Defaults};
 use crate::physics::cells::{self, CellOptions, Cells};
-use crate::physics::jet::{jet_state, ExpandedJet};
+use crate::physics::jet::{jet_state, ExpandedJet, JetState};
 use crate::physics::models::{self, Model};
 use crate::physics::tones::{self, Convection, LoopResult, LoopSpec};
 use jetloop_proto::pb;
@@ -54,7 +54,7 @@ fn with_state_models(mut m: Vec<Model>, r: &ResolvedJet) -> Vec<Model> {
 }
 
 fn notes(r: &ResolvedJet) -> Vec<String> {
-    let mut n = r.state.as_ref().map(|s| s.notes.clone()).unwrap_or_default();
+    let mut n = r.state.as_ref().map(JetState::notes).unwrap_or_default();
     n.push(PRESSURE_CAUTION.to_string());
     n
 }

@@ -48,10 +48,18 @@ pub fn j0_zeros(count: usize) -> Vec<f64> {
         .collect()
 }
 
-/// First zero of J0, computed once.
+/// Most zeros kept in the cache.
+pub const CACHED_ZEROS: usize = 20;
+
+/// The first [`CACHED_ZEROS`] zeros of J0, computed once per process.
+pub fn j0_zeros_cached() -> &'static [f64] {
+    static ZEROS: std::sync::OnceLock<Vec<f64>> = std::sync::OnceLock::new();
+    ZEROS.get_or_init(|| j0_zeros(CACHED_ZEROS))
+}
+
+/// First zero of J0.
 pub fn j01() -> f64 {
-    static J01: std::sync::OnceLock<f64> = std::sync::OnceLock::new();
-    *J01.get_or_init(|| j0_zeros(1)[0])
+    j0_zeros_cached()[0]
 }
 
 #[cfg(test)]

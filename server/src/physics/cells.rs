@@ -19,7 +19,7 @@ use std::f64::consts::PI;
 /// Allowed spacing factor.
 pub const SPACING_FACTOR: Bounds = Bounds::open_closed(0.0, 2.0, "");
 /// Allowed number of waveguide modes.
-pub const MODES: Bounds = Bounds::closed(1.0, 20.0, "");
+pub const MODES: Bounds = Bounds::closed(1.0, bessel::CACHED_ZEROS as f64, "");
 /// Allowed number of shock positions.
 pub const SHOCKS: Bounds = Bounds::closed(1.0, 1000.0, "");
 
@@ -110,7 +110,7 @@ pub fn spacing(jet: &ExpandedJet, factor: f64) -> f64 {
 /// Shock-cell spacing and positions for a supersonic jet.
 pub fn cells(jet: &ExpandedJet, opts: &CellOptions) -> Cells {
     let round = matches!(jet.size, JetSize::Round { .. });
-    let zeros = if round { bessel::j0_zeros(opts.modes as usize) } else { Vec::new() };
+    let zeros: &[f64] = if round { &bessel::j0_zeros_cached()[..opts.modes as usize] } else { &[] };
     let modes: Vec<CellMode> = (1..=opts.modes)
         .map(|n| {
             let zero = zeros.get(n as usize - 1).copied();

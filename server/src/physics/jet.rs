@@ -322,11 +322,61 @@ pub struct JetState {
     pub mach_disk_expected: bool,
     /// T0 / T_ambient.
     pub temperature_ratio: f64,
-    /// Sentences explaining the regime and the assumptions.
-    pub notes: Vec<String>,
+    /// NPR at which the throat chokes (critical ratio for convergent nozzles).
+    pub choking_npr: f64,
+    /// NPR at which a normal shock stands in the exit plane (C-D nozzles).
+    pub exit_shock_npr: f64,
 }
 
 impl JetState {
+    /// Sentences explaining the regime, flags and assumptions (built on demand: sweeps do not
+    /// pay for the formatting).
+    pub fn notes(&self) -> Vec<String> {
+        let mut notes = Vec::new();
+        let (npr, p_amb, pe, design) =
+            (self.npr, self.ambient_pressure_pa, self.exit_pressure_pa, self.design_npr);
+        match self.regime {
+            Regime::Subsonic => notes.push(format!(
+                "Subsonic jet: NPR {npr:.4} is below the choking ratio {:.4}; there are no shock \
+                 cells and no screech.",
+                self.choking_npr
+            )),
+            Regime::ShockInNozzle => notes.push(format!(
+                "A normal shock stands inside the divergent part of the nozzle (NPR between \
+                 {:.4} and {:.4}): the exit flow is subsonic and the fully expanded values \
+                 assume an isentropic expansion that does not happen.",
+                self.choking_npr, self.exit_shock_npr
+            )),
+            Regime::OverExpanded => notes.push(format!(
+                "Over-expanded: exit pressure {pe:.0} Pa is below ambient {p_amb:.0} Pa (design \
+                 NPR {design:.4})."
+            )),
+            Regime::UnderExpanded => notes.push(format!(
+                "Under-expanded: exit pressure {pe:.0} Pa is above ambient {p_amb:.0} Pa (design \
+                 NPR {design:.4})."
+            )),
+            Regime::IdeallyExpanded => {}
+        }
+        if self.mach_disk_expected {
+            notes.push(format!(
+                "Mach disk expected: exit-to-ambient pressure ratio {:.3} exceeds about {} \
+                 (common practice; for a convergent nozzle NPR above about 3.8). Vortex-sheet \
+                 shock-cell models lose accuracy here.",
+                pe / p_amb,
+                MACH_DISK_EXIT_PRESSURE_RATIO
+            ));
+        }
+        if matches!(self.size, JetSize::Rectangular { .. }) && self.supersonic {
+            notes.push(
+                "Rectangular jet: both sides of the exit grow (or shrink) by the same length so \
+                 that the fully expanded area carries the nozzle's mass flow exactly; to first \
+                 order this is the shared-growth rule used with Tam (1988)."
+                    .into(),
+            );
+        }
+        notes
+    }
+
     /// The shape of the nozzle that produced this state.
     pub fn is_planar(&self) -> bool {
         matches!(self.size, JetSize::Planar { .. })
@@ -356,7 +406,6 @@ pub fn jet_state(gas: &Gas, nozzle: &Nozzle, op: &OperatingPoint) -> JetState {
     } else {
         design_npr / gas.normal_shock(md).map_or(1.0, |s| s.static_pressure_ratio)
     };
-    let mut notes = Vec::new();
     let regime = if npr < npr_choke && (npr / npr_choke - 1.0).abs() > IDEAL_TOLERANCE {
         Regime::Subsonic
     } else if md > 1.0 && npr < npr_exit_shock * (1.0 - IDEAL_TOLERANCE) {
@@ -381,11 +430,6 @@ pub fn jet_state(gas: &Gas, nozzle: &Nozzle, op: &OperatingPoint) -> JetState {
             let c = (2.0 / (g + 1.0)).powf((g + 1.0) / (g - 1.0));
             let a = 1.0 / (g - 1.0);
             let me = (-a + (a * a + 2.0 * a * c * k * k).sqrt()).sqrt();
-            notes.push(format!(
-                "A normal shock stands inside the divergent part of the nozzle (NPR between \
-                 {npr_choke:.4} and {npr_exit_shock:.4}): the exit flow is subsonic and the \
-                 fully expanded values assume an isentropic expansion that does not happen."
-            ));
             (me, p_amb)
         }
         _ => (md, op.npr * p_amb * gas.pressure_ratio(md)),
@@ -407,14 +451,6 @@ pub fn jet_state(gas: &Gas, nozzle: &Nozzle, op: &OperatingPoint) -> JetState {
             JetSize::Rectangular { height_m: height_m + d, width_m: width_m + d }
         }
     };
-    if matches!(nozzle.shape, Shape::Rectangular { .. }) && supersonic {
-        notes.push(
-            "Rectangular jet: both sides of the exit grow (or shrink) by the same length so \
-             that the fully expanded area carries the nozzle's mass flow exactly; to first \
-             order this is the shared-growth rule used with Tam (1988)."
-                .into(),
-        );
-    }
     let exit = nozzle.exit_measure();
     let mass_flow = if choked {
         let throat = exit / nozzle_area_ratio;
@@ -427,30 +463,6 @@ pub fn jet_state(gas: &Gas, nozzle: &Nozzle, op: &OperatingPoint) -> JetState {
     };
     let mach_disk_expected =
         regime == Regime::UnderExpanded && exit_pressure_pa / p_amb > MACH_DISK_EXIT_PRESSURE_RATIO;
-    if mach_disk_expected {
-        notes.push(format!(
-            "Mach disk expected: exit-to-ambient pressure ratio {:.3} exceeds about {} \
-             (common practice; for a convergent nozzle NPR above about 3.8). Vortex-sheet \
-             shock-cell models lose accuracy here.",
-            exit_pressure_pa / p_amb,
-            MACH_DISK_EXIT_PRESSURE_RATIO
-        ));
-    }
-    match regime {
-        Regime::Subsonic => notes.push(format!(
-            "Subsonic jet: NPR {npr:.4} is below the choking ratio {npr_choke:.4}; there are \
-             no shock cells and no screech."
-        )),
-        Regime::OverExpanded => notes.push(format!(
-            "Over-expanded: exit pressure {exit_pressure_pa:.0} Pa is below ambient \
-             {p_amb:.0} Pa (design NPR {design_npr:.4})."
-        )),
-        Regime::UnderExpanded => notes.push(format!(
-            "Under-expanded: exit pressure {exit_pressure_pa:.0} Pa is above ambient \
-             {p_amb:.0} Pa (design NPR {design_npr:.4})."
-        )),
-        Regime::IdeallyExpanded | Regime::ShockInNozzle => {}
-    }
     JetState {
         gas: *gas,
         npr,
@@ -479,7 +491,8 @@ pub fn jet_state(gas: &Gas, nozzle: &Nozzle, op: &OperatingPoint) -> JetState {
         choked,
         mach_disk_expected,
         temperature_ratio: t0 / op.ambient_temperature_k,
-        notes,
+        choking_npr: npr_choke,
+        exit_shock_npr: npr_exit_shock,
     }
 }
 

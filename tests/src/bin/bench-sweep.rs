@@ -1,0 +1,68 @@
+//! Benchmark: a screech sweep of 10,000 operating points with every model, over loopback gRPC.
+//!
+//! Run with `cargo run --release -p jetloop-tests --bin bench-sweep [-- REPEATS]`. Prints the
+//! server compute time reported in each response and the client round-trip time (median, min,
+//! max), so the figure can be compared with the 20 ms target without a timed test.
+#![forbid(unsafe_code)]
+
+use jetloop_proto::pb::{
+    self, jet_input::Source, nozzle::Kind, operating_point::Pressure, sweep_screech_request::Values,
+    tone_service_client::ToneServiceClient,
+};
+use jetloop_tests::TestServer;
+use std::time::Instant;
+
+fn stats(mut v: Vec<f64>) -> (f64, f64, f64) {
+    v.sort_by(f64::total_cmp);
+    (v[v.len() / 2], v[0], v[v.len() - 1])
+}
+
+#[tokio::main]
+async fn main() {
+    let repeats: usize = std::env::args().nth(1).and_then(|s| s.parse().ok()).unwrap_or(20);
+    let server = TestServer::start().await;
+    let mut client =
+        ToneServiceClient::new(server.channel().await).max_decoding_message_size(64 * 1024 * 1024);
+    let request = pb::SweepScreechRequest {
+        jet: Some(pb::JetInput {
+            source: Some(Source::Conditions(pb::JetConditions {
+                nozzle: Some(pb::Nozzle {
+                    kind: Some(Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: 0.0254 })),
+                }),
+                operating_point: Some(pb::OperatingPoint {
+                    pressure: Some(Pressure::NozzlePressureRatio(3.0)),
+                    ..Default::default()
+                }),
+                gas: None,
+            })),
+        }),
+        variable: pb::SweepVariable::NozzlePressureRatio as i32,
+        values: Some(Values::Range(pb::SweepRange { start: 2.0, stop: 8.0, count: 10_000 })),
+        options: Some(pb::ScreechOptions {
+            r#loop: Some(pb::FeedbackLoop { max_loop_order: Some(4), ..Default::default() }),
+            harmonics: Some(3),
+            ..Default::default()
+        }),
+    };
+    let (mut server_ms, mut rtt_ms) = (Vec::new(), Vec::new());
+    let mut bytes = 0;
+    for _ in 0..repeats + 2 {
+        let t = Instant::now();
+        let r = client.sweep_screech(request.clone()).await.expect("sweep").into_inner();
+        let rtt = t.elapsed().as_secs_f64() * 1e3;
+        assert_eq!(r.points.len(), 10_000);
+        bytes = prost::Message::encoded_len(&r);
+        server_ms.push(r.compute_time_s * 1e3);
+        rtt_ms.push(rtt);
+    }
+    // The first two calls warm up connections and caches.
+    let (s_med, s_min, s_max) = stats(server_ms.split_off(2));
+    let (r_med, r_min, r_max) = stats(rtt_ms.split_off(2));
+    println!("sweep of 10000 NPR points (Powell, Tam 1986, loop n = 1..4), {repeats} repeats");
+    println!(
+        "  server compute time: median {s_med:.3} ms, min {s_min:.3} ms, max {s_max:.3} ms (target < 20 ms)"
+    );
+    println!("  client round trip:   median {r_med:.3} ms, min {r_min:.3} ms, max {r_max:.3} ms");
+    println!("  response size: {:.2} MB", bytes as f64 / 1e6);
+    server.stop().await;
+}
