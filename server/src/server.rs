@@ -1,10 +1,13 @@
 //! Builds the tonic server: jetloop services, health, reflection and the limits around them.
 
 use crate::config::Limits;
-use crate::service::{gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells, tones::Tones};
+use crate::service::{
+    gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells, spectrum::Spectrum, tones::Tones,
+};
 use jetloop_proto::pb::{
     gas_dynamics_service_server::GasDynamicsServiceServer, info_service_server::InfoServiceServer,
-    shock_cell_service_server::ShockCellServiceServer, tone_service_server::ToneServiceServer,
+    shock_cell_service_server::ShockCellServiceServer, spectrum_service_server::SpectrumServiceServer,
+    tone_service_server::ToneServiceServer,
 };
 use std::future::Future;
 use tokio::net::TcpListener;
@@ -37,6 +40,7 @@ pub async fn serve(
     health_reporter.set_serving::<InfoServiceServer<Info>>().await;
     health_reporter.set_serving::<ShockCellServiceServer<ShockCells>>().await;
     health_reporter.set_serving::<ToneServiceServer<Tones>>().await;
+    health_reporter.set_serving::<SpectrumServiceServer<Spectrum>>().await;
 
     let reflection_v1 = tonic_reflection::server::Builder::configure()
         .register_encoded_file_descriptor_set(jetloop_proto::FILE_DESCRIPTOR_SET)
@@ -53,6 +57,9 @@ pub async fn serve(
     let info = InfoServiceServer::new(Info::new(limits)).max_decoding_message_size(max);
     let cells = ShockCellServiceServer::new(ShockCells).max_decoding_message_size(max);
     let tones = ToneServiceServer::new(Tones).max_decoding_message_size(max);
+    // Spectra with the PSD attached can be large: allow answers up to the request limit too.
+    let spectrum =
+        SpectrumServiceServer::new(Spectrum).max_decoding_message_size(max).max_encoding_message_size(max);
 
     Server::builder()
         // A span per call, so logs carry the method path.
@@ -68,6 +75,7 @@ pub async fn serve(
         .add_service(info)
         .add_service(cells)
         .add_service(tones)
+        .add_service(spectrum)
         .serve_with_incoming_shutdown(TcpListenerStream::new(listener), shutdown)
         .await?;
     Ok(())

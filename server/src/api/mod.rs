@@ -7,6 +7,7 @@ pub mod error;
 pub mod gas;
 pub mod jet_input;
 pub mod provenance;
+pub mod spectrum;
 pub mod tones;
 
 pub use error::{ApiError, Check, FieldViolation};

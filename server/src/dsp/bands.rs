@@ -152,7 +152,17 @@ mod tests {
     fn a_weighting_matches_iec_61672_table() {
         // IEC 61672-1:2013, Table 3 (values to 0.1 dB at the exact base-ten mid-band
         // frequencies of the nominal 50 Hz ... 20 kHz bands).
-        for (x, a) in [(-13, -30.2), (-10, -19.1), (-3, -3.2), (0, 0.0), (3, 1.2), (6, 1.0), (9, -1.1), (10, -2.5), (13, -9.3)] {
+        for (x, a) in [
+            (-13, -30.2),
+            (-10, -19.1),
+            (-3, -3.2),
+            (0, 0.0),
+            (3, 1.2),
+            (6, 1.0),
+            (9, -1.1),
+            (10, -2.5),
+            (13, -9.3),
+        ] {
             let f = exact_centre(x);
             assert!((a_weighting_db(f) - a).abs() < 0.05 + 1e-9, "{f} Hz: {}", a_weighting_db(f));
         }
@@ -182,8 +192,12 @@ mod tests {
         let fs = 2.0 * top;
         let x = noise(1 << 20, 21, 1.5);
         let ms: f64 = x.iter().map(|v| v * v).sum::<f64>() / x.len() as f64;
-        let psd = welch(&x, fs, WelchConfig { window: Window::Hann, nperseg: 4096, noverlap: 2048, detrend: Detrend::Mean })
-            .unwrap();
+        let psd = welch(
+            &x,
+            fs,
+            WelchConfig { window: Window::Hann, nperseg: 4096, noverlap: 2048, detrend: Detrend::Mean },
+        )
+        .unwrap();
         let b = band_levels(&psd, 100_000.0);
         assert_eq!(b.bands.last().unwrap().nominal_hz, 20_000.0);
         assert!((b.band_span_db - spl_db(ms)).abs() < 0.05, "{} vs {}", b.band_span_db, spl_db(ms));

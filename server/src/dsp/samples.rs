@@ -139,7 +139,12 @@ pub fn decode_bytes(
 ///
 /// # Errors
 /// [`DecodeError`] for a ragged count or a non-finite sample.
-pub fn decode_values(values: &[f64], layout: Layout, channels: usize, scale_pa: f64) -> Result<Channels, DecodeError> {
+pub fn decode_values(
+    values: &[f64],
+    layout: Layout,
+    channels: usize,
+    scale_pa: f64,
+) -> Result<Channels, DecodeError> {
     if channels == 0 || values.len() % channels != 0 {
         return Err(DecodeError::Ragged { bytes: values.len() * 8, channels, width: 8 });
     }
@@ -148,7 +153,9 @@ pub fn decode_values(values: &[f64], layout: Layout, channels: usize, scale_pa: 
         Layout::Interleaved => (0..channels)
             .map(|c| values.iter().skip(c).step_by(channels).map(|v| v * scale_pa).collect())
             .collect(),
-        Layout::Planar => values.chunks_exact(n.max(1)).map(|b| b.iter().map(|v| v * scale_pa).collect()).collect(),
+        Layout::Planar => {
+            values.chunks_exact(n.max(1)).map(|b| b.iter().map(|v| v * scale_pa).collect()).collect()
+        }
     };
     check_finite(&data)?;
     Ok(Channels { data })

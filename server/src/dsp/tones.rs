@@ -345,7 +345,10 @@ mod tests {
         let orders: Vec<u32> = fam.members.iter().map(|m| m.1).collect();
         assert_eq!(orders, vec![1, 2, 3]);
         assert!((set.families[1].fundamental_hz - f1).abs() < 0.01 * psd.resolution_hz());
-        assert!(set.combinations.iter().any(|c| !c.sum && (set.tones[c.tone].frequency_hz - (f1 - f0)).abs() < 1.0));
+        assert!(set
+            .combinations
+            .iter()
+            .any(|c| !c.sum && (set.tones[c.tone].frequency_hz - (f1 - f0)).abs() < 1.0));
         // Level of the fundamental: 400^2/2 Pa^2 -> 10 log10(80000 / 4e-10) = 143.01 dB
         // (closed form), which crosses the caution level.
         let t0 = &set.tones[fam.members[0].0];

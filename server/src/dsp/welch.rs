@@ -268,7 +268,10 @@ pub(crate) mod tests {
     #[test]
     fn errors() {
         let x = vec![0.0; 100];
-        assert_eq!(welch(&x, 1.0, cfg(128)).unwrap_err(), WelchError::TooShort { nperseg: 128, samples: 100 });
+        assert_eq!(
+            welch(&x, 1.0, cfg(128)).unwrap_err(),
+            WelchError::TooShort { nperseg: 128, samples: 100 }
+        );
         assert_eq!(welch(&x, 1.0, cfg(8)).unwrap_err(), WelchError::SegmentLength(8));
         let bad = WelchConfig { noverlap: 32, ..cfg(32) };
         assert!(matches!(welch(&x, 1.0, bad), Err(WelchError::Overlap { .. })));

@@ -50,7 +50,15 @@ impl Window {
                 let x = 2.0 * PI * i as f64 / n as f64;
                 a.iter()
                     .enumerate()
-                    .map(|(k, ak)| if k % 2 == 0 { ak * (k as f64 * x).cos() } else { -ak * (k as f64 * x).cos() })
+                    .map(
+                        |(k, ak)| {
+                            if k % 2 == 0 {
+                                ak * (k as f64 * x).cos()
+                            } else {
+                                -ak * (k as f64 * x).cos()
+                            }
+                        },
+                    )
                     .sum()
             })
             .collect()
@@ -96,8 +104,7 @@ mod tests {
         // (physics notes), which is why responses say which one was used.
         let s = WindowSums::of(&Window::Hann.values(1024));
         assert!((s.enbw_bins() - 1.5).abs() < 1e-12);
-        let sym: Vec<f64> =
-            (0..1000).map(|i| 0.5 - 0.5 * (2.0 * PI * f64::from(i) / 999.0).cos()).collect();
+        let sym: Vec<f64> = (0..1000).map(|i| 0.5 - 0.5 * (2.0 * PI * f64::from(i) / 999.0).cos()).collect();
         assert!((WindowSums::of(&sym).enbw_bins() - 1.5015).abs() < 5e-5);
         assert!((s.coherent_gain() - 0.5).abs() < 1e-12);
         // Hamming ENBW 1.36 bins, Blackman-Harris 4-term 2.00 bins (Harris 1978, Table 1).

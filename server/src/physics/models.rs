@@ -69,6 +69,26 @@ pub const SHOCK_NOISE_PEAK: Model = Model {
     reference: "Harper-Bourne & Fisher (1973), AGARD CP-131; Tam & Tanna (1982), J. Sound Vib. 81",
 };
 
+/// Welch PSD.
+pub const WELCH_PSD: Model = Model {
+    name: "Welch averaged-periodogram PSD, one-sided, periodic window",
+    reference: "Welch (1967), IEEE Trans. Audio Electroacoust. 15; windows: Harris (1978), Proc. IEEE 66",
+};
+/// Sound pressure level.
+pub const SPL: Model =
+    Model { name: "sound pressure level re 20 uPa", reference: "ISO 1683:2015; ANSI S1.1" };
+/// Tone extraction.
+pub const TONE_EXTRACTION: Model = Model {
+    name: "tones above a running-median floor; Grandke interpolation (Hann) or log-parabolic",
+    reference: "Grandke (1983), IEEE Trans. Instrum. Meas. 32",
+};
+/// One-third-octave bands.
+pub const THIRD_OCTAVE: Model =
+    Model { name: "one-third-octave bands, base ten", reference: "IEC 61260-1:2014" };
+/// A-weighting.
+pub const A_WEIGHTING: Model =
+    Model { name: "A-frequency-weighting", reference: "IEC 61672-1:2013, Annex E" };
+
 /// Every model the server implements.
 pub const ALL: &[Model] = &[
     ISENTROPIC,
@@ -83,4 +103,9 @@ pub const ALL: &[Model] = &[
     POWELL_LOOP,
     TAM_1986,
     SHOCK_NOISE_PEAK,
+    WELCH_PSD,
+    SPL,
+    TONE_EXTRACTION,
+    THIRD_OCTAVE,
+    A_WEIGHTING,
 ];

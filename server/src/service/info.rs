@@ -13,6 +13,7 @@ pub const SERVICES: &[&str] = &[
     "jetloop.v1.InfoService",
     "jetloop.v1.ShockCellService",
     "jetloop.v1.ToneService",
+    "jetloop.v1.SpectrumService",
     "grpc.health.v1.Health",
     "grpc.reflection.v1.ServerReflection",
     "grpc.reflection.v1alpha.ServerReflection",
