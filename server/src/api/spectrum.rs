@@ -218,7 +218,7 @@ fn welch_config(
     let nperseg = match segment {
         Some(Segment::SegmentLength(n)) => {
             let n = n as usize;
-            if n < MIN_SEGMENT || n > MAX_SEGMENT || n > samples {
+            if !(MIN_SEGMENT..=MAX_SEGMENT).contains(&n) || n > samples {
                 check.other(
                     "welch.segment_length",
                     format!("welch.segment_length = {n} is outside the allowed range {span}"),

@@ -173,7 +173,7 @@ mod tests {
     fn band_centres_follow_iec_61260() {
         // IEC 61260-1:2014 eq. (1), base ten: fm = 1000 * 10^(x/10); nominal labels Annex E.
         assert!((exact_centre(0) - 1000.0).abs() < 1e-12);
-        assert!((exact_centre(1) - 1258.925_411_794_167).abs() < 1e-9);
+        assert!((exact_centre(1) - 1_258.925_411_794_167).abs() < 1e-9);
         assert!((exact_centre(-10) - 100.0).abs() < 1e-12);
         let labels: Vec<f64> = (-17..=-10).map(nominal_centre).collect();
         assert_eq!(labels, vec![20.0, 25.0, 31.5, 40.0, 50.0, 63.0, 80.0, 100.0]);
