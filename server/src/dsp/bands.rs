@@ -68,8 +68,8 @@ pub struct Band {
 /// Band levels and overall levels.
 #[derive(Debug, Clone, PartialEq)]
 pub struct BandLevels {
-    /// Bands from 20 Hz to the highest one whose upper edge is below both Nyquist and
-    /// `max_frequency_hz`.
+    /// Bands from 20 Hz to the highest one whose centre is at most the requested maximum and
+    /// whose upper edge is at most Nyquist.
     pub bands: Vec<Band>,
     /// Overall level of the whole PSD (DC bin excluded), dB.
     pub overall_db: f64,
@@ -98,13 +98,13 @@ fn integrate(psd: &Psd, lo: f64, hi: f64) -> f64 {
         .sum()
 }
 
-/// Band levels up to `max_frequency_hz` (at most 100 kHz).
-pub fn band_levels(psd: &Psd, max_frequency_hz: f64) -> BandLevels {
+/// Band levels for bands whose exact centre is at most `max_centre_hz` (at most 100 kHz) and
+/// whose upper edge is at most the Nyquist frequency.
+pub fn band_levels(psd: &Psd, max_centre_hz: f64) -> BandLevels {
     let nyquist = psd.fs / 2.0;
     let df = psd.resolution_hz();
-    let top = max_frequency_hz.min(nyquist);
     let bands: Vec<Band> = (LOWEST_BAND..=HIGHEST_BAND)
-        .filter(|&x| edges(x).1 <= top * (1.0 + 1e-12))
+        .filter(|&x| exact_centre(x) <= max_centre_hz * (1.0 + 1e-9) && edges(x).1 <= nyquist * (1.0 + 1e-12))
         .map(|x| {
             let (lo, hi) = edges(x);
             let ms = integrate(psd, lo, hi);

@@ -1,0 +1,141 @@
+//! End to end over a real socket: SpectrumService tones and bands, bad input with its field,
+//! and the size limits.
+
+use jetloop_proto::pb::{self, samples::Data, spectrum_service_client::SpectrumServiceClient, welch_options::Segment};
+use jetloop_server::config::Limits;
+use jetloop_tests::TestServer;
+use std::f64::consts::PI;
+use tonic::Code;
+use tonic_types::StatusExt;
+
+fn tone(n: usize, fs: f64, f: f64, amp: f64) -> Vec<f64> {
+    (0..n).map(|i| amp * (2.0 * PI * f * i as f64 / fs).sin()).collect()
+}
+
+fn samples(values: Vec<f64>, fs: f64) -> pb::Samples {
+    pb::Samples { sample_rate_hz: fs, data: Some(Data::Values(pb::SampleValues { values })), ..Default::default() }
+}
+
+fn request(s: pb::Samples) -> pb::ExtractTonesRequest {
+    pb::ExtractTonesRequest { samples: Some(s), ..Default::default() }
+}
+
+fn assert_field(status: &tonic::Status, code: Code, field: &str) {
+    assert_eq!(status.code(), code, "{status:?}");
+    let details = status.get_error_details();
+    let bad = details.bad_request().expect("BadRequest details");
+    let fields: Vec<_> = bad.field_violations.iter().map(|v| v.field.as_str()).collect();
+    assert!(fields.contains(&field), "expected {field} in {fields:?}: {}", status.message());
+}
+
+#[tokio::test]
+async fn tones_levels_bands_and_caution() {
+    let server = TestServer::start().await;
+    let mut c = SpectrumServiceClient::new(server.channel().await);
+    // 1 Pa rms tone reads 93.98 dB (closed form; 94 dB calibrator practice, IEC 60942).
+    let fs = 48_000.0;
+    let mut req = request(samples(tone(1 << 17, fs, 1000.0, 2f64.sqrt()), fs));
+    req.predicted_screech_hz = Some(1010.0);
+    req.include_band_levels = true;
+    let r = c.extract_tones(req).await.unwrap().into_inner();
+    let ch = &r.channels[0];
+    let t = ch.tones.iter().max_by(|a, b| a.level_db.total_cmp(&b.level_db)).unwrap();
+    assert!((t.frequency_hz - 1000.0).abs() < 0.01 * ch.analysis.as_ref().unwrap().frequency_resolution_hz);
+    assert!((t.level_db - 93.979).abs() < 0.05, "{}", t.level_db);
+    let m = ch.predicted_match.as_ref().unwrap();
+    assert!(m.matched && (m.difference_hz.unwrap() + 10.0).abs() < 0.1);
+    let bands = ch.bands.as_ref().unwrap();
+    let b1k = bands.bands.iter().find(|b| b.nominal_hz == 1000.0).unwrap();
+    assert!((b1k.level_db - 93.979).abs() < 0.05);
+    assert!(ch.cautions.is_empty());
+    // A 150 dB tone (894 Pa rms) carries the caution.
+    let r = c.extract_tones(request(samples(tone(1 << 16, fs, 2000.0, 894.0 * 2f64.sqrt()), fs))).await.unwrap();
+    assert!(r.into_inner().channels[0].cautions[0].contains("140 dB"));
+    let b = c
+        .band_levels(pb::BandLevelsRequest {
+            samples: Some(samples(tone(1 << 16, fs, 1000.0, 1.0), fs)),
+            welch: None,
+            max_band_frequency_hz: Some(10_000.0),
+        })
+        .await
+        .unwrap()
+        .into_inner();
+    assert_eq!(b.channels[0].bands.as_ref().unwrap().bands.last().unwrap().nominal_hz, 10_000.0);
+    server.stop().await;
+}
+
+#[tokio::test]
+async fn bad_samples_name_the_field() {
+    let server = TestServer::start().await;
+    let mut c = SpectrumServiceClient::new(server.channel().await);
+    let fs = 10_000.0;
+    let ok = || tone(4096, fs, 500.0, 1.0);
+    let raw = |data: Vec<u8>, format: pb::SampleFormat, channels: u32| pb::Samples {
+        sample_rate_hz: fs,
+        channel_count: channels,
+        data: Some(Data::Raw(pb::RawSamples { data, format: format as i32 })),
+        ..Default::default()
+    };
+    let mut nan = ok();
+    nan[100] = f64::NAN;
+    let seg = |n: u32| pb::WelchOptions { segment: Some(Segment::SegmentLength(n)), ..Default::default() };
+    let cases: Vec<(pb::ExtractTonesRequest, &str)> = vec![
+        (request(samples(ok(), 0.0)), "samples.sample_rate_hz"),
+        (request(samples(ok(), -48_000.0)), "samples.sample_rate_hz"),
+        (request(samples(Vec::new(), fs)), "samples.values.values"),
+        (request(samples(nan, fs)), "samples.values.values"),
+        (request(samples(vec![0.5; 10], fs)), "samples"),
+        (pb::ExtractTonesRequest { welch: Some(seg(8192)), ..request(samples(ok(), fs)) }, "welch.segment_length"),
+        (request(raw(vec![0; 64], pb::SampleFormat::Unspecified, 1)), "samples.raw.format"),
+        (request(raw(vec![0; 12], pb::SampleFormat::I16Le, 4)), "samples.raw.data"),
+        (request(pb::Samples { channel_count: 3, ..samples(vec![0.0; 4096], fs) }), "samples.values.values"),
+        (request(pb::Samples { data: None, ..samples(ok(), fs) }), "samples.data"),
+        (
+            pb::ExtractTonesRequest {
+                welch: Some(pb::WelchOptions { overlap_fraction: Some(0.99), ..Default::default() }),
+                ..request(samples(ok(), fs))
+            },
+            "welch.overlap_fraction",
+        ),
+        (
+            pb::ExtractTonesRequest {
+                tones: Some(pb::ToneOptions { threshold_db: Some(f64::NAN), ..Default::default() }),
+                ..request(samples(ok(), fs))
+            },
+            "tones.threshold_db",
+        ),
+    ];
+    for (req, field) in cases {
+        let e = c.extract_tones(req).await.unwrap_err();
+        assert_field(&e, Code::InvalidArgument, field);
+    }
+    let e = c.extract_tones(pb::ExtractTonesRequest::default()).await.unwrap_err();
+    assert_field(&e, Code::InvalidArgument, "samples");
+    server.stop().await;
+}
+
+#[tokio::test]
+async fn sizes_over_the_limits_are_refused() {
+    // Our own sample limit (2^25 samples) with a transport limit large enough to carry them.
+    let limits = Limits { max_request_bytes: 80 * 1024 * 1024, ..Limits::default() };
+    let server = TestServer::start_with(limits).await;
+    let mut c = SpectrumServiceClient::new(server.channel().await).max_encoding_message_size(100 * 1024 * 1024);
+    let n = (1usize << 25) + 16;
+    let req = request(pb::Samples {
+        sample_rate_hz: 48_000.0,
+        data: Some(Data::Raw(pb::RawSamples { data: vec![0; 2 * n], format: pb::SampleFormat::I16Le as i32 })),
+        ..Default::default()
+    });
+    let e = c.extract_tones(req).await.unwrap_err();
+    assert_field(&e, Code::ResourceExhausted, "samples.raw.data");
+    assert!(e.message().contains("33554432"), "{}", e.message());
+    server.stop().await;
+
+    // The transport's message limit, below our sample limit.
+    let limits = Limits { max_request_bytes: 1024 * 1024, ..Limits::default() };
+    let server = TestServer::start_with(limits).await;
+    let mut c = SpectrumServiceClient::new(server.channel().await);
+    let e = c.extract_tones(request(samples(vec![0.0; 300_000], 48_000.0))).await.unwrap_err();
+    assert!(matches!(e.code(), Code::ResourceExhausted | Code::OutOfRange), "{e:?}");
+    server.stop().await;
+}
