@@ -8,6 +8,8 @@
 
 mod gas;
 mod output;
+mod readers;
+mod spectrum;
 mod tones;
 
 use clap::{Parser, Subcommand};
@@ -45,6 +47,12 @@ enum Command {
     ShockNoise(tones::ShockNoiseCmd),
     /// Screech predictions over NPR, Mj or reflector distance (table, JSON or CSV).
     Sweep(tones::SweepCmd),
+    /// Tones, levels, harmonics (and bands) of a recording: WAV, CSV or raw.
+    Tones(spectrum::TonesCmd),
+    /// One-third-octave band levels, overall and A-weighted levels of a recording.
+    Bands(spectrum::BandsCmd),
+    /// Write a demo WAV of an imagined jet rig (screech, harmonics, shock-noise hump, noise).
+    Synth(spectrum::SynthCmd),
     /// Server version, models with references, and limits.
     Info,
 }
@@ -73,6 +81,9 @@ async fn channel(url: &str) -> Result<tonic::transport::Channel, Failure> {
 }
 
 async fn run(cli: Cli) -> Result<output::Report, Failure> {
+    if let Command::Synth(a) = cli.command {
+        return spectrum::synth(a);
+    }
     let ch = channel(&cli.server).await?;
     match cli.command {
         Command::Isentropic(a) => gas::isentropic(ch, a).await,
@@ -82,6 +93,9 @@ async fn run(cli: Cli) -> Result<output::Report, Failure> {
         Command::Screech(a) => tones::screech(ch, a).await,
         Command::ShockNoise(a) => tones::shock_noise(ch, a).await,
         Command::Sweep(a) => tones::sweep(ch, a).await,
+        Command::Tones(a) => spectrum::tones(ch, a).await,
+        Command::Bands(a) => spectrum::bands(ch, a).await,
+        Command::Synth(_) => Err(Failure::Usage("synth runs without a server".into())),
         Command::Info => gas::info(ch).await,
     }
 }

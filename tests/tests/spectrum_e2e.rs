@@ -1,7 +1,9 @@
 //! End to end over a real socket: SpectrumService tones and bands, bad input with its field,
 //! and the size limits.
 
-use jetloop_proto::pb::{self, samples::Data, spectrum_service_client::SpectrumServiceClient, welch_options::Segment};
+use jetloop_proto::pb::{
+    self, samples::Data, spectrum_service_client::SpectrumServiceClient, welch_options::Segment,
+};
 use jetloop_server::config::Limits;
 use jetloop_tests::TestServer;
 use std::f64::consts::PI;
@@ -13,7 +15,11 @@ fn tone(n: usize, fs: f64, f: f64, amp: f64) -> Vec<f64> {
 }
 
 fn samples(values: Vec<f64>, fs: f64) -> pb::Samples {
-    pb::Samples { sample_rate_hz: fs, data: Some(Data::Values(pb::SampleValues { values })), ..Default::default() }
+    pb::Samples {
+        sample_rate_hz: fs,
+        data: Some(Data::Values(pb::SampleValues { values })),
+        ..Default::default()
+    }
 }
 
 fn request(s: pb::Samples) -> pb::ExtractTonesRequest {
@@ -49,7 +55,8 @@ async fn tones_levels_bands_and_caution() {
     assert!((b1k.level_db - 93.979).abs() < 0.05);
     assert!(ch.cautions.is_empty());
     // A 150 dB tone (894 Pa rms) carries the caution.
-    let r = c.extract_tones(request(samples(tone(1 << 16, fs, 2000.0, 894.0 * 2f64.sqrt()), fs))).await.unwrap();
+    let r =
+        c.extract_tones(request(samples(tone(1 << 16, fs, 2000.0, 894.0 * 2f64.sqrt()), fs))).await.unwrap();
     assert!(r.into_inner().channels[0].cautions[0].contains("140 dB"));
     let b = c
         .band_levels(pb::BandLevelsRequest {
@@ -85,7 +92,10 @@ async fn bad_samples_name_the_field() {
         (request(samples(Vec::new(), fs)), "samples.values.values"),
         (request(samples(nan, fs)), "samples.values.values"),
         (request(samples(vec![0.5; 10], fs)), "samples"),
-        (pb::ExtractTonesRequest { welch: Some(seg(8192)), ..request(samples(ok(), fs)) }, "welch.segment_length"),
+        (
+            pb::ExtractTonesRequest { welch: Some(seg(8192)), ..request(samples(ok(), fs)) },
+            "welch.segment_length",
+        ),
         (request(raw(vec![0; 64], pb::SampleFormat::Unspecified, 1)), "samples.raw.format"),
         (request(raw(vec![0; 12], pb::SampleFormat::I16Le, 4)), "samples.raw.data"),
         (request(pb::Samples { channel_count: 3, ..samples(vec![0.0; 4096], fs) }), "samples.values.values"),
@@ -119,11 +129,15 @@ async fn sizes_over_the_limits_are_refused() {
     // Our own sample limit (2^25 samples) with a transport limit large enough to carry them.
     let limits = Limits { max_request_bytes: 80 * 1024 * 1024, ..Limits::default() };
     let server = TestServer::start_with(limits).await;
-    let mut c = SpectrumServiceClient::new(server.channel().await).max_encoding_message_size(100 * 1024 * 1024);
+    let mut c =
+        SpectrumServiceClient::new(server.channel().await).max_encoding_message_size(100 * 1024 * 1024);
     let n = (1usize << 25) + 16;
     let req = request(pb::Samples {
         sample_rate_hz: 48_000.0,
-        data: Some(Data::Raw(pb::RawSamples { data: vec![0; 2 * n], format: pb::SampleFormat::I16Le as i32 })),
+        data: Some(Data::Raw(pb::RawSamples {
+            data: vec![0; 2 * n],
+            format: pb::SampleFormat::I16Le as i32,
+        })),
         ..Default::default()
     });
     let e = c.extract_tones(req).await.unwrap_err();

@@ -1,0 +1,263 @@
+//! Readers for microphone recordings: WAV (hound), CSV (one column per channel) and raw
+//! little-endian binary. Each produces a `Samples` message ready to send.
+
+use crate::Failure;
+use clap::{Args, ValueEnum};
+use indicatif::{ProgressBar, ProgressStyle};
+use jetloop_proto::pb;
+use std::io::Read;
+use std::path::{Path, PathBuf};
+
+/// File kinds.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum InputKind {
+    /// RIFF WAVE (16/24/32-bit integer or 32-bit float).
+    Wav,
+    /// Text, one column per channel, optional header row of names.
+    Csv,
+    /// Raw little-endian samples (give --raw-format, --channels, --layout).
+    Raw,
+}
+
+/// Raw sample encodings.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum RawFormat {
+    /// 32-bit float.
+    F32,
+    /// 64-bit float.
+    F64,
+    /// 16-bit signed integer.
+    I16,
+    /// 32-bit signed integer.
+    I32,
+}
+
+/// Channel arrangement of raw files.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum LayoutArg {
+    /// Frame by frame.
+    Interleaved,
+    /// Channel by channel.
+    Planar,
+}
+
+/// Where the samples come from and how to turn them into pascals.
+#[derive(Debug, Args)]
+pub struct InputArgs {
+    /// Recording to analyse (.wav, .csv, or raw binary).
+    pub file: PathBuf,
+    /// File kind (default: from the extension; anything else is raw).
+    #[arg(long, value_enum)]
+    pub input_kind: Option<InputKind>,
+    /// Sample rate in Hz (required for CSV and raw; WAV files carry their own).
+    #[arg(long)]
+    pub sample_rate_hz: Option<f64>,
+    /// Raw sample encoding.
+    #[arg(long, value_enum, default_value = "f32")]
+    pub raw_format: RawFormat,
+    /// Channels in a raw file.
+    #[arg(long, default_value_t = 1)]
+    pub channels: u32,
+    /// Channel layout of a raw file.
+    #[arg(long, value_enum, default_value = "interleaved")]
+    pub layout: LayoutArg,
+    /// Pascals per sample unit (WAV: per full-scale-normalized unit or per count).
+    #[arg(long, conflicts_with = "sensitivity_v_per_pa")]
+    pub pa_per_unit: Option<f64>,
+    /// Microphone sensitivity in V/Pa (with --volts-per-unit).
+    #[arg(long, requires = "volts_per_unit")]
+    pub sensitivity_v_per_pa: Option<f64>,
+    /// DAQ volts per sample unit (with --sensitivity-v-per-pa).
+    #[arg(long, requires = "sensitivity_v_per_pa")]
+    pub volts_per_unit: Option<f64>,
+}
+
+impl InputArgs {
+    fn kind(&self) -> InputKind {
+        self.input_kind.unwrap_or_else(|| {
+            match self.file.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase).as_deref() {
+                Some("wav") => InputKind::Wav,
+                Some("csv") | Some("txt") => InputKind::Csv,
+                _ => InputKind::Raw,
+            }
+        })
+    }
+
+    fn calibration(&self) -> Option<pb::Calibration> {
+        use pb::calibration::Scale;
+        let scale = match (self.pa_per_unit, self.sensitivity_v_per_pa, self.volts_per_unit) {
+            (Some(k), _, _) => Some(Scale::PascalsPerUnit(k)),
+            (None, Some(s), Some(v)) => {
+                Some(Scale::Microphone(pb::MicrophoneChain { sensitivity_v_per_pa: s, volts_per_unit: v }))
+            }
+            _ => None,
+        };
+        scale.map(|s| pb::Calibration { scale: Some(s) })
+    }
+
+    /// Reads the file into a `Samples` message, with a progress bar on a terminal.
+    pub fn read(&self) -> Result<pb::Samples, Failure> {
+        let bytes = read_with_progress(&self.file)?;
+        match self.kind() {
+            InputKind::Wav => self.wav(&bytes),
+            InputKind::Csv => self.csv(&bytes),
+            InputKind::Raw => self.raw(bytes),
+        }
+    }
+
+    fn rate(&self, what: &str) -> Result<f64, Failure> {
+        self.sample_rate_hz.ok_or_else(|| Failure::Usage(format!("{what} files need --sample-rate-hz")))
+    }
+
+    fn wav(&self, bytes: &[u8]) -> Result<pb::Samples, Failure> {
+        let bad = |e: hound::Error| {
+            Failure::Usage(format!("{}: not a readable WAV file: {e}", self.file.display()))
+        };
+        let mut r = hound::WavReader::new(std::io::Cursor::new(bytes)).map_err(bad)?;
+        let spec = r.spec();
+        if self.calibration().is_none() {
+            return Err(Failure::Usage(format!(
+                "{}: WAV files carry no calibration; give --pa-per-unit, or --sensitivity-v-per-pa and \
+                 --volts-per-unit",
+                self.file.display()
+            )));
+        }
+        let (data, format) = match (spec.sample_format, spec.bits_per_sample) {
+            (hound::SampleFormat::Float, 32) => {
+                let mut out = Vec::with_capacity(r.len() as usize * 4);
+                for s in r.samples::<f32>() {
+                    out.extend_from_slice(&s.map_err(bad)?.to_le_bytes());
+                }
+                (out, pb::SampleFormat::F32Le)
+            }
+            (hound::SampleFormat::Int, 16) => {
+                let mut out = Vec::with_capacity(r.len() as usize * 2);
+                for s in r.samples::<i16>() {
+                    out.extend_from_slice(&s.map_err(bad)?.to_le_bytes());
+                }
+                (out, pb::SampleFormat::I16Le)
+            }
+            (hound::SampleFormat::Int, 24 | 32) => {
+                let mut out = Vec::with_capacity(r.len() as usize * 4);
+                for s in r.samples::<i32>() {
+                    out.extend_from_slice(&s.map_err(bad)?.to_le_bytes());
+                }
+                (out, pb::SampleFormat::I32Le)
+            }
+            (f, b) => return Err(Failure::Usage(format!(
+                "{}: {b}-bit {f:?} WAV samples are not supported (use 16/24/32-bit integer or 32-bit float)",
+                self.file.display()
+            ))),
+        };
+        Ok(pb::Samples {
+            sample_rate_hz: f64::from(spec.sample_rate),
+            channel_count: u32::from(spec.channels),
+            layout: pb::ChannelLayout::Interleaved as i32,
+            data: Some(pb::samples::Data::Raw(pb::RawSamples { data, format: format as i32 })),
+            calibration: self.calibration(),
+            channel_names: Vec::new(),
+        })
+    }
+
+    fn csv(&self, bytes: &[u8]) -> Result<pb::Samples, Failure> {
+        let fs = self.rate("CSV")?;
+        let text = std::str::from_utf8(bytes)
+            .map_err(|_| Failure::Usage(format!("{}: CSV files must be UTF-8 text", self.file.display())))?;
+        let mut names = Vec::new();
+        let mut columns: Vec<Vec<f64>> = Vec::new();
+        for (i, line) in text.lines().enumerate() {
+            let line = line.trim();
+            if line.is_empty() || line.starts_with('#') {
+                continue;
+            }
+            let cells: Vec<&str> = line.split([',', ';', '\t']).map(str::trim).collect();
+            if columns.is_empty() && names.is_empty() && cells.iter().any(|c| c.parse::<f64>().is_err()) {
+                names = cells.iter().map(|c| c.to_string()).collect();
+                continue;
+            }
+            if columns.is_empty() {
+                columns = vec![Vec::new(); cells.len()];
+            }
+            if cells.len() != columns.len() {
+                return Err(Failure::Usage(format!(
+                    "{} line {}: {} columns, expected {}",
+                    self.file.display(),
+                    i + 1,
+                    cells.len(),
+                    columns.len()
+                )));
+            }
+            for (col, c) in columns.iter_mut().zip(&cells) {
+                col.push(c.parse::<f64>().map_err(|_| {
+                    Failure::Usage(format!("{} line {}: '{c}' is not a number", self.file.display(), i + 1))
+                })?);
+            }
+        }
+        let channels = columns.len() as u32;
+        if !names.is_empty() && names.len() != columns.len() {
+            names.clear();
+        }
+        Ok(pb::Samples {
+            sample_rate_hz: fs,
+            channel_count: channels.max(1),
+            layout: pb::ChannelLayout::Planar as i32,
+            data: Some(pb::samples::Data::Values(pb::SampleValues { values: columns.concat() })),
+            calibration: self.calibration(),
+            channel_names: names,
+        })
+    }
+
+    fn raw(&self, bytes: Vec<u8>) -> Result<pb::Samples, Failure> {
+        let fs = self.rate("raw")?;
+        let format = match self.raw_format {
+            RawFormat::F32 => pb::SampleFormat::F32Le,
+            RawFormat::F64 => pb::SampleFormat::F64Le,
+            RawFormat::I16 => pb::SampleFormat::I16Le,
+            RawFormat::I32 => pb::SampleFormat::I32Le,
+        };
+        Ok(pb::Samples {
+            sample_rate_hz: fs,
+            channel_count: self.channels,
+            layout: match self.layout {
+                LayoutArg::Interleaved => pb::ChannelLayout::Interleaved,
+                LayoutArg::Planar => pb::ChannelLayout::Planar,
+            } as i32,
+            data: Some(pb::samples::Data::Raw(pb::RawSamples { data: bytes, format: format as i32 })),
+            calibration: self.calibration(),
+            channel_names: Vec::new(),
+        })
+    }
+}
+
+fn read_with_progress(path: &Path) -> Result<Vec<u8>, Failure> {
+    let mut f = std::fs::File::open(path)
+        .map_err(|e| Failure::Usage(format!("cannot open {}: {e}", path.display())))?;
+    let len = f.metadata().map(|m| m.len()).unwrap_or(0);
+    let bar = ProgressBar::new(len);
+    bar.set_style(
+        ProgressStyle::with_template("reading {msg} {bar:30} {bytes}/{total_bytes}")
+            .unwrap_or_else(|_| ProgressStyle::default_bar()),
+    );
+    bar.set_message(path.display().to_string());
+    let mut out = Vec::with_capacity(len as usize);
+    let mut buf = vec![0u8; 1 << 20];
+    loop {
+        let n =
+            f.read(&mut buf).map_err(|e| Failure::Usage(format!("cannot read {}: {e}", path.display())))?;
+        if n == 0 {
+            break;
+        }
+        out.extend_from_slice(&buf[..n]);
+        bar.inc(n as u64);
+    }
+    bar.finish_and_clear();
+    Ok(out)
+}
+
+/// A spinner shown on a terminal while the server works.
+pub fn spinner(msg: &str) -> ProgressBar {
+    let s = ProgressBar::new_spinner();
+    s.set_message(msg.to_string());
+    s.enable_steady_tick(std::time::Duration::from_millis(120));
+    s
+}
