@@ -144,10 +144,12 @@ impl InputArgs {
                 }
                 (out, pb::SampleFormat::I32Le)
             }
-            (f, b) => return Err(Failure::Usage(format!(
+            (f, b) => {
+                return Err(Failure::Usage(format!(
                 "{}: {b}-bit {f:?} WAV samples are not supported (use 16/24/32-bit integer or 32-bit float)",
                 self.file.display()
-            ))),
+            )))
+            }
         };
         Ok(pb::Samples {
             sample_rate_hz: f64::from(spec.sample_rate),

@@ -66,6 +66,10 @@ pub async fn serve(
         .trace_fn(|req| tracing::info_span!("grpc", path = %req.uri().path()))
         // Server-side time limit; a shorter grpc-timeout from the client wins.
         .timeout(limits.request_timeout)
+        // Large flow-control windows: a DAQ block of a few MB then arrives in one round trip
+        // instead of many 64 KB steps (the default), which dominated upload time.
+        .initial_stream_window_size(Some(16 * 1024 * 1024))
+        .initial_connection_window_size(Some(32 * 1024 * 1024))
         // Bound the work one connection can queue.
         .concurrency_limit_per_connection(limits.max_concurrent_requests)
         .add_service(health)

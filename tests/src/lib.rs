@@ -49,6 +49,8 @@ impl TestServer {
     pub async fn channel(&self) -> tonic::transport::Channel {
         tonic::transport::Endpoint::from_shared(self.url())
             .expect("endpoint")
+            .initial_stream_window_size(16 * 1024 * 1024)
+            .initial_connection_window_size(32 * 1024 * 1024)
             .connect()
             .await
             .expect("connect")

@@ -328,6 +328,7 @@ fn tone_config(check: &mut Check, o: Option<pb::ToneOptions>) -> ToneConfig {
 /// A validated tone-extraction question with its decoded samples.
 #[derive(Debug, Clone)]
 pub struct ToneQuery {
+    started: std::time::Instant,
     samples: SampleSet,
     welch: WelchConfig,
     tones: ToneConfig,
@@ -351,6 +352,7 @@ impl TryFrom<pb::ExtractTonesRequest> for ToneQuery {
             max_band_frequency_hz,
             psd_output,
         } = req;
+        let started = std::time::Instant::now();
         let mut defaults = Defaults::default();
         let samples = sample_set(samples, &mut defaults)?;
         let mut check = Check::new();
@@ -373,7 +375,16 @@ impl TryFrom<pb::ExtractTonesRequest> for ToneQuery {
                 check.range("psd_output", PSD_POINTS.check("max_points", f64::from(m))).map(|v| v as usize)
             })
         });
-        let q = w.map(|welch| ToneQuery { samples, welch, tones, predicted, bands, psd_points, defaults });
+        let q = w.map(|welch| ToneQuery {
+            started,
+            samples,
+            welch,
+            tones,
+            predicted,
+            bands,
+            psd_points,
+            defaults,
+        });
         check.finish(q)
     }
 }
@@ -487,7 +498,7 @@ const SPECTRUM_MODELS: [Model; 2] = [models::WELCH_PSD, models::SPL];
 /// None in practice: every configuration was checked against the data length; a failure is
 /// reported as FAILED_PRECONDITION.
 pub fn tones_response(q: &ToneQuery) -> Result<pb::ExtractTonesResponse, ApiError> {
-    let t = std::time::Instant::now();
+    let t = q.started;
     let mut out = Vec::with_capacity(q.samples.channels.data.len());
     for (c, x) in q.samples.channels.data.iter().enumerate() {
         let psd = welch(x, q.samples.fs, q.welch).map_err(|e| ApiError::Precondition(e.to_string()))?;
