@@ -145,6 +145,7 @@ pub struct Report {
     title: String,
     rows: Vec<Row>,
     tables: Vec<Table>,
+    children: Vec<Report>,
     provenance: Option<pb::Provenance>,
 }
 
@@ -197,6 +198,13 @@ impl Report {
         self.quiet
     }
 
+    /// Adds a per-channel section: JSON puts sections in a "channels" array, tables print them
+    /// one after the other.
+    pub fn child(mut self, r: Report) -> Self {
+        self.children.push(r);
+        self
+    }
+
     /// Adds a table.
     pub fn table(mut self, t: Table) -> Self {
         self.tables.push(t);
@@ -217,6 +225,9 @@ impl Report {
         }
         for t in &self.tables {
             m.insert(t.key.to_string(), t.to_json());
+        }
+        if !self.children.is_empty() {
+            m.insert("channels".into(), Value::Array(self.children.iter().map(Report::to_json).collect()));
         }
         if let Some(p) = &self.provenance {
             m.insert("provenance".into(), provenance_json(p));
@@ -241,6 +252,9 @@ impl Report {
         }
         for t in &self.tables {
             out.push_str(&t.to_text());
+        }
+        for c in &self.children {
+            out.push_str(&c.to_table());
         }
         if let Some(p) = &self.provenance {
             if !p.defaults_applied.is_empty() {

@@ -167,7 +167,7 @@ pub async fn tones(ch: Channel, a: TonesCmd) -> Result<Report, Failure> {
         .await;
     s.finish_and_clear();
     let r = r?.into_inner();
-    let mut rep = Report::new(format!(
+    let mut top = Report::new(format!(
         "Tones in {} ({} channel(s), {:.1} ms server time)",
         a.input.file.display(),
         r.channels.len(),
@@ -176,6 +176,7 @@ pub async fn tones(ch: Channel, a: TonesCmd) -> Result<Report, Failure> {
     let several = r.channels.len() > 1;
     for c in &r.channels {
         let label = if c.name.is_empty() { format!("channel {}", c.channel) } else { c.name.clone() };
+        let mut rep = Report::new(format!("-- {label}"));
         if let Some(an) = &c.analysis {
             rep = analysis_rows(rep.text("channel", "channel", label.clone()), an)
                 .num("rms_pa", "rms pressure", c.rms_pa, "Pa")
@@ -273,8 +274,9 @@ pub async fn tones(ch: Channel, a: TonesCmd) -> Result<Report, Failure> {
                 eprintln!("wrote PSD {}", path.display());
             }
         }
+        top = top.child(rep);
     }
-    Ok(rep.provenance(r.provenance))
+    Ok(top.provenance(r.provenance))
 }
 
 /// Runs `bands`.
@@ -291,19 +293,20 @@ pub async fn bands(ch: Channel, a: BandsCmd) -> Result<Report, Failure> {
         .await;
     s.finish_and_clear();
     let r = r?.into_inner();
-    let mut rep = Report::new(format!("Band levels of {}", a.input.file.display()));
+    let mut top = Report::new(format!("Band levels of {}", a.input.file.display()));
     for c in &r.channels {
         let label = if c.name.is_empty() { format!("channel {}", c.channel) } else { c.name.clone() };
         let b = c.bands.clone().unwrap_or_default();
-        rep = rep
+        let mut rep = Report::new(format!("-- {label}"))
             .text("channel", "channel", label)
             .num("overall_level_db", "overall level", b.overall_level_db, "dB re 20 uPa")
             .num("a_weighted_overall_db", "A-weighted overall", b.a_weighted_overall_db, "dB(A)")
             .num("outside_span_level_db", "level outside the bands", b.outside_span_level_db, "dB re 20 uPa")
             .table(band_table(&b));
         rep = caution_rows(rep, &c.cautions);
+        top = top.child(rep);
     }
-    Ok(rep.provenance(r.provenance))
+    Ok(top.provenance(r.provenance))
 }
 
 /// An SVG plot of a PSD in dB re (20 uPa)^2/Hz against log frequency, with the floor and the

@@ -77,3 +77,84 @@ async fn cli_answers_with_units_json_csv_and_exit_codes() {
     let gone = tokio::task::spawn_blocking(move || jetloop(&url, &["info"])).await.unwrap();
     assert_eq!(gone.status.code(), Some(3));
 }
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn synth_wav_then_tones_finds_the_screech_family() {
+    let server = TestServer::start().await;
+    let u = server.url();
+    let out = tokio::task::spawn_blocking(move || {
+        let dir = std::env::temp_dir().join(format!("jetloop-synth-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let wav = dir.join("demo.wav");
+        let svg = dir.join("demo.svg");
+        let s = Command::new(env!("CARGO_BIN_EXE_jetloop"))
+            .args([
+                "synth",
+                wav.to_str().unwrap(),
+                "--seconds",
+                "1",
+                "--screech-hz",
+                "4800",
+                "--screech-db",
+                "142",
+            ])
+            .output()
+            .unwrap();
+        assert!(s.status.success(), "{}", String::from_utf8_lossy(&s.stderr));
+        let no_cal = jetloop(&u, &["tones", wav.to_str().unwrap()]);
+        let t = jetloop(
+            &u,
+            &[
+                "--json",
+                "tones",
+                wav.to_str().unwrap(),
+                "--pa-per-unit",
+                "2000",
+                "--predicted-hz",
+                "4700",
+                "--plot",
+                svg.to_str().unwrap(),
+            ],
+        );
+        let csv = dir.join("two.csv");
+        let mut text = String::from("mic_a,mic_b\n");
+        for i in 0..20_000 {
+            let x = (2.0 * std::f64::consts::PI * 1000.0 * f64::from(i) / 20_000.0).sin();
+            text.push_str(&format!("{x},{}\n", 0.5 * x));
+        }
+        std::fs::write(&csv, text).unwrap();
+        let b = jetloop(&u, &["--json", "bands", csv.to_str().unwrap(), "--sample-rate-hz", "20000"]);
+        let svg_text = std::fs::read_to_string(&svg).unwrap_or_default();
+        (no_cal, t, b, svg_text)
+    })
+    .await
+    .unwrap();
+    let (no_cal, t, b, svg) = out;
+    assert_eq!(no_cal.status.code(), Some(2), "WAV without calibration is a usage error");
+    let top = json(&t);
+    let j = &top["channels"][0];
+    let fam = &j["families"][0];
+    assert!((fam["fundamental_hz"].as_f64().unwrap() - 4800.0).abs() < 0.5, "{fam}");
+    // The fundamental was written at 142 dB re 20 uPa (demo generator): the extracted level
+    // agrees within 0.2 dB, and the caution appears above 140 dB.
+    let lvl = j["tones"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|t| t["level_db"].as_f64().unwrap())
+        .fold(f64::MIN, f64::max);
+    assert!((lvl - 142.0).abs() < 0.2, "{lvl}");
+    assert!(j["caution"].as_str().unwrap().contains("140 dB"));
+    assert!(j["predicted_match"].as_str().unwrap().contains("matched"));
+    assert!(svg.starts_with("<svg") && svg.contains("4800 Hz"));
+    let jb = json(&b);
+    // 1 kHz sine of amplitude 1 Pa -> 90.97 dB in the 1 kHz band (closed form: 10 log10(0.5/4e-10));
+    // the second column is half the amplitude, 6.02 dB lower.
+    for (ch, want) in [(0, 90.969), (1, 84.949)] {
+        let c = &jb["channels"][ch];
+        let band = c["bands"].as_array().unwrap().iter().find(|x| x["nominal_hz"] == 1000.0).unwrap();
+        assert!((band["level_db"].as_f64().unwrap() - want).abs() < 0.1, "{band}");
+    }
+    assert_eq!(jb["channels"][1]["channel"], "mic_b");
+    server.stop().await;
+}
