@@ -9,8 +9,10 @@ pub mod bounds;
 pub mod cells;
 pub mod gas;
 pub mod jet;
+pub mod lsq;
 pub mod models;
 mod roots;
+pub mod staging;
 pub mod tones;
 
 pub use bounds::{Bounds, RangeError};
