@@ -21,8 +21,14 @@ mod tests {
     #[test]
     fn descriptor_set_decodes_and_names_every_service() {
         let fds = prost_types_shim::decode(super::FILE_DESCRIPTOR_SET);
-        for svc in ["GasDynamicsService", "InfoService", "ShockCellService", "ToneService", "SpectrumService"]
-        {
+        for svc in [
+            "GasDynamicsService",
+            "InfoService",
+            "ShockCellService",
+            "ToneService",
+            "SpectrumService",
+            "StagingService",
+        ] {
             assert!(fds.contains(&svc.to_string()), "missing {svc}: {fds:?}");
         }
     }

@@ -2,12 +2,13 @@
 
 use crate::config::Limits;
 use crate::service::{
-    gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells, spectrum::Spectrum, tones::Tones,
+    gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells, spectrum::Spectrum, staging::Staging,
+    tones::Tones,
 };
 use jetloop_proto::pb::{
     gas_dynamics_service_server::GasDynamicsServiceServer, info_service_server::InfoServiceServer,
     shock_cell_service_server::ShockCellServiceServer, spectrum_service_server::SpectrumServiceServer,
-    tone_service_server::ToneServiceServer,
+    staging_service_server::StagingServiceServer, tone_service_server::ToneServiceServer,
 };
 use std::future::Future;
 use tokio::net::TcpListener;
@@ -41,6 +42,7 @@ pub async fn serve(
     health_reporter.set_serving::<ShockCellServiceServer<ShockCells>>().await;
     health_reporter.set_serving::<ToneServiceServer<Tones>>().await;
     health_reporter.set_serving::<SpectrumServiceServer<Spectrum>>().await;
+    health_reporter.set_serving::<StagingServiceServer<Staging>>().await;
 
     let reflection_v1 = tonic_reflection::server::Builder::configure()
         .register_encoded_file_descriptor_set(jetloop_proto::FILE_DESCRIPTOR_SET)
@@ -60,6 +62,8 @@ pub async fn serve(
     // Spectra with the PSD attached can be large: allow answers up to the request limit too.
     let spectrum =
         SpectrumServiceServer::new(Spectrum).max_decoding_message_size(max).max_encoding_message_size(max);
+    let staging =
+        StagingServiceServer::new(Staging).max_decoding_message_size(max).max_encoding_message_size(max);
 
     Server::builder()
         // A span per call, so logs carry the method path.
@@ -80,6 +84,7 @@ pub async fn serve(
         .add_service(cells)
         .add_service(tones)
         .add_service(spectrum)
+        .add_service(staging)
         .serve_with_incoming_shutdown(TcpListenerStream::new(listener), shutdown)
         .await?;
     Ok(())

@@ -8,6 +8,7 @@ pub mod gas;
 pub mod jet_input;
 pub mod provenance;
 pub mod spectrum;
+pub mod staging;
 pub mod tones;
 
 pub use error::{ApiError, Check, FieldViolation};

@@ -89,6 +89,12 @@ pub const THIRD_OCTAVE: Model =
 pub const A_WEIGHTING: Model =
     Model { name: "A-frequency-weighting", reference: "IEC 61672-1:2013, Annex E" };
 
+/// Stage segmentation.
+pub const STAGE_SEGMENTATION: Model = Model {
+    name: "stage segmentation by frequency-continuity branch tracking, quadratic smooth fits",
+    reference: "jetloop method (documented in the staging module); stage nomenclature after Powell (1953)",
+};
+
 /// Every model the server implements.
 pub const ALL: &[Model] = &[
     ISENTROPIC,
@@ -108,4 +114,5 @@ pub const ALL: &[Model] = &[
     TONE_EXTRACTION,
     THIRD_OCTAVE,
     A_WEIGHTING,
+    STAGE_SEGMENTATION,
 ];

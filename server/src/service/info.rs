@@ -14,6 +14,7 @@ pub const SERVICES: &[&str] = &[
     "jetloop.v1.ShockCellService",
     "jetloop.v1.ToneService",
     "jetloop.v1.SpectrumService",
+    "jetloop.v1.StagingService",
     "grpc.health.v1.Health",
     "grpc.reflection.v1.ServerReflection",
     "grpc.reflection.v1alpha.ServerReflection",

@@ -4,4 +4,5 @@ pub mod gas_dynamics;
 pub mod info;
 pub mod shock_cells;
 pub mod spectrum;
+pub mod staging;
 pub mod tones;

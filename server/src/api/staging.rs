@@ -1,0 +1,422 @@
+//! StagingService: measured sweeps converted to domain points (with the jet physics at each
+//! x for pressure sweeps), and the staging result turned into the response.
+
+use super::error::{ApiError, Check};
+use super::gas::jet_spec;
+use super::provenance::{provenance, Defaults};
+use crate::physics::bounds::Bounds;
+use crate::physics::cells;
+use crate::physics::gas::Gas;
+use crate::physics::jet::{self, jet_state, ExpandedJet};
+use crate::physics::models;
+use crate::physics::staging::{
+    fit_stages, infer_directions, information_criteria, Direction, FitConfig, Param, Point, PointPhysics,
+    ReflectorPath, StagingResult, SweepKind,
+};
+use jetloop_proto::pb;
+
+/// Most points in one request.
+pub const MAX_POINTS: usize = 100_000;
+const FREQ: Bounds = Bounds::open_closed(0.0, 1e7, "Hz");
+const SIGMA: Bounds = Bounds::open_closed(0.0, 1e6, "Hz");
+const JUMP: Bounds = Bounds::open_closed(0.0, 1.0, "");
+const ORDER: Bounds = Bounds::closed(1.0, 50.0, "");
+const KAPPA: Bounds = Bounds::open_closed(0.0, 1.5, "");
+const CELLS: Bounds = Bounds::closed(1.0, 50.0, "cells");
+const G: Bounds = Bounds::open_closed(0.0, 10.0, "");
+const REL: Bounds = Bounds::open_closed(0.0, 0.5, "");
+const REFLECTOR_X: Bounds = Bounds::closed(0.0, 1000.0, "m");
+const MACH_X: Bounds = Bounds::open_closed(1.0, 6.0, "");
+
+/// A validated staging question with the physics evaluated at each point.
+#[derive(Debug, Clone)]
+pub struct StagingQuery {
+    kind: SweepKind,
+    points: Vec<Point>,
+    physics: Option<Vec<PointPhysics>>,
+    config: FitConfig,
+    defaults: Defaults,
+    started: std::time::Instant,
+}
+
+fn bad_points(check: &mut Check, bad: &[(usize, String)]) {
+    for (i, msg) in bad.iter().take(5) {
+        check.other(format!("points[{i}]"), format!("points[{i}]: {msg}"));
+    }
+    if bad.len() > 5 {
+        check.other(
+            "points",
+            format!("points: {} more points are invalid (the first 5 are listed)", bad.len() - 5),
+        );
+    }
+}
+
+impl TryFrom<pb::FitStagesRequest> for StagingQuery {
+    type Error = ApiError;
+
+    fn try_from(req: pb::FitStagesRequest) -> Result<Self, ApiError> {
+        let started = std::time::Instant::now();
+        let pb::FitStagesRequest { control, points, jet: jet_msg, options } = req;
+        if points.len() > MAX_POINTS {
+            return Err(ApiError::TooLarge {
+                field: "points".into(),
+                limit: format!("{MAX_POINTS} points"),
+                actual: format!("{} points", points.len()),
+            });
+        }
+        let mut check = Check::new();
+        let mut defaults = Defaults::default();
+        let kind = match pb::ControlVariable::try_from(control) {
+            Ok(pb::ControlVariable::NozzlePressureRatio) => Some(SweepKind::Npr),
+            Ok(pb::ControlVariable::FullyExpandedMachNumber) => Some(SweepKind::Mach),
+            Ok(pb::ControlVariable::ReflectorDistanceM) => Some(SweepKind::Reflector),
+            Ok(pb::ControlVariable::Plain) => Some(SweepKind::Plain),
+            _ => {
+                check.other(
+                    "control",
+                    format!("control = {control} must be CONTROL_VARIABLE_NOZZLE_PRESSURE_RATIO, _FULLY_EXPANDED_MACH_NUMBER, _REFLECTOR_DISTANCE_M or _PLAIN"),
+                );
+                None
+            }
+        };
+        if points.len() < 3 {
+            check.other("points", format!("points has {} entries; at least 3 are needed", points.len()));
+        }
+        let o = options.unwrap_or_default();
+        let rel = match o.default_relative_uncertainty {
+            None => 0.01,
+            Some(v) => check.range("options", REL.check("default_relative_uncertainty", v)).unwrap_or(0.01),
+        };
+        let opt = |check: &mut Check, v: Option<f64>, b: Bounds, name: &'static str, d: f64| match v {
+            None => d,
+            Some(v) => check.range("options", b.check(name, v)).unwrap_or(d),
+        };
+        let jump_fraction = opt(&mut check, o.jump_fraction, JUMP, "jump_fraction", 0.05);
+        let max_order =
+            opt(&mut check, o.max_loop_order.map(f64::from), ORDER, "max_loop_order", 10.0) as u32;
+        let kmin = opt(&mut check, o.convection_ratio_min, KAPPA, "convection_ratio_min", 0.4);
+        let kmax = opt(&mut check, o.convection_ratio_max, KAPPA, "convection_ratio_max", 0.9);
+        if kmin >= kmax {
+            check.other(
+                "options.convection_ratio_max",
+                format!("options.convection_ratio_max = {kmax} must exceed convection_ratio_min = {kmin}"),
+            );
+        }
+        let cmin = opt(&mut check, o.source_cells_min.map(f64::from), CELLS, "source_cells_min", 1.0);
+        let cmax = opt(&mut check, o.source_cells_max.map(f64::from), CELLS, "source_cells_max", 10.0);
+        if cmin > cmax {
+            check.other(
+                "options.source_cells_max",
+                format!("options.source_cells_max = {cmax} is below source_cells_min = {cmin}"),
+            );
+        }
+        let fixed_cells =
+            o.source_cells.map(|c| opt(&mut check, Some(f64::from(c)), CELLS, "source_cells", 4.0));
+        let g = opt(&mut check, o.reflector_path_factor, G, "reflector_path_factor", 2.0);
+        let reflector =
+            if o.fit_reflector_path_factor { ReflectorPath::Free(1.5, 2.5) } else { ReflectorPath::Fixed(g) };
+        if kind == Some(SweepKind::Reflector)
+            && o.reflector_path_factor.is_none()
+            && !o.fit_reflector_path_factor
+        {
+            defaults.note(
+                "options.reflector_path_factor",
+                "2",
+                "the acoustic path grows by twice the displacement (common practice)",
+            );
+        }
+
+        // Points.
+        let mut pts = Vec::with_capacity(points.len());
+        let mut bad = Vec::new();
+        for (i, p) in points.iter().enumerate() {
+            if !p.x.is_finite() {
+                bad.push((i, format!("x = {} is not a finite number", p.x)));
+                continue;
+            }
+            let range = match kind {
+                Some(SweepKind::Reflector) => Some(REFLECTOR_X),
+                Some(SweepKind::Mach) => Some(MACH_X),
+                Some(SweepKind::Npr) => {
+                    Some(Bounds::open_closed(Gas::AIR.critical_pressure_ratio(), jet::NPR.max, ""))
+                }
+                _ => None,
+            };
+            if let Some(b) = range.filter(|b| !b.contains(p.x)) {
+                bad.push((
+                    i,
+                    format!("x = {} is outside the allowed range {b} for this control variable", p.x),
+                ));
+                continue;
+            }
+            if !FREQ.contains(p.frequency_hz) {
+                bad.push((
+                    i,
+                    format!("frequency_hz = {} is outside the allowed range {FREQ}", p.frequency_hz),
+                ));
+                continue;
+            }
+            let sigma = match p.frequency_uncertainty_hz {
+                Some(s) if !SIGMA.contains(s) => {
+                    bad.push((
+                        i,
+                        format!("frequency_uncertainty_hz = {s} is outside the allowed range {SIGMA}"),
+                    ));
+                    continue;
+                }
+                Some(s) => s,
+                None => rel * p.frequency_hz,
+            };
+            let direction = match pb::SweepDirection::try_from(p.direction) {
+                Ok(pb::SweepDirection::Increasing) => Direction::Increasing,
+                Ok(pb::SweepDirection::Decreasing) => Direction::Decreasing,
+                Ok(pb::SweepDirection::Unspecified) => Direction::Unknown,
+                Err(_) => {
+                    bad.push((i, format!("direction = {} is not a SweepDirection value", p.direction)));
+                    continue;
+                }
+            };
+            pts.push(Point { x: p.x, f: p.frequency_hz, sigma, direction, order: p.acquisition_index });
+        }
+        bad_points(&mut check, &bad);
+        if bad.is_empty() && pts.len() >= 3 && pts.iter().all(|p| p.x == pts[0].x && p.f == pts[0].f) {
+            check.other(
+                "points",
+                "points: all points are the same (x and frequency): there is nothing to segment or fit",
+            );
+        }
+        if points.iter().any(|p| p.frequency_uncertainty_hz.is_none()) {
+            defaults.note(
+                "points[].frequency_uncertainty_hz",
+                &format!("{rel} x frequency"),
+                "default relative uncertainty",
+            );
+        }
+
+        // Jet physics at each x for pressure sweeps; the ambient sound speed for all kinds.
+        let mut a_amb = Gas::AIR.sound_speed(jet::ISA_SEA_LEVEL_TEMPERATURE_K);
+        let mut physics = None;
+        let needs_jet = matches!(kind, Some(SweepKind::Npr | SweepKind::Mach));
+        match jet_msg {
+            None if needs_jet => {
+                check.missing("jet", "NPR and Mj sweeps need the nozzle, temperatures and gas")
+            }
+            None => defaults.note("jet", "ISA sea level, dry air", "ambient sound speed 340.29 m/s"),
+            Some(mut c) => {
+                // The pressure is replaced by each point's x: fill a placeholder so the
+                // conditions convert.
+                let op = c.operating_point.get_or_insert_with(Default::default);
+                if op.pressure.is_none() {
+                    op.pressure = Some(pb::operating_point::Pressure::NozzlePressureRatio(2.0));
+                }
+                match jet_spec(Some(c), "jet") {
+                    Err(ApiError::Invalid(v)) => {
+                        for fv in v {
+                            check.other(fv.field, fv.description);
+                        }
+                    }
+                    Err(e) => return Err(e),
+                    Ok(spec) => {
+                        a_amb = spec.gas.sound_speed(spec.op.ambient_temperature_k());
+                        defaults.0.extend(spec.defaults.0.iter().cloned());
+                        if needs_jet && check.is_clean() {
+                            let mut ph = Vec::with_capacity(pts.len());
+                            let mut bad = Vec::new();
+                            for (i, p) in pts.iter().enumerate() {
+                                let npr = if kind == Some(SweepKind::Mach) {
+                                    1.0 / spec.gas.pressure_ratio(p.x)
+                                } else {
+                                    p.x
+                                };
+                                let st =
+                                    spec.op.with_npr(npr).map(|op| jet_state(&spec.gas, &spec.nozzle, &op));
+                                match st.ok().and_then(|s| ExpandedJet::from_state(&s).ok()) {
+                                    Some(j) => ph.push(PointPhysics {
+                                        ls_m: cells::spacing(&j, 1.0),
+                                        uj_m_s: j.uj_m_s,
+                                    }),
+                                    None => bad.push((
+                                        i,
+                                        format!(
+                                            "x = {}: the jet is not supersonic there (no shock cells)",
+                                            p.x
+                                        ),
+                                    )),
+                                }
+                            }
+                            bad_points(&mut check, &bad);
+                            physics = Some(ph);
+                        }
+                    }
+                }
+            }
+        }
+        let config = FitConfig {
+            jump_fraction,
+            max_order,
+            kappa: (kmin, kmax),
+            source_cells: (cmin, cmax),
+            source_cells_fixed: fixed_cells,
+            reflector,
+            fit_delay: o.fit_fixed_delay.unwrap_or(true),
+            a_amb,
+        };
+        let q = kind.map(|kind| StagingQuery { kind, points: pts, physics, config, defaults, started });
+        check.finish(q)
+    }
+}
+
+fn param_msg(p: &Param) -> pb::FittedParameter {
+    pb::FittedParameter {
+        name: p.name.to_string(),
+        value: p.value,
+        standard_error: p.se,
+        unit: p.unit.to_string(),
+        at_bound: p.at_bound,
+        fixed: p.fixed,
+    }
+}
+
+fn direction_msg(d: Direction) -> pb::SweepDirection {
+    match d {
+        Direction::Increasing => pb::SweepDirection::Increasing,
+        Direction::Decreasing => pb::SweepDirection::Decreasing,
+        Direction::Unknown => pb::SweepDirection::Unspecified,
+    }
+}
+
+/// Runs the staging and builds the response.
+pub fn staging_response(q: StagingQuery) -> pb::FitStagesResponse {
+    let StagingQuery { kind, mut points, physics, config, defaults, started } = q;
+    infer_directions(&mut points);
+    let res: StagingResult = fit_stages(&points, kind, physics.as_deref(), &config);
+    let mut out_points: Vec<pb::PointResult> = points
+        .iter()
+        .enumerate()
+        .map(|(i, p)| pb::PointResult {
+            index: i as u32,
+            stage: res.stage_of[i] as u32,
+            direction: direction_msg(p.direction) as i32,
+            ..Default::default()
+        })
+        .collect();
+    let mut stages = Vec::with_capacity(res.stages.len());
+    for (s, st) in res.stages.iter().enumerate() {
+        let mut msg = pb::StageResult {
+            stage: s as u32,
+            x_min: st.x_range.0,
+            x_max: st.x_range.1,
+            point_count: st.points.len() as u32,
+            smooth_coefficients: st.smooth.clone(),
+            smooth_rms_hz: st.smooth_rms_hz,
+            ..Default::default()
+        };
+        if let Some(fit) = &st.fit {
+            let mut sq = 0.0;
+            for (k, &i) in st.points.iter().enumerate() {
+                let model = fit.model_hz[k];
+                let p = &mut out_points[i];
+                p.loop_order = Some(fit.n);
+                p.model_frequency_hz = Some(model);
+                p.residual_hz = Some(points[i].f - model);
+                sq += ((points[i].f - model) / points[i].f).powi(2);
+            }
+            msg.loop_order = Some(fit.n);
+            msg.parameters = fit.params.iter().map(param_msg).collect();
+            msg.rms_relative_error = Some((sq / st.points.len() as f64).sqrt());
+            msg.equivalent_loop_orders = fit.equivalent_orders.clone();
+            msg.alias_resolution = fit.resolution.clone();
+            msg.chi_square = Some(fit.chi2);
+        }
+        stages.push(msg);
+    }
+    let jumps = res
+        .jumps
+        .iter()
+        .map(|j| pb::StageJump {
+            direction: direction_msg(j.direction) as i32,
+            x_before: j.x_before,
+            x_after: j.x_after,
+            from_stage: j.from as u32,
+            to_stage: j.to as u32,
+            frequency_before_hz: j.f_before,
+            frequency_after_hz: j.f_after,
+        })
+        .collect();
+    let hysteresis = res
+        .hysteresis
+        .iter()
+        .map(|h| pb::HysteresisInterval {
+            x_low: h.x_low,
+            x_high: h.x_high,
+            lower_stage: h.stages.0 as u32,
+            upper_stage: h.stages.1 as u32,
+        })
+        .collect();
+    let m = points.len();
+    let mut models_cmp = Vec::new();
+    let fits: Vec<_> = res.stages.iter().filter_map(|s| s.fit.as_ref()).collect();
+    if !fits.is_empty() && fits.len() == res.stages.len() {
+        let chi2: f64 = fits.iter().map(|f| f.chi2).sum();
+        let k = fits.iter().map(|f| f.free + 1).sum::<usize>();
+        let (aic, bic) = information_criteria(chi2, k, m);
+        models_cmp.push(pb::ModelComparison {
+            model: "per-stage loops".into(),
+            parameter_count: k as u32,
+            chi_square: chi2,
+            aic,
+            bic,
+            preferred: false,
+        });
+    }
+    if let Some(sh) = &res.shared {
+        let k = sh.free + sh.orders.len();
+        let (aic, bic) = information_criteria(sh.chi2, k, m);
+        models_cmp.push(pb::ModelComparison {
+            model: "shared loop".into(),
+            parameter_count: k as u32,
+            chi_square: sh.chi2,
+            aic,
+            bic,
+            preferred: false,
+        });
+    }
+    if let Some(best) =
+        models_cmp.iter().enumerate().min_by(|a, b| a.1.bic.total_cmp(&b.1.bic)).map(|(i, _)| i)
+    {
+        models_cmp[best].preferred = true;
+    }
+    let shared_loop = res.shared.as_ref().map(|sh| pb::SharedLoopResult {
+        loop_orders: sh.orders.clone(),
+        parameters: sh.params.iter().map(param_msg).collect(),
+        alias_resolution: sh.resolution.clone(),
+    });
+    let mut used = vec![models::STAGE_SEGMENTATION];
+    let mut notes = Vec::new();
+    match kind {
+        SweepKind::Npr | SweepKind::Mach => {
+            used.extend([models::POWELL_LOOP, models::VORTEX_SHEET_CELLS, models::FULLY_EXPANDED_JET])
+        }
+        SweepKind::Reflector => used.push(models::POWELL_LOOP),
+        SweepKind::Plain => notes.push(
+            "A plain control variable has no loop model: stages, jumps and smooth fits only.".to_string(),
+        ),
+    }
+    if matches!(kind, SweepKind::Npr | SweepKind::Mach) && config.source_cells_fixed.is_none() {
+        notes.push(
+            "The source cell was searched, not given: one stage of a pressure sweep constrains the loop time, so \
+             neighbouring (n, N) pairs can fit almost equally well; see each stage's alias_resolution."
+                .to_string(),
+        );
+    }
+    pb::FitStagesResponse {
+        points: out_points,
+        stages,
+        jumps,
+        hysteresis,
+        models: models_cmp,
+        shared_loop,
+        compute_time_s: started.elapsed().as_secs_f64(),
+        provenance: Some(provenance(&used, &defaults, notes)),
+    }
+}

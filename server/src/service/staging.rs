@@ -1,0 +1,29 @@
+//! `jetloop.v1.StagingService`.
+
+use crate::api::staging::{staging_response, StagingQuery};
+use crate::api::ApiError;
+use jetloop_proto::pb::{self, staging_service_server::StagingService};
+use tonic::{Request, Response, Status};
+
+/// Handlers for stage fits; the work (up to 100,000 points) runs on the blocking pool.
+#[derive(Debug, Default, Clone, Copy)]
+pub struct Staging;
+
+#[tonic::async_trait]
+impl StagingService for Staging {
+    async fn fit_stages(
+        &self,
+        request: Request<pb::FitStagesRequest>,
+    ) -> Result<Response<pb::FitStagesResponse>, Status> {
+        let req = request.into_inner();
+        let r = tokio::task::spawn_blocking(move || -> Result<pb::FitStagesResponse, ApiError> {
+            Ok(staging_response(StagingQuery::try_from(req)?))
+        })
+        .await
+        .map_err(|e| {
+            tracing::error!("staging task failed: {e}");
+            Status::internal("the stage fit failed; see the server log")
+        })??;
+        Ok(Response::new(r))
+    }
+}

@@ -1,0 +1,192 @@
+//! End to end over a real socket: StagingService segmentation and fits, and its limits.
+
+use jetloop_proto::pb::{self, nozzle::Kind, staging_service_client::StagingServiceClient};
+use jetloop_tests::TestServer;
+use tonic::Code;
+use tonic_types::StatusExt;
+
+fn jet() -> pb::JetConditions {
+    pb::JetConditions {
+        nozzle: Some(pb::Nozzle {
+            kind: Some(Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: 0.0254 })),
+        }),
+        operating_point: None,
+        gas: None,
+    }
+}
+
+fn tone(x: f64, f: f64) -> pb::MeasuredTone {
+    pb::MeasuredTone { x, frequency_hz: f, ..Default::default() }
+}
+
+fn assert_field(status: &tonic::Status, code: Code, field: &str) {
+    assert_eq!(status.code(), code, "{status:?}");
+    let details = status.get_error_details();
+    let bad = details.bad_request().expect("BadRequest details");
+    let fields: Vec<_> = bad.field_violations.iter().map(|v| v.field.as_str()).collect();
+    assert!(fields.contains(&field), "expected {field} in {fields:?}: {}", status.message());
+}
+
+#[tokio::test]
+async fn reflector_sweep_lines_and_model_comparison() {
+    // f_n(d) = n / (tau0 + 2 d / a), n = 2, 3, 4, a = 340.29 m/s (ISA), tau0 = 0.25 ms.
+    let server = TestServer::start().await;
+    let mut c = StagingServiceClient::new(server.channel().await);
+    let a = (1.4f64 * 287.05 * 288.15).sqrt();
+    let mut points = Vec::new();
+    for n in [2.0, 3.0, 4.0] {
+        for k in 0..25 {
+            let d = 0.002 * f64::from(k);
+            // Deterministic +-0.2 % ripple instead of noise.
+            let ripple = 1.0 + 0.002 * if k % 2 == 0 { 1.0 } else { -1.0 };
+            points.push(tone(d, n / (2.5e-4 + 2.0 * d / a) * ripple));
+        }
+    }
+    let r = c
+        .fit_stages(pb::FitStagesRequest {
+            control: pb::ControlVariable::ReflectorDistanceM as i32,
+            points,
+            jet: None,
+            options: None,
+        })
+        .await
+        .unwrap()
+        .into_inner();
+    assert_eq!(r.stages.len(), 3);
+    let mut orders: Vec<u32> = r.stages.iter().map(|s| s.loop_order.unwrap()).collect();
+    orders.sort_unstable();
+    assert_eq!(orders, vec![2, 3, 4]);
+    for s in &r.stages {
+        let tau = &s.parameters[0];
+        assert_eq!(tau.name, "fixed_delay_s");
+        assert!((tau.value - 2.5e-4).abs() < 3.0 * tau.standard_error.unwrap() + 1e-6, "{tau:?}");
+        assert!(s.rms_relative_error.unwrap() < 0.005);
+    }
+    assert_eq!(r.models.len(), 2);
+    assert_eq!(r.models.iter().filter(|m| m.preferred).count(), 1);
+    assert!(r.points.iter().all(|p| p.loop_order.is_some() && p.residual_hz.is_some()));
+    server.stop().await;
+}
+
+#[tokio::test]
+async fn pressure_sweep_over_npr_with_given_source_cell() {
+    // Two stages generated from the loop model itself with n = 1 and 2, N = 4 (given),
+    // kappa 0.62 and 0.65, no delay; x is the NPR.
+    let server = TestServer::start().await;
+    let mut c = StagingServiceClient::new(server.channel().await);
+    let cells = pb::shock_cell_service_client::ShockCellServiceClient::new(server.channel().await);
+    let mut cells = cells;
+    let a = (1.4f64 * 287.05 * 288.15).sqrt();
+    let mut points = Vec::new();
+    for k in 0..60 {
+        let npr = 2.2 + 0.02 * f64::from(k);
+        let mut cond = jet();
+        cond.operating_point = Some(pb::OperatingPoint {
+            pressure: Some(pb::operating_point::Pressure::NozzlePressureRatio(npr)),
+            ..Default::default()
+        });
+        let r = cells
+            .cell_spacing(pb::CellSpacingRequest {
+                jet: Some(pb::JetInput { source: Some(pb::jet_input::Source::Conditions(cond)) }),
+                options: Some(pb::CellOptions { modes: Some(1), ..Default::default() }),
+            })
+            .await
+            .unwrap()
+            .into_inner();
+        let (ls, uj) = (r.modes[0].spacing_m, r.jet.unwrap().fully_expanded_velocity_m_per_s);
+        let (n, kappa) = if npr < 2.8 { (1.0, 0.62) } else { (2.0, 0.65) };
+        points.push(tone(npr, n / (4.0 * ls * (1.0 / (kappa * uj) + 1.0 / a))));
+    }
+    let r = c
+        .fit_stages(pb::FitStagesRequest {
+            control: pb::ControlVariable::NozzlePressureRatio as i32,
+            points,
+            jet: Some(jet()),
+            options: Some(pb::FitOptions { source_cells: Some(4), ..Default::default() }),
+        })
+        .await
+        .unwrap()
+        .into_inner();
+    assert_eq!(r.stages.len(), 2);
+    assert_eq!(r.stages[0].loop_order, Some(1));
+    assert_eq!(r.stages[1].loop_order, Some(2));
+    let k0 = &r.stages[0].parameters[0];
+    assert_eq!(k0.name, "convection_ratio");
+    assert!((k0.value - 0.62).abs() < 1e-6, "{k0:?}");
+    assert_eq!(r.jumps.len(), 1);
+    assert!(r.jumps[0].x_before < 2.8 && r.jumps[0].x_after >= 2.8);
+    server.stop().await;
+}
+
+#[tokio::test]
+async fn degenerate_input_is_refused_with_the_limit_named() {
+    let server = TestServer::start().await;
+    let mut c = StagingServiceClient::new(server.channel().await);
+    let req = |control: pb::ControlVariable,
+               points: Vec<pb::MeasuredTone>,
+               jet: Option<pb::JetConditions>,
+               options: Option<pb::FitOptions>| {
+        pb::FitStagesRequest { control: control as i32, points, jet, options }
+    };
+    let three = || vec![tone(2.5, 4000.0), tone(2.6, 3900.0), tone(2.7, 3800.0)];
+    let cases = vec![
+        (req(pb::ControlVariable::Plain, vec![tone(1.0, 1.0), tone(2.0, 2.0)], None, None), "points"),
+        (req(pb::ControlVariable::Plain, vec![tone(1.0, 100.0); 5], None, None), "points"),
+        (
+            req(
+                pb::ControlVariable::NozzlePressureRatio,
+                vec![tone(1.5, 4000.0), tone(2.6, 3900.0), tone(2.7, 3800.0)],
+                Some(jet()),
+                None,
+            ),
+            "points[0]",
+        ),
+        (
+            req(
+                pb::ControlVariable::FullyExpandedMachNumber,
+                vec![tone(0.9, 4000.0), tone(1.2, 3900.0), tone(1.3, 3800.0)],
+                Some(jet()),
+                None,
+            ),
+            "points[0]",
+        ),
+        (
+            req(
+                pb::ControlVariable::ReflectorDistanceM,
+                vec![tone(-0.1, 4000.0), tone(0.0, 3900.0), tone(0.1, 3800.0)],
+                None,
+                None,
+            ),
+            "points[0]",
+        ),
+        (
+            req(
+                pb::ControlVariable::Plain,
+                vec![tone(f64::NAN, 1.0), tone(2.0, 2.0), tone(3.0, 3.0)],
+                None,
+                None,
+            ),
+            "points[0]",
+        ),
+        (req(pb::ControlVariable::NozzlePressureRatio, three(), None, None), "jet"),
+        (
+            req(
+                pb::ControlVariable::NozzlePressureRatio,
+                three(),
+                Some(jet()),
+                Some(pb::FitOptions { max_loop_order: Some(51), ..Default::default() }),
+            ),
+            "options.max_loop_order",
+        ),
+        (req(pb::ControlVariable::Unspecified, three(), None, None), "control"),
+    ];
+    for (r, field) in cases {
+        let e = c.fit_stages(r).await.unwrap_err();
+        assert_field(&e, Code::InvalidArgument, field);
+    }
+    let many: Vec<pb::MeasuredTone> = (0..100_001).map(|i| tone(f64::from(i), 1000.0)).collect();
+    let e = c.fit_stages(req(pb::ControlVariable::Plain, many, None, None)).await.unwrap_err();
+    assert_field(&e, Code::ResourceExhausted, "points");
+    assert!(e.message().contains("100000"));
+    server.stop().await;
+}
