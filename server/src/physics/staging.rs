@@ -575,7 +575,7 @@ pub fn fit_reflector_stage(pts: &[Point], cfg: &FitConfig) -> Option<StageLoop> 
     let rows: Vec<Vec<f64>> = pts.iter().map(|p| vec![1.0, p.x / a]).collect();
     let free = weighted_lsq(&rows, &y, &w)?;
     let g_over_n = free.coef[1];
-    if !(g_over_n > 0.0) {
+    if g_over_n.is_nan() || g_over_n <= 0.0 {
         return None;
     }
     let (n, g, equivalent, resolution) = match cfg.reflector {
@@ -855,7 +855,8 @@ mod tests {
     }
 
     /// (n, N, kappa, tau0, Mj range) of synthetic stages.
-    const TRUTH: [(u32, f64, f64, f64, (f64, f64)); 3] = [
+    type Truth = (u32, f64, f64, f64, (f64, f64));
+    const TRUTH: [Truth; 3] = [
         (1, 4.0, 0.60, 2.0e-5, (1.10, 1.24)),
         (2, 4.0, 0.62, 1.0e-5, (1.22, 1.40)),
         (1, 4.0, 0.75, 5.0e-6, (1.38, 1.60)),
