@@ -131,6 +131,16 @@ fn need(v: Option<f64>, flag: &str, nozzle: &str) -> Result<f64, Failure> {
 impl JetArgs {
     /// The jet conditions message these arguments describe.
     pub fn conditions(&self) -> Result<pb::JetConditions, Failure> {
+        self.conditions_inner(false)
+    }
+
+    /// The nozzle, temperatures and gas, with the pressure left for the server to fill (sweeps
+    /// and fits set it per point).
+    pub fn context(&self) -> Result<pb::JetConditions, Failure> {
+        self.conditions_inner(true)
+    }
+
+    fn conditions_inner(&self, pressure_optional: bool) -> Result<pb::JetConditions, Failure> {
         use pb::round_convergent_divergent_nozzle::Design;
         let kind = match self.nozzle {
             NozzleArg::Convergent => Kind::RoundConvergent(pb::RoundConvergentNozzle {
@@ -157,20 +167,21 @@ impl JetArgs {
             }),
         };
         let (pressure, ambient_pressure_pa) = match (self.npr, self.total_pressure_pa) {
-            (Some(npr), _) => (Pressure::NozzlePressureRatio(npr), self.ambient_pressure_pa),
+            (Some(npr), _) => (Some(Pressure::NozzlePressureRatio(npr)), self.ambient_pressure_pa),
             (None, Some(p0)) => (
-                Pressure::Pressures(pb::ReservoirAndAmbientPressure {
+                Some(Pressure::Pressures(pb::ReservoirAndAmbientPressure {
                     total_pressure_pa: p0,
                     ambient_pressure_pa: self.ambient_pressure_pa.unwrap_or_default(),
-                }),
+                })),
                 None,
             ),
+            (None, None) if pressure_optional => (None, self.ambient_pressure_pa),
             (None, None) => return Err(Failure::Usage("give --npr or --total-pressure-pa".into())),
         };
         Ok(pb::JetConditions {
             nozzle: Some(pb::Nozzle { kind: Some(kind) }),
             operating_point: Some(pb::OperatingPoint {
-                pressure: Some(pressure),
+                pressure,
                 total_temperature_k: self.total_temperature_k,
                 ambient_temperature_k: self.ambient_temperature_k,
                 ambient_pressure_pa,

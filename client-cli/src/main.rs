@@ -10,6 +10,7 @@ mod gas;
 mod output;
 mod readers;
 mod spectrum;
+mod staging;
 mod tones;
 
 use clap::{Parser, Subcommand};
@@ -53,6 +54,8 @@ enum Command {
     Bands(spectrum::BandsCmd),
     /// Write a demo WAV of an imagined jet rig (screech, harmonics, shock-noise hump, noise).
     Synth(spectrum::SynthCmd),
+    /// Stages, jumps, hysteresis and loop-model fits of a measured sweep (CSV).
+    Fit(staging::FitCmd),
     /// Server version, models with references, and limits.
     Info,
 }
@@ -96,6 +99,7 @@ async fn run(cli: Cli) -> Result<output::Report, Failure> {
         Command::Tones(a) => spectrum::tones(ch, a).await,
         Command::Bands(a) => spectrum::bands(ch, a).await,
         Command::Synth(_) => Err(Failure::Usage("synth runs without a server".into())),
+        Command::Fit(a) => staging::fit(ch, a).await,
         Command::Info => gas::info(ch).await,
     }
 }

@@ -158,3 +158,43 @@ async fn synth_wav_then_tones_finds_the_screech_family() {
     assert_eq!(jb["channels"][1]["channel"], "mic_b");
     server.stop().await;
 }
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn fit_reads_the_demo_sweep_and_reports_hysteresis() {
+    let server = TestServer::start().await;
+    let u = server.url();
+    let out = tokio::task::spawn_blocking(move || {
+        let csv = concat!(env!("CARGO_MANIFEST_DIR"), "/../examples/npr-sweep-up-down.csv");
+        let svg = std::env::temp_dir().join(format!("jetloop-fit-{}.svg", std::process::id()));
+        let o = jetloop(
+            &u,
+            &[
+                "--json",
+                "fit",
+                csv,
+                "--control",
+                "npr",
+                "--diameter-m",
+                "0.0254",
+                "--source-cells",
+                "4",
+                "--plot",
+                svg.to_str().unwrap(),
+            ],
+        );
+        (o, std::fs::read_to_string(&svg).unwrap_or_default())
+    })
+    .await
+    .unwrap();
+    let j = json(&out.0);
+    assert_eq!(j["stages"].as_array().unwrap().len(), 3);
+    let h = &j["hysteresis"][0];
+    // The demo sweep jumps up at NPR 3.10-3.15 and back down at 2.90-2.85.
+    assert!(
+        (h["x_low"].as_f64().unwrap() - 2.875).abs() < 0.03
+            && (h["x_high"].as_f64().unwrap() - 3.125).abs() < 0.03,
+        "{h}"
+    );
+    assert!(out.1.contains("nozzle pressure ratio"));
+    server.stop().await;
+}

@@ -353,10 +353,11 @@ pub fn staging_response(q: StagingQuery) -> pb::FitStagesResponse {
             upper_stage: h.stages.1 as u32,
         })
         .collect();
-    let m = points.len();
     let mut models_cmp = Vec::new();
     let fits: Vec<_> = res.stages.iter().filter_map(|s| s.fit.as_ref()).collect();
-    if !fits.is_empty() && fits.len() == res.stages.len() {
+    if !fits.is_empty() {
+        // Both models are compared on the points of the stages that have a loop fit.
+        let m: usize = res.stages.iter().filter(|s| s.fit.is_some()).map(|s| s.points.len()).sum();
         let chi2: f64 = fits.iter().map(|f| f.chi2).sum();
         let k = fits.iter().map(|f| f.free + 1).sum::<usize>();
         let (aic, bic) = information_criteria(chi2, k, m);
@@ -368,18 +369,18 @@ pub fn staging_response(q: StagingQuery) -> pb::FitStagesResponse {
             bic,
             preferred: false,
         });
-    }
-    if let Some(sh) = &res.shared {
-        let k = sh.free + sh.orders.len();
-        let (aic, bic) = information_criteria(sh.chi2, k, m);
-        models_cmp.push(pb::ModelComparison {
-            model: "shared loop".into(),
-            parameter_count: k as u32,
-            chi_square: sh.chi2,
-            aic,
-            bic,
-            preferred: false,
-        });
+        if let Some(sh) = &res.shared {
+            let k = sh.free + fits.len();
+            let (aic, bic) = information_criteria(sh.chi2, k, m);
+            models_cmp.push(pb::ModelComparison {
+                model: "shared loop".into(),
+                parameter_count: k as u32,
+                chi_square: sh.chi2,
+                aic,
+                bic,
+                preferred: false,
+            });
+        }
     }
     if let Some(best) =
         models_cmp.iter().enumerate().min_by(|a, b| a.1.bic.total_cmp(&b.1.bic)).map(|(i, _)| i)

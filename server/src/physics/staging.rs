@@ -284,7 +284,48 @@ pub fn segment(points: &[Point], jump_fraction: f64) -> Vec<Vec<usize>> {
             None => branches.push(Branch { members: vec![i] }),
         }
     }
-    branches.into_iter().map(|b| b.members).collect()
+    merge_continuations(points, branches.into_iter().map(|b| b.members).collect(), jump_fraction, gap_limit)
+}
+
+/// Second pass: a branch that ends just before another begins is the same stage when the
+/// later branch, extended backwards along its own slope, meets the earlier one's last point
+/// within `jump_fraction`. This rejoins a stage split where its frequency moves fast (near
+/// Mj = 1) and the first step of a branch had no slope to follow.
+fn merge_continuations(
+    points: &[Point],
+    mut branches: Vec<Vec<usize>>,
+    jump_fraction: f64,
+    gap_limit: f64,
+) -> Vec<Vec<usize>> {
+    loop {
+        let mut merged = false;
+        'outer: for a in 0..branches.len() {
+            for b in 0..branches.len() {
+                if a == b {
+                    continue;
+                }
+                let last_a = points[*branches[a].last().unwrap_or(&0)];
+                let first_b = points[branches[b][0]];
+                let a_max = branches[a].iter().map(|&i| points[i].x).fold(f64::MIN, f64::max);
+                let b_min = branches[b].iter().map(|&i| points[i].x).fold(f64::MAX, f64::min);
+                if !(a_max < b_min && b_min - a_max <= gap_limit) || first_b.x != b_min {
+                    continue;
+                }
+                let head: Vec<usize> = branches[b].iter().take(4).rev().copied().collect();
+                let pred = predict(points, &head, last_a.x);
+                if ((last_a.f - pred) / pred).abs() <= jump_fraction {
+                    let tail = std::mem::take(&mut branches[b]);
+                    branches[a].extend(tail);
+                    branches.remove(b);
+                    merged = true;
+                    break 'outer;
+                }
+            }
+        }
+        if !merged {
+            return branches;
+        }
+    }
 }
 
 /// Frequency a branch predicts at x: its last point's frequency moved along the slope of its
@@ -652,17 +693,22 @@ fn shared_pressure(
     res: &StagingResult,
     cfg: &FitConfig,
 ) -> Option<SharedLoop> {
-    let fits: Vec<&StageLoop> = res.stages.iter().filter_map(|s| s.fit.as_ref()).collect();
-    if fits.len() != res.stages.len() || fits.len() < 2 {
+    // Only stages with their own fit take part; points of the others are left out.
+    let fitted: Vec<usize> = (0..res.stages.len()).filter(|&s| res.stages[s].fit.is_some()).collect();
+    if fitted.len() < 2 {
         return None;
     }
-    let ratios: Vec<f64> = fits.iter().map(|f| f.params[1].value / f64::from(f.n)).collect();
-    let rmax = ratios.iter().copied().fold(f64::MIN, f64::max);
+    let ratio_of = |s: usize| res.stages[s].fit.as_ref().map_or(1.0, |f| f.params[1].value / f64::from(f.n));
+    let ratios: Vec<f64> = (0..res.stages.len()).map(ratio_of).collect();
+    let rmax = fitted.iter().map(|&s| ratios[s]).fold(f64::MIN, f64::max);
     let solve = |orders: &[u32]| -> Option<LinearFit> {
         let mut rows = Vec::with_capacity(points.len());
         let mut y = Vec::with_capacity(points.len());
         let mut w = Vec::with_capacity(points.len());
         for (i, p) in points.iter().enumerate() {
+            if res.stages[res.stage_of[i]].fit.is_none() {
+                continue;
+            }
             let n = f64::from(orders[res.stage_of[i]]);
             let q = ph[i];
             rows.push(if cfg.fit_delay {
@@ -732,9 +778,8 @@ fn shared_pressure(
 
 /// Shared reflector loop: y = n_s / f = tau0 + g d / a with n per stage from the stage fits.
 fn shared_reflector(points: &[Point], res: &StagingResult, cfg: &FitConfig) -> Option<SharedLoop> {
-    let orders: Vec<u32> =
-        res.stages.iter().map(|s| s.fit.as_ref().map(|f| f.n)).collect::<Option<Vec<_>>>()?;
-    if orders.len() < 2 {
+    let orders: Vec<u32> = res.stages.iter().map(|s| s.fit.as_ref().map_or(0, |f| f.n)).collect();
+    if orders.iter().filter(|&&n| n > 0).count() < 2 {
         return None;
     }
     let a = cfg.a_amb;
@@ -742,6 +787,9 @@ fn shared_reflector(points: &[Point], res: &StagingResult, cfg: &FitConfig) -> O
     let mut y = Vec::new();
     let mut w = Vec::new();
     for (i, p) in points.iter().enumerate() {
+        if orders[res.stage_of[i]] == 0 {
+            continue;
+        }
         let n = f64::from(orders[res.stage_of[i]]);
         match cfg.reflector {
             ReflectorPath::Fixed(g) => {

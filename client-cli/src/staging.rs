@@ -1,0 +1,336 @@
+//! `jetloop fit`: stage segmentation and loop fits of a measured sweep from a CSV file.
+
+use crate::gas::JetArgs;
+use crate::output::{Report, Table, Val};
+use crate::Failure;
+use clap::{Args, ValueEnum};
+use jetloop_proto::pb::{self, staging_service_client::StagingServiceClient};
+use std::path::PathBuf;
+use tonic::transport::Channel;
+
+/// Meaning of the x column.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum ControlArg {
+    /// Nozzle pressure ratio (needs the nozzle: --nozzle, --diameter-m, ...).
+    Npr,
+    /// Fully expanded Mach number (needs the nozzle).
+    Mj,
+    /// Reflector displacement in m.
+    Reflector,
+    /// Any other variable (stages only).
+    Plain,
+}
+
+/// `jetloop fit`.
+#[derive(Debug, Args)]
+#[command(allow_negative_numbers = true)]
+pub struct FitCmd {
+    /// CSV with columns x, frequency_hz [, level_db [, direction]] in acquisition order;
+    /// direction is up/down (or increasing/decreasing, +/-). A header row is optional.
+    file: PathBuf,
+    /// Meaning of x.
+    #[arg(long, value_enum)]
+    control: ControlArg,
+    #[command(flatten)]
+    jet: JetArgs,
+    /// Relative frequency change that separates stages (server default 0.05).
+    #[arg(long)]
+    jump_fraction: Option<f64>,
+    /// Highest loop order (server default 10, at most 50).
+    #[arg(long)]
+    max_loop_order: Option<u32>,
+    /// Source position in whole shock cells, held fixed (default: searched).
+    #[arg(long)]
+    source_cells: Option<u32>,
+    /// Lower bound of Uc/Uj (server default 0.4).
+    #[arg(long)]
+    kappa_min: Option<f64>,
+    /// Upper bound of Uc/Uj (server default 0.9).
+    #[arg(long)]
+    kappa_max: Option<f64>,
+    /// Fit the reflector path factor instead of holding it at 2.
+    #[arg(long)]
+    fit_path_factor: bool,
+    /// Relative frequency uncertainty of every point (server default 0.01).
+    #[arg(long)]
+    relative_uncertainty: Option<f64>,
+    /// Write an SVG plot of frequency against x, coloured by stage, with the loop models.
+    #[arg(long)]
+    plot: Option<PathBuf>,
+}
+
+fn direction(s: &str) -> Option<pb::SweepDirection> {
+    match s.trim().to_ascii_lowercase().as_str() {
+        "up" | "increasing" | "+" | "inc" => Some(pb::SweepDirection::Increasing),
+        "down" | "decreasing" | "-" | "dec" => Some(pb::SweepDirection::Decreasing),
+        "" => Some(pb::SweepDirection::Unspecified),
+        _ => None,
+    }
+}
+
+fn read_points(path: &PathBuf) -> Result<Vec<pb::MeasuredTone>, Failure> {
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| Failure::Usage(format!("cannot read {}: {e}", path.display())))?;
+    let mut out = Vec::new();
+    for (i, line) in text.lines().enumerate() {
+        let line = line.trim();
+        if line.is_empty() || line.starts_with('#') {
+            continue;
+        }
+        let cells: Vec<&str> = line.split([',', ';', '\t']).map(str::trim).collect();
+        let (Ok(x), Ok(f)) = (cells[0].parse::<f64>(), cells.get(1).unwrap_or(&"").parse::<f64>()) else {
+            if out.is_empty() {
+                continue; // header
+            }
+            return Err(Failure::Usage(format!(
+                "{} line {}: x and frequency must be numbers",
+                path.display(),
+                i + 1
+            )));
+        };
+        let level_db = cells.get(2).and_then(|c| c.parse::<f64>().ok());
+        let dir = match cells.get(3) {
+            None => pb::SweepDirection::Unspecified,
+            Some(c) => direction(c).ok_or_else(|| {
+                Failure::Usage(format!("{} line {}: direction '{c}' is not up/down", path.display(), i + 1))
+            })?,
+        };
+        out.push(pb::MeasuredTone {
+            x,
+            frequency_hz: f,
+            level_db,
+            frequency_uncertainty_hz: None,
+            direction: dir as i32,
+            acquisition_index: Some(out.len() as u64),
+        });
+    }
+    Ok(out)
+}
+
+fn param_text(p: &pb::FittedParameter) -> String {
+    let mut s = match p.standard_error {
+        Some(se) => format!("{:.4e} +- {:.1e}", p.value, se),
+        None => format!("{:.4e}", p.value),
+    };
+    if p.fixed {
+        s.push_str(" (fixed)");
+    }
+    if p.at_bound {
+        s.push_str(" (at bound)");
+    }
+    s
+}
+
+fn find<'a>(ps: &'a [pb::FittedParameter], name: &str) -> Option<&'a pb::FittedParameter> {
+    ps.iter().find(|p| p.name == name)
+}
+
+/// Runs `fit`.
+pub async fn fit(ch: Channel, a: FitCmd) -> Result<Report, Failure> {
+    let points = read_points(&a.file)?;
+    let control = match a.control {
+        ControlArg::Npr => pb::ControlVariable::NozzlePressureRatio,
+        ControlArg::Mj => pb::ControlVariable::FullyExpandedMachNumber,
+        ControlArg::Reflector => pb::ControlVariable::ReflectorDistanceM,
+        ControlArg::Plain => pb::ControlVariable::Plain,
+    };
+    let jet = match a.control {
+        ControlArg::Npr | ControlArg::Mj => Some(a.jet.context()?),
+        _ => None,
+    };
+    let req = pb::FitStagesRequest {
+        control: control as i32,
+        points: points.clone(),
+        jet,
+        options: Some(pb::FitOptions {
+            jump_fraction: a.jump_fraction,
+            max_loop_order: a.max_loop_order,
+            convection_ratio_min: a.kappa_min,
+            convection_ratio_max: a.kappa_max,
+            source_cells: a.source_cells,
+            fit_reflector_path_factor: a.fit_path_factor,
+            default_relative_uncertainty: a.relative_uncertainty,
+            ..Default::default()
+        }),
+    };
+    let r = StagingServiceClient::new(ch)
+        .max_decoding_message_size(256 << 20)
+        .fit_stages(req)
+        .await?
+        .into_inner();
+    let mut stages = Table::new("stages", "Stages")
+        .col("stage", "stage")
+        .col("x_min", "x from")
+        .col("x_max", "x to")
+        .col("point_count", "points")
+        .col("loop_order", "n")
+        .col("convection_ratio", "Uc/Uj")
+        .col("source_cells", "N cells")
+        .col("fixed_delay_s", "tau0 [s]")
+        .col("reflector_path_factor", "g")
+        .col("rms_relative_error", "rms rel. err.");
+    for s in &r.stages {
+        let text = |n: &str| find(&s.parameters, n).map(|p| Val::Text(param_text(p)));
+        stages.row(vec![
+            Some(Val::Int(s.stage.into())),
+            Some(Val::Num(s.x_min)),
+            Some(Val::Num(s.x_max)),
+            Some(Val::Int(s.point_count.into())),
+            s.loop_order.map(|n| Val::Int(n.into())),
+            text("convection_ratio"),
+            text("source_cells"),
+            text("fixed_delay_s"),
+            text("reflector_path_factor"),
+            s.rms_relative_error.map(Val::Num),
+        ]);
+    }
+    let mut jumps = Table::new("jumps", "Jumps")
+        .col("direction", "sweep")
+        .col("x_before", "x before")
+        .col("x_after", "x after")
+        .col("from_stage", "from")
+        .col("to_stage", "to")
+        .col("frequency_before_hz", "f before [Hz]")
+        .col("frequency_after_hz", "f after [Hz]");
+    for j in &r.jumps {
+        let d = match pb::SweepDirection::try_from(j.direction) {
+            Ok(pb::SweepDirection::Increasing) => "up",
+            Ok(pb::SweepDirection::Decreasing) => "down",
+            _ => "-",
+        };
+        jumps.row(vec![
+            Some(Val::Text(d.into())),
+            Some(Val::Num(j.x_before)),
+            Some(Val::Num(j.x_after)),
+            Some(Val::Int(j.from_stage.into())),
+            Some(Val::Int(j.to_stage.into())),
+            Some(Val::Num(j.frequency_before_hz)),
+            Some(Val::Num(j.frequency_after_hz)),
+        ]);
+    }
+    let mut hyst = Table::new("hysteresis", "Hysteresis")
+        .col("x_low", "x from")
+        .col("x_high", "x to")
+        .col("lower_stage", "stage below")
+        .col("upper_stage", "stage above");
+    for h in &r.hysteresis {
+        hyst.row(vec![
+            Some(Val::Num(h.x_low)),
+            Some(Val::Num(h.x_high)),
+            Some(Val::Int(h.lower_stage.into())),
+            Some(Val::Int(h.upper_stage.into())),
+        ]);
+    }
+    let mut models = Table::new("models", "Model comparison")
+        .col("model", "model")
+        .col("parameter_count", "k")
+        .col("chi_square", "chi^2")
+        .col("aic", "AIC")
+        .col("bic", "BIC")
+        .col("preferred", "preferred");
+    for m in &r.models {
+        models.row(vec![
+            Some(Val::Text(m.model.clone())),
+            Some(Val::Int(m.parameter_count.into())),
+            Some(Val::Num(m.chi_square)),
+            Some(Val::Num(m.aic)),
+            Some(Val::Num(m.bic)),
+            Some(Val::Flag(m.preferred)),
+        ]);
+    }
+    let mut rep = Report::new(format!(
+        "Stages of {} ({} points, {:.2} ms server time)",
+        a.file.display(),
+        r.points.len(),
+        r.compute_time_s * 1e3
+    ))
+    .table(stages)
+    .table(jumps)
+    .table(hyst)
+    .table(models);
+    for s in &r.stages {
+        if !s.alias_resolution.is_empty() {
+            rep = rep.text(
+                "alias",
+                "loop-order ambiguity",
+                format!("stage {}: {}", s.stage, s.alias_resolution),
+            );
+        }
+    }
+    if let Some(path) = &a.plot {
+        let x_label = match a.control {
+            ControlArg::Npr => "nozzle pressure ratio",
+            ControlArg::Mj => "fully expanded Mach number",
+            ControlArg::Reflector => "reflector distance [m]",
+            ControlArg::Plain => "x",
+        };
+        std::fs::write(path, svg(&points, &r, x_label))
+            .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
+        eprintln!("wrote stage plot {}", path.display());
+    }
+    Ok(rep.provenance(r.provenance))
+}
+
+const COLOURS: [&str; 8] =
+    ["#1f5fa8", "#c0392b", "#27ae60", "#8e44ad", "#d35400", "#16a085", "#7f8c8d", "#b7950b"];
+
+/// Frequency against x, one colour per stage; model frequencies as small crosses.
+fn svg(points: &[pb::MeasuredTone], r: &pb::FitStagesResponse, x_label: &str) -> String {
+    let (w, h, l, rm, t, b) = (900.0, 520.0, 80.0, 20.0, 40.0, 50.0);
+    let xs = || points.iter().map(|p| p.x);
+    let fs =
+        || points.iter().map(|p| p.frequency_hz).chain(r.points.iter().filter_map(|p| p.model_frequency_hz));
+    let (x0, x1) = (xs().fold(f64::MAX, f64::min), xs().fold(f64::MIN, f64::max));
+    let (f0, f1) = (fs().fold(f64::MAX, f64::min) * 0.95, fs().fold(f64::MIN, f64::max) * 1.05);
+    let span = |a: f64, b: f64| if b > a { b - a } else { 1.0 };
+    let x = |v: f64| l + (v - x0) / span(x0, x1) * (w - l - rm);
+    let y = |v: f64| t + (f1 - v) / span(f0, f1) * (h - t - b);
+    let mut s = format!(
+        "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{h}\" font-family=\"sans-serif\" font-size=\"12\">\n\
+         <rect width=\"100%\" height=\"100%\" fill=\"white\"/>\n<text x=\"{l}\" y=\"22\" font-size=\"14\">Tone frequency by stage</text>\n"
+    );
+    for k in 0..=5 {
+        let fv = f0 + span(f0, f1) * f64::from(k) / 5.0;
+        let xv = x0 + span(x0, x1) * f64::from(k) / 5.0;
+        s.push_str(&format!("<line x1=\"{l}\" y1=\"{0:.1}\" x2=\"{1:.1}\" y2=\"{0:.1}\" stroke=\"#ddd\"/><text x=\"{2:.1}\" y=\"{3:.1}\" text-anchor=\"end\">{fv:.0}</text>\n", y(fv), w - rm, l - 6.0, y(fv) + 4.0));
+        s.push_str(&format!("<line x1=\"{0:.1}\" y1=\"{t}\" x2=\"{0:.1}\" y2=\"{1:.1}\" stroke=\"#ddd\"/><text x=\"{0:.1}\" y=\"{2:.1}\" text-anchor=\"middle\">{xv:.4}</text>\n", x(xv), h - b, h - b + 16.0));
+    }
+    s.push_str(&format!(
+        "<text x=\"{:.1}\" y=\"{:.1}\" text-anchor=\"middle\">{x_label}</text><text transform=\"translate(18 {:.1}) rotate(-90)\" text-anchor=\"middle\">frequency [Hz]</text>\n",
+        (l + w - rm) / 2.0,
+        h - 12.0,
+        (t + h - b) / 2.0
+    ));
+    for (p, res) in points.iter().zip(&r.points) {
+        let c = COLOURS[res.stage as usize % COLOURS.len()];
+        s.push_str(&format!(
+            "<circle cx=\"{:.1}\" cy=\"{:.1}\" r=\"3\" fill=\"{c}\"/>\n",
+            x(p.x),
+            y(p.frequency_hz)
+        ));
+        if let Some(m) = res.model_frequency_hz {
+            let (cx, cy) = (x(p.x), y(m));
+            s.push_str(&format!(
+                "<path d=\"M{:.1} {:.1}h6M{:.1} {:.1}v6\" stroke=\"#333\" stroke-width=\"0.8\"/>\n",
+                cx - 3.0,
+                cy,
+                cx,
+                cy - 3.0
+            ));
+        }
+    }
+    for st in &r.stages {
+        let c = COLOURS[st.stage as usize % COLOURS.len()];
+        let label = match st.loop_order {
+            Some(n) => format!("stage {} (n = {n})", st.stage),
+            None => format!("stage {}", st.stage),
+        };
+        s.push_str(&format!(
+            "<text x=\"{:.1}\" y=\"{:.1}\" fill=\"{c}\">{label}</text>\n",
+            w - rm - 140.0,
+            t + 16.0 + 16.0 * f64::from(st.stage)
+        ));
+    }
+    s.push_str(&format!("<rect x=\"{l}\" y=\"{t}\" width=\"{:.1}\" height=\"{:.1}\" fill=\"none\" stroke=\"#333\"/>\n</svg>\n", w - l - rm, h - t - b));
+    s
+}

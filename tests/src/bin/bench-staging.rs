@@ -1,0 +1,91 @@
+//! Benchmark: FitStages on reflector and pressure sweeps over loopback gRPC, with the server
+//! compute time from each response, for 1,000 points in 6 stages and how it scales with the
+//! number of points and n_max.
+//!
+//! Run with `cargo run --release -p jetloop-tests --bin bench-staging`.
+#![forbid(unsafe_code)]
+
+use jetloop_proto::pb::{self, nozzle::Kind, staging_service_client::StagingServiceClient};
+use jetloop_tests::TestServer;
+
+fn median(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    v[v.len() / 2]
+}
+
+/// Six stages over NPR 2.2-5.0 whose frequencies follow a smooth trend with 12 % jumps
+/// (synthetic, for timing only).
+fn pressure_points(m: usize) -> Vec<pb::MeasuredTone> {
+    (0..m)
+        .map(|k| {
+            let npr = 2.2 + 2.8 * k as f64 / m as f64;
+            let stage = (6 * k / m) as i32;
+            let f = 6000.0 / (npr - 1.0) * 1.12f64.powi(stage % 2 * 2 - 1 + stage / 2);
+            pb::MeasuredTone { x: npr, frequency_hz: f, ..Default::default() }
+        })
+        .collect()
+}
+
+fn reflector_points(m: usize) -> Vec<pb::MeasuredTone> {
+    let a = (1.4f64 * 287.05 * 288.15).sqrt();
+    (0..m)
+        .map(|k| {
+            let n = 2 + (6 * k / m) as u32;
+            let d = 0.05 * (k % (m / 6).max(1)) as f64 / (m / 6).max(1) as f64;
+            pb::MeasuredTone {
+                x: d,
+                frequency_hz: f64::from(n) / (2.5e-4 + 2.0 * d / a),
+                ..Default::default()
+            }
+        })
+        .collect()
+}
+
+#[tokio::main]
+async fn main() {
+    let server = TestServer::start().await;
+    let mut c = StagingServiceClient::new(server.channel().await).max_decoding_message_size(256 << 20);
+    let jet = pb::JetConditions {
+        nozzle: Some(pb::Nozzle {
+            kind: Some(Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: 0.0254 })),
+        }),
+        ..Default::default()
+    };
+    println!("FitStages server compute time (median of 15), 6 stages");
+    println!("  {:>22} {:>8} {:>6} {:>12}", "sweep", "points", "n_max", "time [ms]");
+    for (label, m, nmax) in [
+        ("pressure, N searched", 1000, 10),
+        ("pressure, N searched", 1000, 20),
+        ("pressure, N searched", 1000, 50),
+        ("pressure, N searched", 10_000, 10),
+        ("pressure, N searched", 100_000, 10),
+        ("pressure, N = 4 given", 1000, 10),
+        ("reflector", 1000, 10),
+        ("reflector", 100_000, 10),
+    ] {
+        let reflector = label == "reflector";
+        let req = pb::FitStagesRequest {
+            control: if reflector {
+                pb::ControlVariable::ReflectorDistanceM
+            } else {
+                pb::ControlVariable::NozzlePressureRatio
+            } as i32,
+            points: if reflector { reflector_points(m) } else { pressure_points(m) },
+            jet: (!reflector).then_some(jet),
+            options: Some(pb::FitOptions {
+                max_loop_order: Some(nmax),
+                source_cells: label.contains("given").then_some(4),
+                ..Default::default()
+            }),
+        };
+        let mut t = Vec::new();
+        let mut stages = 0;
+        for _ in 0..15 {
+            let r = c.fit_stages(req.clone()).await.expect("fit").into_inner();
+            stages = r.stages.len();
+            t.push(r.compute_time_s * 1e3);
+        }
+        println!("  {label:>22} {m:>8} {nmax:>6} {:>12.3}   ({stages} stages found)", median(t));
+    }
+    server.stop().await;
+}
