@@ -12,7 +12,6 @@ use jetloop_proto::pb::{
 };
 use std::future::Future;
 use tokio::net::TcpListener;
-use tokio_stream::wrappers::TcpListenerStream;
 use tonic::transport::Server;
 
 /// Error starting or running the server.
@@ -85,7 +84,12 @@ pub async fn serve(
         .add_service(tones)
         .add_service(spectrum)
         .add_service(staging)
-        .serve_with_incoming_shutdown(TcpListenerStream::new(listener), shutdown)
+        // TCP_NODELAY: without it Nagle's algorithm and delayed ACKs stall multi-megabyte
+        // uploads for tens of milliseconds.
+        .serve_with_incoming_shutdown(
+            tonic::transport::server::TcpIncoming::from(listener).with_nodelay(Some(true)),
+            shutdown,
+        )
         .await?;
     Ok(())
 }

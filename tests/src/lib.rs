@@ -5,6 +5,7 @@ use jetloop_server::config::Limits;
 use std::net::SocketAddr;
 use tokio::sync::oneshot;
 use tokio::task::JoinHandle;
+use tonic_types::StatusExt;
 
 /// A server running in this process on `127.0.0.1:<free port>`.
 pub struct TestServer {
@@ -68,4 +69,17 @@ impl TestServer {
             h.await.expect("server task").expect("server result");
         }
     }
+}
+
+/// Asserts that `status` has `code` and a `google.rpc.BadRequest` violation on `field`.
+///
+/// # Panics
+/// When it does not.
+pub fn assert_field(status: &tonic::Status, code: tonic::Code, field: &str) {
+    assert_eq!(status.code(), code, "{status:?}");
+    let details = status.get_error_details();
+    let bad = details.bad_request().expect("BadRequest details");
+    let fields: Vec<_> = bad.field_violations.iter().map(|v| v.field.as_str()).collect();
+    assert!(fields.contains(&field), "expected {field} in {fields:?}: {}", status.message());
+    assert!(bad.field_violations.iter().all(|v| !v.description.is_empty()));
 }

@@ -7,7 +7,6 @@ use jetloop_proto::pb::{
 };
 use jetloop_tests::TestServer;
 use tonic::Code;
-use tonic_types::StatusExt;
 
 fn rel(a: f64, b: f64) -> f64 {
     ((a - b) / b).abs()
@@ -29,14 +28,9 @@ fn round(d: f64) -> Kind {
     Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: d })
 }
 
-/// Asserts INVALID_ARGUMENT with a BadRequest violation on exactly `field`.
+/// Asserts INVALID_ARGUMENT with a BadRequest violation on `field`.
 fn assert_field(status: &tonic::Status, field: &str) {
-    assert_eq!(status.code(), Code::InvalidArgument, "{status:?}");
-    let details = status.get_error_details();
-    let bad = details.bad_request().expect("BadRequest details");
-    let fields: Vec<_> = bad.field_violations.iter().map(|v| v.field.as_str()).collect();
-    assert!(fields.contains(&field), "expected {field} in {fields:?}");
-    assert!(!bad.field_violations[0].description.is_empty());
+    jetloop_tests::assert_field(status, Code::InvalidArgument, field);
 }
 
 #[tokio::test]

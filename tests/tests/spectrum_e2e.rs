@@ -5,10 +5,9 @@ use jetloop_proto::pb::{
     self, samples::Data, spectrum_service_client::SpectrumServiceClient, welch_options::Segment,
 };
 use jetloop_server::config::Limits;
-use jetloop_tests::TestServer;
+use jetloop_tests::{assert_field, TestServer};
 use std::f64::consts::PI;
 use tonic::Code;
-use tonic_types::StatusExt;
 
 fn tone(n: usize, fs: f64, f: f64, amp: f64) -> Vec<f64> {
     (0..n).map(|i| amp * (2.0 * PI * f * i as f64 / fs).sin()).collect()
@@ -24,14 +23,6 @@ fn samples(values: Vec<f64>, fs: f64) -> pb::Samples {
 
 fn request(s: pb::Samples) -> pb::ExtractTonesRequest {
     pb::ExtractTonesRequest { samples: Some(s), ..Default::default() }
-}
-
-fn assert_field(status: &tonic::Status, code: Code, field: &str) {
-    assert_eq!(status.code(), code, "{status:?}");
-    let details = status.get_error_details();
-    let bad = details.bad_request().expect("BadRequest details");
-    let fields: Vec<_> = bad.field_violations.iter().map(|v| v.field.as_str()).collect();
-    assert!(fields.contains(&field), "expected {field} in {fields:?}: {}", status.message());
 }
 
 #[tokio::test]

@@ -1,9 +1,8 @@
 //! End to end over a real socket: StagingService segmentation and fits, and its limits.
 
 use jetloop_proto::pb::{self, nozzle::Kind, staging_service_client::StagingServiceClient};
-use jetloop_tests::TestServer;
+use jetloop_tests::{assert_field, TestServer};
 use tonic::Code;
-use tonic_types::StatusExt;
 
 fn jet() -> pb::JetConditions {
     pb::JetConditions {
@@ -17,14 +16,6 @@ fn jet() -> pb::JetConditions {
 
 fn tone(x: f64, f: f64) -> pb::MeasuredTone {
     pb::MeasuredTone { x, frequency_hz: f, ..Default::default() }
-}
-
-fn assert_field(status: &tonic::Status, code: Code, field: &str) {
-    assert_eq!(status.code(), code, "{status:?}");
-    let details = status.get_error_details();
-    let bad = details.bad_request().expect("BadRequest details");
-    let fields: Vec<_> = bad.field_violations.iter().map(|v| v.field.as_str()).collect();
-    assert!(fields.contains(&field), "expected {field} in {fields:?}: {}", status.message());
 }
 
 #[tokio::test]

@@ -6,9 +6,8 @@ use jetloop_proto::pb::{
     shock_cell_service_client::ShockCellServiceClient, sweep_screech_request::Values,
     tone_service_client::ToneServiceClient,
 };
-use jetloop_tests::TestServer;
+use jetloop_tests::{assert_field, TestServer};
 use tonic::Code;
-use tonic_types::StatusExt;
 
 fn rel(a: f64, b: f64) -> f64 {
     ((a - b) / b).abs()
@@ -37,14 +36,6 @@ fn direct(mj: f64, d: f64) -> pb::JetInput {
             ..Default::default()
         })),
     }
-}
-
-fn assert_field(status: &tonic::Status, code: Code, field: &str) {
-    assert_eq!(status.code(), code, "{status:?}");
-    let details = status.get_error_details();
-    let bad = details.bad_request().expect("BadRequest details");
-    let fields: Vec<_> = bad.field_violations.iter().map(|v| v.field.as_str()).collect();
-    assert!(fields.contains(&field), "expected {field} in {fields:?}");
 }
 
 #[tokio::test]

@@ -554,7 +554,7 @@ pub fn sweep_response(q: &SweepQuery) -> Result<pb::SweepScreechResponse, ApiErr
             }
         };
         let (npr, mj, reg, uj, lref) = match &state {
-            Some(st) => (st.npr, st.mj, regime(st.regime) as i32, st.uj_m_s, reference_length(st)),
+            Some(st) => (st.npr, st.mj, regime(st.regime) as i32, st.uj_m_s, st.size.reference_length_m()),
             None => (
                 1.0 / q.jet.jet.gas.pressure_ratio(q.jet.jet.mj),
                 q.jet.jet.mj,
@@ -607,12 +607,4 @@ pub fn sweep_response(q: &SweepQuery) -> Result<pb::SweepScreechResponse, ApiErr
         compute_time_s: t.elapsed().as_secs_f64(),
         provenance: Some(provenance(&used, &q.jet.defaults, notes)),
     })
-}
-
-fn reference_length(s: &crate::physics::jet::JetState) -> f64 {
-    match s.size {
-        crate::physics::jet::JetSize::Round { diameter_m } => diameter_m,
-        crate::physics::jet::JetSize::Rectangular { height_m, .. }
-        | crate::physics::jet::JetSize::Planar { height_m } => height_m,
-    }
 }

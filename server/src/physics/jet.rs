@@ -40,27 +40,41 @@ pub const MACH_DISK_EXIT_PRESSURE_RATIO: f64 = 2.0;
 /// Relative tolerance within which the operating point counts as ideally expanded.
 pub const IDEAL_TOLERANCE: f64 = 1e-9;
 
-/// Cross-section of the nozzle exit.
+/// A cross-section: the nozzle exit ([`Shape`]) or the fully expanded jet ([`JetSize`]).
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub enum Shape {
-    /// Round exit of diameter `diameter_m`.
+pub enum Section {
+    /// Round, of diameter `diameter_m` (m).
     Round {
-        /// Exit diameter, m.
+        /// Diameter, m.
         diameter_m: f64,
     },
-    /// Rectangular exit; `height_m` is the short side.
+    /// Rectangular; `height_m` is the short side (m).
     Rectangular {
-        /// Exit height (short side), m.
+        /// Height (short side), m.
         height_m: f64,
-        /// Exit width (long side), m.
+        /// Width (long side), m.
         width_m: f64,
     },
-    /// Two-dimensional exit of height `height_m` and infinite span.
+    /// Two-dimensional, of height `height_m` (m) and infinite span.
     Planar {
-        /// Exit height, m.
+        /// Height, m.
         height_m: f64,
     },
 }
+
+impl Section {
+    /// The length Strouhal numbers and positions are scaled with: the diameter of a round
+    /// section, the height otherwise, m.
+    pub fn reference_length_m(&self) -> f64 {
+        match *self {
+            Section::Round { diameter_m } => diameter_m,
+            Section::Rectangular { height_m, .. } | Section::Planar { height_m } => height_m,
+        }
+    }
+}
+
+/// Cross-section of the nozzle exit.
+pub type Shape = Section;
 
 /// A nozzle: exit shape and design Mach number (1 for a convergent nozzle).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -243,27 +257,8 @@ pub enum Regime {
     UnderExpanded,
 }
 
-/// Fully expanded dimensions of the jet, by nozzle shape.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum JetSize {
-    /// Round jet of fully expanded diameter Dj in m.
-    Round {
-        /// Dj, m.
-        diameter_m: f64,
-    },
-    /// Rectangular jet of fully expanded height hj and width bj in m.
-    Rectangular {
-        /// hj, m.
-        height_m: f64,
-        /// bj, m.
-        width_m: f64,
-    },
-    /// Planar jet of fully expanded height hj in m.
-    Planar {
-        /// hj, m.
-        height_m: f64,
-    },
-}
+/// Fully expanded dimensions of the jet (Dj, or hj and bj), by nozzle shape.
+pub type JetSize = Section;
 
 /// The fully expanded jet and the nozzle flow that produces it.
 #[derive(Debug, Clone, PartialEq)]
@@ -599,10 +594,7 @@ impl ExpandedJet {
     /// Length that Strouhal numbers and positions are scaled with: Dj for round jets, hj for
     /// rectangular and planar jets, m.
     pub fn reference_length_m(&self) -> f64 {
-        match self.size {
-            JetSize::Round { diameter_m } => diameter_m,
-            JetSize::Rectangular { height_m, .. } | JetSize::Planar { height_m } => height_m,
-        }
+        self.size.reference_length_m()
     }
 
     /// sqrt(Mj^2 - 1).
