@@ -109,9 +109,10 @@ pub fn sample_set(s: Option<pb::Samples>, defaults: &mut Defaults) -> Result<Sam
             s.zip(v).map(|(s, v)| v / s)
         }
     };
+    let mut raw_format = None;
     let (count, field) = match &data {
         Some(Data::Raw(r)) => {
-            let w = match pb::SampleFormat::try_from(r.format) {
+            raw_format = match pb::SampleFormat::try_from(r.format) {
                 Ok(pb::SampleFormat::F32Le) => Some(Format::F32),
                 Ok(pb::SampleFormat::F64Le) => Some(Format::F64),
                 Ok(pb::SampleFormat::I16Le) => Some(Format::I16),
@@ -128,7 +129,7 @@ pub fn sample_set(s: Option<pb::Samples>, defaults: &mut Defaults) -> Result<Sam
                     None
                 }
             };
-            (w.map_or(0, |f| r.data.len() / f.width()), "samples.raw.data")
+            (raw_format.map_or(0, |f| r.data.len() / f.width()), "samples.raw.data")
         }
         Some(Data::Values(v)) => (v.values.len(), "samples.values.values"),
         None => {
@@ -153,14 +154,9 @@ pub fn sample_set(s: Option<pb::Samples>, defaults: &mut Defaults) -> Result<Sam
         return check.finish(None);
     }
     let decoded = match data {
+        // The check above is clean, so a raw format was recognized.
         Data::Raw(r) => {
-            let f = match pb::SampleFormat::try_from(r.format) {
-                Ok(pb::SampleFormat::F64Le) => Format::F64,
-                Ok(pb::SampleFormat::I16Le) => Format::I16,
-                Ok(pb::SampleFormat::I32Le) => Format::I32,
-                _ => Format::F32,
-            };
-            decode_bytes(&r.data, f, layout, channels as usize, scale)
+            decode_bytes(&r.data, raw_format.unwrap_or(Format::F32), layout, channels as usize, scale)
         }
         Data::Values(v) => decode_values(&v.values, layout, channels as usize, scale),
     };
