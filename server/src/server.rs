@@ -73,8 +73,10 @@ pub async fn serve(
         // instead of many 64 KB steps (the default), which dominated upload time.
         .initial_stream_window_size(Some(16 * 1024 * 1024))
         .initial_connection_window_size(Some(32 * 1024 * 1024))
-        // Bound the work one connection can queue.
+        // Bound the work one connection can have in flight, and refuse the excess at once with
+        // RESOURCE_EXHAUSTED (load shedding) instead of queueing it without bound.
         .concurrency_limit_per_connection(limits.max_concurrent_requests)
+        .load_shed(true)
         .add_service(health)
         .add_service(reflection_v1)
         .add_service(reflection_v1alpha)

@@ -323,3 +323,56 @@ async fn tone_bad_input_names_the_field() {
     assert_eq!(e.code(), Code::FailedPrecondition);
     server.stop().await;
 }
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn excess_concurrent_calls_are_shed_with_resource_exhausted() {
+    // One call in flight per connection: of eight simultaneous 10,000-point sweeps on one
+    // connection, the ones that find the slot taken are refused at once, the rest succeed.
+    let limits = jetloop_server::config::Limits { max_concurrent_requests: 1, ..Default::default() };
+    let server = TestServer::start_with(limits).await;
+    let ch = server.channel().await;
+    let req = pb::SweepScreechRequest {
+        jet: Some(conditions(3.0)),
+        variable: pb::SweepVariable::NozzlePressureRatio as i32,
+        values: Some(Values::Range(pb::SweepRange { start: 2.0, stop: 6.0, count: 10_000 })),
+        options: None,
+    };
+    let calls: Vec<_> = (0..8)
+        .map(|_| {
+            let mut t = ToneServiceClient::new(ch.clone());
+            let r = req.clone();
+            tokio::spawn(async move { t.sweep_screech(r).await.map(|_| ()) })
+        })
+        .collect();
+    let mut ok = 0;
+    let mut shed = 0;
+    for c in calls {
+        match c.await.unwrap() {
+            Ok(()) => ok += 1,
+            Err(e) => {
+                assert_eq!(e.code(), Code::ResourceExhausted, "{e:?}");
+                shed += 1;
+            }
+        }
+    }
+    assert!(ok >= 1 && shed >= 1, "ok {ok}, shed {shed}");
+    server.stop().await;
+}
+
+#[tokio::test]
+async fn a_client_deadline_is_honoured() {
+    let server = TestServer::start().await;
+    let mut t = ToneServiceClient::new(server.channel().await);
+    let mut req = tonic::Request::new(pb::SweepScreechRequest {
+        jet: Some(conditions(3.0)),
+        variable: pb::SweepVariable::NozzlePressureRatio as i32,
+        values: Some(Values::Range(pb::SweepRange { start: 2.0, stop: 6.0, count: 10_000 })),
+        options: None,
+    });
+    req.set_timeout(std::time::Duration::from_micros(50));
+    let e = t.sweep_screech(req).await.unwrap_err();
+    // tonic reports an expired deadline as CANCELLED "Timeout expired" (its server timeout
+    // layer); either code means the call was cut short instead of running to the end.
+    assert!(matches!(e.code(), Code::DeadlineExceeded | Code::Cancelled), "{e:?}");
+    server.stop().await;
+}

@@ -107,6 +107,9 @@ pub fn decode_bytes(
         return Err(DecodeError::Ragged { bytes: bytes.len(), channels, width: w });
     }
     let n = bytes.len() / frame;
+    if n == 0 {
+        return Ok(Channels { data: vec![Vec::new(); channels] });
+    }
     let data: Vec<Vec<f64>> = match format {
         Format::F32 => split(
             bytes,
