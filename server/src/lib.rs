@@ -11,3 +11,5 @@ pub mod dsp;
 pub mod physics;
 pub mod server;
 pub mod service;
+#[cfg(test)]
+mod test_rng;

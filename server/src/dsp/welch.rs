@@ -209,21 +209,10 @@ pub fn welch(x: &[f64], fs: f64, config: WelchConfig) -> Result<Psd, WelchError>
 pub(crate) mod tests {
     use super::*;
 
-    /// Deterministic Gaussian noise (xorshift64* and Box-Muller) for tests.
+    /// Deterministic Gaussian noise for tests.
     pub(crate) fn noise(n: usize, seed: u64, sigma: f64) -> Vec<f64> {
-        let mut s = seed.max(1);
-        let mut next = || {
-            s ^= s >> 12;
-            s ^= s << 25;
-            s ^= s >> 27;
-            (s.wrapping_mul(0x2545_F491_4F6C_DD1D) >> 11) as f64 / (1u64 << 53) as f64
-        };
-        (0..n)
-            .map(|_| {
-                let (u1, u2) = (next().max(1e-300), next());
-                sigma * (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
-            })
-            .collect()
+        let mut r = crate::test_rng::Rng(seed.max(1));
+        (0..n).map(|_| sigma * r.gauss()).collect()
     }
 
     fn cfg(n: usize) -> WelchConfig {

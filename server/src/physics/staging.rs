@@ -858,20 +858,7 @@ mod tests {
     use crate::physics::gas::Gas;
     use crate::physics::jet::{jet_state, ExpandedJet, Nozzle, OperatingPoint};
 
-    /// Seeded Gaussian numbers (xorshift64* and Box-Muller).
-    struct Rng(u64);
-    impl Rng {
-        fn uniform(&mut self) -> f64 {
-            self.0 ^= self.0 >> 12;
-            self.0 ^= self.0 << 25;
-            self.0 ^= self.0 >> 27;
-            ((self.0.wrapping_mul(0x2545_F491_4F6C_DD1D) >> 11) as f64 + 0.5) / (1u64 << 53) as f64
-        }
-        fn gauss(&mut self) -> f64 {
-            let (u1, u2) = (self.uniform(), self.uniform());
-            (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
-        }
-    }
+    use crate::test_rng::Rng;
 
     fn physics_at_mj(mj: f64) -> PointPhysics {
         let air = Gas::AIR;
