@@ -20,6 +20,12 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let fds = protox::compile(&protos, ["."])?;
     let out = PathBuf::from(env::var("OUT_DIR")?);
     fs::write(out.join("jetloop_v1_descriptor.bin"), fds.encode_to_vec())?;
-    tonic_prost_build::configure().build_client(true).build_server(true).compile_fds(fds)?;
+    // Raw sample bytes arrive as `Bytes`: prost then takes a slice of tonic's receive buffer
+    // instead of copying megabytes of samples.
+    tonic_prost_build::configure()
+        .build_client(true)
+        .build_server(true)
+        .bytes(".jetloop.v1.RawSamples.data")
+        .compile_fds(fds)?;
     Ok(())
 }

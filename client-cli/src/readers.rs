@@ -155,7 +155,7 @@ impl InputArgs {
             sample_rate_hz: f64::from(spec.sample_rate),
             channel_count: u32::from(spec.channels),
             layout: pb::ChannelLayout::Interleaved as i32,
-            data: Some(pb::samples::Data::Raw(pb::RawSamples { data, format: format as i32 })),
+            data: Some(pb::samples::Data::Raw(pb::RawSamples { data: data.into(), format: format as i32 })),
             calibration: self.calibration(),
             channel_names: Vec::new(),
         })
@@ -224,7 +224,7 @@ impl InputArgs {
                 LayoutArg::Interleaved => pb::ChannelLayout::Interleaved,
                 LayoutArg::Planar => pb::ChannelLayout::Planar,
             } as i32,
-            data: Some(pb::samples::Data::Raw(pb::RawSamples { data: bytes, format: format as i32 })),
+            data: Some(pb::samples::Data::Raw(pb::RawSamples { data: bytes.into(), format: format as i32 })),
             calibration: self.calibration(),
             channel_names: Vec::new(),
         })

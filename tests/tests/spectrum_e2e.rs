@@ -71,7 +71,7 @@ async fn bad_samples_name_the_field() {
     let raw = |data: Vec<u8>, format: pb::SampleFormat, channels: u32| pb::Samples {
         sample_rate_hz: fs,
         channel_count: channels,
-        data: Some(Data::Raw(pb::RawSamples { data, format: format as i32 })),
+        data: Some(Data::Raw(pb::RawSamples { data: data.into(), format: format as i32 })),
         ..Default::default()
     };
     let mut nan = ok();
@@ -126,7 +126,7 @@ async fn sizes_over_the_limits_are_refused() {
     let req = request(pb::Samples {
         sample_rate_hz: 48_000.0,
         data: Some(Data::Raw(pb::RawSamples {
-            data: vec![0; 2 * n],
+            data: vec![0; 2 * n].into(),
             format: pb::SampleFormat::I16Le as i32,
         })),
         ..Default::default()

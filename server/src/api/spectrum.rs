@@ -1,12 +1,12 @@
 //! SpectrumService: samples, Welch and tone options converted to domain types in one step,
 //! and the per-channel analysis turned into responses.
 
-use super::error::{ApiError, Check};
+use super::error::{ApiError, Check, FieldViolation};
 use super::provenance::{provenance, Defaults};
 use crate::dsp::bands::{band_levels, BandLevels};
-use crate::dsp::samples::{decode_bytes, decode_values, Channels, DecodeError, Format, Layout};
+use crate::dsp::samples::{ChannelView, DecodeError, Format, Layout, Recording};
 use crate::dsp::tones::{find_tones, ToneConfig, ToneSet};
-use crate::dsp::welch::{welch, Detrend, Psd, WelchConfig, MAX_SEGMENT, MIN_SEGMENT};
+use crate::dsp::welch::{welch_channel, Detrend, Psd, WelchConfig, WelchError, MAX_SEGMENT, MIN_SEGMENT};
 use crate::dsp::window::Window;
 use crate::dsp::{spl_db, CAUTION_LEVEL_DB};
 use crate::physics::bounds::Bounds;
@@ -34,15 +34,31 @@ const MATCH_TOL: Bounds = Bounds::open_closed(0.0, 1.0, "");
 const BAND_MAX: Bounds = Bounds::closed(20.0, 100_000.0, "Hz");
 const PSD_POINTS: Bounds = Bounds::closed(16.0, 1_048_577.0, "");
 
-/// Decoded, calibrated samples.
+/// Validated, calibrated samples, kept as received and read during the analysis.
 #[derive(Debug, Clone)]
 pub struct SampleSet {
     /// Sample rate, Hz.
     pub fs: f64,
-    /// Channels in Pa.
-    pub channels: Channels,
+    /// The samples.
+    pub recording: Recording,
     /// Names.
     pub names: Vec<String>,
+    /// Request field holding the samples (for errors found while reading them).
+    pub field: &'static str,
+}
+
+impl SampleSet {
+    /// Welch PSD of channel `c`, with a non-finite sample reported against the samples field.
+    fn psd(&self, c: usize, config: WelchConfig) -> Result<Psd, ApiError> {
+        let view: ChannelView<'_> = self.recording.channel(c);
+        welch_channel(&view, self.fs, config).map_err(|e| match e {
+            WelchError::NotFinite { .. } => ApiError::Invalid(vec![FieldViolation {
+                field: self.field.into(),
+                description: format!("{}: channel {c}: {e}", self.field),
+            }]),
+            e => ApiError::Precondition(e.to_string()),
+        })
+    }
 }
 
 fn layout(check: &mut Check, v: i32) -> Option<Layout> {
@@ -153,21 +169,17 @@ pub fn sample_set(s: Option<pb::Samples>, defaults: &mut Defaults) -> Result<Sam
     if !check.is_clean() {
         return check.finish(None);
     }
-    let decoded = match data {
+    let recording = match data {
         // The check above is clean, so a raw format was recognized.
         Data::Raw(r) => {
-            decode_bytes(&r.data, raw_format.unwrap_or(Format::F32), layout, channels as usize, scale)
+            Recording::from_bytes(r.data, raw_format.unwrap_or(Format::F32), layout, channels as usize, scale)
         }
-        Data::Values(v) => decode_values(&v.values, layout, channels as usize, scale),
+        Data::Values(v) => Recording::from_values(v.values, layout, channels as usize, scale),
     };
-    match decoded {
-        Ok(channels) => Ok(SampleSet { fs, channels, names: channel_names }),
+    match recording {
+        Ok(recording) => Ok(SampleSet { fs, recording, names: channel_names, field }),
         Err(e @ DecodeError::Ragged { .. }) => {
             check.other(field, format!("{field}: {e} (samples.channel_count = {channels})"));
-            check.finish(None)
-        }
-        Err(e @ DecodeError::NotFinite { .. }) => {
-            check.other(field, format!("{field}: {e}"));
             check.finish(None)
         }
     }
@@ -352,7 +364,7 @@ impl TryFrom<pb::ExtractTonesRequest> for ToneQuery {
         let mut defaults = Defaults::default();
         let samples = sample_set(samples, &mut defaults)?;
         let mut check = Check::new();
-        let w = welch_config(&mut check, &mut defaults, welch, samples.fs, samples.channels.len());
+        let w = welch_config(&mut check, &mut defaults, welch, samples.fs, samples.recording.len());
         let tones = tone_config(&mut check, tones);
         let predicted = predicted_screech_hz.and_then(|f| {
             let f = check.range("", PREDICTED.check("predicted_screech_hz", f))?;
@@ -402,7 +414,7 @@ impl TryFrom<pb::BandLevelsRequest> for BandQuery {
         let mut defaults = Defaults::default();
         let samples = sample_set(samples, &mut defaults)?;
         let mut check = Check::new();
-        let w = welch_config(&mut check, &mut defaults, welch, samples.fs, samples.channels.len());
+        let w = welch_config(&mut check, &mut defaults, welch, samples.fs, samples.recording.len());
         let max_hz = match max_band_frequency_hz {
             None => 100_000.0,
             Some(f) => check.range("", BAND_MAX.check("max_band_frequency_hz", f)).unwrap_or(100_000.0),
@@ -467,11 +479,6 @@ fn caution(level_db: f64, what: &str) -> String {
     )
 }
 
-fn rms(x: &[f64]) -> f64 {
-    let m = x.iter().sum::<f64>() / x.len() as f64;
-    (x.iter().map(|v| (v - m) * (v - m)).sum::<f64>() / x.len() as f64).sqrt()
-}
-
 fn psd_data(psd: &Psd, floor: Option<&[f64]>, max_points: Option<usize>) -> pb::PsdData {
     let bins = psd.density.len();
     let g = max_points.map_or(1, |m| bins.div_ceil(m).max(1));
@@ -495,11 +502,11 @@ const SPECTRUM_MODELS: [Model; 2] = [models::WELCH_PSD, models::SPL];
 /// reported as FAILED_PRECONDITION.
 pub fn tones_response(q: &ToneQuery) -> Result<pb::ExtractTonesResponse, ApiError> {
     let t = q.started;
-    let mut out = Vec::with_capacity(q.samples.channels.data.len());
-    for (c, x) in q.samples.channels.data.iter().enumerate() {
-        let psd = welch(x, q.samples.fs, q.welch).map_err(|e| ApiError::Precondition(e.to_string()))?;
+    let mut out = Vec::with_capacity(q.samples.recording.channel_count());
+    for c in 0..q.samples.recording.channel_count() {
+        let psd = q.samples.psd(c, q.welch)?;
         let set = find_tones(&psd, &q.tones);
-        let rms_pa = rms(x);
+        let rms_pa = psd.moments.rms_about_mean();
         let overall = spl_db(rms_pa * rms_pa);
         let mut cautions = Vec::new();
         if let Some(t) = set.tones.iter().max_by(|a, b| a.level_db.total_cmp(&b.level_db)) {
@@ -533,7 +540,7 @@ pub fn tones_response(q: &ToneQuery) -> Result<pb::ExtractTonesResponse, ApiErro
         out.push(pb::ChannelSpectrum {
             channel: c as u32,
             name: q.samples.names.get(c).cloned().unwrap_or_default(),
-            analysis: Some(analysis(&psd, x.len(), Some(&set))),
+            analysis: Some(analysis(&psd, q.samples.recording.len(), Some(&set))),
             rms_pa,
             overall_level_db: overall,
             tones: set
@@ -600,8 +607,8 @@ pub fn tones_response(q: &ToneQuery) -> Result<pb::ExtractTonesResponse, ApiErro
 /// As [`tones_response`].
 pub fn bands_response(q: &BandQuery) -> Result<pb::BandLevelsResponse, ApiError> {
     let mut out = Vec::new();
-    for (c, x) in q.samples.channels.data.iter().enumerate() {
-        let psd = welch(x, q.samples.fs, q.welch).map_err(|e| ApiError::Precondition(e.to_string()))?;
+    for c in 0..q.samples.recording.channel_count() {
+        let psd = q.samples.psd(c, q.welch)?;
         let b = band_levels(&psd, q.max_hz);
         let mut cautions = Vec::new();
         if b.overall_db >= CAUTION_LEVEL_DB {
@@ -610,7 +617,7 @@ pub fn bands_response(q: &BandQuery) -> Result<pb::BandLevelsResponse, ApiError>
         out.push(pb::ChannelBands {
             channel: c as u32,
             name: q.samples.names.get(c).cloned().unwrap_or_default(),
-            analysis: Some(analysis(&psd, x.len(), None)),
+            analysis: Some(analysis(&psd, q.samples.recording.len(), None)),
             bands: Some(band_summary(&b)),
             cautions,
         });

@@ -1,8 +1,17 @@
-//! Decoding of calibrated microphone samples from the byte layouts a DAQ writes.
+//! Calibrated microphone samples in the byte layouts a DAQ writes, read where they lie.
 //!
 //! Bytes are little-endian f32, f64, i16 or i32, interleaved (frame by frame) or planar
-//! (channel after channel). Decoding writes straight into one preallocated buffer per channel
-//! (no allocation per sample) and multiplies by the calibration factor to pascals.
+//! (channel after channel). Nothing is converted up front: a [`Recording`] keeps the bytes it
+//! was given (shared, not copied) and a [`ChannelView`] decodes any run of one channel's
+//! samples, times the calibration factor to pascals, straight into a caller's buffer. The Welch
+//! loop reads each segment this way into a per-worker buffer, so a request of many megabytes
+//! never needs a second, wider copy of itself, and no memory is allocated per sample.
+//!
+//! Finiteness is checked while the samples are read for analysis (see
+//! [`crate::dsp::welch`]), and [`SampleMoments`] (count, mean, sum of squared deviations)
+//! are gathered in the same pass.
+
+use bytes::Bytes;
 
 /// Sample encodings.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -37,7 +46,7 @@ pub enum Layout {
     Planar,
 }
 
-/// Why samples could not be decoded.
+/// Why samples cannot be read.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum DecodeError {
     /// Byte count not a whole number of frames.
@@ -50,150 +59,272 @@ pub enum DecodeError {
         /// Bytes per sample.
         width: usize,
     },
-    /// A sample is NaN or infinite.
-    #[error("sample {index} of channel {channel} is not a finite number ({value})")]
-    NotFinite {
-        /// Channel index.
-        channel: usize,
-        /// Sample index within the channel.
-        index: usize,
-        /// The value.
-        value: f64,
-    },
 }
 
-/// Samples of every channel in pascals, one vector per channel.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Channels {
-    /// Per-channel samples, Pa.
-    pub data: Vec<Vec<f64>>,
+#[derive(Debug, Clone)]
+enum Storage {
+    Bytes(Bytes, Format),
+    Values(Vec<f64>),
 }
 
-impl Channels {
+/// Samples of one or more channels recorded together, kept as received.
+#[derive(Debug, Clone)]
+pub struct Recording {
+    storage: Storage,
+    layout: Layout,
+    channels: usize,
+    per_channel: usize,
+    scale_pa: f64,
+}
+
+impl Recording {
+    /// Raw little-endian `bytes` of `channels` channels; `scale_pa` is pascals per unit.
+    ///
+    /// # Errors
+    /// [`DecodeError::Ragged`] when the bytes are not whole frames.
+    pub fn from_bytes(
+        bytes: Bytes,
+        format: Format,
+        layout: Layout,
+        channels: usize,
+        scale_pa: f64,
+    ) -> Result<Self, DecodeError> {
+        let w = format.width();
+        if channels == 0 || bytes.len() % (w * channels) != 0 {
+            return Err(DecodeError::Ragged { bytes: bytes.len(), channels, width: w });
+        }
+        let per_channel = bytes.len() / (w * channels);
+        Ok(Self { storage: Storage::Bytes(bytes, format), layout, channels, per_channel, scale_pa })
+    }
+
+    /// Packed values of `channels` channels; `scale_pa` is pascals per unit.
+    ///
+    /// # Errors
+    /// [`DecodeError::Ragged`] when the count is not a multiple of the channel count.
+    pub fn from_values(
+        values: Vec<f64>,
+        layout: Layout,
+        channels: usize,
+        scale_pa: f64,
+    ) -> Result<Self, DecodeError> {
+        if channels == 0 || values.len() % channels != 0 {
+            return Err(DecodeError::Ragged { bytes: values.len() * 8, channels, width: 8 });
+        }
+        let per_channel = values.len() / channels;
+        Ok(Self { storage: Storage::Values(values), layout, channels, per_channel, scale_pa })
+    }
+
+    /// Number of channels.
+    pub fn channel_count(&self) -> usize {
+        self.channels
+    }
+
     /// Samples per channel.
     pub fn len(&self) -> usize {
-        self.data.first().map_or(0, Vec::len)
+        self.per_channel
     }
 
     /// True when there are no samples.
     pub fn is_empty(&self) -> bool {
-        self.len() == 0
+        self.per_channel == 0
+    }
+
+    /// A view of channel `c` (clamped to the last channel).
+    pub fn channel(&self, c: usize) -> ChannelView<'_> {
+        let c = c.min(self.channels.saturating_sub(1));
+        let (first, stride) = match self.layout {
+            Layout::Interleaved => (c, self.channels),
+            Layout::Planar => (c * self.per_channel, 1),
+        };
+        let src = match &self.storage {
+            Storage::Bytes(b, f) => Source::Bytes { bytes: b, format: *f },
+            Storage::Values(v) => Source::Values(v),
+        };
+        ChannelView { src, first, stride, len: self.per_channel, scale: self.scale_pa }
     }
 }
 
-fn check_finite(data: &[Vec<f64>]) -> Result<(), DecodeError> {
-    for (c, ch) in data.iter().enumerate() {
-        if let Some((i, v)) = ch.iter().enumerate().find(|(_, v)| !v.is_finite()) {
-            return Err(DecodeError::NotFinite { channel: c, index: i, value: *v });
-        }
-    }
-    Ok(())
+#[derive(Debug, Clone, Copy)]
+enum Source<'a> {
+    Bytes { bytes: &'a [u8], format: Format },
+    Values(&'a [f64]),
 }
 
-/// Decodes `bytes` of `channels` channels and multiplies by `scale_pa` (pascals per unit).
-///
-/// # Errors
-/// [`DecodeError`] for a ragged byte count or a non-finite sample.
-pub fn decode_bytes(
-    bytes: &[u8],
-    format: Format,
-    layout: Layout,
-    channels: usize,
-    scale_pa: f64,
-) -> Result<Channels, DecodeError> {
-    let w = format.width();
-    let frame = w * channels;
-    if channels == 0 || bytes.len() % frame != 0 {
-        return Err(DecodeError::Ragged { bytes: bytes.len(), channels, width: w });
-    }
-    let n = bytes.len() / frame;
-    if n == 0 {
-        return Ok(Channels { data: vec![Vec::new(); channels] });
-    }
-    let data: Vec<Vec<f64>> = match format {
-        Format::F32 => split(
-            bytes,
-            layout,
-            channels,
-            n,
-            4,
-            |b| f64::from(f32::from_le_bytes([b[0], b[1], b[2], b[3]])),
-            scale_pa,
-        ),
-        Format::F64 => split(
-            bytes,
-            layout,
-            channels,
-            n,
-            8,
-            |b| f64::from_le_bytes([b[0], b[1], b[2], b[3], b[4], b[5], b[6], b[7]]),
-            scale_pa,
-        ),
-        Format::I16 => {
-            split(bytes, layout, channels, n, 2, |b| f64::from(i16::from_le_bytes([b[0], b[1]])), scale_pa)
-        }
-        Format::I32 => split(
-            bytes,
-            layout,
-            channels,
-            n,
-            4,
-            |b| f64::from(i32::from_le_bytes([b[0], b[1], b[2], b[3]])),
-            scale_pa,
-        ),
-    };
-    check_finite(&data)?;
-    Ok(Channels { data })
-}
-
-/// One monomorphized decoding loop per format: each channel is filled with `extend` over exact
-/// chunks, which the compiler vectorizes.
-fn split(
-    bytes: &[u8],
-    layout: Layout,
-    channels: usize,
-    n: usize,
-    w: usize,
-    read: impl Fn(&[u8]) -> f64 + Copy,
+/// One channel of a [`Recording`] (or of a plain slice of pascals), read on demand.
+#[derive(Debug, Clone, Copy)]
+pub struct ChannelView<'a> {
+    src: Source<'a>,
+    /// Index of this channel's sample 0, in samples.
+    first: usize,
+    /// Distance between consecutive samples of this channel, in samples.
+    stride: usize,
+    len: usize,
     scale: f64,
-) -> Vec<Vec<f64>> {
-    match layout {
-        Layout::Planar => {
-            bytes.chunks_exact(n * w).map(|b| b.chunks_exact(w).map(|s| read(s) * scale).collect()).collect()
+}
+
+impl<'a> ChannelView<'a> {
+    /// A view of samples already in pascals.
+    pub fn of_pascals(x: &'a [f64]) -> Self {
+        Self { src: Source::Values(x), first: 0, stride: 1, len: x.len(), scale: 1.0 }
+    }
+
+    /// Samples in the channel.
+    pub fn len(&self) -> usize {
+        self.len
+    }
+
+    /// True when the channel has no samples.
+    pub fn is_empty(&self) -> bool {
+        self.len == 0
+    }
+
+    /// Writes samples `start..start + out.len()` in pascals into `out`. A request past the end
+    /// fills only what exists; the number written is returned.
+    pub fn read(&self, start: usize, out: &mut [f64]) -> usize {
+        let n = out.len().min(self.len.saturating_sub(start));
+        let out = &mut out[..n];
+        let (k, s) = (self.scale, self.stride);
+        let i0 = self.first + start * s;
+        match self.src {
+            Source::Values(v) if s == 1 => {
+                for (o, x) in out.iter_mut().zip(&v[i0..i0 + n]) {
+                    *o = x * k;
+                }
+            }
+            Source::Values(v) => {
+                for (o, x) in out.iter_mut().zip(v[i0..].iter().step_by(s)) {
+                    *o = x * k;
+                }
+            }
+            Source::Bytes { bytes, format } => match format {
+                Format::F32 => fill::<4>(out, bytes, i0, s, k, |b| f64::from(f32::from_le_bytes(b))),
+                Format::F64 => fill::<8>(out, bytes, i0, s, k, f64::from_le_bytes),
+                Format::I16 => fill::<2>(out, bytes, i0, s, k, |b| f64::from(i16::from_le_bytes(b))),
+                Format::I32 => fill::<4>(out, bytes, i0, s, k, |b| f64::from(i32::from_le_bytes(b))),
+            },
         }
-        Layout::Interleaved if channels == 1 => {
-            vec![bytes.chunks_exact(w).map(|s| read(s) * scale).collect()]
-        }
-        Layout::Interleaved => (0..channels)
-            .map(|c| bytes.chunks_exact(w * channels).map(|f| read(&f[c * w..c * w + w]) * scale).collect())
-            .collect(),
+        n
+    }
+
+    /// The whole channel in pascals (for tests and small inputs).
+    pub fn to_vec(&self) -> Vec<f64> {
+        let mut v = vec![0.0; self.len];
+        self.read(0, &mut v);
+        v
     }
 }
 
-/// Splits packed values of `channels` channels and multiplies by `scale_pa`.
-///
-/// # Errors
-/// [`DecodeError`] for a ragged count or a non-finite sample.
-pub fn decode_values(
-    values: &[f64],
-    layout: Layout,
-    channels: usize,
-    scale_pa: f64,
-) -> Result<Channels, DecodeError> {
-    if channels == 0 || values.len() % channels != 0 {
-        return Err(DecodeError::Ragged { bytes: values.len() * 8, channels, width: 8 });
-    }
-    let n = values.len() / channels;
-    let data: Vec<Vec<f64>> = match layout {
-        Layout::Interleaved => (0..channels)
-            .map(|c| values.iter().skip(c).step_by(channels).map(|v| v * scale_pa).collect())
-            .collect(),
-        Layout::Planar => {
-            values.chunks_exact(n.max(1)).map(|b| b.iter().map(|v| v * scale_pa).collect()).collect()
-        }
+/// One monomorphized loop per sample width; contiguous runs go through `chunks_exact`, which
+/// the compiler vectorizes.
+fn fill<const W: usize>(
+    out: &mut [f64],
+    bytes: &[u8],
+    first: usize,
+    stride: usize,
+    scale: f64,
+    conv: impl Fn([u8; W]) -> f64,
+) {
+    let at = |c: &[u8]| {
+        let mut a = [0u8; W];
+        a.copy_from_slice(&c[..W]);
+        a
     };
-    check_finite(&data)?;
-    Ok(Channels { data })
+    let b0 = first * W;
+    let n = out.len();
+    if stride == 1 {
+        for (o, c) in out.iter_mut().zip(bytes[b0..b0 + n * W].chunks_exact(W)) {
+            *o = conv(at(c)) * scale;
+        }
+    } else {
+        for (o, c) in out.iter_mut().zip(bytes[b0..].chunks(stride * W)) {
+            *o = conv(at(c)) * scale;
+        }
+    }
+}
+
+/// Count, mean and sum of squared deviations of a run of samples, mergeable across runs (Chan,
+/// Golub & LeVeque 1979), so parallel workers can each describe their share.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct SampleMoments {
+    /// Samples.
+    pub count: usize,
+    /// Mean, Pa.
+    pub mean: f64,
+    /// Sum of squared deviations from the mean, Pa^2.
+    pub m2: f64,
+}
+
+impl SampleMoments {
+    /// Moments of `x` (two passes over a run that is already in cache).
+    pub fn of(x: &[f64]) -> Self {
+        if x.is_empty() {
+            return Self::default();
+        }
+        let mean = sum(x) / x.len() as f64;
+        let m2 = sum_sq_dev(x, mean);
+        Self { count: x.len(), mean, m2 }
+    }
+
+    /// Moments of the union of two runs.
+    pub fn merge(self, o: Self) -> Self {
+        if self.count == 0 {
+            return o;
+        }
+        if o.count == 0 {
+            return self;
+        }
+        let n = (self.count + o.count) as f64;
+        let d = o.mean - self.mean;
+        Self {
+            count: self.count + o.count,
+            mean: self.mean + d * o.count as f64 / n,
+            m2: self.m2 + o.m2 + d * d * self.count as f64 * o.count as f64 / n,
+        }
+    }
+
+    /// Root-mean-square about the mean (the AC rms), Pa.
+    pub fn rms_about_mean(&self) -> f64 {
+        if self.count == 0 {
+            0.0
+        } else {
+            (self.m2 / self.count as f64).sqrt()
+        }
+    }
+}
+
+/// Sum with eight independent accumulators (vectorizes; rounding error like pairwise summation
+/// of depth 3 plus a sequential sum of length n/8).
+pub fn sum(x: &[f64]) -> f64 {
+    let mut acc = [0.0f64; 8];
+    let chunks = x.chunks_exact(8);
+    let tail: f64 = chunks.remainder().iter().sum();
+    for c in chunks {
+        for (a, v) in acc.iter_mut().zip(c) {
+            *a += v;
+        }
+    }
+    ((acc[0] + acc[4]) + (acc[1] + acc[5])) + ((acc[2] + acc[6]) + (acc[3] + acc[7])) + tail
+}
+
+fn sum_sq_dev(x: &[f64], mean: f64) -> f64 {
+    let mut acc = [0.0f64; 8];
+    let chunks = x.chunks_exact(8);
+    let tail: f64 = chunks.remainder().iter().map(|v| (v - mean) * (v - mean)).sum();
+    for c in chunks {
+        for (a, v) in acc.iter_mut().zip(c) {
+            *a += (v - mean) * (v - mean);
+        }
+    }
+    acc.iter().sum::<f64>() + tail
+}
+
+/// Index and value of the first non-finite sample of `x`, if any. The common all-finite case
+/// is one vectorized pass.
+pub fn first_non_finite(x: &[f64]) -> Option<(usize, f64)> {
+    if x.iter().fold(true, |ok, v| ok & v.is_finite()) {
+        return None;
+    }
+    x.iter().enumerate().find(|(_, v)| !v.is_finite()).map(|(i, v)| (i, *v))
 }
 
 #[cfg(test)]
@@ -201,29 +332,72 @@ mod tests {
     use super::*;
 
     #[test]
-    fn interleaved_and_planar_i16_decode_alike() {
+    fn interleaved_and_planar_i16_read_alike() {
         let frames: [[i16; 2]; 3] = [[1, -1], [2, -2], [3, -3]];
         let inter: Vec<u8> = frames.iter().flatten().flat_map(|v| v.to_le_bytes()).collect();
         let planar: Vec<u8> =
             (0..2).flat_map(|c| frames.iter().map(move |f| f[c])).flat_map(|v| v.to_le_bytes()).collect();
-        let a = decode_bytes(&inter, Format::I16, Layout::Interleaved, 2, 0.5).unwrap();
-        let b = decode_bytes(&planar, Format::I16, Layout::Planar, 2, 0.5).unwrap();
-        assert_eq!(a, b);
-        assert_eq!(a.data[1], vec![-0.5, -1.0, -1.5]);
+        let a = Recording::from_bytes(inter.into(), Format::I16, Layout::Interleaved, 2, 0.5).unwrap();
+        let b = Recording::from_bytes(planar.into(), Format::I16, Layout::Planar, 2, 0.5).unwrap();
+        for c in 0..2 {
+            assert_eq!(a.channel(c).to_vec(), b.channel(c).to_vec());
+        }
+        assert_eq!(a.channel(1).to_vec(), vec![-0.5, -1.0, -1.5]);
+        // A run from the middle, and a run past the end.
+        let mut out = [0.0; 4];
+        assert_eq!(a.channel(1).read(1, &mut out), 2);
+        assert_eq!(out[..2], [-1.0, -1.5]);
     }
 
     #[test]
-    fn bad_bytes_are_named() {
+    fn every_format_reads_its_values() {
+        let v = [-2.5f64, 0.0, 1.25, 100.0];
+        let cases: [(Format, Vec<u8>); 4] = [
+            (Format::F32, v.iter().flat_map(|x| (*x as f32).to_le_bytes()).collect()),
+            (Format::F64, v.iter().flat_map(|x| x.to_le_bytes()).collect()),
+            (Format::I16, [-2i16, 0, 1, 100].iter().flat_map(|x| x.to_le_bytes()).collect()),
+            (Format::I32, [-2i32, 0, 1, 100].iter().flat_map(|x| x.to_le_bytes()).collect()),
+        ];
+        for (f, b) in cases {
+            let r = Recording::from_bytes(b.into(), f, Layout::Interleaved, 1, 2.0).unwrap();
+            let got = r.channel(0).to_vec();
+            let want: Vec<f64> = match f {
+                Format::F32 | Format::F64 => v.iter().map(|x| x * 2.0).collect(),
+                _ => vec![-4.0, 0.0, 2.0, 200.0],
+            };
+            assert_eq!(got, want, "{f:?}");
+        }
+        let r = Recording::from_values(vec![1.0, 10.0, 2.0, 20.0], Layout::Interleaved, 2, 3.0).unwrap();
+        assert_eq!(r.channel(1).to_vec(), vec![30.0, 60.0]);
+    }
+
+    #[test]
+    fn ragged_input_and_non_finite_samples_are_named() {
         assert!(matches!(
-            decode_bytes(&[0u8; 7], Format::F32, Layout::Interleaved, 1, 1.0),
+            Recording::from_bytes(Bytes::from_static(&[0u8; 7]), Format::F32, Layout::Interleaved, 1, 1.0),
             Err(DecodeError::Ragged { .. })
         ));
-        let nan: Vec<u8> = [1.0f32, f32::NAN].iter().flat_map(|v| v.to_le_bytes()).collect();
-        assert!(matches!(
-            decode_bytes(&nan, Format::F32, Layout::Interleaved, 1, 1.0),
-            Err(DecodeError::NotFinite { channel: 0, index: 1, .. })
-        ));
-        let e = decode_values(&[1.0, 2.0, 3.0], Layout::Interleaved, 2, 1.0).unwrap_err();
+        let e = Recording::from_values(vec![1.0, 2.0, 3.0], Layout::Interleaved, 2, 1.0).unwrap_err();
         assert!(matches!(e, DecodeError::Ragged { .. }));
+        let x = [1.0, 2.0, f64::NAN, f64::INFINITY];
+        assert_eq!(first_non_finite(&x).map(|p| p.0), Some(2));
+        assert_eq!(first_non_finite(&x[..2]), None);
+    }
+
+    #[test]
+    fn merged_moments_equal_moments_of_the_whole() {
+        let x: Vec<f64> = (0..1001).map(|i| 1e3 + ((i * 37) % 101) as f64 * 0.01).collect();
+        let whole = SampleMoments::of(&x);
+        let parts = SampleMoments::of(&x[..333])
+            .merge(SampleMoments::of(&x[333..800]))
+            .merge(SampleMoments::of(&x[800..]));
+        assert_eq!(parts.count, whole.count);
+        assert!((parts.mean - whole.mean).abs() < 1e-12);
+        assert!((parts.m2 / whole.m2 - 1.0).abs() < 1e-12);
+        // Direct two-pass definition.
+        let m = x.iter().sum::<f64>() / x.len() as f64;
+        let rms = (x.iter().map(|v| (v - m) * (v - m)).sum::<f64>() / x.len() as f64).sqrt();
+        assert!((whole.rms_about_mean() / rms - 1.0).abs() < 1e-12);
+        assert!((sum(&x) / x.iter().sum::<f64>() - 1.0).abs() < 1e-15);
     }
 }

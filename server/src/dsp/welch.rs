@@ -6,6 +6,7 @@
 //! Segments are processed in parallel on the rayon pool; each worker reuses its buffers, and
 //! FFT plans come from one process-wide planner (realfft) so they are built once per length.
 
+use super::samples::{first_non_finite, sum, ChannelView, SampleMoments};
 use super::window::{Window, WindowSums};
 use rayon::prelude::*;
 use realfft::{num_complex::Complex, RealFftPlanner, RealToComplex};
@@ -53,6 +54,8 @@ pub struct Psd {
     pub unused_samples: usize,
     /// Window sums.
     pub sums: WindowSums,
+    /// Count, mean and spread of all the channel's samples (segments and tail), Pa.
+    pub moments: SampleMoments,
 }
 
 impl Psd {
@@ -111,6 +114,14 @@ pub enum WelchError {
         /// Samples available.
         samples: usize,
     },
+    /// A sample is NaN or infinite (the first such sample).
+    #[error("sample {index} is not a finite number ({value})")]
+    NotFinite {
+        /// Sample index within the channel.
+        index: usize,
+        /// The value.
+        value: f64,
+    },
     /// Overlap not below the segment length.
     #[error("overlap {noverlap} must be less than the segment length {nperseg}")]
     Overlap {
@@ -135,13 +146,40 @@ struct Worker {
     out: Vec<Complex<f64>>,
     scratch: Vec<Complex<f64>>,
     acc: Vec<f64>,
+    moments: SampleMoments,
+    bad: Option<(usize, f64)>,
 }
 
-/// Welch PSD of `x` sampled at `fs` Hz.
+/// Checks and describes samples `start..start + x.len()` (a run a worker owns).
+fn take_stock(moments: &mut SampleMoments, bad: &mut Option<(usize, f64)>, start: usize, x: &[f64]) {
+    if bad.is_none() {
+        if let Some((i, v)) = first_non_finite(x) {
+            *bad = Some((start + i, v));
+        }
+    }
+    *moments = moments.merge(SampleMoments::of(x));
+}
+
+/// Welch PSD of `x` (pascals) sampled at `fs` Hz.
 ///
 /// # Errors
-/// [`WelchError`] when the segment length, overlap or data length do not fit.
+/// [`WelchError`] when the segment length, overlap or data length do not fit, or a sample is
+/// not finite.
 pub fn welch(x: &[f64], fs: f64, config: WelchConfig) -> Result<Psd, WelchError> {
+    welch_channel(&ChannelView::of_pascals(x), fs, config)
+}
+
+/// Welch PSD of one channel read where it lies (raw DAQ bytes or values), sampled at `fs` Hz.
+///
+/// Each worker reads its segments straight into its own buffer, and on the way checks that
+/// every sample is finite and gathers the channel's moments over the samples it owns (the
+/// first `step` of each of its segments; the last worker also the tail), so the data is
+/// traversed once.
+///
+/// # Errors
+/// [`WelchError`] when the segment length, overlap or data length do not fit, or a sample is
+/// not finite (the first one is named).
+pub fn welch_channel(x: &ChannelView<'_>, fs: f64, config: WelchConfig) -> Result<Psd, WelchError> {
     let n = config.nperseg;
     if !(MIN_SEGMENT..=MAX_SEGMENT).contains(&n) {
         return Err(WelchError::SegmentLength(n));
@@ -163,7 +201,7 @@ pub fn welch(x: &[f64], fs: f64, config: WelchConfig) -> Result<Psd, WelchError>
     let per = segments.div_ceil(threads);
     let chunks: Vec<(usize, usize)> =
         (0..threads).map(|t| (t * per, ((t + 1) * per).min(segments))).filter(|(a, b)| a < b).collect();
-    let partial: Vec<Vec<f64>> = chunks
+    let partial: Vec<Worker> = chunks
         .par_iter()
         .map(|&(s0, s1)| {
             let mut wk = Worker {
@@ -171,15 +209,19 @@ pub fn welch(x: &[f64], fs: f64, config: WelchConfig) -> Result<Psd, WelchError>
                 out: fft.make_output_vec(),
                 scratch: fft.make_scratch_vec(),
                 acc: vec![0.0; bins],
+                moments: SampleMoments::default(),
+                bad: None,
             };
             for s in s0..s1 {
-                let seg = &x[s * step..s * step + n];
+                let start = s * step;
+                x.read(start, &mut wk.buf);
+                take_stock(&mut wk.moments, &mut wk.bad, start, &wk.buf[..step]);
                 let mean = match config.detrend {
-                    Detrend::Mean => seg.iter().sum::<f64>() / n as f64,
+                    Detrend::Mean => sum(&wk.buf) / n as f64,
                     Detrend::None => 0.0,
                 };
-                for ((b, v), wv) in wk.buf.iter_mut().zip(seg).zip(&w) {
-                    *b = (v - mean) * wv;
+                for (b, wv) in wk.buf.iter_mut().zip(&w) {
+                    *b = (*b - mean) * wv;
                 }
                 // Lengths match the plan by construction, so this cannot fail.
                 if fft.process_with_scratch(&mut wk.buf, &mut wk.out, &mut wk.scratch).is_ok() {
@@ -188,12 +230,26 @@ pub fn welch(x: &[f64], fs: f64, config: WelchConfig) -> Result<Psd, WelchError>
                     }
                 }
             }
-            wk.acc
+            if s1 == segments {
+                // The rest of the last segment and the unused tail.
+                let mut start = s1 * step;
+                while start < x.len() {
+                    let got = x.read(start, &mut wk.buf);
+                    take_stock(&mut wk.moments, &mut wk.bad, start, &wk.buf[..got]);
+                    start += got;
+                }
+            }
+            wk
         })
         .collect();
     let mut density = vec![0.0; bins];
+    let mut moments = SampleMoments::default();
     for p in &partial {
-        for (d, v) in density.iter_mut().zip(p) {
+        if let Some((index, value)) = p.bad {
+            return Err(WelchError::NotFinite { index, value });
+        }
+        moments = moments.merge(p.moments);
+        for (d, v) in density.iter_mut().zip(&p.acc) {
             *d += v;
         }
     }
@@ -202,7 +258,7 @@ pub fn welch(x: &[f64], fs: f64, config: WelchConfig) -> Result<Psd, WelchError>
     for (k, d) in density.iter_mut().enumerate() {
         *d *= if k == 0 || k == last { scale } else { 2.0 * scale };
     }
-    Ok(Psd { fs, config, density, segments, unused_samples, sums })
+    Ok(Psd { fs, config, density, segments, unused_samples, sums, moments })
 }
 
 #[cfg(test)]

@@ -48,7 +48,10 @@ async fn main() {
     let req = pb::ExtractTonesRequest {
         samples: Some(pb::Samples {
             sample_rate_hz: fs,
-            data: Some(Data::Raw(pb::RawSamples { data: bytes, format: pb::SampleFormat::F32Le as i32 })),
+            data: Some(Data::Raw(pb::RawSamples {
+                data: bytes.into(),
+                format: pb::SampleFormat::F32Le as i32,
+            })),
             ..Default::default()
         }),
         welch: Some(pb::WelchOptions { segment: Some(Segment::SegmentLength(8192)), ..Default::default() }),
