@@ -63,7 +63,14 @@ pub enum DecodeError {
 
 #[derive(Debug, Clone)]
 enum Storage {
-    Bytes(Bytes, Format),
+    /// Blocks of raw bytes in arrival order, each a whole number of samples, with the index
+    /// (counted in samples of all channels) at which each block starts.
+    Blocks {
+        blocks: Vec<Bytes>,
+        starts: Vec<usize>,
+        total: usize,
+        format: Format,
+    },
     Values(Vec<f64>),
 }
 
@@ -94,7 +101,41 @@ impl Recording {
             return Err(DecodeError::Ragged { bytes: bytes.len(), channels, width: w });
         }
         let per_channel = bytes.len() / (w * channels);
-        Ok(Self { storage: Storage::Bytes(bytes, format), layout, channels, per_channel, scale_pa })
+        let total = bytes.len() / w;
+        let storage = Storage::Blocks { blocks: vec![bytes], starts: vec![0], total, format };
+        Ok(Self { storage, layout, channels, per_channel, scale_pa })
+    }
+
+    /// An interleaved recording that will grow block by block (see [`Recording::push_block`]).
+    pub fn stream(format: Format, channels: usize, scale_pa: f64) -> Self {
+        let storage = Storage::Blocks { blocks: Vec::new(), starts: Vec::new(), total: 0, format };
+        Self { storage, layout: Layout::Interleaved, channels: channels.max(1), per_channel: 0, scale_pa }
+    }
+
+    /// Appends a block of whole interleaved frames (kept, not copied).
+    ///
+    /// # Errors
+    /// [`DecodeError::Ragged`] when the block is not whole frames, or the recording holds
+    /// packed values or planar channels.
+    pub fn push_block(&mut self, block: Bytes) -> Result<(), DecodeError> {
+        let channels = self.channels;
+        match &mut self.storage {
+            Storage::Blocks { blocks, starts, total, format } if self.layout == Layout::Interleaved => {
+                let w = format.width();
+                if block.len() % (w * channels) != 0 {
+                    return Err(DecodeError::Ragged { bytes: block.len(), channels, width: w });
+                }
+                if block.is_empty() {
+                    return Ok(());
+                }
+                starts.push(*total);
+                *total += block.len() / w;
+                blocks.push(block);
+                self.per_channel = *total / channels;
+                Ok(())
+            }
+            _ => Err(DecodeError::Ragged { bytes: block.len(), channels, width: 0 }),
+        }
     }
 
     /// Packed values of `channels` channels; `scale_pa` is pascals per unit.
@@ -137,7 +178,9 @@ impl Recording {
             Layout::Planar => (c * self.per_channel, 1),
         };
         let src = match &self.storage {
-            Storage::Bytes(b, f) => Source::Bytes { bytes: b, format: *f },
+            Storage::Blocks { blocks, starts, format, .. } => {
+                Source::Blocks { blocks, starts, format: *format }
+            }
             Storage::Values(v) => Source::Values(v),
         };
         ChannelView { src, first, stride, len: self.per_channel, scale: self.scale_pa }
@@ -146,7 +189,7 @@ impl Recording {
 
 #[derive(Debug, Clone, Copy)]
 enum Source<'a> {
-    Bytes { bytes: &'a [u8], format: Format },
+    Blocks { blocks: &'a [Bytes], starts: &'a [usize], format: Format },
     Values(&'a [f64]),
 }
 
@@ -196,12 +239,27 @@ impl<'a> ChannelView<'a> {
                     *o = x * k;
                 }
             }
-            Source::Bytes { bytes, format } => match format {
-                Format::F32 => fill::<4>(out, bytes, i0, s, k, |b| f64::from(f32::from_le_bytes(b))),
-                Format::F64 => fill::<8>(out, bytes, i0, s, k, f64::from_le_bytes),
-                Format::I16 => fill::<2>(out, bytes, i0, s, k, |b| f64::from(i16::from_le_bytes(b))),
-                Format::I32 => fill::<4>(out, bytes, i0, s, k, |b| f64::from(i32::from_le_bytes(b))),
-            },
+            Source::Blocks { blocks, starts, format } => {
+                // Block by block: a run may cross from one block into the next.
+                let (mut i, mut done) = (i0, 0);
+                let mut b = starts.partition_point(|&st| st <= i).saturating_sub(1);
+                while done < n && b < blocks.len() {
+                    let bytes = &blocks[b][..];
+                    let end = starts.get(b + 1).copied().unwrap_or(starts[b] + bytes.len() / format.width());
+                    let local = i - starts[b];
+                    let here = (end - i).div_ceil(s).min(n - done);
+                    let o = &mut out[done..done + here];
+                    match format {
+                        Format::F32 => fill::<4>(o, bytes, local, s, k, |b| f64::from(f32::from_le_bytes(b))),
+                        Format::F64 => fill::<8>(o, bytes, local, s, k, f64::from_le_bytes),
+                        Format::I16 => fill::<2>(o, bytes, local, s, k, |b| f64::from(i16::from_le_bytes(b))),
+                        Format::I32 => fill::<4>(o, bytes, local, s, k, |b| f64::from(i32::from_le_bytes(b))),
+                    }
+                    done += here;
+                    i += here * s;
+                    b += 1;
+                }
+            }
         }
         n
     }
@@ -369,6 +427,27 @@ mod tests {
         }
         let r = Recording::from_values(vec![1.0, 10.0, 2.0, 20.0], Layout::Interleaved, 2, 3.0).unwrap();
         assert_eq!(r.channel(1).to_vec(), vec![30.0, 60.0]);
+    }
+
+    #[test]
+    fn blocks_of_frames_read_like_one_buffer() {
+        // Three channels of i32, sent in blocks of 1, 4 and 2 frames.
+        let frames: Vec<[i32; 3]> = (0..7).map(|i| [i, 100 + i, -i]).collect();
+        let bytes: Vec<u8> = frames.iter().flatten().flat_map(|v| v.to_le_bytes()).collect();
+        let whole =
+            Recording::from_bytes(bytes.clone().into(), Format::I32, Layout::Interleaved, 3, 1.0).unwrap();
+        let mut grown = Recording::stream(Format::I32, 3, 1.0);
+        for (a, b) in [(0, 1), (1, 5), (5, 7)] {
+            grown.push_block(Bytes::copy_from_slice(&bytes[a * 12..b * 12])).unwrap();
+        }
+        assert_eq!(grown.len(), 7);
+        for c in 0..3 {
+            assert_eq!(grown.channel(c).to_vec(), whole.channel(c).to_vec());
+            let mut out = [0.0; 3];
+            grown.channel(c).read(3, &mut out);
+            assert_eq!(out.to_vec(), whole.channel(c).to_vec()[3..6].to_vec());
+        }
+        assert!(grown.push_block(Bytes::from_static(&[0u8; 8])).is_err(), "not a whole frame");
     }
 
     #[test]

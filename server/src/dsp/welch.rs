@@ -141,6 +141,7 @@ fn plan(n: usize) -> Arc<dyn RealToComplex<f64>> {
     p.plan_fft_forward(n)
 }
 
+/// Per-worker buffers and partial results.
 struct Worker {
     buf: Vec<f64>,
     out: Vec<Complex<f64>>,
@@ -160,6 +161,177 @@ fn take_stock(moments: &mut SampleMoments, bad: &mut Option<(usize, f64)>, start
     *moments = moments.merge(SampleMoments::of(x));
 }
 
+/// A Welch estimate being built segment by segment, for data that arrives in blocks (or all
+/// at once).
+///
+/// Segment `s` covers samples `s step .. s step + nperseg` and *owns* the first `step` of them:
+/// the finiteness check and the channel's moments are taken over owned runs (and, at the end,
+/// over the tail after the last segment), so every sample is checked and counted exactly once
+/// while it is in cache for the FFT.
+pub struct WelchAccumulator {
+    fs: f64,
+    config: WelchConfig,
+    window: Vec<f64>,
+    sums: WindowSums,
+    fft: Arc<dyn RealToComplex<f64>>,
+    step: usize,
+    acc: Vec<f64>,
+    moments: SampleMoments,
+    bad: Option<(usize, f64)>,
+    segments: usize,
+}
+
+impl std::fmt::Debug for WelchAccumulator {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("WelchAccumulator")
+            .field("config", &self.config)
+            .field("segments", &self.segments)
+            .finish_non_exhaustive()
+    }
+}
+
+impl WelchAccumulator {
+    /// A new estimate at sample rate `fs` Hz.
+    ///
+    /// # Errors
+    /// [`WelchError::SegmentLength`] or [`WelchError::Overlap`].
+    pub fn new(fs: f64, config: WelchConfig) -> Result<Self, WelchError> {
+        let n = config.nperseg;
+        if !(MIN_SEGMENT..=MAX_SEGMENT).contains(&n) {
+            return Err(WelchError::SegmentLength(n));
+        }
+        if config.noverlap >= n {
+            return Err(WelchError::Overlap { noverlap: config.noverlap, nperseg: n });
+        }
+        let window = config.window.values(n);
+        let sums = WindowSums::of(&window);
+        Ok(Self {
+            fs,
+            config,
+            window,
+            sums,
+            fft: plan(n),
+            step: n - config.noverlap,
+            acc: vec![0.0; n / 2 + 1],
+            moments: SampleMoments::default(),
+            bad: None,
+            segments: 0,
+        })
+    }
+
+    /// Whole segments that fit in the first `samples` samples.
+    pub fn segments_within(&self, samples: usize) -> usize {
+        if samples < self.config.nperseg {
+            0
+        } else {
+            (samples - self.config.noverlap) / self.step
+        }
+    }
+
+    /// Segments averaged so far.
+    pub fn segments(&self) -> usize {
+        self.segments
+    }
+
+    /// Adds every whole segment of `x` not yet added, spread over the rayon pool.
+    pub fn advance(&mut self, x: &ChannelView<'_>) {
+        let (s0, s1) = (self.segments, self.segments_within(x.len()));
+        if s1 <= s0 {
+            return;
+        }
+        let (n, step, bins) = (self.config.nperseg, self.step, self.acc.len());
+        let threads = rayon::current_num_threads().max(1).min(s1 - s0);
+        let per = (s1 - s0).div_ceil(threads);
+        let chunks: Vec<(usize, usize)> = (0..threads)
+            .map(|t| (s0 + t * per, (s0 + (t + 1) * per).min(s1)))
+            .filter(|(a, b)| a < b)
+            .collect();
+        let (fft, w, detrend) = (&self.fft, &self.window, self.config.detrend);
+        let partial: Vec<Worker> = chunks
+            .par_iter()
+            .map(|&(a, b)| {
+                let mut wk = Worker {
+                    buf: vec![0.0; n],
+                    out: fft.make_output_vec(),
+                    scratch: fft.make_scratch_vec(),
+                    acc: vec![0.0; bins],
+                    moments: SampleMoments::default(),
+                    bad: None,
+                };
+                for s in a..b {
+                    let start = s * step;
+                    x.read(start, &mut wk.buf);
+                    take_stock(&mut wk.moments, &mut wk.bad, start, &wk.buf[..step]);
+                    let mean = match detrend {
+                        Detrend::Mean => sum(&wk.buf) / n as f64,
+                        Detrend::None => 0.0,
+                    };
+                    for (v, wv) in wk.buf.iter_mut().zip(w) {
+                        *v = (*v - mean) * wv;
+                    }
+                    // Lengths match the plan by construction, so this cannot fail.
+                    if fft.process_with_scratch(&mut wk.buf, &mut wk.out, &mut wk.scratch).is_ok() {
+                        for (acc, c) in wk.acc.iter_mut().zip(&wk.out) {
+                            *acc += c.norm_sqr();
+                        }
+                    }
+                }
+                wk
+            })
+            .collect();
+        for p in partial {
+            if self.bad.is_none() {
+                self.bad = p.bad;
+            }
+            self.moments = self.moments.merge(p.moments);
+            for (d, v) in self.acc.iter_mut().zip(&p.acc) {
+                *d += v;
+            }
+        }
+        self.segments = s1;
+    }
+
+    /// Adds what is left of `x` (its last whole segments and the tail) and scales the average.
+    ///
+    /// # Errors
+    /// [`WelchError::TooShort`] when `x` holds no whole segment; [`WelchError::NotFinite`]
+    /// naming the first non-finite sample.
+    pub fn finish(mut self, x: &ChannelView<'_>) -> Result<Psd, WelchError> {
+        let n = self.config.nperseg;
+        if x.len() < n {
+            return Err(WelchError::TooShort { nperseg: n, samples: x.len() });
+        }
+        self.advance(x);
+        let mut buf = vec![0.0; n];
+        let mut start = self.segments * self.step;
+        while start < x.len() {
+            let got = x.read(start, &mut buf);
+            take_stock(&mut self.moments, &mut self.bad, start, &buf[..got]);
+            start += got;
+        }
+        if let Some((index, value)) = self.bad {
+            return Err(WelchError::NotFinite { index, value });
+        }
+        let segments = self.segments;
+        let scale = 1.0 / (self.fs * self.sums.sum_sq) / segments as f64;
+        let bins = self.acc.len();
+        let last = if n % 2 == 0 { bins - 1 } else { bins };
+        let mut density = self.acc;
+        for (k, d) in density.iter_mut().enumerate() {
+            *d *= if k == 0 || k == last { scale } else { 2.0 * scale };
+        }
+        Ok(Psd {
+            fs: self.fs,
+            config: self.config,
+            density,
+            segments,
+            unused_samples: x.len() - ((segments - 1) * self.step + n),
+            sums: self.sums,
+            moments: self.moments,
+        })
+    }
+}
+
 /// Welch PSD of `x` (pascals) sampled at `fs` Hz.
 ///
 /// # Errors
@@ -169,96 +341,14 @@ pub fn welch(x: &[f64], fs: f64, config: WelchConfig) -> Result<Psd, WelchError>
     welch_channel(&ChannelView::of_pascals(x), fs, config)
 }
 
-/// Welch PSD of one channel read where it lies (raw DAQ bytes or values), sampled at `fs` Hz.
-///
-/// Each worker reads its segments straight into its own buffer, and on the way checks that
-/// every sample is finite and gathers the channel's moments over the samples it owns (the
-/// first `step` of each of its segments; the last worker also the tail), so the data is
-/// traversed once.
+/// Welch PSD of one channel read where it lies (raw DAQ bytes or values), sampled at `fs` Hz:
+/// one [`WelchAccumulator`] fed the whole channel.
 ///
 /// # Errors
 /// [`WelchError`] when the segment length, overlap or data length do not fit, or a sample is
 /// not finite (the first one is named).
 pub fn welch_channel(x: &ChannelView<'_>, fs: f64, config: WelchConfig) -> Result<Psd, WelchError> {
-    let n = config.nperseg;
-    if !(MIN_SEGMENT..=MAX_SEGMENT).contains(&n) {
-        return Err(WelchError::SegmentLength(n));
-    }
-    if config.noverlap >= n {
-        return Err(WelchError::Overlap { noverlap: config.noverlap, nperseg: n });
-    }
-    if x.len() < n {
-        return Err(WelchError::TooShort { nperseg: n, samples: x.len() });
-    }
-    let step = n - config.noverlap;
-    let segments = (x.len() - config.noverlap) / step;
-    let unused_samples = x.len() - ((segments - 1) * step + n);
-    let w = config.window.values(n);
-    let sums = WindowSums::of(&w);
-    let fft = plan(n);
-    let bins = n / 2 + 1;
-    let threads = rayon::current_num_threads().max(1);
-    let per = segments.div_ceil(threads);
-    let chunks: Vec<(usize, usize)> =
-        (0..threads).map(|t| (t * per, ((t + 1) * per).min(segments))).filter(|(a, b)| a < b).collect();
-    let partial: Vec<Worker> = chunks
-        .par_iter()
-        .map(|&(s0, s1)| {
-            let mut wk = Worker {
-                buf: vec![0.0; n],
-                out: fft.make_output_vec(),
-                scratch: fft.make_scratch_vec(),
-                acc: vec![0.0; bins],
-                moments: SampleMoments::default(),
-                bad: None,
-            };
-            for s in s0..s1 {
-                let start = s * step;
-                x.read(start, &mut wk.buf);
-                take_stock(&mut wk.moments, &mut wk.bad, start, &wk.buf[..step]);
-                let mean = match config.detrend {
-                    Detrend::Mean => sum(&wk.buf) / n as f64,
-                    Detrend::None => 0.0,
-                };
-                for (b, wv) in wk.buf.iter_mut().zip(&w) {
-                    *b = (*b - mean) * wv;
-                }
-                // Lengths match the plan by construction, so this cannot fail.
-                if fft.process_with_scratch(&mut wk.buf, &mut wk.out, &mut wk.scratch).is_ok() {
-                    for (a, c) in wk.acc.iter_mut().zip(&wk.out) {
-                        *a += c.norm_sqr();
-                    }
-                }
-            }
-            if s1 == segments {
-                // The rest of the last segment and the unused tail.
-                let mut start = s1 * step;
-                while start < x.len() {
-                    let got = x.read(start, &mut wk.buf);
-                    take_stock(&mut wk.moments, &mut wk.bad, start, &wk.buf[..got]);
-                    start += got;
-                }
-            }
-            wk
-        })
-        .collect();
-    let mut density = vec![0.0; bins];
-    let mut moments = SampleMoments::default();
-    for p in &partial {
-        if let Some((index, value)) = p.bad {
-            return Err(WelchError::NotFinite { index, value });
-        }
-        moments = moments.merge(p.moments);
-        for (d, v) in density.iter_mut().zip(&p.acc) {
-            *d += v;
-        }
-    }
-    let scale = 1.0 / (fs * sums.sum_sq) / segments as f64;
-    let last = if n % 2 == 0 { bins - 1 } else { bins };
-    for (k, d) in density.iter_mut().enumerate() {
-        *d *= if k == 0 || k == last { scale } else { 2.0 * scale };
-    }
-    Ok(Psd { fs, config, density, segments, unused_samples, sums, moments })
+    WelchAccumulator::new(fs, config)?.finish(x)
 }
 
 #[cfg(test)]
@@ -308,6 +398,45 @@ pub(crate) mod tests {
         let k = p.segments as f64;
         // Hann, 50 % overlap: 1 + 2 rho^2 with rho = 0.167 (Harris 1978, Table 1).
         assert!((eps * eps * k - (1.0 + 2.0 * 0.1667f64.powi(2))).abs() < 0.01, "{}", eps * eps * k);
+    }
+
+    #[test]
+    fn blocks_fed_as_they_arrive_give_the_whole_estimate() {
+        use crate::dsp::samples::{Format, Recording};
+        let x: Vec<f32> = noise(40_000, 3, 1.5).iter().map(|v| *v as f32).collect();
+        let bytes: Vec<u8> = x.iter().flat_map(|v| v.to_le_bytes()).collect();
+        let config = cfg(1024);
+        let whole = welch(&x.iter().map(|v| f64::from(*v)).collect::<Vec<_>>(), 1000.0, config).unwrap();
+        let mut rec = Recording::stream(Format::F32, 1, 1.0);
+        let mut acc = WelchAccumulator::new(1000.0, config).unwrap();
+        // Uneven blocks, some shorter than a segment.
+        let mut at = 0;
+        for len in [300usize, 5000, 7, 1200, 20_000, 13_493] {
+            rec.push_block(bytes[at * 4..(at + len) * 4].to_vec().into()).unwrap();
+            at += len;
+            acc.advance(&rec.channel(0));
+        }
+        assert_eq!(at, x.len());
+        let streamed = acc.finish(&rec.channel(0)).unwrap();
+        assert_eq!(streamed.segments, whole.segments);
+        assert_eq!(streamed.unused_samples, whole.unused_samples);
+        for (a, b) in streamed.density.iter().zip(&whole.density) {
+            assert!((a / b - 1.0).abs() < 1e-12);
+        }
+        assert_eq!(streamed.moments.count, 40_000);
+        assert!((streamed.moments.m2 / whole.moments.m2 - 1.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn the_first_non_finite_sample_is_named() {
+        let mut x = noise(10_000, 5, 1.0);
+        x[7777] = f64::NAN;
+        x[9999] = f64::INFINITY;
+        assert!(matches!(welch(&x, 1.0, cfg(256)), Err(WelchError::NotFinite { index: 7777, .. })));
+        // In the tail after the last whole segment.
+        let mut y = noise(1000, 5, 1.0);
+        y[999] = f64::NEG_INFINITY;
+        assert!(matches!(welch(&y, 1.0, cfg(256)), Err(WelchError::NotFinite { index: 999, .. })));
     }
 
     #[test]
