@@ -26,6 +26,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         .build_client(true)
         .build_server(true)
         .bytes(".jetloop.v1.RawSamples.data")
+        .bytes(".jetloop.v1.SampleBlock.frames")
         .compile_fds(fds)?;
     Ok(())
 }

@@ -34,6 +34,24 @@ pub enum ApiError {
     Precondition(String),
 }
 
+impl ApiError {
+    /// The same error with every field path placed under `prefix` (a message nested in
+    /// another).
+    pub fn within(self, prefix: &str) -> Self {
+        match self {
+            ApiError::Invalid(v) => ApiError::Invalid(
+                v.into_iter()
+                    .map(|f| FieldViolation { field: join(prefix, &f.field), description: f.description })
+                    .collect(),
+            ),
+            ApiError::TooLarge { field, limit, actual } => {
+                ApiError::TooLarge { field: join(prefix, &field), limit, actual }
+            }
+            e @ ApiError::Precondition(_) => e,
+        }
+    }
+}
+
 impl From<ApiError> for Status {
     fn from(e: ApiError) -> Self {
         match e {

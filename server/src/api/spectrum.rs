@@ -6,7 +6,7 @@ use super::provenance::{provenance, Defaults};
 use crate::dsp::bands::{band_levels, BandLevels};
 use crate::dsp::samples::{ChannelView, DecodeError, Format, Layout, Recording};
 use crate::dsp::tones::{find_tones, ToneConfig, ToneSet};
-use crate::dsp::welch::{welch_channel, Detrend, Psd, WelchConfig, WelchError, MAX_SEGMENT, MIN_SEGMENT};
+use crate::dsp::welch::{Detrend, Psd, WelchAccumulator, WelchConfig, WelchError, MAX_SEGMENT, MIN_SEGMENT};
 use crate::dsp::window::Window;
 use crate::dsp::{spl_db, CAUTION_LEVEL_DB};
 use crate::physics::bounds::Bounds;
@@ -50,8 +50,14 @@ pub struct SampleSet {
 impl SampleSet {
     /// Welch PSD of channel `c`, with a non-finite sample reported against the samples field.
     fn psd(&self, c: usize, config: WelchConfig) -> Result<Psd, ApiError> {
+        let w = WelchAccumulator::new(self.fs, config).map_err(|e| ApiError::Precondition(e.to_string()))?;
+        self.finish_psd(c, w)
+    }
+
+    /// Adds what is left of channel `c` to `w` and finishes the estimate.
+    fn finish_psd(&self, c: usize, w: WelchAccumulator) -> Result<Psd, ApiError> {
         let view: ChannelView<'_> = self.recording.channel(c);
-        welch_channel(&view, self.fs, config).map_err(|e| match e {
+        w.finish(&view).map_err(|e| match e {
             WelchError::NotFinite { .. } => ApiError::Invalid(vec![FieldViolation {
                 field: self.field.into(),
                 description: format!("{}: channel {c}: {e}", self.field),
@@ -81,6 +87,16 @@ fn layout(check: &mut Check, v: i32) -> Option<Layout> {
 /// [`ApiError::TooLarge`] over [`MAX_TOTAL_SAMPLES`]; [`ApiError::Invalid`] for everything
 /// else that is wrong, with the field named.
 pub fn sample_set(s: Option<pb::Samples>, defaults: &mut Defaults) -> Result<SampleSet, ApiError> {
+    sample_set_for(s, defaults, false)
+}
+
+/// As [`sample_set`]; for the first message of a block stream (`stream`), raw interleaved
+/// bytes are required and an empty first block is allowed.
+fn sample_set_for(
+    s: Option<pb::Samples>,
+    defaults: &mut Defaults,
+    stream: bool,
+) -> Result<SampleSet, ApiError> {
     use pb::calibration::Scale;
     use pb::samples::Data;
     let mut check = Check::new();
@@ -160,7 +176,21 @@ pub fn sample_set(s: Option<pb::Samples>, defaults: &mut Defaults) -> Result<Sam
             actual: format!("{count} samples"),
         });
     }
-    if data.is_some() && count == 0 && check.is_clean() {
+    if stream {
+        if matches!(data, Some(Data::Values(_))) {
+            check.other(
+                "samples.values",
+                "block streams carry raw bytes: set samples.raw (its format, and optionally the first frames)",
+            );
+        }
+        if layout == Some(Layout::Planar) {
+            check.other(
+                "samples.layout",
+                "block streams carry interleaved frames: use CHANNEL_LAYOUT_INTERLEAVED (or leave it unset)",
+            );
+        }
+    }
+    if !stream && data.is_some() && count == 0 && check.is_clean() {
         check.other(field, format!("{field} is empty: there are no samples to analyse"));
     }
     let (Some(fs), Some(layout), Some(scale), Some(data)) = (fs, layout, scale, data) else {
@@ -221,8 +251,11 @@ fn welch_config(
             None
         }
     };
-    let span =
-        format!("[{MIN_SEGMENT}, {}] samples (the data has {samples} per channel)", MAX_SEGMENT.min(samples));
+    let span = if samples == usize::MAX {
+        format!("[{MIN_SEGMENT}, {MAX_SEGMENT}] samples")
+    } else {
+        format!("[{MIN_SEGMENT}, {}] samples (the data has {samples} per channel)", MAX_SEGMENT.min(samples))
+    };
     let nperseg = match segment {
         Some(Segment::SegmentLength(n)) => {
             let n = n as usize;
@@ -350,51 +383,54 @@ impl TryFrom<pb::ExtractTonesRequest> for ToneQuery {
     type Error = ApiError;
 
     fn try_from(req: pb::ExtractTonesRequest) -> Result<Self, ApiError> {
-        let pb::ExtractTonesRequest {
-            samples,
-            welch,
-            tones,
-            predicted_screech_hz,
-            match_tolerance_fraction,
-            include_band_levels,
-            max_band_frequency_hz,
-            psd_output,
-        } = req;
-        let started = std::time::Instant::now();
-        let mut defaults = Defaults::default();
-        let samples = sample_set(samples, &mut defaults)?;
-        let mut check = Check::new();
-        let w = welch_config(&mut check, &mut defaults, welch, samples.fs, samples.recording.len());
-        let tones = tone_config(&mut check, tones);
-        let predicted = predicted_screech_hz.and_then(|f| {
-            let f = check.range("", PREDICTED.check("predicted_screech_hz", f))?;
-            let tol = match match_tolerance_fraction {
-                None => 0.05,
-                Some(t) => check.range("", MATCH_TOL.check("match_tolerance_fraction", t))?,
-            };
-            Some((f, tol))
-        });
-        let bands = include_band_levels.then(|| match max_band_frequency_hz {
-            None => 100_000.0,
-            Some(f) => check.range("", BAND_MAX.check("max_band_frequency_hz", f)).unwrap_or(100_000.0),
-        });
-        let psd_points = psd_output.filter(|p| p.include).map(|p| {
-            p.max_points.and_then(|m| {
-                check.range("psd_output", PSD_POINTS.check("max_points", f64::from(m))).map(|v| v as usize)
-            })
-        });
-        let q = w.map(|welch| ToneQuery {
-            started,
-            samples,
-            welch,
-            tones,
-            predicted,
-            bands,
-            psd_points,
-            defaults,
-        });
-        check.finish(q)
+        tone_query(req, None)
     }
+}
+
+/// Converts a tone request. `stream` is `Some(expected frames per channel, if known)` for the
+/// first message of a block stream, whose data is still to come.
+fn tone_query(req: pb::ExtractTonesRequest, stream: Option<Option<u64>>) -> Result<ToneQuery, ApiError> {
+    let pb::ExtractTonesRequest {
+        samples,
+        welch,
+        tones,
+        predicted_screech_hz,
+        match_tolerance_fraction,
+        include_band_levels,
+        max_band_frequency_hz,
+        psd_output,
+    } = req;
+    let started = std::time::Instant::now();
+    let mut defaults = Defaults::default();
+    let samples = sample_set_for(samples, &mut defaults, stream.is_some())?;
+    let known = match stream {
+        None => samples.recording.len(),
+        Some(Some(frames)) => usize::try_from(frames).unwrap_or(usize::MAX),
+        Some(None) => usize::MAX,
+    };
+    let mut check = Check::new();
+    let w = welch_config(&mut check, &mut defaults, welch, samples.fs, known);
+    let tones = tone_config(&mut check, tones);
+    let predicted = predicted_screech_hz.and_then(|f| {
+        let f = check.range("", PREDICTED.check("predicted_screech_hz", f))?;
+        let tol = match match_tolerance_fraction {
+            None => 0.05,
+            Some(t) => check.range("", MATCH_TOL.check("match_tolerance_fraction", t))?,
+        };
+        Some((f, tol))
+    });
+    let bands = include_band_levels.then(|| match max_band_frequency_hz {
+        None => 100_000.0,
+        Some(f) => check.range("", BAND_MAX.check("max_band_frequency_hz", f)).unwrap_or(100_000.0),
+    });
+    let psd_points = psd_output.filter(|p| p.include).map(|p| {
+        p.max_points.and_then(|m| {
+            check.range("psd_output", PSD_POINTS.check("max_points", f64::from(m))).map(|v| v as usize)
+        })
+    });
+    let q =
+        w.map(|welch| ToneQuery { started, samples, welch, tones, predicted, bands, psd_points, defaults });
+    check.finish(q)
 }
 
 /// A validated band-level question.
@@ -501,11 +537,17 @@ const SPECTRUM_MODELS: [Model; 2] = [models::WELCH_PSD, models::SPL];
 /// None in practice: every configuration was checked against the data length; a failure is
 /// reported as FAILED_PRECONDITION.
 pub fn tones_response(q: &ToneQuery) -> Result<pb::ExtractTonesResponse, ApiError> {
-    let t = q.started;
-    let mut out = Vec::with_capacity(q.samples.recording.channel_count());
-    for c in 0..q.samples.recording.channel_count() {
-        let psd = q.samples.psd(c, q.welch)?;
-        let set = find_tones(&psd, &q.tones);
+    let psds = (0..q.samples.recording.channel_count())
+        .map(|c| q.samples.psd(c, q.welch))
+        .collect::<Result<Vec<_>, _>>()?;
+    Ok(tones_answer(q, &psds, q.started))
+}
+
+/// The answer from one PSD per channel; `t` is when the server's work began.
+fn tones_answer(q: &ToneQuery, psds: &[Psd], t: std::time::Instant) -> pb::ExtractTonesResponse {
+    let mut out = Vec::with_capacity(psds.len());
+    for (c, psd) in psds.iter().enumerate() {
+        let set = find_tones(psd, &q.tones);
         let rms_pa = psd.moments.rms_about_mean();
         let overall = spl_db(rms_pa * rms_pa);
         let mut cautions = Vec::new();
@@ -540,7 +582,7 @@ pub fn tones_response(q: &ToneQuery) -> Result<pb::ExtractTonesResponse, ApiErro
         out.push(pb::ChannelSpectrum {
             channel: c as u32,
             name: q.samples.names.get(c).cloned().unwrap_or_default(),
-            analysis: Some(analysis(&psd, q.samples.recording.len(), Some(&set))),
+            analysis: Some(analysis(psd, q.samples.recording.len(), Some(&set))),
             rms_pa,
             overall_level_db: overall,
             tones: set
@@ -583,8 +625,8 @@ pub fn tones_response(q: &ToneQuery) -> Result<pb::ExtractTonesResponse, ApiErro
                 })
                 .collect(),
             predicted_match,
-            bands: q.bands.map(|m| band_summary(&band_levels(&psd, m))),
-            psd: q.psd_points.map(|m| psd_data(&psd, Some(&set.floor), m)),
+            bands: q.bands.map(|m| band_summary(&band_levels(psd, m))),
+            psd: q.psd_points.map(|m| psd_data(psd, Some(&set.floor), m)),
             cautions,
         });
     }
@@ -594,11 +636,112 @@ pub fn tones_response(q: &ToneQuery) -> Result<pb::ExtractTonesResponse, ApiErro
         used.push(models::THIRD_OCTAVE);
         used.push(models::A_WEIGHTING);
     }
-    Ok(pb::ExtractTonesResponse {
+    pb::ExtractTonesResponse {
         channels: out,
         compute_time_s: t.elapsed().as_secs_f64(),
         provenance: Some(provenance(&used, &q.defaults, Vec::new())),
-    })
+    }
+}
+
+/// A block stream being analysed: the validated question, the recording as it grows, and one
+/// Welch accumulator per channel that takes each segment as soon as its last frame arrives.
+#[derive(Debug)]
+pub struct ToneStream {
+    query: ToneQuery,
+    welch: Vec<WelchAccumulator>,
+    blocks: usize,
+}
+
+fn not_first(field: &str) -> ApiError {
+    ApiError::Invalid(vec![FieldViolation {
+        field: field.into(),
+        description: format!("{field} belongs in the first message of the stream only"),
+    }])
+}
+
+impl ToneStream {
+    /// Validates the first message and takes the frames it carries.
+    ///
+    /// # Errors
+    /// As for ExtractTones, with field paths under `request`; a missing `request`; values or
+    /// planar channels.
+    pub fn start(first: pb::SampleBlock) -> Result<Self, ApiError> {
+        let pb::SampleBlock { request, frames, expected_frames } = first;
+        let Some(request) = request else {
+            let mut check = Check::new();
+            check.missing("request", "the first message of a block stream carries the question");
+            return check.finish(None);
+        };
+        let mut query = tone_query(request, Some(expected_frames)).map_err(|e| e.within("request"))?;
+        query.samples.field = "frames";
+        let (fs, config) = (query.samples.fs, query.welch);
+        let welch = (0..query.samples.recording.channel_count())
+            .map(|_| WelchAccumulator::new(fs, config))
+            .collect::<Result<Vec<_>, _>>()
+            .map_err(|e| ApiError::Precondition(e.to_string()))?;
+        let mut stream = Self { query, welch, blocks: 0 };
+        stream.push(frames)?;
+        Ok(stream)
+    }
+
+    /// Takes a later message.
+    ///
+    /// # Errors
+    /// A `request` or `expected_frames` after the first message; frames that are not whole;
+    /// more than [`MAX_TOTAL_SAMPLES`] in all (`RESOURCE_EXHAUSTED`).
+    pub fn next(&mut self, block: pb::SampleBlock) -> Result<(), ApiError> {
+        if block.request.is_some() {
+            return Err(not_first("request"));
+        }
+        if block.expected_frames.is_some() {
+            return Err(not_first("expected_frames"));
+        }
+        self.push(block.frames)
+    }
+
+    fn push(&mut self, frames: bytes::Bytes) -> Result<(), ApiError> {
+        self.blocks += 1;
+        let rec = &mut self.query.samples.recording;
+        rec.push_block(frames).map_err(|e| {
+            ApiError::Invalid(vec![FieldViolation {
+                field: "frames".into(),
+                description: format!("frames of message {}: {e}", self.blocks),
+            }])
+        })?;
+        let total = rec.len() * rec.channel_count();
+        if total > MAX_TOTAL_SAMPLES {
+            return Err(ApiError::TooLarge {
+                field: "frames".into(),
+                limit: format!("{MAX_TOTAL_SAMPLES} samples per stream (all channels)"),
+                actual: format!("{total} samples after message {}", self.blocks),
+            });
+        }
+        for (c, w) in self.welch.iter_mut().enumerate() {
+            w.advance(&rec.channel(c));
+        }
+        Ok(())
+    }
+
+    /// Messages taken so far.
+    pub fn messages(&self) -> usize {
+        self.blocks
+    }
+
+    /// Finishes every channel's estimate and builds the answer.
+    ///
+    /// # Errors
+    /// A stream too short for one segment (FAILED_PRECONDITION); a non-finite sample.
+    pub fn finish(self) -> Result<pb::ExtractTonesResponse, ApiError> {
+        let t = std::time::Instant::now();
+        let q = &self.query;
+        let psds = self
+            .welch
+            .into_iter()
+            .enumerate()
+            .map(|(c, w)| q.samples.finish_psd(c, w))
+            .collect::<Result<Vec<_>, _>>()?;
+        Ok(tones_answer(q, &psds, t))
+    }
 }
 
 /// Runs the band analysis and builds the response.

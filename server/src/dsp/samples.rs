@@ -102,7 +102,9 @@ impl Recording {
         }
         let per_channel = bytes.len() / (w * channels);
         let total = bytes.len() / w;
-        let storage = Storage::Blocks { blocks: vec![bytes], starts: vec![0], total, format };
+        let (blocks, starts) =
+            if bytes.is_empty() { (Vec::new(), Vec::new()) } else { (vec![bytes], vec![0]) };
+        let storage = Storage::Blocks { blocks, starts, total, format };
         Ok(Self { storage, layout, channels, per_channel, scale_pa })
     }
 

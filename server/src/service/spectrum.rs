@@ -1,9 +1,9 @@
 //! `jetloop.v1.SpectrumService`.
 
-use crate::api::spectrum::{bands_response, tones_response, BandQuery, ToneQuery};
+use crate::api::spectrum::{bands_response, tones_response, BandQuery, ToneQuery, ToneStream};
 use crate::api::ApiError;
 use jetloop_proto::pb::{self, spectrum_service_server::SpectrumService};
-use tonic::{Request, Response, Status};
+use tonic::{Request, Response, Status, Streaming};
 
 /// Handlers for spectral analysis. Decoding and the FFT work run on the blocking pool (the
 /// Welch loop itself spreads segments over the rayon pool), so the reactor only moves bytes.
@@ -31,6 +31,50 @@ impl SpectrumService for Spectrum {
         let req = request.into_inner();
         let r = blocking(move || tones_response(&ToneQuery::try_from(req)?)).await?;
         Ok(Response::new(r))
+    }
+
+    async fn extract_tones_stream(
+        &self,
+        request: Request<Streaming<pb::SampleBlock>>,
+    ) -> Result<Response<pb::ExtractTonesResponse>, Status> {
+        let mut incoming = request.into_inner();
+        let first = incoming
+            .message()
+            .await?
+            .ok_or_else(|| Status::invalid_argument("the block stream ended before its first message"))?;
+        // The analysis runs on one blocking thread (fanning segments out to rayon) and takes
+        // blocks from this loop as they arrive; the reactor only moves bytes.
+        let (tx, rx) = std::sync::mpsc::channel::<pb::SampleBlock>();
+        let worker = tokio::task::spawn_blocking(move || -> Result<_, ApiError> {
+            let mut stream = ToneStream::start(first)?;
+            while let Ok(block) = rx.recv() {
+                stream.next(block)?;
+            }
+            stream.finish()
+        });
+        let mut received = Ok(());
+        loop {
+            match incoming.message().await {
+                Ok(Some(block)) => {
+                    if tx.send(block).is_err() {
+                        // The analysis stopped on an error; it is reported below.
+                        break;
+                    }
+                }
+                Ok(None) => break,
+                Err(e) => {
+                    received = Err(e);
+                    break;
+                }
+            }
+        }
+        drop(tx);
+        let answer = worker.await.map_err(|e| {
+            tracing::error!("spectrum stream task failed: {e}");
+            Status::internal("the spectral analysis failed; see the server log")
+        })?;
+        received?;
+        Ok(Response::new(answer.map_err(Status::from)?))
     }
 
     async fn band_levels(
