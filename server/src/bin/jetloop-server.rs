@@ -6,11 +6,6 @@ use jetloop_server::{config::Config, server};
 use std::io::Write;
 use std::process::ExitCode;
 
-/// mimalloc keeps freed pages for reuse, so the multi-megabyte sample buffers of one request
-/// do not page-fault again on the next.
-#[global_allocator]
-static GLOBAL: mimalloc::MiMalloc = mimalloc::MiMalloc;
-
 #[tokio::main]
 async fn main() -> ExitCode {
     let config = Config::parse();
