@@ -89,6 +89,71 @@ pub struct TonesCmd {
     /// Write the PSD as CSV (frequency_hz, density_pa2_per_hz, floor_pa2_per_hz).
     #[arg(long)]
     psd_csv: Option<PathBuf>,
+    /// Send the samples in blocks of about this many bytes (ExtractTonesStream), so the server
+    /// analyses while the upload runs; 0 sends one request. Unset: blocks of 1 MiB for raw
+    /// interleaved data over 4 MiB, else one request.
+    #[arg(long)]
+    block_bytes: Option<usize>,
+}
+
+/// Raw interleaved samples cut into blocks of whole frames of about `block` bytes; `None` when
+/// the samples are values or planar.
+fn blocks_of(samples: &pb::Samples, block: usize) -> Option<Vec<bytes::Bytes>> {
+    let Some(pb::samples::Data::Raw(raw)) = &samples.data else {
+        return None;
+    };
+    if samples.layout == pb::ChannelLayout::Planar as i32 {
+        return None;
+    }
+    let width = match pb::SampleFormat::try_from(raw.format).ok()? {
+        pb::SampleFormat::I16Le => 2,
+        pb::SampleFormat::F32Le | pb::SampleFormat::I32Le => 4,
+        pb::SampleFormat::F64Le => 8,
+        pb::SampleFormat::Unspecified => return None,
+    };
+    let frame = width * samples.channel_count.max(1) as usize;
+    let step = (block / frame).max(1) * frame;
+    Some(
+        (0..raw.data.len())
+            .step_by(step)
+            .map(|a| raw.data.slice(a..(a + step).min(raw.data.len())))
+            .collect(),
+    )
+}
+
+/// Sends the question and then the blocks, with a progress bar of bytes sent on a terminal.
+async fn extract_in_blocks(
+    client: &mut SpectrumServiceClient<Channel>,
+    mut req: pb::ExtractTonesRequest,
+    blocks: Vec<bytes::Bytes>,
+) -> Result<pb::ExtractTonesResponse, tonic::Status> {
+    use tokio_stream::StreamExt;
+    if let Some(pb::samples::Data::Raw(raw)) = req.samples.as_mut().and_then(|s| s.data.as_mut()) {
+        raw.data = bytes::Bytes::new();
+    }
+    let total: u64 = blocks.iter().map(|b| b.len() as u64).sum();
+    let bar = indicatif::ProgressBar::new(total);
+    bar.set_style(
+        indicatif::ProgressStyle::with_template("sending {bar:30} {bytes}/{total_bytes} ({bytes_per_sec})")
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+    );
+    let shown = bar.clone();
+    let first = pb::SampleBlock { request: Some(req), ..Default::default() };
+    let rest = blocks.into_iter().map(|frames| pb::SampleBlock { frames, ..Default::default() });
+    let msgs = tokio_stream::iter(std::iter::once(first).chain(rest)).map(move |m| {
+        shown.inc(m.frames.len() as u64);
+        if shown.position() >= total {
+            shown.set_style(
+                indicatif::ProgressStyle::with_template("{spinner} last block sent; finishing the analysis")
+                    .unwrap_or_else(|_| indicatif::ProgressStyle::default_spinner()),
+            );
+            shown.enable_steady_tick(std::time::Duration::from_millis(120));
+        }
+        m
+    });
+    let r = client.extract_tones_stream(msgs).await;
+    bar.finish_and_clear();
+    r.map(tonic::Response::into_inner)
 }
 
 /// `jetloop bands`.
@@ -159,19 +224,38 @@ pub async fn tones(ch: Channel, a: TonesCmd) -> Result<Report, Failure> {
         max_band_frequency_hz: None,
         psd_output: Some(pb::PsdOutputOptions { include: want_psd, max_points: None }),
     };
-    let s = spinner("uploading and analysing on the server");
-    let r = SpectrumServiceClient::new(ch)
+    let mut client = SpectrumServiceClient::new(ch)
         .max_decoding_message_size(256 * 1024 * 1024)
-        .max_encoding_message_size(256 * 1024 * 1024)
-        .extract_tones(req)
-        .await;
-    s.finish_and_clear();
-    let r = r?.into_inner();
+        .max_encoding_message_size(256 * 1024 * 1024);
+    let raw_len = match req.samples.as_ref().and_then(|s| s.data.as_ref()) {
+        Some(pb::samples::Data::Raw(r)) => r.data.len(),
+        _ => 0,
+    };
+    let block = a.block_bytes.unwrap_or(if raw_len > 4 << 20 { 1 << 20 } else { 0 });
+    let blocks = if block == 0 { None } else { req.samples.as_ref().and_then(|s| blocks_of(s, block)) };
+    let (r, timing) = match blocks {
+        Some(blocks) => {
+            let n = blocks.len();
+            let r = extract_in_blocks(&mut client, req, blocks).await?;
+            let t = format!(
+                "sent in {n} blocks; {:.1} ms from the last block to the answer",
+                r.compute_time_s * 1e3
+            );
+            (r, t)
+        }
+        None => {
+            let s = spinner("uploading and analysing on the server");
+            let r = client.extract_tones(req).await;
+            s.finish_and_clear();
+            let r = r?.into_inner();
+            let t = format!("{:.1} ms server time", r.compute_time_s * 1e3);
+            (r, t)
+        }
+    };
     let mut top = Report::new(format!(
-        "Tones in {} ({} channel(s), {:.1} ms server time)",
+        "Tones in {} ({} channel(s), {timing})",
         a.input.file.display(),
         r.channels.len(),
-        r.compute_time_s * 1e3
     ));
     let several = r.channels.len() > 1;
     for c in &r.channels {

@@ -116,6 +116,11 @@ async fn synth_wav_then_tones_finds_the_screech_family() {
                 svg.to_str().unwrap(),
             ],
         );
+        // The same file sent in blocks of 64 KiB (ExtractTonesStream).
+        let blocks = jetloop(
+            &u,
+            &["--json", "tones", wav.to_str().unwrap(), "--pa-per-unit", "2000", "--block-bytes", "65536"],
+        );
         let csv = dir.join("two.csv");
         let mut text = String::from("mic_a,mic_b\n");
         for i in 0..20_000 {
@@ -125,11 +130,11 @@ async fn synth_wav_then_tones_finds_the_screech_family() {
         std::fs::write(&csv, text).unwrap();
         let b = jetloop(&u, &["--json", "bands", csv.to_str().unwrap(), "--sample-rate-hz", "20000"]);
         let svg_text = std::fs::read_to_string(&svg).unwrap_or_default();
-        (no_cal, t, b, svg_text)
+        (no_cal, t, b, svg_text, blocks)
     })
     .await
     .unwrap();
-    let (no_cal, t, b, svg) = out;
+    let (no_cal, t, b, svg, blocks) = out;
     assert_eq!(no_cal.status.code(), Some(2), "WAV without calibration is a usage error");
     let top = json(&t);
     let j = &top["channels"][0];
@@ -147,6 +152,14 @@ async fn synth_wav_then_tones_finds_the_screech_family() {
     assert!(j["caution"].as_str().unwrap().contains("140 dB"));
     assert!(j["predicted_match"].as_str().unwrap().contains("matched"));
     assert!(svg.starts_with("<svg") && svg.contains("4800 Hz"));
+    // Blocks give the same tones as one request.
+    let jb = json(&blocks);
+    let (a, b_) = (&jb["channels"][0]["tones"], &j["tones"]);
+    assert_eq!(a.as_array().unwrap().len(), b_.as_array().unwrap().len());
+    for (x, y) in a.as_array().unwrap().iter().zip(b_.as_array().unwrap()) {
+        let (fx, fy) = (x["frequency_hz"].as_f64().unwrap(), y["frequency_hz"].as_f64().unwrap());
+        assert!((fx - fy).abs() < 1e-9 * fy, "{x} {y}");
+    }
     let jb = json(&b);
     // 1 kHz sine of amplitude 1 Pa -> 90.97 dB in the 1 kHz band (closed form: 10 log10(0.5/4e-10));
     // the second column is half the amplitude, 6.02 dB lower.
