@@ -114,3 +114,45 @@ def test_tones_agree_with_scipy_find_peaks_on_a_clean_signal(sp):
         assert min(abs(ft - f[k]) for ft in found) <= df
     assert len(ch.families) == 1 and list(ch.families[0].orders) == [1, 2]
     assert abs(ch.families[0].fundamental_hz - 3011.7) < 0.05 * df
+
+
+@pytest.mark.parametrize("fmt,dtype,block_frames", [
+    ("SAMPLE_FORMAT_F32_LE", "<f4", 3001),
+    ("SAMPLE_FORMAT_I16_LE", "<i2", 65_536),
+    ("SAMPLE_FORMAT_F64_LE", "<f8", 777),
+])
+def test_block_stream_psd_equals_scipy_welch(sp, fmt, dtype, block_frames):
+    """ExtractTonesStream: three channels of interleaved frames sent in blocks (the first
+    message carrying some frames too) give scipy.signal.welch of each channel, to 1e-9."""
+    mod, stub = sp
+    fs, n, nperseg, k = 40_000.0, 120_007, 2048, 0.25
+    chans = [signal(n, fs, 20 + c, c != 1) for c in range(3)]
+    if dtype == "<i2":
+        chans = [np.round(x * 300.0) for x in chans]
+    inter = np.empty(3 * n, dtype=dtype)
+    for c in range(3):
+        inter[c::3] = chans[c]
+    raw = inter.tobytes()
+    fb = 3 * np.dtype(dtype).itemsize
+    head_frames = 1000
+    first = mod.SampleBlock(
+        request=mod.ExtractTonesRequest(
+            samples=mod.Samples(
+                sample_rate_hz=fs, channel_count=3,
+                raw=mod.RawSamples(data=raw[: head_frames * fb], format=getattr(mod, fmt)),
+                calibration=mod.Calibration(pascals_per_unit=k),
+            ),
+            welch=mod.WelchOptions(segment_length=nperseg, overlap_fraction=0.5),
+            psd_output=mod.PsdOutputOptions(include=True),
+        ),
+        expected_frames=n,
+    )
+    step = block_frames * fb
+    blocks = [first] + [mod.SampleBlock(frames=raw[i : i + step]) for i in range(head_frames * fb, len(raw), step)]
+    r = stub.ExtractTonesStream(iter(blocks))
+    assert len(r.channels) == 3
+    for ch, x in zip(r.channels, chans):
+        _, pr = welch(inter.astype(np.float64)[ch.channel::3] * k, fs=fs, window="hann", nperseg=nperseg, noverlap=nperseg // 2)
+        np.testing.assert_allclose(np.array(ch.psd.density_pa2_per_hz), pr, rtol=REL, atol=0)
+        xs = inter.astype(np.float64)[ch.channel::3] * k
+        assert abs(ch.rms_pa / np.std(xs) - 1) < 1e-12
