@@ -43,16 +43,23 @@ async fn main() {
             data: Some(Data::Raw(pb::RawSamples { data, format: pb::SampleFormat::F32Le as i32 })),
             ..Default::default()
         }),
-        welch: Some(pb::WelchOptions { segment: Some(Segment::SegmentLength(segment)), ..Default::default() }),
+        welch: Some(pb::WelchOptions {
+            segment: Some(Segment::SegmentLength(segment)),
+            ..Default::default()
+        }),
         include_band_levels: true,
         ..Default::default()
     };
     // Built once, as the caller's sample array is; cloning shares the bytes.
     let unary = question(data.clone());
-    let mut blocks = vec![pb::SampleBlock { request: Some(question(bytes::Bytes::new())), ..Default::default() }];
+    let mut blocks =
+        vec![pb::SampleBlock { request: Some(question(bytes::Bytes::new())), ..Default::default() }];
     let step = (block / 4).max(1) * 4;
     for a in (0..data.len()).step_by(step) {
-        blocks.push(pb::SampleBlock { frames: data.slice(a..(a + step).min(data.len())), ..Default::default() });
+        blocks.push(pb::SampleBlock {
+            frames: data.slice(a..(a + step).min(data.len())),
+            ..Default::default()
+        });
     }
     for line in std::io::stdin().lock().lines() {
         let Ok(line) = line else { break };
