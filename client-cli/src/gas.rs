@@ -325,6 +325,6 @@ pub async fn info(ch: Channel) -> Result<Report, Failure> {
         .text("services", "services", r.services.join(", "))
         .int("max_request_bytes", "largest request", l.max_request_bytes, "bytes")
         .num("request_timeout_s", "time limit per call", l.request_timeout_s, "s")
-        .int("max_concurrent_requests", "concurrent calls per connection", l.max_concurrent_requests, "")
+        .int("max_concurrent_requests", "calls at once (server-wide)", l.max_concurrent_requests, "")
         .provenance(Some(p)))
 }

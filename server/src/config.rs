@@ -11,7 +11,8 @@ pub struct Limits {
     pub max_request_bytes: usize,
     /// Server-side time limit for one call.
     pub request_timeout: Duration,
-    /// Calls processed at once per connection before further ones wait.
+    /// Calls processed at once, server-wide; one more is refused with UNAVAILABLE and a retry
+    /// hint (health checks are never refused).
     pub max_concurrent_requests: usize,
 }
 
@@ -40,7 +41,8 @@ pub struct Config {
     #[arg(long, env = "JETLOOP_REQUEST_TIMEOUT_S", default_value_t = 60,
           value_parser = clap::value_parser!(u64).range(1..=3600))]
     pub request_timeout_s: u64,
-    /// Calls processed at once per connection.
+    /// Calls processed at once, server-wide (the excess is refused with UNAVAILABLE and a
+    /// retry hint; health checks are exempt).
     #[arg(long, env = "JETLOOP_MAX_CONCURRENT", default_value_t = 256,
           value_parser = clap::value_parser!(u64).range(1..=65536))]
     pub max_concurrent_requests: u64,

@@ -5,6 +5,7 @@
 //! never import tonic, prost or tokio.
 #![forbid(unsafe_code)]
 
+pub mod admission;
 pub mod api;
 pub mod config;
 pub mod dsp;

@@ -1,5 +1,6 @@
 //! Builds the tonic server: jetloop services, health, reflection and the limits around them.
 
+use crate::admission::AdmissionLayer;
 use crate::config::Limits;
 use crate::service::{
     gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells, spectrum::Spectrum, staging::Staging,
@@ -67,16 +68,13 @@ pub async fn serve(
     Server::builder()
         // A span per call, so logs carry the method path.
         .trace_fn(|req| tracing::info_span!("grpc", path = %req.uri().path()))
-        // Server-side time limit; a shorter grpc-timeout from the client wins.
-        .timeout(limits.request_timeout)
         // Large flow-control windows: a DAQ block of a few MB then arrives in one round trip
         // instead of many 64 KB steps (the default), which dominated upload time.
         .initial_stream_window_size(Some(16 * 1024 * 1024))
         .initial_connection_window_size(Some(32 * 1024 * 1024))
-        // Bound the work one connection can have in flight, and refuse the excess at once with
-        // RESOURCE_EXHAUSTED (load shedding) instead of queueing it without bound.
-        .concurrency_limit_per_connection(limits.max_concurrent_requests)
-        .load_shed(true)
+        // Calls in flight bounded server-wide (the excess refused at once with UNAVAILABLE and
+        // a retry hint) and deadlines answered with DEADLINE_EXCEEDED: see `admission`.
+        .layer(AdmissionLayer::new(limits.max_concurrent_requests, limits.request_timeout))
         .add_service(health)
         .add_service(reflection_v1)
         .add_service(reflection_v1alpha)

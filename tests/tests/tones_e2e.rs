@@ -8,6 +8,7 @@ use jetloop_proto::pb::{
 };
 use jetloop_tests::{assert_field, TestServer};
 use tonic::Code;
+use tonic_types::StatusExt;
 
 fn rel(a: f64, b: f64) -> f64 {
     ((a - b) / b).abs()
@@ -325,9 +326,9 @@ async fn tone_bad_input_names_the_field() {
 }
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
-async fn excess_concurrent_calls_are_shed_with_resource_exhausted() {
-    // One call in flight per connection: of eight simultaneous 10,000-point sweeps on one
-    // connection, the ones that find the slot taken are refused at once, the rest succeed.
+async fn excess_concurrent_calls_are_refused_with_unavailable_and_a_retry_hint() {
+    // One call in flight server-wide: of eight simultaneous 10,000-point sweeps, the ones that
+    // find the slot taken are refused at once with UNAVAILABLE and RetryInfo, the rest succeed.
     let limits = jetloop_server::config::Limits { max_concurrent_requests: 1, ..Default::default() };
     let server = TestServer::start_with(limits).await;
     let ch = server.channel().await;
@@ -350,29 +351,84 @@ async fn excess_concurrent_calls_are_shed_with_resource_exhausted() {
         match c.await.unwrap() {
             Ok(()) => ok += 1,
             Err(e) => {
-                assert_eq!(e.code(), Code::ResourceExhausted, "{e:?}");
+                assert_eq!(e.code(), Code::Unavailable, "{e:?}");
+                let retry = e.get_error_details().retry_info().cloned().expect("RetryInfo");
+                assert_eq!(retry.retry_delay, Some(std::time::Duration::from_millis(100)));
                 shed += 1;
             }
         }
     }
     assert!(ok >= 1 && shed >= 1, "ok {ok}, shed {shed}");
+
+    // A block stream left open holds the one slot: another call is refused, a health check is
+    // still answered (orchestrators must not restart a busy server).
+    let (tx, rx) = tokio::sync::mpsc::channel::<pb::SampleBlock>(1);
+    let mut spectrum = jetloop_proto::pb::spectrum_service_client::SpectrumServiceClient::new(ch.clone());
+    let open = tokio::spawn(async move {
+        spectrum.extract_tones_stream(tokio_stream::wrappers::ReceiverStream::new(rx)).await
+    });
+    tx.send(pb::SampleBlock::default()).await.unwrap();
+    let mut refused = None;
+    for _ in 0..200 {
+        match ToneServiceClient::new(ch.clone()).sweep_screech(req.clone()).await {
+            Err(e) if e.code() == Code::Unavailable => {
+                refused = Some(e);
+                break;
+            }
+            // The stream may not have reached the server yet.
+            _ => tokio::time::sleep(std::time::Duration::from_millis(5)).await,
+        }
+    }
+    assert!(refused.is_some(), "the open stream should hold the only slot");
+    let mut health = tonic_health::pb::health_client::HealthClient::new(ch.clone());
+    let h = health.check(tonic_health::pb::HealthCheckRequest { service: String::new() }).await.unwrap();
+    assert_eq!(h.into_inner().status, tonic_health::pb::health_check_response::ServingStatus::Serving as i32);
+    drop(tx);
+    let _ = open.await.unwrap();
     server.stop().await;
 }
 
 #[tokio::test]
-async fn a_client_deadline_is_honoured() {
+async fn a_client_deadline_is_answered_with_deadline_exceeded() {
     let server = TestServer::start().await;
     let mut t = ToneServiceClient::new(server.channel().await);
-    let mut req = tonic::Request::new(pb::SweepScreechRequest {
+    let sweep = || pb::SweepScreechRequest {
         jet: Some(conditions(3.0)),
         variable: pb::SweepVariable::NozzlePressureRatio as i32,
         values: Some(Values::Range(pb::SweepRange { start: 2.0, stop: 6.0, count: 10_000 })),
         options: None,
-    });
+    };
+    // A block stream that never ends, with a 500 ms deadline: the server answers
+    // DEADLINE_EXCEEDED just before the deadline (tonic's client would otherwise give up
+    // locally with CANCELLED).
+    let (tx, rx) = tokio::sync::mpsc::channel::<pb::SampleBlock>(1);
+    tx.send(pb::SampleBlock::default()).await.unwrap();
+    let mut req = tonic::Request::new(tokio_stream::wrappers::ReceiverStream::new(rx));
+    req.set_timeout(std::time::Duration::from_millis(500));
+    let mut spectrum =
+        jetloop_proto::pb::spectrum_service_client::SpectrumServiceClient::new(server.channel().await);
+    let started = std::time::Instant::now();
+    let e = spectrum.extract_tones_stream(req).await.unwrap_err();
+    assert_eq!(e.code(), Code::DeadlineExceeded, "{e:?}");
+    assert!(e.message().contains("caller's deadline"), "{}", e.message());
+    assert!(started.elapsed() >= std::time::Duration::from_millis(480));
+    drop(tx);
+    // A very short deadline is cut short either way (tonic's own client timer may win).
+    let mut req = tonic::Request::new(sweep());
     req.set_timeout(std::time::Duration::from_micros(50));
     let e = t.sweep_screech(req).await.unwrap_err();
-    // tonic reports an expired deadline as CANCELLED "Timeout expired" (its server timeout
-    // layer); either code means the call was cut short instead of running to the end.
     assert!(matches!(e.code(), Code::DeadlineExceeded | Code::Cancelled), "{e:?}");
+    server.stop().await;
+
+    // The server's own limit, far shorter than the work.
+    let limits = jetloop_server::config::Limits {
+        request_timeout: std::time::Duration::from_micros(100),
+        ..Default::default()
+    };
+    let server = TestServer::start_with(limits).await;
+    let mut t = ToneServiceClient::new(server.channel().await);
+    let e = t.sweep_screech(sweep()).await.unwrap_err();
+    assert_eq!(e.code(), Code::DeadlineExceeded, "{e:?}");
+    assert!(e.message().contains("server's time limit"), "{}", e.message());
     server.stop().await;
 }

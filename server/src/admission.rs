@@ -1,0 +1,178 @@
+//! Admission and time limits around every call.
+//!
+//! - **Calls in flight**: at most `max_in_flight` calls run at once across the whole server. One
+//!   more is refused at once with `UNAVAILABLE` and a `google.rpc.RetryInfo` hint, so a gRPC
+//!   client with a retry policy backs off and tries again instead of queueing without bound.
+//!   Health checks are exempt, so an orchestrator does not restart a server for being busy.
+//! - **Deadlines**: a call ends with `DEADLINE_EXCEEDED` at the caller's deadline (the
+//!   `grpc-timeout` header) or the server's own limit, whichever comes first. The answer is
+//!   given just before the caller's deadline (2 % early, between 2 and 20 ms, at most half the
+//!   deadline) so it reaches the caller before its own timer gives up with a bare cancellation.
+//!
+//! Work already running on the blocking pool is not interrupted; its result is dropped.
+
+use std::future::Future;
+use std::pin::Pin;
+use std::sync::Arc;
+use std::task::{Context, Poll};
+use std::time::Duration;
+use tokio::sync::Semaphore;
+use tonic::body::Body;
+use tonic::codegen::http;
+use tonic::Status;
+use tonic_types::{ErrorDetails, StatusExt};
+
+/// Path prefix of the health service, which is never refused.
+const HEALTH: &str = "/grpc.health.v1.Health/";
+/// Suggested wait before retrying a refused call.
+pub const RETRY_AFTER: Duration = Duration::from_millis(100);
+
+/// The layer: one permit pool and one time limit shared by every connection.
+#[derive(Debug, Clone)]
+pub struct AdmissionLayer {
+    permits: Arc<Semaphore>,
+    limit: usize,
+    timeout: Duration,
+}
+
+impl AdmissionLayer {
+    /// At most `max_in_flight` calls at once (at least 1), each ended after `timeout` at most.
+    pub fn new(max_in_flight: usize, timeout: Duration) -> Self {
+        let limit = max_in_flight.clamp(1, Semaphore::MAX_PERMITS);
+        Self { permits: Arc::new(Semaphore::new(limit)), limit, timeout }
+    }
+}
+
+impl<S> tower::Layer<S> for AdmissionLayer {
+    type Service = Admission<S>;
+
+    fn layer(&self, inner: S) -> Admission<S> {
+        Admission { inner, layer: self.clone() }
+    }
+}
+
+/// The service the layer wraps around the routes.
+#[derive(Debug, Clone)]
+pub struct Admission<S> {
+    inner: S,
+    layer: AdmissionLayer,
+}
+
+/// Parses a `grpc-timeout` value (up to 8 digits and a unit: H, M, S, m, u, n).
+pub fn parse_grpc_timeout(v: &str) -> Option<Duration> {
+    if v.len() < 2 || v.len() > 9 {
+        return None;
+    }
+    let (digits, unit) = v.split_at(v.len() - 1);
+    let n: u64 = digits.parse().ok()?;
+    Some(match unit {
+        "H" => Duration::from_secs(n.saturating_mul(3600)),
+        "M" => Duration::from_secs(n.saturating_mul(60)),
+        "S" => Duration::from_secs(n),
+        "m" => Duration::from_millis(n),
+        "u" => Duration::from_micros(n),
+        "n" => Duration::from_nanos(n),
+        _ => return None,
+    })
+}
+
+/// How long a call may run, and why that long.
+fn time_limit(headers: &http::HeaderMap, server: Duration) -> (Duration, String) {
+    let caller = headers.get("grpc-timeout").and_then(|v| v.to_str().ok()).and_then(parse_grpc_timeout);
+    match caller {
+        Some(t) if t < server => {
+            // Early enough to reach the caller before its own timer gives up locally.
+            let early = (t / 50).clamp(Duration::from_millis(2), Duration::from_millis(20)).min(t / 2);
+            (t - early, format!("the caller's deadline of {:.3} s passed", t.as_secs_f64()))
+        }
+        _ => (server, format!("the server's time limit of {} s per call passed", server.as_secs_f64())),
+    }
+}
+
+fn refused(limit: usize) -> Status {
+    let mut details = ErrorDetails::new();
+    details.set_retry_info(Some(RETRY_AFTER));
+    Status::with_error_details(
+        tonic::Code::Unavailable,
+        format!(
+            "the server is running its limit of {limit} calls at once; retry after {} ms",
+            RETRY_AFTER.as_millis()
+        ),
+        details,
+    )
+}
+
+impl<S, B> tower::Service<http::Request<B>> for Admission<S>
+where
+    S: tower::Service<http::Request<B>, Response = http::Response<Body>> + Send + 'static,
+    S::Future: Send + 'static,
+    S::Error: Send + 'static,
+{
+    type Response = http::Response<Body>;
+    type Error = S::Error;
+    type Future = Pin<Box<dyn Future<Output = Result<Self::Response, Self::Error>> + Send>>;
+
+    fn poll_ready(&mut self, cx: &mut Context<'_>) -> Poll<Result<(), Self::Error>> {
+        self.inner.poll_ready(cx)
+    }
+
+    fn call(&mut self, req: http::Request<B>) -> Self::Future {
+        let permit = if req.uri().path().starts_with(HEALTH) {
+            None
+        } else {
+            match self.layer.permits.clone().try_acquire_owned() {
+                Ok(p) => Some(p),
+                Err(_) => {
+                    tracing::warn!(path = %req.uri().path(), "call refused: {} in flight", self.layer.limit);
+                    return Box::pin(std::future::ready(Ok(refused(self.layer.limit).into_http())));
+                }
+            }
+        };
+        let (limit, why) = time_limit(req.headers(), self.layer.timeout);
+        let fut = self.inner.call(req);
+        Box::pin(async move {
+            let out = tokio::time::timeout(limit, fut).await;
+            drop(permit);
+            match out {
+                Ok(r) => r,
+                Err(_) => Ok(Status::deadline_exceeded(format!("stopped: {why}")).into_http()),
+            }
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn grpc_timeout_values_parse_per_the_grpc_http2_protocol() {
+        // Units of the gRPC over HTTP/2 protocol description (grpc/grpc PROTOCOL-HTTP2.md).
+        assert_eq!(parse_grpc_timeout("2H"), Some(Duration::from_secs(7200)));
+        assert_eq!(parse_grpc_timeout("3M"), Some(Duration::from_secs(180)));
+        assert_eq!(parse_grpc_timeout("10S"), Some(Duration::from_secs(10)));
+        assert_eq!(parse_grpc_timeout("250m"), Some(Duration::from_millis(250)));
+        assert_eq!(parse_grpc_timeout("50u"), Some(Duration::from_micros(50)));
+        assert_eq!(parse_grpc_timeout("99999999n"), Some(Duration::from_nanos(99_999_999)));
+        for bad in ["", "S", "10", "10x", "123456789S", "-1S"] {
+            assert_eq!(parse_grpc_timeout(bad), None, "{bad}");
+        }
+    }
+
+    #[test]
+    fn the_sooner_limit_wins_and_a_caller_deadline_is_answered_just_before_it() {
+        let server = Duration::from_secs(60);
+        let mut h = http::HeaderMap::new();
+        assert_eq!(time_limit(&h, server).0, server);
+        h.insert("grpc-timeout", http::HeaderValue::from_static("100m"));
+        let (t, why) = time_limit(&h, server);
+        assert_eq!(t, Duration::from_millis(98));
+        h.insert("grpc-timeout", http::HeaderValue::from_static("5S"));
+        assert_eq!(time_limit(&h, server).0, Duration::from_millis(4980));
+        assert!(why.contains("caller"));
+        h.insert("grpc-timeout", http::HeaderValue::from_static("1m"));
+        assert_eq!(time_limit(&h, server).0, Duration::from_micros(500));
+        h.insert("grpc-timeout", http::HeaderValue::from_static("2H"));
+        assert!(time_limit(&h, server).1.contains("server"));
+    }
+}
