@@ -43,25 +43,39 @@ impl SpectrumService for Spectrum {
             .await?
             .ok_or_else(|| Status::invalid_argument("the block stream ended before its first message"))?;
         // The analysis runs on one blocking thread (fanning segments out to rayon) and takes
-        // blocks from this loop as they arrive; the reactor only moves bytes.
-        let (tx, rx) = std::sync::mpsc::channel::<pb::SampleBlock>();
+        // blocks from this loop as they arrive; the reactor only moves bytes. The feed ends with
+        // `None`; if it closes without one (the caller went away, or the deadline dropped this
+        // handler), the analysis stops without finishing.
+        let (tx, rx) = std::sync::mpsc::channel::<Option<pb::SampleBlock>>();
         let worker = tokio::task::spawn_blocking(move || -> Result<_, ApiError> {
             let mut stream = ToneStream::start(first)?;
-            while let Ok(block) = rx.recv() {
-                stream.next(block)?;
+            loop {
+                match rx.recv() {
+                    Ok(Some(block)) => stream.next(block)?,
+                    Ok(None) => return stream.finish(),
+                    Err(_) => {
+                        return Err(ApiError::Precondition(format!(
+                            "the block stream was cut off after {} messages",
+                            stream.messages()
+                        )))
+                    }
+                }
             }
-            stream.finish()
         });
         let mut received = Ok(());
         loop {
             match incoming.message().await {
                 Ok(Some(block)) => {
-                    if tx.send(block).is_err() {
+                    if tx.send(Some(block)).is_err() {
                         // The analysis stopped on an error; it is reported below.
                         break;
                     }
                 }
-                Ok(None) => break,
+                Ok(None) => {
+                    // The analysis may have stopped on an error already; it is reported below.
+                    let _ = tx.send(None);
+                    break;
+                }
                 Err(e) => {
                     received = Err(e);
                     break;
