@@ -122,6 +122,15 @@ pub struct JetArgs {
     /// Specific gas constant in J/(kg K) (server default 287.05).
     #[arg(long)]
     gas_constant: Option<f64>,
+    /// Ratio of specific heats of the surroundings (server default 1.4, dry air).
+    #[arg(long)]
+    ambient_gamma: Option<f64>,
+    /// Specific gas constant of the surroundings in J/(kg K) (server default 287.05, dry air).
+    #[arg(long)]
+    ambient_gas_constant: Option<f64>,
+    /// Tolerance on |pe/pa - 1| for the ideally expanded class (server default 0.005).
+    #[arg(long)]
+    ideal_tolerance: Option<f64>,
 }
 
 fn need(v: Option<f64>, flag: &str, nozzle: &str) -> Result<f64, Failure> {
@@ -187,7 +196,14 @@ impl JetArgs {
                 ambient_pressure_pa,
             }),
             gas: Some(pb::Gas { gamma: self.gamma, gas_constant_j_per_kg_k: self.gas_constant }),
+            ambient_gas: Some(self.ambient_gas()),
+            ideal_expansion_tolerance: self.ideal_tolerance,
         })
+    }
+
+    /// The gas of the surroundings.
+    pub fn ambient_gas(&self) -> pb::Gas {
+        pb::Gas { gamma: self.ambient_gamma, gas_constant_j_per_kg_k: self.ambient_gas_constant }
     }
 }
 
@@ -280,25 +296,29 @@ pub async fn jet(ch: Channel, a: JetArgs) -> Result<Report, Failure> {
         .num("ambient_pressure_pa", "ambient pressure", s.ambient_pressure_pa, "Pa")
         .num("total_temperature_k", "reservoir temperature", s.total_temperature_k, "K")
         .num("ambient_temperature_k", "ambient temperature", s.ambient_temperature_k, "K")
-        .num("temperature_ratio", "T0/T_ambient", s.temperature_ratio, "")
+        .num("total_to_ambient_temperature_ratio", "T0/T_ambient", s.total_to_ambient_temperature_ratio, "")
         .num("design_mach_number", "design Mach number", s.design_mach_number, "")
         .num("design_nozzle_pressure_ratio", "design NPR", s.design_nozzle_pressure_ratio, "")
         .text("regime", "regime", regime_name(s.regime))
         .flag("supersonic", "supersonic (shock cells)", s.supersonic)
+        .flag("exit_supersonic", "supersonic at the exit", s.exit_supersonic)
         .flag("choked", "choked", s.choked)
         .flag("mach_disk_expected", "Mach disk expected", s.mach_disk_expected)
-        .num("fully_expanded_mach_number", "Mj", s.fully_expanded_mach_number, "")
-        .num("off_design_parameter", "beta = sqrt|Mj^2-Md^2|", s.off_design_parameter, "")
+        .num("exit_to_ambient_pressure_ratio", "pe/pa", s.exit_to_ambient_pressure_ratio, "")
+        .num("ideal_expansion_tolerance", "ideal if |pe/pa - 1| <=", s.ideal_expansion_tolerance, "")
+        .num("isentropic_mach_number", "isentropic Mach number", s.isentropic_mach_number, "")
+        .opt("fully_expanded_mach_number", "Mj", s.fully_expanded_mach_number, "")
+        .opt("beta_from_design_mach", "sqrt|Mj^2-Md^2|", s.beta_from_design_mach, "")
         .opt("fully_expanded_diameter_m", "Dj", s.fully_expanded_diameter_m, "m")
         .opt("fully_expanded_height_m", "hj", s.fully_expanded_height_m, "m")
         .opt("fully_expanded_width_m", "bj", s.fully_expanded_width_m, "m")
-        .num("fully_expanded_to_exit_area_ratio", "Aj/Ae", s.fully_expanded_to_exit_area_ratio, "")
-        .num("fully_expanded_temperature_k", "Tj", s.fully_expanded_temperature_k, "K")
-        .num("fully_expanded_velocity_m_per_s", "Uj", s.fully_expanded_velocity_m_per_s, "m/s")
-        .num("fully_expanded_density_kg_per_m3", "rho_j", s.fully_expanded_density_kg_per_m3, "kg/m^3")
-        .num("jet_sound_speed_m_per_s", "a_j", s.jet_sound_speed_m_per_s, "m/s")
+        .opt("fully_expanded_to_exit_area_ratio", "Aj/Ae", s.fully_expanded_to_exit_area_ratio, "")
+        .opt("fully_expanded_temperature_k", "Tj", s.fully_expanded_temperature_k, "K")
+        .opt("fully_expanded_velocity_m_per_s", "Uj", s.fully_expanded_velocity_m_per_s, "m/s")
+        .opt("fully_expanded_density_kg_per_m3", "rho_j", s.fully_expanded_density_kg_per_m3, "kg/m^3")
+        .opt("jet_sound_speed_m_per_s", "a_j", s.jet_sound_speed_m_per_s, "m/s")
         .num("ambient_sound_speed_m_per_s", "a_ambient", s.ambient_sound_speed_m_per_s, "m/s")
-        .num("acoustic_mach_number", "Uj/a_ambient", s.acoustic_mach_number, "")
+        .opt("acoustic_mach_number", "Uj/a_ambient", s.acoustic_mach_number, "")
         .num("exit_mach_number", "exit Mach number", s.exit_mach_number, "")
         .num("exit_pressure_pa", "exit pressure", s.exit_pressure_pa, "Pa")
         .opt("exit_area_m2", "exit area", s.exit_area_m2, "m^2")

@@ -51,6 +51,7 @@ impl JetSourceArgs {
                     total_temperature_k: c.0,
                     ambient_temperature_k: c.1,
                     gas: Some(c.2),
+                    ambient_gas: Some(self.conditions.ambient_gas()),
                 })
             }
         };
@@ -230,7 +231,7 @@ pub struct SweepCmd {
 fn jet_rows(r: Report, j: &Option<pb::ExpandedJetSummary>) -> Report {
     let j = j.clone().unwrap_or_default();
     r.num("fully_expanded_mach_number", "Mj", j.fully_expanded_mach_number, "")
-        .num("beta", "sqrt(Mj^2-1)", j.beta, "")
+        .num("beta_from_sonic", "sqrt(Mj^2-1)", j.beta_from_sonic, "")
         .num("fully_expanded_velocity_m_per_s", "Uj", j.fully_expanded_velocity_m_per_s, "m/s")
         .num("ambient_sound_speed_m_per_s", "a_ambient", j.ambient_sound_speed_m_per_s, "m/s")
         .num("reference_length_m", "reference length (Dj or hj)", j.reference_length_m, "m")

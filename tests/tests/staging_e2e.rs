@@ -11,6 +11,8 @@ fn jet() -> pb::JetConditions {
         }),
         operating_point: None,
         gas: None,
+        ambient_gas: None,
+        ideal_expansion_tolerance: None,
     }
 }
 

@@ -25,6 +25,8 @@ fn conditions(npr: f64) -> pb::JetInput {
                 ..Default::default()
             }),
             gas: None,
+            ambient_gas: None,
+            ideal_expansion_tolerance: None,
         })),
     }
 }
@@ -316,7 +318,7 @@ async fn tone_bad_input_names_the_field() {
         })
         .await
         .unwrap_err();
-    assert_field(&e, Code::InvalidArgument, "values[1]");
+    assert_field(&e, Code::InvalidArgument, "list.values[1]");
     let e = t
         .predict_screech(pb::PredictScreechRequest { jet: Some(conditions(1.2)), options: None })
         .await

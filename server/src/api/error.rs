@@ -13,6 +13,35 @@ pub struct FieldViolation {
     pub description: String,
 }
 
+/// Why a well-formed request cannot be answered, as a `google.rpc.PreconditionFailure`
+/// violation: a type a program can match on, the request part it concerns, and a sentence.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct PreconditionViolation {
+    /// Machine-readable kind, e.g. `JET_NOT_SUPERSONIC`.
+    pub kind: &'static str,
+    /// The request part concerned, e.g. `jet.conditions`.
+    pub subject: String,
+    /// What the physics says, in a sentence.
+    pub description: String,
+}
+
+impl PreconditionViolation {
+    /// A violation of `kind` about `subject`.
+    pub fn new(kind: &'static str, subject: impl Into<String>, description: impl Into<String>) -> Self {
+        Self { kind, subject: subject.into(), description: description.into() }
+    }
+}
+
+/// Kind of the precondition failure for a jet without vortex-sheet shock cells.
+pub const JET_NOT_SUPERSONIC: &str = "JET_NOT_SUPERSONIC";
+
+impl ApiError {
+    /// `FAILED_PRECONDITION` for a jet (at request path `subject`) that has no shock cells.
+    pub fn not_supersonic(subject: &str, e: &crate::physics::jet::NotSupersonic) -> Self {
+        ApiError::Precondition(PreconditionViolation::new(JET_NOT_SUPERSONIC, subject, e.to_string()))
+    }
+}
+
 /// Everything a request can fail with.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum ApiError {
@@ -29,9 +58,10 @@ pub enum ApiError {
         /// What was sent.
         actual: String,
     },
-    /// Well-formed but physically impossible: `FAILED_PRECONDITION`.
-    #[error("{0}")]
-    Precondition(String),
+    /// Well-formed but physically impossible: `FAILED_PRECONDITION` with a
+    /// `google.rpc.PreconditionFailure` detail.
+    #[error("{}", .0.description)]
+    Precondition(PreconditionViolation),
 }
 
 impl ApiError {
@@ -70,7 +100,11 @@ impl From<ApiError> for Status {
                 details.add_bad_request_violation(field, msg.clone());
                 Status::with_error_details(Code::ResourceExhausted, msg, details)
             }
-            ApiError::Precondition(msg) => Status::failed_precondition(msg),
+            ApiError::Precondition(PreconditionViolation { kind, subject, description }) => {
+                let mut details = ErrorDetails::new();
+                details.add_precondition_failure_violation(kind, subject, description.clone());
+                Status::with_error_details(Code::FailedPrecondition, description, details)
+            }
         }
     }
 }
@@ -167,5 +201,19 @@ mod tests {
         assert_eq!(bad.field_violations[0].field, "conditions.gas.gamma");
         assert!(bad.field_violations[0].description.contains("not a finite number"));
         assert!(bad.field_violations[0].description.contains("(1, 5]"));
+    }
+
+    #[test]
+    fn failed_precondition_carries_a_precondition_failure() {
+        let e = ApiError::Precondition(PreconditionViolation::new("X_KIND", "jet.conditions", "why"));
+        let status: Status = e.into();
+        assert_eq!(status.code(), Code::FailedPrecondition);
+        assert_eq!(status.message(), "why");
+        let details = status.get_error_details();
+        let v = &details.precondition_failure().expect("precondition failure").violations[0];
+        assert_eq!(
+            (v.r#type.as_str(), v.subject.as_str(), v.description.as_str()),
+            ("X_KIND", "jet.conditions", "why")
+        );
     }
 }

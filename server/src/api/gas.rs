@@ -8,6 +8,7 @@ use crate::physics::models;
 use jetloop_proto::pb;
 
 const AIR_REASON: &str = "dry air, common practice";
+const AMBIENT_AIR_REASON: &str = "the surroundings are dry air whatever the jet gas is (common practice)";
 const ISA_REASON: &str = "ICAO standard atmosphere, sea level";
 
 /// A validated isentropic question.
@@ -19,6 +20,8 @@ pub struct IsentropicQuery {
     pub input: IsentropicInput,
     /// Defaults applied.
     pub defaults: Defaults,
+    /// Notes on the request (a branch given where it has no effect).
+    pub notes: Vec<String>,
 }
 
 /// A validated normal-shock question.
@@ -113,8 +116,57 @@ impl TryFrom<pb::IsentropicRatiosRequest> for IsentropicQuery {
                 Some(IsentropicInput::PrandtlMeyerDeg(nu))
             }
         };
-        let q = gas.zip(input).map(|(gas, input)| IsentropicQuery { gas, input, defaults });
+        // A branch chooses between the two roots of A/A* only; for any other input the Mach
+        // number is unique, and a branch that contradicts it is refused.
+        let mut notes = Vec::new();
+        if let (Some(gas), Some(input), Some(Some(b))) = (gas, input, branch) {
+            let side = |v: f64, sonic: f64, rising: bool| {
+                if v == sonic {
+                    None
+                } else {
+                    Some(if (v > sonic) == rising { Branch::Supersonic } else { Branch::Subsonic })
+                }
+            };
+            let unique = match input {
+                IsentropicInput::Mach(m) => Some(("mach_number", side(m, 1.0, true))),
+                IsentropicInput::TemperatureRatio(r) => {
+                    Some(("temperature_ratio", side(r, gas.temperature_ratio(1.0), false)))
+                }
+                IsentropicInput::PressureRatio(r) => {
+                    Some(("pressure_ratio", side(r, gas.pressure_ratio(1.0), false)))
+                }
+                IsentropicInput::DensityRatio(r) => {
+                    Some(("density_ratio", side(r, gas.density_ratio(1.0), false)))
+                }
+                _ => None,
+            };
+            match unique {
+                Some((field, Some(actual))) if actual != b => check.other(
+                    "branch",
+                    format!(
+                        "branch = {} contradicts {field}, whose Mach number is {}: the branch \
+                         chooses between the two roots of area_ratio only; unset it",
+                        branch_name(b),
+                        if actual == Branch::Subsonic { "below 1" } else { "above 1" }
+                    ),
+                ),
+                Some((field, _)) => notes.push(format!(
+                    "branch = {} has no effect: {field} gives one Mach number (the branch \
+                     chooses between the two roots of area_ratio only).",
+                    branch_name(b)
+                )),
+                None => {}
+            }
+        }
+        let q = gas.zip(input).map(|(gas, input)| IsentropicQuery { gas, input, defaults, notes });
         check.finish(q)
+    }
+}
+
+fn branch_name(b: Branch) -> &'static str {
+    match b {
+        Branch::Subsonic => "MACH_BRANCH_SUBSONIC",
+        Branch::Supersonic => "MACH_BRANCH_SUPERSONIC",
     }
 }
 
@@ -126,9 +178,40 @@ impl TryFrom<pb::NormalShockRequest> for NormalShockQuery {
         let mut check = Check::new();
         let mut defaults = Defaults::default();
         let gas = gamma_only(&mut check, &mut defaults, gamma);
-        let m1 = check.range("", gas::SHOCK_MACH.check("upstream_mach_number", upstream_mach_number));
+        // proto3 sends an unset double as 0, which is never a valid upstream Mach number.
+        let m1 = if upstream_mach_number == 0.0 {
+            check.missing(
+                "upstream_mach_number",
+                &format!("give the upstream Mach number, in {}", gas::SHOCK_MACH),
+            );
+            None
+        } else {
+            check.range("", gas::SHOCK_MACH.check("upstream_mach_number", upstream_mach_number))
+        };
         check.finish(gas.zip(m1).map(|(gas, m1)| NormalShockQuery { gas, m1, defaults }))
     }
+}
+
+/// Converts a `Gas` message at `path` (jet gas, or the ambient gas when `ambient`), recording
+/// the dry-air defaults of unset fields.
+pub fn gas_from(
+    check: &mut Check,
+    defaults: &mut Defaults,
+    msg: Option<pb::Gas>,
+    path: &str,
+    ambient: bool,
+) -> Option<Gas> {
+    let reason = if ambient { AMBIENT_AIR_REASON } else { AIR_REASON };
+    let pb::Gas { gamma, gas_constant_j_per_kg_k } = msg.unwrap_or_default();
+    let g = defaults.or(gamma, &format!("{path}.gamma"), gas::AIR_GAMMA, "", reason);
+    let r = defaults.or(
+        gas_constant_j_per_kg_k,
+        &format!("{path}.gas_constant_j_per_kg_k"),
+        gas::AIR_GAS_CONSTANT,
+        "J/(kg K)",
+        reason,
+    );
+    check.range(path, Gas::new(g, r))
 }
 
 /// Converts jet conditions found at `path` in a request (e.g. `conditions`).
@@ -137,26 +220,33 @@ impl TryFrom<pb::NormalShockRequest> for NormalShockQuery {
 /// [`ApiError::Invalid`] naming every bad or missing field under `path`.
 pub fn jet_spec(c: Option<pb::JetConditions>, path: &str) -> Result<JetSpec, ApiError> {
     let mut check = Check::new();
-    let Some(pb::JetConditions { nozzle, operating_point, gas: gas_msg }) = c else {
+    let Some(pb::JetConditions {
+        nozzle,
+        operating_point,
+        gas: gas_msg,
+        ambient_gas,
+        ideal_expansion_tolerance,
+    }) = c
+    else {
         check.missing(path, "give the nozzle and the operating point");
         return check.finish(None);
     };
     let mut defaults = Defaults::default();
-    let gp = format!("{path}.gas");
-    let pb::Gas { gamma, gas_constant_j_per_kg_k } = gas_msg.unwrap_or_default();
-    let g = defaults.or(gamma, &format!("{gp}.gamma"), gas::AIR_GAMMA, "", AIR_REASON);
-    let r = defaults.or(
-        gas_constant_j_per_kg_k,
-        &format!("{gp}.gas_constant_j_per_kg_k"),
-        gas::AIR_GAS_CONSTANT,
-        "J/(kg K)",
-        AIR_REASON,
-    );
-    let gas = check.range(&gp, Gas::new(g, r));
+    let gas = gas_from(&mut check, &mut defaults, gas_msg, &format!("{path}.gas"), false);
+    let ambient = gas_from(&mut check, &mut defaults, ambient_gas, &format!("{path}.ambient_gas"), true);
     // The area-ratio design needs a valid gas; fall back to air only to keep checking fields.
     let nozzle = nozzle_from(&mut check, nozzle, &format!("{path}.nozzle"), &gas.unwrap_or(Gas::AIR));
+    let tol = defaults.or(
+        ideal_expansion_tolerance,
+        &format!("{path}.ideal_expansion_tolerance"),
+        jet::DEFAULT_IDEAL_TOLERANCE,
+        "",
+        "0.5 % of the ambient pressure, about what a lab pressure gauge resolves (common practice)",
+    );
     let op =
         operating_point_from(&mut check, &mut defaults, operating_point, &format!("{path}.operating_point"));
+    let op = op.and_then(|op| check.range(path, op.with_ideal_tolerance(tol)));
+    let op = op.zip(ambient).map(|(op, a)| op.with_ambient_gas(a));
     let spec = match (gas, nozzle, op) {
         (Some(gas), Some(nozzle), Some(op)) => Some(JetSpec { gas, nozzle, op, defaults }),
         _ => None,
@@ -301,7 +391,7 @@ pub fn isentropic_response(q: &IsentropicQuery, r: &Isentropic) -> pb::Isentropi
         mach_angle_deg: r.mach_angle_deg,
         prandtl_meyer_angle_deg: r.prandtl_meyer_deg,
         critical_velocity_ratio: r.critical_velocity_ratio,
-        provenance: Some(provenance(&used, &q.defaults, Vec::new())),
+        provenance: Some(provenance(&used, &q.defaults, q.notes.clone())),
     }
 }
 
@@ -339,6 +429,9 @@ pub fn jet_state_message(s: &JetState) -> pb::JetState {
         JetSize::Planar { height_m } => (None, Some(height_m), None),
     };
     let planar = s.is_planar();
+    // Fully expanded values only where an isentropic expansion describes the jet.
+    let fe = |v: f64| s.isentropic_expansion.then_some(v);
+    let (dj, hj, bj) = if s.isentropic_expansion { (dj, hj, bj) } else { (None, None, None) };
     pb::JetState {
         nozzle_pressure_ratio: s.npr,
         total_pressure_pa: s.total_pressure_pa,
@@ -347,30 +440,36 @@ pub fn jet_state_message(s: &JetState) -> pb::JetState {
         ambient_temperature_k: s.ambient_temperature_k,
         gamma: s.gas.gamma(),
         gas_constant_j_per_kg_k: s.gas.gas_constant(),
+        ambient_gamma: s.ambient_gas.gamma(),
+        ambient_gas_constant_j_per_kg_k: s.ambient_gas.gas_constant(),
         design_mach_number: s.md,
         design_nozzle_pressure_ratio: s.design_npr,
         regime: regime(s.regime) as i32,
         supersonic: s.supersonic,
-        fully_expanded_mach_number: s.mj,
-        off_design_parameter: s.beta,
-        fully_expanded_temperature_k: s.tj_k,
-        fully_expanded_velocity_m_per_s: s.uj_m_s,
-        fully_expanded_density_kg_per_m3: s.rho_j_kg_m3,
-        jet_sound_speed_m_per_s: s.aj_m_s,
+        fully_expanded_mach_number: fe(s.mj),
+        beta_from_design_mach: fe(s.beta_from_design_mach),
+        fully_expanded_temperature_k: fe(s.tj_k),
+        fully_expanded_velocity_m_per_s: fe(s.uj_m_s),
+        fully_expanded_density_kg_per_m3: fe(s.rho_j_kg_m3),
+        jet_sound_speed_m_per_s: fe(s.aj_m_s),
         ambient_sound_speed_m_per_s: s.a_amb_m_s,
-        acoustic_mach_number: s.acoustic_mach,
+        acoustic_mach_number: fe(s.acoustic_mach),
         exit_mach_number: s.exit_mach,
         exit_pressure_pa: s.exit_pressure_pa,
-        fully_expanded_to_exit_area_ratio: s.area_ratio,
+        fully_expanded_to_exit_area_ratio: fe(s.area_ratio),
         fully_expanded_diameter_m: dj,
         fully_expanded_height_m: hj,
         fully_expanded_width_m: bj,
         mass_flow_kg_per_s: (!planar).then_some(s.mass_flow),
         mass_flow_per_span_kg_per_s_m: planar.then_some(s.mass_flow),
         choked: s.choked,
-        mach_disk_expected: s.mach_disk_expected,
-        temperature_ratio: s.temperature_ratio,
+        mach_disk_expected: s.mach_disk_expected(),
+        total_to_ambient_temperature_ratio: s.total_to_ambient_temperature_ratio,
         exit_area_m2: s.exit_area_m2,
+        isentropic_mach_number: s.mj,
+        exit_supersonic: s.exit_supersonic,
+        exit_to_ambient_pressure_ratio: s.exit_to_ambient_pressure_ratio(),
+        ideal_expansion_tolerance: s.ideal_tolerance,
     }
 }
 
@@ -411,6 +510,8 @@ mod tests {
                 ..Default::default()
             }),
             gas: None,
+            ambient_gas: None,
+            ideal_expansion_tolerance: None,
         })
     }
 

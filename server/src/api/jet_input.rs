@@ -2,10 +2,9 @@
 //! a fully expanded state), cell options, convection, the feedback loop.
 
 use super::error::{ApiError, Check};
-use super::gas::{jet_spec, JetSpec};
+use super::gas::{gas_from, jet_spec, JetSpec};
 use super::provenance::Defaults;
 use crate::physics::cells::CellOptions;
-use crate::physics::gas::{self, Gas};
 use crate::physics::jet::{self, jet_state, ExpandedJet, JetSize, JetState};
 use crate::physics::tones::{self, Convection, LoopSpec, PathLength, PathSpeed, Segment, Source};
 use jetloop_proto::pb;
@@ -32,7 +31,7 @@ pub struct ResolvedJet {
 pub fn resolve_jet(input: Option<pb::JetInput>, path: &str) -> Result<ResolvedJet, ApiError> {
     let r = convert_jet(input, path)?;
     if let Some(Err(e)) = r.state.as_ref().map(ExpandedJet::from_state) {
-        return Err(ApiError::Precondition(e.to_string()));
+        return Err(ApiError::not_supersonic(&format!("{path}.conditions"), &e));
     }
     Ok(r)
 }
@@ -56,6 +55,7 @@ pub fn convert_jet(input: Option<pb::JetInput>, path: &str) -> Result<ResolvedJe
             let state = jet_state(&spec.gas, &spec.nozzle, &spec.op);
             let jet = ExpandedJet::from_state(&state).unwrap_or(ExpandedJet {
                 gas: state.gas,
+                ambient_gas: state.ambient_gas,
                 mj: state.mj,
                 size: state.size,
                 total_temperature_k: state.total_temperature_k,
@@ -74,19 +74,11 @@ pub fn convert_jet(input: Option<pb::JetInput>, path: &str) -> Result<ResolvedJe
                 total_temperature_k,
                 ambient_temperature_k,
                 gas: gas_msg,
+                ambient_gas,
             } = f;
             let mut defaults = Defaults::default();
-            let pb::Gas { gamma, gas_constant_j_per_kg_k } = gas_msg.unwrap_or_default();
-            let g =
-                defaults.or(gamma, &format!("{p}.gas.gamma"), gas::AIR_GAMMA, "", "dry air, common practice");
-            let r = defaults.or(
-                gas_constant_j_per_kg_k,
-                &format!("{p}.gas.gas_constant_j_per_kg_k"),
-                gas::AIR_GAS_CONSTANT,
-                "J/(kg K)",
-                "dry air, common practice",
-            );
-            let gas = check.range(&format!("{p}.gas"), Gas::new(g, r));
+            let gas = gas_from(&mut check, &mut defaults, gas_msg, &format!("{p}.gas"), false);
+            let ambient = gas_from(&mut check, &mut defaults, ambient_gas, &format!("{p}.ambient_gas"), true);
             let t_amb = defaults.or(
                 ambient_temperature_k,
                 &format!("{p}.ambient_temperature_k"),
@@ -115,9 +107,9 @@ pub fn convert_jet(input: Option<pb::JetInput>, path: &str) -> Result<ResolvedJe
                     Some(JetSize::Rectangular { height_m, width_m })
                 }
             };
-            let jet = match (gas, size) {
-                (Some(gas), Some(size)) => {
-                    let r = ExpandedJet::direct(gas, fully_expanded_mach_number, size, t0, t_amb);
+            let jet = match (gas, ambient, size) {
+                (Some(gas), Some(ambient), Some(size)) => {
+                    let r = ExpandedJet::direct(gas, ambient, fully_expanded_mach_number, size, t0, t_amb);
                     // Size errors name the oneof member the caller set.
                     let r = r.map_err(|mut e| {
                         e.quantity = match (e.quantity, size) {
@@ -297,7 +289,7 @@ pub fn jet_summary(j: &ExpandedJet) -> pb::ExpandedJetSummary {
     };
     pb::ExpandedJetSummary {
         fully_expanded_mach_number: j.mj,
-        beta: j.beta(),
+        beta_from_sonic: j.beta(),
         fully_expanded_velocity_m_per_s: j.uj_m_s,
         ambient_sound_speed_m_per_s: j.a_amb_m_s,
         reference_length_m: j.reference_length_m(),

@@ -1,7 +1,7 @@
 //! SpectrumService: samples, Welch and tone options converted to domain types in one step,
 //! and the per-channel analysis turned into responses.
 
-use super::error::{ApiError, Check, FieldViolation};
+use super::error::{ApiError, Check, FieldViolation, PreconditionViolation};
 use super::provenance::{provenance, Defaults};
 use crate::dsp::bands::{band_levels, BandLevels};
 use crate::dsp::samples::{ChannelView, DecodeError, Format, Layout, Recording};
@@ -50,7 +50,7 @@ pub struct SampleSet {
 impl SampleSet {
     /// Welch PSD of channel `c`, with a non-finite sample reported against the samples field.
     fn psd(&self, c: usize, config: WelchConfig) -> Result<Psd, ApiError> {
-        let w = WelchAccumulator::new(self.fs, config).map_err(|e| ApiError::Precondition(e.to_string()))?;
+        let w = WelchAccumulator::new(self.fs, config).map_err(|e| welch_error(e, self.field))?;
         self.finish_psd(c, w)
     }
 
@@ -62,8 +62,33 @@ impl SampleSet {
                 field: self.field.into(),
                 description: format!("{}: channel {c}: {e}", self.field),
             }]),
-            e => ApiError::Precondition(e.to_string()),
+            e => welch_error(e, self.field),
         })
+    }
+}
+
+/// Kind of the precondition failure for a recording shorter than one Welch segment.
+pub const RECORDING_TOO_SHORT: &str = "RECORDING_TOO_SHORT";
+
+/// The API error for a Welch error about the samples at `field`. Segment and overlap choices
+/// have already been checked in the conversion, so only a recording too short for one segment
+/// and a non-finite sample remain reachable; every variant is mapped by name.
+fn welch_error(e: WelchError, field: &str) -> ApiError {
+    let description = e.to_string();
+    match e {
+        WelchError::TooShort { .. } => {
+            ApiError::Precondition(PreconditionViolation::new(RECORDING_TOO_SHORT, field, description))
+        }
+        WelchError::NotFinite { .. } => ApiError::Invalid(vec![FieldViolation {
+            field: field.into(),
+            description: format!("{field}: {description}"),
+        }]),
+        WelchError::SegmentLength(_) | WelchError::Overlap { .. } => {
+            ApiError::Invalid(vec![FieldViolation {
+                field: "welch".into(),
+                description: format!("welch: {description}"),
+            }])
+        }
     }
 }
 
@@ -678,7 +703,7 @@ impl ToneStream {
         let welch = (0..query.samples.recording.channel_count())
             .map(|_| WelchAccumulator::new(fs, config))
             .collect::<Result<Vec<_>, _>>()
-            .map_err(|e| ApiError::Precondition(e.to_string()))?;
+            .map_err(|e| welch_error(e, "frames"))?;
         let mut stream = Self { query, welch, blocks: 0 };
         stream.push(frames)?;
         Ok(stream)

@@ -344,30 +344,43 @@ impl TryFrom<pb::PredictShockNoiseRequest> for ShockNoiseQuery {
 pub fn shock_noise_response(q: &ShockNoiseQuery) -> pb::PredictShockNoiseResponse {
     let jet = &q.jet.jet;
     let c = cells::cells(jet, &q.cells);
-    let uc = q.convection.uc(jet);
-    let l = jet.reference_length_m();
-    let mut missing = 0usize;
-    let mut peaks = Vec::with_capacity(q.angles.len() * c.modes.len());
-    for &psi in &q.angles {
-        for m in &c.modes {
-            let f = tones::shock_noise_peak(uc, jet.a_amb_m_s, m.spacing_m, psi);
-            missing += usize::from(f.is_none());
-            peaks.push(pb::ShockNoisePeak {
-                observer_angle_deg: psi,
-                mode: m.n,
+    let r = tones::shock_noise_peaks(jet, &c, q.convection, &q.angles);
+    let peaks = r
+        .peaks
+        .iter()
+        .map(|p| {
+            let (f, st) = match p.peak {
+                tones::PeakFrequency::Peak { frequency_hz, strouhal } => (Some(frequency_hz), Some(strouhal)),
+                tones::PeakFrequency::MachWave | tones::PeakFrequency::BeyondLimit(_) => (None, None),
+            };
+            pb::ShockNoisePeak {
+                observer_angle_deg: p.angle_deg,
+                mode: p.mode,
                 peak_frequency_hz: f,
-                strouhal_number: f.map(|f| f * l / jet.uj_m_s),
-            });
-        }
-    }
+                strouhal_number: st,
+                beyond_strouhal_limit: matches!(p.peak, tones::PeakFrequency::BeyondLimit(_)),
+            }
+        })
+        .collect();
     let mut notes = notes(&q.jet);
-    if missing > 0 {
+    if r.mach_wave > 0 {
         notes.push(format!(
-            "{missing} angle/mode pairs have no peak frequency: there 1 - Mc cos(angle) <= 0 \
+            "{} angle/mode pairs have no peak frequency: there 1 - Mc cos(angle) <= 0 \
              (Mc = {:.3}), the region of Mach-wave radiation.",
-            uc / jet.a_amb_m_s
+            r.mach_wave, r.mc
         ));
     }
+    if r.beyond_limit > 0 {
+        notes.push(format!(
+            "{} angle/mode pairs are left unset (beyond_strouhal_limit): the formula's peak \
+             lies above Strouhal number {} there, as 1 - Mc cos(angle) approaches 0 (Mc = \
+             {:.3}); measured shock-noise peaks lie far below it.",
+            r.beyond_limit,
+            tones::SHOCK_NOISE_MAX_STROUHAL,
+            r.mc
+        ));
+    }
+    let uc = r.uc_m_s;
     let mut used = vec![models::SHOCK_NOISE_PEAK];
     used.extend(cell_models(jet));
     pb::PredictShockNoiseResponse {
@@ -435,6 +448,7 @@ impl TryFrom<pb::SweepScreechRequest> for SweepQuery {
                 None
             }
         };
+        let from_list = matches!(values, Some(Values::List(_)));
         let mut jet = convert_jet(jet, "jet")?;
         if matches!(kind, Some(SweepKind::Npr | SweepKind::Mach)) && jet.spec.is_none() {
             check.other(
@@ -474,7 +488,15 @@ impl TryFrom<pb::SweepScreechRequest> for SweepQuery {
             }
         };
         let settings = screech_settings(&mut check, &mut jet.defaults, options, "options");
-        // Each value must be valid for its variable; report the first few bad ones by index.
+        // Each value must be valid for its variable; report the first few bad ones by index,
+        // at the request field that holds them.
+        let last = values.len().saturating_sub(1);
+        let value_path = |i: usize| match (from_list, i) {
+            (true, i) => format!("list.values[{i}]"),
+            (false, 0) => "range.start".to_string(),
+            (false, i) if i == last => "range.stop".to_string(),
+            (false, _) => "range".to_string(),
+        };
         if let Some(kind) = kind {
             let (bounds, name) = match kind {
                 SweepKind::Npr => (crate::physics::jet::NPR, "nozzle pressure ratio"),
@@ -489,8 +511,11 @@ impl TryFrom<pb::SweepScreechRequest> for SweepQuery {
                     bad += 1;
                     if bad <= 5 {
                         check.other(
-                            format!("values[{i}]"),
-                            format!("sweep value {i} = {v} is outside the allowed {name} range {bounds}"),
+                            value_path(i),
+                            format!(
+                                "{}: sweep value {i} = {v} is outside the allowed {name} range {bounds}",
+                                value_path(i)
+                            ),
                         );
                     }
                 }
@@ -501,7 +526,7 @@ impl TryFrom<pb::SweepScreechRequest> for SweepQuery {
                         let npr = 1.0 / spec.gas.pressure_ratio(*v);
                         if !crate::physics::jet::NPR.contains(npr) {
                             check.other(
-                                format!("values[{i}]"),
+                                value_path(i),
                                 format!(
                                     "sweep value {i}: Mj = {v} needs NPR {npr:.4e}, outside {}",
                                     crate::physics::jet::NPR
@@ -535,7 +560,7 @@ pub fn sweep_response(q: &SweepQuery) -> Result<pb::SweepScreechResponse, ApiErr
     if q.kind == SweepKind::Reflector {
         if let Some(state) = &q.jet.state {
             if let Err(e) = ExpandedJet::from_state(state) {
-                return Err(ApiError::Precondition(e.to_string()));
+                return Err(ApiError::not_supersonic("jet.conditions", &e));
             }
         }
     }
@@ -543,7 +568,13 @@ pub fn sweep_response(q: &SweepQuery) -> Result<pb::SweepScreechResponse, ApiErr
         let (state, jet) = match (q.kind, &q.jet.spec) {
             (SweepKind::Npr | SweepKind::Mach, Some(spec)) => {
                 let npr = if q.kind == SweepKind::Npr { v } else { 1.0 / spec.gas.pressure_ratio(v) };
-                let op = spec.op.with_npr(npr).map_err(|e| ApiError::Precondition(e.to_string()))?;
+                // Every value was checked against the NPR bounds in the conversion.
+                let op = spec.op.with_npr(npr).map_err(|e| {
+                    ApiError::Invalid(vec![super::error::FieldViolation {
+                        field: "values".into(),
+                        description: format!("sweep value {v} needs {e}"),
+                    }])
+                })?;
                 let st = jet_state(&spec.gas, &spec.nozzle, &op);
                 let j = ExpandedJet::from_state(&st).ok();
                 (Some(st), j)

@@ -129,7 +129,7 @@ mod tests {
     use crate::physics::gas::Gas;
 
     fn jet(size: JetSize, mj: f64) -> ExpandedJet {
-        ExpandedJet::direct(Gas::AIR, mj, size, 288.15, 288.15).unwrap()
+        ExpandedJet::direct(Gas::AIR, Gas::AIR, mj, size, 288.15, 288.15).unwrap()
     }
 
     fn rel(a: f64, b: f64) -> f64 {

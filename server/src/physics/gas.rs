@@ -11,8 +11,14 @@
 use super::bounds::{Bounds, RangeError};
 use super::roots::newton_bracketed;
 
-/// Allowed ratio of specific heats, dimensionless.
-pub const GAMMA: Bounds = Bounds::open_closed(1.0, 5.0, "");
+/// Largest ratio of specific heats of a perfect gas: 5/3, a monatomic gas (kinetic theory:
+/// cv = 3/2 R with no internal degrees of freedom).
+pub const MAX_GAMMA: f64 = 5.0 / 3.0;
+/// Allowed ratio of specific heats, dimensionless: (1, 5/3].
+pub const GAMMA: Bounds = Bounds::open_closed(1.0, MAX_GAMMA, "");
+/// The allowed range of gamma in words, as error messages give it.
+pub const GAMMA_ALLOWED: &str = "(1, 5/3]: no perfect gas has a ratio of specific heats above 5/3, \
+the value of a monatomic gas (kinetic theory)";
 /// Allowed specific gas constant, J/(kg K).
 pub const GAS_CONSTANT: Bounds = Bounds::open_closed(0.0, 100_000.0, "J/(kg K)");
 /// Allowed Mach number for isentropic relations, dimensionless.
@@ -87,6 +93,21 @@ pub struct Isentropic {
     pub critical_velocity_ratio: f64,
 }
 
+/// A plane oblique shock: upstream Mach number, wave angle and flow deflection.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ObliqueShock {
+    /// Upstream Mach number M1.
+    pub upstream_mach: f64,
+    /// Wave angle beta between the shock and the upstream flow, degrees.
+    pub wave_angle_deg: f64,
+    /// Flow deflection theta across the shock, degrees.
+    pub deflection_deg: f64,
+    /// Static pressure ratio p2/p1.
+    pub static_pressure_ratio: f64,
+    /// Downstream Mach number M2.
+    pub downstream_mach: f64,
+}
+
 /// Jump conditions across a normal shock.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct NormalShock {
@@ -116,7 +137,10 @@ impl Gas {
     /// [`RangeError`] naming `gamma` or `gas_constant_j_per_kg_k` when outside [`GAMMA`] or
     /// [`GAS_CONSTANT`].
     pub fn new(gamma: f64, r: f64) -> Result<Self, RangeError> {
-        Ok(Self { gamma: GAMMA.check("gamma", gamma)?, r: GAS_CONSTANT.check("gas_constant_j_per_kg_k", r)? })
+        if !GAMMA.contains(gamma) {
+            return Err(RangeError::new("gamma", gamma, GAMMA_ALLOWED));
+        }
+        Ok(Self { gamma, r: GAS_CONSTANT.check("gas_constant_j_per_kg_k", r)? })
     }
 
     /// Ratio of specific heats.
@@ -345,6 +369,59 @@ impl Gas {
     }
 }
 
+impl Gas {
+    /// Flow deflection theta in radians across an oblique shock of wave angle `beta` (radians)
+    /// at upstream Mach `m1`: tan theta = 2 cot beta (M1^2 sin^2 beta - 1) /
+    /// (M1^2 (g + cos 2 beta) + 2) (NACA Report 1135, oblique-shock relations).
+    pub fn oblique_deflection(&self, m1: f64, beta: f64) -> f64 {
+        let g = self.gamma;
+        let (s, m2) = (beta.sin(), m1 * m1);
+        (2.0 / beta.tan() * (m2 * s * s - 1.0) / (m2 * (g + (2.0 * beta).cos()) + 2.0)).atan()
+    }
+
+    /// Largest deflection in degrees that an attached oblique shock can give at Mach `m` > 1,
+    /// from the wave angle of the maximum in closed form: sin^2 beta = [(g+1) M^2 - 4 +
+    /// sqrt((g+1)((g+1) M^4 + 8 (g-1) M^2 + 16))] / (4 g M^2)
+    /// (NACA Report 1135, oblique-shock relations).
+    /// 0 for `m` <= 1.
+    pub fn max_deflection_deg(&self, m: f64) -> f64 {
+        if m <= 1.0 {
+            return 0.0;
+        }
+        let g = self.gamma;
+        let m2 = m * m;
+        let root = ((g + 1.0) * ((g + 1.0) * m2 * m2 + 8.0 * (g - 1.0) * m2 + 16.0)).sqrt();
+        let s2 = ((g + 1.0) * m2 - 4.0 + root) / (4.0 * g * m2);
+        self.oblique_deflection(m, s2.sqrt().asin()).to_degrees()
+    }
+
+    /// The weak oblique shock at upstream Mach `m1` with static pressure ratio `p_ratio` =
+    /// p2/p1: M1 sin beta = sqrt(1 + (g+1)/(2g) (p2/p1 - 1)) (NACA Report 1135, oblique-shock relations).
+    /// `None` when `m1` <= 1 or `p_ratio` is not in [1, p2/p1 of the normal shock at `m1`].
+    pub fn oblique_shock_for_pressure_ratio(&self, m1: f64, p_ratio: f64) -> Option<ObliqueShock> {
+        if m1.is_nan() || p_ratio.is_nan() || m1 <= 1.0 || p_ratio < 1.0 {
+            return None;
+        }
+        let g = self.gamma;
+        let m1n2 = 1.0 + (g + 1.0) / (2.0 * g) * (p_ratio - 1.0);
+        let sin_beta = (m1n2 / (m1 * m1)).sqrt();
+        if sin_beta > 1.0 {
+            return None;
+        }
+        let beta = sin_beta.asin();
+        let theta = self.oblique_deflection(m1, beta);
+        let m2n2 = (1.0 + 0.5 * (g - 1.0) * m1n2) / (g * m1n2 - 0.5 * (g - 1.0));
+        let downstream_mach = m2n2.sqrt() / (beta - theta).sin();
+        Some(ObliqueShock {
+            upstream_mach: m1,
+            wave_angle_deg: beta.to_degrees(),
+            deflection_deg: theta.to_degrees(),
+            static_pressure_ratio: p_ratio,
+            downstream_mach,
+        })
+    }
+}
+
 fn input_name(i: &IsentropicInput) -> &'static str {
     match i {
         IsentropicInput::Mach(_) => "mach_number",
@@ -481,13 +558,63 @@ mod tests {
         assert_eq!(e.quantity, "pressure_ratio");
     }
 
+    #[test]
+    fn gamma_above_five_thirds_is_refused_with_the_reason() {
+        // Kinetic theory: a monatomic perfect gas has gamma = 5/3, the largest of any gas.
+        assert!(Gas::new(5.0 / 3.0, 2077.1).is_ok());
+        let e = Gas::new(1.7, 287.0).unwrap_err();
+        assert_eq!(e.quantity, "gamma");
+        assert!(e.allowed.contains("5/3") && e.allowed.contains("monatomic"), "{}", e.allowed);
+    }
+
+    #[test]
+    fn maximum_deflection_matches_pygasflow() {
+        // pygasflow 2.x shockwave.max_theta_from_mach(M, 1.4) (PyPI), printed to 1e-12:
+        // M 1.5 -> 12.112668885790837, 2 -> 22.97353176093536, 3 -> 34.0734397756058 deg
+        // (NACA 1135 chart: 12.1, 23.0, 34.1; memory).
+        let air = Gas::AIR;
+        for (m, deg) in
+            [(1.5, 12.112_668_885_790_837), (2.0, 22.973_531_760_935_36), (3.0, 34.073_439_775_605_8)]
+        {
+            assert!((air.max_deflection_deg(m) - deg).abs() < 1e-9, "M {m}: {}", air.max_deflection_deg(m));
+        }
+        // The closed-form wave angle is the maximum of a brute-force scan (slow reference).
+        let g = Gas::new(1.3, 300.0).unwrap();
+        for m in [1.2, 2.5, 6.0] {
+            let scan = (1..200_000)
+                .map(|i| g.oblique_deflection(m, f64::from(i) * std::f64::consts::FRAC_PI_2 / 200_000.0))
+                .fold(f64::MIN, f64::max)
+                .to_degrees();
+            assert!((g.max_deflection_deg(m) - scan).abs() < 1e-6, "M {m}");
+        }
+    }
+
+    #[test]
+    fn oblique_shock_from_pressure_ratio_matches_pygasflow() {
+        // M1 = 2, theta = 10 deg, weak shock: beta 39.31393184481887 deg, p2/p1
+        // 1.706578604000033, M2 1.6405222290010812 (pygasflow shockwave.beta_from_mach_theta,
+        // get_ratios_from_normal_mach_upstream, oblique_mach_downstream; NACA 1135 chart
+        // 39.3 deg, 1.71, 1.64 from memory).
+        let s = Gas::AIR.oblique_shock_for_pressure_ratio(2.0, 1.706_578_604_000_033).unwrap();
+        assert!((s.wave_angle_deg - 39.313_931_844_818_87).abs() < 1e-9);
+        assert!((s.deflection_deg - 10.0).abs() < 1e-9);
+        assert!(rel(s.downstream_mach, 1.640_522_229_001_081_2) < 1e-9);
+        // The normal-shock limit: beta 90 deg, no deflection, M2 of the normal shock.
+        let ns = Gas::AIR.normal_shock(2.0).unwrap();
+        let n = Gas::AIR.oblique_shock_for_pressure_ratio(2.0, ns.static_pressure_ratio).unwrap();
+        assert!((n.wave_angle_deg - 90.0).abs() < 1e-6 && n.deflection_deg.abs() < 1e-6);
+        assert!(rel(n.downstream_mach, ns.downstream_mach) < 1e-9);
+        assert!(Gas::AIR.oblique_shock_for_pressure_ratio(2.0, ns.static_pressure_ratio * 1.01).is_none());
+        assert!(Gas::AIR.oblique_shock_for_pressure_ratio(0.9, 1.2).is_none());
+    }
+
     proptest! {
         #![proptest_config(ProptestConfig::with_cases(512))]
 
         /// Round trip M -> ratio -> M to 1e-12 relative for every ratio, any gamma in
-        /// [1.05, 1.67] (property test; closed-form inverses and the safeguarded Newton solver).
+        /// [1.05, 1.666] (property test; closed-form inverses and the safeguarded Newton solver).
         #[test]
-        fn round_trip_mach_ratio_mach(m in 0.1f64..10.0, g in 1.05f64..1.67) {
+        fn round_trip_mach_ratio_mach(m in 0.1f64..10.0, g in 1.05f64..1.666) {
             let gas = Gas::new(g, 287.05).unwrap();
             let r = gas.isentropic_at(m).unwrap();
             let branch = if m < 1.0 { Branch::Subsonic } else { Branch::Supersonic };

@@ -37,8 +37,26 @@ pub const ISA_SEA_LEVEL_TEMPERATURE_K: f64 = 288.15;
 /// jet (common practice: a convergent nozzle above NPR about 3.8, i.e. pe/pa about 2).
 pub const MACH_DISK_EXIT_PRESSURE_RATIO: f64 = 2.0;
 
-/// Relative tolerance within which the operating point counts as ideally expanded.
-pub const IDEAL_TOLERANCE: f64 = 1e-9;
+/// Default tolerance on |pe/pa - 1| within which a jet counts as ideally expanded: 0.5 % of
+/// the ambient pressure, about what a lab pressure gauge resolves (common practice).
+pub const DEFAULT_IDEAL_TOLERANCE: f64 = 0.005;
+/// Allowed tolerance on |pe/pa - 1| for the ideally expanded class.
+pub const IDEAL_TOLERANCE: Bounds = Bounds::closed(0.0, 0.2, "");
+/// Relative tolerance of the choking and exit-shock thresholds (numerical, not a gauge's).
+const THRESHOLD_TOLERANCE: f64 = 1e-9;
+
+/// Static temperature below which air's components condense at atmospheric pressure:
+/// nitrogen boils at 77.4 K and oxygen at 90.2 K at 101.325 kPa (CRC Handbook of Chemistry and
+/// Physics; memory). The perfect-gas model stops describing an air jet near it.
+pub const AIR_CONDENSATION_K: f64 = 90.0;
+/// Reservoir temperature above which air's specific heats vary noticeably with temperature
+/// (vibrational excitation), so a constant gamma of 1.4 overstates it (Anderson, Modern
+/// Compressible Flow, ch. on high-temperature flows; memory: calorically perfect to about
+/// 1000 K).
+pub const AIR_CALORIC_LIMIT_K: f64 = 1000.0;
+/// Reservoir temperature above which oxygen starts to dissociate at atmospheric pressure
+/// (Anderson, Hypersonic and High-Temperature Gas Dynamics; memory: about 2000 K).
+pub const AIR_DISSOCIATION_K: f64 = 2000.0;
 
 /// A cross-section: the nozzle exit ([`Shape`]) or the fully expanded jet ([`JetSize`]).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -169,13 +187,16 @@ impl Nozzle {
     }
 }
 
-/// Reservoir and ambient conditions.
+/// Reservoir and ambient conditions, with the gas of the surroundings and the tolerance of
+/// the ideally expanded class.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct OperatingPoint {
     npr: f64,
     ambient_pressure_pa: f64,
     total_temperature_k: f64,
     ambient_temperature_k: f64,
+    ambient_gas: Gas,
+    ideal_tolerance: f64,
 }
 
 impl OperatingPoint {
@@ -191,6 +212,8 @@ impl OperatingPoint {
             ambient_pressure_pa: PRESSURE.check("ambient_pressure_pa", p_amb)?,
             total_temperature_k: TEMPERATURE.check("total_temperature_k", t0)?,
             ambient_temperature_k: TEMPERATURE.check("ambient_temperature_k", t_amb)?,
+            ambient_gas: Gas::AIR,
+            ideal_tolerance: DEFAULT_IDEAL_TOLERANCE,
         })
     }
 
@@ -207,7 +230,12 @@ impl OperatingPoint {
             return Err(RangeError::new(
                 "total_pressure_pa",
                 p0,
-                format!("values that give p0/p_ambient in {NPR} (ambient {p_amb} Pa)"),
+                format!(
+                    "[{}, {}] Pa: {NPR} times the ambient pressure {p_amb} Pa (the reservoir \
+                     pressure may not be below ambient)",
+                    NPR.min * p_amb,
+                    NPR.max * p_amb
+                ),
             ));
         }
         Self::new(npr, p_amb, t0, t_amb)
@@ -231,6 +259,29 @@ impl OperatingPoint {
     /// Ambient temperature, K.
     pub fn ambient_temperature_k(&self) -> f64 {
         self.ambient_temperature_k
+    }
+
+    /// Gas of the surroundings (dry air unless set).
+    pub fn ambient_gas(&self) -> Gas {
+        self.ambient_gas
+    }
+
+    /// Tolerance on |pe/pa - 1| within which the jet counts as ideally expanded.
+    pub fn ideal_tolerance(&self) -> f64 {
+        self.ideal_tolerance
+    }
+
+    /// The same point with another ambient gas.
+    pub fn with_ambient_gas(self, gas: Gas) -> Self {
+        Self { ambient_gas: gas, ..self }
+    }
+
+    /// The same point with another ideal-expansion tolerance, in [`IDEAL_TOLERANCE`].
+    ///
+    /// # Errors
+    /// [`RangeError`] naming `ideal_expansion_tolerance`.
+    pub fn with_ideal_tolerance(self, tol: f64) -> Result<Self, RangeError> {
+        Ok(Self { ideal_tolerance: IDEAL_TOLERANCE.check("ideal_expansion_tolerance", tol)?, ..self })
     }
 
     /// The same point at another nozzle pressure ratio.
@@ -260,11 +311,58 @@ pub enum Regime {
 /// Fully expanded dimensions of the jet (Dj, or hj and bj), by nozzle shape.
 pub type JetSize = Section;
 
+/// Whether a Mach disk (Mach reflection of the first-cell shocks) is expected, and by which
+/// criterion.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum MachDisk {
+    /// Regular reflection expected.
+    NotExpected,
+    /// Under-expanded with pe/pa above [`MACH_DISK_EXIT_PRESSURE_RATIO`] (common practice).
+    StrongUnderExpansion,
+    /// Over-expanded and the lip shock cannot reflect regularly: its deflection exceeds the
+    /// largest a reflected shock at the post-shock Mach number can turn back (von Neumann's
+    /// detachment criterion; Hornung 1986, Annu. Rev. Fluid Mech. 18), or no attached shock
+    /// gives the pressure rise at all.
+    DetachedReflection {
+        /// Flow deflection across the lip shock, degrees (`None` if no attached shock exists).
+        lip_deflection_deg: Option<f64>,
+        /// Largest deflection of a reflected shock behind it, degrees.
+        max_reflected_deg: f64,
+    },
+}
+
+/// The Mach-disk criterion for a jet leaving at Mach `exit_mach` with pressure ratio
+/// `pe_over_pa`, in gas `gas`.
+pub fn mach_disk(gas: &Gas, regime: Regime, exit_mach: f64, pe_over_pa: f64) -> MachDisk {
+    match regime {
+        Regime::UnderExpanded if pe_over_pa > MACH_DISK_EXIT_PRESSURE_RATIO => MachDisk::StrongUnderExpansion,
+        Regime::OverExpanded if exit_mach > 1.0 => {
+            match gas.oblique_shock_for_pressure_ratio(exit_mach, 1.0 / pe_over_pa) {
+                None => MachDisk::DetachedReflection { lip_deflection_deg: None, max_reflected_deg: 0.0 },
+                Some(lip) => {
+                    let max_reflected_deg = gas.max_deflection_deg(lip.downstream_mach);
+                    if lip.deflection_deg > max_reflected_deg {
+                        MachDisk::DetachedReflection {
+                            lip_deflection_deg: Some(lip.deflection_deg),
+                            max_reflected_deg,
+                        }
+                    } else {
+                        MachDisk::NotExpected
+                    }
+                }
+            }
+        }
+        _ => MachDisk::NotExpected,
+    }
+}
+
 /// The fully expanded jet and the nozzle flow that produces it.
 #[derive(Debug, Clone, PartialEq)]
 pub struct JetState {
-    /// Gas used.
+    /// Gas of the jet.
     pub gas: Gas,
+    /// Gas of the surroundings (ambient sound speed).
+    pub ambient_gas: Gas,
     /// Nozzle pressure ratio p0/p_ambient.
     pub npr: f64,
     /// Reservoir total pressure, Pa.
@@ -283,10 +381,17 @@ pub struct JetState {
     pub regime: Regime,
     /// True when shock cells can form (Mj > 1 and no shock in the nozzle).
     pub supersonic: bool,
-    /// Fully expanded Mach number Mj.
+    /// True when the flow leaves the exit supersonic (even if Mj < 1).
+    pub exit_supersonic: bool,
+    /// True when the jet is what an isentropic expansion to ambient pressure gives: a
+    /// supersonic jet, or a subsonic one with no shock anywhere. False with a shock in the
+    /// nozzle or an over-expanded exit flow whose Mj is below 1: the fully expanded values
+    /// (Mj, Tj, Uj, Dj, ...) are then reference values only.
+    pub isentropic_expansion: bool,
+    /// Isentropic Mach number Mj = sqrt(2/(g-1) (NPR^((g-1)/g) - 1)).
     pub mj: f64,
-    /// Off-design parameter beta = sqrt(|Mj^2 - Md^2|).
-    pub beta: f64,
+    /// Off-design parameter against the design Mach number, sqrt(|Mj^2 - Md^2|).
+    pub beta_from_design_mach: f64,
     /// Fully expanded static temperature Tj, K.
     pub tj_k: f64,
     /// Fully expanded velocity Uj, m/s.
@@ -303,6 +408,8 @@ pub struct JetState {
     pub exit_mach: f64,
     /// Exit static pressure, Pa.
     pub exit_pressure_pa: f64,
+    /// Tolerance on |pe/pa - 1| used for the ideally expanded class.
+    pub ideal_tolerance: f64,
     /// Aj / Ae (for planar nozzles, hj / h).
     pub area_ratio: f64,
     /// Fully expanded dimensions.
@@ -313,10 +420,10 @@ pub struct JetState {
     pub mass_flow: f64,
     /// Throat choked.
     pub choked: bool,
-    /// Mach disk expected (common practice).
-    pub mach_disk_expected: bool,
+    /// Mach disk expected, and why.
+    pub mach_disk: MachDisk,
     /// T0 / T_ambient.
-    pub temperature_ratio: f64,
+    pub total_to_ambient_temperature_ratio: f64,
     /// NPR at which the throat chokes (critical ratio for convergent nozzles).
     pub choking_npr: f64,
     /// NPR at which a normal shock stands in the exit plane (C-D nozzles).
@@ -342,25 +449,63 @@ impl JetState {
                  assume an isentropic expansion that does not happen.",
                 self.choking_npr, self.exit_shock_npr
             )),
+            Regime::OverExpanded if !self.supersonic => notes.push(format!(
+                "Over-expanded below the critical pressure ratio: the flow leaves the exit \
+                 supersonic (Me = {:.4}, exit pressure {pe:.0} Pa against ambient {p_amb:.0} Pa) \
+                 but NPR {npr:.4} is below the critical {:.4}, so an isentropic expansion to \
+                 ambient pressure would end subsonic (Mj = {:.4}). Shocks at the lip turn and \
+                 slow the flow: the fully expanded values are not reported, and the vortex-sheet \
+                 shock-cell, screech and shock-noise models (which need Mj > 1) do not apply.",
+                self.exit_mach,
+                self.gas.critical_pressure_ratio(),
+                self.mj
+            )),
             Regime::OverExpanded => notes.push(format!(
                 "Over-expanded: exit pressure {pe:.0} Pa is below ambient {p_amb:.0} Pa (design \
-                 NPR {design:.4})."
+                 NPR {design:.4}, pe/pa = {:.4}).",
+                pe / p_amb
             )),
             Regime::UnderExpanded => notes.push(format!(
                 "Under-expanded: exit pressure {pe:.0} Pa is above ambient {p_amb:.0} Pa (design \
-                 NPR {design:.4})."
+                 NPR {design:.4}, pe/pa = {:.4}).",
+                pe / p_amb
             )),
-            Regime::IdeallyExpanded => {}
+            Regime::IdeallyExpanded => notes.push(format!(
+                "Ideally expanded within the tolerance: pe/pa = {:.5}, |pe/pa - 1| <= {} (design \
+                 NPR {design:.4}).",
+                pe / p_amb,
+                self.ideal_tolerance
+            )),
         }
-        if self.mach_disk_expected {
-            notes.push(format!(
+        match self.mach_disk {
+            MachDisk::NotExpected => {}
+            MachDisk::StrongUnderExpansion => notes.push(format!(
                 "Mach disk expected: exit-to-ambient pressure ratio {:.3} exceeds about {} \
                  (common practice; for a convergent nozzle NPR above about 3.8). Vortex-sheet \
                  shock-cell models lose accuracy here.",
                 pe / p_amb,
                 MACH_DISK_EXIT_PRESSURE_RATIO
-            ));
+            )),
+            MachDisk::DetachedReflection { lip_deflection_deg, max_reflected_deg } => {
+                notes.push(match lip_deflection_deg {
+                    Some(t) => format!(
+                        "Mach disk expected: the lip shock of this over-expanded jet (pa/pe = {:.3}) \
+                     turns the flow by {t:.2} deg, more than the {max_reflected_deg:.2} deg a \
+                     reflected shock behind it can turn back, so regular reflection is impossible \
+                     (von Neumann detachment criterion for plane shocks; Hornung 1986). Round jets \
+                     can show a small Mach disk earlier (conical shocks strengthen towards the \
+                     axis). Vortex-sheet shock-cell models lose accuracy here.",
+                        p_amb / pe
+                    ),
+                    None => format!(
+                        "Mach disk expected: pa/pe = {:.3} exceeds the pressure rise of a normal shock \
+                     at the exit Mach number; no attached lip shock exists.",
+                        p_amb / pe
+                    ),
+                })
+            }
         }
+        notes.extend(self.perfect_gas_cautions());
         if matches!(self.size, JetSize::Rectangular { .. }) && self.supersonic {
             notes.push(
                 "Rectangular jet: both sides of the exit grow (or shrink) by the same length so \
@@ -370,6 +515,60 @@ impl JetState {
             );
         }
         notes
+    }
+
+    /// Cautions where the perfect-gas model stops describing the jet: condensation of cold air
+    /// and the caloric imperfection and dissociation of hot air (limits and sources at
+    /// [`AIR_CONDENSATION_K`], [`AIR_CALORIC_LIMIT_K`], [`AIR_DISSOCIATION_K`]). They are given
+    /// for air-like (diatomic, gamma 1.4 within 0.02) jet gases; other gases have their own
+    /// limits, which the caller knows better.
+    pub fn perfect_gas_cautions(&self) -> Vec<String> {
+        let mut v = Vec::new();
+        if (self.gas.gamma() - 1.4).abs() > 0.02 {
+            return v;
+        }
+        let coldest =
+            self.total_temperature_k.min(if self.isentropic_expansion { self.tj_k } else { f64::MAX });
+        if coldest < AIR_CONDENSATION_K {
+            v.push(format!(
+                "Caution: the {} falls to {coldest:.1} K, below about {AIR_CONDENSATION_K} K where \
+                 air's nitrogen and oxygen condense at atmospheric pressure (boiling points 77.4 K \
+                 and 90.2 K). The perfect-gas model does not describe a condensing jet; moisture \
+                 in undried supply air condenses at far higher temperatures.",
+                if coldest == self.total_temperature_k {
+                    "reservoir temperature"
+                } else {
+                    "jet's static temperature"
+                }
+            ));
+        }
+        if self.total_temperature_k > AIR_DISSOCIATION_K {
+            v.push(format!(
+                "Caution: at a reservoir temperature of {:.0} K (above about {AIR_DISSOCIATION_K} K) \
+                 oxygen starts to dissociate and air is far from a perfect gas with constant \
+                 gamma: treat these numbers as rough estimates.",
+                self.total_temperature_k
+            ));
+        } else if self.total_temperature_k > AIR_CALORIC_LIMIT_K {
+            v.push(format!(
+                "Caution: at a reservoir temperature of {:.0} K (above about {AIR_CALORIC_LIMIT_K} \
+                 K) air's specific heats grow with temperature and its gamma falls below 1.4 \
+                 (about 1.34 at 1000 K): a constant-gamma model with 1.4 is a few percent off; \
+                 give the gamma of the hot gas.",
+                self.total_temperature_k
+            ));
+        }
+        v
+    }
+
+    /// True when a Mach disk is expected (by either criterion of [`MachDisk`]).
+    pub fn mach_disk_expected(&self) -> bool {
+        !matches!(self.mach_disk, MachDisk::NotExpected)
+    }
+
+    /// Exit-to-ambient static pressure ratio pe/pa.
+    pub fn exit_to_ambient_pressure_ratio(&self) -> f64 {
+        self.exit_pressure_pa / self.ambient_pressure_pa
     }
 
     /// The shape of the nozzle that produced this state.
@@ -401,11 +600,12 @@ pub fn jet_state(gas: &Gas, nozzle: &Nozzle, op: &OperatingPoint) -> JetState {
     } else {
         design_npr / gas.normal_shock(md).map_or(1.0, |s| s.static_pressure_ratio)
     };
-    let regime = if npr < npr_choke && (npr / npr_choke - 1.0).abs() > IDEAL_TOLERANCE {
+    // Supersonic exit: pe/pa = NPR / design NPR; ideally expanded within the tolerance.
+    let regime = if npr < npr_choke && (npr / npr_choke - 1.0).abs() > THRESHOLD_TOLERANCE {
         Regime::Subsonic
-    } else if md > 1.0 && npr < npr_exit_shock * (1.0 - IDEAL_TOLERANCE) {
+    } else if md > 1.0 && npr < npr_exit_shock * (1.0 - THRESHOLD_TOLERANCE) {
         Regime::ShockInNozzle
-    } else if (npr / design_npr - 1.0).abs() <= IDEAL_TOLERANCE {
+    } else if (npr / design_npr - 1.0).abs() <= op.ideal_tolerance {
         Regime::IdeallyExpanded
     } else if npr < design_npr {
         Regime::OverExpanded
@@ -414,6 +614,8 @@ pub fn jet_state(gas: &Gas, nozzle: &Nozzle, op: &OperatingPoint) -> JetState {
     };
     let choked = regime != Regime::Subsonic;
     let supersonic = mj > 1.0 && !matches!(regime, Regime::Subsonic | Regime::ShockInNozzle);
+    let exit_supersonic = md > 1.0 && !matches!(regime, Regime::Subsonic | Regime::ShockInNozzle);
+    let isentropic_expansion = supersonic || regime == Regime::Subsonic;
 
     let (exit_mach, exit_pressure_pa) = match regime {
         Regime::Subsonic => (mj, p_amb),
@@ -433,7 +635,7 @@ pub fn jet_state(gas: &Gas, nozzle: &Nozzle, op: &OperatingPoint) -> JetState {
     let tj = t0 * gas.temperature_ratio(mj);
     let aj = gas.sound_speed(tj);
     let uj = mj * aj;
-    let a_amb = gas.sound_speed(op.ambient_temperature_k);
+    let a_amb = op.ambient_gas.sound_speed(op.ambient_temperature_k);
     let rho_j = p_amb / (gas.gas_constant() * tj);
     // Mass conservation between the exit and the fully expanded state (Tam & Tanna 1982):
     // Aj/Ae = (A/A*)(Mj) / (A/A*)(Md).
@@ -456,10 +658,10 @@ pub fn jet_state(gas: &Gas, nozzle: &Nozzle, op: &OperatingPoint) -> JetState {
     } else {
         rho_j * uj * exit
     };
-    let mach_disk_expected =
-        regime == Regime::UnderExpanded && exit_pressure_pa / p_amb > MACH_DISK_EXIT_PRESSURE_RATIO;
+    let mach_disk = mach_disk(gas, regime, exit_mach, exit_pressure_pa / p_amb);
     JetState {
         gas: *gas,
+        ambient_gas: op.ambient_gas,
         npr,
         total_pressure_pa: npr * p_amb,
         ambient_pressure_pa: p_amb,
@@ -469,8 +671,10 @@ pub fn jet_state(gas: &Gas, nozzle: &Nozzle, op: &OperatingPoint) -> JetState {
         design_npr,
         regime,
         supersonic,
+        exit_supersonic,
+        isentropic_expansion,
         mj,
-        beta: (mj * mj - md * md).abs().sqrt(),
+        beta_from_design_mach: (mj * mj - md * md).abs().sqrt(),
         tj_k: tj,
         uj_m_s: uj,
         rho_j_kg_m3: rho_j,
@@ -479,13 +683,14 @@ pub fn jet_state(gas: &Gas, nozzle: &Nozzle, op: &OperatingPoint) -> JetState {
         acoustic_mach: uj / a_amb,
         exit_mach,
         exit_pressure_pa,
+        ideal_tolerance: op.ideal_tolerance,
         area_ratio,
         size,
         exit_area_m2: (!matches!(nozzle.shape, Shape::Planar { .. })).then_some(exit),
         mass_flow,
         choked,
-        mach_disk_expected,
-        temperature_ratio: t0 / op.ambient_temperature_k,
+        mach_disk,
+        total_to_ambient_temperature_ratio: t0 / op.ambient_temperature_k,
         choking_npr: npr_choke,
         exit_shock_npr: npr_exit_shock,
     }
@@ -498,8 +703,10 @@ pub const FULLY_EXPANDED_MACH: Bounds = Bounds::open_closed(1.0, 20.0, "");
 /// size, velocity and the sound speeds. Made from a computed [`JetState`] or given directly.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct ExpandedJet {
-    /// Gas.
+    /// Gas of the jet.
     pub gas: Gas,
+    /// Gas of the surroundings.
+    pub ambient_gas: Gas,
     /// Fully expanded Mach number Mj (> 1).
     pub mj: f64,
     /// Fully expanded dimensions.
@@ -510,27 +717,57 @@ pub struct ExpandedJet {
     pub ambient_temperature_k: f64,
     /// Fully expanded velocity Uj, m/s.
     pub uj_m_s: f64,
-    /// Ambient sound speed, m/s.
+    /// Ambient sound speed (ambient gas), m/s.
     pub a_amb_m_s: f64,
 }
 
-/// Why a jet has no shock cells.
-#[derive(Debug, Clone, PartialEq, thiserror::Error)]
-#[error(
-    "the jet is not supersonic (regime {regime:?}, NPR {npr:.4}, Mj {mj:.4}): there are no shock \
-     cells below the critical pressure ratio {critical:.4} (or with a shock inside the nozzle), \
-     so no shock-cell, screech or shock-noise prediction exists"
-)]
+/// Why a jet has no shock cells of the fully expanded (vortex-sheet) kind.
+#[derive(Debug, Clone, PartialEq)]
 pub struct NotSupersonic {
     /// Regime found.
     pub regime: Regime,
     /// Nozzle pressure ratio.
     pub npr: f64,
-    /// Fully expanded Mach number.
+    /// Isentropic (fully expanded) Mach number.
     pub mj: f64,
     /// Critical pressure ratio of the gas.
     pub critical: f64,
+    /// Exit Mach number.
+    pub exit_mach: f64,
+    /// NPR at which a normal shock stands in the exit plane.
+    pub exit_shock_npr: f64,
 }
+
+impl std::fmt::Display for NotSupersonic {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        let Self { regime, npr, mj, critical, exit_mach, exit_shock_npr } = *self;
+        match regime {
+            Regime::ShockInNozzle => write!(
+                f,
+                "a normal shock stands inside the divergent part of the nozzle (NPR {npr:.4} is \
+                 below {exit_shock_npr:.4}, where the shock reaches the exit): the exit flow is \
+                 subsonic (Me = {exit_mach:.4}), so the jet has no shock cells and no shock-cell, \
+                 screech or shock-noise prediction exists"
+            ),
+            Regime::OverExpanded => write!(
+                f,
+                "the flow leaves the nozzle supersonic (Me = {exit_mach:.4}) but over-expanded \
+                 below the critical pressure ratio (NPR {npr:.4} < {critical:.4}): its isentropic \
+                 Mach number at ambient pressure is {mj:.4} < 1, so shocks at the lip turn the \
+                 jet subsonic and the vortex-sheet shock-cell model (which needs Mj > 1) does not \
+                 apply; no shock-cell, screech or shock-noise prediction is made"
+            ),
+            _ => write!(
+                f,
+                "the jet is subsonic (NPR {npr:.4} is below the critical pressure ratio \
+                 {critical:.4}, Mj {mj:.4}): there are no shock cells, so no shock-cell, screech or \
+                 shock-noise prediction exists"
+            ),
+        }
+    }
+}
+
+impl std::error::Error for NotSupersonic {}
 
 impl ExpandedJet {
     /// The expanded jet of a computed state.
@@ -544,10 +781,13 @@ impl ExpandedJet {
                 npr: s.npr,
                 mj: s.mj,
                 critical: s.gas.critical_pressure_ratio(),
+                exit_mach: s.exit_mach,
+                exit_shock_npr: s.exit_shock_npr,
             });
         }
         Ok(Self {
             gas: s.gas,
+            ambient_gas: s.ambient_gas,
             mj: s.mj,
             size: s.size,
             total_temperature_k: s.total_temperature_k,
@@ -557,12 +797,19 @@ impl ExpandedJet {
         })
     }
 
-    /// A jet given directly by its fully expanded Mach number and size, with reservoir and
-    /// ambient temperatures in K.
+    /// A jet of gas `gas` issuing into `ambient_gas`, given directly by its fully expanded Mach
+    /// number and size, with reservoir and ambient temperatures in K.
     ///
     /// # Errors
     /// [`RangeError`] naming `fully_expanded_mach_number`, a dimension, or a temperature.
-    pub fn direct(gas: Gas, mj: f64, size: JetSize, t0: f64, t_amb: f64) -> Result<Self, RangeError> {
+    pub fn direct(
+        gas: Gas,
+        ambient_gas: Gas,
+        mj: f64,
+        size: JetSize,
+        t0: f64,
+        t_amb: f64,
+    ) -> Result<Self, RangeError> {
         let mj = FULLY_EXPANDED_MACH.check("fully_expanded_mach_number", mj)?;
         match size {
             JetSize::Round { diameter_m } => {
@@ -582,12 +829,13 @@ impl ExpandedJet {
         let tj = t0 * gas.temperature_ratio(mj);
         Ok(Self {
             gas,
+            ambient_gas,
             mj,
             size,
             total_temperature_k: t0,
             ambient_temperature_k: t_amb,
             uj_m_s: mj * gas.sound_speed(tj),
-            a_amb_m_s: gas.sound_speed(t_amb),
+            a_amb_m_s: ambient_gas.sound_speed(t_amb),
         })
     }
 
@@ -597,7 +845,8 @@ impl ExpandedJet {
         self.size.reference_length_m()
     }
 
-    /// sqrt(Mj^2 - 1).
+    /// Shock-cell parameter sqrt(Mj^2 - 1) (not the off-design parameter
+    /// [`JetState::beta_from_design_mach`]).
     pub fn beta(&self) -> f64 {
         (self.mj * self.mj - 1.0).sqrt()
     }
@@ -632,7 +881,7 @@ mod tests {
             let s = jet_state(&air, &n, &op(1.0 / air.pressure_ratio(md)));
             assert_eq!(s.regime, Regime::IdeallyExpanded, "Md {md}");
             assert!(rel(s.mj, md) < 1e-12);
-            assert!(s.beta < 1e-5, "beta {}", s.beta);
+            assert!(s.beta_from_design_mach < 1e-5, "beta {}", s.beta_from_design_mach);
             let JetSize::Round { diameter_m } = s.size else { panic!() };
             assert!(rel(diameter_m, 0.05) < 1e-9);
             assert!(rel(s.exit_pressure_pa, ISA_SEA_LEVEL_PRESSURE_PA) < 1e-9);
@@ -665,8 +914,8 @@ mod tests {
         assert_eq!(jet_state(&air, &n, &op(crit)).regime, Regime::IdeallyExpanded);
         let s = jet_state(&air, &n, &op(3.0));
         assert_eq!(s.regime, Regime::UnderExpanded);
-        assert!(s.choked && s.supersonic && !s.mach_disk_expected);
-        assert!(jet_state(&air, &n, &op(4.0)).mach_disk_expected);
+        assert!(s.choked && s.supersonic && !s.mach_disk_expected());
+        assert!(jet_state(&air, &n, &op(4.0)).mach_disk_expected());
         // Mj at NPR 3 from Mj = sqrt(5 (3^(2/7) - 1)) = 1.3578 (closed form).
         assert!((s.mj - (5.0 * (3f64.powf(2.0 / 7.0) - 1.0)).sqrt()).abs() < 1e-14);
     }

@@ -277,18 +277,109 @@ pub fn tam_1986_strouhal(jet: &ExpandedJet, constant: f64) -> Option<f64> {
     if !matches!(jet.size, JetSize::Round { .. }) {
         return None;
     }
-    let g = jet.gas.gamma();
+    // The bracket is 1 + Mc with Mc = 0.7 Uj / a_amb. For a jet of the ambient gas this is
+    // the published 0.7 Mj (1 + (g-1)/2 Mj^2)^(-1/2) (T0/Ta)^(1/2), since then
+    // (aj/a_amb)^2 = Tj/Ta; for another jet gas the ambient sound speed is that of the
+    // surroundings, as in the bracket's derivation.
     let mj = jet.mj;
-    let mc = TAM_1986_CONVECTION
-        * mj
-        * (1.0 + 0.5 * (g - 1.0) * mj * mj).powf(-0.5)
-        * (jet.total_temperature_k / jet.ambient_temperature_k).sqrt();
+    let mc = TAM_1986_CONVECTION * jet.uj_m_s / jet.a_amb_m_s;
     Some(constant / (mj * mj - 1.0).sqrt() / (1.0 + mc))
 }
 
 /// Tam, Seiner & Yu (1986) screech frequency in Hz (round jets only).
 pub fn tam_1986_frequency(jet: &ExpandedJet, constant: f64) -> Option<f64> {
     tam_1986_strouhal(jet, constant).map(|st| st * jet.uj_m_s / jet.reference_length_m())
+}
+
+/// Strouhal number f L / Uj of a frequency `f_hz` for a jet (L its reference length).
+pub fn strouhal(f_hz: f64, jet: &ExpandedJet) -> f64 {
+    f_hz * jet.reference_length_m() / jet.uj_m_s
+}
+
+/// Largest Strouhal number f L / Uj reported for a shock-noise peak. Measured broadband
+/// shock-associated noise peaks lie at Strouhal numbers of order 1 (below about 3 even in the
+/// forward arc; common practice); beyond 10 the formula is only approaching its singularity
+/// 1 - Mc cos(psi) -> 0 and the value is not a peak anyone will measure.
+pub const SHOCK_NOISE_MAX_STROUHAL: f64 = 10.0;
+
+/// The peak of one observer angle and shock-cell mode.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum PeakFrequency {
+    /// A peak: frequency in Hz and Strouhal number f L / Uj.
+    Peak {
+        /// Frequency, Hz.
+        frequency_hz: f64,
+        /// Strouhal number.
+        strouhal: f64,
+    },
+    /// 1 - Mc cos(psi) <= 0: Mach-wave radiation, no peak of this kind.
+    MachWave,
+    /// The formula gives a Strouhal number above [`SHOCK_NOISE_MAX_STROUHAL`] (the value,
+    /// which is not reported as a peak).
+    BeyondLimit(f64),
+}
+
+/// One shock-noise peak.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ShockNoisePeak {
+    /// Observer angle from the downstream jet axis, degrees.
+    pub angle_deg: f64,
+    /// Shock-cell mode number.
+    pub mode: u32,
+    /// The peak, or why there is none.
+    pub peak: PeakFrequency,
+}
+
+/// Shock-noise peaks of every angle and cell mode.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ShockNoisePeaks {
+    /// Convection speed Uc, m/s.
+    pub uc_m_s: f64,
+    /// Convective Mach number Uc / a_ambient.
+    pub mc: f64,
+    /// Peaks, angle-major, modes in order.
+    pub peaks: Vec<ShockNoisePeak>,
+    /// How many angle/mode pairs fall in the Mach-wave region.
+    pub mach_wave: usize,
+    /// How many lie beyond the Strouhal limit.
+    pub beyond_limit: usize,
+}
+
+/// Shock-associated noise peaks (Harper-Bourne & Fisher 1973; Tam & Tanna 1982) for a jet, its
+/// cells and convection, at each observer angle in degrees from the downstream axis.
+pub fn shock_noise_peaks(
+    jet: &ExpandedJet,
+    cells: &super::cells::Cells,
+    convection: Convection,
+    angles_deg: &[f64],
+) -> ShockNoisePeaks {
+    let uc = convection.uc(jet);
+    let mut out = ShockNoisePeaks {
+        uc_m_s: uc,
+        mc: uc / jet.a_amb_m_s,
+        peaks: Vec::with_capacity(angles_deg.len() * cells.modes.len()),
+        mach_wave: 0,
+        beyond_limit: 0,
+    };
+    for &psi in angles_deg {
+        for m in &cells.modes {
+            let peak = match shock_noise_peak(uc, jet.a_amb_m_s, m.spacing_m, psi) {
+                None => {
+                    out.mach_wave += 1;
+                    PeakFrequency::MachWave
+                }
+                Some(f) => match strouhal(f, jet) {
+                    st if st > SHOCK_NOISE_MAX_STROUHAL => {
+                        out.beyond_limit += 1;
+                        PeakFrequency::BeyondLimit(st)
+                    }
+                    st => PeakFrequency::Peak { frequency_hz: f, strouhal: st },
+                },
+            };
+            out.peaks.push(ShockNoisePeak { angle_deg: psi, mode: m.n, peak });
+        }
+    }
+    out
 }
 
 /// Peak frequency of shock-associated noise in Hz at observer angle `psi_deg` from the

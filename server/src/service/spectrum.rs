@@ -1,5 +1,6 @@
 //! `jetloop.v1.SpectrumService`.
 
+use crate::api::error::PreconditionViolation;
 use crate::api::spectrum::{bands_response, tones_response, BandQuery, ToneQuery, ToneStream};
 use crate::api::ApiError;
 use jetloop_proto::pb::{self, spectrum_service_server::SpectrumService};
@@ -54,9 +55,10 @@ impl SpectrumService for Spectrum {
                     Ok(Some(block)) => stream.next(block)?,
                     Ok(None) => return stream.finish(),
                     Err(_) => {
-                        return Err(ApiError::Precondition(format!(
-                            "the block stream was cut off after {} messages",
-                            stream.messages()
+                        return Err(ApiError::Precondition(PreconditionViolation::new(
+                            "STREAM_CUT_OFF",
+                            "frames",
+                            format!("the block stream was cut off after {} messages", stream.messages()),
                         )))
                     }
                 }

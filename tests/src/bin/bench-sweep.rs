@@ -34,6 +34,8 @@ async fn main() {
                     ..Default::default()
                 }),
                 gas: None,
+                ambient_gas: None,
+                ideal_expansion_tolerance: None,
             })),
         }),
         variable: pb::SweepVariable::NozzlePressureRatio as i32,
