@@ -124,3 +124,71 @@ def test_health_serving(channel):
     stub = health_pb2_grpc.HealthStub(channel)
     r = stub.Check(health_pb2.HealthCheckRequest(service="jetloop.v1.GasDynamicsService"))
     assert r.status == health_pb2.HealthCheckResponse.SERVING
+
+
+def _lip_shock_excess_deg(md, npr, g=1.4):
+    """Deflection of the lip shock of an over-expanded jet minus the largest deflection a
+    reflected shock behind it can give (von Neumann detachment criterion; Hornung 1986), with
+    pygasflow's oblique-shock functions. Positive: regular reflection impossible (Mach disk)."""
+    from pygasflow.shockwave import (
+        get_upstream_normal_mach_from_ratio,
+        max_theta_from_mach,
+        oblique_mach_downstream,
+        theta_from_mach_beta,
+    )
+
+    pr = float(isentropic_solver("m", [md], gamma=g, to_dict=True)["pr"])
+    m1n = float(get_upstream_normal_mach_from_ratio("pressure", 1.0 / (npr * pr), g))
+    beta = math.degrees(math.asin(m1n / md))
+    theta = float(theta_from_mach_beta(md, beta, g))
+    m2 = float(oblique_mach_downstream(md, beta, theta, g))
+    if m2 <= 1.0:
+        return theta
+    return theta - float(max_theta_from_mach(m2, g))
+
+
+@pytest.mark.parametrize("md", [1.5, 2.0, 2.5, 3.0])
+def test_over_expanded_mach_disk_flag_matches_the_detachment_criterion(pb, gas, md):
+    common = pb.common
+    pr = float(isentropic_solver("m", [md], gamma=1.4, to_dict=True)["pr"])
+    design = 1.0 / pr
+    exit_shock = design / float(shockwave_solver("mu", [md], gamma=1.4, to_dict=True)["pr"])
+    checked = 0
+    for k in range(1, 60):
+        npr = exit_shock + (design - exit_shock) * k / 60.0
+        excess = _lip_shock_excess_deg(md, npr)
+        if abs(excess) < 0.05:  # within 0.05 deg of the switch: too close to call
+            continue
+        cond = common.JetConditions(
+            nozzle=common.Nozzle(
+                round_convergent_divergent=common.RoundConvergentDivergentNozzle(exit_diameter_m=0.05, design_mach_number=md)
+            ),
+            operating_point=common.OperatingPoint(nozzle_pressure_ratio=npr),
+        )
+        s = gas.JetState(pb.gas.JetStateRequest(conditions=cond)).state
+        if s.regime != pb.gas.EXPANSION_REGIME_OVER_EXPANDED:
+            continue
+        assert s.mach_disk_expected == (excess > 0), (md, npr, excess)
+        checked += 1
+    assert checked > 40
+
+
+def test_fully_expanded_values_are_unset_where_shocks_stand_in_the_way(pb, gas):
+    """Md 1.5 at NPR 1.6 (supersonic exit, Mj < 1) and Md 3 at NPR 2.5 (shock in the nozzle):
+    the isentropic Mach number equals pygasflow's inverse of p/p0 = 1/NPR, the fully expanded
+    fields are absent."""
+    common = pb.common
+    for md, npr in [(1.5, 1.6), (3.0, 2.5)]:
+        cond = common.JetConditions(
+            nozzle=common.Nozzle(
+                round_convergent_divergent=common.RoundConvergentDivergentNozzle(exit_diameter_m=0.05, design_mach_number=md)
+            ),
+            operating_point=common.OperatingPoint(nozzle_pressure_ratio=npr),
+        )
+        s = gas.JetState(pb.gas.JetStateRequest(conditions=cond)).state
+        mj = float(isentropic_solver("pressure", [1.0 / npr], gamma=1.4, to_dict=True)["m"])
+        assert close(s.isentropic_mach_number, mj)
+        for f in ["fully_expanded_mach_number", "fully_expanded_diameter_m", "fully_expanded_to_exit_area_ratio",
+                  "fully_expanded_velocity_m_per_s", "acoustic_mach_number"]:
+            assert not s.HasField(f), (md, npr, f)
+        assert not s.supersonic

@@ -87,3 +87,58 @@ def test_shock_noise_peaks_against_the_formula(stubs):
             assert math.isclose(p.peak_frequency_hz, uc / (ls * d), rel_tol=1e-12)
         else:
             assert not p.HasField("peak_frequency_hz")
+
+
+@pytest.mark.parametrize(
+    "gamma,r_gas,t0",
+    [(5.0 / 3.0, 2077.1, 288.15), (1.3, 287.05, 700.0), (1.4, 287.05, 288.15)],
+)
+def test_powell_uses_the_ambient_air_sound_speed_for_any_jet_gas(pb, stubs, gamma, r_gas, t0):
+    """Powell's fundamental f = Uc / (Ls (1 + Uc/a)) with Uc = 0.7 Uj and a the sound speed of
+    the surrounding dry air (1.4, 287.05 J/(kg K), 288.15 K), whatever the jet gas (helium,
+    gamma 1.3 combustion-like products, air); Mj and Aj/A* of the jet gas from pygasflow,
+    Prandtl-Pack spacing with j0,1 from scipy.special.jn_zeros."""
+    cells, _, tones, stub = stubs
+    common = pb.common
+    cond = common.JetConditions(
+        nozzle=common.Nozzle(round_convergent=common.RoundConvergentNozzle(exit_diameter_m=0.0254)),
+        operating_point=common.OperatingPoint(nozzle_pressure_ratio=4.0, total_temperature_k=t0, ambient_temperature_k=288.15),
+        gas=common.Gas(gamma=gamma, gas_constant_j_per_kg_k=r_gas),
+    )
+    r = stub.PredictScreech(tones.PredictScreechRequest(jet=cells.JetInput(conditions=cond)))
+    mj = float(isentropic_solver("pressure", [1.0 / 4.0], gamma=gamma, to_dict=True)["m"])
+    dj = 0.0254 * math.sqrt(float(isentropic_solver("m", [mj], gamma=gamma, to_dict=True)["ars"]))
+    tj = t0 * float(isentropic_solver("m", [mj], gamma=gamma, to_dict=True)["tr"])
+    uj = mj * math.sqrt(gamma * r_gas * tj)
+    a = math.sqrt(1.4 * 287.05 * 288.15)
+    ls = math.pi * math.sqrt(mj**2 - 1) * dj / jn_zeros(0, 1)[0]
+    uc = 0.7 * uj
+    powell = next(p for p in r.predictions if p.model.startswith("Powell"))
+    assert math.isclose(powell.fundamental_hz, uc / (ls * (1 + uc / a)), rel_tol=1e-9)
+    assert math.isclose(r.jet.ambient_sound_speed_m_per_s, a, rel_tol=1e-12)
+
+
+def test_shock_noise_peak_beyond_strouhal_10_is_unset_and_flagged(stubs):
+    """Near 1 - Mc cos psi -> 0 the formula's peak runs off to huge Strouhal numbers: the server
+    leaves those unset with beyond_strouhal_limit (limit 10, stated in the proto)."""
+    cells, _, tones, stub = stubs
+    tj = 288.15 / (1 + 0.2 * 1.6**2)
+    uj = 1.6 * math.sqrt(1.4 * 287.05 * tj)
+    a = math.sqrt(1.4 * 287.05 * 288.15)
+    angles = [0.0, 5.0, 10.0, 20.0, 40.0, 90.0]
+    r = stub.PredictShockNoise(
+        tones.PredictShockNoiseRequest(
+            jet=direct(cells, 1.6, 0.03),
+            convection=tones.Convection(convection_speed_m_per_s=0.995 * a),
+            observer_angles_deg=angles,
+        )
+    )
+    ls = math.pi * math.sqrt(1.6**2 - 1) * 0.03 / jn_zeros(0, 1)[0]
+    for p in r.peaks:
+        f = 0.995 * a / (ls * (1 - 0.995 * math.cos(math.radians(p.observer_angle_deg))))
+        st = f * 0.03 / uj
+        if st > 10:
+            assert p.beyond_strouhal_limit and not p.HasField("peak_frequency_hz"), p
+        else:
+            assert not p.beyond_strouhal_limit and math.isclose(p.peak_frequency_hz, f, rel_tol=1e-12), p
+    assert any(p.beyond_strouhal_limit for p in r.peaks) and not all(p.beyond_strouhal_limit for p in r.peaks)

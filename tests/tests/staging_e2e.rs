@@ -183,3 +183,45 @@ async fn degenerate_input_is_refused_with_the_limit_named() {
     assert!(e.message().contains("100000"));
     server.stop().await;
 }
+
+#[tokio::test]
+async fn npr_sweep_of_another_gas_uses_that_gas_critical_ratio() {
+    // Regression: the NPR lower bound used air's critical ratio 1.8929 whatever the gas. For
+    // gamma 1.2 the critical ratio is (2.2/2)^(1.2/0.2) = 1.7716 (closed form), so NPR 1.8 is
+    // a supersonic jet (Mj = sqrt(10 (1.8^(1/6) - 1)) = 1.0147) and must be accepted. Points
+    // follow Powell's loop, n = 1, N = 4, Uc = 0.65 Uj, with the closed forms of Tam & Tanna
+    // 1982 and Prandtl-Pack spacing evaluated here.
+    let server = TestServer::start().await;
+    let mut c = StagingServiceClient::new(server.channel().await);
+    let (g, r_gas, t0, d) = (1.2f64, 287.05, 288.15, 0.0254);
+    let a = (1.4f64 * 287.05 * 288.15).sqrt();
+    let j01 = 2.404_825_557_695_773;
+    let points: Vec<_> = (0..25)
+        .map(|k| {
+            let npr = 1.8 + 0.05 * f64::from(k);
+            let mj = (2.0 / (g - 1.0) * (npr.powf((g - 1.0) / g) - 1.0)).sqrt();
+            let tj = t0 / (1.0 + 0.5 * (g - 1.0) * mj * mj);
+            let uj = mj * (g * r_gas * tj).sqrt();
+            let dj = d
+                * ((1.0 + 0.5 * (g - 1.0) * mj * mj) / (1.0 + 0.5 * (g - 1.0)))
+                    .powf((g + 1.0) / (4.0 * (g - 1.0)))
+                / mj.sqrt();
+            let ls = std::f64::consts::PI / j01 * (mj * mj - 1.0).sqrt() * dj;
+            tone(npr, 1.0 / (4.0 * ls * (1.0 / (0.65 * uj) + 1.0 / a)))
+        })
+        .collect();
+    let mut jet = jet();
+    jet.gas = Some(pb::Gas { gamma: Some(g), gas_constant_j_per_kg_k: Some(r_gas) });
+    let r = c
+        .fit_stages(pb::FitStagesRequest {
+            control: pb::ControlVariable::NozzlePressureRatio as i32,
+            points,
+            jet: Some(jet),
+            options: Some(pb::FitOptions { source_cells: Some(4), ..Default::default() }),
+        })
+        .await
+        .expect("gamma 1.2 at NPR 1.8 is supersonic")
+        .into_inner();
+    assert_eq!(r.points.len(), 25);
+    server.stop().await;
+}

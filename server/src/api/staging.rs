@@ -137,9 +137,9 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
             let range = match kind {
                 Some(SweepKind::Reflector) => Some(REFLECTOR_X),
                 Some(SweepKind::Mach) => Some(MACH_X),
-                Some(SweepKind::Npr) => {
-                    Some(Bounds::open_closed(Gas::AIR.critical_pressure_ratio(), jet::NPR.max, ""))
-                }
+                // The gas's own critical ratio is applied per point below, with the jet physics
+                // (a gas other than air has another one).
+                Some(SweepKind::Npr) => Some(Bounds::open_closed(jet::NPR.min, jet::NPR.max, "")),
                 _ => None,
             };
             if let Some(b) = range.filter(|b| !b.contains(p.x)) {
@@ -217,7 +217,7 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
                     }
                     Err(e) => return Err(e),
                     Ok(spec) => {
-                        a_amb = spec.gas.sound_speed(spec.op.ambient_temperature_k());
+                        a_amb = spec.op.ambient_gas().sound_speed(spec.op.ambient_temperature_k());
                         defaults.0.extend(spec.defaults.0.iter().cloned());
                         if needs_jet && check.is_clean() {
                             let mut ph = Vec::with_capacity(pts.len());

@@ -966,6 +966,123 @@ mod tests {
     }
 
     #[test]
+    fn ambient_sound_speed_is_that_of_the_ambient_gas() {
+        // a = sqrt(g R T) of the surroundings (dry air 1.4, 287.05 J/(kg K)) whatever the jet
+        // gas: 340.2923 m/s at 288.15 K (closed form); helium outside gives 998.76 m/s.
+        let helium = Gas::new(5.0 / 3.0, 2077.1).unwrap();
+        let n = Nozzle::round_convergent(0.0254).unwrap();
+        let s = jet_state(&helium, &n, &op(4.0));
+        assert!(rel(s.a_amb_m_s, (1.4f64 * 287.05 * 288.15).sqrt()) < 1e-14);
+        assert!(rel(s.aj_m_s, (5.0 / 3.0 * 2077.1 * s.tj_k).sqrt()) < 1e-14);
+        let s2 = jet_state(&helium, &n, &op(4.0).with_ambient_gas(helium));
+        assert!(rel(s2.a_amb_m_s, 998.762_872_257_474_3) < 1e-12);
+    }
+
+    #[test]
+    fn over_expanded_cd_jet_below_the_critical_ratio_is_not_a_supersonic_jet() {
+        // Md 1.5: design NPR 3.6710, exit shock at 3.6710 / 2.4583 = 1.4934 (NACA 1135 tables,
+        // closed form); at NPR 1.6 the exit flow is supersonic (Me = Md) yet Mj < 1 because
+        // 1.6 < 1.8929.
+        let air = Gas::AIR;
+        let n = Nozzle::round_cd(0.05, 1.5).unwrap();
+        let s = jet_state(&air, &n, &op(1.6));
+        assert_eq!(s.regime, Regime::OverExpanded);
+        assert!(s.exit_supersonic && !s.supersonic && !s.isentropic_expansion);
+        assert!(s.mj < 1.0 && (s.exit_mach - 1.5).abs() < 1e-15);
+        // pe/pa = 1.6 x 0.272403 = 0.43584 (NACA 1135: p/p0 at M 1.5 = 0.27240).
+        assert!((s.exit_to_ambient_pressure_ratio() - 1.6 * 0.272_403).abs() < 1e-5);
+        let e = ExpandedJet::from_state(&s).unwrap_err();
+        let msg = e.to_string();
+        assert!(msg.contains("supersonic (Me = 1.5000)") && msg.contains("does not apply"), "{msg}");
+        assert!(s.notes().iter().any(|n| n.contains("below the critical pressure ratio")));
+        // A shock in the nozzle: the isentropic Mj > 1 is a reference value only.
+        let md3 = jet_state(&air, &Nozzle::round_cd(0.05, 3.0).unwrap(), &op(2.5));
+        assert!(md3.mj > 1.0 && !md3.isentropic_expansion && !md3.exit_supersonic);
+        // A convergent nozzle below critical is a real subsonic jet at ambient pressure.
+        let sub = jet_state(&air, &Nozzle::round_convergent(0.02).unwrap(), &op(1.5));
+        assert!(sub.isentropic_expansion && !sub.supersonic);
+    }
+
+    #[test]
+    fn over_expanded_mach_disk_follows_the_detachment_criterion() {
+        // Threshold NPR where the lip-shock deflection equals the largest deflection of a
+        // reflected shock behind it, found with pygasflow (PyPI) shockwave functions
+        // (get_upstream_normal_mach_from_ratio, theta_from_mach_beta, oblique_mach_downstream,
+        // max_theta_from_mach) and scipy.optimize.brentq: Md 1.5 -> 2.711022, Md 2 -> 3.960484,
+        // Md 3 -> 8.991880. Below it a Mach disk is expected, above it (still over-expanded)
+        // regular reflection.
+        let air = Gas::AIR;
+        for (md, threshold) in [(1.5, 2.711_022_483_7), (2.0, 3.960_483_702_8), (3.0, 8.991_880_122_2)] {
+            let n = Nozzle::round_cd(0.05, md).unwrap();
+            let below = jet_state(&air, &n, &op(threshold * 0.995));
+            let above = jet_state(&air, &n, &op(threshold * 1.005));
+            assert_eq!(below.regime, Regime::OverExpanded);
+            assert_eq!(above.regime, Regime::OverExpanded);
+            assert!(
+                matches!(below.mach_disk, MachDisk::DetachedReflection { .. }),
+                "Md {md}: {:?}",
+                below.mach_disk
+            );
+            assert_eq!(above.mach_disk, MachDisk::NotExpected, "Md {md}");
+            // The switch sits at the published threshold to 1e-6 (bisection on the flag).
+            let (mut lo, mut hi) = (threshold * 0.995, threshold * 1.005);
+            for _ in 0..60 {
+                let mid = 0.5 * (lo + hi);
+                if jet_state(&air, &n, &op(mid)).mach_disk_expected() {
+                    lo = mid;
+                } else {
+                    hi = mid;
+                }
+            }
+            assert!(rel(lo, threshold) < 1e-6, "Md {md}: {lo}");
+        }
+        // Under-expanded side unchanged: convergent nozzle above pe/pa = 2 (common practice).
+        let conv = Nozzle::round_convergent(0.0254).unwrap();
+        assert_eq!(jet_state(&air, &conv, &op(4.0)).mach_disk, MachDisk::StrongUnderExpansion);
+    }
+
+    #[test]
+    fn ideal_expansion_uses_a_gauge_tolerance() {
+        // Md 1.5 has design NPR 3.671031 (NACA 1135, 1/0.27240); a lab writing 3.671 (four
+        // significant figures, pe/pa - 1 = -8.3e-6) means ideally expanded.
+        let air = Gas::AIR;
+        let n = Nozzle::round_cd(0.05, 1.5).unwrap();
+        let s = jet_state(&air, &n, &op(3.671));
+        assert_eq!(s.regime, Regime::IdeallyExpanded);
+        assert!((s.exit_to_ambient_pressure_ratio() - 3.671 / 3.671_030_627).abs() < 1e-8);
+        // 1 % off design is outside the default 0.5 %; a zero tolerance classes 3.671 too.
+        assert_eq!(jet_state(&air, &n, &op(3.671 * 1.01)).regime, Regime::UnderExpanded);
+        let strict = op(3.671).with_ideal_tolerance(0.0).unwrap();
+        assert_eq!(jet_state(&air, &n, &strict).regime, Regime::OverExpanded);
+        assert_eq!(op(3.0).with_ideal_tolerance(0.5).unwrap_err().quantity, "ideal_expansion_tolerance");
+    }
+
+    #[test]
+    fn perfect_gas_cautions_at_temperature_extremes() {
+        // Limits: air's components condense near 77-90 K (N2 and O2 boiling points at 1 atm,
+        // CRC Handbook; memory); calorically imperfect above about 1000 K, O2 dissociation
+        // from about 2000 K (Anderson; memory).
+        let air = Gas::AIR;
+        let n = Nozzle::round_convergent(0.0254).unwrap();
+        let at = |t0: f64| {
+            jet_state(&air, &n, &OperatingPoint::new(4.0, 101_325.0, t0, 288.15).unwrap())
+                .perfect_gas_cautions()
+        };
+        // 60 K reservoir at NPR 4: Tj = 60 / (1 + 0.2 x 1.5588^2) = 40.4 K.
+        let cold = at(60.0);
+        assert!(cold.len() == 1 && cold[0].contains("condense"), "{cold:?}");
+        // 120 K reservoir: Tj = 80.9 K < 90 K, the jet's static temperature is named.
+        assert!(at(120.0)[0].contains("static temperature"));
+        assert!(at(288.15).is_empty() && at(900.0).is_empty());
+        assert!(at(1500.0)[0].contains("specific heats"));
+        assert!(at(2500.0)[0].contains("dissociate"));
+        // Not for a gas that is not air-like.
+        let he = Gas::new(5.0 / 3.0, 2077.1).unwrap();
+        let s = jet_state(&he, &n, &OperatingPoint::new(4.0, 101_325.0, 60.0, 288.15).unwrap());
+        assert!(s.perfect_gas_cautions().is_empty());
+    }
+
+    #[test]
     fn area_ratio_design_matches_design_mach() {
         let air = Gas::AIR;
         let a = Nozzle::round_cd_from_area_ratio(0.05, 1.6875, &air).unwrap();

@@ -538,6 +538,79 @@ mod tests {
         assert!(shock_noise_peak(1.5 * jet.a_amb_m_s, jet.a_amb_m_s, ls, 10.0).is_none());
     }
 
+    /// A round convergent nozzle of 25.4 mm at NPR 4 with jet gas `gas` and reservoir
+    /// temperature `t0`, issuing into dry air at 288.15 K.
+    fn foreign_gas_jet(gas: Gas, t0: f64) -> ExpandedJet {
+        let s = jet_state(
+            &gas,
+            &Nozzle::round_convergent(0.0254).unwrap(),
+            &OperatingPoint::new(4.0, 101_325.0, t0, 288.15).unwrap(),
+        );
+        ExpandedJet::from_state(&s).unwrap()
+    }
+
+    #[test]
+    fn helium_and_hot_jets_use_the_sound_speed_of_the_surrounding_air() {
+        // Hand computation with the closed forms of Tam & Tanna 1982 (Mj, Tj, Uj, Dj), Prandtl-
+        // Pack spacing pi sqrt(Mj^2-1) Dj / j0,1 and Powell's f = Uc / (Ls (1 + Uc/a_air)),
+        // Uc = 0.7 Uj, a_air = sqrt(1.4 x 287.05 x 288.15) = 340.2923 m/s, evaluated in Python
+        // float64 with scipy.special.jn_zeros (an implementation independent of this crate).
+        // Helium (gamma 5/3, R 2077.1 J/(kg K)), T0 288.15 K: Uj 1128.6252 m/s, Powell
+        // 6060.2702 Hz (with helium's own sound speed outside it would be 11239.46 Hz), Tam,
+        // Seiner & Yu with Mc = 0.7 Uj / a_air: 7577.6588 Hz.
+        // Combustion-like gas (gamma 1.3, R 287.05), T0 700 K: Powell 4361.1894 Hz (4266.67
+        // Hz with the jet gas outside), Tam 5453.1570 Hz.
+        let cases = [
+            (
+                Gas::new(5.0 / 3.0, 2077.1).unwrap(),
+                288.15,
+                1128.625_232_401_897_4,
+                6060.270_226_709_247,
+                7577.658_799_163_793,
+            ),
+            (
+                Gas::new(1.3, 287.05).unwrap(),
+                700.0,
+                690.496_530_111_167,
+                4361.189_392_630_863,
+                5453.157_027_592_489,
+            ),
+        ];
+        for (gas, t0, uj, powell, tam) in cases {
+            let jet = foreign_gas_jet(gas, t0);
+            assert!(rel(jet.a_amb_m_s, 340.292_286_865_277_05) < 1e-12);
+            assert!(rel(jet.uj_m_s, uj) < 1e-12, "gamma {}", gas.gamma());
+            let ls = cells::spacing(&jet, 1.0);
+            let f = powell_fundamental(0.7 * jet.uj_m_s, jet.a_amb_m_s, ls);
+            assert!(rel(f, powell) < 1e-10, "gamma {}: {f}", gas.gamma());
+            let t = tam_1986_frequency(&jet, 0.67).unwrap();
+            assert!(rel(t, tam) < 1e-10, "gamma {}: {t}", gas.gamma());
+        }
+    }
+
+    #[test]
+    fn shock_noise_peaks_beyond_strouhal_10_are_left_unset() {
+        // f_p = Uc / (Ls (1 - Mc cos psi)) (Harper-Bourne & Fisher 1973): with Mc = 0.999 at
+        // psi = 0 the denominator is 1e-3 and the Strouhal number is in the hundreds; at
+        // 180 deg it is the screech value (about 0.3-0.6).
+        let jet = round_jet(4.0, 288.15);
+        let c = cells::cells(&jet, &cells::CellOptions::default());
+        let conv = Convection::speed(0.999 * jet.a_amb_m_s).unwrap();
+        let r = shock_noise_peaks(&jet, &c, conv, &[0.0, 60.0, 180.0]);
+        assert_eq!(r.peaks.len(), 3);
+        let PeakFrequency::BeyondLimit(st0) = r.peaks[0].peak else { panic!("{:?}", r.peaks[0]) };
+        assert!(st0 > SHOCK_NOISE_MAX_STROUHAL);
+        let PeakFrequency::Peak { strouhal, frequency_hz } = r.peaks[2].peak else { panic!() };
+        assert!((0.2..0.7).contains(&strouhal), "{strouhal}");
+        let ls = c.modes[0].spacing_m;
+        assert!(rel(frequency_hz, conv.uc(&jet) / (ls * 1.999)) < 1e-12);
+        assert!(matches!(r.peaks[1].peak, PeakFrequency::Peak { .. }));
+        assert_eq!((r.beyond_limit, r.mach_wave), (1, 0));
+        // Supersonic convection ahead of the source: Mach-wave radiation, counted apart.
+        let fast = shock_noise_peaks(&jet, &c, Convection::speed(1.5 * jet.a_amb_m_s).unwrap(), &[10.0]);
+        assert_eq!((fast.beyond_limit, fast.mach_wave), (0, 1));
+    }
+
     #[test]
     fn zero_loop_is_rejected() {
         let jet = round_jet(3.0, 288.15);
