@@ -64,7 +64,7 @@ async fn helium_jet_powell_frequency_uses_the_surrounding_air() {
         .unwrap()
         .into_inner();
     let powell = &r.predictions[0];
-    assert!(rel(powell.fundamental_hz, 6060.270_226_709_247) < 1e-9, "{}", powell.fundamental_hz);
+    assert!(rel(powell.fundamental_hz, 6_060.270_226_709_247) < 1e-9, "{}", powell.fundamental_hz);
     assert!(rel(r.jet.as_ref().unwrap().ambient_sound_speed_m_per_s, 340.292_286_865_277_05) < 1e-12);
     let prov = r.provenance.unwrap();
     assert!(
