@@ -6,7 +6,10 @@ use super::provenance::{provenance, Defaults};
 use crate::dsp::bands::{band_levels, BandLevels};
 use crate::dsp::samples::{ChannelView, DecodeError, Format, Layout, Recording};
 use crate::dsp::tones::{find_tones, ToneConfig, ToneSet};
-use crate::dsp::welch::{Detrend, Psd, WelchAccumulator, WelchConfig, WelchError, MAX_SEGMENT, MIN_SEGMENT};
+use crate::dsp::welch::{
+    default_segment, segment_for_resolution, Detrend, Psd, WelchAccumulator, WelchConfig, WelchError,
+    MAX_SEGMENT, MIN_SEGMENT,
+};
 use crate::dsp::window::Window;
 use crate::dsp::{spl_db, CAUTION_LEVEL_DB};
 use crate::physics::bounds::Bounds;
@@ -297,21 +300,20 @@ fn welch_config(
         Some(Segment::ResolutionHz(r)) => {
             match check.range("welch", Bounds::open_closed(0.0, fs, "Hz").check("resolution_hz", r)) {
                 None => None,
-                Some(r) => {
-                    let n = ((fs / r).ceil() as usize).next_power_of_two().max(MIN_SEGMENT);
-                    if n > MAX_SEGMENT || n > samples {
+                Some(r) => match segment_for_resolution(fs, r) {
+                    Some(n) if n <= samples => Some(n),
+                    n => {
+                        let need = n.map_or(format!("more than {MAX_SEGMENT}"), |n| n.to_string());
                         check.other(
                             "welch.resolution_hz",
                             format!(
-                                "welch.resolution_hz = {r} needs segments of {n} samples, outside the \
-                                 allowed range {span}"
+                                "welch.resolution_hz = {r} needs segments of {need} samples, outside \
+                                 the allowed range {span}"
                             ),
                         );
                         None
-                    } else {
-                        Some(n)
                     }
-                }
+                },
             }
         }
         None => {
@@ -324,9 +326,7 @@ fn welch_config(
                 );
                 None
             } else {
-                let want = ((fs / 10.0).ceil() as usize).next_power_of_two();
-                let cap = prev_power_of_two((samples / 4).max(MIN_SEGMENT));
-                let n = want.min(cap).clamp(MIN_SEGMENT, MAX_SEGMENT);
+                let n = default_segment(fs, samples);
                 defaults.note(
                     "welch.segment_length",
                     &n.to_string(),
@@ -349,14 +349,6 @@ fn welch_config(
             Some(WelchConfig { window, nperseg, noverlap, detrend })
         }
         _ => None,
-    }
-}
-
-fn prev_power_of_two(n: usize) -> usize {
-    if n.is_power_of_two() {
-        n
-    } else {
-        n.next_power_of_two() / 2
     }
 }
 

@@ -224,7 +224,7 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
                             let mut bad = Vec::new();
                             for (i, p) in pts.iter().enumerate() {
                                 let npr = if kind == Some(SweepKind::Mach) {
-                                    1.0 / spec.gas.pressure_ratio(p.x)
+                                    spec.gas.npr_for_mach(p.x)
                                 } else {
                                     p.x
                                 };

@@ -6,10 +6,12 @@ use super::jet_input::{
     cell_options, convection, convert_jet, jet_summary, loop_spec, resolve_jet, ResolvedJet,
 };
 use super::provenance::{provenance, Defaults};
-use crate::physics::cells::{self, CellOptions, Cells};
-use crate::physics::jet::{jet_state, ExpandedJet, JetState};
+use crate::physics::cells::{self, CellOptions};
+use crate::physics::jet::{ExpandedJet, JetState};
 use crate::physics::models::{self, Model};
-use crate::physics::tones::{self, Convection, LoopResult, LoopSpec};
+use crate::physics::screech::{self, Harmonic, ScreechOptions, SweepBase, SweepError};
+use crate::physics::staging::SweepKind;
+use crate::physics::tones::{self, Convection, LoopResult};
 use jetloop_proto::pb;
 
 /// Most points in one sweep.
@@ -96,36 +98,27 @@ pub fn cell_response(q: &CellQuery) -> pb::CellSpacingResponse {
     }
 }
 
-/// Validated screech options.
-#[derive(Debug, Clone)]
-pub struct ScreechSettings {
-    /// Convection.
-    pub convection: Convection,
-    /// Cell options.
-    pub cells: CellOptions,
-    /// Loop.
-    pub loop_spec: LoopSpec,
-    /// Harmonics per model.
-    pub harmonics: u32,
-}
-
 fn screech_settings(
     check: &mut Check,
     defaults: &mut Defaults,
     o: Option<pb::ScreechOptions>,
     path: &str,
-) -> Option<ScreechSettings> {
+) -> Option<ScreechOptions> {
     let pb::ScreechOptions { convection: c, cells: cl, r#loop, harmonics } = o.unwrap_or_default();
     let conv = convection(check, defaults, c, &format!("{path}.convection"));
     let cells = cell_options(check, defaults, cl, &format!("{path}.cells"), 1);
     let loop_spec = loop_spec(check, defaults, r#loop, &format!("{path}.loop"));
+    let d = screech::DEFAULT_HARMONICS;
     let harmonics = match harmonics {
-        None => 3,
+        None => {
+            defaults.note(&format!("{path}.harmonics"), &d.to_string(), "fundamental and two harmonics");
+            d
+        }
         Some(h) => {
-            check.range(path, tones::HARMONICS.check("harmonics", f64::from(h))).map_or(3, |v| v as u32)
+            check.range(path, tones::HARMONICS.check("harmonics", f64::from(h))).map_or(d, |v| v as u32)
         }
     };
-    Some(ScreechSettings { convection: conv?, cells: cells?, loop_spec, harmonics })
+    Some(ScreechOptions { convection: conv?, cells: cells?, loop_spec, harmonics })
 }
 
 /// A validated screech question.
@@ -134,7 +127,7 @@ pub struct ScreechQuery {
     /// The jet.
     pub jet: ResolvedJet,
     /// Settings.
-    pub settings: ScreechSettings,
+    pub settings: ScreechOptions,
 }
 
 impl TryFrom<pb::PredictScreechRequest> for ScreechQuery {
@@ -149,12 +142,12 @@ impl TryFrom<pb::PredictScreechRequest> for ScreechQuery {
     }
 }
 
-fn harmonics(f: f64, n: u32, jet: &ExpandedJet) -> Vec<pb::Tone> {
-    let l = jet.reference_length_m();
-    (1..=n)
-        .map(|k| {
-            let fk = f * f64::from(k);
-            pb::Tone { order: k, frequency_hz: fk, strouhal_number: fk * l / jet.uj_m_s }
+fn tone_messages(h: Vec<Harmonic>) -> Vec<pb::Tone> {
+    h.into_iter()
+        .map(|Harmonic { order, frequency_hz, strouhal }| pb::Tone {
+            order,
+            frequency_hz,
+            strouhal_number: strouhal,
         })
         .collect()
 }
@@ -170,18 +163,17 @@ fn prediction(
         model: m.name.to_string(),
         reference: m.reference.to_string(),
         fundamental_hz: f,
-        strouhal_number: f * jet.reference_length_m() / jet.uj_m_s,
-        harmonics: harmonics(f, n, jet),
+        strouhal_number: tones::strouhal(f, jet),
+        harmonics: tone_messages(screech::harmonics(f, n, jet)),
         assumptions,
     }
 }
 
-fn loop_message(r: &LoopResult, jet: &ExpandedJet) -> pb::FeedbackLoopResult {
-    let l = jet.reference_length_m();
+fn loop_message(r: &LoopResult, mc: f64, jet: &ExpandedJet) -> pb::FeedbackLoopResult {
     pb::FeedbackLoopResult {
         source_distance_m: r.source_distance_m,
         convection_speed_m_per_s: r.uc_m_s,
-        convective_mach_number: r.uc_m_s / jet.a_amb_m_s,
+        convective_mach_number: mc,
         segments: r
             .segments
             .iter()
@@ -194,16 +186,7 @@ fn loop_message(r: &LoopResult, jet: &ExpandedJet) -> pb::FeedbackLoopResult {
             .collect(),
         fixed_delay_s: r.fixed_delay_s,
         loop_time_s: r.loop_time_s,
-        orders: r
-            .frequencies_hz
-            .iter()
-            .enumerate()
-            .map(|(i, f)| pb::Tone {
-                order: i as u32 + 1,
-                frequency_hz: *f,
-                strouhal_number: f * l / jet.uj_m_s,
-            })
-            .collect(),
+        orders: tone_messages(screech::loop_orders(r, jet)),
     }
 }
 
@@ -214,28 +197,6 @@ fn zero_loop(path: &str) -> ApiError {
     }])
 }
 
-/// Every screech model for one jet.
-struct ScreechResult {
-    cells: Cells,
-    powell: f64,
-    tam: Option<f64>,
-    feedback: LoopResult,
-}
-
-fn screech(
-    jet: &ExpandedJet,
-    s: &ScreechSettings,
-    loop_spec: &LoopSpec,
-) -> Result<ScreechResult, tones::ZeroLoopTime> {
-    let cells = cells::cells(jet, &s.cells);
-    let ls = cells.spacing_m();
-    let uc = s.convection.uc(jet);
-    let powell = tones::powell_fundamental(uc, jet.a_amb_m_s, ls);
-    let tam = tones::tam_1986_frequency(jet, tones::TAM_1986_CONSTANT);
-    let feedback = tones::feedback_loop(jet, ls, s.convection, loop_spec)?;
-    Ok(ScreechResult { cells, powell, tam, feedback })
-}
-
 /// Computes and builds the PredictScreech response.
 ///
 /// # Errors
@@ -243,12 +204,11 @@ fn screech(
 pub fn screech_response(q: &ScreechQuery) -> Result<pb::PredictScreechResponse, ApiError> {
     let jet = &q.jet.jet;
     let s = &q.settings;
-    let r = screech(jet, s, &s.loop_spec).map_err(|_| zero_loop("options.loop"))?;
-    let uc = s.convection.uc(jet);
-    let mc = uc / jet.a_amb_m_s;
+    let r = screech::predict(jet, s).map_err(|_| zero_loop("options.loop"))?;
+    let (uc, mc) = (r.uc_m_s, r.convective_mach);
     let mut predictions = vec![prediction(
         &models::POWELL_FUNDAMENTAL,
-        r.powell,
+        r.powell_hz,
         s.harmonics,
         jet,
         vec![
@@ -263,7 +223,7 @@ pub fn screech_response(q: &ScreechQuery) -> Result<pb::PredictScreechResponse, 
     let mut used = vec![models::POWELL_FUNDAMENTAL, models::POWELL_LOOP];
     used.extend(cell_models(jet));
     let mut notes = notes(&q.jet);
-    match r.tam {
+    match r.tam_1986_hz {
         Some(f) => {
             used.push(models::TAM_1986);
             predictions.push(prediction(
@@ -290,7 +250,7 @@ pub fn screech_response(q: &ScreechQuery) -> Result<pb::PredictScreechResponse, 
         spacing_m: r.cells.spacing_m(),
         spacing_factor: r.cells.factor,
         predictions,
-        feedback_loop: Some(loop_message(&r.feedback, jet)),
+        feedback_loop: Some(loop_message(&r.feedback, mc, jet)),
         provenance: Some(provenance(&used, &q.jet.defaults, notes)),
     })
 }
@@ -393,24 +353,13 @@ pub fn shock_noise_response(q: &ShockNoiseQuery) -> pb::PredictShockNoiseRespons
     }
 }
 
-/// What a sweep varies.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum SweepKind {
-    /// NPR.
-    Npr,
-    /// Mj.
-    Mach,
-    /// Reflector distance.
-    Reflector,
-}
-
 /// A validated sweep.
 #[derive(Debug, Clone)]
 pub struct SweepQuery {
     jet: ResolvedJet,
     kind: SweepKind,
     values: Vec<f64>,
-    settings: ScreechSettings,
+    settings: ScreechOptions,
 }
 
 impl TryFrom<pb::SweepScreechRequest> for SweepQuery {
@@ -498,13 +447,7 @@ impl TryFrom<pb::SweepScreechRequest> for SweepQuery {
             (false, _) => "range".to_string(),
         };
         if let Some(kind) = kind {
-            let (bounds, name) = match kind {
-                SweepKind::Npr => (crate::physics::jet::NPR, "nozzle pressure ratio"),
-                SweepKind::Mach => {
-                    (crate::physics::bounds::Bounds::closed(0.0, 20.0, ""), "fully expanded Mach number")
-                }
-                SweepKind::Reflector => (tones::REFLECTOR_DISTANCE, "reflector distance"),
-            };
+            let (bounds, name) = screech::sweep_bounds(kind);
             let mut bad = 0;
             for (i, v) in values.iter().enumerate() {
                 if !bounds.contains(*v) {
@@ -523,7 +466,7 @@ impl TryFrom<pb::SweepScreechRequest> for SweepQuery {
             if kind == SweepKind::Mach {
                 if let Some(spec) = &jet.spec {
                     for (i, v) in values.iter().enumerate().filter(|(_, v)| bounds.contains(**v)) {
-                        let npr = 1.0 / spec.gas.pressure_ratio(*v);
+                        let npr = spec.gas.npr_for_mach(*v);
                         if !crate::physics::jet::NPR.contains(npr) {
                             check.other(
                                 value_path(i),
@@ -546,80 +489,60 @@ impl TryFrom<pb::SweepScreechRequest> for SweepQuery {
     }
 }
 
-/// Runs the sweep and builds the response.
+/// Runs the sweep ([`screech::sweep`]) and builds the response.
 ///
 /// # Errors
 /// [`ApiError::Invalid`] naming `options.loop` when the loop takes no time, or
-/// [`ApiError::Precondition`] for a reflector sweep of a subsonic jet.
+/// [`ApiError::Precondition`] for a reflector sweep of a jet that is not supersonic.
 pub fn sweep_response(q: &SweepQuery) -> Result<pb::SweepScreechResponse, ApiError> {
     let t = std::time::Instant::now();
-    let s = &q.settings;
-    let mut points = Vec::with_capacity(q.values.len());
-    let mut subsonic = 0usize;
-    let mut loop_spec = s.loop_spec.clone();
-    if q.kind == SweepKind::Reflector {
-        if let Some(state) = &q.jet.state {
-            if let Err(e) = ExpandedJet::from_state(state) {
-                return Err(ApiError::not_supersonic("jet.conditions", &e));
+    let base = match &q.jet.spec {
+        Some(spec) => SweepBase::Conditions { gas: spec.gas, nozzle: spec.nozzle, op: spec.op },
+        None => SweepBase::Jet(q.jet.jet),
+    };
+    let sweep = screech::sweep(&base, q.kind, &q.values, &q.settings).map_err(|e| match e {
+        SweepError::ZeroLoop(_) => zero_loop("options.loop"),
+        SweepError::NotSupersonic(e) => ApiError::not_supersonic("jet.conditions", &e),
+        // Values are checked against their bounds, and the kind against the jet, in the
+        // conversion: these name the field all the same.
+        SweepError::Value { index, source } => ApiError::Invalid(vec![super::error::FieldViolation {
+            field: "values".into(),
+            description: format!("values: sweep value {index}: {source}"),
+        }]),
+        SweepError::NeedsConditions(_) => ApiError::Invalid(vec![super::error::FieldViolation {
+            field: "jet.conditions".into(),
+            description: e.to_string(),
+        }]),
+    })?;
+    let points = sweep
+        .points
+        .into_iter()
+        .map(|p| {
+            let mut m = pb::SweepPoint {
+                value: p.value,
+                nozzle_pressure_ratio: p.npr,
+                fully_expanded_mach_number: p.mj,
+                regime: p.state.as_ref().map_or(pb::ExpansionRegime::Unspecified, |st| regime(st.regime))
+                    as i32,
+                supersonic: p.prediction.is_some(),
+                fully_expanded_velocity_m_per_s: p.uj_m_s,
+                reference_length_m: p.reference_length_m,
+                ..Default::default()
+            };
+            if let Some(r) = p.prediction {
+                m.spacing_m = Some(r.cells.spacing_m());
+                m.powell_fundamental_hz = Some(r.powell_hz);
+                m.tam_1986_hz = r.tam_1986_hz;
+                m.loop_frequencies_hz = r.feedback.frequencies_hz;
             }
-        }
-    }
-    for &v in &q.values {
-        let (state, jet) = match (q.kind, &q.jet.spec) {
-            (SweepKind::Npr | SweepKind::Mach, Some(spec)) => {
-                let npr = if q.kind == SweepKind::Npr { v } else { 1.0 / spec.gas.pressure_ratio(v) };
-                // Every value was checked against the NPR bounds in the conversion.
-                let op = spec.op.with_npr(npr).map_err(|e| {
-                    ApiError::Invalid(vec![super::error::FieldViolation {
-                        field: "values".into(),
-                        description: format!("sweep value {v} needs {e}"),
-                    }])
-                })?;
-                let st = jet_state(&spec.gas, &spec.nozzle, &op);
-                let j = ExpandedJet::from_state(&st).ok();
-                (Some(st), j)
-            }
-            _ => {
-                loop_spec.reflector_m = Some(v);
-                (q.jet.state.clone(), Some(q.jet.jet))
-            }
-        };
-        let (npr, mj, reg, uj, lref) = match &state {
-            Some(st) => (st.npr, st.mj, regime(st.regime) as i32, st.uj_m_s, st.size.reference_length_m()),
-            None => (
-                1.0 / q.jet.jet.gas.pressure_ratio(q.jet.jet.mj),
-                q.jet.jet.mj,
-                pb::ExpansionRegime::Unspecified as i32,
-                q.jet.jet.uj_m_s,
-                q.jet.jet.reference_length_m(),
-            ),
-        };
-        let mut p = pb::SweepPoint {
-            value: v,
-            nozzle_pressure_ratio: npr,
-            fully_expanded_mach_number: mj,
-            regime: reg,
-            supersonic: jet.is_some(),
-            fully_expanded_velocity_m_per_s: uj,
-            reference_length_m: lref,
-            ..Default::default()
-        };
-        match jet {
-            Some(j) => {
-                let r = screech(&j, s, &loop_spec).map_err(|_| zero_loop("options.loop"))?;
-                p.spacing_m = Some(r.cells.spacing_m());
-                p.powell_fundamental_hz = Some(r.powell);
-                p.tam_1986_hz = r.tam;
-                p.loop_frequencies_hz = r.feedback.frequencies_hz;
-            }
-            None => subsonic += 1,
-        }
-        points.push(p);
-    }
+            m
+        })
+        .collect();
     let mut notes = vec![PRESSURE_CAUTION.to_string()];
-    if subsonic > 0 {
+    if sweep.not_supersonic > 0 {
         notes.push(format!(
-            "{subsonic} of {} points are not supersonic jets (no shock cells): they are kept with supersonic = false and no frequencies.",
+            "{} of {} points are not supersonic jets (no shock cells): they are kept with supersonic = false and no frequencies.",
+            sweep.not_supersonic,
             q.values.len()
         ));
     }
@@ -633,6 +556,7 @@ pub fn sweep_response(q: &SweepQuery) -> Result<pb::SweepScreechResponse, ApiErr
             SweepKind::Npr => pb::SweepVariable::NozzlePressureRatio,
             SweepKind::Mach => pb::SweepVariable::FullyExpandedMachNumber,
             SweepKind::Reflector => pb::SweepVariable::ReflectorDistanceM,
+            SweepKind::Plain => pb::SweepVariable::Unspecified,
         } as i32,
         points,
         compute_time_s: t.elapsed().as_secs_f64(),

@@ -132,6 +132,29 @@ pub enum WelchError {
     },
 }
 
+/// Segment length for a bin width of at most `resolution_hz` at sample rate `fs` (Hz): the
+/// smallest power of two of at least `fs / resolution_hz` samples, and at least
+/// [`MIN_SEGMENT`]. `None` when that exceeds [`MAX_SEGMENT`] (also for a resolution so fine
+/// that the length does not fit a machine word).
+pub fn segment_for_resolution(fs: f64, resolution_hz: f64) -> Option<usize> {
+    let want = (fs / resolution_hz).ceil();
+    // Compared as a float first: a huge ratio must not saturate or overflow an integer.
+    if want.is_nan() || want > MAX_SEGMENT as f64 {
+        return None;
+    }
+    Some((want.max(1.0) as usize).next_power_of_two().max(MIN_SEGMENT))
+}
+
+/// Default segment length for `samples` per channel at sample rate `fs` (Hz): the power of
+/// two giving at most 10 Hz resolution, but no longer than a quarter of the data (so at least
+/// four segments' worth), within [`MIN_SEGMENT`, `MAX_SEGMENT`].
+pub fn default_segment(fs: f64, samples: usize) -> usize {
+    let want = segment_for_resolution(fs, 10.0).unwrap_or(MAX_SEGMENT);
+    let quarter = (samples / 4).max(MIN_SEGMENT);
+    let cap = if quarter.is_power_of_two() { quarter } else { quarter.next_power_of_two() / 2 };
+    want.min(cap).clamp(MIN_SEGMENT, MAX_SEGMENT)
+}
+
 fn plan(n: usize) -> Arc<dyn RealToComplex<f64>> {
     static PLANNER: OnceLock<Mutex<RealFftPlanner<f64>>> = OnceLock::new();
     let planner = PLANNER.get_or_init(|| Mutex::new(RealFftPlanner::new()));
@@ -449,5 +472,22 @@ pub(crate) mod tests {
         assert_eq!(welch(&x, 1.0, cfg(8)).unwrap_err(), WelchError::SegmentLength(8));
         let bad = WelchConfig { noverlap: 32, ..cfg(32) };
         assert!(matches!(welch(&x, 1.0, bad), Err(WelchError::Overlap { .. })));
+    }
+
+    #[test]
+    fn segment_for_a_tiny_resolution_is_refused_not_wrapped() {
+        // Regression: fs / resolution beyond usize overflowed next_power_of_two (a panic in
+        // debug builds, 16-sample segments in release).
+        assert_eq!(segment_for_resolution(204_800.0, 1e-300), None);
+        assert_eq!(segment_for_resolution(204_800.0, f64::MIN_POSITIVE), None);
+        assert_eq!(segment_for_resolution(204_800.0, 0.1), None); // 2^21 > 2^20
+                                                                  // 204800 / 25 = 8192 exactly: a power of two already (bin width 25 Hz).
+        assert_eq!(segment_for_resolution(204_800.0, 25.0), Some(8192));
+        assert_eq!(segment_for_resolution(204_800.0, 24.9), Some(16384));
+        assert_eq!(segment_for_resolution(1000.0, 1000.0), Some(MIN_SEGMENT));
+        // Default: 10 Hz at 204.8 kHz wants 32768; 2^21 samples allow it; 40000 samples cap
+        // it at the power of two below 10000.
+        assert_eq!(default_segment(204_800.0, 1 << 21), 32768);
+        assert_eq!(default_segment(204_800.0, 40_000), 8192);
     }
 }

@@ -212,6 +212,13 @@ impl Gas {
         (0.5 * (self.gamma + 1.0)).powf(self.gamma / (self.gamma - 1.0))
     }
 
+    /// Nozzle pressure ratio p0/p of an isentropic expansion to Mach `m`:
+    /// (1 + (g-1)/2 M^2)^(g/(g-1)), the inverse of
+    /// [`Gas::mach_from_total_to_static_pressure`].
+    pub fn npr_for_mach(&self, m: f64) -> f64 {
+        1.0 / self.pressure_ratio(m)
+    }
+
     /// Mach number at which p0/p equals `npr` (isentropic expansion), for `npr` >= 1.
     pub fn mach_from_total_to_static_pressure(&self, npr: f64) -> f64 {
         let g = self.gamma;

@@ -585,7 +585,7 @@ pub fn jet_state(gas: &Gas, nozzle: &Nozzle, op: &OperatingPoint) -> JetState {
     let p_amb = op.ambient_pressure_pa;
     let t0 = op.total_temperature_k;
     let mj = gas.mach_from_total_to_static_pressure(npr);
-    let design_npr = 1.0 / gas.pressure_ratio(md);
+    let design_npr = gas.npr_for_mach(md);
     let nozzle_area_ratio = gas.area_ratio(md); // Ae / A*
                                                 // NPR at which the throat just chokes with a subsonic exit, and at which a normal shock
                                                 // stands in the exit plane (both equal the critical ratio for a convergent nozzle).
@@ -593,7 +593,7 @@ pub fn jet_state(gas: &Gas, nozzle: &Nozzle, op: &OperatingPoint) -> JetState {
         gas.critical_pressure_ratio()
     } else {
         let m_sub = gas.mach_from_area_ratio(nozzle_area_ratio, Branch::Subsonic).unwrap_or(1.0);
-        1.0 / gas.pressure_ratio(m_sub)
+        gas.npr_for_mach(m_sub)
     };
     let npr_exit_shock = if md == 1.0 {
         npr_choke

@@ -12,6 +12,7 @@ pub mod jet;
 pub mod lsq;
 pub mod models;
 mod roots;
+pub mod screech;
 pub mod staging;
 pub mod tones;
 

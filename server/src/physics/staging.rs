@@ -862,7 +862,7 @@ mod tests {
 
     fn physics_at_mj(mj: f64) -> PointPhysics {
         let air = Gas::AIR;
-        let npr = 1.0 / air.pressure_ratio(mj);
+        let npr = air.npr_for_mach(mj);
         let s = jet_state(
             &air,
             &Nozzle::round_convergent(0.0254).unwrap(),
