@@ -5,13 +5,12 @@ use super::error::{ApiError, Check};
 use super::gas::jet_spec;
 use super::provenance::{provenance, Defaults};
 use crate::physics::bounds::Bounds;
-use crate::physics::cells;
 use crate::physics::gas::Gas;
-use crate::physics::jet::{self, jet_state, ExpandedJet};
+use crate::physics::jet;
 use crate::physics::models;
 use crate::physics::staging::{
-    fit_stages, infer_directions, information_criteria, Direction, FitConfig, Param, Point, PointPhysics,
-    ReflectorPath, StagingResult, SweepKind,
+    compare_models, fit_stages, infer_directions, pressure_sweep_physics, Direction, FitConfig, Param, Point,
+    PointPhysics, ReflectorPath, StagingResult, SweepKind,
 };
 use jetloop_proto::pb;
 
@@ -219,31 +218,22 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
                     Ok(spec) => {
                         a_amb = spec.op.ambient_gas().sound_speed(spec.op.ambient_temperature_k());
                         defaults.0.extend(spec.defaults.0.iter().cloned());
-                        if needs_jet && check.is_clean() {
-                            let mut ph = Vec::with_capacity(pts.len());
-                            let mut bad = Vec::new();
-                            for (i, p) in pts.iter().enumerate() {
-                                let npr = if kind == Some(SweepKind::Mach) {
-                                    spec.gas.npr_for_mach(p.x)
-                                } else {
-                                    p.x
-                                };
-                                let st =
-                                    spec.op.with_npr(npr).map(|op| jet_state(&spec.gas, &spec.nozzle, &op));
-                                match st.ok().and_then(|s| ExpandedJet::from_state(&s).ok()) {
-                                    Some(j) => ph.push(PointPhysics {
-                                        ls_m: cells::spacing(&j, 1.0),
-                                        uj_m_s: j.uj_m_s,
-                                    }),
-                                    None => bad.push((
+                        if let (true, Some(kind)) = (needs_jet && check.is_clean(), kind) {
+                            let xs: Vec<f64> = pts.iter().map(|p| p.x).collect();
+                            let (ph, not_supersonic) =
+                                pressure_sweep_physics(&spec.gas, &spec.nozzle, &spec.op, kind, &xs);
+                            let bad: Vec<_> = not_supersonic
+                                .into_iter()
+                                .map(|i| {
+                                    (
                                         i,
                                         format!(
                                             "x = {}: the jet is not supersonic there (no shock cells)",
-                                            p.x
+                                            xs[i]
                                         ),
-                                    )),
-                                }
-                            }
+                                    )
+                                })
+                                .collect();
                             bad_points(&mut check, &bad);
                             physics = Some(ph);
                         }
@@ -311,19 +301,17 @@ pub fn staging_response(q: StagingQuery) -> pb::FitStagesResponse {
             smooth_rms_hz: st.smooth_rms_hz,
             ..Default::default()
         };
+        msg.rms_relative_error = st.rms_relative_error(&points);
         if let Some(fit) = &st.fit {
-            let mut sq = 0.0;
             for (k, &i) in st.points.iter().enumerate() {
                 let model = fit.model_hz[k];
                 let p = &mut out_points[i];
                 p.loop_order = Some(fit.n);
                 p.model_frequency_hz = Some(model);
                 p.residual_hz = Some(points[i].f - model);
-                sq += ((points[i].f - model) / points[i].f).powi(2);
             }
             msg.loop_order = Some(fit.n);
             msg.parameters = fit.params.iter().map(param_msg).collect();
-            msg.rms_relative_error = Some((sq / st.points.len() as f64).sqrt());
             msg.equivalent_loop_orders = fit.equivalent_orders.clone();
             msg.alias_resolution = fit.resolution.clone();
             msg.chi_square = Some(fit.chi2);
@@ -353,40 +341,17 @@ pub fn staging_response(q: StagingQuery) -> pb::FitStagesResponse {
             upper_stage: h.stages.1 as u32,
         })
         .collect();
-    let mut models_cmp = Vec::new();
-    let fits: Vec<_> = res.stages.iter().filter_map(|s| s.fit.as_ref()).collect();
-    if !fits.is_empty() {
-        // Both models are compared on the points of the stages that have a loop fit.
-        let m: usize = res.stages.iter().filter(|s| s.fit.is_some()).map(|s| s.points.len()).sum();
-        let chi2: f64 = fits.iter().map(|f| f.chi2).sum();
-        let k = fits.iter().map(|f| f.free + 1).sum::<usize>();
-        let (aic, bic) = information_criteria(chi2, k, m);
-        models_cmp.push(pb::ModelComparison {
-            model: "per-stage loops".into(),
-            parameter_count: k as u32,
-            chi_square: chi2,
-            aic,
-            bic,
-            preferred: false,
-        });
-        if let Some(sh) = &res.shared {
-            let k = sh.free + fits.len();
-            let (aic, bic) = information_criteria(sh.chi2, k, m);
-            models_cmp.push(pb::ModelComparison {
-                model: "shared loop".into(),
-                parameter_count: k as u32,
-                chi_square: sh.chi2,
-                aic,
-                bic,
-                preferred: false,
-            });
-        }
-    }
-    if let Some(best) =
-        models_cmp.iter().enumerate().min_by(|a, b| a.1.bic.total_cmp(&b.1.bic)).map(|(i, _)| i)
-    {
-        models_cmp[best].preferred = true;
-    }
+    let models_cmp: Vec<pb::ModelComparison> = compare_models(&res)
+        .into_iter()
+        .map(|m| pb::ModelComparison {
+            model: m.name.into(),
+            parameter_count: m.parameter_count as u32,
+            chi_square: m.chi2,
+            aic: m.aic,
+            bic: m.bic,
+            preferred: m.preferred,
+        })
+        .collect();
     let shared_loop = res.shared.as_ref().map(|sh| pb::SharedLoopResult {
         loop_orders: sh.orders.clone(),
         parameters: sh.params.iter().map(param_msg).collect(),
