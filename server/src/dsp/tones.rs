@@ -290,6 +290,43 @@ pub fn find_tones(psd: &Psd, cfg: &ToneConfig) -> ToneSet {
     ToneSet { floor, tones, families, combinations, estimator }
 }
 
+/// The tone nearest a predicted frequency.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PredictionMatch {
+    /// Predicted frequency, Hz.
+    pub predicted_hz: f64,
+    /// Tolerance, Hz (relative tolerance times the prediction).
+    pub tolerance_hz: f64,
+    /// Index of the nearest tone and its frequency in Hz; `None` when there are no tones.
+    pub nearest: Option<(usize, f64)>,
+}
+
+impl PredictionMatch {
+    /// Frequency of the nearest tone minus the prediction, Hz.
+    pub fn difference_hz(&self) -> Option<f64> {
+        self.nearest.map(|(_, f)| f - self.predicted_hz)
+    }
+
+    /// True when the nearest tone lies within the tolerance.
+    pub fn matched(&self) -> bool {
+        self.difference_hz().is_some_and(|d| d.abs() <= self.tolerance_hz)
+    }
+}
+
+/// Matches a predicted frequency `predicted_hz` against the tones found, within a relative
+/// tolerance `rel_tolerance` of the prediction (ties go to the first tone in frequency order).
+pub fn match_prediction(set: &ToneSet, predicted_hz: f64, rel_tolerance: f64) -> PredictionMatch {
+    let nearest = set
+        .tones
+        .iter()
+        .enumerate()
+        .min_by(|a, b| {
+            (a.1.frequency_hz - predicted_hz).abs().total_cmp(&(b.1.frequency_hz - predicted_hz).abs())
+        })
+        .map(|(i, t)| (i, t.frequency_hz));
+    PredictionMatch { predicted_hz, tolerance_hz: rel_tolerance * predicted_hz, nearest }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -1,0 +1,77 @@
+//! One-third-octave band levels: the validated question and the answer.
+
+use super::*;
+
+/// A validated band-level question.
+#[derive(Debug, Clone)]
+pub struct BandQuery {
+    samples: SampleSet,
+    welch: WelchConfig,
+    max_hz: f64,
+    defaults: Defaults,
+}
+
+impl TryFrom<pb::BandLevelsRequest> for BandQuery {
+    type Error = ApiError;
+
+    fn try_from(req: pb::BandLevelsRequest) -> Result<Self, ApiError> {
+        let pb::BandLevelsRequest { samples, welch, max_band_frequency_hz } = req;
+        let mut defaults = Defaults::default();
+        let samples = sample_set(samples, &mut defaults)?;
+        let mut check = Check::new();
+        let w = welch_config(&mut check, &mut defaults, welch, samples.fs, samples.recording.len());
+        let max_hz = match max_band_frequency_hz {
+            None => 100_000.0,
+            Some(f) => check.range("", BAND_MAX.check("max_band_frequency_hz", f)).unwrap_or(100_000.0),
+        };
+        check.finish(w.map(|welch| BandQuery { samples, welch, max_hz, defaults }))
+    }
+}
+
+pub(super) fn band_summary(b: &BandLevels) -> pb::BandSummary {
+    pb::BandSummary {
+        bands: b
+            .bands
+            .iter()
+            .map(|x| pb::OneThirdOctaveBand {
+                nominal_hz: x.nominal_hz,
+                exact_hz: x.exact_hz,
+                lower_edge_hz: x.lower_hz,
+                upper_edge_hz: x.upper_hz,
+                level_db: x.level_db,
+                a_weighted_level_db: x.a_weighted_level_db,
+                resolved: x.resolved,
+            })
+            .collect(),
+        overall_level_db: b.overall_db,
+        a_weighted_overall_db: b.a_weighted_overall_db,
+        band_span_level_db: b.band_span_db,
+        outside_span_level_db: b.outside_span_db,
+    }
+}
+
+/// Runs the band analysis and builds the response.
+///
+/// # Errors
+/// As [`tones_response`].
+pub fn bands_response(q: &BandQuery) -> Result<pb::BandLevelsResponse, ApiError> {
+    let mut out = Vec::new();
+    for c in 0..q.samples.recording.channel_count() {
+        let psd = q.samples.psd(c, q.welch)?;
+        let b = band_levels(&psd, q.max_hz);
+        let mut cautions = Vec::new();
+        if b.overall_db >= CAUTION_LEVEL_DB {
+            cautions.push(caution(b.overall_db, "The overall level"));
+        }
+        out.push(pb::ChannelBands {
+            channel: c as u32,
+            name: q.samples.names.get(c).cloned().unwrap_or_default(),
+            analysis: Some(analysis(&psd, q.samples.recording.len(), None)),
+            bands: Some(band_summary(&b)),
+            cautions,
+        });
+    }
+    let mut used = SPECTRUM_MODELS.to_vec();
+    used.extend([models::THIRD_OCTAVE, models::A_WEIGHTING]);
+    Ok(pb::BandLevelsResponse { channels: out, provenance: Some(provenance(&used, &q.defaults, Vec::new())) })
+}

@@ -1,0 +1,104 @@
+//! A block stream analysed segment by segment as its frames arrive.
+
+use super::*;
+
+/// A block stream being analysed: the validated question, the recording as it grows, and one
+/// Welch accumulator per channel that takes each segment as soon as its last frame arrives.
+#[derive(Debug)]
+pub struct ToneStream {
+    query: ToneQuery,
+    welch: Vec<WelchAccumulator>,
+    blocks: usize,
+}
+
+fn not_first(field: &str) -> ApiError {
+    ApiError::Invalid(vec![FieldViolation {
+        field: field.into(),
+        description: format!("{field} belongs in the first message of the stream only"),
+    }])
+}
+
+impl ToneStream {
+    /// Validates the first message and takes the frames it carries.
+    ///
+    /// # Errors
+    /// As for ExtractTones, with field paths under `request`; a missing `request`; values or
+    /// planar channels.
+    pub fn start(first: pb::SampleBlock) -> Result<Self, ApiError> {
+        let pb::SampleBlock { request, frames, expected_frames } = first;
+        let Some(request) = request else {
+            let mut check = Check::new();
+            check.missing("request", "the first message of a block stream carries the question");
+            return check.finish(None);
+        };
+        let mut query = tone_query(request, Some(expected_frames)).map_err(|e| e.within("request"))?;
+        query.samples.field = "frames";
+        let (fs, config) = (query.samples.fs, query.welch);
+        let welch = (0..query.samples.recording.channel_count())
+            .map(|_| WelchAccumulator::new(fs, config))
+            .collect::<Result<Vec<_>, _>>()
+            .map_err(|e| welch_error(e, "frames"))?;
+        let mut stream = Self { query, welch, blocks: 0 };
+        stream.push(frames)?;
+        Ok(stream)
+    }
+
+    /// Takes a later message.
+    ///
+    /// # Errors
+    /// A `request` or `expected_frames` after the first message; frames that are not whole;
+    /// more than [`MAX_TOTAL_SAMPLES`] in all (`RESOURCE_EXHAUSTED`).
+    pub fn next(&mut self, block: pb::SampleBlock) -> Result<(), ApiError> {
+        if block.request.is_some() {
+            return Err(not_first("request"));
+        }
+        if block.expected_frames.is_some() {
+            return Err(not_first("expected_frames"));
+        }
+        self.push(block.frames)
+    }
+
+    fn push(&mut self, frames: bytes::Bytes) -> Result<(), ApiError> {
+        self.blocks += 1;
+        let rec = &mut self.query.samples.recording;
+        rec.push_block(frames).map_err(|e| {
+            ApiError::Invalid(vec![FieldViolation {
+                field: "frames".into(),
+                description: format!("frames of message {}: {e}", self.blocks),
+            }])
+        })?;
+        let total = rec.len() * rec.channel_count();
+        if total > MAX_TOTAL_SAMPLES {
+            return Err(ApiError::TooLarge {
+                field: "frames".into(),
+                limit: format!("{MAX_TOTAL_SAMPLES} samples per stream (all channels)"),
+                actual: format!("{total} samples after message {}", self.blocks),
+            });
+        }
+        for (c, w) in self.welch.iter_mut().enumerate() {
+            w.advance(&rec.channel(c));
+        }
+        Ok(())
+    }
+
+    /// Messages taken so far.
+    pub fn messages(&self) -> usize {
+        self.blocks
+    }
+
+    /// Finishes every channel's estimate and builds the answer.
+    ///
+    /// # Errors
+    /// A stream too short for one segment (FAILED_PRECONDITION); a non-finite sample.
+    pub fn finish(self) -> Result<pb::ExtractTonesResponse, ApiError> {
+        let t = std::time::Instant::now();
+        let q = &self.query;
+        let psds = self
+            .welch
+            .into_iter()
+            .enumerate()
+            .map(|(c, w)| q.samples.finish_psd(c, w))
+            .collect::<Result<Vec<_>, _>>()?;
+        Ok(tones_answer(q, &psds, t))
+    }
+}

@@ -1,0 +1,258 @@
+//! Tone extraction: options, the validated question and the per-channel answer.
+
+use super::*;
+
+fn tone_config(check: &mut Check, o: Option<pb::ToneOptions>) -> ToneConfig {
+    let pb::ToneOptions {
+        threshold_db,
+        min_separation_hz,
+        floor_window_bins,
+        max_tones,
+        harmonic_tolerance_bins,
+        max_harmonic_order,
+    } = o.unwrap_or_default();
+    let d = ToneConfig::default();
+    let mut get = |v: Option<f64>, b: Bounds, name: &'static str, dflt: f64| match v {
+        None => dflt,
+        Some(v) => check.range("tones", b.check(name, v)).unwrap_or(dflt),
+    };
+    ToneConfig {
+        threshold_db: get(threshold_db, THRESHOLD, "threshold_db", d.threshold_db),
+        min_separation_hz: get(min_separation_hz, SEPARATION, "min_separation_hz", d.min_separation_hz),
+        floor_window_bins: get(floor_window_bins.map(f64::from), FLOOR_BINS, "floor_window_bins", 65.0)
+            as usize,
+        max_tones: get(max_tones.map(f64::from), MAX_TONES, "max_tones", 50.0) as usize,
+        harmonic_tolerance_bins: get(
+            harmonic_tolerance_bins,
+            HARM_TOL,
+            "harmonic_tolerance_bins",
+            d.harmonic_tolerance_bins,
+        ),
+        max_harmonic_order: get(max_harmonic_order.map(f64::from), HARM_ORDER, "max_harmonic_order", 10.0)
+            as u32,
+    }
+}
+
+/// A validated tone-extraction question with its decoded samples.
+#[derive(Debug, Clone)]
+pub struct ToneQuery {
+    pub(super) started: std::time::Instant,
+    pub(super) samples: SampleSet,
+    pub(super) welch: WelchConfig,
+    pub(super) tones: ToneConfig,
+    pub(super) predicted: Option<(f64, f64)>,
+    pub(super) bands: Option<f64>,
+    pub(super) psd_points: Option<Option<usize>>,
+    pub(super) defaults: Defaults,
+}
+
+impl TryFrom<pb::ExtractTonesRequest> for ToneQuery {
+    type Error = ApiError;
+
+    fn try_from(req: pb::ExtractTonesRequest) -> Result<Self, ApiError> {
+        tone_query(req, None)
+    }
+}
+
+/// Converts a tone request. `stream` is `Some(expected frames per channel, if known)` for the
+/// first message of a block stream, whose data is still to come.
+pub(super) fn tone_query(
+    req: pb::ExtractTonesRequest,
+    stream: Option<Option<u64>>,
+) -> Result<ToneQuery, ApiError> {
+    let pb::ExtractTonesRequest {
+        samples,
+        welch,
+        tones,
+        predicted_screech_hz,
+        match_tolerance_fraction,
+        include_band_levels,
+        max_band_frequency_hz,
+        psd_output,
+    } = req;
+    let started = std::time::Instant::now();
+    let mut defaults = Defaults::default();
+    let samples = sample_set_for(samples, &mut defaults, stream.is_some())?;
+    let known = match stream {
+        None => samples.recording.len(),
+        Some(Some(frames)) => usize::try_from(frames).unwrap_or(usize::MAX),
+        Some(None) => usize::MAX,
+    };
+    let mut check = Check::new();
+    let w = welch_config(&mut check, &mut defaults, welch, samples.fs, known);
+    let tones = tone_config(&mut check, tones);
+    let predicted = predicted_screech_hz.and_then(|f| {
+        let f = check.range("", PREDICTED.check("predicted_screech_hz", f))?;
+        let tol = match match_tolerance_fraction {
+            None => 0.05,
+            Some(t) => check.range("", MATCH_TOL.check("match_tolerance_fraction", t))?,
+        };
+        Some((f, tol))
+    });
+    let bands = include_band_levels.then(|| match max_band_frequency_hz {
+        None => 100_000.0,
+        Some(f) => check.range("", BAND_MAX.check("max_band_frequency_hz", f)).unwrap_or(100_000.0),
+    });
+    let psd_points = psd_output.filter(|p| p.include).map(|p| {
+        p.max_points.and_then(|m| {
+            check.range("psd_output", PSD_POINTS.check("max_points", f64::from(m))).map(|v| v as usize)
+        })
+    });
+    let q =
+        w.map(|welch| ToneQuery { started, samples, welch, tones, predicted, bands, psd_points, defaults });
+    check.finish(q)
+}
+
+pub(super) fn analysis(psd: &Psd, samples: usize, tones: Option<&ToneSet>) -> pb::AnalysisParameters {
+    pb::AnalysisParameters {
+        window: psd.config.window.name().to_string(),
+        segment_length: psd.config.nperseg as u32,
+        overlap_samples: psd.config.noverlap as u32,
+        averages: psd.segments as u32,
+        frequency_resolution_hz: psd.resolution_hz(),
+        enbw_hz: psd.enbw_hz(),
+        enbw_bins: psd.sums.enbw_bins(),
+        coherent_gain: psd.sums.coherent_gain(),
+        detrend: match psd.config.detrend {
+            Detrend::Mean => "mean",
+            Detrend::None => "none",
+        }
+        .into(),
+        normalized_random_error: psd.normalized_random_error(),
+        sample_rate_hz: psd.fs,
+        samples_per_channel: samples as u64,
+        unused_samples: psd.unused_samples as u64,
+        frequency_estimator: tones.map(|t| t.estimator.to_string()).unwrap_or_default(),
+        floor_estimator: tones
+            .map(|_| "running median of ln(PSD) over floor_window_bins bins".to_string())
+            .unwrap_or_default(),
+    }
+}
+
+pub(super) fn caution(level_db: f64, what: &str) -> String {
+    format!(
+        "{what} reaches {level_db:.1} dB re 20 uPa, above {CAUTION_LEVEL_DB} dB: hearing damage is possible \
+         near the rig. Follow local occupational-noise codes (common limits 85 dB(A) daily exposure, \
+         140 dB(C) peak) and the facility's procedures."
+    )
+}
+
+fn psd_data(psd: &Psd, floor: Option<&[f64]>, max_points: Option<usize>) -> pb::PsdData {
+    let bins = psd.density.len();
+    let g = max_points.map_or(1, |m| bins.div_ceil(m).max(1));
+    let avg =
+        |v: &[f64]| -> Vec<f64> { v.chunks(g).map(|c| c.iter().sum::<f64>() / c.len() as f64).collect() };
+    let freqs: Vec<f64> = (0..bins).map(|k| psd.frequency(k)).collect();
+    pb::PsdData {
+        frequency_hz: avg(&freqs),
+        density_pa2_per_hz: avg(&psd.density),
+        floor_pa2_per_hz: floor.map(avg).unwrap_or_default(),
+        decimation: g as u32,
+    }
+}
+
+pub(super) const SPECTRUM_MODELS: [Model; 2] = [models::WELCH_PSD, models::SPL];
+
+/// Runs the tone extraction and builds the response.
+///
+/// # Errors
+/// None in practice: every configuration was checked against the data length; a failure is
+/// reported as FAILED_PRECONDITION.
+pub fn tones_response(q: &ToneQuery) -> Result<pb::ExtractTonesResponse, ApiError> {
+    let psds = (0..q.samples.recording.channel_count())
+        .map(|c| q.samples.psd(c, q.welch))
+        .collect::<Result<Vec<_>, _>>()?;
+    Ok(tones_answer(q, &psds, q.started))
+}
+
+/// The answer from one PSD per channel; `t` is when the server's work began.
+pub(super) fn tones_answer(q: &ToneQuery, psds: &[Psd], t: std::time::Instant) -> pb::ExtractTonesResponse {
+    let mut out = Vec::with_capacity(psds.len());
+    for (c, psd) in psds.iter().enumerate() {
+        let set = find_tones(psd, &q.tones);
+        let rms_pa = psd.moments.rms_about_mean();
+        let overall = spl_db(rms_pa * rms_pa);
+        let mut cautions = Vec::new();
+        if let Some(t) = set.tones.iter().max_by(|a, b| a.level_db.total_cmp(&b.level_db)) {
+            if t.level_db >= CAUTION_LEVEL_DB {
+                cautions.push(caution(t.level_db, &format!("The tone at {:.1} Hz", t.frequency_hz)));
+            }
+        }
+        if overall >= CAUTION_LEVEL_DB {
+            cautions.push(caution(overall, "The overall level"));
+        }
+        let predicted_match = q.predicted.map(|(f, tol)| {
+            let m = match_prediction(&set, f, tol);
+            pb::PredictionMatch {
+                predicted_hz: m.predicted_hz,
+                tone_index: m.nearest.map(|(i, _)| i as u32),
+                tone_frequency_hz: m.nearest.map(|(_, f)| f),
+                difference_hz: m.difference_hz(),
+                relative_difference: m.difference_hz().map(|d| d / m.predicted_hz),
+                matched: m.matched(),
+                tolerance_hz: m.tolerance_hz,
+            }
+        });
+        out.push(pb::ChannelSpectrum {
+            channel: c as u32,
+            name: q.samples.names.get(c).cloned().unwrap_or_default(),
+            analysis: Some(analysis(psd, q.samples.recording.len(), Some(&set))),
+            rms_pa,
+            overall_level_db: overall,
+            tones: set
+                .tones
+                .iter()
+                .map(|t| pb::ExtractedTone {
+                    frequency_hz: t.frequency_hz,
+                    peak_bin_frequency_hz: t.peak_bin_hz,
+                    level_db: t.level_db,
+                    mean_square_pa2: t.mean_square_pa2,
+                    peak_density_pa2_per_hz: t.peak_density,
+                    floor_density_pa2_per_hz: t.floor_density,
+                    tone_to_floor_db: t.tone_to_floor_db,
+                    bandwidth_3db_hz: t.bandwidth_3db_hz,
+                    family: t.family.map(|f| f.0 as u32),
+                    harmonic_order: t.family.map(|f| f.1),
+                })
+                .collect(),
+            families: set
+                .families
+                .iter()
+                .enumerate()
+                .map(|(i, f)| pb::HarmonicFamily {
+                    id: i as u32,
+                    fundamental_hz: f.fundamental_hz,
+                    tone_indices: f.members.iter().map(|m| m.0 as u32).collect(),
+                    orders: f.members.iter().map(|m| m.1).collect(),
+                    level_db: f.level_db,
+                })
+                .collect(),
+            combinations: set
+                .combinations
+                .iter()
+                .map(|c| pb::CombinationTone {
+                    tone_index: c.tone as u32,
+                    family_a: c.families.0 as u32,
+                    family_b: c.families.1 as u32,
+                    is_sum: c.sum,
+                    expected_hz: c.expected_hz,
+                })
+                .collect(),
+            predicted_match,
+            bands: q.bands.map(|m| band_summary(&band_levels(psd, m))),
+            psd: q.psd_points.map(|m| psd_data(psd, Some(&set.floor), m)),
+            cautions,
+        });
+    }
+    let mut used = SPECTRUM_MODELS.to_vec();
+    used.push(models::TONE_EXTRACTION);
+    if q.bands.is_some() {
+        used.push(models::THIRD_OCTAVE);
+        used.push(models::A_WEIGHTING);
+    }
+    pb::ExtractTonesResponse {
+        channels: out,
+        compute_time_s: t.elapsed().as_secs_f64(),
+        provenance: Some(provenance(&used, &q.defaults, Vec::new())),
+    }
+}
