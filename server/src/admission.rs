@@ -27,35 +27,70 @@ const HEALTH: &str = "/grpc.health.v1.Health/";
 /// Suggested wait before retrying a refused call.
 pub const RETRY_AFTER: Duration = Duration::from_millis(100);
 
-/// The layer: one permit pool and one time limit shared by every connection.
+/// Admission: at most `limit` calls at once server-wide, the excess refused at once with
+/// `UNAVAILABLE` and a `RetryInfo` hint; health checks always pass.
+///
+/// tower's `ConcurrencyLimit` would queue the excess (unbounded waiting under overload) and
+/// `LoadShed` answers a transport error without a gRPC status or retry hint: this one layer does
+/// both jobs, taking a permit or refusing at once, and keeps the permit until the inner call's
+/// future (deadline included) has finished.
 #[derive(Debug, Clone)]
-pub struct AdmissionLayer {
+pub struct ShedLayer {
     permits: Arc<Semaphore>,
     limit: usize,
+}
+
+impl ShedLayer {
+    /// At most `max_in_flight` calls at once (at least 1).
+    pub fn new(max_in_flight: usize) -> Self {
+        let limit = max_in_flight.clamp(1, Semaphore::MAX_PERMITS);
+        Self { permits: Arc::new(Semaphore::new(limit)), limit }
+    }
+}
+
+impl<S> tower::Layer<S> for ShedLayer {
+    type Service = Shed<S>;
+
+    fn layer(&self, inner: S) -> Shed<S> {
+        Shed { inner, layer: self.clone() }
+    }
+}
+
+/// The service [`ShedLayer`] wraps around the routes.
+#[derive(Debug, Clone)]
+pub struct Shed<S> {
+    inner: S,
+    layer: ShedLayer,
+}
+
+/// Deadlines: a call ends with `DEADLINE_EXCEEDED` at the caller's `grpc-timeout` or the
+/// server's limit, whichever comes first (tower's `Timeout` would end it with a transport error
+/// that tonic reports as CANCELLED).
+#[derive(Debug, Clone, Copy)]
+pub struct DeadlineLayer {
     timeout: Duration,
 }
 
-impl AdmissionLayer {
-    /// At most `max_in_flight` calls at once (at least 1), each ended after `timeout` at most.
-    pub fn new(max_in_flight: usize, timeout: Duration) -> Self {
-        let limit = max_in_flight.clamp(1, Semaphore::MAX_PERMITS);
-        Self { permits: Arc::new(Semaphore::new(limit)), limit, timeout }
+impl DeadlineLayer {
+    /// Every call ended after `timeout` at most.
+    pub fn new(timeout: Duration) -> Self {
+        Self { timeout }
     }
 }
 
-impl<S> tower::Layer<S> for AdmissionLayer {
-    type Service = Admission<S>;
+impl<S> tower::Layer<S> for DeadlineLayer {
+    type Service = Deadline<S>;
 
-    fn layer(&self, inner: S) -> Admission<S> {
-        Admission { inner, layer: self.clone() }
+    fn layer(&self, inner: S) -> Deadline<S> {
+        Deadline { inner, timeout: self.timeout }
     }
 }
 
-/// The service the layer wraps around the routes.
+/// The service [`DeadlineLayer`] wraps around the routes.
 #[derive(Debug, Clone)]
-pub struct Admission<S> {
+pub struct Deadline<S> {
     inner: S,
-    layer: AdmissionLayer,
+    timeout: Duration,
 }
 
 /// Parses a `grpc-timeout` value (up to 8 digits and a unit: H, M, S, m, u, n).
@@ -102,7 +137,9 @@ fn refused(limit: usize) -> Status {
     )
 }
 
-impl<S, B> tower::Service<http::Request<B>> for Admission<S>
+type BoxFuture<R, E> = Pin<Box<dyn Future<Output = Result<R, E>> + Send>>;
+
+impl<S, B> tower::Service<http::Request<B>> for Shed<S>
 where
     S: tower::Service<http::Request<B>, Response = http::Response<Body>> + Send + 'static,
     S::Future: Send + 'static,
@@ -110,7 +147,7 @@ where
 {
     type Response = http::Response<Body>;
     type Error = S::Error;
-    type Future = Pin<Box<dyn Future<Output = Result<Self::Response, Self::Error>> + Send>>;
+    type Future = BoxFuture<Self::Response, Self::Error>;
 
     fn poll_ready(&mut self, cx: &mut Context<'_>) -> Poll<Result<(), Self::Error>> {
         self.inner.poll_ready(cx)
@@ -128,12 +165,34 @@ where
                 }
             }
         };
-        let (limit, why) = time_limit(req.headers(), self.layer.timeout);
         let fut = self.inner.call(req);
         Box::pin(async move {
-            let out = tokio::time::timeout(limit, fut).await;
+            let out = fut.await;
             drop(permit);
-            match out {
+            out
+        })
+    }
+}
+
+impl<S, B> tower::Service<http::Request<B>> for Deadline<S>
+where
+    S: tower::Service<http::Request<B>, Response = http::Response<Body>> + Send + 'static,
+    S::Future: Send + 'static,
+    S::Error: Send + 'static,
+{
+    type Response = http::Response<Body>;
+    type Error = S::Error;
+    type Future = BoxFuture<Self::Response, Self::Error>;
+
+    fn poll_ready(&mut self, cx: &mut Context<'_>) -> Poll<Result<(), Self::Error>> {
+        self.inner.poll_ready(cx)
+    }
+
+    fn call(&mut self, req: http::Request<B>) -> Self::Future {
+        let (limit, why) = time_limit(req.headers(), self.timeout);
+        let fut = self.inner.call(req);
+        Box::pin(async move {
+            match tokio::time::timeout(limit, fut).await {
                 Ok(r) => r,
                 Err(_) => Ok(Status::deadline_exceeded(format!("stopped: {why}")).into_http()),
             }

@@ -1,6 +1,6 @@
 //! Builds the tonic server: jetloop services, health, reflection and the limits around them.
 
-use crate::admission::AdmissionLayer;
+use crate::admission::{DeadlineLayer, ShedLayer};
 use crate::config::Limits;
 use crate::service::{
     gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells, spectrum::Spectrum, staging::Staging,
@@ -13,7 +13,34 @@ use jetloop_proto::pb::{
 };
 use std::future::Future;
 use tokio::net::TcpListener;
+use tonic::server::NamedService;
 use tonic::transport::Server;
+
+/// The message-size limit of every jetloop service, requests and answers alike (spectra with
+/// the PSD attached and large sweeps can be large), applied in one place.
+macro_rules! limited {
+    ($server:expr, $max:expr) => {
+        $server.max_decoding_message_size($max).max_encoding_message_size($max)
+    };
+}
+
+/// The jetloop services this server answers, by their gRPC names (taken from the generated
+/// servers, so the list cannot drift from what is served).
+pub const JETLOOP_SERVICES: &[&str] = &[
+    <GasDynamicsServiceServer<GasDynamics> as NamedService>::NAME,
+    <InfoServiceServer<Info> as NamedService>::NAME,
+    <ShockCellServiceServer<ShockCells> as NamedService>::NAME,
+    <ToneServiceServer<Tones> as NamedService>::NAME,
+    <SpectrumServiceServer<Spectrum> as NamedService>::NAME,
+    <StagingServiceServer<Staging> as NamedService>::NAME,
+];
+
+/// The standard services served beside them: health and reflection (v1 and v1alpha).
+pub const STANDARD_SERVICES: &[&str] = &[
+    tonic_health::pb::health_server::SERVICE_NAME,
+    tonic_reflection::pb::v1::server_reflection_server::SERVICE_NAME,
+    tonic_reflection::pb::v1alpha::server_reflection_server::SERVICE_NAME,
+];
 
 /// Error starting or running the server.
 #[derive(Debug, thiserror::Error)]
@@ -37,12 +64,10 @@ pub async fn serve(
     shutdown: impl Future<Output = ()> + Send,
 ) -> Result<(), ServeError> {
     let (health_reporter, health) = tonic_health::server::health_reporter();
-    health_reporter.set_serving::<GasDynamicsServiceServer<GasDynamics>>().await;
-    health_reporter.set_serving::<InfoServiceServer<Info>>().await;
-    health_reporter.set_serving::<ShockCellServiceServer<ShockCells>>().await;
-    health_reporter.set_serving::<ToneServiceServer<Tones>>().await;
-    health_reporter.set_serving::<SpectrumServiceServer<Spectrum>>().await;
-    health_reporter.set_serving::<StagingServiceServer<Staging>>().await;
+    // Every jetloop service is SERVING as soon as the listener accepts (they hold no state).
+    for name in JETLOOP_SERVICES {
+        health_reporter.set_service_status(*name, tonic_health::ServingStatus::Serving).await;
+    }
 
     let reflection_v1 = tonic_reflection::server::Builder::configure()
         .register_encoded_file_descriptor_set(jetloop_proto::FILE_DESCRIPTOR_SET)
@@ -54,17 +79,21 @@ pub async fn serve(
         .register_encoded_file_descriptor_set(tonic_health::pb::FILE_DESCRIPTOR_SET)
         .build_v1alpha()?;
 
-    let max = limits.max_request_bytes;
-    let gas = GasDynamicsServiceServer::new(GasDynamics).max_decoding_message_size(max);
-    let info = InfoServiceServer::new(Info::new(limits)).max_decoding_message_size(max);
-    let cells = ShockCellServiceServer::new(ShockCells).max_decoding_message_size(max);
-    let tones = ToneServiceServer::new(Tones).max_decoding_message_size(max);
-    // Spectra with the PSD attached can be large: allow answers up to the request limit too.
-    let spectrum =
-        SpectrumServiceServer::new(Spectrum).max_decoding_message_size(max).max_encoding_message_size(max);
-    let staging =
-        StagingServiceServer::new(Staging).max_decoding_message_size(max).max_encoding_message_size(max);
+    // One stack around every route, outermost first. The per-call trace span is tonic's
+    // `trace_fn` below, which wraps this stack, so a refused or expired call is logged in the
+    // span of its method.
+    let stack = tower::ServiceBuilder::new()
+        // Shed first: a call over the server-wide limit is refused at once with UNAVAILABLE and
+        // a RetryInfo hint before it costs anything; health checks pass untouched (a busy pod
+        // must not be restarted). The permit is held until the inner future, deadline
+        // included, has finished.
+        .layer(ShedLayer::new(limits.max_concurrent_requests))
+        // Then the deadline, only for admitted calls: DEADLINE_EXCEEDED at the caller's
+        // grpc-timeout (answered just before it) or the server's limit, whichever is sooner.
+        .layer(DeadlineLayer::new(limits.request_timeout))
+        .into_inner();
 
+    let max = limits.max_request_bytes;
     Server::builder()
         // A span per call, so logs carry the method path.
         .trace_fn(|req| tracing::info_span!("grpc", path = %req.uri().path()))
@@ -72,18 +101,16 @@ pub async fn serve(
         // instead of many 64 KB steps (the default), which dominated upload time.
         .initial_stream_window_size(Some(16 * 1024 * 1024))
         .initial_connection_window_size(Some(32 * 1024 * 1024))
-        // Calls in flight bounded server-wide (the excess refused at once with UNAVAILABLE and
-        // a retry hint) and deadlines answered with DEADLINE_EXCEEDED: see `admission`.
-        .layer(AdmissionLayer::new(limits.max_concurrent_requests, limits.request_timeout))
+        .layer(stack)
         .add_service(health)
         .add_service(reflection_v1)
         .add_service(reflection_v1alpha)
-        .add_service(gas)
-        .add_service(info)
-        .add_service(cells)
-        .add_service(tones)
-        .add_service(spectrum)
-        .add_service(staging)
+        .add_service(limited!(GasDynamicsServiceServer::new(GasDynamics), max))
+        .add_service(limited!(InfoServiceServer::new(Info::new(limits)), max))
+        .add_service(limited!(ShockCellServiceServer::new(ShockCells), max))
+        .add_service(limited!(ToneServiceServer::new(Tones), max))
+        .add_service(limited!(SpectrumServiceServer::new(Spectrum), max))
+        .add_service(limited!(StagingServiceServer::new(Staging), max))
         // TCP_NODELAY: without it Nagle's algorithm and delayed ACKs stall multi-megabyte
         // uploads for tens of milliseconds.
         .serve_with_incoming_shutdown(

@@ -235,7 +235,8 @@ pub fn jet_spec(c: Option<pb::JetConditions>, path: &str) -> Result<JetSpec, Api
     let gas = gas_from(&mut check, &mut defaults, gas_msg, &format!("{path}.gas"), false);
     let ambient = gas_from(&mut check, &mut defaults, ambient_gas, &format!("{path}.ambient_gas"), true);
     // The area-ratio design needs a valid gas; fall back to air only to keep checking fields.
-    let nozzle = nozzle_from(&mut check, nozzle, &format!("{path}.nozzle"), &gas.unwrap_or(Gas::AIR));
+    let nozzle =
+        nozzle_from(&mut check, &mut defaults, nozzle, &format!("{path}.nozzle"), &gas.unwrap_or(Gas::AIR));
     let tol = defaults.or(
         ideal_expansion_tolerance,
         &format!("{path}.ideal_expansion_tolerance"),
@@ -254,7 +255,16 @@ pub fn jet_spec(c: Option<pb::JetConditions>, path: &str) -> Result<JetSpec, Api
     check.finish(spec)
 }
 
-fn nozzle_from(check: &mut Check, n: Option<pb::Nozzle>, path: &str, gas: &Gas) -> Option<Nozzle> {
+fn nozzle_from(
+    check: &mut Check,
+    defaults: &mut Defaults,
+    n: Option<pb::Nozzle>,
+    path: &str,
+    gas: &Gas,
+) -> Option<Nozzle> {
+    let mut design = |d: Option<f64>, p: &str| {
+        defaults.or(d, &format!("{p}.design_mach_number"), 1.0, "", "convergent nozzle: sonic exit")
+    };
     use pb::nozzle::Kind;
     use pb::round_convergent_divergent_nozzle::Design;
     let kind = match n.and_then(|n| n.kind) {
@@ -293,15 +303,14 @@ fn nozzle_from(check: &mut Check, n: Option<pb::Nozzle>, path: &str, gas: &Gas) 
                 check.missing(format!("{p}.exit_width_m"), "a rectangular nozzle needs its exit width in m");
                 return None;
             }
-            check.range(
-                &p,
-                Nozzle::rectangular(exit_height_m, exit_width_m, design_mach_number.unwrap_or(1.0)),
-            )
+            let md = design(design_mach_number, &p);
+            check.range(&p, Nozzle::rectangular(exit_height_m, exit_width_m, md))
         }
-        Kind::Planar(pb::PlanarNozzle { exit_height_m, design_mach_number }) => check.range(
-            &format!("{path}.planar"),
-            Nozzle::planar(exit_height_m, design_mach_number.unwrap_or(1.0)),
-        ),
+        Kind::Planar(pb::PlanarNozzle { exit_height_m, design_mach_number }) => {
+            let p = format!("{path}.planar");
+            let md = design(design_mach_number, &p);
+            check.range(&p, Nozzle::planar(exit_height_m, md))
+        }
     }
 }
 
@@ -373,6 +382,26 @@ fn operating_point_from(
             }
         }
     }
+}
+
+/// Solves the isentropic question ([`Gas::isentropic`]) and builds the response.
+///
+/// # Errors
+/// [`ApiError::Invalid`] naming the input whose result lies outside the Mach range.
+pub fn isentropic_answer(q: &IsentropicQuery) -> Result<pb::IsentropicRatiosResponse, ApiError> {
+    let mut check = Check::new();
+    let r = check.range("", q.gas.isentropic(q.input));
+    Ok(isentropic_response(q, &check.finish(r)?))
+}
+
+/// Computes the normal shock ([`Gas::normal_shock`]) and builds the response.
+///
+/// # Errors
+/// [`ApiError::Invalid`] naming `upstream_mach_number` (already checked in the conversion).
+pub fn normal_shock_answer(q: &NormalShockQuery) -> Result<pb::NormalShockResponse, ApiError> {
+    let mut check = Check::new();
+    let s = check.range("", q.gas.normal_shock(q.m1));
+    Ok(normal_shock_response(q, &check.finish(s)?))
 }
 
 /// Builds the IsentropicRatios response.

@@ -240,7 +240,7 @@ pub fn loop_spec(
                         None
                     }
                 },
-                _ => {
+                Ok(pb::PathSpeed::Unspecified) | Err(_) => {
                     check.other(
                         format!("{sp}.speed"),
                         format!(

@@ -9,8 +9,8 @@ use crate::physics::gas::Gas;
 use crate::physics::jet;
 use crate::physics::models;
 use crate::physics::staging::{
-    compare_models, fit_stages, infer_directions, pressure_sweep_physics, Direction, FitConfig, Param, Point,
-    PointPhysics, ReflectorPath, StagingResult, SweepKind,
+    compare_models, fit_stages, infer_directions, pressure_sweep_physics, Direction, FitConfig, FitDefaults,
+    Param, Point, PointPhysics, ReflectorPath, StagingResult, SweepKind,
 };
 use jetloop_proto::pb;
 
@@ -70,7 +70,7 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
             Ok(pb::ControlVariable::FullyExpandedMachNumber) => Some(SweepKind::Mach),
             Ok(pb::ControlVariable::ReflectorDistanceM) => Some(SweepKind::Reflector),
             Ok(pb::ControlVariable::Plain) => Some(SweepKind::Plain),
-            _ => {
+            Ok(pb::ControlVariable::Unspecified) | Err(_) => {
                 check.other(
                     "control",
                     format!("control = {control} must be CONTROL_VARIABLE_NOZZLE_PRESSURE_RATIO, _FULLY_EXPANDED_MACH_NUMBER, _REFLECTOR_DISTANCE_M or _PLAIN"),
@@ -81,28 +81,74 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
         if points.len() < 3 {
             check.other("points", format!("points has {} entries; at least 3 are needed", points.len()));
         }
-        let o = options.unwrap_or_default();
-        let rel = match o.default_relative_uncertainty {
-            None => 0.01,
-            Some(v) => check.range("options", REL.check("default_relative_uncertainty", v)).unwrap_or(0.01),
-        };
-        let opt = |check: &mut Check, v: Option<f64>, b: Bounds, name: &'static str, d: f64| match v {
-            None => d,
-            Some(v) => check.range("options", b.check(name, v)).unwrap_or(d),
-        };
-        let jump_fraction = opt(&mut check, o.jump_fraction, JUMP, "jump_fraction", 0.05);
-        let max_order =
-            opt(&mut check, o.max_loop_order.map(f64::from), ORDER, "max_loop_order", 10.0) as u32;
-        let kmin = opt(&mut check, o.convection_ratio_min, KAPPA, "convection_ratio_min", 0.4);
-        let kmax = opt(&mut check, o.convection_ratio_max, KAPPA, "convection_ratio_max", 0.9);
+        // Unpacked by name: a new option fails to compile here until its meaning is decided.
+        let pb::FitOptions {
+            jump_fraction,
+            max_loop_order,
+            convection_ratio_min,
+            convection_ratio_max,
+            source_cells,
+            source_cells_min,
+            source_cells_max,
+            fit_fixed_delay,
+            reflector_path_factor,
+            fit_reflector_path_factor,
+            default_relative_uncertainty,
+        } = options.unwrap_or_default();
+        let d = FitDefaults::DEFAULT;
+        // An option: checked against its bounds, or its default recorded in the provenance.
+        let mut opt =
+            |check: &mut Check, v: Option<f64>, b: Bounds, name: &'static str, dv: f64, why: &str| match v {
+                None => {
+                    defaults.note(&format!("options.{name}"), &dv.to_string(), why);
+                    dv
+                }
+                Some(v) => check.range("options", b.check(name, v)).unwrap_or(dv),
+            };
+        let rel = opt(
+            &mut check,
+            default_relative_uncertainty,
+            REL,
+            "default_relative_uncertainty",
+            d.relative_uncertainty,
+            "1 % of each frequency where a point gives no uncertainty",
+        );
+        let jump_fraction =
+            opt(&mut check, jump_fraction, JUMP, "jump_fraction", d.jump_fraction, "5 % separates stages");
+        let max_order = opt(
+            &mut check,
+            max_loop_order.map(f64::from),
+            ORDER,
+            "max_loop_order",
+            f64::from(d.max_order),
+            "loop orders searched up to 10",
+        ) as u32;
+        let kappa_why = "physical convection ratios of screeching jets (common practice)";
+        let kmin = opt(&mut check, convection_ratio_min, KAPPA, "convection_ratio_min", d.kappa.0, kappa_why);
+        let kmax = opt(&mut check, convection_ratio_max, KAPPA, "convection_ratio_max", d.kappa.1, kappa_why);
         if kmin >= kmax {
             check.other(
                 "options.convection_ratio_max",
                 format!("options.convection_ratio_max = {kmax} must exceed convection_ratio_min = {kmin}"),
             );
         }
-        let cmin = opt(&mut check, o.source_cells_min.map(f64::from), CELLS, "source_cells_min", 1.0);
-        let cmax = opt(&mut check, o.source_cells_max.map(f64::from), CELLS, "source_cells_max", 10.0);
+        let cells_why = "whole source cells searched (when source_cells is not given)";
+        let cmin = opt(
+            &mut check,
+            source_cells_min.map(f64::from),
+            CELLS,
+            "source_cells_min",
+            d.source_cells.0,
+            cells_why,
+        );
+        let cmax = opt(
+            &mut check,
+            source_cells_max.map(f64::from),
+            CELLS,
+            "source_cells_max",
+            d.source_cells.1,
+            cells_why,
+        );
         if cmin > cmax {
             check.other(
                 "options.source_cells_max",
@@ -110,20 +156,35 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
             );
         }
         let fixed_cells =
-            o.source_cells.map(|c| opt(&mut check, Some(f64::from(c)), CELLS, "source_cells", 4.0));
-        let g = opt(&mut check, o.reflector_path_factor, G, "reflector_path_factor", 2.0);
-        let reflector =
-            if o.fit_reflector_path_factor { ReflectorPath::Free(1.5, 2.5) } else { ReflectorPath::Fixed(g) };
-        if kind == Some(SweepKind::Reflector)
-            && o.reflector_path_factor.is_none()
-            && !o.fit_reflector_path_factor
-        {
-            defaults.note(
-                "options.reflector_path_factor",
-                "2",
+            source_cells.and_then(|c| check.range("options", CELLS.check("source_cells", f64::from(c))));
+        let reflector = if fit_reflector_path_factor {
+            if reflector_path_factor.is_some() {
+                check.other(
+                    "options.reflector_path_factor",
+                    "options.reflector_path_factor must be unset when fit_reflector_path_factor is true \
+                     (the factor is then fitted within its bounds)",
+                );
+            }
+            ReflectorPath::Free(d.path_factor_bounds.0, d.path_factor_bounds.1)
+        } else if kind == Some(SweepKind::Reflector) {
+            ReflectorPath::Fixed(opt(
+                &mut check,
+                reflector_path_factor,
+                G,
+                "reflector_path_factor",
+                d.path_factor,
                 "the acoustic path grows by twice the displacement (common practice)",
-            );
-        }
+            ))
+        } else {
+            ReflectorPath::Fixed(reflector_path_factor.unwrap_or(d.path_factor))
+        };
+        let fit_delay = match fit_fixed_delay {
+            Some(b) => b,
+            None => {
+                defaults.note("options.fit_fixed_delay", "true", "the fixed loop delay is fitted");
+                true
+            }
+        };
 
         // Points.
         let mut pts = Vec::with_capacity(points.len());
@@ -248,7 +309,7 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
             source_cells: (cmin, cmax),
             source_cells_fixed: fixed_cells,
             reflector,
-            fit_delay: o.fit_fixed_delay.unwrap_or(true),
+            fit_delay,
             a_amb,
         };
         let q = kind.map(|kind| StagingQuery { kind, points: pts, physics, config, defaults, started });

@@ -386,7 +386,7 @@ impl TryFrom<pb::SweepScreechRequest> for SweepQuery {
             Ok(pb::SweepVariable::NozzlePressureRatio) => Some(SweepKind::Npr),
             Ok(pb::SweepVariable::FullyExpandedMachNumber) => Some(SweepKind::Mach),
             Ok(pb::SweepVariable::ReflectorDistanceM) => Some(SweepKind::Reflector),
-            _ => {
+            Ok(pb::SweepVariable::Unspecified) | Err(_) => {
                 check.other(
                     "variable",
                     format!(

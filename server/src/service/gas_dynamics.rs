@@ -1,10 +1,9 @@
 //! `jetloop.v1.GasDynamicsService`.
 
 use crate::api::gas::{
-    compute_jet_state, isentropic_response, jet_spec, jet_state_response, normal_shock_response,
-    IsentropicQuery, NormalShockQuery,
+    compute_jet_state, isentropic_answer, jet_spec, jet_state_response, normal_shock_answer, IsentropicQuery,
+    NormalShockQuery,
 };
-use crate::api::Check;
 use jetloop_proto::pb::{self, gas_dynamics_service_server::GasDynamicsService};
 use tonic::{Request, Response, Status};
 
@@ -20,10 +19,7 @@ impl GasDynamicsService for GasDynamics {
         request: Request<pb::IsentropicRatiosRequest>,
     ) -> Result<Response<pb::IsentropicRatiosResponse>, Status> {
         let q = IsentropicQuery::try_from(request.into_inner())?;
-        let mut check = Check::new();
-        let r = check.range("", q.gas.isentropic(q.input));
-        let r = check.finish(r)?;
-        Ok(Response::new(isentropic_response(&q, &r)))
+        Ok(Response::new(isentropic_answer(&q)?))
     }
 
     async fn normal_shock(
@@ -31,10 +27,7 @@ impl GasDynamicsService for GasDynamics {
         request: Request<pb::NormalShockRequest>,
     ) -> Result<Response<pb::NormalShockResponse>, Status> {
         let q = NormalShockQuery::try_from(request.into_inner())?;
-        let mut check = Check::new();
-        let s = check.range("", q.gas.normal_shock(q.m1));
-        let s = check.finish(s)?;
-        Ok(Response::new(normal_shock_response(&q, &s)))
+        Ok(Response::new(normal_shock_answer(&q)?))
     }
 
     async fn jet_state(

@@ -4,21 +4,9 @@ use crate::api::gas::PRESSURE_CAUTION;
 use crate::api::provenance::{model, provenance, Defaults, SERVER_VERSION};
 use crate::config::Limits;
 use crate::physics::models;
+use crate::server::{JETLOOP_SERVICES, STANDARD_SERVICES};
 use jetloop_proto::pb::{self, info_service_server::InfoService};
 use tonic::{Request, Response, Status};
-
-/// Fully qualified names of the services this server answers.
-pub const SERVICES: &[&str] = &[
-    "jetloop.v1.GasDynamicsService",
-    "jetloop.v1.InfoService",
-    "jetloop.v1.ShockCellService",
-    "jetloop.v1.ToneService",
-    "jetloop.v1.SpectrumService",
-    "jetloop.v1.StagingService",
-    "grpc.health.v1.Health",
-    "grpc.reflection.v1.ServerReflection",
-    "grpc.reflection.v1alpha.ServerReflection",
-];
 
 /// Answers ServerInfo from the limits the server was started with.
 #[derive(Debug, Clone)]
@@ -41,7 +29,7 @@ impl InfoService for Info {
     ) -> Result<Response<pb::ServerInfoResponse>, Status> {
         Ok(Response::new(pb::ServerInfoResponse {
             server_version: SERVER_VERSION.to_string(),
-            services: SERVICES.iter().map(|s| s.to_string()).collect(),
+            services: JETLOOP_SERVICES.iter().chain(STANDARD_SERVICES).map(|s| s.to_string()).collect(),
             models: models::ALL.iter().map(model).collect(),
             limits: Some(pb::ServerLimits {
                 max_request_bytes: self.limits.max_request_bytes as u64,

@@ -11,18 +11,6 @@ use tonic::{Request, Response, Status, Streaming};
 #[derive(Debug, Default, Clone, Copy)]
 pub struct Spectrum;
 
-async fn blocking<T: Send + 'static>(
-    f: impl FnOnce() -> Result<T, ApiError> + Send + 'static,
-) -> Result<T, Status> {
-    tokio::task::spawn_blocking(f)
-        .await
-        .map_err(|e| {
-            tracing::error!("spectrum task failed: {e}");
-            Status::internal("the spectral analysis failed; see the server log")
-        })?
-        .map_err(Status::from)
-}
-
 #[tonic::async_trait]
 impl SpectrumService for Spectrum {
     async fn extract_tones(
@@ -30,7 +18,8 @@ impl SpectrumService for Spectrum {
         request: Request<pb::ExtractTonesRequest>,
     ) -> Result<Response<pb::ExtractTonesResponse>, Status> {
         let req = request.into_inner();
-        let r = blocking(move || tones_response(&ToneQuery::try_from(req)?)).await?;
+        let r =
+            super::blocking("spectral analysis", move || tones_response(&ToneQuery::try_from(req)?)).await?;
         Ok(Response::new(r))
     }
 
@@ -39,10 +28,7 @@ impl SpectrumService for Spectrum {
         request: Request<Streaming<pb::SampleBlock>>,
     ) -> Result<Response<pb::ExtractTonesResponse>, Status> {
         let mut incoming = request.into_inner();
-        let first = incoming
-            .message()
-            .await?
-            .ok_or_else(|| Status::invalid_argument("the block stream ended before its first message"))?;
+        let first = incoming.message().await?.ok_or_else(|| Status::from(ToneStream::empty()))?;
         // The analysis runs on one blocking thread (fanning segments out to rayon) and takes
         // blocks from this loop as they arrive; the reactor only moves bytes. The feed ends with
         // `None`; if it closes without one (the caller went away, or the deadline dropped this
@@ -85,10 +71,7 @@ impl SpectrumService for Spectrum {
             }
         }
         drop(tx);
-        let answer = worker.await.map_err(|e| {
-            tracing::error!("spectrum stream task failed: {e}");
-            Status::internal("the spectral analysis failed; see the server log")
-        })?;
+        let answer = super::join("spectral analysis", worker.await)?;
         received?;
         Ok(Response::new(answer.map_err(Status::from)?))
     }
@@ -98,7 +81,8 @@ impl SpectrumService for Spectrum {
         request: Request<pb::BandLevelsRequest>,
     ) -> Result<Response<pb::BandLevelsResponse>, Status> {
         let req = request.into_inner();
-        let r = blocking(move || bands_response(&BandQuery::try_from(req)?)).await?;
+        let r =
+            super::blocking("spectral analysis", move || bands_response(&BandQuery::try_from(req)?)).await?;
         Ok(Response::new(r))
     }
 }

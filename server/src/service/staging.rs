@@ -1,7 +1,6 @@
 //! `jetloop.v1.StagingService`.
 
 use crate::api::staging::{staging_response, StagingQuery};
-use crate::api::ApiError;
 use jetloop_proto::pb::{self, staging_service_server::StagingService};
 use tonic::{Request, Response, Status};
 
@@ -16,14 +15,8 @@ impl StagingService for Staging {
         request: Request<pb::FitStagesRequest>,
     ) -> Result<Response<pb::FitStagesResponse>, Status> {
         let req = request.into_inner();
-        let r = tokio::task::spawn_blocking(move || -> Result<pb::FitStagesResponse, ApiError> {
-            Ok(staging_response(StagingQuery::try_from(req)?))
-        })
-        .await
-        .map_err(|e| {
-            tracing::error!("staging task failed: {e}");
-            Status::internal("the stage fit failed; see the server log")
-        })??;
+        let r =
+            super::blocking("stage fit", move || Ok(staging_response(StagingQuery::try_from(req)?))).await?;
         Ok(Response::new(r))
     }
 }

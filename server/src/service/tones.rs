@@ -34,10 +34,6 @@ impl ToneService for Tones {
         request: Request<pb::SweepScreechRequest>,
     ) -> Result<Response<pb::SweepScreechResponse>, Status> {
         let q = SweepQuery::try_from(request.into_inner())?;
-        let r = tokio::task::spawn_blocking(move || sweep_response(&q)).await.map_err(|e| {
-            tracing::error!("sweep task failed: {e}");
-            Status::internal("the sweep computation failed; see the server log")
-        })??;
-        Ok(Response::new(r))
+        Ok(Response::new(super::blocking("sweep computation", move || sweep_response(&q)).await?))
     }
 }

@@ -117,7 +117,7 @@ pub(super) fn sample_set_for(
                 Ok(pb::SampleFormat::F64Le) => Some(Format::F64),
                 Ok(pb::SampleFormat::I16Le) => Some(Format::I16),
                 Ok(pb::SampleFormat::I32Le) => Some(Format::I32),
-                _ => {
+                Ok(pb::SampleFormat::Unspecified) | Err(_) => {
                     check.other(
                         "samples.raw.format",
                         format!(

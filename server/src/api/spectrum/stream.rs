@@ -19,6 +19,17 @@ fn not_first(field: &str) -> ApiError {
 }
 
 impl ToneStream {
+    /// The error for a block stream that ended before its first message: INVALID_ARGUMENT
+    /// naming `request`, which the first message carries.
+    pub fn empty() -> ApiError {
+        ApiError::Invalid(vec![FieldViolation {
+            field: "request".into(),
+            description: "request is required: the block stream ended before its first message, which \
+                          carries the question"
+                .into(),
+        }])
+    }
+
     /// Validates the first message and takes the frames it carries.
     ///
     /// # Errors

@@ -118,6 +118,11 @@ pub(super) fn analysis(psd: &Psd, samples: usize, tones: Option<&ToneSet>) -> pb
             Detrend::None => "none",
         }
         .into(),
+        window_kind: super::welch::window_kind(psd.config.window) as i32,
+        detrend_kind: match psd.config.detrend {
+            Detrend::Mean => pb::DetrendKind::Mean,
+            Detrend::None => pb::DetrendKind::None,
+        } as i32,
         normalized_random_error: psd.normalized_random_error(),
         sample_rate_hz: psd.fs,
         samples_per_channel: samples as u64,

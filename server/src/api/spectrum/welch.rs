@@ -135,3 +135,13 @@ pub(super) fn welch_config(
         _ => None,
     }
 }
+
+/// The request enum of a window.
+pub(super) fn window_kind(w: Window) -> pb::WindowKind {
+    match w {
+        Window::Hann => pb::WindowKind::Hann,
+        Window::Hamming => pb::WindowKind::Hamming,
+        Window::BlackmanHarris => pb::WindowKind::BlackmanHarris,
+        Window::FlatTop => pb::WindowKind::FlatTop,
+    }
+}

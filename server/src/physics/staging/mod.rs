@@ -113,6 +113,38 @@ pub struct FitConfig {
     pub a_amb: f64,
 }
 
+/// Default fit settings, in one place (the API records each one it applies).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FitDefaults {
+    /// Relative frequency change that separates stages.
+    pub jump_fraction: f64,
+    /// Highest loop order searched.
+    pub max_order: u32,
+    /// Bounds on kappa = Uc/Uj (physical convection ratios; common practice).
+    pub kappa: (f64, f64),
+    /// Source cells searched when not given.
+    pub source_cells: (f64, f64),
+    /// Reflector path factor when held fixed (twice the displacement; common practice).
+    pub path_factor: f64,
+    /// Bounds of the reflector path factor when fitted.
+    pub path_factor_bounds: (f64, f64),
+    /// Relative frequency uncertainty of points that give none.
+    pub relative_uncertainty: f64,
+}
+
+impl FitDefaults {
+    /// The defaults.
+    pub const DEFAULT: FitDefaults = FitDefaults {
+        jump_fraction: 0.05,
+        max_order: 10,
+        kappa: (0.4, 0.9),
+        source_cells: (1.0, 10.0),
+        path_factor: 2.0,
+        path_factor_bounds: (1.5, 2.5),
+        relative_uncertainty: 0.01,
+    };
+}
+
 /// The reflector path factor g.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum ReflectorPath {
