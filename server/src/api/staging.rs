@@ -8,6 +8,7 @@ use crate::physics::bounds::Bounds;
 use crate::physics::gas::Gas;
 use crate::physics::jet;
 use crate::physics::models;
+use crate::physics::staging::limits::{CELLS, FREQ, G, JUMP, KAPPA, MACH_X, ORDER, REFLECTOR_X, REL, SIGMA};
 use crate::physics::staging::{
     compare_models, fit_stages, infer_directions, pressure_sweep_physics, Direction, FitConfig, FitDefaults,
     Param, Point, PointPhysics, ReflectorPath, StagingResult, SweepKind,
@@ -16,16 +17,6 @@ use jetloop_proto::pb;
 
 /// Most points in one request.
 pub const MAX_POINTS: usize = 100_000;
-const FREQ: Bounds = Bounds::open_closed(0.0, 1e7, "Hz");
-const SIGMA: Bounds = Bounds::open_closed(0.0, 1e6, "Hz");
-const JUMP: Bounds = Bounds::open_closed(0.0, 1.0, "");
-const ORDER: Bounds = Bounds::closed(1.0, 50.0, "");
-const KAPPA: Bounds = Bounds::open_closed(0.0, 1.5, "");
-const CELLS: Bounds = Bounds::closed(1.0, 50.0, "cells");
-const G: Bounds = Bounds::open_closed(0.0, 10.0, "");
-const REL: Bounds = Bounds::open_closed(0.0, 0.5, "");
-const REFLECTOR_X: Bounds = Bounds::closed(0.0, 1000.0, "m");
-const MACH_X: Bounds = Bounds::open_closed(1.0, 6.0, "");
 
 /// A validated staging question with the physics evaluated at each point.
 #[derive(Debug, Clone)]

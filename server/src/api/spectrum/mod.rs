@@ -27,21 +27,7 @@ pub const MAX_TOTAL_SAMPLES: usize = 1 << 25;
 /// Most channels in one request.
 pub const MAX_CHANNELS: u32 = 64;
 
-const SAMPLE_RATE: Bounds = Bounds::open_closed(0.0, 1e8, "Hz");
-const SCALE: Bounds = Bounds::open_closed(0.0, 1e9, "Pa per unit");
-const SENSITIVITY: Bounds = Bounds::open_closed(0.0, 100.0, "V/Pa");
-const VOLTS: Bounds = Bounds::open_closed(0.0, 1e6, "V per unit");
-const OVERLAP: Bounds = Bounds::closed(0.0, 0.95, "");
-const THRESHOLD: Bounds = Bounds::closed(0.0, 100.0, "dB");
-const SEPARATION: Bounds = Bounds::closed(0.0, 1e6, "Hz");
-const FLOOR_BINS: Bounds = Bounds::closed(3.0, 4097.0, "bins");
-const MAX_TONES: Bounds = Bounds::closed(1.0, 1000.0, "");
-const HARM_TOL: Bounds = Bounds::closed(0.1, 20.0, "bins");
-const HARM_ORDER: Bounds = Bounds::closed(2.0, 50.0, "");
-const PREDICTED: Bounds = Bounds::open_closed(0.0, 1e7, "Hz");
-const MATCH_TOL: Bounds = Bounds::open_closed(0.0, 1.0, "");
-const BAND_MAX: Bounds = Bounds::closed(20.0, 100_000.0, "Hz");
-const PSD_POINTS: Bounds = Bounds::closed(16.0, 1_048_577.0, "");
+use crate::dsp::limits::*;
 
 mod bands;
 mod samples;

@@ -113,6 +113,32 @@ pub struct FitConfig {
     pub a_amb: f64,
 }
 
+/// Allowed ranges of the staging inputs, defined once.
+pub mod limits {
+    use crate::physics::Bounds;
+
+    /// Allowed tone frequency of a measured point, Hz.
+    pub const FREQ: Bounds = Bounds::open_closed(0.0, 1e7, "Hz");
+    /// Allowed frequency uncertainty of a point, Hz.
+    pub const SIGMA: Bounds = Bounds::open_closed(0.0, 1e6, "Hz");
+    /// Allowed relative frequency change that separates stages.
+    pub const JUMP: Bounds = Bounds::open_closed(0.0, 1.0, "");
+    /// Allowed highest loop order.
+    pub const ORDER: Bounds = Bounds::closed(1.0, 50.0, "");
+    /// Allowed convection ratio bounds Uc/Uj.
+    pub const KAPPA: Bounds = Bounds::open_closed(0.0, 1.5, "");
+    /// Allowed source position, whole shock cells.
+    pub const CELLS: Bounds = Bounds::closed(1.0, 50.0, "cells");
+    /// Allowed reflector path factor.
+    pub const G: Bounds = Bounds::open_closed(0.0, 10.0, "");
+    /// Allowed default relative frequency uncertainty.
+    pub const REL: Bounds = Bounds::open_closed(0.0, 0.5, "");
+    /// Allowed reflector displacement of a reflector sweep, m.
+    pub const REFLECTOR_X: Bounds = Bounds::closed(0.0, 1000.0, "m");
+    /// Allowed fully expanded Mach number of an Mj sweep.
+    pub const MACH_X: Bounds = Bounds::open_closed(1.0, 6.0, "");
+}
+
 /// Default fit settings, in one place (the API records each one it applies).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct FitDefaults {
