@@ -1,13 +1,12 @@
 //! Gas-dynamics subcommands: isentropic, shock, jet; and info.
 
 use crate::output::Report;
-use crate::Failure;
+use crate::{Ctx, Failure, Run};
 use clap::{Args, ValueEnum};
 use jetloop_proto::pb::{
     self, gas_dynamics_service_client::GasDynamicsServiceClient, info_service_client::InfoServiceClient,
     isentropic_ratios_request::Given, nozzle::Kind, operating_point::Pressure,
 };
-use tonic::transport::Channel;
 
 /// Root of a two-valued relation.
 #[derive(Debug, Clone, Copy, ValueEnum)]
@@ -219,57 +218,63 @@ impl JetArgs {
 }
 
 /// Runs `isentropic`.
-pub async fn isentropic(ch: Channel, a: IsentropicArgs) -> Result<Report, Failure> {
-    let given = [
-        a.mach.map(Given::MachNumber),
-        a.temperature_ratio.map(Given::TemperatureRatio),
-        a.pressure_ratio.map(Given::PressureRatio),
-        a.density_ratio.map(Given::DensityRatio),
-        a.area_ratio.map(Given::AreaRatio),
-        a.mach_angle_deg.map(Given::MachAngleDeg),
-        a.prandtl_meyer_deg.map(Given::PrandtlMeyerAngleDeg),
-    ]
-    .into_iter()
-    .flatten()
-    .next();
-    let branch = match a.branch {
-        None => pb::MachBranch::Unspecified,
-        Some(BranchArg::Subsonic) => pb::MachBranch::Subsonic,
-        Some(BranchArg::Supersonic) => pb::MachBranch::Supersonic,
-    };
-    let r = GasDynamicsServiceClient::new(ch)
-        .isentropic_ratios(pb::IsentropicRatiosRequest { gamma: a.gamma, given, branch: branch as i32 })
-        .await?
-        .into_inner();
-    Ok(Report::new("Isentropic flow")
-        .num("gamma", "gamma", r.gamma, "")
-        .num("mach_number", "Mach number", r.mach_number, "")
-        .num("temperature_ratio", "T/T0", r.temperature_ratio, "")
-        .num("pressure_ratio", "p/p0", r.pressure_ratio, "")
-        .num("density_ratio", "rho/rho0", r.density_ratio, "")
-        .num("area_ratio", "A/A*", r.area_ratio, "")
-        .num("critical_velocity_ratio", "V/a*", r.critical_velocity_ratio, "")
-        .opt("mach_angle_deg", "Mach angle", r.mach_angle_deg, "deg")
-        .opt("prandtl_meyer_angle_deg", "Prandtl-Meyer angle", r.prandtl_meyer_angle_deg, "deg")
-        .provenance(r.provenance))
+impl Run for IsentropicArgs {
+    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
+        let (ch, a) = (ctx.channel().await?, self);
+        let given = [
+            a.mach.map(Given::MachNumber),
+            a.temperature_ratio.map(Given::TemperatureRatio),
+            a.pressure_ratio.map(Given::PressureRatio),
+            a.density_ratio.map(Given::DensityRatio),
+            a.area_ratio.map(Given::AreaRatio),
+            a.mach_angle_deg.map(Given::MachAngleDeg),
+            a.prandtl_meyer_deg.map(Given::PrandtlMeyerAngleDeg),
+        ]
+        .into_iter()
+        .flatten()
+        .next();
+        let branch = match a.branch {
+            None => pb::MachBranch::Unspecified,
+            Some(BranchArg::Subsonic) => pb::MachBranch::Subsonic,
+            Some(BranchArg::Supersonic) => pb::MachBranch::Supersonic,
+        };
+        let r = GasDynamicsServiceClient::new(ch)
+            .isentropic_ratios(pb::IsentropicRatiosRequest { gamma: a.gamma, given, branch: branch as i32 })
+            .await?
+            .into_inner();
+        Ok(Report::new("Isentropic flow")
+            .num("gamma", "gamma", r.gamma, "")
+            .num("mach_number", "Mach number", r.mach_number, "")
+            .num("temperature_ratio", "T/T0", r.temperature_ratio, "")
+            .num("pressure_ratio", "p/p0", r.pressure_ratio, "")
+            .num("density_ratio", "rho/rho0", r.density_ratio, "")
+            .num("area_ratio", "A/A*", r.area_ratio, "")
+            .num("critical_velocity_ratio", "V/a*", r.critical_velocity_ratio, "")
+            .opt("mach_angle_deg", "Mach angle", r.mach_angle_deg, "deg")
+            .opt("prandtl_meyer_angle_deg", "Prandtl-Meyer angle", r.prandtl_meyer_angle_deg, "deg")
+            .provenance(r.provenance))
+    }
 }
 
 /// Runs `shock`.
-pub async fn shock(ch: Channel, a: ShockArgs) -> Result<Report, Failure> {
-    let r = GasDynamicsServiceClient::new(ch)
-        .normal_shock(pb::NormalShockRequest { gamma: a.gamma, upstream_mach_number: a.mach })
-        .await?
-        .into_inner();
-    Ok(Report::new("Normal shock")
-        .num("gamma", "gamma", r.gamma, "")
-        .num("upstream_mach_number", "upstream Mach M1", r.upstream_mach_number, "")
-        .num("downstream_mach_number", "downstream Mach M2", r.downstream_mach_number, "")
-        .num("static_pressure_ratio", "p2/p1", r.static_pressure_ratio, "")
-        .num("density_ratio", "rho2/rho1", r.density_ratio, "")
-        .num("static_temperature_ratio", "T2/T1", r.static_temperature_ratio, "")
-        .num("total_pressure_ratio", "p02/p01", r.total_pressure_ratio, "")
-        .num("pitot_to_upstream_static_ratio", "p02/p1 (pitot)", r.pitot_to_upstream_static_ratio, "")
-        .provenance(r.provenance))
+impl Run for ShockArgs {
+    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
+        let (ch, a) = (ctx.channel().await?, self);
+        let r = GasDynamicsServiceClient::new(ch)
+            .normal_shock(pb::NormalShockRequest { gamma: a.gamma, upstream_mach_number: a.mach })
+            .await?
+            .into_inner();
+        Ok(Report::new("Normal shock")
+            .num("gamma", "gamma", r.gamma, "")
+            .num("upstream_mach_number", "upstream Mach M1", r.upstream_mach_number, "")
+            .num("downstream_mach_number", "downstream Mach M2", r.downstream_mach_number, "")
+            .num("static_pressure_ratio", "p2/p1", r.static_pressure_ratio, "")
+            .num("density_ratio", "rho2/rho1", r.density_ratio, "")
+            .num("static_temperature_ratio", "T2/T1", r.static_temperature_ratio, "")
+            .num("total_pressure_ratio", "p02/p01", r.total_pressure_ratio, "")
+            .num("pitot_to_upstream_static_ratio", "p02/p1 (pitot)", r.pitot_to_upstream_static_ratio, "")
+            .provenance(r.provenance))
+    }
 }
 
 /// Lower-case regime name for tables.
@@ -283,68 +288,83 @@ pub fn regime_name(r: i32) -> String {
 }
 
 /// Runs `jet`.
-pub async fn jet(ch: Channel, a: JetArgs) -> Result<Report, Failure> {
-    let conditions = a.conditions()?;
-    let r = GasDynamicsServiceClient::new(ch)
-        .jet_state(pb::JetStateRequest { conditions: Some(conditions) })
-        .await?
-        .into_inner();
-    let s = r.state.unwrap_or_default();
-    Ok(Report::new("Fully expanded jet")
-        .num("nozzle_pressure_ratio", "nozzle pressure ratio", s.nozzle_pressure_ratio, "")
-        .num("total_pressure_pa", "reservoir pressure", s.total_pressure_pa, "Pa")
-        .num("ambient_pressure_pa", "ambient pressure", s.ambient_pressure_pa, "Pa")
-        .num("total_temperature_k", "reservoir temperature", s.total_temperature_k, "K")
-        .num("ambient_temperature_k", "ambient temperature", s.ambient_temperature_k, "K")
-        .num("total_to_ambient_temperature_ratio", "T0/T_ambient", s.total_to_ambient_temperature_ratio, "")
-        .num("design_mach_number", "design Mach number", s.design_mach_number, "")
-        .num("design_nozzle_pressure_ratio", "design NPR", s.design_nozzle_pressure_ratio, "")
-        .text("regime", "regime", regime_name(s.regime))
-        .flag("supersonic", "supersonic (shock cells)", s.supersonic)
-        .flag("exit_supersonic", "supersonic at the exit", s.exit_supersonic)
-        .flag("choked", "choked", s.choked)
-        .flag("mach_disk_expected", "Mach disk expected", s.mach_disk_expected)
-        .num("exit_to_ambient_pressure_ratio", "pe/pa", s.exit_to_ambient_pressure_ratio, "")
-        .num("ideal_expansion_tolerance", "ideal if |pe/pa - 1| <=", s.ideal_expansion_tolerance, "")
-        .num("isentropic_mach_number", "isentropic Mach number", s.isentropic_mach_number, "")
-        .opt("fully_expanded_mach_number", "Mj", s.fully_expanded_mach_number, "")
-        .opt("beta_from_design_mach", "sqrt|Mj^2-Md^2|", s.beta_from_design_mach, "")
-        .opt("fully_expanded_diameter_m", "Dj", s.fully_expanded_diameter_m, "m")
-        .opt("fully_expanded_height_m", "hj", s.fully_expanded_height_m, "m")
-        .opt("fully_expanded_width_m", "bj", s.fully_expanded_width_m, "m")
-        .opt("fully_expanded_to_exit_area_ratio", "Aj/Ae", s.fully_expanded_to_exit_area_ratio, "")
-        .opt("fully_expanded_temperature_k", "Tj", s.fully_expanded_temperature_k, "K")
-        .opt("fully_expanded_velocity_m_per_s", "Uj", s.fully_expanded_velocity_m_per_s, "m/s")
-        .opt("fully_expanded_density_kg_per_m3", "rho_j", s.fully_expanded_density_kg_per_m3, "kg/m^3")
-        .opt("jet_sound_speed_m_per_s", "a_j", s.jet_sound_speed_m_per_s, "m/s")
-        .num("ambient_sound_speed_m_per_s", "a_ambient", s.ambient_sound_speed_m_per_s, "m/s")
-        .opt("acoustic_mach_number", "Uj/a_ambient", s.acoustic_mach_number, "")
-        .num("exit_mach_number", "exit Mach number", s.exit_mach_number, "")
-        .num("exit_pressure_pa", "exit pressure", s.exit_pressure_pa, "Pa")
-        .opt("exit_area_m2", "exit area", s.exit_area_m2, "m^2")
-        .opt("mass_flow_kg_per_s", "mass flow", s.mass_flow_kg_per_s, "kg/s")
-        .opt(
-            "mass_flow_per_span_kg_per_s_m",
-            "mass flow per span",
-            s.mass_flow_per_span_kg_per_s_m,
-            "kg/(s m)",
-        )
-        .num("gamma", "gamma", s.gamma, "")
-        .num("gas_constant_j_per_kg_k", "gas constant", s.gas_constant_j_per_kg_k, "J/(kg K)")
-        .provenance(r.provenance))
+impl Run for JetArgs {
+    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
+        let (ch, a) = (ctx.channel().await?, self);
+        let conditions = a.conditions()?;
+        let r = GasDynamicsServiceClient::new(ch)
+            .jet_state(pb::JetStateRequest { conditions: Some(conditions) })
+            .await?
+            .into_inner();
+        let s = r.state.unwrap_or_default();
+        Ok(Report::new("Fully expanded jet")
+            .num("nozzle_pressure_ratio", "nozzle pressure ratio", s.nozzle_pressure_ratio, "")
+            .num("total_pressure_pa", "reservoir pressure", s.total_pressure_pa, "Pa")
+            .num("ambient_pressure_pa", "ambient pressure", s.ambient_pressure_pa, "Pa")
+            .num("total_temperature_k", "reservoir temperature", s.total_temperature_k, "K")
+            .num("ambient_temperature_k", "ambient temperature", s.ambient_temperature_k, "K")
+            .num(
+                "total_to_ambient_temperature_ratio",
+                "T0/T_ambient",
+                s.total_to_ambient_temperature_ratio,
+                "",
+            )
+            .num("design_mach_number", "design Mach number", s.design_mach_number, "")
+            .num("design_nozzle_pressure_ratio", "design NPR", s.design_nozzle_pressure_ratio, "")
+            .text("regime", "regime", regime_name(s.regime))
+            .flag("supersonic", "supersonic (shock cells)", s.supersonic)
+            .flag("exit_supersonic", "supersonic at the exit", s.exit_supersonic)
+            .flag("choked", "choked", s.choked)
+            .flag("mach_disk_expected", "Mach disk expected", s.mach_disk_expected)
+            .num("exit_to_ambient_pressure_ratio", "pe/pa", s.exit_to_ambient_pressure_ratio, "")
+            .num("ideal_expansion_tolerance", "ideal if |pe/pa - 1| <=", s.ideal_expansion_tolerance, "")
+            .num("isentropic_mach_number", "isentropic Mach number", s.isentropic_mach_number, "")
+            .opt("fully_expanded_mach_number", "Mj", s.fully_expanded_mach_number, "")
+            .opt("beta_from_design_mach", "sqrt|Mj^2-Md^2|", s.beta_from_design_mach, "")
+            .opt("fully_expanded_diameter_m", "Dj", s.fully_expanded_diameter_m, "m")
+            .opt("fully_expanded_height_m", "hj", s.fully_expanded_height_m, "m")
+            .opt("fully_expanded_width_m", "bj", s.fully_expanded_width_m, "m")
+            .opt("fully_expanded_to_exit_area_ratio", "Aj/Ae", s.fully_expanded_to_exit_area_ratio, "")
+            .opt("fully_expanded_temperature_k", "Tj", s.fully_expanded_temperature_k, "K")
+            .opt("fully_expanded_velocity_m_per_s", "Uj", s.fully_expanded_velocity_m_per_s, "m/s")
+            .opt("fully_expanded_density_kg_per_m3", "rho_j", s.fully_expanded_density_kg_per_m3, "kg/m^3")
+            .opt("jet_sound_speed_m_per_s", "a_j", s.jet_sound_speed_m_per_s, "m/s")
+            .num("ambient_sound_speed_m_per_s", "a_ambient", s.ambient_sound_speed_m_per_s, "m/s")
+            .opt("acoustic_mach_number", "Uj/a_ambient", s.acoustic_mach_number, "")
+            .num("exit_mach_number", "exit Mach number", s.exit_mach_number, "")
+            .num("exit_pressure_pa", "exit pressure", s.exit_pressure_pa, "Pa")
+            .opt("exit_area_m2", "exit area", s.exit_area_m2, "m^2")
+            .opt("mass_flow_kg_per_s", "mass flow", s.mass_flow_kg_per_s, "kg/s")
+            .opt(
+                "mass_flow_per_span_kg_per_s_m",
+                "mass flow per span",
+                s.mass_flow_per_span_kg_per_s_m,
+                "kg/(s m)",
+            )
+            .num("gamma", "gamma", s.gamma, "")
+            .num("gas_constant_j_per_kg_k", "gas constant", s.gas_constant_j_per_kg_k, "J/(kg K)")
+            .provenance(r.provenance))
+    }
 }
 
 /// Runs `info`.
-pub async fn info(ch: Channel) -> Result<Report, Failure> {
-    let r = InfoServiceClient::new(ch).server_info(pb::ServerInfoRequest {}).await?.into_inner();
-    let l = r.limits.unwrap_or_default();
-    let mut p = r.provenance.unwrap_or_default();
-    p.models = r.models;
-    p.notes.push(r.safety_notice);
-    Ok(Report::new(format!("jetloop server {}", r.server_version))
-        .text("services", "services", r.services.join(", "))
-        .int("max_request_bytes", "largest request", l.max_request_bytes, "bytes")
-        .num("request_timeout_s", "time limit per call", l.request_timeout_s, "s")
-        .int("max_concurrent_requests", "calls at once (server-wide)", l.max_concurrent_requests, "")
-        .provenance(Some(p)))
+/// `jetloop info`: no arguments.
+#[derive(Debug, Args)]
+pub struct InfoCmd {}
+
+impl Run for InfoCmd {
+    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
+        let ch = ctx.channel().await?;
+        let r = InfoServiceClient::new(ch).server_info(pb::ServerInfoRequest {}).await?.into_inner();
+        let l = r.limits.unwrap_or_default();
+        let mut p = r.provenance.unwrap_or_default();
+        p.models = r.models;
+        p.notes.push(r.safety_notice);
+        Ok(Report::new(format!("jetloop server {}", r.server_version))
+            .text("services", "services", r.services.join(", "))
+            .int("max_request_bytes", "largest request", l.max_request_bytes, "bytes")
+            .num("request_timeout_s", "time limit per call", l.request_timeout_s, "s")
+            .int("max_concurrent_requests", "calls at once (server-wide)", l.max_concurrent_requests, "")
+            .provenance(Some(p)))
+    }
 }

@@ -8,9 +8,11 @@
 
 mod gas;
 mod output;
+mod plot;
 mod readers;
 mod spectrum;
 mod staging;
+mod synth;
 mod tones;
 
 use clap::{Parser, Subcommand};
@@ -53,11 +55,11 @@ enum Command {
     /// One-third-octave band levels, overall and A-weighted levels of a recording.
     Bands(spectrum::BandsCmd),
     /// Write a demo WAV of an imagined jet rig (screech, harmonics, shock-noise hump, noise).
-    Synth(spectrum::SynthCmd),
+    Synth(synth::SynthCmd),
     /// Stages, jumps, hysteresis and loop-model fits of a measured sweep (CSV).
     Fit(staging::FitCmd),
     /// Server version, models with references, and limits.
-    Info,
+    Info(gas::InfoCmd),
 }
 
 /// Why the CLI failed, mapped to an exit code.
@@ -77,30 +79,52 @@ impl From<tonic::Status> for Failure {
     }
 }
 
-async fn channel(url: &str) -> Result<tonic::transport::Channel, Failure> {
-    let ep = tonic::transport::Endpoint::from_shared(url.to_string())
-        .map_err(|e| Failure::Usage(format!("--server {url}: {e}")))?;
-    ep.connect().await.map_err(|e| Failure::Connect(format!("cannot reach the jetloop server at {url}: {e}")))
+/// Where the server is; commands connect when they need it (`synth` never does).
+#[derive(Debug)]
+pub(crate) struct Ctx {
+    server: String,
+}
+
+impl Ctx {
+    /// A connection to the server.
+    ///
+    /// # Errors
+    /// [`Failure::Usage`] for a malformed address, [`Failure::Connect`] when it cannot be
+    /// reached.
+    pub async fn channel(&self) -> Result<tonic::transport::Channel, Failure> {
+        let url = &self.server;
+        let ep = tonic::transport::Endpoint::from_shared(url.clone())
+            .map_err(|e| Failure::Usage(format!("--server {url}: {e}")))?;
+        ep.connect()
+            .await
+            .map_err(|e| Failure::Connect(format!("cannot reach the jetloop server at {url}: {e}")))
+    }
+}
+
+/// One `jetloop` subcommand: its arguments (parsed by clap) run into a report.
+pub(crate) trait Run {
+    /// Runs the command, connecting to the server through `ctx` when it needs one.
+    ///
+    /// # Errors
+    /// [`Failure`] as the exit code needs it.
+    async fn run(self, ctx: &Ctx) -> Result<output::Report, Failure>;
 }
 
 async fn run(cli: Cli) -> Result<output::Report, Failure> {
-    if let Command::Synth(a) = cli.command {
-        return spectrum::synth(a);
-    }
-    let ch = channel(&cli.server).await?;
+    let ctx = Ctx { server: cli.server };
     match cli.command {
-        Command::Isentropic(a) => gas::isentropic(ch, a).await,
-        Command::Shock(a) => gas::shock(ch, a).await,
-        Command::Jet(a) => gas::jet(ch, a).await,
-        Command::Cells(a) => tones::cells(ch, a).await,
-        Command::Screech(a) => tones::screech(ch, a).await,
-        Command::ShockNoise(a) => tones::shock_noise(ch, a).await,
-        Command::Sweep(a) => tones::sweep(ch, a).await,
-        Command::Tones(a) => spectrum::tones(ch, a).await,
-        Command::Bands(a) => spectrum::bands(ch, a).await,
-        Command::Synth(_) => Err(Failure::Usage("synth runs without a server".into())),
-        Command::Fit(a) => staging::fit(ch, a).await,
-        Command::Info => gas::info(ch).await,
+        Command::Isentropic(a) => a.run(&ctx).await,
+        Command::Shock(a) => a.run(&ctx).await,
+        Command::Jet(a) => a.run(&ctx).await,
+        Command::Cells(a) => a.run(&ctx).await,
+        Command::Screech(a) => a.run(&ctx).await,
+        Command::ShockNoise(a) => a.run(&ctx).await,
+        Command::Sweep(a) => a.run(&ctx).await,
+        Command::Tones(a) => a.run(&ctx).await,
+        Command::Bands(a) => a.run(&ctx).await,
+        Command::Synth(a) => a.run(&ctx).await,
+        Command::Fit(a) => a.run(&ctx).await,
+        Command::Info(a) => a.run(&ctx).await,
     }
 }
 

@@ -167,12 +167,7 @@ impl InputArgs {
             .map_err(|_| Failure::Usage(format!("{}: CSV files must be UTF-8 text", self.file.display())))?;
         let mut names = Vec::new();
         let mut columns: Vec<Vec<f64>> = Vec::new();
-        for (i, line) in text.lines().enumerate() {
-            let line = line.trim();
-            if line.is_empty() || line.starts_with('#') {
-                continue;
-            }
-            let cells: Vec<&str> = line.split([',', ';', '\t']).map(str::trim).collect();
+        for (i, cells) in csv_rows(text) {
             if columns.is_empty() && names.is_empty() && cells.iter().any(|c| c.parse::<f64>().is_err()) {
                 names = cells.iter().map(|c| c.to_string()).collect();
                 continue;
@@ -262,4 +257,14 @@ pub fn spinner(msg: &str) -> ProgressBar {
     s.set_message(msg.to_string());
     s.enable_steady_tick(std::time::Duration::from_millis(120));
     s
+}
+
+/// The rows of a delimited text file: (line index from 0, trimmed cells), skipping blank
+/// lines and `#` comments. Cells are separated by commas, semicolons or tabs.
+pub fn csv_rows(text: &str) -> impl Iterator<Item = (usize, Vec<&str>)> {
+    text.lines().enumerate().filter_map(|(i, line)| {
+        let line = line.trim();
+        (!line.is_empty() && !line.starts_with('#'))
+            .then(|| (i, line.split([',', ';', '\t']).map(str::trim).collect()))
+    })
 }

@@ -1,8 +1,9 @@
 //! Spectrum subcommands: tones, bands, synth; PSD plots as SVG.
 
 use crate::output::{Report, Table, Val};
+use crate::plot::{Axis, Marker, Plot, COLOURS};
 use crate::readers::{spinner, InputArgs};
-use crate::Failure;
+use crate::{Ctx, Failure, Run};
 use clap::{Args, ValueEnum};
 use jetloop_proto::pb::{self, spectrum_service_client::SpectrumServiceClient};
 use std::path::PathBuf;
@@ -206,425 +207,243 @@ fn caution_rows(mut r: Report, c: &[String]) -> Report {
 }
 
 /// Runs `tones`.
-pub async fn tones(ch: Channel, a: TonesCmd) -> Result<Report, Failure> {
-    let samples = a.input.read()?;
-    let want_psd = a.plot.is_some() || a.psd_csv.is_some();
-    let req = pb::ExtractTonesRequest {
-        samples: Some(samples),
-        welch: Some(a.welch.options()),
-        tones: Some(pb::ToneOptions {
-            threshold_db: a.threshold_db,
-            min_separation_hz: a.min_separation_hz,
-            max_tones: a.max_tones,
-            ..Default::default()
-        }),
-        predicted_screech_hz: a.predicted_hz,
-        match_tolerance_fraction: None,
-        include_band_levels: a.bands,
-        max_band_frequency_hz: None,
-        psd_output: Some(pb::PsdOutputOptions { include: want_psd, max_points: None }),
-    };
-    let mut client = SpectrumServiceClient::new(ch)
-        .max_decoding_message_size(256 * 1024 * 1024)
-        .max_encoding_message_size(256 * 1024 * 1024);
-    let raw_len = match req.samples.as_ref().and_then(|s| s.data.as_ref()) {
-        Some(pb::samples::Data::Raw(r)) => r.data.len(),
-        _ => 0,
-    };
-    let block = a.block_bytes.unwrap_or(if raw_len > 4 << 20 { 1 << 20 } else { 0 });
-    let blocks = if block == 0 { None } else { req.samples.as_ref().and_then(|s| blocks_of(s, block)) };
-    let (r, timing) = match blocks {
-        Some(blocks) => {
-            let n = blocks.len();
-            let r = extract_in_blocks(&mut client, req, blocks).await?;
-            let t = format!(
-                "sent in {n} blocks; {:.1} ms from the last block to the answer",
-                r.compute_time_s * 1e3
-            );
-            (r, t)
-        }
-        None => {
-            let s = spinner("uploading and analysing on the server");
-            let r = client.extract_tones(req).await;
-            s.finish_and_clear();
-            let r = r?.into_inner();
-            let t = format!("{:.1} ms server time", r.compute_time_s * 1e3);
-            (r, t)
-        }
-    };
-    let mut top = Report::new(format!(
-        "Tones in {} ({} channel(s), {timing})",
-        a.input.file.display(),
-        r.channels.len(),
-    ));
-    let several = r.channels.len() > 1;
-    for c in &r.channels {
-        let label = if c.name.is_empty() { format!("channel {}", c.channel) } else { c.name.clone() };
-        let mut rep = Report::new(format!("-- {label}"));
-        if let Some(an) = &c.analysis {
-            rep = analysis_rows(rep.text("channel", "channel", label.clone()), an)
-                .num("rms_pa", "rms pressure", c.rms_pa, "Pa")
-                .num("overall_level_db", "overall level", c.overall_level_db, "dB re 20 uPa");
-        }
-        let mut t = Table::new("tones", format!("Tones, {label}"))
-            .col("frequency_hz", "f [Hz]")
-            .col("level_db", "L [dB re 20 uPa]")
-            .col("tone_to_floor_db", "above floor [dB]")
-            .col("bandwidth_3db_hz", "-3 dB width [Hz]")
-            .col("family", "family")
-            .col("harmonic_order", "order");
-        for x in &c.tones {
-            t.row(vec![
-                Some(Val::Num(x.frequency_hz)),
-                Some(Val::Num(x.level_db)),
-                Some(Val::Num(x.tone_to_floor_db)),
-                Some(Val::Num(x.bandwidth_3db_hz)),
-                x.family.map(|v| Val::Int(v.into())),
-                x.harmonic_order.map(|v| Val::Int(v.into())),
-            ]);
-        }
-        rep = rep.table(t);
-        let mut fam = Table::new("families", format!("Harmonic families, {label}"))
-            .col("id", "family")
-            .col("fundamental_hz", "f0 [Hz]")
-            .col("orders", "orders")
-            .col("level_db", "L [dB]");
-        for f in &c.families {
-            let orders: Vec<String> = f.orders.iter().map(u32::to_string).collect();
-            fam.row(vec![
-                Some(Val::Int(f.id.into())),
-                Some(Val::Num(f.fundamental_hz)),
-                Some(Val::Text(orders.join(" "))),
-                Some(Val::Num(f.level_db)),
-            ]);
-        }
-        rep = rep.table(fam);
-        for comb in &c.combinations {
-            let kind = if comb.is_sum { "sum" } else { "difference" };
-            rep = rep.text(
-                "combination",
-                "combination tone",
-                format!(
-                    "tone {} at the {kind} of families {} and {} ({:.1} Hz)",
-                    comb.tone_index, comb.family_a, comb.family_b, comb.expected_hz
-                ),
-            );
-        }
-        if let Some(m) = &c.predicted_match {
-            let text = match (m.tone_frequency_hz, m.difference_hz) {
-                (Some(f), Some(d)) => format!(
-                    "predicted {:.1} Hz, nearest tone {:.1} Hz ({:+.1} Hz, {:+.2} %): {}",
-                    m.predicted_hz,
-                    f,
-                    d,
-                    100.0 * m.relative_difference.unwrap_or(0.0),
-                    if m.matched { "matched" } else { "outside the tolerance" }
-                ),
-                _ => format!("predicted {:.1} Hz: no tones found", m.predicted_hz),
-            };
-            rep = rep.text("predicted_match", "screech prediction", text);
-        }
-        if let Some(b) = &c.bands {
-            rep = rep
-                .num("a_weighted_overall_db", "A-weighted overall", b.a_weighted_overall_db, "dB(A)")
-                .table(band_table(b));
-        }
-        rep = caution_rows(rep, &c.cautions);
-        if let Some(p) = &c.psd {
-            let suffix = |path: &PathBuf| -> PathBuf {
-                if several {
-                    let stem = path.file_stem().and_then(|s| s.to_str()).unwrap_or("psd");
-                    let ext = path.extension().and_then(|s| s.to_str()).unwrap_or("");
-                    path.with_file_name(format!("{stem}-ch{}.{ext}", c.channel))
-                } else {
-                    path.clone()
-                }
-            };
-            if let Some(path) = &a.plot {
-                let path = suffix(path);
-                std::fs::write(&path, svg_plot(&label, p, &c.tones))
-                    .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
-                eprintln!("wrote PSD plot {}", path.display());
+impl Run for TonesCmd {
+    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
+        let (ch, a) = (ctx.channel().await?, self);
+        let samples = a.input.read()?;
+        let want_psd = a.plot.is_some() || a.psd_csv.is_some();
+        let req = pb::ExtractTonesRequest {
+            samples: Some(samples),
+            welch: Some(a.welch.options()),
+            tones: Some(pb::ToneOptions {
+                threshold_db: a.threshold_db,
+                min_separation_hz: a.min_separation_hz,
+                max_tones: a.max_tones,
+                ..Default::default()
+            }),
+            predicted_screech_hz: a.predicted_hz,
+            match_tolerance_fraction: None,
+            include_band_levels: a.bands,
+            max_band_frequency_hz: None,
+            psd_output: Some(pb::PsdOutputOptions { include: want_psd, max_points: None }),
+        };
+        let mut client = SpectrumServiceClient::new(ch)
+            .max_decoding_message_size(256 * 1024 * 1024)
+            .max_encoding_message_size(256 * 1024 * 1024);
+        let raw_len = match req.samples.as_ref().and_then(|s| s.data.as_ref()) {
+            Some(pb::samples::Data::Raw(r)) => r.data.len(),
+            _ => 0,
+        };
+        let block = a.block_bytes.unwrap_or(if raw_len > 4 << 20 { 1 << 20 } else { 0 });
+        let blocks = if block == 0 { None } else { req.samples.as_ref().and_then(|s| blocks_of(s, block)) };
+        let (r, timing) = match blocks {
+            Some(blocks) => {
+                let n = blocks.len();
+                let r = extract_in_blocks(&mut client, req, blocks).await?;
+                let t = format!(
+                    "sent in {n} blocks; {:.1} ms from the last block to the answer",
+                    r.compute_time_s * 1e3
+                );
+                (r, t)
             }
-            if let Some(path) = &a.psd_csv {
-                let path = suffix(path);
-                let mut csv = String::from("frequency_hz,density_pa2_per_hz,floor_pa2_per_hz\n");
-                for (i, f) in p.frequency_hz.iter().enumerate() {
-                    let fl = p.floor_pa2_per_hz.get(i).map_or(String::new(), |v| v.to_string());
-                    csv.push_str(&format!("{f},{},{fl}\n", p.density_pa2_per_hz[i]));
-                }
-                std::fs::write(&path, csv)
-                    .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
-                eprintln!("wrote PSD {}", path.display());
+            None => {
+                let s = spinner("uploading and analysing on the server");
+                let r = client.extract_tones(req).await;
+                s.finish_and_clear();
+                let r = r?.into_inner();
+                let t = format!("{:.1} ms server time", r.compute_time_s * 1e3);
+                (r, t)
             }
+        };
+        let mut top = Report::new(format!(
+            "Tones in {} ({} channel(s), {timing})",
+            a.input.file.display(),
+            r.channels.len(),
+        ));
+        let several = r.channels.len() > 1;
+        for c in &r.channels {
+            let label = if c.name.is_empty() { format!("channel {}", c.channel) } else { c.name.clone() };
+            let mut rep = Report::new(format!("-- {label}"));
+            if let Some(an) = &c.analysis {
+                rep = analysis_rows(rep.text("channel", "channel", label.clone()), an)
+                    .num("rms_pa", "rms pressure", c.rms_pa, "Pa")
+                    .num("overall_level_db", "overall level", c.overall_level_db, "dB re 20 uPa");
+            }
+            let mut t = Table::new("tones", format!("Tones, {label}"))
+                .col("frequency_hz", "f [Hz]")
+                .col("level_db", "L [dB re 20 uPa]")
+                .col("tone_to_floor_db", "above floor [dB]")
+                .col("bandwidth_3db_hz", "-3 dB width [Hz]")
+                .col("family", "family")
+                .col("harmonic_order", "order");
+            for x in &c.tones {
+                t.row(vec![
+                    Some(Val::Num(x.frequency_hz)),
+                    Some(Val::Num(x.level_db)),
+                    Some(Val::Num(x.tone_to_floor_db)),
+                    Some(Val::Num(x.bandwidth_3db_hz)),
+                    x.family.map(|v| Val::Int(v.into())),
+                    x.harmonic_order.map(|v| Val::Int(v.into())),
+                ]);
+            }
+            rep = rep.table(t);
+            let mut fam = Table::new("families", format!("Harmonic families, {label}"))
+                .col("id", "family")
+                .col("fundamental_hz", "f0 [Hz]")
+                .col("orders", "orders")
+                .col("level_db", "L [dB]");
+            for f in &c.families {
+                let orders: Vec<String> = f.orders.iter().map(u32::to_string).collect();
+                fam.row(vec![
+                    Some(Val::Int(f.id.into())),
+                    Some(Val::Num(f.fundamental_hz)),
+                    Some(Val::Text(orders.join(" "))),
+                    Some(Val::Num(f.level_db)),
+                ]);
+            }
+            rep = rep.table(fam);
+            for comb in &c.combinations {
+                let kind = if comb.is_sum { "sum" } else { "difference" };
+                rep = rep.text(
+                    "combination",
+                    "combination tone",
+                    format!(
+                        "tone {} at the {kind} of families {} and {} ({:.1} Hz)",
+                        comb.tone_index, comb.family_a, comb.family_b, comb.expected_hz
+                    ),
+                );
+            }
+            if let Some(m) = &c.predicted_match {
+                let text = match (m.tone_frequency_hz, m.difference_hz) {
+                    (Some(f), Some(d)) => format!(
+                        "predicted {:.1} Hz, nearest tone {:.1} Hz ({:+.1} Hz, {:+.2} %): {}",
+                        m.predicted_hz,
+                        f,
+                        d,
+                        100.0 * m.relative_difference.unwrap_or(0.0),
+                        if m.matched { "matched" } else { "outside the tolerance" }
+                    ),
+                    _ => format!("predicted {:.1} Hz: no tones found", m.predicted_hz),
+                };
+                rep = rep.text("predicted_match", "screech prediction", text);
+            }
+            if let Some(b) = &c.bands {
+                rep = rep
+                    .num("a_weighted_overall_db", "A-weighted overall", b.a_weighted_overall_db, "dB(A)")
+                    .table(band_table(b));
+            }
+            rep = caution_rows(rep, &c.cautions);
+            if let Some(p) = &c.psd {
+                let suffix = |path: &PathBuf| -> PathBuf {
+                    if several {
+                        let stem = path.file_stem().and_then(|s| s.to_str()).unwrap_or("psd");
+                        let ext = path.extension().and_then(|s| s.to_str()).unwrap_or("");
+                        path.with_file_name(format!("{stem}-ch{}.{ext}", c.channel))
+                    } else {
+                        path.clone()
+                    }
+                };
+                if let Some(path) = &a.plot {
+                    let path = suffix(path);
+                    std::fs::write(&path, svg_plot(&label, p, &c.tones))
+                        .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
+                    eprintln!("wrote PSD plot {}", path.display());
+                }
+                if let Some(path) = &a.psd_csv {
+                    let path = suffix(path);
+                    let mut csv = String::from("frequency_hz,density_pa2_per_hz,floor_pa2_per_hz\n");
+                    for (i, f) in p.frequency_hz.iter().enumerate() {
+                        let fl = p.floor_pa2_per_hz.get(i).map_or(String::new(), |v| v.to_string());
+                        csv.push_str(&format!("{f},{},{fl}\n", p.density_pa2_per_hz[i]));
+                    }
+                    std::fs::write(&path, csv)
+                        .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
+                    eprintln!("wrote PSD {}", path.display());
+                }
+            }
+            top = top.child(rep);
         }
-        top = top.child(rep);
+        Ok(top.provenance(r.provenance))
     }
-    Ok(top.provenance(r.provenance))
 }
 
 /// Runs `bands`.
-pub async fn bands(ch: Channel, a: BandsCmd) -> Result<Report, Failure> {
-    let samples = a.input.read()?;
-    let s = spinner("uploading and analysing on the server");
-    let r = SpectrumServiceClient::new(ch)
-        .max_encoding_message_size(256 * 1024 * 1024)
-        .band_levels(pb::BandLevelsRequest {
-            samples: Some(samples),
-            welch: Some(a.welch.options()),
-            max_band_frequency_hz: a.max_band_hz,
-        })
-        .await;
-    s.finish_and_clear();
-    let r = r?.into_inner();
-    let mut top = Report::new(format!("Band levels of {}", a.input.file.display()));
-    for c in &r.channels {
-        let label = if c.name.is_empty() { format!("channel {}", c.channel) } else { c.name.clone() };
-        let b = c.bands.clone().unwrap_or_default();
-        let mut rep = Report::new(format!("-- {label}"))
-            .text("channel", "channel", label)
-            .num("overall_level_db", "overall level", b.overall_level_db, "dB re 20 uPa")
-            .num("a_weighted_overall_db", "A-weighted overall", b.a_weighted_overall_db, "dB(A)")
-            .num("outside_span_level_db", "level outside the bands", b.outside_span_level_db, "dB re 20 uPa")
-            .table(band_table(&b));
-        rep = caution_rows(rep, &c.cautions);
-        top = top.child(rep);
+impl Run for BandsCmd {
+    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
+        let (ch, a) = (ctx.channel().await?, self);
+        let samples = a.input.read()?;
+        let s = spinner("uploading and analysing on the server");
+        let r = SpectrumServiceClient::new(ch)
+            .max_encoding_message_size(256 * 1024 * 1024)
+            .band_levels(pb::BandLevelsRequest {
+                samples: Some(samples),
+                welch: Some(a.welch.options()),
+                max_band_frequency_hz: a.max_band_hz,
+            })
+            .await;
+        s.finish_and_clear();
+        let r = r?.into_inner();
+        let mut top = Report::new(format!("Band levels of {}", a.input.file.display()));
+        for c in &r.channels {
+            let label = if c.name.is_empty() { format!("channel {}", c.channel) } else { c.name.clone() };
+            let b = c.bands.clone().unwrap_or_default();
+            let mut rep = Report::new(format!("-- {label}"))
+                .text("channel", "channel", label)
+                .num("overall_level_db", "overall level", b.overall_level_db, "dB re 20 uPa")
+                .num("a_weighted_overall_db", "A-weighted overall", b.a_weighted_overall_db, "dB(A)")
+                .num(
+                    "outside_span_level_db",
+                    "level outside the bands",
+                    b.outside_span_level_db,
+                    "dB re 20 uPa",
+                )
+                .table(band_table(&b));
+            rep = caution_rows(rep, &c.cautions);
+            top = top.child(rep);
+        }
+        Ok(top.provenance(r.provenance))
     }
-    Ok(top.provenance(r.provenance))
 }
 
 /// An SVG plot of a PSD in dB re (20 uPa)^2/Hz against log frequency, with the floor and the
-/// tones marked.
+/// tones marked (each labelled with its frequency and its level in dB re 20 uPa).
 pub fn svg_plot(title: &str, p: &pb::PsdData, tones: &[pb::ExtractedTone]) -> String {
-    let (w, h, l, r, t, b) = (900.0, 480.0, 70.0, 20.0, 40.0, 50.0);
     let db = |d: f64| 10.0 * (d.max(1e-30) / 4e-10).log10();
-    let pts: Vec<(f64, f64)> = p
-        .frequency_hz
-        .iter()
-        .zip(&p.density_pa2_per_hz)
-        .filter(|(f, _)| **f > 0.0)
-        .map(|(f, d)| (*f, db(*d)))
-        .collect();
-    if pts.is_empty() {
+    let series = |ys: &[f64]| -> Vec<(f64, f64)> {
+        p.frequency_hz.iter().zip(ys).filter(|(f, _)| **f > 0.0).map(|(f, d)| (*f, db(*d))).collect()
+    };
+    let pts = series(&p.density_pa2_per_hz);
+    let (Some(first), Some(last)) = (pts.first(), pts.last()) else {
         return String::from("<svg xmlns=\"http://www.w3.org/2000/svg\"/>");
-    }
-    let fmin = pts[0].0;
-    let fmax = pts[pts.len() - 1].0;
-    let ymax = (pts.iter().map(|p| p.1).fold(f64::MIN, f64::max) / 10.0).ceil() * 10.0 + 5.0;
-    let ymin = (pts.iter().map(|p| p.1).fold(f64::MAX, f64::min) / 10.0).floor() * 10.0;
-    let x = |f: f64| l + (f.log10() - fmin.log10()) / (fmax.log10() - fmin.log10()) * (w - l - r);
-    let y = |v: f64| t + (ymax - v) / (ymax - ymin) * (h - t - b);
-    let mut s = format!(
-        "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{h}\" font-family=\"sans-serif\" font-size=\"12\">\n\
-         <rect width=\"100%\" height=\"100%\" fill=\"white\"/>\n\
-         <text x=\"{l}\" y=\"22\" font-size=\"14\">PSD, {}</text>\n",
-        escape(title)
+    };
+    let (fmin, fmax) = (first.0, last.0);
+    let ymax = pts.iter().map(|p| p.1).fold(f64::MIN, f64::max) + 5.0;
+    let ymin = pts.iter().map(|p| p.1).fold(f64::MAX, f64::min);
+    let mut plot = Plot::new(
+        &format!("PSD, {title}"),
+        900.0,
+        480.0,
+        Axis::log(fmin, fmax, "frequency [Hz]"),
+        Axis::linear(ymin, ymax, "PSD [dB re (20 uPa)^2/Hz]"),
     );
-    let mut dec = 10f64.powf(fmin.log10().floor());
-    while dec <= fmax {
-        for m in [1.0, 2.0, 5.0] {
-            let f = dec * m;
-            if f >= fmin && f <= fmax {
-                let xx = x(f);
-                s.push_str(&format!(
-                    "<line x1=\"{xx:.1}\" y1=\"{t}\" x2=\"{xx:.1}\" y2=\"{:.1}\" stroke=\"#ddd\"/>\n",
-                    h - b
-                ));
-                let label = if f >= 1000.0 { format!("{}k", f / 1000.0) } else { format!("{f}") };
-                s.push_str(&format!(
-                    "<text x=\"{xx:.1}\" y=\"{:.1}\" text-anchor=\"middle\">{label}</text>\n",
-                    h - b + 16.0
-                ));
-            }
-        }
-        dec *= 10.0;
-    }
-    let mut v = ymin;
-    while v <= ymax {
-        let yy = y(v);
-        s.push_str(&format!(
-            "<line x1=\"{l}\" y1=\"{yy:.1}\" x2=\"{:.1}\" y2=\"{yy:.1}\" stroke=\"#ddd\"/>\n",
-            w - r
-        ));
-        s.push_str(&format!(
-            "<text x=\"{:.1}\" y=\"{:.1}\" text-anchor=\"end\">{v:.0}</text>\n",
-            l - 6.0,
-            yy + 4.0
-        ));
-        v += 10.0;
-    }
-    s.push_str(&format!(
-        "<text x=\"{:.1}\" y=\"{:.1}\" text-anchor=\"middle\">frequency [Hz]</text>\n\
-         <text transform=\"translate(16 {:.1}) rotate(-90)\" text-anchor=\"middle\">PSD [dB re (20 uPa)^2/Hz]</text>\n",
-        (l + w - r) / 2.0,
-        h - 12.0,
-        (t + h - b) / 2.0
-    ));
-    let line = |pts: &[(f64, f64)]| -> String {
-        pts.iter().map(|(f, v)| format!("{:.1},{:.1}", x(*f), y(*v))).collect::<Vec<_>>().join(" ")
-    };
-    s.push_str(&format!(
-        "<polyline fill=\"none\" stroke=\"#1f5fa8\" stroke-width=\"1\" points=\"{}\"/>\n",
-        line(&pts)
-    ));
-    let floor: Vec<(f64, f64)> = p
-        .frequency_hz
-        .iter()
-        .zip(&p.floor_pa2_per_hz)
-        .filter(|(f, _)| **f > 0.0)
-        .map(|(f, d)| (*f, db(*d)))
-        .collect();
+    plot.line(&pts, COLOURS[0], false, Some("PSD"));
+    let floor = series(&p.floor_pa2_per_hz);
     if !floor.is_empty() {
-        s.push_str(&format!(
-            "<polyline fill=\"none\" stroke=\"#999\" stroke-dasharray=\"4 3\" points=\"{}\"/>\n",
-            line(&floor)
-        ));
+        plot.line(&floor, "#999", true, Some("floor (running median)"));
     }
-    for tone in tones {
-        if tone.frequency_hz <= fmin || tone.frequency_hz >= fmax {
-            continue;
-        }
-        let (xx, yy) = (x(tone.frequency_hz), y(db(tone.peak_density_pa2_per_hz)));
-        s.push_str(&format!(
-            "<circle cx=\"{xx:.1}\" cy=\"{yy:.1}\" r=\"4\" fill=\"none\" stroke=\"#c0392b\" stroke-width=\"1.5\"/>\n\
-             <text x=\"{:.1}\" y=\"{:.1}\" fill=\"#c0392b\">{:.0} Hz, {:.1} dB</text>\n",
-            xx + 6.0,
-            yy - 6.0,
-            tone.frequency_hz,
-            tone.level_db
-        ));
+    let marks: Vec<(f64, f64)> = tones
+        .iter()
+        .filter(|t| t.frequency_hz > fmin && t.frequency_hz < fmax)
+        .map(|t| (t.frequency_hz, db(t.peak_density_pa2_per_hz)))
+        .collect();
+    plot.markers(&marks, COLOURS[1], Marker::Ring, Some("tones: Hz, level in dB re 20 uPa"));
+    for t in tones.iter().filter(|t| t.frequency_hz > fmin && t.frequency_hz < fmax) {
+        plot.label(
+            t.frequency_hz,
+            db(t.peak_density_pa2_per_hz),
+            &format!("{:.0} Hz, {:.1} dB", t.frequency_hz, t.level_db),
+            COLOURS[1],
+        );
     }
-    s.push_str(&format!(
-        "<rect x=\"{l}\" y=\"{t}\" width=\"{:.1}\" height=\"{:.1}\" fill=\"none\" stroke=\"#333\"/>\n</svg>\n",
-        w - l - r,
-        h - t - b
-    ));
-    s
-}
-
-fn escape(s: &str) -> String {
-    s.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;")
-}
-
-/// `jetloop synth`: a demo recording of an imagined cold model-scale jet rig.
-#[derive(Debug, Args)]
-pub struct SynthCmd {
-    /// Output WAV file (32-bit float, normalized to --full-scale-pa).
-    out: PathBuf,
-    /// Sample rate in Hz.
-    #[arg(long, default_value_t = 204_800)]
-    sample_rate_hz: u32,
-    /// Duration in seconds.
-    #[arg(long, default_value_t = 2.0)]
-    seconds: f64,
-    /// Screech fundamental in Hz.
-    #[arg(long, default_value_t = 5_230.0)]
-    screech_hz: f64,
-    /// Level of the fundamental in dB re 20 uPa.
-    #[arg(long, default_value_t = 138.0)]
-    screech_db: f64,
-    /// Number of harmonics including the fundamental (each 9 dB below the previous).
-    #[arg(long, default_value_t = 3)]
-    harmonics: u32,
-    /// Centre of the broadband shock-noise hump in Hz.
-    #[arg(long, default_value_t = 11_000.0)]
-    hump_hz: f64,
-    /// Overall level of the hump in dB re 20 uPa.
-    #[arg(long, default_value_t = 125.0)]
-    hump_db: f64,
-    /// Overall level of the white background noise in dB re 20 uPa.
-    #[arg(long, default_value_t = 115.0)]
-    noise_db: f64,
-    /// Pascals at full scale (the --pa-per-unit to analyse the file with).
-    #[arg(long, default_value_t = 2_000.0)]
-    full_scale_pa: f64,
-    /// Random seed.
-    #[arg(long, default_value_t = 1)]
-    seed: u64,
-}
-
-fn rms_of(db: f64) -> f64 {
-    20e-6 * 10f64.powf(db / 20.0)
-}
-
-/// Runs `synth` (no server needed).
-pub fn synth(a: SynthCmd) -> Result<Report, Failure> {
-    use std::f64::consts::PI;
-    let fs = f64::from(a.sample_rate_hz);
-    if !(a.seconds > 0.0 && a.seconds <= 600.0) || a.sample_rate_hz < 1000 {
-        return Err(Failure::Usage(
-            "--seconds must be in (0, 600] and --sample-rate-hz at least 1000".into(),
-        ));
-    }
-    if !(a.screech_hz > 0.0 && a.screech_hz < fs / 2.0 && a.hump_hz > 0.0 && a.hump_hz < fs / 2.0) {
-        return Err(Failure::Usage(
-            "--screech-hz and --hump-hz must lie between 0 and half the sample rate".into(),
-        ));
-    }
-    let n = (a.seconds * fs) as usize;
-    let mut state = a.seed.max(1);
-    let mut gauss = move || {
-        let mut u = || {
-            state ^= state >> 12;
-            state ^= state << 25;
-            state ^= state >> 27;
-            ((state.wrapping_mul(0x2545_F491_4F6C_DD1D) >> 11) as f64 + 0.5) / (1u64 << 53) as f64
-        };
-        let (u1, u2) = (u(), u());
-        (-2.0 * u1.ln()).sqrt() * (2.0 * PI * u2).cos()
-    };
-    // Hump: white noise through a two-pole resonance, scaled to its overall level.
-    let (rr, th) = (0.995, 2.0 * PI * a.hump_hz / fs);
-    let (a1, a2) = (2.0 * rr * th.cos(), -rr * rr);
-    let mut hump = vec![0.0; n];
-    for k in 0..n {
-        let y1 = if k >= 1 { hump[k - 1] } else { 0.0 };
-        let y2 = if k >= 2 { hump[k - 2] } else { 0.0 };
-        hump[k] = gauss() + a1 * y1 + a2 * y2;
-    }
-    let hr = (hump.iter().map(|v| v * v).sum::<f64>() / n as f64).sqrt();
-    let (hump_k, noise_sigma) = (rms_of(a.hump_db) / hr, rms_of(a.noise_db));
-    let mut x = vec![0.0f64; n];
-    for (k, v) in x.iter_mut().enumerate() {
-        let t = k as f64 / fs;
-        let mut s = hump_k * hump[k] + noise_sigma * gauss();
-        for h in 1..=a.harmonics {
-            let amp = rms_of(a.screech_db - 9.0 * f64::from(h - 1)) * 2f64.sqrt();
-            if f64::from(h) * a.screech_hz < fs / 2.0 {
-                s += amp * (2.0 * PI * f64::from(h) * a.screech_hz * t + 0.7 * f64::from(h)).sin();
-            }
-        }
-        *v = s;
-    }
-    let peak = x.iter().fold(0.0f64, |m, v| m.max(v.abs()));
-    if peak >= a.full_scale_pa {
-        return Err(Failure::Usage(format!(
-            "the signal peaks at {peak:.0} Pa, above --full-scale-pa {}: raise it",
-            a.full_scale_pa
-        )));
-    }
-    let spec = hound::WavSpec {
-        channels: 1,
-        sample_rate: a.sample_rate_hz,
-        bits_per_sample: 32,
-        sample_format: hound::SampleFormat::Float,
-    };
-    let werr = |e: hound::Error| Failure::Usage(format!("cannot write {}: {e}", a.out.display()));
-    let mut w = hound::WavWriter::create(&a.out, spec).map_err(werr)?;
-    for v in &x {
-        w.write_sample((v / a.full_scale_pa) as f32).map_err(werr)?;
-    }
-    w.finalize().map_err(werr)?;
-    Ok(Report::new(format!("Wrote {} (demo data: an imagined cold model-scale jet)", a.out.display()))
-        .num("sample_rate_hz", "sample rate", fs, "Hz")
-        .num("duration_s", "duration", a.seconds, "s")
-        .num("screech_hz", "screech fundamental", a.screech_hz, "Hz")
-        .num("screech_db", "fundamental level", a.screech_db, "dB re 20 uPa")
-        .num("hump_hz", "shock-noise hump centre", a.hump_hz, "Hz")
-        .num("full_scale_pa", "full scale (use --pa-per-unit)", a.full_scale_pa, "Pa")
-        .text(
-            "analyse_with",
-            "analyse with",
-            format!("jetloop tones {} --pa-per-unit {}", a.out.display(), a.full_scale_pa),
-        ))
+    plot.finish()
 }

@@ -2,11 +2,11 @@
 
 use crate::gas::JetArgs;
 use crate::output::{Report, Table, Val};
-use crate::Failure;
+use crate::plot::{Axis, Marker, Plot, COLOURS};
+use crate::{Ctx, Failure, Run};
 use clap::{Args, ValueEnum};
 use jetloop_proto::pb::{self, staging_service_client::StagingServiceClient};
 use std::path::PathBuf;
-use tonic::transport::Channel;
 
 /// Meaning of the x column.
 #[derive(Debug, Clone, Copy, ValueEnum)]
@@ -72,12 +72,7 @@ fn read_points(path: &PathBuf) -> Result<Vec<pb::MeasuredTone>, Failure> {
     let text = std::fs::read_to_string(path)
         .map_err(|e| Failure::Usage(format!("cannot read {}: {e}", path.display())))?;
     let mut out = Vec::new();
-    for (i, line) in text.lines().enumerate() {
-        let line = line.trim();
-        if line.is_empty() || line.starts_with('#') {
-            continue;
-        }
-        let cells: Vec<&str> = line.split([',', ';', '\t']).map(str::trim).collect();
+    for (i, cells) in crate::readers::csv_rows(&text) {
         let (Ok(x), Ok(f)) = (cells[0].parse::<f64>(), cells.get(1).unwrap_or(&"").parse::<f64>()) else {
             if out.is_empty() {
                 continue; // header
@@ -126,211 +121,213 @@ fn find<'a>(ps: &'a [pb::FittedParameter], name: &str) -> Option<&'a pb::FittedP
 }
 
 /// Runs `fit`.
-pub async fn fit(ch: Channel, a: FitCmd) -> Result<Report, Failure> {
-    let points = read_points(&a.file)?;
-    let control = match a.control {
-        ControlArg::Npr => pb::ControlVariable::NozzlePressureRatio,
-        ControlArg::Mj => pb::ControlVariable::FullyExpandedMachNumber,
-        ControlArg::Reflector => pb::ControlVariable::ReflectorDistanceM,
-        ControlArg::Plain => pb::ControlVariable::Plain,
-    };
-    let jet = match a.control {
-        ControlArg::Npr | ControlArg::Mj => Some(a.jet.context()?),
-        _ => None,
-    };
-    let req = pb::FitStagesRequest {
-        control: control as i32,
-        points: points.clone(),
-        jet,
-        options: Some(pb::FitOptions {
-            jump_fraction: a.jump_fraction,
-            max_loop_order: a.max_loop_order,
-            convection_ratio_min: a.kappa_min,
-            convection_ratio_max: a.kappa_max,
-            source_cells: a.source_cells,
-            fit_reflector_path_factor: a.fit_path_factor,
-            default_relative_uncertainty: a.relative_uncertainty,
-            ..Default::default()
-        }),
-    };
-    let r = StagingServiceClient::new(ch)
-        .max_decoding_message_size(256 << 20)
-        .fit_stages(req)
-        .await?
-        .into_inner();
-    let mut stages = Table::new("stages", "Stages")
-        .col("stage", "stage")
-        .col("x_min", "x from")
-        .col("x_max", "x to")
-        .col("point_count", "points")
-        .col("loop_order", "n")
-        .col("convection_ratio", "Uc/Uj")
-        .col("source_cells", "N cells")
-        .col("fixed_delay_s", "tau0 [s]")
-        .col("reflector_path_factor", "g")
-        .col("rms_relative_error", "rms rel. err.");
-    for s in &r.stages {
-        let text = |n: &str| find(&s.parameters, n).map(|p| Val::Text(param_text(p)));
-        stages.row(vec![
-            Some(Val::Int(s.stage.into())),
-            Some(Val::Num(s.x_min)),
-            Some(Val::Num(s.x_max)),
-            Some(Val::Int(s.point_count.into())),
-            s.loop_order.map(|n| Val::Int(n.into())),
-            text("convection_ratio"),
-            text("source_cells"),
-            text("fixed_delay_s"),
-            text("reflector_path_factor"),
-            s.rms_relative_error.map(Val::Num),
-        ]);
-    }
-    let mut jumps = Table::new("jumps", "Jumps")
-        .col("direction", "sweep")
-        .col("x_before", "x before")
-        .col("x_after", "x after")
-        .col("from_stage", "from")
-        .col("to_stage", "to")
-        .col("frequency_before_hz", "f before [Hz]")
-        .col("frequency_after_hz", "f after [Hz]");
-    for j in &r.jumps {
-        let d = match pb::SweepDirection::try_from(j.direction) {
-            Ok(pb::SweepDirection::Increasing) => "up",
-            Ok(pb::SweepDirection::Decreasing) => "down",
-            _ => "-",
+impl Run for FitCmd {
+    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
+        let (ch, a) = (ctx.channel().await?, self);
+        let points = read_points(&a.file)?;
+        let control = match a.control {
+            ControlArg::Npr => pb::ControlVariable::NozzlePressureRatio,
+            ControlArg::Mj => pb::ControlVariable::FullyExpandedMachNumber,
+            ControlArg::Reflector => pb::ControlVariable::ReflectorDistanceM,
+            ControlArg::Plain => pb::ControlVariable::Plain,
         };
-        jumps.row(vec![
-            Some(Val::Text(d.into())),
-            Some(Val::Num(j.x_before)),
-            Some(Val::Num(j.x_after)),
-            Some(Val::Int(j.from_stage.into())),
-            Some(Val::Int(j.to_stage.into())),
-            Some(Val::Num(j.frequency_before_hz)),
-            Some(Val::Num(j.frequency_after_hz)),
-        ]);
-    }
-    let mut hyst = Table::new("hysteresis", "Hysteresis")
-        .col("x_low", "x from")
-        .col("x_high", "x to")
-        .col("lower_stage", "stage below")
-        .col("upper_stage", "stage above");
-    for h in &r.hysteresis {
-        hyst.row(vec![
-            Some(Val::Num(h.x_low)),
-            Some(Val::Num(h.x_high)),
-            Some(Val::Int(h.lower_stage.into())),
-            Some(Val::Int(h.upper_stage.into())),
-        ]);
-    }
-    let mut models = Table::new("models", "Model comparison")
-        .col("model", "model")
-        .col("parameter_count", "k")
-        .col("chi_square", "chi^2")
-        .col("aic", "AIC")
-        .col("bic", "BIC")
-        .col("preferred", "preferred");
-    for m in &r.models {
-        models.row(vec![
-            Some(Val::Text(m.model.clone())),
-            Some(Val::Int(m.parameter_count.into())),
-            Some(Val::Num(m.chi_square)),
-            Some(Val::Num(m.aic)),
-            Some(Val::Num(m.bic)),
-            Some(Val::Flag(m.preferred)),
-        ]);
-    }
-    let mut rep = Report::new(format!(
-        "Stages of {} ({} points, {:.2} ms server time)",
-        a.file.display(),
-        r.points.len(),
-        r.compute_time_s * 1e3
-    ))
-    .table(stages)
-    .table(jumps)
-    .table(hyst)
-    .table(models);
-    for s in &r.stages {
-        if !s.alias_resolution.is_empty() {
-            rep = rep.text(
-                "alias",
-                "loop-order ambiguity",
-                format!("stage {}: {}", s.stage, s.alias_resolution),
-            );
+        let jet = match a.control {
+            ControlArg::Npr | ControlArg::Mj => Some(a.jet.context()?),
+            _ => None,
+        };
+        let req = pb::FitStagesRequest {
+            control: control as i32,
+            points: points.clone(),
+            jet,
+            options: Some(pb::FitOptions {
+                jump_fraction: a.jump_fraction,
+                max_loop_order: a.max_loop_order,
+                convection_ratio_min: a.kappa_min,
+                convection_ratio_max: a.kappa_max,
+                source_cells: a.source_cells,
+                fit_reflector_path_factor: a.fit_path_factor,
+                default_relative_uncertainty: a.relative_uncertainty,
+                ..Default::default()
+            }),
+        };
+        let r = StagingServiceClient::new(ch)
+            .max_decoding_message_size(256 << 20)
+            .fit_stages(req)
+            .await?
+            .into_inner();
+        let mut stages = Table::new("stages", "Stages")
+            .col("stage", "stage")
+            .col("x_min", "x from")
+            .col("x_max", "x to")
+            .col("point_count", "points")
+            .col("loop_order", "n")
+            .col("convection_ratio", "Uc/Uj")
+            .col("source_cells", "N cells")
+            .col("fixed_delay_s", "tau0 [s]")
+            .col("reflector_path_factor", "g")
+            .col("rms_relative_error", "rms rel. err.");
+        for s in &r.stages {
+            let text = |n: &str| find(&s.parameters, n).map(|p| Val::Text(param_text(p)));
+            stages.row(vec![
+                Some(Val::Int(s.stage.into())),
+                Some(Val::Num(s.x_min)),
+                Some(Val::Num(s.x_max)),
+                Some(Val::Int(s.point_count.into())),
+                s.loop_order.map(|n| Val::Int(n.into())),
+                text("convection_ratio"),
+                text("source_cells"),
+                text("fixed_delay_s"),
+                text("reflector_path_factor"),
+                s.rms_relative_error.map(Val::Num),
+            ]);
         }
+        let mut jumps = Table::new("jumps", "Jumps")
+            .col("direction", "sweep")
+            .col("x_before", "x before")
+            .col("x_after", "x after")
+            .col("from_stage", "from")
+            .col("to_stage", "to")
+            .col("frequency_before_hz", "f before [Hz]")
+            .col("frequency_after_hz", "f after [Hz]");
+        for j in &r.jumps {
+            let d = match pb::SweepDirection::try_from(j.direction) {
+                Ok(pb::SweepDirection::Increasing) => "up",
+                Ok(pb::SweepDirection::Decreasing) => "down",
+                _ => "-",
+            };
+            jumps.row(vec![
+                Some(Val::Text(d.into())),
+                Some(Val::Num(j.x_before)),
+                Some(Val::Num(j.x_after)),
+                Some(Val::Int(j.from_stage.into())),
+                Some(Val::Int(j.to_stage.into())),
+                Some(Val::Num(j.frequency_before_hz)),
+                Some(Val::Num(j.frequency_after_hz)),
+            ]);
+        }
+        let mut hyst = Table::new("hysteresis", "Hysteresis")
+            .col("x_low", "x from")
+            .col("x_high", "x to")
+            .col("lower_stage", "stage below")
+            .col("upper_stage", "stage above");
+        for h in &r.hysteresis {
+            hyst.row(vec![
+                Some(Val::Num(h.x_low)),
+                Some(Val::Num(h.x_high)),
+                Some(Val::Int(h.lower_stage.into())),
+                Some(Val::Int(h.upper_stage.into())),
+            ]);
+        }
+        let mut models = Table::new("models", "Model comparison")
+            .col("model", "model")
+            .col("parameter_count", "k")
+            .col("chi_square", "chi^2")
+            .col("aic", "AIC")
+            .col("bic", "BIC")
+            .col("preferred", "preferred");
+        for m in &r.models {
+            models.row(vec![
+                Some(Val::Text(m.model.clone())),
+                Some(Val::Int(m.parameter_count.into())),
+                Some(Val::Num(m.chi_square)),
+                Some(Val::Num(m.aic)),
+                Some(Val::Num(m.bic)),
+                Some(Val::Flag(m.preferred)),
+            ]);
+        }
+        let mut rep = Report::new(format!(
+            "Stages of {} ({} points, {:.2} ms server time)",
+            a.file.display(),
+            r.points.len(),
+            r.compute_time_s * 1e3
+        ))
+        .table(stages)
+        .table(jumps)
+        .table(hyst)
+        .table(models);
+        for s in &r.stages {
+            if !s.alias_resolution.is_empty() {
+                rep = rep.text(
+                    "alias",
+                    "loop-order ambiguity",
+                    format!("stage {}: {}", s.stage, s.alias_resolution),
+                );
+            }
+        }
+        if let Some(path) = &a.plot {
+            let x_label = match a.control {
+                ControlArg::Npr => "nozzle pressure ratio",
+                ControlArg::Mj => "fully expanded Mach number",
+                ControlArg::Reflector => "reflector distance [m]",
+                ControlArg::Plain => "x",
+            };
+            std::fs::write(path, svg(&points, &r, x_label))
+                .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
+            eprintln!("wrote stage plot {}", path.display());
+        }
+        Ok(rep.provenance(r.provenance))
     }
-    if let Some(path) = &a.plot {
-        let x_label = match a.control {
-            ControlArg::Npr => "nozzle pressure ratio",
-            ControlArg::Mj => "fully expanded Mach number",
-            ControlArg::Reflector => "reflector distance [m]",
-            ControlArg::Plain => "x",
-        };
-        std::fs::write(path, svg(&points, &r, x_label))
-            .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
-        eprintln!("wrote stage plot {}", path.display());
-    }
-    Ok(rep.provenance(r.provenance))
 }
 
-const COLOURS: [&str; 8] =
-    ["#1f5fa8", "#c0392b", "#27ae60", "#8e44ad", "#d35400", "#16a085", "#7f8c8d", "#b7950b"];
-
-/// Frequency against x, one colour per stage; model frequencies as small crosses.
+/// Frequency against x, one colour per stage, up-sweep points as upward and down-sweep points
+/// as downward triangles (hysteresis shows as two colours at one x), model frequencies as
+/// crosses, jumps as dashed segments.
 fn svg(points: &[pb::MeasuredTone], r: &pb::FitStagesResponse, x_label: &str) -> String {
-    let (w, h, l, rm, t, b) = (900.0, 520.0, 80.0, 20.0, 40.0, 50.0);
     let xs = || points.iter().map(|p| p.x);
     let fs =
         || points.iter().map(|p| p.frequency_hz).chain(r.points.iter().filter_map(|p| p.model_frequency_hz));
     let (x0, x1) = (xs().fold(f64::MAX, f64::min), xs().fold(f64::MIN, f64::max));
-    let (f0, f1) = (fs().fold(f64::MAX, f64::min) * 0.95, fs().fold(f64::MIN, f64::max) * 1.05);
-    let span = |a: f64, b: f64| if b > a { b - a } else { 1.0 };
-    let x = |v: f64| l + (v - x0) / span(x0, x1) * (w - l - rm);
-    let y = |v: f64| t + (f1 - v) / span(f0, f1) * (h - t - b);
-    let mut s = format!(
-        "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{h}\" font-family=\"sans-serif\" font-size=\"12\">\n\
-         <rect width=\"100%\" height=\"100%\" fill=\"white\"/>\n<text x=\"{l}\" y=\"22\" font-size=\"14\">Tone frequency by stage</text>\n"
+    let (f0, f1) = (fs().fold(f64::MAX, f64::min), fs().fold(f64::MIN, f64::max));
+    let mut plot = Plot::new(
+        "Tone frequency by stage",
+        900.0,
+        520.0,
+        Axis::linear(x0, x1, x_label),
+        Axis::linear(f0 * 0.97, f1 * 1.03, "frequency [Hz]"),
     );
-    for k in 0..=5 {
-        let fv = f0 + span(f0, f1) * f64::from(k) / 5.0;
-        let xv = x0 + span(x0, x1) * f64::from(k) / 5.0;
-        s.push_str(&format!("<line x1=\"{l}\" y1=\"{0:.1}\" x2=\"{1:.1}\" y2=\"{0:.1}\" stroke=\"#ddd\"/><text x=\"{2:.1}\" y=\"{3:.1}\" text-anchor=\"end\">{fv:.0}</text>\n", y(fv), w - rm, l - 6.0, y(fv) + 4.0));
-        s.push_str(&format!("<line x1=\"{0:.1}\" y1=\"{t}\" x2=\"{0:.1}\" y2=\"{1:.1}\" stroke=\"#ddd\"/><text x=\"{0:.1}\" y=\"{2:.1}\" text-anchor=\"middle\">{xv:.4}</text>\n", x(xv), h - b, h - b + 16.0));
-    }
-    s.push_str(&format!(
-        "<text x=\"{:.1}\" y=\"{:.1}\" text-anchor=\"middle\">{x_label}</text><text transform=\"translate(18 {:.1}) rotate(-90)\" text-anchor=\"middle\">frequency [Hz]</text>\n",
-        (l + w - rm) / 2.0,
-        h - 12.0,
-        (t + h - b) / 2.0
-    ));
-    for (p, res) in points.iter().zip(&r.points) {
-        let c = COLOURS[res.stage as usize % COLOURS.len()];
-        s.push_str(&format!(
-            "<circle cx=\"{:.1}\" cy=\"{:.1}\" r=\"3\" fill=\"{c}\"/>\n",
-            x(p.x),
-            y(p.frequency_hz)
-        ));
-        if let Some(m) = res.model_frequency_hz {
-            let (cx, cy) = (x(p.x), y(m));
-            s.push_str(&format!(
-                "<path d=\"M{:.1} {:.1}h6M{:.1} {:.1}v6\" stroke=\"#333\" stroke-width=\"0.8\"/>\n",
-                cx - 3.0,
-                cy,
-                cx,
-                cy - 3.0
-            ));
-        }
-    }
     for st in &r.stages {
         let c = COLOURS[st.stage as usize % COLOURS.len()];
         let label = match st.loop_order {
             Some(n) => format!("stage {} (n = {n})", st.stage),
             None => format!("stage {}", st.stage),
         };
-        s.push_str(&format!(
-            "<text x=\"{:.1}\" y=\"{:.1}\" fill=\"{c}\">{label}</text>\n",
-            w - rm - 140.0,
-            t + 16.0 + 16.0 * f64::from(st.stage)
-        ));
+        for (dir, marker) in [
+            (pb::SweepDirection::Increasing, Marker::Up),
+            (pb::SweepDirection::Decreasing, Marker::Down),
+            (pb::SweepDirection::Unspecified, Marker::Dot),
+        ] {
+            let pts: Vec<(f64, f64)> = points
+                .iter()
+                .zip(&r.points)
+                .filter(|(_, res)| res.stage == st.stage && res.direction == dir as i32)
+                .map(|(p, _)| (p.x, p.frequency_hz))
+                .collect();
+            if !pts.is_empty() {
+                let dir_name = match dir {
+                    pb::SweepDirection::Increasing => ", rising x",
+                    pb::SweepDirection::Decreasing => ", falling x",
+                    pb::SweepDirection::Unspecified => "",
+                };
+                plot.markers(&pts, c, marker, Some(&format!("{label}{dir_name}")));
+            }
+        }
     }
-    s.push_str(&format!("<rect x=\"{l}\" y=\"{t}\" width=\"{:.1}\" height=\"{:.1}\" fill=\"none\" stroke=\"#333\"/>\n</svg>\n", w - l - rm, h - t - b));
-    s
+    let model: Vec<(f64, f64)> = points
+        .iter()
+        .zip(&r.points)
+        .filter_map(|(p, res)| res.model_frequency_hz.map(|m| (p.x, m)))
+        .collect();
+    if !model.is_empty() {
+        plot.markers(&model, "#333", Marker::Cross, Some("loop model"));
+    }
+    for (k, j) in r.jumps.iter().enumerate() {
+        let label = (k == 0).then_some("jumps");
+        plot.line(
+            &[(j.x_before, j.frequency_before_hz), (j.x_after, j.frequency_after_hz)],
+            "#555",
+            true,
+            label,
+        );
+    }
+    plot.finish()
 }

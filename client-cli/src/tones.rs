@@ -2,13 +2,12 @@
 
 use crate::gas::{regime_name, JetArgs};
 use crate::output::{Report, Table, Val};
-use crate::Failure;
+use crate::{Ctx, Failure, Run};
 use clap::{Args, ValueEnum};
 use jetloop_proto::pb::{
     self, jet_input::Source, shock_cell_service_client::ShockCellServiceClient,
     tone_service_client::ToneServiceClient,
 };
-use tonic::transport::Channel;
 
 /// The jet: nozzle and operating point, or the fully expanded state with --mj.
 #[derive(Debug, Args)]
@@ -239,44 +238,50 @@ fn jet_rows(r: Report, j: &Option<pb::ExpandedJetSummary>) -> Report {
 }
 
 /// Runs `cells`.
-pub async fn cells(ch: Channel, a: CellsCmd) -> Result<Report, Failure> {
-    let r = ShockCellServiceClient::new(ch)
-        .cell_spacing(pb::CellSpacingRequest { jet: Some(a.jet.input()?), options: Some(a.cells.options()) })
-        .await?
-        .into_inner();
-    let mut modes = Table::new("modes", "Waveguide modes")
-        .col("mode", "mode")
-        .col("vortex_sheet_spacing_m", "vortex sheet [m]")
-        .col("spacing_m", "spacing [m]")
-        .col("spacing_over_reference_length", "spacing / L")
-        .col("bessel_zero", "j0,n");
-    for m in &r.modes {
-        modes.row(vec![
-            Some(Val::Int(m.mode.into())),
-            Some(Val::Num(m.vortex_sheet_spacing_m)),
-            Some(Val::Num(m.spacing_m)),
-            Some(Val::Num(m.spacing_over_reference_length)),
-            m.bessel_zero.map(Val::Num),
-        ]);
+impl Run for CellsCmd {
+    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
+        let (ch, a) = (ctx.channel().await?, self);
+        let r = ShockCellServiceClient::new(ch)
+            .cell_spacing(pb::CellSpacingRequest {
+                jet: Some(a.jet.input()?),
+                options: Some(a.cells.options()),
+            })
+            .await?
+            .into_inner();
+        let mut modes = Table::new("modes", "Waveguide modes")
+            .col("mode", "mode")
+            .col("vortex_sheet_spacing_m", "vortex sheet [m]")
+            .col("spacing_m", "spacing [m]")
+            .col("spacing_over_reference_length", "spacing / L")
+            .col("bessel_zero", "j0,n");
+        for m in &r.modes {
+            modes.row(vec![
+                Some(Val::Int(m.mode.into())),
+                Some(Val::Num(m.vortex_sheet_spacing_m)),
+                Some(Val::Num(m.spacing_m)),
+                Some(Val::Num(m.spacing_over_reference_length)),
+                m.bessel_zero.map(Val::Num),
+            ]);
+        }
+        let mut shocks = Table::new("shocks", "Shock positions (fundamental mode)")
+            .col("index", "shock")
+            .col("axial_position_m", "x [m]")
+            .col("axial_position_over_reference_length", "x / L");
+        for s in &r.shocks {
+            shocks.row(vec![
+                Some(Val::Int(s.index.into())),
+                Some(Val::Num(s.axial_position_m)),
+                Some(Val::Num(s.axial_position_over_reference_length)),
+            ]);
+        }
+        let rep = jet_rows(Report::new("Shock cells (vortex-sheet model)"), &r.jet).num(
+            "spacing_factor",
+            "spacing factor",
+            r.spacing_factor,
+            "",
+        );
+        Ok(rep.table(modes).table(shocks).provenance(r.provenance))
     }
-    let mut shocks = Table::new("shocks", "Shock positions (fundamental mode)")
-        .col("index", "shock")
-        .col("axial_position_m", "x [m]")
-        .col("axial_position_over_reference_length", "x / L");
-    for s in &r.shocks {
-        shocks.row(vec![
-            Some(Val::Int(s.index.into())),
-            Some(Val::Num(s.axial_position_m)),
-            Some(Val::Num(s.axial_position_over_reference_length)),
-        ]);
-    }
-    let rep = jet_rows(Report::new("Shock cells (vortex-sheet model)"), &r.jet).num(
-        "spacing_factor",
-        "spacing factor",
-        r.spacing_factor,
-        "",
-    );
-    Ok(rep.table(modes).table(shocks).provenance(r.provenance))
 }
 
 fn tone_table(key: &'static str, title: &str, tones: &[pb::Tone]) -> Table {
@@ -293,161 +298,171 @@ fn tone_table(key: &'static str, title: &str, tones: &[pb::Tone]) -> Table {
 }
 
 /// Runs `screech`.
-pub async fn screech(ch: Channel, a: ScreechCmd) -> Result<Report, Failure> {
-    let r = ToneServiceClient::new(ch)
-        .predict_screech(pb::PredictScreechRequest {
-            jet: Some(a.jet.input()?),
-            options: Some(a.screech.options()),
-        })
-        .await?
-        .into_inner();
-    let mut models = Table::new("predictions", "Screech predictions")
-        .col("model", "model")
-        .col("fundamental_hz", "f [Hz]")
-        .col("strouhal_number", "St = f L/Uj")
-        .col("harmonics_hz", "harmonics [Hz]");
-    for p in &r.predictions {
-        let h: Vec<String> = p.harmonics.iter().skip(1).map(|t| format!("{:.0}", t.frequency_hz)).collect();
-        models.row(vec![
-            Some(Val::Text(p.model.clone())),
-            Some(Val::Num(p.fundamental_hz)),
-            Some(Val::Num(p.strouhal_number)),
-            Some(Val::Text(h.join(" "))),
-        ]);
+impl Run for ScreechCmd {
+    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
+        let (ch, a) = (ctx.channel().await?, self);
+        let r = ToneServiceClient::new(ch)
+            .predict_screech(pb::PredictScreechRequest {
+                jet: Some(a.jet.input()?),
+                options: Some(a.screech.options()),
+            })
+            .await?
+            .into_inner();
+        let mut models = Table::new("predictions", "Screech predictions")
+            .col("model", "model")
+            .col("fundamental_hz", "f [Hz]")
+            .col("strouhal_number", "St = f L/Uj")
+            .col("harmonics_hz", "harmonics [Hz]");
+        for p in &r.predictions {
+            let h: Vec<String> =
+                p.harmonics.iter().skip(1).map(|t| format!("{:.0}", t.frequency_hz)).collect();
+            models.row(vec![
+                Some(Val::Text(p.model.clone())),
+                Some(Val::Num(p.fundamental_hz)),
+                Some(Val::Num(p.strouhal_number)),
+                Some(Val::Text(h.join(" "))),
+            ]);
+        }
+        let fl = r.feedback_loop.clone().unwrap_or_default();
+        let mut paths = Table::new("loop_segments", "Feedback loop paths")
+            .col("label", "path")
+            .col("length_m", "length [m]")
+            .col("speed_m_per_s", "speed [m/s]")
+            .col("time_s", "time [s]");
+        for s in &fl.segments {
+            paths.row(vec![
+                Some(Val::Text(s.label.clone())),
+                Some(Val::Num(s.length_m)),
+                Some(Val::Num(s.speed_m_per_s)),
+                Some(Val::Num(s.time_s)),
+            ]);
+        }
+        let rep = jet_rows(Report::new("Screech prediction"), &r.jet)
+            .num("spacing_m", "shock-cell spacing", r.spacing_m, "m")
+            .num("spacing_factor", "spacing factor", r.spacing_factor, "")
+            .num("convection_speed_m_per_s", "Uc", fl.convection_speed_m_per_s, "m/s")
+            .num("convective_mach_number", "Mc = Uc/a", fl.convective_mach_number, "")
+            .num("source_distance_m", "loop source distance", fl.source_distance_m, "m")
+            .num("fixed_delay_s", "fixed delays", fl.fixed_delay_s, "s")
+            .num("loop_time_s", "loop time tau", fl.loop_time_s, "s");
+        Ok(rep
+            .table(models)
+            .table(paths)
+            .table(tone_table("loop_orders", "Loop orders n / tau", &fl.orders))
+            .provenance(r.provenance))
     }
-    let fl = r.feedback_loop.clone().unwrap_or_default();
-    let mut paths = Table::new("loop_segments", "Feedback loop paths")
-        .col("label", "path")
-        .col("length_m", "length [m]")
-        .col("speed_m_per_s", "speed [m/s]")
-        .col("time_s", "time [s]");
-    for s in &fl.segments {
-        paths.row(vec![
-            Some(Val::Text(s.label.clone())),
-            Some(Val::Num(s.length_m)),
-            Some(Val::Num(s.speed_m_per_s)),
-            Some(Val::Num(s.time_s)),
-        ]);
-    }
-    let rep = jet_rows(Report::new("Screech prediction"), &r.jet)
-        .num("spacing_m", "shock-cell spacing", r.spacing_m, "m")
-        .num("spacing_factor", "spacing factor", r.spacing_factor, "")
-        .num("convection_speed_m_per_s", "Uc", fl.convection_speed_m_per_s, "m/s")
-        .num("convective_mach_number", "Mc = Uc/a", fl.convective_mach_number, "")
-        .num("source_distance_m", "loop source distance", fl.source_distance_m, "m")
-        .num("fixed_delay_s", "fixed delays", fl.fixed_delay_s, "s")
-        .num("loop_time_s", "loop time tau", fl.loop_time_s, "s");
-    Ok(rep
-        .table(models)
-        .table(paths)
-        .table(tone_table("loop_orders", "Loop orders n / tau", &fl.orders))
-        .provenance(r.provenance))
 }
 
 /// Runs `shock-noise`.
-pub async fn shock_noise(ch: Channel, a: ShockNoiseCmd) -> Result<Report, Failure> {
-    let r = ToneServiceClient::new(ch)
-        .predict_shock_noise(pb::PredictShockNoiseRequest {
-            jet: Some(a.jet.input()?),
-            convection: a.convection.convection(),
-            cells: Some(a.cells.options()),
-            observer_angles_deg: a.angles_deg,
-        })
-        .await?
-        .into_inner();
-    let mut t = Table::new("peaks", "Shock-associated noise peak")
-        .col("observer_angle_deg", "angle [deg]")
-        .col("mode", "mode")
-        .col("peak_frequency_hz", "f_peak [Hz]")
-        .col("strouhal_number", "St");
-    for p in &r.peaks {
-        t.row(vec![
-            Some(Val::Num(p.observer_angle_deg)),
-            Some(Val::Int(p.mode.into())),
-            p.peak_frequency_hz.map(Val::Num),
-            p.strouhal_number.map(Val::Num),
-        ]);
+impl Run for ShockNoiseCmd {
+    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
+        let (ch, a) = (ctx.channel().await?, self);
+        let r = ToneServiceClient::new(ch)
+            .predict_shock_noise(pb::PredictShockNoiseRequest {
+                jet: Some(a.jet.input()?),
+                convection: a.convection.convection(),
+                cells: Some(a.cells.options()),
+                observer_angles_deg: a.angles_deg,
+            })
+            .await?
+            .into_inner();
+        let mut t = Table::new("peaks", "Shock-associated noise peak")
+            .col("observer_angle_deg", "angle [deg]")
+            .col("mode", "mode")
+            .col("peak_frequency_hz", "f_peak [Hz]")
+            .col("strouhal_number", "St");
+        for p in &r.peaks {
+            t.row(vec![
+                Some(Val::Num(p.observer_angle_deg)),
+                Some(Val::Int(p.mode.into())),
+                p.peak_frequency_hz.map(Val::Num),
+                p.strouhal_number.map(Val::Num),
+            ]);
+        }
+        let rep = jet_rows(Report::new("Shock-associated noise"), &r.jet)
+            .num("convection_speed_m_per_s", "Uc", r.convection_speed_m_per_s, "m/s")
+            .num("convective_mach_number", "Mc = Uc/a", r.convective_mach_number, "");
+        Ok(rep.table(t).provenance(r.provenance))
     }
-    let rep = jet_rows(Report::new("Shock-associated noise"), &r.jet)
-        .num("convection_speed_m_per_s", "Uc", r.convection_speed_m_per_s, "m/s")
-        .num("convective_mach_number", "Mc = Uc/a", r.convective_mach_number, "");
-    Ok(rep.table(t).provenance(r.provenance))
 }
 
 /// Runs `sweep`; the CSV file, when asked for, is written here.
-pub async fn sweep(ch: Channel, a: SweepCmd) -> Result<Report, Failure> {
-    use pb::sweep_screech_request::Values;
-    let values = match (a.from, a.to, a.count) {
-        (Some(start), Some(stop), Some(count)) => Values::Range(pb::SweepRange { start, stop, count }),
-        _ if !a.values.is_empty() => Values::List(pb::SweepValues { values: a.values.clone() }),
-        _ => return Err(Failure::Usage("give --from, --to and --count, or --values".into())),
-    };
-    let variable = match a.vary {
-        VaryArg::Npr => pb::SweepVariable::NozzlePressureRatio,
-        VaryArg::Mj => pb::SweepVariable::FullyExpandedMachNumber,
-        VaryArg::Reflector => pb::SweepVariable::ReflectorDistanceM,
-    };
-    let r = ToneServiceClient::new(ch)
-        .sweep_screech(pb::SweepScreechRequest {
-            jet: Some(a.jet.input()?),
-            variable: variable as i32,
-            values: Some(values),
-            options: Some(a.screech.options()),
-        })
-        .await?
-        .into_inner();
-    let orders = r.points.iter().map(|p| p.loop_frequencies_hz.len()).max().unwrap_or(0);
-    let value_key = match a.vary {
-        VaryArg::Npr => ("nozzle_pressure_ratio_swept", "NPR"),
-        VaryArg::Mj => ("fully_expanded_mach_number_swept", "Mj set"),
-        VaryArg::Reflector => ("reflector_distance_m", "reflector [m]"),
-    };
-    let mut t = Table::new("points", "Sweep")
-        .col(value_key.0, value_key.1)
-        .col("nozzle_pressure_ratio", "NPR")
-        .col("fully_expanded_mach_number", "Mj")
-        .col("regime", "regime")
-        .col("fully_expanded_velocity_m_per_s", "Uj [m/s]")
-        .col("reference_length_m", "L [m]")
-        .col("spacing_m", "Ls [m]")
-        .col("powell_fundamental_hz", "Powell [Hz]")
-        .col("tam_1986_hz", "Tam 1986 [Hz]");
-    for n in 1..=orders {
-        t = t.col(format!("loop_n{n}_hz"), format!("n={n} [Hz]"));
-    }
-    for p in &r.points {
-        let mut row = vec![
-            Some(Val::Num(p.value)),
-            Some(Val::Num(p.nozzle_pressure_ratio)),
-            Some(Val::Num(p.fully_expanded_mach_number)),
-            Some(Val::Text(regime_name(p.regime))),
-            Some(Val::Num(p.fully_expanded_velocity_m_per_s)),
-            Some(Val::Num(p.reference_length_m)),
-            p.spacing_m.map(Val::Num),
-            p.powell_fundamental_hz.map(Val::Num),
-            p.tam_1986_hz.map(Val::Num),
-        ];
-        for n in 0..orders {
-            row.push(p.loop_frequencies_hz.get(n).copied().map(Val::Num));
+impl Run for SweepCmd {
+    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
+        let (ch, a) = (ctx.channel().await?, self);
+        use pb::sweep_screech_request::Values;
+        let values = match (a.from, a.to, a.count) {
+            (Some(start), Some(stop), Some(count)) => Values::Range(pb::SweepRange { start, stop, count }),
+            _ if !a.values.is_empty() => Values::List(pb::SweepValues { values: a.values.clone() }),
+            _ => return Err(Failure::Usage("give --from, --to and --count, or --values".into())),
+        };
+        let variable = match a.vary {
+            VaryArg::Npr => pb::SweepVariable::NozzlePressureRatio,
+            VaryArg::Mj => pb::SweepVariable::FullyExpandedMachNumber,
+            VaryArg::Reflector => pb::SweepVariable::ReflectorDistanceM,
+        };
+        let r = ToneServiceClient::new(ch)
+            .sweep_screech(pb::SweepScreechRequest {
+                jet: Some(a.jet.input()?),
+                variable: variable as i32,
+                values: Some(values),
+                options: Some(a.screech.options()),
+            })
+            .await?
+            .into_inner();
+        let orders = r.points.iter().map(|p| p.loop_frequencies_hz.len()).max().unwrap_or(0);
+        let value_key = match a.vary {
+            VaryArg::Npr => ("nozzle_pressure_ratio_swept", "NPR"),
+            VaryArg::Mj => ("fully_expanded_mach_number_swept", "Mj set"),
+            VaryArg::Reflector => ("reflector_distance_m", "reflector [m]"),
+        };
+        let mut t = Table::new("points", "Sweep")
+            .col(value_key.0, value_key.1)
+            .col("nozzle_pressure_ratio", "NPR")
+            .col("fully_expanded_mach_number", "Mj")
+            .col("regime", "regime")
+            .col("fully_expanded_velocity_m_per_s", "Uj [m/s]")
+            .col("reference_length_m", "L [m]")
+            .col("spacing_m", "Ls [m]")
+            .col("powell_fundamental_hz", "Powell [Hz]")
+            .col("tam_1986_hz", "Tam 1986 [Hz]");
+        for n in 1..=orders {
+            t = t.col(format!("loop_n{n}_hz"), format!("n={n} [Hz]"));
         }
-        t.row(row);
-    }
-    if let Some(path) = &a.csv {
-        let csv = t.to_csv();
-        if path.as_os_str() == "-" {
-            print!("{csv}");
-            return Ok(Report::new("").quiet());
+        for p in &r.points {
+            let mut row = vec![
+                Some(Val::Num(p.value)),
+                Some(Val::Num(p.nozzle_pressure_ratio)),
+                Some(Val::Num(p.fully_expanded_mach_number)),
+                Some(Val::Text(regime_name(p.regime))),
+                Some(Val::Num(p.fully_expanded_velocity_m_per_s)),
+                Some(Val::Num(p.reference_length_m)),
+                p.spacing_m.map(Val::Num),
+                p.powell_fundamental_hz.map(Val::Num),
+                p.tam_1986_hz.map(Val::Num),
+            ];
+            for n in 0..orders {
+                row.push(p.loop_frequencies_hz.get(n).copied().map(Val::Num));
+            }
+            t.row(row);
         }
-        std::fs::write(path, csv)
-            .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
-        eprintln!("wrote {} points to {}", r.points.len(), path.display());
+        if let Some(path) = &a.csv {
+            let csv = t.to_csv();
+            if path.as_os_str() == "-" {
+                print!("{csv}");
+                return Ok(Report::new("").quiet());
+            }
+            std::fs::write(path, csv)
+                .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
+            eprintln!("wrote {} points to {}", r.points.len(), path.display());
+        }
+        Ok(Report::new(format!(
+            "Screech sweep ({} points, {:.3} ms server time)",
+            r.points.len(),
+            r.compute_time_s * 1e3
+        ))
+        .num("compute_time_s", "server compute time", r.compute_time_s, "s")
+        .table(t)
+        .provenance(r.provenance))
     }
-    Ok(Report::new(format!(
-        "Screech sweep ({} points, {:.3} ms server time)",
-        r.points.len(),
-        r.compute_time_s * 1e3
-    ))
-    .num("compute_time_s", "server compute time", r.compute_time_s, "s")
-    .table(t)
-    .provenance(r.provenance))
 }
