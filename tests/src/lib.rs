@@ -57,6 +57,14 @@ impl TestServer {
             .expect("connect")
     }
 
+    /// Requests a graceful shutdown without waiting: new connections and calls are refused
+    /// from here on, calls in flight go on. [`TestServer::stop`] then waits for the end.
+    pub fn begin_shutdown(&mut self) {
+        if let Some(tx) = self.shutdown.take() {
+            let _ = tx.send(());
+        }
+    }
+
     /// Requests a graceful shutdown and waits for the server task to end.
     ///
     /// # Panics

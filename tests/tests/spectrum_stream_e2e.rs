@@ -183,3 +183,56 @@ async fn bad_streams_name_the_field() {
     assert!(e.message().contains("33554432"), "{}", e.message());
     server.stop().await;
 }
+
+#[tokio::test]
+async fn a_stream_in_flight_finishes_during_graceful_shutdown() {
+    // Shutdown refuses new calls but lets the calls in flight finish: a block stream whose
+    // first message reached the server before the shutdown still gets its whole answer.
+    let mut server = TestServer::start().await;
+    let ch = server.channel().await;
+    let mut c = SpectrumServiceClient::new(ch.clone());
+    let bytes = two_channel_frames(40_000);
+    let whole = c.extract_tones(question(bytes.clone())).await.unwrap().into_inner();
+    let (tx, rx) = tokio::sync::mpsc::channel::<pb::SampleBlock>(4);
+    tx.send(pb::SampleBlock { request: Some(question(bytes[..8000].to_vec())), ..Default::default() })
+        .await
+        .unwrap();
+    let mut streaming = SpectrumServiceClient::new(ch.clone());
+    let call = tokio::spawn(async move {
+        streaming.extract_tones_stream(tokio_stream::wrappers::ReceiverStream::new(rx)).await
+    });
+    // A unary call on the same connection answered after the stream opened: HTTP/2 delivers
+    // the stream's headers first, so the stream is in flight once this answer is back.
+    let mut probe = jetloop_proto::pb::info_service_client::InfoServiceClient::new(ch.clone());
+    loop {
+        tokio::task::yield_now().await;
+        probe.server_info(pb::ServerInfoRequest {}).await.unwrap();
+        if tx.capacity() == tx.max_capacity() {
+            break; // the first message has been taken by the client
+        }
+    }
+    probe.server_info(pb::ServerInfoRequest {}).await.unwrap();
+    server.begin_shutdown();
+    // The shutdown has begun once a new connection is refused.
+    let url = server.url();
+    let mut refused = false;
+    for _ in 0..10_000 {
+        if tonic::transport::Endpoint::from_shared(url.clone()).unwrap().connect().await.is_err() {
+            refused = true;
+            break;
+        }
+        tokio::task::yield_now().await;
+    }
+    assert!(refused, "the server still accepts connections after the shutdown began");
+    for chunk in bytes[8000..].chunks(64 * 1024) {
+        tx.send(block(chunk)).await.unwrap();
+    }
+    drop(tx);
+    let streamed = call.await.unwrap().expect("the call in flight finishes").into_inner();
+    assert_eq!(streamed.channels.len(), 2);
+    for (a, b) in streamed.channels.iter().zip(&whole.channels) {
+        assert!((a.rms_pa / b.rms_pa - 1.0).abs() < 1e-12);
+        assert_eq!(a.tones.len(), b.tones.len());
+    }
+    server.stop().await;
+}

@@ -364,29 +364,41 @@ async fn excess_concurrent_calls_are_refused_with_unavailable_and_a_retry_hint()
 
     // A block stream left open holds the one slot: another call is refused, a health check is
     // still answered (orchestrators must not restart a busy server).
-    let (tx, rx) = tokio::sync::mpsc::channel::<pb::SampleBlock>(1);
-    let mut spectrum = jetloop_proto::pb::spectrum_service_client::SpectrumServiceClient::new(ch.clone());
-    let open = tokio::spawn(async move {
-        spectrum.extract_tones_stream(tokio_stream::wrappers::ReceiverStream::new(rx)).await
-    });
-    tx.send(pb::SampleBlock::default()).await.unwrap();
-    let mut refused = None;
-    for _ in 0..200 {
-        match ToneServiceClient::new(ch.clone()).sweep_screech(req.clone()).await {
-            Err(e) if e.code() == Code::Unavailable => {
-                refused = Some(e);
-                break;
+    // No sleeping: a probe that overtakes the stream is simply answered (or refuses the
+    // stream, which is then opened again), until the stream holds the slot and a probe is
+    // refused.
+    let mut held = None;
+    'attempt: for _ in 0..1000 {
+        let (tx, rx) = tokio::sync::mpsc::channel::<pb::SampleBlock>(1);
+        tx.send(pb::SampleBlock::default()).await.unwrap();
+        let mut sc = jetloop_proto::pb::spectrum_service_client::SpectrumServiceClient::new(ch.clone());
+        let mut open = Box::pin(async move {
+            sc.extract_tones_stream(tokio_stream::wrappers::ReceiverStream::new(rx)).await
+        });
+        for _ in 0..100 {
+            let mut prober = ToneServiceClient::new(ch.clone());
+            let probe = prober
+                .predict_screech(pb::PredictScreechRequest { jet: Some(conditions(3.0)), options: None });
+            tokio::select! {
+                r = probe => match r {
+                    Err(e) if e.code() == Code::Unavailable => {
+                        held = Some((e, tx, open));
+                        break 'attempt;
+                    }
+                    _ => tokio::task::yield_now().await,
+                },
+                // The stream was refused (a probe held the slot): open it again.
+                _ = &mut open => continue 'attempt,
             }
-            // The stream may not have reached the server yet.
-            _ => tokio::time::sleep(std::time::Duration::from_millis(5)).await,
         }
     }
-    assert!(refused.is_some(), "the open stream should hold the only slot");
+    let (refused, tx, open) = held.expect("the open stream should hold the only slot");
+    assert!(refused.get_error_details().retry_info().is_some());
     let mut health = tonic_health::pb::health_client::HealthClient::new(ch.clone());
     let h = health.check(tonic_health::pb::HealthCheckRequest { service: String::new() }).await.unwrap();
     assert_eq!(h.into_inner().status, tonic_health::pb::health_check_response::ServingStatus::Serving as i32);
     drop(tx);
-    let _ = open.await.unwrap();
+    let _ = open.await;
     server.stop().await;
 }
 

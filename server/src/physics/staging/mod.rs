@@ -641,9 +641,9 @@ mod tests {
     }
 
     #[test]
-    fn thousand_points_in_six_stages_is_fast_enough_to_measure() {
-        // Not a timed test: checks that 6 stages of 1000 points are found (the benchmark
-        // measures the time).
+    fn thousand_points_in_six_stages_are_assigned_to_the_stage_they_came_from() {
+        // Six stages 12 % apart (above the 5 % jump fraction), each sloping gently: every
+        // point lands in the stage it was generated in, and the stages follow in x order.
         let mut pts = Vec::new();
         for k in 0..1000 {
             let x = 1.0 + f64::from(k) / 1000.0;
@@ -651,6 +651,11 @@ mod tests {
             let f = 3000.0 * 1.12f64.powf(s) * (1.0 - 0.02 * (x - 1.0));
             pts.push(Point { x, f, sigma: 0.005 * f, direction: Direction::Unknown, order: None });
         }
-        assert_eq!(stages(&pts, 0.05).stages.len(), 6);
+        let r = stages(&pts, 0.05);
+        assert_eq!(r.stages.len(), 6);
+        for (k, &st) in r.stage_of.iter().enumerate() {
+            assert_eq!(st, k / 167, "point {k}");
+        }
+        assert_eq!(r.jumps.len(), 5);
     }
 }
