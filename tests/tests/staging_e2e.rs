@@ -132,7 +132,7 @@ async fn degenerate_input_is_refused_with_the_limit_named() {
                 Some(jet()),
                 None,
             ),
-            "points[0]",
+            "points[0].x",
         ),
         (
             req(
@@ -141,7 +141,7 @@ async fn degenerate_input_is_refused_with_the_limit_named() {
                 Some(jet()),
                 None,
             ),
-            "points[0]",
+            "points[0].x",
         ),
         (
             req(
@@ -150,7 +150,7 @@ async fn degenerate_input_is_refused_with_the_limit_named() {
                 None,
                 None,
             ),
-            "points[0]",
+            "points[0].x",
         ),
         (
             req(
@@ -159,7 +159,7 @@ async fn degenerate_input_is_refused_with_the_limit_named() {
                 None,
                 None,
             ),
-            "points[0]",
+            "points[0].x",
         ),
         (req(pb::ControlVariable::NozzlePressureRatio, three(), None, None), "jet"),
         (
@@ -223,5 +223,24 @@ async fn npr_sweep_of_another_gas_uses_that_gas_critical_ratio() {
         .expect("gamma 1.2 at NPR 1.8 is supersonic")
         .into_inner();
     assert_eq!(r.points.len(), 25);
+    server.stop().await;
+}
+
+#[tokio::test]
+async fn a_bad_point_field_is_named_with_its_full_path() {
+    // Regression: a negative frequency was reported at points[2] instead of
+    // points[2].frequency_hz.
+    let server = TestServer::start().await;
+    let mut c = StagingServiceClient::new(server.channel().await);
+    let e = c
+        .fit_stages(pb::FitStagesRequest {
+            control: pb::ControlVariable::Plain as i32,
+            points: vec![tone(1.0, 100.0), tone(2.0, 110.0), tone(3.0, -5.0)],
+            jet: None,
+            options: None,
+        })
+        .await
+        .unwrap_err();
+    assert_field(&e, Code::InvalidArgument, "points[2].frequency_hz");
     server.stop().await;
 }

@@ -213,12 +213,12 @@ pub fn loop_spec(
         .into_iter()
         .take(tones::MAX_LOOP_PARTS)
         .enumerate()
-        .filter_map(|(i, s)| {
+        .filter_map(|(i, pb::LoopSegment { label, length, speed, speed_m_per_s })| {
             let sp = format!("{path}.segments[{i}]");
-            if s.label.chars().count() > 200 {
+            if label.chars().count() > 200 {
                 check.other(format!("{sp}.label"), format!("{sp}.label is longer than 200 characters"));
             }
-            let length = match s.length {
+            let length = match length {
                 None => {
                     check.missing(format!("{sp}.length"), "set length_m or source_distances");
                     None
@@ -230,10 +230,10 @@ pub fn loop_spec(
                     .range(&sp, tones::SOURCE_MULTIPLE.check("source_distances", k))
                     .map(PathLength::SourceDistances),
             };
-            let speed = match pb::PathSpeed::try_from(s.speed) {
+            let speed = match pb::PathSpeed::try_from(speed) {
                 Ok(pb::PathSpeed::Convected) => Some(PathSpeed::Convected),
                 Ok(pb::PathSpeed::Acoustic) => Some(PathSpeed::Acoustic),
-                Ok(pb::PathSpeed::Given) => match s.speed_m_per_s {
+                Ok(pb::PathSpeed::Given) => match speed_m_per_s {
                     Some(v) => check.range(&sp, tones::SPEED.check("speed_m_per_s", v)).map(PathSpeed::Given),
                     None => {
                         check.missing(format!("{sp}.speed_m_per_s"), "PATH_SPEED_GIVEN needs the speed in m/s");
@@ -245,13 +245,13 @@ pub fn loop_spec(
                         format!("{sp}.speed"),
                         format!(
                             "{sp}.speed = {} must be PATH_SPEED_CONVECTED, PATH_SPEED_ACOUSTIC or PATH_SPEED_GIVEN",
-                            s.speed
+                            speed
                         ),
                     );
                     None
                 }
             };
-            Some(Segment { label: s.label, length: length?, speed: speed? })
+            Some(Segment { label, length: length?, speed: speed? })
         })
         .collect();
     let delays: Vec<f64> = fixed_delays_s

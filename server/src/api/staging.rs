@@ -29,9 +29,12 @@ pub struct StagingQuery {
     started: std::time::Instant,
 }
 
-fn bad_points(check: &mut Check, bad: &[(usize, String)]) {
-    for (i, msg) in bad.iter().take(5) {
-        check.other(format!("points[{i}]"), format!("points[{i}]: {msg}"));
+/// Records the first five bad points, each at `points[i].<leaf>` (the point itself when the
+/// leaf is empty).
+fn bad_points(check: &mut Check, bad: &[(usize, &str, String)]) {
+    for (i, leaf, msg) in bad.iter().take(5) {
+        let path = if leaf.is_empty() { format!("points[{i}]") } else { format!("points[{i}].{leaf}") };
+        check.other(path.clone(), format!("{path}: {msg}"));
     }
     if bad.len() > 5 {
         check.other(
@@ -181,8 +184,17 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
         let mut pts = Vec::with_capacity(points.len());
         let mut bad = Vec::new();
         for (i, p) in points.iter().enumerate() {
-            if !p.x.is_finite() {
-                bad.push((i, format!("x = {} is not a finite number", p.x)));
+            // Unpacked by name: a new field fails to compile here until its meaning is decided.
+            let pb::MeasuredTone {
+                x,
+                frequency_hz,
+                level_db: _,
+                frequency_uncertainty_hz,
+                direction,
+                acquisition_index,
+            } = *p;
+            if !x.is_finite() {
+                bad.push((i, "x", format!("x = {x} is not a finite number")));
                 continue;
             }
             let range = match kind {
@@ -193,41 +205,48 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
                 Some(SweepKind::Npr) => Some(Bounds::open_closed(jet::NPR.min, jet::NPR.max, "")),
                 _ => None,
             };
-            if let Some(b) = range.filter(|b| !b.contains(p.x)) {
+            if let Some(b) = range.filter(|b| !b.contains(x)) {
                 bad.push((
                     i,
-                    format!("x = {} is outside the allowed range {b} for this control variable", p.x),
+                    "x",
+                    format!("x = {x} is outside the allowed range {b} for this control variable"),
                 ));
                 continue;
             }
-            if !FREQ.contains(p.frequency_hz) {
+            if !FREQ.contains(frequency_hz) {
                 bad.push((
                     i,
-                    format!("frequency_hz = {} is outside the allowed range {FREQ}", p.frequency_hz),
+                    "frequency_hz",
+                    format!("frequency_hz = {frequency_hz} is outside the allowed range {FREQ}"),
                 ));
                 continue;
             }
-            let sigma = match p.frequency_uncertainty_hz {
+            let sigma = match frequency_uncertainty_hz {
                 Some(s) if !SIGMA.contains(s) => {
                     bad.push((
                         i,
+                        "frequency_uncertainty_hz",
                         format!("frequency_uncertainty_hz = {s} is outside the allowed range {SIGMA}"),
                     ));
                     continue;
                 }
                 Some(s) => s,
-                None => rel * p.frequency_hz,
+                None => rel * frequency_hz,
             };
-            let direction = match pb::SweepDirection::try_from(p.direction) {
+            let direction = match pb::SweepDirection::try_from(direction) {
                 Ok(pb::SweepDirection::Increasing) => Direction::Increasing,
                 Ok(pb::SweepDirection::Decreasing) => Direction::Decreasing,
                 Ok(pb::SweepDirection::Unspecified) => Direction::Unknown,
                 Err(_) => {
-                    bad.push((i, format!("direction = {} is not a SweepDirection value", p.direction)));
+                    bad.push((
+                        i,
+                        "direction",
+                        format!("direction = {direction} is not a SweepDirection value"),
+                    ));
                     continue;
                 }
             };
-            pts.push(Point { x: p.x, f: p.frequency_hz, sigma, direction, order: p.acquisition_index });
+            pts.push(Point { x, f: frequency_hz, sigma, direction, order: acquisition_index });
         }
         bad_points(&mut check, &bad);
         if bad.is_empty() && pts.len() >= 3 && pts.iter().all(|p| p.x == pts[0].x && p.f == pts[0].f) {
@@ -279,6 +298,7 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
                                 .map(|i| {
                                     (
                                         i,
+                                        "x",
                                         format!(
                                             "x = {}: the jet is not supersonic there (no shock cells)",
                                             xs[i]
