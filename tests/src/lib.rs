@@ -91,3 +91,62 @@ pub fn assert_field(status: &tonic::Status, code: tonic::Code, field: &str) {
     assert!(fields.contains(&field), "expected {field} in {fields:?}: {}", status.message());
     assert!(bad.field_violations.iter().all(|v| !v.description.is_empty()));
 }
+
+/// Request pieces shared by the end-to-end tests and the benchmarks: nozzles, jet conditions
+/// at a pressure ratio (cold, ISA ambient unless changed), jet inputs, and relative error.
+pub mod fixtures {
+    use jetloop_proto::pb::{self, jet_input::Source, nozzle::Kind, operating_point::Pressure};
+
+    /// |a - b| / |b|.
+    pub fn rel(a: f64, b: f64) -> f64 {
+        ((a - b) / b).abs()
+    }
+
+    /// A round convergent nozzle of exit diameter `d` m.
+    pub fn round(d: f64) -> Kind {
+        Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: d })
+    }
+
+    /// A round convergent-divergent nozzle of exit diameter `d` m and design Mach `md`.
+    pub fn cd(d: f64, md: f64) -> Kind {
+        Kind::RoundConvergentDivergent(pb::RoundConvergentDivergentNozzle {
+            exit_diameter_m: d,
+            design: Some(pb::round_convergent_divergent_nozzle::Design::DesignMachNumber(md)),
+        })
+    }
+
+    /// Conditions of nozzle `kind` at NPR `npr`, every other field left to the server.
+    pub fn conditions(kind: Kind, npr: f64) -> pb::JetConditions {
+        pb::JetConditions {
+            nozzle: Some(pb::Nozzle { kind: Some(kind) }),
+            operating_point: Some(pb::OperatingPoint {
+                pressure: Some(Pressure::NozzlePressureRatio(npr)),
+                ..Default::default()
+            }),
+            gas: None,
+            ambient_gas: None,
+            ideal_expansion_tolerance: None,
+        }
+    }
+
+    /// The jet input of conditions.
+    pub fn input(c: pb::JetConditions) -> pb::JetInput {
+        pb::JetInput { source: Some(Source::Conditions(c)) }
+    }
+
+    /// A 25.4 mm round convergent nozzle at NPR `npr` as a jet input.
+    pub fn inch_nozzle(npr: f64) -> pb::JetInput {
+        input(conditions(round(0.0254), npr))
+    }
+
+    /// A cold round jet given directly: Mj and Dj in m.
+    pub fn direct(mj: f64, dj: f64) -> pb::JetInput {
+        pb::JetInput {
+            source: Some(Source::FullyExpanded(pb::FullyExpandedJet {
+                fully_expanded_mach_number: mj,
+                size: Some(pb::fully_expanded_jet::Size::FullyExpandedDiameterM(dj)),
+                ..Default::default()
+            })),
+        }
+    }
+}

@@ -5,29 +5,17 @@ use jetloop_proto::pb::{
     self, gas_dynamics_service_client::GasDynamicsServiceClient, info_service_client::InfoServiceClient,
     isentropic_ratios_request::Given, nozzle::Kind, operating_point::Pressure,
 };
+use jetloop_tests::fixtures::{self, rel, round};
 use jetloop_tests::TestServer;
 use tonic::Code;
 
-fn rel(a: f64, b: f64) -> f64 {
-    ((a - b) / b).abs()
-}
-
+/// Shared conditions with the reservoir temperature given (288.15 K).
 fn conditions(kind: Kind, npr: f64) -> pb::JetConditions {
-    pb::JetConditions {
-        nozzle: Some(pb::Nozzle { kind: Some(kind) }),
-        operating_point: Some(pb::OperatingPoint {
-            pressure: Some(Pressure::NozzlePressureRatio(npr)),
-            total_temperature_k: Some(288.15),
-            ..Default::default()
-        }),
-        gas: None,
-        ambient_gas: None,
-        ideal_expansion_tolerance: None,
+    let mut c = fixtures::conditions(kind, npr);
+    if let Some(op) = c.operating_point.as_mut() {
+        op.total_temperature_k = Some(288.15);
     }
-}
-
-fn round(d: f64) -> Kind {
-    Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: d })
+    c
 }
 
 /// Asserts INVALID_ARGUMENT with a BadRequest violation on `field`.

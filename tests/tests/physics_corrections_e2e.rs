@@ -5,44 +5,25 @@
 
 use jetloop_proto::pb::{
     self, gas_dynamics_service_client::GasDynamicsServiceClient, isentropic_ratios_request::Given,
-    jet_input::Source, nozzle::Kind, operating_point::Pressure,
-    shock_cell_service_client::ShockCellServiceClient, tone_service_client::ToneServiceClient,
+    nozzle::Kind, operating_point::Pressure, shock_cell_service_client::ShockCellServiceClient,
+    tone_service_client::ToneServiceClient,
 };
+use jetloop_tests::fixtures::{self, cd, rel, round};
 use jetloop_tests::{assert_field, TestServer};
 use tonic::Code;
 use tonic_types::StatusExt;
 
-fn rel(a: f64, b: f64) -> f64 {
-    ((a - b) / b).abs()
-}
-
-fn round(d: f64) -> Kind {
-    Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: d })
-}
-
-fn cd(d: f64, md: f64) -> Kind {
-    Kind::RoundConvergentDivergent(pb::RoundConvergentDivergentNozzle {
-        exit_diameter_m: d,
-        design: Some(pb::round_convergent_divergent_nozzle::Design::DesignMachNumber(md)),
-    })
-}
-
 fn conditions(kind: Kind, npr: f64, gas: Option<pb::Gas>, t0: f64) -> pb::JetConditions {
-    pb::JetConditions {
-        nozzle: Some(pb::Nozzle { kind: Some(kind) }),
-        operating_point: Some(pb::OperatingPoint {
-            pressure: Some(Pressure::NozzlePressureRatio(npr)),
-            total_temperature_k: Some(t0),
-            ..Default::default()
-        }),
-        gas,
-        ambient_gas: None,
-        ideal_expansion_tolerance: None,
+    let mut c = fixtures::conditions(kind, npr);
+    c.gas = gas;
+    if let Some(op) = c.operating_point.as_mut() {
+        op.total_temperature_k = Some(t0);
     }
+    c
 }
 
 fn input(c: pb::JetConditions) -> Option<pb::JetInput> {
-    Some(pb::JetInput { source: Some(Source::Conditions(c)) })
+    Some(fixtures::input(c))
 }
 
 const HELIUM: pb::Gas = pb::Gas { gamma: Some(5.0 / 3.0), gas_constant_j_per_kg_k: Some(2077.1) };

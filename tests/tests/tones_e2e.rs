@@ -2,44 +2,13 @@
 //! subsonic jets and sweep limits.
 
 use jetloop_proto::pb::{
-    self, feedback_loop::Source as LoopSource, jet_input::Source, nozzle::Kind, operating_point::Pressure,
-    shock_cell_service_client::ShockCellServiceClient, sweep_screech_request::Values,
-    tone_service_client::ToneServiceClient,
+    self, feedback_loop::Source as LoopSource, shock_cell_service_client::ShockCellServiceClient,
+    sweep_screech_request::Values, tone_service_client::ToneServiceClient,
 };
+use jetloop_tests::fixtures::{direct, inch_nozzle as conditions, rel};
 use jetloop_tests::{assert_field, TestServer};
 use tonic::Code;
 use tonic_types::StatusExt;
-
-fn rel(a: f64, b: f64) -> f64 {
-    ((a - b) / b).abs()
-}
-
-fn conditions(npr: f64) -> pb::JetInput {
-    pb::JetInput {
-        source: Some(Source::Conditions(pb::JetConditions {
-            nozzle: Some(pb::Nozzle {
-                kind: Some(Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: 0.0254 })),
-            }),
-            operating_point: Some(pb::OperatingPoint {
-                pressure: Some(Pressure::NozzlePressureRatio(npr)),
-                ..Default::default()
-            }),
-            gas: None,
-            ambient_gas: None,
-            ideal_expansion_tolerance: None,
-        })),
-    }
-}
-
-fn direct(mj: f64, d: f64) -> pb::JetInput {
-    pb::JetInput {
-        source: Some(Source::FullyExpanded(pb::FullyExpandedJet {
-            fully_expanded_mach_number: mj,
-            size: Some(pb::fully_expanded_jet::Size::FullyExpandedDiameterM(d)),
-            ..Default::default()
-        })),
-    }
-}
 
 #[tokio::test]
 async fn cell_spacing_round_jet_and_subsonic_precondition() {

@@ -4,8 +4,9 @@
 use super::error::{ApiError, Check};
 use super::gas::{gas_from, jet_spec, JetSpec};
 use super::provenance::Defaults;
-use crate::physics::cells::CellOptions;
+use crate::physics::cells::{self, CellOptions};
 use crate::physics::jet::{self, jet_state, ExpandedJet, JetSize, JetState};
+use crate::physics::screech;
 use crate::physics::tones::{self, Convection, LoopSpec, PathLength, PathSpeed, Segment, Source};
 use jetloop_proto::pb;
 
@@ -141,9 +142,32 @@ pub fn cell_options(
     default_modes: u32,
 ) -> Option<CellOptions> {
     let pb::CellOptions { spacing_factor, modes, shock_count } = o.unwrap_or_default();
-    let factor =
-        defaults.or(spacing_factor, &format!("{path}.spacing_factor"), 1.0, "", "pure vortex-sheet spacing");
-    check.range(path, CellOptions::new(factor, modes.unwrap_or(default_modes), shock_count.unwrap_or(8)))
+    let factor = defaults.or(
+        spacing_factor,
+        &format!("{path}.spacing_factor"),
+        cells::DEFAULT_SPACING_FACTOR,
+        "",
+        "pure vortex-sheet spacing",
+    );
+    let shocks = match shock_count {
+        Some(n) => n,
+        None => {
+            defaults.note(
+                &format!("{path}.shock_count"),
+                &cells::DEFAULT_SHOCKS.to_string(),
+                "the first shocks",
+            );
+            cells::DEFAULT_SHOCKS
+        }
+    };
+    let modes = match modes {
+        Some(m) => m,
+        None => {
+            defaults.note(&format!("{path}.modes"), &default_modes.to_string(), "waveguide modes listed");
+            default_modes
+        }
+    };
+    check.range(path, CellOptions::new(factor, modes, shocks))
 }
 
 /// Convection at `path`; unset: 0.7 Uj (Tam 1986).
@@ -156,8 +180,13 @@ pub fn convection(
     use pb::convection::Speed;
     match c.and_then(|c| c.speed) {
         None => {
-            defaults.note(&format!("{path}.convection_ratio"), "0.7", "Uc = 0.7 Uj (Tam, Seiner & Yu 1986)");
-            Some(Convection::Ratio(0.7))
+            let r = screech::DEFAULT_CONVECTION_RATIO;
+            defaults.note(
+                &format!("{path}.convection_ratio"),
+                &r.to_string(),
+                "Uc = 0.7 Uj (Tam, Seiner & Yu 1986)",
+            );
+            Some(Convection::Ratio(r))
         }
         Some(Speed::ConvectionRatio(r)) => check.range(path, Convection::ratio(r)),
         Some(Speed::ConvectionSpeedMPerS(v)) => check.range(path, Convection::speed(v)),
@@ -177,12 +206,17 @@ pub fn loop_spec(
         l.unwrap_or_default();
     let source = match source {
         None => {
-            defaults.note(&format!("{path}.source_cells"), "1", "source at the end of the first shock cell");
-            Source::Cells(1.0)
+            let n = tones::DEFAULT_SOURCE_CELLS;
+            defaults.note(
+                &format!("{path}.source_cells"),
+                &n.to_string(),
+                "source at the end of the first shock cell",
+            );
+            Source::Cells(n)
         }
         Some(S::SourceCells(n)) => check
             .range(path, tones::SOURCE_CELLS.check("source_cells", n))
-            .map_or(Source::Cells(1.0), Source::Cells),
+            .map_or(Source::Cells(tones::DEFAULT_SOURCE_CELLS), Source::Cells),
         Some(S::SourceDistanceM(d)) => check
             .range(path, tones::PATH_LENGTH.check("source_distance_m", d))
             .map_or(Source::Distance(0.0), Source::Distance),
@@ -268,13 +302,14 @@ pub fn loop_spec(
             )
         })
         .collect();
+    let d = tones::DEFAULT_MAX_ORDER;
     let max_order = match max_loop_order {
         None => {
-            defaults.note(&format!("{path}.max_loop_order"), "4", "loop orders 1 to 4");
-            4
+            defaults.note(&format!("{path}.max_loop_order"), &d.to_string(), "loop orders 1 to 4");
+            d
         }
         Some(n) => {
-            check.range(path, tones::LOOP_ORDER.check("max_loop_order", f64::from(n))).map_or(4, |v| v as u32)
+            check.range(path, tones::LOOP_ORDER.check("max_loop_order", f64::from(n))).map_or(d, |v| v as u32)
         }
     };
     LoopSpec { source, reflector_m, segments: segs, delays_s: delays, max_order }

@@ -31,9 +31,14 @@ pub struct CellOptions {
     shocks: u32,
 }
 
+/// Spacing factor when none is given: the pure vortex-sheet spacing.
+pub const DEFAULT_SPACING_FACTOR: f64 = 1.0;
+/// Shock positions listed when no count is given.
+pub const DEFAULT_SHOCKS: u32 = 8;
+
 impl Default for CellOptions {
     fn default() -> Self {
-        Self { factor: 1.0, modes: 1, shocks: 8 }
+        Self { factor: DEFAULT_SPACING_FACTOR, modes: 1, shocks: DEFAULT_SHOCKS }
     }
 }
 

@@ -143,14 +143,19 @@ pub struct LoopSpec {
     pub max_order: u32,
 }
 
+/// Source position when none is given: the end of the first shock cell.
+pub const DEFAULT_SOURCE_CELLS: f64 = 1.0;
+/// Highest loop order when none is given.
+pub const DEFAULT_MAX_ORDER: u32 = 4;
+
 impl Default for LoopSpec {
     fn default() -> Self {
         Self {
-            source: Source::Cells(1.0),
+            source: Source::Cells(DEFAULT_SOURCE_CELLS),
             reflector_m: None,
             segments: Vec::new(),
             delays_s: Vec::new(),
-            max_order: 4,
+            max_order: DEFAULT_MAX_ORDER,
         }
     }
 }

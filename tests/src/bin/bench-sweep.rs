@@ -5,10 +5,7 @@
 //! max), so the figure can be compared with the 20 ms target without a timed test.
 #![forbid(unsafe_code)]
 
-use jetloop_proto::pb::{
-    self, jet_input::Source, nozzle::Kind, operating_point::Pressure, sweep_screech_request::Values,
-    tone_service_client::ToneServiceClient,
-};
+use jetloop_proto::pb::{self, sweep_screech_request::Values, tone_service_client::ToneServiceClient};
 use jetloop_tests::TestServer;
 use std::time::Instant;
 
@@ -24,20 +21,7 @@ async fn main() {
     let mut client =
         ToneServiceClient::new(server.channel().await).max_decoding_message_size(64 * 1024 * 1024);
     let request = pb::SweepScreechRequest {
-        jet: Some(pb::JetInput {
-            source: Some(Source::Conditions(pb::JetConditions {
-                nozzle: Some(pb::Nozzle {
-                    kind: Some(Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: 0.0254 })),
-                }),
-                operating_point: Some(pb::OperatingPoint {
-                    pressure: Some(Pressure::NozzlePressureRatio(3.0)),
-                    ..Default::default()
-                }),
-                gas: None,
-                ambient_gas: None,
-                ideal_expansion_tolerance: None,
-            })),
-        }),
+        jet: Some(jetloop_tests::fixtures::inch_nozzle(3.0)),
         variable: pb::SweepVariable::NozzlePressureRatio as i32,
         values: Some(Values::Range(pb::SweepRange { start: 2.0, stop: 8.0, count: 10_000 })),
         options: Some(pb::ScreechOptions {
