@@ -22,6 +22,9 @@ def main():
     assert "ExecStart=/usr/local/bin/jetloop-server" in unit
     docker = (HERE / "Dockerfile").read_text()
     assert '"0.0.0.0:50051"' in docker
+    # Listening on all interfaces without TLS or tokens: reflection must be off there.
+    assert '"--reflection", "off"' in docker, "the container listens on all interfaces: reflection off"
+    assert '"--reflection", "off"' in docs[0], "the pods listen on all interfaces: reflection off"
     print("deploy manifests: 3 Kubernetes objects, systemd unit and Dockerfile checked")
 
 

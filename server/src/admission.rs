@@ -137,6 +137,69 @@ fn refused(limit: usize) -> Status {
     )
 }
 
+/// Inbound errors are the caller's: tonic answers a request body that does not decode
+/// (malformed protobuf, a truncated frame, a compressed flag without an encoding) with INTERNAL
+/// and an over-limit message with OUT_OF_RANGE. This layer answers them INVALID_ARGUMENT (with a
+/// `BadRequest` naming the request body) and RESOURCE_EXHAUSTED, the gRPC conventions for a
+/// bad request and a size limit, so clients sort them correctly (retry nothing, fix the call).
+#[derive(Debug, Clone, Copy, Default)]
+pub struct InboundErrorsLayer;
+
+impl<S> tower::Layer<S> for InboundErrorsLayer {
+    type Service = InboundErrors<S>;
+
+    fn layer(&self, inner: S) -> InboundErrors<S> {
+        InboundErrors { inner }
+    }
+}
+
+/// The service [`InboundErrorsLayer`] wraps around the routes.
+#[derive(Debug, Clone)]
+pub struct InboundErrors<S> {
+    inner: S,
+}
+
+/// Messages tonic gives request bodies it cannot decode (tonic 0.14 `codec/decode.rs`,
+/// tonic-prost `from_decode_error`).
+const DECODE_FAILURES: [&str; 5] = [
+    "failed to decode Protobuf message",
+    "protocol error: received message with",
+    "Error decompressing",
+    "Unexpected EOF decoding stream",
+    "Missing request message",
+];
+/// tonic's message for a request over the size limit.
+const TOO_LARGE: &str = "Error, decoded message length too large";
+
+/// The status a trailers-only error answer should carry instead, if any.
+pub fn inbound_status(status: &Status) -> Option<Status> {
+    let msg = status.message();
+    match status.code() {
+        tonic::Code::Internal if DECODE_FAILURES.iter().any(|p| msg.starts_with(p)) => {
+            let mut details = ErrorDetails::new();
+            details.add_bad_request_violation(
+                "(request body)",
+                format!("the request body is not a valid message of this RPC: {msg}"),
+            );
+            Some(Status::with_error_details(
+                tonic::Code::InvalidArgument,
+                format!("the request body could not be decoded: {msg}"),
+                details,
+            ))
+        }
+        tonic::Code::OutOfRange if msg.starts_with(TOO_LARGE) => {
+            let mut details = ErrorDetails::new();
+            details.add_bad_request_violation("(request body)", msg.to_string());
+            Some(Status::with_error_details(
+                tonic::Code::ResourceExhausted,
+                format!("{msg}; send smaller messages (samples in blocks: ExtractTonesStream)"),
+                details,
+            ))
+        }
+        _ => None,
+    }
+}
+
 type BoxFuture<R, E> = Pin<Box<dyn Future<Output = Result<R, E>> + Send>>;
 
 impl<S, B> tower::Service<http::Request<B>> for Shed<S>
@@ -195,6 +258,33 @@ where
             match tokio::time::timeout(limit, fut).await {
                 Ok(r) => r,
                 Err(_) => Ok(Status::deadline_exceeded(format!("stopped: {why}")).into_http()),
+            }
+        })
+    }
+}
+
+impl<S, B> tower::Service<http::Request<B>> for InboundErrors<S>
+where
+    S: tower::Service<http::Request<B>, Response = http::Response<Body>> + Send + 'static,
+    S::Future: Send + 'static,
+    S::Error: Send + 'static,
+{
+    type Response = http::Response<Body>;
+    type Error = S::Error;
+    type Future = BoxFuture<Self::Response, Self::Error>;
+
+    fn poll_ready(&mut self, cx: &mut Context<'_>) -> Poll<Result<(), Self::Error>> {
+        self.inner.poll_ready(cx)
+    }
+
+    fn call(&mut self, req: http::Request<B>) -> Self::Future {
+        let fut = self.inner.call(req);
+        Box::pin(async move {
+            let resp = fut.await?;
+            // Only trailers-only answers (the status in the headers) carry these errors.
+            match Status::from_header_map(resp.headers()).as_ref().and_then(inbound_status) {
+                Some(fixed) => Ok(fixed.into_http()),
+                None => Ok(resp),
             }
         })
     }

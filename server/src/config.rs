@@ -46,9 +46,64 @@ pub struct Config {
     #[arg(long, env = "JETLOOP_MAX_CONCURRENT", default_value_t = 256,
           value_parser = clap::value_parser!(u64).range(1..=65536))]
     pub max_concurrent_requests: u64,
+    /// Serve gRPC server reflection (`on` or `off`). It lets tools such as grpcurl list the
+    /// API; turn it off where the port is reachable from outside a trusted network.
+    #[arg(long, env = "JETLOOP_REFLECTION", default_value = "on", value_parser = ["on", "off"])]
+    pub reflection: String,
+    /// Seconds between a stop request and the end of accepting: health answers NOT_SERVING
+    /// meanwhile, so load balancers stop sending calls before connections go away.
+    #[arg(long, env = "JETLOOP_DRAIN_NOTICE_S", default_value_t = 1.0,
+          value_parser = parse_seconds)]
+    pub drain_notice_s: f64,
+    /// Most seconds that calls in flight are given after accepting ends; connections still
+    /// open then (idle ones included) are closed and the process exits 0. Keep it below the
+    /// service manager's stop timeout (30 s in the shipped systemd unit).
+    #[arg(long, env = "JETLOOP_DRAIN_S", default_value_t = 20.0, value_parser = parse_seconds)]
+    pub drain_s: f64,
+}
+
+fn parse_seconds(s: &str) -> Result<f64, String> {
+    match s.parse::<f64>() {
+        Ok(v) if (0.0..=3600.0).contains(&v) => Ok(v),
+        _ => Err(format!("{s} is not a number of seconds in [0, 3600]")),
+    }
+}
+
+/// How the server starts and stops, beside the per-call [`Limits`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ServeOptions {
+    /// Limits on every call.
+    pub limits: Limits,
+    /// Serve gRPC reflection.
+    pub reflection: bool,
+    /// NOT_SERVING notice before accepting ends.
+    pub drain_notice: Duration,
+    /// Most time given to calls in flight after accepting ends.
+    pub drain: Duration,
+}
+
+impl Default for ServeOptions {
+    fn default() -> Self {
+        Self {
+            limits: Limits::default(),
+            reflection: true,
+            drain_notice: Duration::from_secs(1),
+            drain: Duration::from_secs(20),
+        }
+    }
 }
 
 impl Config {
+    /// Start and stop options from the flags.
+    pub fn serve_options(&self) -> ServeOptions {
+        ServeOptions {
+            limits: self.limits(),
+            reflection: self.reflection == "on",
+            drain_notice: Duration::from_secs_f64(self.drain_notice_s),
+            drain: Duration::from_secs_f64(self.drain_s),
+        }
+    }
+
     /// Limits from the flags.
     pub fn limits(&self) -> Limits {
         Limits {

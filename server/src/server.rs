@@ -1,7 +1,7 @@
 //! Builds the tonic server: jetloop services, health, reflection and the limits around them.
 
-use crate::admission::{DeadlineLayer, ShedLayer};
-use crate::config::Limits;
+use crate::admission::{DeadlineLayer, InboundErrorsLayer, ShedLayer};
+use crate::config::ServeOptions;
 use crate::service::{
     gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells, spectrum::Spectrum, staging::Staging,
     tones::Tones,
@@ -54,30 +54,43 @@ pub enum ServeError {
 }
 
 /// Serves every jetloop service on an already bound listener until `shutdown` resolves, then
-/// finishes the calls in flight.
+/// drains:
+/// 1. health answers NOT_SERVING for `drain_notice` while calls are still accepted, so load
+///    balancers and probes move away first;
+/// 2. accepting ends and every connection is told to go away (HTTP/2 GOAWAY); calls in flight
+///    go on;
+/// 3. after at most `drain` the connections still open (idle or stalled ones included) are
+///    closed and this returns `Ok`.
 ///
 /// # Errors
 /// [`ServeError`] when reflection cannot be built or the transport fails.
 pub async fn serve(
     listener: TcpListener,
-    limits: Limits,
+    options: ServeOptions,
     shutdown: impl Future<Output = ()> + Send,
 ) -> Result<(), ServeError> {
+    let ServeOptions { limits, reflection, drain_notice, drain } = options;
     let (health_reporter, health) = tonic_health::server::health_reporter();
     // Every jetloop service is SERVING as soon as the listener accepts (they hold no state).
     for name in JETLOOP_SERVICES {
         health_reporter.set_service_status(*name, tonic_health::ServingStatus::Serving).await;
     }
 
-    let reflection_v1 = tonic_reflection::server::Builder::configure()
-        .register_encoded_file_descriptor_set(jetloop_proto::FILE_DESCRIPTOR_SET)
-        .register_encoded_file_descriptor_set(tonic_health::pb::FILE_DESCRIPTOR_SET)
-        .build_v1()?;
-    // Python's grpcio-reflection client still speaks v1alpha.
-    let reflection_v1alpha = tonic_reflection::server::Builder::configure()
-        .register_encoded_file_descriptor_set(jetloop_proto::FILE_DESCRIPTOR_SET)
-        .register_encoded_file_descriptor_set(tonic_health::pb::FILE_DESCRIPTOR_SET)
-        .build_v1alpha()?;
+    let reflection = if reflection {
+        let v1 = tonic_reflection::server::Builder::configure()
+            .register_encoded_file_descriptor_set(jetloop_proto::FILE_DESCRIPTOR_SET)
+            .register_encoded_file_descriptor_set(tonic_health::pb::FILE_DESCRIPTOR_SET)
+            .build_v1()?;
+        // Python's grpcio-reflection client still speaks v1alpha.
+        let v1alpha = tonic_reflection::server::Builder::configure()
+            .register_encoded_file_descriptor_set(jetloop_proto::FILE_DESCRIPTOR_SET)
+            .register_encoded_file_descriptor_set(tonic_health::pb::FILE_DESCRIPTOR_SET)
+            .build_v1alpha()?;
+        Some((v1, v1alpha))
+    } else {
+        None
+    };
+    let (reflection_v1, reflection_v1alpha) = reflection.unzip();
 
     // One stack around every route, outermost first. The per-call trace span is tonic's
     // `trace_fn` below, which wraps this stack, so a refused or expired call is logged in the
@@ -91,10 +104,29 @@ pub async fn serve(
         // Then the deadline, only for admitted calls: DEADLINE_EXCEEDED at the caller's
         // grpc-timeout (answered just before it) or the server's limit, whichever is sooner.
         .layer(DeadlineLayer::new(limits.request_timeout))
+        // Innermost, nearest the routes: a request body that does not decode, or is over the
+        // size limit, is the caller's error (INVALID_ARGUMENT, RESOURCE_EXHAUSTED), not the
+        // server's (tonic's INTERNAL, OUT_OF_RANGE).
+        .layer(InboundErrorsLayer)
         .into_inner();
 
+    // The stop request: NOT_SERVING first, then the end of accepting after the notice.
+    let (accepting_ended_tx, accepting_ended) = tokio::sync::oneshot::channel::<()>();
+    let reporter = health_reporter.clone();
+    let stop_accepting = async move {
+        shutdown.await;
+        reporter.set_service_status("", tonic_health::ServingStatus::NotServing).await;
+        for name in JETLOOP_SERVICES {
+            reporter.set_service_status(*name, tonic_health::ServingStatus::NotServing).await;
+        }
+        tracing::info!(notice_s = drain_notice.as_secs_f64(), "stop requested: health NOT_SERVING");
+        tokio::time::sleep(drain_notice).await;
+        tracing::info!(drain_s = drain.as_secs_f64(), "no longer accepting; draining calls in flight");
+        let _ = accepting_ended_tx.send(());
+    };
+
     let max = limits.max_request_bytes;
-    Server::builder()
+    let serving = Server::builder()
         // A span per call, so logs carry the method path.
         .trace_fn(|req| tracing::info_span!("grpc", path = %req.uri().path()))
         // Large flow-control windows: a DAQ block of a few MB then arrives in one round trip
@@ -103,8 +135,8 @@ pub async fn serve(
         .initial_connection_window_size(Some(32 * 1024 * 1024))
         .layer(stack)
         .add_service(health)
-        .add_service(reflection_v1)
-        .add_service(reflection_v1alpha)
+        .add_optional_service(reflection_v1)
+        .add_optional_service(reflection_v1alpha)
         .add_service(limited!(GasDynamicsServiceServer::new(GasDynamics), max))
         .add_service(limited!(InfoServiceServer::new(Info::new(limits)), max))
         .add_service(limited!(ShockCellServiceServer::new(ShockCells), max))
@@ -115,8 +147,25 @@ pub async fn serve(
         // uploads for tens of milliseconds.
         .serve_with_incoming_shutdown(
             tonic::transport::server::TcpIncoming::from(listener).with_nodelay(Some(true)),
-            shutdown,
-        )
-        .await?;
+            stop_accepting,
+        );
+    tokio::pin!(serving);
+    // The graceful shutdown waits for every connection to close; a connection that never
+    // closes (an idle or stalled client) would hold the process forever, so the wait ends
+    // `drain` after accepting ended.
+    let deadline = async {
+        if accepting_ended.await.is_ok() {
+            tokio::time::sleep(drain).await;
+        } else {
+            std::future::pending::<()>().await;
+        }
+    };
+    tokio::select! {
+        r = &mut serving => r?,
+        () = deadline => tracing::warn!(
+            drain_s = drain.as_secs_f64(),
+            "drain time passed with connections still open: closing them"
+        ),
+    }
     Ok(())
 }

@@ -1,8 +1,9 @@
 //! Helpers for end-to-end tests: a real jetloop server on a loopback socket.
 #![forbid(unsafe_code)]
 
-use jetloop_server::config::Limits;
+use jetloop_server::config::{Limits, ServeOptions};
 use std::net::SocketAddr;
+use std::time::Duration;
 use tokio::sync::oneshot;
 use tokio::task::JoinHandle;
 use tonic_types::StatusExt;
@@ -29,10 +30,23 @@ impl TestServer {
     /// # Panics
     /// When the loopback socket cannot be bound.
     pub async fn start_with(limits: Limits) -> Self {
+        Self::start_with_options(ServeOptions {
+            limits,
+            drain_notice: Duration::ZERO,
+            ..ServeOptions::default()
+        })
+        .await
+    }
+
+    /// As [`TestServer::start`], with every start and stop option given.
+    ///
+    /// # Panics
+    /// When the loopback socket cannot be bound.
+    pub async fn start_with_options(options: ServeOptions) -> Self {
         let listener = tokio::net::TcpListener::bind("127.0.0.1:0").await.expect("bind loopback");
         let addr = listener.local_addr().expect("local addr");
         let (tx, rx) = oneshot::channel::<()>();
-        let handle = tokio::spawn(jetloop_server::server::serve(listener, limits, async {
+        let handle = tokio::spawn(jetloop_server::server::serve(listener, options, async {
             let _ = rx.await;
         }));
         Self { addr, shutdown: Some(tx), handle: Some(handle) }

@@ -3,7 +3,7 @@
 
 use clap::Parser;
 use jetloop_server::{config::Config, server};
-use std::io::Write;
+use std::io::{IsTerminal, Write};
 use std::process::ExitCode;
 
 #[tokio::main]
@@ -15,6 +15,8 @@ async fn main() -> ExitCode {
                 .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info")),
         )
         .with_writer(std::io::stderr)
+        // Colour codes only on a terminal, not in files or the journal.
+        .with_ansi(std::io::stderr().is_terminal())
         .init();
     let listener = match tokio::net::TcpListener::bind(config.listen).await {
         Ok(l) => l,
@@ -35,7 +37,7 @@ async fn main() -> ExitCode {
     println!("jetloop-server listening on {addr}");
     let _ = std::io::stdout().flush();
     tracing::info!(%addr, version = env!("CARGO_PKG_VERSION"), "serving");
-    match server::serve(listener, config.limits(), shutdown_signal()).await {
+    match server::serve(listener, config.serve_options(), shutdown_signal()).await {
         Ok(()) => {
             tracing::info!("stopped");
             ExitCode::SUCCESS
@@ -66,5 +68,5 @@ async fn shutdown_signal() {
         () = ctrl_c => {},
         () = term => {},
     }
-    tracing::info!("shutdown requested: finishing calls in flight");
+    tracing::info!("shutdown requested");
 }
