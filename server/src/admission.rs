@@ -11,6 +11,7 @@
 //!
 //! Work already running on the blocking pool is not interrupted; its result is dropped.
 
+use crate::cancel::{Cancel, CancelOnDrop};
 use std::future::Future;
 use std::pin::Pin;
 use std::sync::Arc;
@@ -24,6 +25,16 @@ use tonic_types::{ErrorDetails, StatusExt};
 
 /// Path prefix of the health service, which is never refused.
 const HEALTH: &str = "/grpc.health.v1.Health/";
+/// Longest wait for stopped work to wind down after its deadline answer, holding its permit.
+pub const STOP_GRACE: Duration = Duration::from_secs(5);
+
+/// An admitted call's permit, shared by the admission and deadline layers (released when the
+/// last holder lets go).
+#[derive(Debug, Clone)]
+pub struct Admitted {
+    _permit: Arc<tokio::sync::OwnedSemaphorePermit>,
+}
+
 /// Suggested wait before retrying a refused call.
 pub const RETRY_AFTER: Duration = Duration::from_millis(100);
 
@@ -216,12 +227,17 @@ where
         self.inner.poll_ready(cx)
     }
 
-    fn call(&mut self, req: http::Request<B>) -> Self::Future {
+    fn call(&mut self, mut req: http::Request<B>) -> Self::Future {
         let permit = if req.uri().path().starts_with(HEALTH) {
             None
         } else {
             match self.layer.permits.clone().try_acquire_owned() {
-                Ok(p) => Some(p),
+                Ok(p) => {
+                    // Shared with the deadline layer, which keeps it while stopped work winds down.
+                    let p = Admitted { _permit: Arc::new(p) };
+                    req.extensions_mut().insert(p.clone());
+                    Some(p)
+                }
                 Err(_) => {
                     tracing::warn!(path = %req.uri().path(), "call refused: {} in flight", self.layer.limit);
                     return Box::pin(std::future::ready(Ok(refused(self.layer.limit).into_http())));
@@ -251,13 +267,32 @@ where
         self.inner.poll_ready(cx)
     }
 
-    fn call(&mut self, req: http::Request<B>) -> Self::Future {
+    fn call(&mut self, mut req: http::Request<B>) -> Self::Future {
         let (limit, why) = time_limit(req.headers(), self.timeout);
+        // The call's cancellation flag: handlers hand it to their computation, which checks
+        // it between units of work.
+        let cancel = Cancel::new();
+        req.extensions_mut().insert(cancel.clone());
+        let admitted = req.extensions().get::<Admitted>().cloned();
         let fut = self.inner.call(req);
         Box::pin(async move {
-            match tokio::time::timeout(limit, fut).await {
+            // Dropped with this future (the caller went away): the work stops too.
+            let guard = CancelOnDrop(cancel.clone());
+            let mut fut = Box::pin(fut);
+            match tokio::time::timeout(limit, &mut fut).await {
                 Ok(r) => r,
-                Err(_) => Ok(Status::deadline_exceeded(format!("stopped: {why}")).into_http()),
+                Err(_) => {
+                    // Answer now, stop the work, and keep the call's admission permit until
+                    // the work has really stopped (at most STOP_GRACE), so expired calls cannot
+                    // pile orphaned computations past the concurrency limit.
+                    cancel.cancel();
+                    tokio::spawn(async move {
+                        let _ = tokio::time::timeout(STOP_GRACE, fut).await;
+                        drop(admitted);
+                        drop(guard);
+                    });
+                    Ok(Status::deadline_exceeded(format!("stopped: {why}")).into_http())
+                }
             }
         })
     }

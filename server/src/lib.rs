@@ -7,6 +7,7 @@
 
 pub mod admission;
 pub mod api;
+pub mod cancel;
 pub mod config;
 pub mod dsp;
 pub mod physics;

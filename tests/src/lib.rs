@@ -153,6 +153,19 @@ pub mod fixtures {
         input(conditions(round(0.0254), npr))
     }
 
+    /// `m` points of a pressure sweep: six stages over NPR 2.2-5.0 whose frequencies follow
+    /// a smooth trend with 12 % jumps (synthetic, for timing and load only).
+    pub fn pressure_sweep_points(m: usize) -> Vec<pb::MeasuredTone> {
+        (0..m)
+            .map(|k| {
+                let npr = 2.2 + 2.8 * k as f64 / m as f64;
+                let stage = (6 * k / m) as i32;
+                let f = 6000.0 / (npr - 1.0) * 1.12f64.powi(stage % 2 * 2 - 1 + stage / 2);
+                pb::MeasuredTone { x: npr, frequency_hz: f, ..Default::default() }
+            })
+            .collect()
+    }
+
     /// A cold round jet given directly: Mj and Dj in m.
     pub fn direct(mj: f64, dj: f64) -> pb::JetInput {
         pb::JetInput {

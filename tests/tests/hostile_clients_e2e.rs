@@ -182,3 +182,56 @@ async fn malformed_protobuf_is_invalid_argument_and_over_limit_is_resource_exhau
     assert!(e.message().contains("4096"), "{}", e.message());
     server.stop().await;
 }
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn expired_heavy_calls_leave_no_computation_running() {
+    // Reproduces: a call past its deadline was answered DEADLINE_EXCEEDED but its computation
+    // ran on to the end (seconds of CPU for each expired stage fit). Now the deadline sets the
+    // call's cancellation flag, the fit stops at its next grid cell, and the server's gauge of
+    // running computations is back to 0 within a fraction of the full run time.
+    // Each call: 100,000 points, source cell searched over 1..10 and loop orders 1..50 (about
+    // 3,000 grid fits of thousands of points; many seconds in a debug build, 1.1 s released).
+    use jetloop_proto::pb::{
+        info_service_client::InfoServiceClient, staging_service_client::StagingServiceClient,
+    };
+    let server = TestServer::start_with(jetloop_server::config::Limits {
+        max_request_bytes: 64 << 20,
+        ..Default::default()
+    })
+    .await;
+    let ch = server.channel().await;
+    let heavy = || {
+        let mut r = tonic::Request::new(pb::FitStagesRequest {
+            control: pb::ControlVariable::NozzlePressureRatio as i32,
+            points: jetloop_tests::fixtures::pressure_sweep_points(100_000),
+            jet: Some(jetloop_tests::fixtures::conditions(jetloop_tests::fixtures::round(0.0254), 3.0)),
+            options: Some(pb::FitOptions { max_loop_order: Some(50), ..Default::default() }),
+        });
+        r.set_timeout(Duration::from_millis(400));
+        r
+    };
+    let calls: Vec<_> = (0..4)
+        .map(|_| {
+            let mut c = StagingServiceClient::new(ch.clone()).max_decoding_message_size(64 << 20);
+            let req = heavy();
+            tokio::spawn(async move { c.fit_stages(req).await })
+        })
+        .collect();
+    for call in calls {
+        let e = call.await.unwrap().unwrap_err();
+        assert!(matches!(e.code(), Code::DeadlineExceeded | Code::Cancelled), "{e:?}");
+    }
+    let answered = Instant::now();
+    let mut info = InfoServiceClient::new(ch);
+    let mut running = u64::MAX;
+    while answered.elapsed() < Duration::from_secs(3) {
+        running =
+            info.server_info(pb::ServerInfoRequest {}).await.unwrap().into_inner().computations_in_flight;
+        if running == 0 {
+            break;
+        }
+        tokio::task::yield_now().await;
+    }
+    assert_eq!(running, 0, "computations still running {:?} after their deadlines", answered.elapsed());
+    server.stop().await;
+}

@@ -62,6 +62,10 @@ pub enum ApiError {
     /// `google.rpc.PreconditionFailure` detail.
     #[error("{}", .0.description)]
     Precondition(PreconditionViolation),
+    /// The computation was stopped (deadline passed, caller gone): `CANCELLED`. The caller
+    /// normally never sees it: the deadline layer has already answered DEADLINE_EXCEEDED.
+    #[error("{0}")]
+    Stopped(#[from] crate::cancel::Stopped),
 }
 
 impl ApiError {
@@ -77,7 +81,7 @@ impl ApiError {
             ApiError::TooLarge { field, limit, actual } => {
                 ApiError::TooLarge { field: join(prefix, &field), limit, actual }
             }
-            e @ ApiError::Precondition(_) => e,
+            e @ (ApiError::Precondition(_) | ApiError::Stopped(_)) => e,
         }
     }
 }
@@ -100,6 +104,7 @@ impl From<ApiError> for Status {
                 details.add_bad_request_violation(field, msg.clone());
                 Status::with_error_details(Code::ResourceExhausted, msg, details)
             }
+            ApiError::Stopped(e) => Status::cancelled(e.to_string()),
             ApiError::Precondition(PreconditionViolation { kind, subject, description }) => {
                 let mut details = ErrorDetails::new();
                 details.add_precondition_failure_violation(kind, subject, description.clone());

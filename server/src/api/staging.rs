@@ -4,14 +4,15 @@
 use super::error::{ApiError, Check};
 use super::gas::jet_spec;
 use super::provenance::{provenance, Defaults};
+use crate::cancel::Cancel;
 use crate::physics::bounds::Bounds;
 use crate::physics::gas::Gas;
 use crate::physics::jet;
 use crate::physics::models;
 use crate::physics::staging::limits::{CELLS, FREQ, G, JUMP, KAPPA, MACH_X, ORDER, REFLECTOR_X, REL, SIGMA};
 use crate::physics::staging::{
-    compare_models, fit_stages, infer_directions, pressure_sweep_physics, Direction, FitConfig, FitDefaults,
-    Param, Point, PointPhysics, ReflectorPath, StagingResult, SweepKind,
+    compare_models, fit_stages_until, infer_directions, pressure_sweep_physics, Direction, FitConfig,
+    FitDefaults, Param, Point, PointPhysics, ReflectorPath, StagingResult, SweepKind,
 };
 use jetloop_proto::pb;
 
@@ -348,10 +349,13 @@ fn direction_msg(d: Direction) -> pb::SweepDirection {
 }
 
 /// Runs the staging and builds the response.
-pub fn staging_response(q: StagingQuery) -> pb::FitStagesResponse {
+///
+/// # Errors
+/// [`ApiError::Stopped`] once `cancel` is set.
+pub fn staging_response(q: StagingQuery, cancel: &Cancel) -> Result<pb::FitStagesResponse, ApiError> {
     let StagingQuery { kind, mut points, physics, config, defaults, started } = q;
     infer_directions(&mut points);
-    let res: StagingResult = fit_stages(&points, kind, physics.as_deref(), &config);
+    let res: StagingResult = fit_stages_until(&points, kind, physics.as_deref(), &config, cancel)?;
     let mut out_points: Vec<pb::PointResult> = points
         .iter()
         .enumerate()
@@ -447,7 +451,7 @@ pub fn staging_response(q: StagingQuery) -> pb::FitStagesResponse {
                 .to_string(),
         );
     }
-    pb::FitStagesResponse {
+    Ok(pb::FitStagesResponse {
         points: out_points,
         stages,
         jumps,
@@ -456,5 +460,5 @@ pub fn staging_response(q: StagingQuery) -> pb::FitStagesResponse {
         shared_loop,
         compute_time_s: started.elapsed().as_secs_f64(),
         provenance: Some(provenance(&used, &defaults, notes)),
-    }
+    })
 }

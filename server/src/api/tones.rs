@@ -6,6 +6,7 @@ use super::jet_input::{
     cell_options, convection, convert_jet, jet_summary, loop_spec, resolve_jet, ResolvedJet,
 };
 use super::provenance::{provenance, Defaults};
+use crate::cancel::Cancel;
 use crate::physics::cells::{self, CellOptions};
 use crate::physics::jet::{ExpandedJet, JetState};
 use crate::physics::models::{self, Model};
@@ -494,13 +495,14 @@ impl TryFrom<pb::SweepScreechRequest> for SweepQuery {
 /// # Errors
 /// [`ApiError::Invalid`] naming `options.loop` when the loop takes no time, or
 /// [`ApiError::Precondition`] for a reflector sweep of a jet that is not supersonic.
-pub fn sweep_response(q: &SweepQuery) -> Result<pb::SweepScreechResponse, ApiError> {
+pub fn sweep_response(q: &SweepQuery, cancel: &Cancel) -> Result<pb::SweepScreechResponse, ApiError> {
     let t = std::time::Instant::now();
     let base = match &q.jet.spec {
         Some(spec) => SweepBase::Conditions { gas: spec.gas, nozzle: spec.nozzle, op: spec.op },
         None => SweepBase::Jet(q.jet.jet),
     };
-    let sweep = screech::sweep(&base, q.kind, &q.values, &q.settings).map_err(|e| match e {
+    let sweep = screech::sweep_until(&base, q.kind, &q.values, &q.settings, cancel).map_err(|e| match e {
+        SweepError::Stopped(s) => ApiError::Stopped(s),
         SweepError::ZeroLoop(_) => zero_loop("options.loop"),
         SweepError::NotSupersonic(e) => ApiError::not_supersonic("jet.conditions", &e),
         // Values are checked against their bounds, and the kind against the jet, in the

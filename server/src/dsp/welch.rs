@@ -8,6 +8,7 @@
 
 use super::samples::{first_non_finite, sum, ChannelView, SampleMoments};
 use super::window::{Window, WindowSums};
+use crate::cancel::Cancel;
 use rayon::prelude::*;
 use realfft::{num_complex::Complex, RealFftPlanner, RealToComplex};
 use std::sync::{Arc, Mutex, OnceLock};
@@ -122,6 +123,9 @@ pub enum WelchError {
         /// The value.
         value: f64,
     },
+    /// The estimate was stopped through its cancellation flag.
+    #[error("the estimate was stopped before it finished")]
+    Stopped,
     /// Overlap not below the segment length.
     #[error("overlap {noverlap} must be less than the segment length {nperseg}")]
     Overlap {
@@ -202,6 +206,8 @@ pub struct WelchAccumulator {
     moments: SampleMoments,
     bad: Option<(usize, f64)>,
     segments: usize,
+    cancel: Cancel,
+    stopped: bool,
 }
 
 impl std::fmt::Debug for WelchAccumulator {
@@ -239,7 +245,15 @@ impl WelchAccumulator {
             moments: SampleMoments::default(),
             bad: None,
             segments: 0,
+            cancel: Cancel::default(),
+            stopped: false,
         })
+    }
+
+    /// The same estimate, stopping at the next segment once `cancel` is set
+    /// ([`WelchAccumulator::finish`] then answers [`WelchError::Stopped`]).
+    pub fn with_cancel(self, cancel: Cancel) -> Self {
+        Self { cancel, ..self }
     }
 
     /// Whole segments that fit in the first `samples` samples.
@@ -269,7 +283,7 @@ impl WelchAccumulator {
             .map(|t| (s0 + t * per, (s0 + (t + 1) * per).min(s1)))
             .filter(|(a, b)| a < b)
             .collect();
-        let (fft, w, detrend) = (&self.fft, &self.window, self.config.detrend);
+        let (fft, w, detrend, cancel) = (&self.fft, &self.window, self.config.detrend, &self.cancel);
         let partial: Vec<Worker> = chunks
             .par_iter()
             .map(|&(a, b)| {
@@ -282,6 +296,9 @@ impl WelchAccumulator {
                     bad: None,
                 };
                 for s in a..b {
+                    if cancel.is_cancelled() {
+                        break;
+                    }
                     let start = s * step;
                     x.read(start, &mut wk.buf);
                     take_stock(&mut wk.moments, &mut wk.bad, start, &wk.buf[..step]);
@@ -312,6 +329,7 @@ impl WelchAccumulator {
             }
         }
         self.segments = s1;
+        self.stopped |= self.cancel.is_cancelled();
     }
 
     /// Adds what is left of `x` (its last whole segments and the tail) and scales the average.
@@ -325,6 +343,9 @@ impl WelchAccumulator {
             return Err(WelchError::TooShort { nperseg: n, samples: x.len() });
         }
         self.advance(x);
+        if self.stopped {
+            return Err(WelchError::Stopped);
+        }
         let mut buf = vec![0.0; n];
         let mut start = self.segments * self.step;
         while start < x.len() {

@@ -19,6 +19,7 @@ use super::jet::{jet_state, ExpandedJet, JetState, NotSupersonic, Nozzle, Operat
 use super::staging::SweepKind;
 use super::tones::{self, Convection, LoopResult, LoopSpec, ZeroLoopTime};
 use super::{Bounds, RangeError};
+use crate::cancel::{Cancel, Stopped};
 
 /// Options of a screech prediction.
 #[derive(Debug, Clone, PartialEq)]
@@ -188,6 +189,9 @@ pub enum SweepError {
     /// screech variable.
     #[error("a {0:?} sweep needs jet conditions (nozzle and operating point)")]
     NeedsConditions(SweepKind),
+    /// Stopped through its cancellation flag.
+    #[error(transparent)]
+    Stopped(#[from] Stopped),
 }
 
 /// Allowed fully expanded Mach numbers of an Mj sweep (subsonic points are kept, marked).
@@ -216,6 +220,20 @@ pub fn sweep(
     values: &[f64],
     o: &ScreechOptions,
 ) -> Result<Sweep, SweepError> {
+    sweep_until(base, kind, values, o, &Cancel::default())
+}
+
+/// As [`sweep`], checking `cancel` before each point.
+///
+/// # Errors
+/// As [`sweep`], and [`SweepError::Stopped`] once `cancel` is set.
+pub fn sweep_until(
+    base: &SweepBase,
+    kind: SweepKind,
+    values: &[f64],
+    o: &ScreechOptions,
+    cancel: &Cancel,
+) -> Result<Sweep, SweepError> {
     let mut points = Vec::with_capacity(values.len());
     let mut not_supersonic = 0usize;
     let mut loop_spec = o.loop_spec.clone();
@@ -231,6 +249,7 @@ pub fn sweep(
         | (SweepKind::Plain, SweepBase::Conditions { .. }) => return Err(SweepError::NeedsConditions(kind)),
     };
     for (index, &v) in values.iter().enumerate() {
+        cancel.check()?;
         let (state, jet) = match (&fixed_jet, base) {
             (Some((jet, state)), _) => {
                 loop_spec.reflector_m = Some(v);

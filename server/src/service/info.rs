@@ -37,6 +37,7 @@ impl InfoService for Info {
                 max_concurrent_requests: self.limits.max_concurrent_requests as u64,
             }),
             safety_notice: PRESSURE_CAUTION.to_string(),
+            computations_in_flight: super::COMPUTING.load(std::sync::atomic::Ordering::Relaxed) as u64,
             provenance: Some(provenance(&[], &Defaults::default(), Vec::new())),
         }))
     }

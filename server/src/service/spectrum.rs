@@ -17,9 +17,12 @@ impl SpectrumService for Spectrum {
         &self,
         request: Request<pb::ExtractTonesRequest>,
     ) -> Result<Response<pb::ExtractTonesResponse>, Status> {
+        let cancel = super::cancel_of(&request);
         let req = request.into_inner();
-        let r =
-            super::blocking("spectral analysis", move || tones_response(&ToneQuery::try_from(req)?)).await?;
+        let r = super::blocking("spectral analysis", cancel, move |c| {
+            tones_response(&ToneQuery::try_from(req)?.with_cancel(c.clone()))
+        })
+        .await?;
         Ok(Response::new(r))
     }
 
@@ -35,6 +38,7 @@ impl SpectrumService for Spectrum {
         // handler), the analysis stops without finishing.
         let (tx, rx) = std::sync::mpsc::channel::<Option<pb::SampleBlock>>();
         let worker = tokio::task::spawn_blocking(move || -> Result<_, ApiError> {
+            let _running = super::Running::start();
             let mut stream = ToneStream::start(first)?;
             loop {
                 match rx.recv() {
@@ -80,9 +84,12 @@ impl SpectrumService for Spectrum {
         &self,
         request: Request<pb::BandLevelsRequest>,
     ) -> Result<Response<pb::BandLevelsResponse>, Status> {
+        let cancel = super::cancel_of(&request);
         let req = request.into_inner();
-        let r =
-            super::blocking("spectral analysis", move || bands_response(&BandQuery::try_from(req)?)).await?;
+        let r = super::blocking("spectral analysis", cancel, move |c| {
+            bands_response(&BandQuery::try_from(req)?.with_cancel(c.clone()))
+        })
+        .await?;
         Ok(Response::new(r))
     }
 }

@@ -14,9 +14,11 @@ impl StagingService for Staging {
         &self,
         request: Request<pb::FitStagesRequest>,
     ) -> Result<Response<pb::FitStagesResponse>, Status> {
+        let cancel = super::cancel_of(&request);
         let req = request.into_inner();
         let r =
-            super::blocking("stage fit", move || Ok(staging_response(StagingQuery::try_from(req)?))).await?;
+            super::blocking("stage fit", cancel, move |c| staging_response(StagingQuery::try_from(req)?, c))
+                .await?;
         Ok(Response::new(r))
     }
 }

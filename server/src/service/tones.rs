@@ -33,7 +33,8 @@ impl ToneService for Tones {
         &self,
         request: Request<pb::SweepScreechRequest>,
     ) -> Result<Response<pb::SweepScreechResponse>, Status> {
+        let cancel = super::cancel_of(&request);
         let q = SweepQuery::try_from(request.into_inner())?;
-        Ok(Response::new(super::blocking("sweep computation", move || sweep_response(&q)).await?))
+        Ok(Response::new(super::blocking("sweep computation", cancel, move |c| sweep_response(&q, c)).await?))
     }
 }

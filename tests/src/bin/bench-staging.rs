@@ -6,24 +6,12 @@
 #![forbid(unsafe_code)]
 
 use jetloop_proto::pb::{self, nozzle::Kind, staging_service_client::StagingServiceClient};
+use jetloop_tests::fixtures::pressure_sweep_points as pressure_points;
 use jetloop_tests::TestServer;
 
 fn median(mut v: Vec<f64>) -> f64 {
     v.sort_by(f64::total_cmp);
     v[v.len() / 2]
-}
-
-/// Six stages over NPR 2.2-5.0 whose frequencies follow a smooth trend with 12 % jumps
-/// (synthetic, for timing only).
-fn pressure_points(m: usize) -> Vec<pb::MeasuredTone> {
-    (0..m)
-        .map(|k| {
-            let npr = 2.2 + 2.8 * k as f64 / m as f64;
-            let stage = (6 * k / m) as i32;
-            let f = 6000.0 / (npr - 1.0) * 1.12f64.powi(stage % 2 * 2 - 1 + stage / 2);
-            pb::MeasuredTone { x: npr, frequency_hz: f, ..Default::default() }
-        })
-        .collect()
 }
 
 fn reflector_points(m: usize) -> Vec<pb::MeasuredTone> {

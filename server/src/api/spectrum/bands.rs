@@ -11,6 +11,14 @@ pub struct BandQuery {
     defaults: Defaults,
 }
 
+impl BandQuery {
+    /// The same question, its analysis stopped once `cancel` is set.
+    pub fn with_cancel(mut self, cancel: crate::cancel::Cancel) -> Self {
+        self.samples.cancel = cancel;
+        self
+    }
+}
+
 impl TryFrom<pb::BandLevelsRequest> for BandQuery {
     type Error = ApiError;
 

@@ -1,6 +1,7 @@
 //! Samples: bytes or values, layout, sample rate and calibration, decoded once.
 
 use super::*;
+use crate::cancel::Cancel;
 
 /// Validated, calibrated samples, kept as received and read during the analysis.
 #[derive(Debug, Clone)]
@@ -13,12 +14,16 @@ pub struct SampleSet {
     pub names: Vec<String>,
     /// Request field holding the samples (for errors found while reading them).
     pub field: &'static str,
+    /// Stops the analysis when set (deadline passed, caller gone).
+    pub cancel: Cancel,
 }
 
 impl SampleSet {
     /// Welch PSD of channel `c`, with a non-finite sample reported against the samples field.
     pub(super) fn psd(&self, c: usize, config: WelchConfig) -> Result<Psd, ApiError> {
-        let w = WelchAccumulator::new(self.fs, config).map_err(|e| welch_error(e, self.field))?;
+        let w = WelchAccumulator::new(self.fs, config)
+            .map_err(|e| welch_error(e, self.field))?
+            .with_cancel(self.cancel.clone());
         self.finish_psd(c, w)
     }
 
@@ -175,7 +180,9 @@ pub(super) fn sample_set_for(
         Data::Values(v) => Recording::from_values(v.values, layout, channels as usize, scale),
     };
     match recording {
-        Ok(recording) => Ok(SampleSet { fs, recording, names: channel_names, field }),
+        Ok(recording) => {
+            Ok(SampleSet { fs, recording, names: channel_names, field, cancel: Cancel::default() })
+        }
         Err(e @ DecodeError::Ragged { .. }) => {
             check.other(field, format!("{field}: {e} (samples.channel_count = {channels})"));
             check.finish(None)

@@ -46,6 +46,14 @@ pub struct ToneQuery {
     pub(super) defaults: Defaults,
 }
 
+impl ToneQuery {
+    /// The same question, its analysis stopped once `cancel` is set.
+    pub fn with_cancel(mut self, cancel: crate::cancel::Cancel) -> Self {
+        self.samples.cancel = cancel;
+        self
+    }
+}
+
 impl TryFrom<pb::ExtractTonesRequest> for ToneQuery {
     type Error = ApiError;
 

@@ -18,6 +18,7 @@ pub(super) fn welch_error(e: WelchError, field: &str) -> ApiError {
             field: field.into(),
             description: format!("{field}: {description}"),
         }]),
+        WelchError::Stopped => ApiError::Stopped(crate::cancel::Stopped),
         WelchError::SegmentLength(_) | WelchError::Overlap { .. } => {
             ApiError::Invalid(vec![FieldViolation {
                 field: "welch".into(),

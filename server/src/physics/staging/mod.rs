@@ -33,6 +33,7 @@
 use super::cells;
 use super::gas::Gas;
 use super::jet::{jet_state, ExpandedJet, Nozzle, OperatingPoint};
+use crate::cancel::{Cancel, Stopped};
 
 mod pressure;
 mod reflector;
@@ -312,24 +313,43 @@ pub fn fit_stages(
     physics: Option<&[PointPhysics]>,
     cfg: &FitConfig,
 ) -> StagingResult {
+    match fit_stages_until(points, kind, physics, cfg, &Cancel::default()) {
+        Ok(r) => r,
+        Err(Stopped) => stages(points, cfg.jump_fraction),
+    }
+}
+
+/// As [`fit_stages`], checking `cancel` between stages and inside each grid search.
+///
+/// # Errors
+/// [`Stopped`] once `cancel` is set.
+pub fn fit_stages_until(
+    points: &[Point],
+    kind: SweepKind,
+    physics: Option<&[PointPhysics]>,
+    cfg: &FitConfig,
+    cancel: &Cancel,
+) -> Result<StagingResult, Stopped> {
     let mut res = stages(points, cfg.jump_fraction);
     for s in &mut res.stages {
+        cancel.check()?;
         let pts: Vec<Point> = s.points.iter().map(|&i| points[i]).collect();
         s.fit = match (kind, physics) {
             (SweepKind::Npr | SweepKind::Mach, Some(ph)) => {
                 let q: Vec<PointPhysics> = s.points.iter().map(|&i| ph[i]).collect();
-                fit_pressure_stage(&pts, &q, cfg)
+                pressure::fit_pressure_stage_until(&pts, &q, cfg, cancel)?
             }
             (SweepKind::Reflector, _) => fit_reflector_stage(&pts, cfg),
             _ => None,
         };
     }
+    cancel.check()?;
     res.shared = match (kind, physics) {
         (SweepKind::Npr | SweepKind::Mach, Some(ph)) => shared_pressure(points, ph, &res, cfg),
         (SweepKind::Reflector, _) => shared_reflector(points, &res, cfg),
         _ => None,
     };
-    res
+    Ok(res)
 }
 
 /// Jet physics of each point of a pressure sweep: the fundamental vortex-sheet spacing and Uj

@@ -2,6 +2,7 @@
 //! kappa and tau0 by weighted linear least squares inside.
 
 use super::*;
+use crate::cancel::{Cancel, Stopped};
 use crate::physics::lsq::{weighted_lsq, LinearFit};
 
 /// Pressure sweep: fit with n and N fixed: n/f - N Ls/a = (N/kappa) Ls/Uj + tau0.
@@ -102,6 +103,19 @@ fn model_pressure(params: &[Param], n: u32, q: &PointPhysics, a: f64) -> f64 {
 /// ties (the exact alias n, N, tau0 -> 2n, 2N, 2 tau0) go to the smallest n. Fits within
 /// delta chi^2 <= 1 of the best are reported as equivalent: the data cannot tell them apart.
 pub fn fit_pressure_stage(pts: &[Point], ph: &[PointPhysics], cfg: &FitConfig) -> Option<StageLoop> {
+    fit_pressure_stage_until(pts, ph, cfg, &Cancel::default()).unwrap_or(None)
+}
+
+/// As [`fit_pressure_stage`], checking `cancel` before each cell of the integer grid.
+///
+/// # Errors
+/// [`Stopped`] once `cancel` is set.
+pub fn fit_pressure_stage_until(
+    pts: &[Point],
+    ph: &[PointPhysics],
+    cfg: &FitConfig,
+    cancel: &Cancel,
+) -> Result<Option<StageLoop>, Stopped> {
     let cells: Vec<f64> = match cfg.source_cells_fixed {
         Some(c) => vec![c],
         None => {
@@ -113,11 +127,21 @@ pub fn fit_pressure_stage(pts: &[Point], ph: &[PointPhysics], cfg: &FitConfig) -
     let mut all: Vec<(u32, f64, Vec<Param>, f64, usize)> = Vec::new();
     for &c in &cells {
         for n in 1..=cfg.max_order {
+            cancel.check()?;
             if let Some((params, fit, free)) = pressure_fixed_n(pts, ph, n, c, cfg) {
                 all.push((n, c, params, fit.chi2, free));
             }
         }
     }
+    Ok(best_of(all, ph, cfg))
+}
+
+/// The best grid fit and the fits the data cannot tell from it.
+fn best_of(
+    mut all: Vec<(u32, f64, Vec<Param>, f64, usize)>,
+    ph: &[PointPhysics],
+    cfg: &FitConfig,
+) -> Option<StageLoop> {
     all.sort_by(|a, b| a.3.total_cmp(&b.3).then(a.0.cmp(&b.0)));
     let best_chi2 = all.first()?.3;
     let tol = (1e-9 * best_chi2).max(1e-12);
