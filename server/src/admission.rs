@@ -49,13 +49,47 @@ pub const RETRY_AFTER: Duration = Duration::from_millis(100);
 pub struct ShedLayer {
     permits: Arc<Semaphore>,
     limit: usize,
+    refusals: Arc<Refusals>,
+}
+
+/// Refused calls, logged as one WARN summary per interval instead of a line each (a flood of
+/// refusals under overload would otherwise drown the log).
+#[derive(Debug)]
+struct Refusals {
+    since_last: std::sync::atomic::AtomicU64,
+    last_log: std::sync::Mutex<Option<std::time::Instant>>,
+}
+
+/// Shortest time between two refusal summaries.
+pub const REFUSAL_LOG_INTERVAL: Duration = Duration::from_secs(10);
+
+impl Refusals {
+    fn note(&self, limit: usize) {
+        use std::sync::atomic::Ordering;
+        let n = self.since_last.fetch_add(1, Ordering::Relaxed) + 1;
+        // A poisoned lock only means a logging thread panicked; the timestamp is still usable.
+        let mut last = self.last_log.lock().unwrap_or_else(|e| e.into_inner());
+        let due = last.is_none_or(|t| t.elapsed() >= REFUSAL_LOG_INTERVAL);
+        if due {
+            let window = last.map_or(0.0, |t| t.elapsed().as_secs_f64());
+            self.since_last.store(0, Ordering::Relaxed);
+            *last = Some(std::time::Instant::now());
+            tracing::warn!(
+                refused = n,
+                window_s = window,
+                limit,
+                "calls refused: the server is at its limit of calls in flight"
+            );
+        }
+    }
 }
 
 impl ShedLayer {
     /// At most `max_in_flight` calls at once (at least 1).
     pub fn new(max_in_flight: usize) -> Self {
         let limit = max_in_flight.clamp(1, Semaphore::MAX_PERMITS);
-        Self { permits: Arc::new(Semaphore::new(limit)), limit }
+        let refusals = Refusals { since_last: 0.into(), last_log: std::sync::Mutex::new(None) };
+        Self { permits: Arc::new(Semaphore::new(limit)), limit, refusals: Arc::new(refusals) }
     }
 }
 
@@ -211,6 +245,16 @@ pub fn inbound_status(status: &Status) -> Option<Status> {
     }
 }
 
+/// The method path and the peer address of a call, for its log lines.
+fn call_names<B>(req: &http::Request<B>) -> (String, String) {
+    let peer = req
+        .extensions()
+        .get::<tonic::transport::server::TcpConnectInfo>()
+        .and_then(|c| c.remote_addr())
+        .map_or_else(|| "unknown".to_string(), |a| a.to_string());
+    (req.uri().path().to_string(), peer)
+}
+
 type BoxFuture<R, E> = Pin<Box<dyn Future<Output = Result<R, E>> + Send>>;
 
 impl<S, B> tower::Service<http::Request<B>> for Shed<S>
@@ -239,7 +283,7 @@ where
                     Some(p)
                 }
                 Err(_) => {
-                    tracing::warn!(path = %req.uri().path(), "call refused: {} in flight", self.layer.limit);
+                    self.layer.refusals.note(self.layer.limit);
                     return Box::pin(std::future::ready(Ok(refused(self.layer.limit).into_http())));
                 }
             }
@@ -274,6 +318,7 @@ where
         let cancel = Cancel::new();
         req.extensions_mut().insert(cancel.clone());
         let admitted = req.extensions().get::<Admitted>().cloned();
+        let (method, peer) = call_names(&req);
         let fut = self.inner.call(req);
         Box::pin(async move {
             // Dropped with this future (the caller went away): the work stops too.
@@ -286,6 +331,7 @@ where
                     // the work has really stopped (at most STOP_GRACE), so expired calls cannot
                     // pile orphaned computations past the concurrency limit.
                     cancel.cancel();
+                    tracing::info!(%method, peer = %peer, code = "DEADLINE_EXCEEDED", "call expired: {why}");
                     tokio::spawn(async move {
                         let _ = tokio::time::timeout(STOP_GRACE, fut).await;
                         drop(admitted);
@@ -313,14 +359,26 @@ where
     }
 
     fn call(&mut self, req: http::Request<B>) -> Self::Future {
+        let (method, peer) = call_names(&req);
         let fut = self.inner.call(req);
         Box::pin(async move {
             let resp = fut.await?;
-            // Only trailers-only answers (the status in the headers) carry these errors.
-            match Status::from_header_map(resp.headers()).as_ref().and_then(inbound_status) {
-                Some(fixed) => Ok(fixed.into_http()),
-                None => Ok(resp),
+            // Only trailers-only answers (the status in the headers) carry these errors, and
+            // every error answer of this server is one (no RPC streams its answer).
+            let Some(status) = Status::from_header_map(resp.headers()) else {
+                return Ok(resp);
+            };
+            let (status, resp) = match inbound_status(&status) {
+                Some(fixed) => (fixed.clone(), fixed.into_http()),
+                None => (status, resp),
+            };
+            // CANCELLED is work stopped after its deadline answered (logged there as expired).
+            if !matches!(status.code(), tonic::Code::Ok | tonic::Code::Cancelled) {
+                // Once per failed call, at info: the caller's errors are routine, the log is
+                // for tracing who sent what.
+                tracing::info!(%method, peer = %peer, code = ?status.code(), "call failed: {}", status.message());
             }
+            Ok(resp)
         })
     }
 }

@@ -1,0 +1,102 @@
+//! End to end over a real socket: what the server logs about failed, expired and refused calls
+//! (its own test binary, because it installs the process-wide log subscriber).
+
+use jetloop_proto::pb::{
+    self, gas_dynamics_service_client::GasDynamicsServiceClient, tone_service_client::ToneServiceClient,
+};
+use jetloop_tests::TestServer;
+use std::io::Write;
+use std::sync::{Arc, Mutex};
+use std::time::Duration;
+use tonic::Code;
+
+/// Log lines written by the server, captured in memory.
+#[derive(Clone, Default)]
+struct Captured(Arc<Mutex<Vec<u8>>>);
+
+impl Write for Captured {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        self.0.lock().expect("log buffer").extend_from_slice(buf);
+        Ok(buf.len())
+    }
+
+    fn flush(&mut self) -> std::io::Result<()> {
+        Ok(())
+    }
+}
+
+impl Captured {
+    fn lines(&self, needle: &str) -> Vec<String> {
+        let text = String::from_utf8_lossy(&self.0.lock().expect("log buffer")).to_string();
+        text.lines().filter(|l| l.contains(needle)).map(str::to_string).collect()
+    }
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn failures_and_expiries_are_logged_once_with_method_code_and_peer_and_refusals_summarized() {
+    let log = Captured::default();
+    let writer = log.clone();
+    tracing_subscriber::fmt()
+        .with_env_filter("info")
+        .with_ansi(false)
+        .with_writer(move || writer.clone())
+        .init();
+    let server = TestServer::start_with(jetloop_server::config::Limits {
+        max_concurrent_requests: 1,
+        ..Default::default()
+    })
+    .await;
+    let ch = server.channel().await;
+
+    // One failed call: one line naming the method, the code and the peer.
+    let e = GasDynamicsServiceClient::new(ch.clone())
+        .normal_shock(pb::NormalShockRequest { gamma: None, upstream_mach_number: 0.5 })
+        .await
+        .unwrap_err();
+    assert_eq!(e.code(), Code::InvalidArgument);
+    let failed = log.lines("call failed");
+    assert_eq!(failed.len(), 1, "{failed:?}");
+    assert!(failed[0].contains("/jetloop.v1.GasDynamicsService/NormalShock"), "{}", failed[0]);
+    assert!(failed[0].contains("InvalidArgument") && failed[0].contains("127.0.0.1:"), "{}", failed[0]);
+
+    // One expired call: one line.
+    let sweep = pb::SweepScreechRequest {
+        jet: Some(jetloop_tests::fixtures::inch_nozzle(3.0)),
+        variable: pb::SweepVariable::NozzlePressureRatio as i32,
+        values: Some(pb::sweep_screech_request::Values::Range(pb::SweepRange {
+            start: 2.0,
+            stop: 6.0,
+            count: 10_000,
+        })),
+        options: None,
+    };
+    let mut req = tonic::Request::new(sweep.clone());
+    req.set_timeout(Duration::from_millis(5));
+    let e = ToneServiceClient::new(ch.clone()).sweep_screech(req).await.unwrap_err();
+    assert!(matches!(e.code(), Code::DeadlineExceeded | Code::Cancelled), "{e:?}");
+    let expired = log.lines("call expired");
+    assert_eq!(expired.len(), 1, "{expired:?}");
+    assert!(expired[0].contains("/jetloop.v1.ToneService/SweepScreech") && expired[0].contains("127.0.0.1:"));
+    assert_eq!(log.lines("call failed").len(), 1, "an expiry is not logged twice");
+
+    // Sixteen calls at once against a limit of one: the refusals are summarized, not one WARN
+    // line each.
+    let calls: Vec<_> = (0..16)
+        .map(|_| {
+            let mut c = ToneServiceClient::new(ch.clone());
+            let r = sweep.clone();
+            tokio::spawn(async move { c.sweep_screech(r).await })
+        })
+        .collect();
+    let mut refused = 0;
+    for c in calls {
+        if let Err(e) = c.await.unwrap() {
+            assert_eq!(e.code(), Code::Unavailable);
+            refused += 1;
+        }
+    }
+    assert!(refused >= 2, "only {refused} refused");
+    let summaries = log.lines("calls refused");
+    assert!(summaries.len() == 1, "{refused} refusals gave {} lines: {summaries:?}", summaries.len());
+    server.stop().await;
+}
