@@ -12,6 +12,7 @@
 //! Work already running on the blocking pool is not interrupted; its result is dropped.
 
 use crate::cancel::{Cancel, CancelOnDrop};
+use crate::service::Computing;
 use std::future::Future;
 use std::pin::Pin;
 use std::sync::Arc;
@@ -111,15 +112,17 @@ pub struct Shed<S> {
 /// Deadlines: a call ends with `DEADLINE_EXCEEDED` at the caller's `grpc-timeout` or the
 /// server's limit, whichever comes first (tower's `Timeout` would end it with a transport error
 /// that tonic reports as CANCELLED).
-#[derive(Debug, Clone, Copy)]
+#[derive(Debug, Clone)]
 pub struct DeadlineLayer {
     timeout: Duration,
+    computing: Computing,
 }
 
 impl DeadlineLayer {
-    /// Every call ended after `timeout` at most.
-    pub fn new(timeout: Duration) -> Self {
-        Self { timeout }
+    /// Every call ended after `timeout` at most; calls get the server's gauge of running
+    /// computations `computing` with their cancellation flag.
+    pub fn new(timeout: Duration, computing: Computing) -> Self {
+        Self { timeout, computing }
     }
 }
 
@@ -127,7 +130,7 @@ impl<S> tower::Layer<S> for DeadlineLayer {
     type Service = Deadline<S>;
 
     fn layer(&self, inner: S) -> Deadline<S> {
-        Deadline { inner, timeout: self.timeout }
+        Deadline { inner, timeout: self.timeout, computing: self.computing.clone() }
     }
 }
 
@@ -136,6 +139,7 @@ impl<S> tower::Layer<S> for DeadlineLayer {
 pub struct Deadline<S> {
     inner: S,
     timeout: Duration,
+    computing: Computing,
 }
 
 /// Parses a `grpc-timeout` value (up to 8 digits and a unit: H, M, S, m, u, n).
@@ -317,6 +321,7 @@ where
         // it between units of work.
         let cancel = Cancel::new();
         req.extensions_mut().insert(cancel.clone());
+        req.extensions_mut().insert(self.computing.clone());
         let admitted = req.extensions().get::<Admitted>().cloned();
         let (method, peer) = call_names(&req);
         let fut = self.inner.call(req);

@@ -14,6 +14,9 @@ pub struct Limits {
     /// Calls processed at once, server-wide; one more is refused with UNAVAILABLE and a retry
     /// hint (health checks are never refused).
     pub max_concurrent_requests: usize,
+    /// Sample bytes all calls together may hold at once; beyond it a call is refused with
+    /// RESOURCE_EXHAUSTED.
+    pub sample_budget_bytes: usize,
 }
 
 impl Default for Limits {
@@ -22,7 +25,20 @@ impl Default for Limits {
             max_request_bytes: 64 * 1024 * 1024,
             request_timeout: Duration::from_secs(60),
             max_concurrent_requests: 256,
+            sample_budget_bytes: default_sample_budget(),
         }
+    }
+}
+
+/// Half the machine's physical memory (Linux `/proc/meminfo`), at least 256 MiB; 4 GiB where
+/// the memory size cannot be read.
+pub fn default_sample_budget() -> usize {
+    let total_kib = std::fs::read_to_string("/proc/meminfo").ok().and_then(|m| {
+        m.lines().find(|l| l.starts_with("MemTotal:"))?.split_whitespace().nth(1)?.parse::<usize>().ok()
+    });
+    match total_kib {
+        Some(kib) => (kib.saturating_mul(1024) / 2).max(256 << 20),
+        None => 4 << 30,
     }
 }
 
@@ -46,6 +62,11 @@ pub struct Config {
     #[arg(long, env = "JETLOOP_MAX_CONCURRENT", default_value_t = 256,
           value_parser = clap::value_parser!(u64).range(1..=65536))]
     pub max_concurrent_requests: u64,
+    /// Sample bytes all calls together may hold at once, in MiB (0: half the machine's
+    /// memory). Calls beyond it are refused with RESOURCE_EXHAUSTED naming the budget.
+    #[arg(long, env = "JETLOOP_SAMPLE_BUDGET_MIB", default_value_t = 0,
+          value_parser = clap::value_parser!(u64).range(0..=1 << 22))]
+    pub sample_budget_mib: u64,
     /// Serve gRPC server reflection (`on` or `off`). It lets tools such as grpcurl list the
     /// API; turn it off where the port is reachable from outside a trusted network.
     #[arg(long, env = "JETLOOP_REFLECTION", default_value = "on", value_parser = ["on", "off"])]
@@ -110,6 +131,10 @@ impl Config {
             max_request_bytes: usize::try_from(self.max_request_bytes).unwrap_or(usize::MAX),
             request_timeout: Duration::from_secs(self.request_timeout_s),
             max_concurrent_requests: usize::try_from(self.max_concurrent_requests).unwrap_or(usize::MAX),
+            sample_budget_bytes: match self.sample_budget_mib {
+                0 => default_sample_budget(),
+                mib => usize::try_from(mib << 20).unwrap_or(usize::MAX),
+            },
         }
     }
 }

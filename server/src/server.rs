@@ -2,6 +2,7 @@
 
 use crate::admission::{DeadlineLayer, InboundErrorsLayer, ShedLayer};
 use crate::config::ServeOptions;
+use crate::service::budget::SampleBudget;
 use crate::service::{
     gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells, spectrum::Spectrum, staging::Staging,
     tones::Tones,
@@ -92,6 +93,9 @@ pub async fn serve(
     };
     let (reflection_v1, reflection_v1alpha) = reflection.unzip();
 
+    // The gauge of running computations, handed to every call by the deadline layer.
+    let computing = crate::service::Computing::default();
+
     // One stack around every route, outermost first. The per-call trace span is tonic's
     // `trace_fn` below, which wraps this stack, so a refused or expired call is logged in the
     // span of its method.
@@ -103,7 +107,7 @@ pub async fn serve(
         .layer(ShedLayer::new(limits.max_concurrent_requests))
         // Then the deadline, only for admitted calls: DEADLINE_EXCEEDED at the caller's
         // grpc-timeout (answered just before it) or the server's limit, whichever is sooner.
-        .layer(DeadlineLayer::new(limits.request_timeout))
+        .layer(DeadlineLayer::new(limits.request_timeout, computing.clone()))
         // Innermost, nearest the routes: a request body that does not decode, or is over the
         // size limit, is the caller's error (INVALID_ARGUMENT, RESOURCE_EXHAUSTED), not the
         // server's (tonic's INTERNAL, OUT_OF_RANGE).
@@ -126,6 +130,7 @@ pub async fn serve(
     };
 
     let max = limits.max_request_bytes;
+    let budget = SampleBudget::new(limits.sample_budget_bytes);
     let serving = Server::builder()
         // A span per call, so logs carry the method path.
         .trace_fn(|req| tracing::info_span!("grpc", path = %req.uri().path()))
@@ -138,10 +143,10 @@ pub async fn serve(
         .add_optional_service(reflection_v1)
         .add_optional_service(reflection_v1alpha)
         .add_service(limited!(GasDynamicsServiceServer::new(GasDynamics), max))
-        .add_service(limited!(InfoServiceServer::new(Info::new(limits)), max))
+        .add_service(limited!(InfoServiceServer::new(Info::new(limits, budget.clone(), computing)), max))
         .add_service(limited!(ShockCellServiceServer::new(ShockCells), max))
         .add_service(limited!(ToneServiceServer::new(Tones), max))
-        .add_service(limited!(SpectrumServiceServer::new(Spectrum), max))
+        .add_service(limited!(SpectrumServiceServer::new(Spectrum::new(budget)), max))
         .add_service(limited!(StagingServiceServer::new(Staging), max))
         // TCP_NODELAY: without it Nagle's algorithm and delayed ACKs stall multi-megabyte
         // uploads for tens of milliseconds.

@@ -1,5 +1,6 @@
 //! `jetloop.v1.InfoService`.
 
+use super::budget::SampleBudget;
 use crate::api::gas::PRESSURE_CAUTION;
 use crate::api::provenance::{model, provenance, Defaults, SERVER_VERSION};
 use crate::config::Limits;
@@ -12,12 +13,14 @@ use tonic::{Request, Response, Status};
 #[derive(Debug, Clone)]
 pub struct Info {
     limits: Limits,
+    budget: SampleBudget,
+    computing: super::Computing,
 }
 
 impl Info {
     /// Info for a server running with `limits`.
-    pub fn new(limits: Limits) -> Self {
-        Self { limits }
+    pub fn new(limits: Limits, budget: SampleBudget, computing: super::Computing) -> Self {
+        Self { limits, budget, computing }
     }
 }
 
@@ -35,9 +38,11 @@ impl InfoService for Info {
                 max_request_bytes: self.limits.max_request_bytes as u64,
                 request_timeout_s: self.limits.request_timeout.as_secs_f64(),
                 max_concurrent_requests: self.limits.max_concurrent_requests as u64,
+                sample_budget_bytes: self.limits.sample_budget_bytes as u64,
             }),
             safety_notice: PRESSURE_CAUTION.to_string(),
-            computations_in_flight: super::COMPUTING.load(std::sync::atomic::Ordering::Relaxed) as u64,
+            computations_in_flight: self.computing.count() as u64,
+            sample_bytes_held: self.budget.in_use() as u64,
             provenance: Some(provenance(&[], &Defaults::default(), Vec::new())),
         }))
     }

@@ -1,5 +1,6 @@
 //! Thin gRPC handlers: convert, compute, convert back. One file per service.
 
+pub mod budget;
 pub mod gas_dynamics;
 pub mod info;
 pub mod shock_cells;
@@ -10,10 +11,11 @@ pub mod tones;
 use crate::api::ApiError;
 use crate::cancel::{Cancel, CancelOnDrop};
 use std::sync::atomic::{AtomicUsize, Ordering};
+use std::sync::Arc;
 use tonic::Status;
 
 /// Runs CPU-heavy work `f` (a conversion and its computation) on the blocking pool, so the
-/// reactor only moves bytes. `f` gets the call's cancellation flag ([`cancel_of`]) and checks
+/// reactor only moves bytes. `f` gets the call's cancellation flag ([`work_of`]) and checks
 /// it between units of work; if this future is dropped (the caller went away) the flag is set
 /// too, so no orphaned work runs on. A task that panicked or was cancelled is logged with
 /// `what` and answered INTERNAL without internal detail; the work's own error maps through
@@ -23,23 +25,18 @@ use tonic::Status;
 /// The work's [`ApiError`] as a [`Status`], or INTERNAL when the task did not finish.
 pub(crate) async fn blocking<T: Send + 'static>(
     what: &'static str,
-    cancel: Cancel,
+    work: Work,
     f: impl FnOnce(&Cancel) -> Result<T, ApiError> + Send + 'static,
 ) -> Result<T, Status> {
+    let Work { cancel, computing } = work;
     let guard = CancelOnDrop(cancel.clone());
     let task = tokio::task::spawn_blocking(move || {
-        let _running = Running::start();
+        let _running = Running::start(&computing);
         f(&cancel)
     });
     let out = join(what, task.await)?.map_err(Status::from);
     drop(guard);
     out
-}
-
-/// The cancellation flag the deadline layer attached to a call (a fresh one if none: a call
-/// served outside that layer).
-pub(crate) fn cancel_of<T>(request: &tonic::Request<T>) -> Cancel {
-    request.extensions().get::<Cancel>().cloned().unwrap_or_default()
 }
 
 /// Maps a blocking task's join result: a task that panicked or was cancelled is logged with
@@ -54,22 +51,49 @@ pub(crate) fn join<T>(what: &'static str, r: Result<T, tokio::task::JoinError>) 
     })
 }
 
-/// Computations running on the blocking pool now (ServerInfo `computations_in_flight`).
-pub(crate) static COMPUTING: AtomicUsize = AtomicUsize::new(0);
+/// Computations running on one server's blocking pool now (ServerInfo
+/// `computations_in_flight`). Shared by the deadline layer, which hands it to every call, and
+/// the info service.
+#[derive(Debug, Clone, Default)]
+pub struct Computing(Arc<AtomicUsize>);
 
-/// Counts one computation in [`COMPUTING`] while it lives (a panic included).
-pub(crate) struct Running;
+impl Computing {
+    /// Computations running now.
+    pub fn count(&self) -> usize {
+        self.0.load(Ordering::Relaxed)
+    }
+}
+
+/// Counts one computation while it lives (a panic included).
+pub(crate) struct Running(Computing);
 
 impl Running {
     /// Counts a computation that starts now.
-    pub(crate) fn start() -> Self {
-        COMPUTING.fetch_add(1, Ordering::Relaxed);
-        Running
+    pub(crate) fn start(c: &Computing) -> Self {
+        c.0.fetch_add(1, Ordering::Relaxed);
+        Running(c.clone())
     }
 }
 
 impl Drop for Running {
     fn drop(&mut self) {
-        COMPUTING.fetch_sub(1, Ordering::Relaxed);
+        self.0 .0.fetch_sub(1, Ordering::Relaxed);
+    }
+}
+
+/// What a call's computation needs from the call: its cancellation flag and the server's
+/// gauge of running computations (both attached by the deadline layer; fresh ones for a call
+/// served outside it).
+#[derive(Debug, Clone, Default)]
+pub(crate) struct Work {
+    pub(crate) cancel: Cancel,
+    pub(crate) computing: Computing,
+}
+
+/// The [`Work`] context of a call.
+pub(crate) fn work_of<T>(request: &tonic::Request<T>) -> Work {
+    Work {
+        cancel: request.extensions().get::<Cancel>().cloned().unwrap_or_default(),
+        computing: request.extensions().get::<Computing>().cloned().unwrap_or_default(),
     }
 }

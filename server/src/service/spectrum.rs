@@ -1,15 +1,28 @@
 //! `jetloop.v1.SpectrumService`.
 
+use super::budget::{Held, SampleBudget};
 use crate::api::error::PreconditionViolation;
-use crate::api::spectrum::{bands_response, tones_response, BandQuery, ToneQuery, ToneStream};
+use crate::api::spectrum::{bands_response, held_bytes, tones_response, BandQuery, ToneQuery, ToneStream};
 use crate::api::ApiError;
 use jetloop_proto::pb::{self, spectrum_service_server::SpectrumService};
 use tonic::{Request, Response, Status, Streaming};
 
 /// Handlers for spectral analysis. Decoding and the FFT work run on the blocking pool (the
 /// Welch loop itself spreads segments over the rayon pool), so the reactor only moves bytes.
-#[derive(Debug, Default, Clone, Copy)]
-pub struct Spectrum;
+#[derive(Debug, Clone)]
+pub struct Spectrum {
+    budget: SampleBudget,
+}
+
+impl Spectrum {
+    /// Handlers sharing one server-wide budget of sample bytes.
+    pub fn new(budget: SampleBudget) -> Self {
+        Self { budget }
+    }
+}
+
+/// How often a block stream waiting for its client looks at its cancellation flag.
+const STREAM_CANCEL_POLL: std::time::Duration = std::time::Duration::from_millis(20);
 
 #[tonic::async_trait]
 impl SpectrumService for Spectrum {
@@ -17,12 +30,15 @@ impl SpectrumService for Spectrum {
         &self,
         request: Request<pb::ExtractTonesRequest>,
     ) -> Result<Response<pb::ExtractTonesResponse>, Status> {
-        let cancel = super::cancel_of(&request);
+        let work = super::work_of(&request);
         let req = request.into_inner();
-        let r = super::blocking("spectral analysis", cancel, move |c| {
+        let mut held = Held::default();
+        self.budget.take(&mut held, held_bytes(req.samples.as_ref()), "samples")?;
+        let r = super::blocking("spectral analysis", work, move |c| {
             tones_response(&ToneQuery::try_from(req)?.with_cancel(c.clone()))
         })
         .await?;
+        drop(held);
         Ok(Response::new(r))
     }
 
@@ -30,15 +46,22 @@ impl SpectrumService for Spectrum {
         &self,
         request: Request<Streaming<pb::SampleBlock>>,
     ) -> Result<Response<pb::ExtractTonesResponse>, Status> {
+        let work = super::work_of(&request);
         let mut incoming = request.into_inner();
         let first = incoming.message().await?.ok_or_else(|| Status::from(ToneStream::empty()))?;
+        // Every block's bytes count against the server-wide budget until the stream ends.
+        let mut held = Held::default();
+        let first_bytes =
+            first.frames.len() + held_bytes(first.request.as_ref().and_then(|r| r.samples.as_ref()));
+        self.budget.take(&mut held, first_bytes, "request.samples")?;
         // The analysis runs on one blocking thread (fanning segments out to rayon) and takes
         // blocks from this loop as they arrive; the reactor only moves bytes. The feed ends with
         // `None`; if it closes without one (the caller went away, or the deadline dropped this
         // handler), the analysis stops without finishing.
         let (tx, rx) = std::sync::mpsc::channel::<Option<pb::SampleBlock>>();
+        let (cancel, computing) = (work.cancel, work.computing);
         let worker = tokio::task::spawn_blocking(move || -> Result<_, ApiError> {
-            let _running = super::Running::start();
+            let _running = super::Running::start(&computing);
             let mut stream = ToneStream::start(first)?;
             loop {
                 match rx.recv() {
@@ -56,8 +79,26 @@ impl SpectrumService for Spectrum {
         });
         let mut received = Ok(());
         loop {
-            match incoming.message().await {
+            // Wait for the next block, looking at the cancellation flag meanwhile: a stalled
+            // stream past its deadline lets go of its samples at once.
+            let next = loop {
+                if cancel.is_cancelled() {
+                    break None;
+                }
+                if let Ok(m) = tokio::time::timeout(STREAM_CANCEL_POLL, incoming.message()).await {
+                    break Some(m);
+                }
+            };
+            let Some(next) = next else {
+                received = Err(Status::from(ApiError::Stopped(crate::cancel::Stopped)));
+                break;
+            };
+            match next {
                 Ok(Some(block)) => {
+                    if let Err(e) = self.budget.take(&mut held, block.frames.len(), "frames") {
+                        received = Err(Status::from(e));
+                        break;
+                    }
                     if tx.send(Some(block)).is_err() {
                         // The analysis stopped on an error; it is reported below.
                         break;
@@ -76,6 +117,7 @@ impl SpectrumService for Spectrum {
         }
         drop(tx);
         let answer = super::join("spectral analysis", worker.await)?;
+        drop(held);
         received?;
         Ok(Response::new(answer.map_err(Status::from)?))
     }
@@ -84,12 +126,15 @@ impl SpectrumService for Spectrum {
         &self,
         request: Request<pb::BandLevelsRequest>,
     ) -> Result<Response<pb::BandLevelsResponse>, Status> {
-        let cancel = super::cancel_of(&request);
+        let work = super::work_of(&request);
         let req = request.into_inner();
-        let r = super::blocking("spectral analysis", cancel, move |c| {
+        let mut held = Held::default();
+        self.budget.take(&mut held, held_bytes(req.samples.as_ref()), "samples")?;
+        let r = super::blocking("spectral analysis", work, move |c| {
             bands_response(&BandQuery::try_from(req)?.with_cancel(c.clone()))
         })
         .await?;
+        drop(held);
         Ok(Response::new(r))
     }
 }

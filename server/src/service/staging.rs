@@ -14,10 +14,10 @@ impl StagingService for Staging {
         &self,
         request: Request<pb::FitStagesRequest>,
     ) -> Result<Response<pb::FitStagesResponse>, Status> {
-        let cancel = super::cancel_of(&request);
+        let work = super::work_of(&request);
         let req = request.into_inner();
         let r =
-            super::blocking("stage fit", cancel, move |c| staging_response(StagingQuery::try_from(req)?, c))
+            super::blocking("stage fit", work, move |c| staging_response(StagingQuery::try_from(req)?, c))
                 .await?;
         Ok(Response::new(r))
     }

@@ -33,8 +33,8 @@ impl ToneService for Tones {
         &self,
         request: Request<pb::SweepScreechRequest>,
     ) -> Result<Response<pb::SweepScreechResponse>, Status> {
-        let cancel = super::cancel_of(&request);
+        let work = super::work_of(&request);
         let q = SweepQuery::try_from(request.into_inner())?;
-        Ok(Response::new(super::blocking("sweep computation", cancel, move |c| sweep_response(&q, c)).await?))
+        Ok(Response::new(super::blocking("sweep computation", work, move |c| sweep_response(&q, c)).await?))
     }
 }

@@ -38,7 +38,7 @@ mod welch;
 use bands::band_summary;
 pub use bands::{bands_response, BandQuery};
 use samples::sample_set_for;
-pub use samples::{sample_set, SampleSet};
+pub use samples::{held_bytes, sample_set, SampleSet};
 pub use stream::ToneStream;
 use tones::{analysis, caution, tone_query, tones_answer, SPECTRUM_MODELS};
 pub use tones::{tones_response, ToneQuery};

@@ -63,6 +63,15 @@ pub fn sample_set(s: Option<pb::Samples>, defaults: &mut Defaults) -> Result<Sam
     sample_set_for(s, defaults, false)
 }
 
+/// Sample bytes a `Samples` message holds: the raw bytes, or 8 per packed value.
+pub fn held_bytes(s: Option<&pb::Samples>) -> usize {
+    match s.and_then(|s| s.data.as_ref()) {
+        Some(pb::samples::Data::Raw(r)) => r.data.len(),
+        Some(pb::samples::Data::Values(v)) => v.values.len().saturating_mul(8),
+        None => 0,
+    }
+}
+
 /// As [`sample_set`]; for the first message of a block stream (`stream`), raw interleaved
 /// bytes are required and an empty first block is allowed.
 pub(super) fn sample_set_for(
