@@ -1,5 +1,6 @@
 //! Server configuration: command-line flags with environment fallbacks and safe defaults.
 
+use crate::connections::{default_max_connections, ConnectionLimits};
 use clap::Parser;
 use std::net::SocketAddr;
 use std::time::Duration;
@@ -81,6 +82,14 @@ pub struct Config {
     /// service manager's stop timeout (30 s in the shipped systemd unit).
     #[arg(long, env = "JETLOOP_DRAIN_S", default_value_t = 20.0, value_parser = parse_seconds)]
     pub drain_s: f64,
+    /// Most connections open at once (0: 1024, or the open-file limit less 64 where lower).
+    /// Beyond it new connections are closed at once, so health checks and calls keep working.
+    #[arg(long, env = "JETLOOP_MAX_CONNECTIONS", default_value_t = 0,
+          value_parser = clap::value_parser!(u64).range(0..=1_000_000))]
+    pub max_connections: u64,
+    /// Seconds a new connection has to send its first byte before it is closed.
+    #[arg(long, env = "JETLOOP_HANDSHAKE_TIMEOUT_S", default_value_t = 10.0, value_parser = parse_seconds)]
+    pub handshake_timeout_s: f64,
 }
 
 fn parse_seconds(s: &str) -> Result<f64, String> {
@@ -101,6 +110,8 @@ pub struct ServeOptions {
     pub drain_notice: Duration,
     /// Most time given to calls in flight after accepting ends.
     pub drain: Duration,
+    /// Connection cap and handshake timeout.
+    pub connections: ConnectionLimits,
 }
 
 impl Default for ServeOptions {
@@ -110,6 +121,10 @@ impl Default for ServeOptions {
             reflection: true,
             drain_notice: Duration::from_secs(1),
             drain: Duration::from_secs(20),
+            connections: ConnectionLimits {
+                max_connections: default_max_connections(),
+                handshake_timeout: Duration::from_secs(10),
+            },
         }
     }
 }
@@ -122,6 +137,13 @@ impl Config {
             reflection: self.reflection == "on",
             drain_notice: Duration::from_secs_f64(self.drain_notice_s),
             drain: Duration::from_secs_f64(self.drain_s),
+            connections: ConnectionLimits {
+                max_connections: match self.max_connections {
+                    0 => default_max_connections(),
+                    n => usize::try_from(n).unwrap_or(usize::MAX),
+                },
+                handshake_timeout: Duration::from_secs_f64(self.handshake_timeout_s),
+            },
         }
     }
 

@@ -9,6 +9,7 @@ pub mod admission;
 pub mod api;
 pub mod cancel;
 pub mod config;
+pub mod connections;
 pub mod dsp;
 pub mod physics;
 pub mod server;

@@ -25,6 +25,11 @@ macro_rules! limited {
     };
 }
 
+/// Interval of HTTP/2 keepalive pings on an otherwise silent connection.
+pub const KEEPALIVE_INTERVAL: std::time::Duration = std::time::Duration::from_secs(20);
+/// Time a peer has to answer a keepalive ping before its connection is closed.
+pub const KEEPALIVE_TIMEOUT: std::time::Duration = std::time::Duration::from_secs(10);
+
 /// The jetloop services this server answers, by their gRPC names (taken from the generated
 /// servers, so the list cannot drift from what is served).
 pub const JETLOOP_SERVICES: &[&str] = &[
@@ -70,7 +75,7 @@ pub async fn serve(
     options: ServeOptions,
     shutdown: impl Future<Output = ()> + Send,
 ) -> Result<(), ServeError> {
-    let ServeOptions { limits, reflection, drain_notice, drain } = options;
+    let ServeOptions { limits, reflection, drain_notice, drain, connections } = options;
     let (health_reporter, health) = tonic_health::server::health_reporter();
     // Every jetloop service is SERVING as soon as the listener accepts (they hold no state).
     for name in JETLOOP_SERVICES {
@@ -116,6 +121,7 @@ pub async fn serve(
 
     // The stop request: NOT_SERVING first, then the end of accepting after the notice.
     let (accepting_ended_tx, accepting_ended) = tokio::sync::oneshot::channel::<()>();
+    let (stop_listening_tx, stop_listening) = tokio::sync::oneshot::channel::<()>();
     let reporter = health_reporter.clone();
     let stop_accepting = async move {
         shutdown.await;
@@ -127,6 +133,7 @@ pub async fn serve(
         tokio::time::sleep(drain_notice).await;
         tracing::info!(drain_s = drain.as_secs_f64(), "no longer accepting; draining calls in flight");
         let _ = accepting_ended_tx.send(());
+        let _ = stop_listening_tx.send(());
     };
 
     let max = limits.max_request_bytes;
@@ -138,6 +145,10 @@ pub async fn serve(
         // instead of many 64 KB steps (the default), which dominated upload time.
         .initial_stream_window_size(Some(16 * 1024 * 1024))
         .initial_connection_window_size(Some(32 * 1024 * 1024))
+        // Keepalive pings: a connection whose peer stopped answering is closed (20 s of
+        // silence plus 10 s for the answer), so vanished clients do not hold connections.
+        .http2_keepalive_interval(Some(KEEPALIVE_INTERVAL))
+        .http2_keepalive_timeout(Some(KEEPALIVE_TIMEOUT))
         .layer(stack)
         .add_service(health)
         .add_optional_service(reflection_v1)
@@ -148,10 +159,12 @@ pub async fn serve(
         .add_service(limited!(ToneServiceServer::new(Tones), max))
         .add_service(limited!(SpectrumServiceServer::new(Spectrum::new(budget)), max))
         .add_service(limited!(StagingServiceServer::new(Staging), max))
-        // TCP_NODELAY: without it Nagle's algorithm and delayed ACKs stall multi-megabyte
-        // uploads for tens of milliseconds.
+        // Connections through the capped accept loop (handshake timeout, back-off on accept
+        // errors, TCP_NODELAY): see `connections`.
         .serve_with_incoming_shutdown(
-            tonic::transport::server::TcpIncoming::from(listener).with_nodelay(Some(true)),
+            crate::connections::incoming(listener, connections, async {
+                let _ = stop_listening.await;
+            }),
             stop_accepting,
         );
     tokio::pin!(serving);

@@ -1,0 +1,232 @@
+//! Accepting connections without letting careless or hostile clients take the server down:
+//! - **a cap on open connections**: beyond it a new connection is accepted and closed at once
+//!   (a summary is logged once per interval), so file descriptors remain for health checks
+//!   and real calls;
+//! - **a handshake timeout**: a connection that has sent no byte after it is closed, so bare
+//!   TCP connections cannot hold slots;
+//! - **back-off on accept errors** (e.g. the process is out of file descriptors): the accept
+//!   loop waits and logs instead of spinning a core.
+//!
+//! HTTP/2 keepalive pings (set on the server builder) close connections whose peer is gone.
+
+use std::future::Future;
+use std::io;
+use std::pin::Pin;
+use std::sync::Arc;
+use std::task::{Context, Poll};
+use std::time::{Duration, Instant};
+use tokio::io::{AsyncRead, AsyncWrite, ReadBuf};
+use tokio::net::{TcpListener, TcpStream};
+use tokio::sync::{OwnedSemaphorePermit, Semaphore};
+use tonic::transport::server::{Connected, TcpConnectInfo};
+
+/// How connections are accepted.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct ConnectionLimits {
+    /// Most connections open at once.
+    pub max_connections: usize,
+    /// Time a new connection has to send its first byte.
+    pub handshake_timeout: Duration,
+}
+
+/// Wait after an accept error before trying again.
+pub const ACCEPT_BACKOFF: Duration = Duration::from_millis(50);
+/// Shortest time between two log summaries of refused connections or accept errors.
+pub const LOG_INTERVAL: Duration = Duration::from_secs(10);
+
+/// File descriptors kept free beside the connections (listener, logs, blocking work).
+const FD_RESERVE: usize = 64;
+
+/// The default cap: 1024, or the process's open-file soft limit less a reserve where that is
+/// lower (Linux `/proc/self/limits`).
+pub fn default_max_connections() -> usize {
+    let soft = std::fs::read_to_string("/proc/self/limits").ok().and_then(|l| {
+        l.lines().find(|x| x.starts_with("Max open files"))?.split_whitespace().nth(3)?.parse::<usize>().ok()
+    });
+    match soft {
+        Some(n) => n.saturating_sub(FD_RESERVE).clamp(16, 1024),
+        None => 1024,
+    }
+}
+
+/// The stream of accepted connections the server reads, applying `limits`. It ends, and the
+/// listening socket closes (new connections are refused), when `stop` resolves or the stream
+/// is dropped.
+pub fn incoming(
+    listener: TcpListener,
+    limits: ConnectionLimits,
+    stop: impl std::future::Future<Output = ()> + Send + 'static,
+) -> Incoming {
+    Incoming {
+        listener: Some(listener),
+        slots: Arc::new(Semaphore::new(limits.max_connections.clamp(1, Semaphore::MAX_PERMITS))),
+        limits,
+        refused: Summary::default(),
+        errors: Summary::default(),
+        backoff: None,
+        stop: Box::pin(stop),
+    }
+}
+
+/// Accepted connections under the cap (see [`incoming`]).
+pub struct Incoming {
+    listener: Option<TcpListener>,
+    slots: Arc<Semaphore>,
+    limits: ConnectionLimits,
+    refused: Summary,
+    errors: Summary,
+    backoff: Option<Pin<Box<tokio::time::Sleep>>>,
+    stop: Pin<Box<dyn std::future::Future<Output = ()> + Send>>,
+}
+
+impl std::fmt::Debug for Incoming {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("Incoming").field("limits", &self.limits).finish_non_exhaustive()
+    }
+}
+
+impl tokio_stream::Stream for Incoming {
+    type Item = Result<Conn, io::Error>;
+
+    fn poll_next(mut self: Pin<&mut Self>, cx: &mut Context<'_>) -> Poll<Option<Self::Item>> {
+        let this = &mut *self;
+        if this.stop.as_mut().poll(cx).is_ready() {
+            this.listener = None; // closes the listening socket now
+        }
+        let Some(listener) = this.listener.as_ref() else {
+            return Poll::Ready(None);
+        };
+        if let Some(b) = this.backoff.as_mut() {
+            if b.as_mut().poll(cx).is_pending() {
+                return Poll::Pending;
+            }
+            this.backoff = None;
+        }
+        loop {
+            match listener.poll_accept(cx) {
+                Poll::Pending => return Poll::Pending,
+                Poll::Ready(Ok((stream, _))) => {
+                    let Ok(slot) = this.slots.clone().try_acquire_owned() else {
+                        drop(stream);
+                        let max = this.limits.max_connections;
+                        this.refused.note(|n, s| {
+                            tracing::warn!(
+                                refused = n,
+                                window_s = s,
+                                max,
+                                "connections refused: the server has its limit of open connections"
+                            );
+                        });
+                        continue;
+                    };
+                    // TCP_NODELAY: without it Nagle's algorithm and delayed ACKs stall
+                    // multi-megabyte uploads for tens of milliseconds.
+                    let _ = stream.set_nodelay(true);
+                    return Poll::Ready(Some(Ok(Conn::new(stream, slot, this.limits.handshake_timeout))));
+                }
+                Poll::Ready(Err(e)) => {
+                    // Out of file descriptors and the like: wait instead of spinning.
+                    this.errors.note(|n, s| {
+                        tracing::warn!(errors = n, window_s = s, "accept failed: {e}; backing off")
+                    });
+                    let mut b = Box::pin(tokio::time::sleep(ACCEPT_BACKOFF));
+                    if b.as_mut().poll(cx).is_pending() {
+                        this.backoff = Some(b);
+                        return Poll::Pending;
+                    }
+                }
+            }
+        }
+    }
+}
+
+/// Events counted and logged at most once per [`LOG_INTERVAL`].
+#[derive(Debug, Default)]
+struct Summary {
+    count: u64,
+    last: Option<Instant>,
+}
+
+impl Summary {
+    fn note(&mut self, log: impl FnOnce(u64, f64)) {
+        self.count += 1;
+        if self.last.is_none_or(|t| t.elapsed() >= LOG_INTERVAL) {
+            log(self.count, self.last.map_or(0.0, |t| t.elapsed().as_secs_f64()));
+            self.count = 0;
+            self.last = Some(Instant::now());
+        }
+    }
+}
+
+/// An accepted connection: its slot under the cap is held until it closes, and it is closed
+/// if no byte arrives within the handshake timeout.
+#[derive(Debug)]
+pub struct Conn {
+    inner: TcpStream,
+    _slot: OwnedSemaphorePermit,
+    handshake: Option<Pin<Box<tokio::time::Sleep>>>,
+}
+
+impl Conn {
+    fn new(inner: TcpStream, slot: OwnedSemaphorePermit, timeout: Duration) -> Self {
+        Self { inner, _slot: slot, handshake: Some(Box::pin(tokio::time::sleep(timeout))) }
+    }
+}
+
+impl Connected for Conn {
+    type ConnectInfo = TcpConnectInfo;
+
+    fn connect_info(&self) -> TcpConnectInfo {
+        self.inner.connect_info()
+    }
+}
+
+impl AsyncRead for Conn {
+    fn poll_read(
+        mut self: Pin<&mut Self>,
+        cx: &mut Context<'_>,
+        buf: &mut ReadBuf<'_>,
+    ) -> Poll<io::Result<()>> {
+        let before = buf.filled().len();
+        let r = Pin::new(&mut self.inner).poll_read(cx, buf);
+        if matches!(r, Poll::Ready(Ok(()))) && buf.filled().len() > before {
+            self.handshake = None; // the client has spoken
+            return r;
+        }
+        if let (Poll::Pending, Some(timer)) = (&r, self.handshake.as_mut()) {
+            if std::future::Future::poll(timer.as_mut(), cx).is_ready() {
+                return Poll::Ready(Err(io::Error::new(
+                    io::ErrorKind::TimedOut,
+                    "no byte within the handshake timeout: connection closed",
+                )));
+            }
+        }
+        r
+    }
+}
+
+impl AsyncWrite for Conn {
+    fn poll_write(mut self: Pin<&mut Self>, cx: &mut Context<'_>, buf: &[u8]) -> Poll<io::Result<usize>> {
+        Pin::new(&mut self.inner).poll_write(cx, buf)
+    }
+
+    fn poll_flush(mut self: Pin<&mut Self>, cx: &mut Context<'_>) -> Poll<io::Result<()>> {
+        Pin::new(&mut self.inner).poll_flush(cx)
+    }
+
+    fn poll_shutdown(mut self: Pin<&mut Self>, cx: &mut Context<'_>) -> Poll<io::Result<()>> {
+        Pin::new(&mut self.inner).poll_shutdown(cx)
+    }
+
+    fn poll_write_vectored(
+        mut self: Pin<&mut Self>,
+        cx: &mut Context<'_>,
+        bufs: &[io::IoSlice<'_>],
+    ) -> Poll<io::Result<usize>> {
+        Pin::new(&mut self.inner).poll_write_vectored(cx, bufs)
+    }
+
+    fn is_write_vectored(&self) -> bool {
+        self.inner.is_write_vectored()
+    }
+}
