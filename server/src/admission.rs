@@ -186,6 +186,76 @@ fn refused(limit: usize) -> Status {
     )
 }
 
+/// Least time an answer that is ready is given to be taken by its client.
+pub const MIN_SEND_TIME: Duration = Duration::from_secs(1);
+
+/// Wraps a ready answer so that the call's admission permit is held until the answer has been
+/// taken (or dropped), and so that an answer not taken by `send_by` (the call's deadline, and
+/// at least [`MIN_SEND_TIME`] from now) closes the connection: a client that never opens its
+/// HTTP/2 window cannot keep answers in server memory, nor their permits.
+fn send_guarded(
+    resp: http::Response<Body>,
+    admitted: Option<Admitted>,
+    kill: Option<crate::connections::ConnKill>,
+    send_by: tokio::time::Instant,
+    method: String,
+    peer: String,
+) -> http::Response<Body> {
+    let sent = Arc::new(std::sync::atomic::AtomicBool::new(false));
+    if let Some(kill) = kill {
+        let sent = sent.clone();
+        let at = send_by.max(tokio::time::Instant::now() + MIN_SEND_TIME);
+        tokio::spawn(async move {
+            tokio::time::sleep_until(at).await;
+            if !sent.load(std::sync::atomic::Ordering::SeqCst) {
+                tracing::warn!(%method, peer = %peer, "answer not taken in time: closing the connection");
+                kill.kill();
+            }
+        });
+    }
+    let (parts, body) = resp.into_parts();
+    http::Response::from_parts(parts, Body::new(SendGuard { inner: body, sent, _admitted: admitted }))
+}
+
+/// An answer's body that reports when it has been sent and holds the call's permit until then.
+struct SendGuard {
+    inner: Body,
+    sent: Arc<std::sync::atomic::AtomicBool>,
+    _admitted: Option<Admitted>,
+}
+
+impl Drop for SendGuard {
+    // Dropped once sent (or with its connection): nothing is left to guard.
+    fn drop(&mut self) {
+        self.sent.store(true, std::sync::atomic::Ordering::SeqCst);
+    }
+}
+
+impl http_body::Body for SendGuard {
+    type Data = bytes::Bytes;
+    type Error = Status;
+
+    fn poll_frame(
+        mut self: Pin<&mut Self>,
+        cx: &mut Context<'_>,
+    ) -> Poll<Option<Result<http_body::Frame<Self::Data>, Self::Error>>> {
+        let r = Pin::new(&mut self.inner).poll_frame(cx);
+        // The end of the body, or its trailers (the last frame an answer has), mean sent.
+        if matches!(&r, Poll::Ready(None)) || matches!(&r, Poll::Ready(Some(Ok(f))) if f.is_trailers()) {
+            self.sent.store(true, std::sync::atomic::Ordering::SeqCst);
+        }
+        r
+    }
+
+    fn is_end_stream(&self) -> bool {
+        self.inner.is_end_stream()
+    }
+
+    fn size_hint(&self) -> http_body::SizeHint {
+        self.inner.size_hint()
+    }
+}
+
 /// Inbound errors are the caller's: tonic answers a request body that does not decode
 /// (malformed protobuf, a truncated frame, a compressed flag without an encoding) with INTERNAL
 /// and an over-limit message with OUT_OF_RANGE. This layer answers them INVALID_ARGUMENT (with a
@@ -253,8 +323,8 @@ pub fn inbound_status(status: &Status) -> Option<Status> {
 fn call_names<B>(req: &http::Request<B>) -> (String, String) {
     let peer = req
         .extensions()
-        .get::<tonic::transport::server::TcpConnectInfo>()
-        .and_then(|c| c.remote_addr())
+        .get::<crate::connections::ConnInfo>()
+        .and_then(|c| c.remote_addr)
         .map_or_else(|| "unknown".to_string(), |a| a.to_string());
     (req.uri().path().to_string(), peer)
 }
@@ -323,14 +393,18 @@ where
         req.extensions_mut().insert(cancel.clone());
         req.extensions_mut().insert(self.computing.clone());
         let admitted = req.extensions().get::<Admitted>().cloned();
+        let kill = req.extensions().get::<crate::connections::ConnInfo>().map(|c| c.kill.clone());
         let (method, peer) = call_names(&req);
+        let started = tokio::time::Instant::now();
         let fut = self.inner.call(req);
         Box::pin(async move {
             // Dropped with this future (the caller went away): the work stops too.
             let guard = CancelOnDrop(cancel.clone());
             let mut fut = Box::pin(fut);
             match tokio::time::timeout(limit, &mut fut).await {
-                Ok(r) => r,
+                // The answer is ready: the permit and the time limit now cover its sending.
+                Ok(Ok(resp)) => Ok(send_guarded(resp, admitted, kill, started + limit, method, peer)),
+                Ok(Err(e)) => Err(e),
                 Err(_) => {
                     // Answer now, stop the work, and keep the call's admission permit until
                     // the work has really stopped (at most STOP_GRACE), so expired calls cannot

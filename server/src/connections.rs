@@ -18,7 +18,7 @@ use std::time::{Duration, Instant};
 use tokio::io::{AsyncRead, AsyncWrite, ReadBuf};
 use tokio::net::{TcpListener, TcpStream};
 use tokio::sync::{OwnedSemaphorePermit, Semaphore};
-use tonic::transport::server::{Connected, TcpConnectInfo};
+use tonic::transport::server::Connected;
 
 /// How connections are accepted.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -159,25 +159,76 @@ impl Summary {
 }
 
 /// An accepted connection: its slot under the cap is held until it closes, and it is closed
-/// if no byte arrives within the handshake timeout.
+/// if no byte arrives within the handshake timeout, or when a call on it sets its
+/// [`ConnKill`] (an answer its client would not take within the call's time).
 #[derive(Debug)]
 pub struct Conn {
     inner: TcpStream,
     _slot: OwnedSemaphorePermit,
     handshake: Option<Pin<Box<tokio::time::Sleep>>>,
+    info: ConnInfo,
 }
 
 impl Conn {
     fn new(inner: TcpStream, slot: OwnedSemaphorePermit, timeout: Duration) -> Self {
-        Self { inner, _slot: slot, handshake: Some(Box::pin(tokio::time::sleep(timeout))) }
+        let info = ConnInfo { remote_addr: inner.peer_addr().ok(), kill: ConnKill::default() };
+        Self { inner, _slot: slot, handshake: Some(Box::pin(tokio::time::sleep(timeout))), info }
+    }
+
+    fn killed(&self, cx: &Context<'_>) -> bool {
+        self.info.kill.check(cx)
     }
 }
 
-impl Connected for Conn {
-    type ConnectInfo = TcpConnectInfo;
+/// What every call learns about its connection (in its request extensions).
+#[derive(Debug, Clone)]
+pub struct ConnInfo {
+    /// The peer's address.
+    pub remote_addr: Option<std::net::SocketAddr>,
+    /// Closes the connection.
+    pub kill: ConnKill,
+}
 
-    fn connect_info(&self) -> TcpConnectInfo {
-        self.inner.connect_info()
+/// A switch that closes a connection: set from any task, the connection fails its next read
+/// or write (its task is woken for that), and the server drops it with every stream on it.
+#[derive(Debug, Clone, Default)]
+pub struct ConnKill(Arc<KillState>);
+
+#[derive(Debug, Default)]
+struct KillState {
+    set: std::sync::atomic::AtomicBool,
+    waker: std::sync::Mutex<Option<std::task::Waker>>,
+}
+
+impl ConnKill {
+    /// Closes the connection.
+    pub fn kill(&self) {
+        self.0.set.store(true, std::sync::atomic::Ordering::SeqCst);
+        // A poisoned lock only means a connection task panicked; the waker is still usable.
+        if let Some(w) = self.0.waker.lock().unwrap_or_else(|e| e.into_inner()).take() {
+            w.wake();
+        }
+    }
+
+    /// True once killed; otherwise remembers the connection task's waker.
+    fn check(&self, cx: &Context<'_>) -> bool {
+        if self.0.set.load(std::sync::atomic::Ordering::SeqCst) {
+            return true;
+        }
+        *self.0.waker.lock().unwrap_or_else(|e| e.into_inner()) = Some(cx.waker().clone());
+        self.0.set.load(std::sync::atomic::Ordering::SeqCst)
+    }
+}
+
+fn killed_error() -> io::Error {
+    io::Error::new(io::ErrorKind::ConnectionAborted, "connection closed: an answer was not taken in time")
+}
+
+impl Connected for Conn {
+    type ConnectInfo = ConnInfo;
+
+    fn connect_info(&self) -> ConnInfo {
+        self.info.clone()
     }
 }
 
@@ -187,6 +238,9 @@ impl AsyncRead for Conn {
         cx: &mut Context<'_>,
         buf: &mut ReadBuf<'_>,
     ) -> Poll<io::Result<()>> {
+        if self.killed(cx) {
+            return Poll::Ready(Err(killed_error()));
+        }
         let before = buf.filled().len();
         let r = Pin::new(&mut self.inner).poll_read(cx, buf);
         if matches!(r, Poll::Ready(Ok(()))) && buf.filled().len() > before {
@@ -207,6 +261,9 @@ impl AsyncRead for Conn {
 
 impl AsyncWrite for Conn {
     fn poll_write(mut self: Pin<&mut Self>, cx: &mut Context<'_>, buf: &[u8]) -> Poll<io::Result<usize>> {
+        if self.killed(cx) {
+            return Poll::Ready(Err(killed_error()));
+        }
         Pin::new(&mut self.inner).poll_write(cx, buf)
     }
 
@@ -223,6 +280,9 @@ impl AsyncWrite for Conn {
         cx: &mut Context<'_>,
         bufs: &[io::IoSlice<'_>],
     ) -> Poll<io::Result<usize>> {
+        if self.killed(cx) {
+            return Poll::Ready(Err(killed_error()));
+        }
         Pin::new(&mut self.inner).poll_write_vectored(cx, bufs)
     }
 

@@ -1,0 +1,100 @@
+//! End to end over a real socket: a client that never reads its answer (a raw HTTP/2 client
+//! that never opens its flow-control window).
+
+use jetloop_proto::pb::{self, gas_dynamics_service_client::GasDynamicsServiceClient};
+use jetloop_server::config::Limits;
+use jetloop_tests::TestServer;
+use std::time::{Duration, Instant};
+use tonic::Code;
+
+/// An ExtractTones request for 2^20 f32 samples with the PSD attached (an answer of hundreds
+/// of kilobytes), as a gRPC message frame.
+fn big_answer_request() -> bytes::Bytes {
+    let n = 1 << 20;
+    let data: Vec<u8> = (0..n).flat_map(|i| ((i as f32 * 0.37).sin()).to_le_bytes()).collect();
+    let req = pb::ExtractTonesRequest {
+        samples: Some(pb::Samples {
+            sample_rate_hz: 51_200.0,
+            channel_count: 1,
+            data: Some(pb::samples::Data::Raw(pb::RawSamples {
+                data: data.into(),
+                format: pb::SampleFormat::F32Le as i32,
+            })),
+            calibration: Some(pb::Calibration { scale: Some(pb::calibration::Scale::PascalsPerUnit(1.0)) }),
+            ..Default::default()
+        }),
+        welch: Some(pb::WelchOptions {
+            segment: Some(pb::welch_options::Segment::SegmentLength(65_536)),
+            ..Default::default()
+        }),
+        psd_output: Some(pb::PsdOutputOptions { include: true, max_points: None }),
+        ..Default::default()
+    };
+    let msg = prost::Message::encode_to_vec(&req);
+    let mut frame = Vec::with_capacity(msg.len() + 5);
+    frame.push(0);
+    frame.extend_from_slice(&(msg.len() as u32).to_be_bytes());
+    frame.extend_from_slice(&msg);
+    frame.into()
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn an_answer_never_read_holds_its_permit_until_the_connection_is_closed_at_the_deadline() {
+    // Reproduces: the admission permit and the time limit ended when the handler returned, so
+    // answers a client never read piled up in memory while more calls were admitted. Now the
+    // permit covers the whole answer (one call at a time here: others are refused while it is
+    // unsent) and at the call's deadline (1 s) the connection is closed, freeing it.
+    let server = TestServer::start_with(Limits {
+        max_concurrent_requests: 1,
+        request_timeout: Duration::from_secs(1),
+        ..Limits::default()
+    })
+    .await;
+    let tcp = tokio::net::TcpStream::connect(server.addr).await.unwrap();
+    let (client, conn) = h2::client::Builder::new()
+        .initial_window_size(0)
+        .handshake::<_, bytes::Bytes>(tcp)
+        .await
+        .expect("HTTP/2 handshake");
+    let conn = tokio::spawn(conn); // answers pings and settings, never opens the window
+    let mut client = client.ready().await.unwrap();
+    let req = http::Request::builder()
+        .method("POST")
+        .uri(format!("http://{}/jetloop.v1.SpectrumService/ExtractTones", server.addr))
+        .header("content-type", "application/grpc")
+        .header("te", "trailers")
+        .body(())
+        .unwrap();
+    let (answer, mut send) = client.send_request(req, false).unwrap();
+    send.send_data(big_answer_request(), true).unwrap();
+    let head = answer.await.expect("answer headers (not flow-controlled) arrive");
+    assert_eq!(head.status(), 200);
+    let ready = Instant::now();
+
+    // The unread answer still holds the only slot.
+    let mut gas = GasDynamicsServiceClient::new(server.channel().await);
+    let ask = pb::NormalShockRequest { gamma: None, upstream_mach_number: 2.0 };
+    let e = gas.normal_shock(ask).await.expect_err("the unread answer holds the only permit");
+    assert_eq!(e.code(), Code::Unavailable, "{e:?}");
+
+    // At the deadline the stalled connection is closed, and calls are admitted again.
+    // (The client's connection task ends, cleanly or with an error, when the server closes it.)
+    let _ =
+        tokio::time::timeout(Duration::from_secs(10), conn).await.expect("the stalled connection is closed");
+    let closed_after = ready.elapsed();
+    assert!(closed_after < Duration::from_secs(3), "closed after {closed_after:?}");
+    let mut admitted = false;
+    for _ in 0..10_000 {
+        match gas.normal_shock(ask).await {
+            Ok(r) => {
+                assert!((r.into_inner().downstream_mach_number - 0.577_35).abs() < 1e-5); // NACA 1135
+                admitted = true;
+                break;
+            }
+            Err(e) if e.code() == Code::Unavailable => tokio::task::yield_now().await,
+            Err(e) => panic!("{e:?}"),
+        }
+    }
+    assert!(admitted, "calls are still refused after the stalled answer was dropped");
+    server.stop().await;
+}
