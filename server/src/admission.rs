@@ -189,45 +189,72 @@ fn refused(limit: usize) -> Status {
 /// Least time an answer that is ready is given to be taken by its client.
 pub const MIN_SEND_TIME: Duration = Duration::from_secs(1);
 
-/// Wraps a ready answer so that the call's admission permit is held until the answer has been
-/// taken (or dropped), and so that an answer not taken by `send_by` (the call's deadline, and
-/// at least [`MIN_SEND_TIME`] from now) closes the connection: a client that never opens its
+/// How often a ready answer's watchdog looks whether the answer has left the server.
+const SEND_CHECK: Duration = Duration::from_millis(10);
+
+/// Wraps a ready answer so that the call's admission permit is held until the answer has left
+/// the server (its body finished and at least as many bytes written to the connection since it
+/// was ready as the body yielded: HTTP/2 may buffer a finished body that the client's window
+/// does not let out), and so that an answer not out by `send_by` (the call's deadline, and at
+/// least [`MIN_SEND_TIME`] from now) closes the connection: a client that never opens its
 /// HTTP/2 window cannot keep answers in server memory, nor their permits.
 fn send_guarded(
     resp: http::Response<Body>,
     admitted: Option<Admitted>,
-    kill: Option<crate::connections::ConnKill>,
+    conn: Option<crate::connections::ConnInfo>,
     send_by: tokio::time::Instant,
     method: String,
     peer: String,
 ) -> http::Response<Body> {
-    let sent = Arc::new(std::sync::atomic::AtomicBool::new(false));
-    if let Some(kill) = kill {
-        let sent = sent.clone();
-        let at = send_by.max(tokio::time::Instant::now() + MIN_SEND_TIME);
-        tokio::spawn(async move {
-            tokio::time::sleep_until(at).await;
-            if !sent.load(std::sync::atomic::Ordering::SeqCst) {
-                tracing::warn!(%method, peer = %peer, "answer not taken in time: closing the connection");
-                kill.kill();
+    use std::sync::atomic::Ordering::SeqCst;
+    let progress = Arc::new(Progress::default());
+    let watch = progress.clone();
+    let at = send_by.max(tokio::time::Instant::now() + MIN_SEND_TIME);
+    let written_at_ready = conn.as_ref().map_or(0, |c| c.written.load(SeqCst));
+    tokio::spawn(async move {
+        let out = |c: &crate::connections::ConnInfo| c.written.load(SeqCst).saturating_sub(written_at_ready);
+        loop {
+            let finished = watch.finished.load(SeqCst);
+            let left = match &conn {
+                Some(c) => finished && out(c) >= watch.yielded.load(SeqCst),
+                None => finished,
+            };
+            if left {
+                break;
             }
-        });
-    }
+            if tokio::time::Instant::now() >= at {
+                if let Some(c) = &conn {
+                    tracing::warn!(%method, peer = %peer, "answer not taken in time: closing the connection");
+                    c.kill.kill();
+                }
+                break;
+            }
+            tokio::time::sleep(SEND_CHECK).await;
+        }
+        drop(admitted);
+    });
     let (parts, body) = resp.into_parts();
-    http::Response::from_parts(parts, Body::new(SendGuard { inner: body, sent, _admitted: admitted }))
+    http::Response::from_parts(parts, Body::new(SendGuard { inner: body, progress }))
 }
 
-/// An answer's body that reports when it has been sent and holds the call's permit until then.
+/// How far an answer's body has got.
+#[derive(Debug, Default)]
+struct Progress {
+    /// Data bytes the body yielded.
+    yielded: std::sync::atomic::AtomicU64,
+    /// The body ended (trailers or end of stream) or was dropped.
+    finished: std::sync::atomic::AtomicBool,
+}
+
+/// An answer's body that reports how far it has got.
 struct SendGuard {
     inner: Body,
-    sent: Arc<std::sync::atomic::AtomicBool>,
-    _admitted: Option<Admitted>,
+    progress: Arc<Progress>,
 }
 
 impl Drop for SendGuard {
-    // Dropped once sent (or with its connection): nothing is left to guard.
     fn drop(&mut self) {
-        self.sent.store(true, std::sync::atomic::Ordering::SeqCst);
+        self.progress.finished.store(true, std::sync::atomic::Ordering::SeqCst);
     }
 }
 
@@ -239,10 +266,16 @@ impl http_body::Body for SendGuard {
         mut self: Pin<&mut Self>,
         cx: &mut Context<'_>,
     ) -> Poll<Option<Result<http_body::Frame<Self::Data>, Self::Error>>> {
+        use std::sync::atomic::Ordering::SeqCst;
         let r = Pin::new(&mut self.inner).poll_frame(cx);
-        // The end of the body, or its trailers (the last frame an answer has), mean sent.
-        if matches!(&r, Poll::Ready(None)) || matches!(&r, Poll::Ready(Some(Ok(f))) if f.is_trailers()) {
-            self.sent.store(true, std::sync::atomic::Ordering::SeqCst);
+        match &r {
+            Poll::Ready(Some(Ok(f))) if f.is_trailers() => self.progress.finished.store(true, SeqCst),
+            Poll::Ready(Some(Ok(f))) => {
+                let n = f.data_ref().map_or(0, |d| d.len() as u64);
+                self.progress.yielded.fetch_add(n, SeqCst);
+            }
+            Poll::Ready(None) => self.progress.finished.store(true, SeqCst),
+            Poll::Ready(Some(Err(_))) | Poll::Pending => {}
         }
         r
     }
@@ -329,138 +362,118 @@ fn call_names<B>(req: &http::Request<B>) -> (String, String) {
     (req.uri().path().to_string(), peer)
 }
 
+/// The `tower::Service` shape every layer here shares (ready when the routes are, boxed
+/// future); only `call` differs.
+macro_rules! route_service {
+    ($name:ident, |$self:ident, $req:ident| $call:block) => {
+        impl<S, B> tower::Service<http::Request<B>> for $name<S>
+        where
+            S: tower::Service<http::Request<B>, Response = http::Response<Body>> + Send + 'static,
+            S::Future: Send + 'static,
+            S::Error: Send + 'static,
+        {
+            type Response = http::Response<Body>;
+            type Error = S::Error;
+            type Future = BoxFuture<Self::Response, Self::Error>;
+
+            fn poll_ready(&mut self, cx: &mut Context<'_>) -> Poll<Result<(), Self::Error>> {
+                self.inner.poll_ready(cx)
+            }
+
+            fn call(&mut $self, $req: http::Request<B>) -> Self::Future $call
+        }
+    };
+}
+
 type BoxFuture<R, E> = Pin<Box<dyn Future<Output = Result<R, E>> + Send>>;
 
-impl<S, B> tower::Service<http::Request<B>> for Shed<S>
-where
-    S: tower::Service<http::Request<B>, Response = http::Response<Body>> + Send + 'static,
-    S::Future: Send + 'static,
-    S::Error: Send + 'static,
-{
-    type Response = http::Response<Body>;
-    type Error = S::Error;
-    type Future = BoxFuture<Self::Response, Self::Error>;
-
-    fn poll_ready(&mut self, cx: &mut Context<'_>) -> Poll<Result<(), Self::Error>> {
-        self.inner.poll_ready(cx)
-    }
-
-    fn call(&mut self, mut req: http::Request<B>) -> Self::Future {
-        let permit = if req.uri().path().starts_with(HEALTH) {
-            None
-        } else {
-            match self.layer.permits.clone().try_acquire_owned() {
-                Ok(p) => {
-                    // Shared with the deadline layer, which keeps it while stopped work winds down.
-                    let p = Admitted { _permit: Arc::new(p) };
-                    req.extensions_mut().insert(p.clone());
-                    Some(p)
-                }
-                Err(_) => {
-                    self.layer.refusals.note(self.layer.limit);
-                    return Box::pin(std::future::ready(Ok(refused(self.layer.limit).into_http())));
-                }
+route_service!(Shed, |self, req| {
+    let mut req = req;
+    let permit = if req.uri().path().starts_with(HEALTH) {
+        None
+    } else {
+        match self.layer.permits.clone().try_acquire_owned() {
+            Ok(p) => {
+                // Shared with the deadline layer, which keeps it while stopped work winds down.
+                let p = Admitted { _permit: Arc::new(p) };
+                req.extensions_mut().insert(p.clone());
+                Some(p)
             }
+            Err(_) => {
+                self.layer.refusals.note(self.layer.limit);
+                return Box::pin(std::future::ready(Ok(refused(self.layer.limit).into_http())));
+            }
+        }
+    };
+    let fut = self.inner.call(req);
+    Box::pin(async move {
+        let out = fut.await;
+        drop(permit);
+        out
+    })
+});
+
+route_service!(Deadline, |self, req| {
+    let mut req = req;
+    let (limit, why) = time_limit(req.headers(), self.timeout);
+    // The call's cancellation flag: handlers hand it to their computation, which checks
+    // it between units of work.
+    let cancel = Cancel::new();
+    req.extensions_mut().insert(cancel.clone());
+    req.extensions_mut().insert(self.computing.clone());
+    let admitted = req.extensions().get::<Admitted>().cloned();
+    let conn = req.extensions().get::<crate::connections::ConnInfo>().cloned();
+    let (method, peer) = call_names(&req);
+    let started = tokio::time::Instant::now();
+    let fut = self.inner.call(req);
+    Box::pin(async move {
+        // Dropped with this future (the caller went away): the work stops too.
+        let guard = CancelOnDrop(cancel.clone());
+        let mut fut = Box::pin(fut);
+        match tokio::time::timeout(limit, &mut fut).await {
+            // The answer is ready: the permit and the time limit now cover its sending.
+            Ok(Ok(resp)) => Ok(send_guarded(resp, admitted, conn, started + limit, method, peer)),
+            Ok(Err(e)) => Err(e),
+            Err(_) => {
+                // Answer now, stop the work, and keep the call's admission permit until
+                // the work has really stopped (at most STOP_GRACE), so expired calls cannot
+                // pile orphaned computations past the concurrency limit.
+                cancel.cancel();
+                tracing::info!(%method, peer = %peer, code = "DEADLINE_EXCEEDED", "call expired: {why}");
+                tokio::spawn(async move {
+                    let _ = tokio::time::timeout(STOP_GRACE, fut).await;
+                    drop(admitted);
+                    drop(guard);
+                });
+                Ok(Status::deadline_exceeded(format!("stopped: {why}")).into_http())
+            }
+        }
+    })
+});
+
+route_service!(InboundErrors, |self, req| {
+    let (method, peer) = call_names(&req);
+    let fut = self.inner.call(req);
+    Box::pin(async move {
+        let resp = fut.await?;
+        // Only trailers-only answers (the status in the headers) carry these errors, and
+        // every error answer of this server is one (no RPC streams its answer).
+        let Some(status) = Status::from_header_map(resp.headers()) else {
+            return Ok(resp);
         };
-        let fut = self.inner.call(req);
-        Box::pin(async move {
-            let out = fut.await;
-            drop(permit);
-            out
-        })
-    }
-}
-
-impl<S, B> tower::Service<http::Request<B>> for Deadline<S>
-where
-    S: tower::Service<http::Request<B>, Response = http::Response<Body>> + Send + 'static,
-    S::Future: Send + 'static,
-    S::Error: Send + 'static,
-{
-    type Response = http::Response<Body>;
-    type Error = S::Error;
-    type Future = BoxFuture<Self::Response, Self::Error>;
-
-    fn poll_ready(&mut self, cx: &mut Context<'_>) -> Poll<Result<(), Self::Error>> {
-        self.inner.poll_ready(cx)
-    }
-
-    fn call(&mut self, mut req: http::Request<B>) -> Self::Future {
-        let (limit, why) = time_limit(req.headers(), self.timeout);
-        // The call's cancellation flag: handlers hand it to their computation, which checks
-        // it between units of work.
-        let cancel = Cancel::new();
-        req.extensions_mut().insert(cancel.clone());
-        req.extensions_mut().insert(self.computing.clone());
-        let admitted = req.extensions().get::<Admitted>().cloned();
-        let kill = req.extensions().get::<crate::connections::ConnInfo>().map(|c| c.kill.clone());
-        let (method, peer) = call_names(&req);
-        let started = tokio::time::Instant::now();
-        let fut = self.inner.call(req);
-        Box::pin(async move {
-            // Dropped with this future (the caller went away): the work stops too.
-            let guard = CancelOnDrop(cancel.clone());
-            let mut fut = Box::pin(fut);
-            match tokio::time::timeout(limit, &mut fut).await {
-                // The answer is ready: the permit and the time limit now cover its sending.
-                Ok(Ok(resp)) => Ok(send_guarded(resp, admitted, kill, started + limit, method, peer)),
-                Ok(Err(e)) => Err(e),
-                Err(_) => {
-                    // Answer now, stop the work, and keep the call's admission permit until
-                    // the work has really stopped (at most STOP_GRACE), so expired calls cannot
-                    // pile orphaned computations past the concurrency limit.
-                    cancel.cancel();
-                    tracing::info!(%method, peer = %peer, code = "DEADLINE_EXCEEDED", "call expired: {why}");
-                    tokio::spawn(async move {
-                        let _ = tokio::time::timeout(STOP_GRACE, fut).await;
-                        drop(admitted);
-                        drop(guard);
-                    });
-                    Ok(Status::deadline_exceeded(format!("stopped: {why}")).into_http())
-                }
-            }
-        })
-    }
-}
-
-impl<S, B> tower::Service<http::Request<B>> for InboundErrors<S>
-where
-    S: tower::Service<http::Request<B>, Response = http::Response<Body>> + Send + 'static,
-    S::Future: Send + 'static,
-    S::Error: Send + 'static,
-{
-    type Response = http::Response<Body>;
-    type Error = S::Error;
-    type Future = BoxFuture<Self::Response, Self::Error>;
-
-    fn poll_ready(&mut self, cx: &mut Context<'_>) -> Poll<Result<(), Self::Error>> {
-        self.inner.poll_ready(cx)
-    }
-
-    fn call(&mut self, req: http::Request<B>) -> Self::Future {
-        let (method, peer) = call_names(&req);
-        let fut = self.inner.call(req);
-        Box::pin(async move {
-            let resp = fut.await?;
-            // Only trailers-only answers (the status in the headers) carry these errors, and
-            // every error answer of this server is one (no RPC streams its answer).
-            let Some(status) = Status::from_header_map(resp.headers()) else {
-                return Ok(resp);
-            };
-            let (status, resp) = match inbound_status(&status) {
-                Some(fixed) => (fixed.clone(), fixed.into_http()),
-                None => (status, resp),
-            };
-            // CANCELLED is work stopped after its deadline answered (logged there as expired).
-            if !matches!(status.code(), tonic::Code::Ok | tonic::Code::Cancelled) {
-                // Once per failed call, at info: the caller's errors are routine, the log is
-                // for tracing who sent what.
-                tracing::info!(%method, peer = %peer, code = ?status.code(), "call failed: {}", status.message());
-            }
-            Ok(resp)
-        })
-    }
-}
+        let (status, resp) = match inbound_status(&status) {
+            Some(fixed) => (fixed.clone(), fixed.into_http()),
+            None => (status, resp),
+        };
+        // CANCELLED is work stopped after its deadline answered (logged there as expired).
+        if !matches!(status.code(), tonic::Code::Ok | tonic::Code::Cancelled) {
+            // Once per failed call, at info: the caller's errors are routine, the log is
+            // for tracing who sent what.
+            tracing::info!(%method, peer = %peer, code = ?status.code(), "call failed: {}", status.message());
+        }
+        Ok(resp)
+    })
+});
 
 #[cfg(test)]
 mod tests {

@@ -171,7 +171,11 @@ pub struct Conn {
 
 impl Conn {
     fn new(inner: TcpStream, slot: OwnedSemaphorePermit, timeout: Duration) -> Self {
-        let info = ConnInfo { remote_addr: inner.peer_addr().ok(), kill: ConnKill::default() };
+        let info = ConnInfo {
+            remote_addr: inner.peer_addr().ok(),
+            kill: ConnKill::default(),
+            written: Arc::default(),
+        };
         Self { inner, _slot: slot, handshake: Some(Box::pin(tokio::time::sleep(timeout))), info }
     }
 
@@ -187,6 +191,8 @@ pub struct ConnInfo {
     pub remote_addr: Option<std::net::SocketAddr>,
     /// Closes the connection.
     pub kill: ConnKill,
+    /// Bytes written to the connection so far.
+    pub written: Arc<std::sync::atomic::AtomicU64>,
 }
 
 /// A switch that closes a connection: set from any task, the connection fails its next read
@@ -264,7 +270,11 @@ impl AsyncWrite for Conn {
         if self.killed(cx) {
             return Poll::Ready(Err(killed_error()));
         }
-        Pin::new(&mut self.inner).poll_write(cx, buf)
+        let r = Pin::new(&mut self.inner).poll_write(cx, buf);
+        if let Poll::Ready(Ok(n)) = r {
+            self.info.written.fetch_add(n as u64, std::sync::atomic::Ordering::SeqCst);
+        }
+        r
     }
 
     fn poll_flush(mut self: Pin<&mut Self>, cx: &mut Context<'_>) -> Poll<io::Result<()>> {
@@ -283,7 +293,11 @@ impl AsyncWrite for Conn {
         if self.killed(cx) {
             return Poll::Ready(Err(killed_error()));
         }
-        Pin::new(&mut self.inner).poll_write_vectored(cx, bufs)
+        let r = Pin::new(&mut self.inner).poll_write_vectored(cx, bufs);
+        if let Poll::Ready(Ok(n)) = r {
+            self.info.written.fetch_add(n as u64, std::sync::atomic::Ordering::SeqCst);
+        }
+        r
     }
 
     fn is_write_vectored(&self) -> bool {

@@ -7,10 +7,11 @@ use jetloop_tests::TestServer;
 use std::time::{Duration, Instant};
 use tonic::Code;
 
-/// An ExtractTones request for 2^20 f32 samples with the PSD attached (an answer of hundreds
-/// of kilobytes), as a gRPC message frame.
+/// An ExtractTones request for 2^18 f32 samples with the PSD of 65,536-sample segments
+/// attached (an answer of hundreds of kilobytes, computed in milliseconds), as a gRPC message
+/// frame.
 fn big_answer_request() -> bytes::Bytes {
-    let n = 1 << 20;
+    let n = 1 << 18;
     let data: Vec<u8> = (0..n).flat_map(|i| ((i as f32 * 0.37).sin()).to_le_bytes()).collect();
     let req = pb::ExtractTonesRequest {
         samples: Some(pb::Samples {
@@ -43,10 +44,10 @@ async fn an_answer_never_read_holds_its_permit_until_the_connection_is_closed_at
     // Reproduces: the admission permit and the time limit ended when the handler returned, so
     // answers a client never read piled up in memory while more calls were admitted. Now the
     // permit covers the whole answer (one call at a time here: others are refused while it is
-    // unsent) and at the call's deadline (1 s) the connection is closed, freeing it.
+    // unsent) and at the call's deadline (2 s) the connection is closed, freeing it.
     let server = TestServer::start_with(Limits {
         max_concurrent_requests: 1,
-        request_timeout: Duration::from_secs(1),
+        request_timeout: Duration::from_secs(2),
         ..Limits::default()
     })
     .await;
@@ -69,6 +70,11 @@ async fn an_answer_never_read_holds_its_permit_until_the_connection_is_closed_at
     send.send_data(big_answer_request(), true).unwrap();
     let head = answer.await.expect("answer headers (not flow-controlled) arrive");
     assert_eq!(head.status(), 200);
+    assert!(
+        head.headers().get("grpc-status").is_none(),
+        "an error instead of an answer: {:?}",
+        head.headers()
+    );
     let ready = Instant::now();
 
     // The unread answer still holds the only slot.
@@ -82,7 +88,7 @@ async fn an_answer_never_read_holds_its_permit_until_the_connection_is_closed_at
     let _ =
         tokio::time::timeout(Duration::from_secs(10), conn).await.expect("the stalled connection is closed");
     let closed_after = ready.elapsed();
-    assert!(closed_after < Duration::from_secs(3), "closed after {closed_after:?}");
+    assert!(closed_after < Duration::from_secs(4), "closed after {closed_after:?}");
     let mut admitted = false;
     for _ in 0..10_000 {
         match gas.normal_shock(ask).await {
