@@ -138,7 +138,9 @@ impl TryFrom<pb::IsentropicRatiosRequest> for IsentropicQuery {
                 IsentropicInput::DensityRatio(r) => {
                     Some(("density_ratio", side(r, gas.density_ratio(1.0), false)))
                 }
-                _ => None,
+                IsentropicInput::AreaRatio(..)
+                | IsentropicInput::MachAngleDeg(_)
+                | IsentropicInput::PrandtlMeyerDeg(_) => None,
             };
             match unique {
                 Some((field, Some(actual))) if actual != b => check.other(

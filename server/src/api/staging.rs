@@ -204,7 +204,7 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
                 // The gas's own critical ratio is applied per point below, with the jet physics
                 // (a gas other than air has another one).
                 Some(SweepKind::Npr) => Some(Bounds::open_closed(jet::NPR.min, jet::NPR.max, "")),
-                _ => None,
+                Some(SweepKind::Plain) | None => None,
             };
             if let Some(b) = range.filter(|b| !b.contains(x)) {
                 bad.push((
