@@ -524,18 +524,17 @@ pub fn sweep_response(q: &SweepQuery, cancel: &Cancel) -> Result<pb::SweepScreec
                 value: p.value,
                 nozzle_pressure_ratio: p.npr,
                 fully_expanded_mach_number: p.mj,
-                regime: p.state.as_ref().map_or(pb::ExpansionRegime::Unspecified, |st| regime(st.regime))
-                    as i32,
+                regime: p.regime.map_or(pb::ExpansionRegime::Unspecified, regime) as i32,
                 supersonic: p.prediction.is_some(),
                 fully_expanded_velocity_m_per_s: p.uj_m_s,
                 reference_length_m: p.reference_length_m,
                 ..Default::default()
             };
             if let Some(r) = p.prediction {
-                m.spacing_m = Some(r.cells.spacing_m());
+                m.spacing_m = Some(r.spacing_m);
                 m.powell_fundamental_hz = Some(r.powell_hz);
                 m.tam_1986_hz = r.tam_1986_hz;
-                m.loop_frequencies_hz = r.feedback.frequencies_hz;
+                m.loop_frequencies_hz = r.loop_frequencies_hz;
             }
             m
         })

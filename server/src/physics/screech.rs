@@ -15,7 +15,7 @@
 
 use super::cells::{self, CellOptions, Cells};
 use super::gas::Gas;
-use super::jet::{jet_state, ExpandedJet, JetState, NotSupersonic, Nozzle, OperatingPoint};
+use super::jet::{jet_state, ExpandedJet, NotSupersonic, Nozzle, OperatingPoint, Regime};
 use super::staging::SweepKind;
 use super::tones::{self, Convection, LoopResult, LoopSpec, ZeroLoopTime};
 use super::{Bounds, RangeError};
@@ -149,14 +149,42 @@ pub struct SweepPoint {
     pub npr: f64,
     /// Isentropic (fully expanded) Mach number of the point.
     pub mj: f64,
-    /// The jet state (conditions only).
-    pub state: Option<JetState>,
+    /// Expansion regime (conditions only).
+    pub regime: Option<Regime>,
     /// Fully expanded velocity, m/s.
     pub uj_m_s: f64,
     /// Reference length (Dj or hj), m.
     pub reference_length_m: f64,
     /// The predictions; `None` where the jet is not supersonic.
-    pub prediction: Option<ScreechPrediction>,
+    pub prediction: Option<SweepPrediction>,
+}
+
+/// What a sweep keeps of each point's [`ScreechPrediction`] (compact: a sweep holds
+/// thousands of points at once).
+#[derive(Debug, Clone, PartialEq)]
+pub struct SweepPrediction {
+    /// Shock-cell spacing with the factor applied, m.
+    pub spacing_m: f64,
+    /// Powell's fundamental, Hz.
+    pub powell_hz: f64,
+    /// Tam, Seiner & Yu (1986), Hz (round jets only).
+    pub tam_1986_hz: Option<f64>,
+    /// Loop time tau, s.
+    pub loop_time_s: f64,
+    /// Loop frequencies n / tau, Hz.
+    pub loop_frequencies_hz: Vec<f64>,
+}
+
+impl From<ScreechPrediction> for SweepPrediction {
+    fn from(p: ScreechPrediction) -> Self {
+        Self {
+            spacing_m: p.cells.spacing_m(),
+            powell_hz: p.powell_hz,
+            tam_1986_hz: p.tam_1986_hz,
+            loop_time_s: p.feedback.loop_time_s,
+            loop_frequencies_hz: p.feedback.frequencies_hz,
+        }
+    }
 }
 
 /// A whole sweep.
@@ -265,19 +293,20 @@ pub fn sweep_until(
             (None, SweepBase::Jet(_)) => return Err(SweepError::NeedsConditions(kind)),
         };
         // The point's jet figures: from its state, or from the jet given directly.
+        let regime = state.as_ref().map(|st| st.regime);
         let (npr, mj, uj_m_s, reference_length_m) = match (&state, &jet) {
             (Some(st), _) => (st.npr, st.mj, st.uj_m_s, st.size.reference_length_m()),
             (None, Some(j)) => (j.gas.npr_for_mach(j.mj), j.mj, j.uj_m_s, j.reference_length_m()),
             (None, None) => return Err(SweepError::NeedsConditions(kind)),
         };
         let prediction = match jet {
-            Some(j) => Some(predict_with_loop(&j, o, &loop_spec)?),
+            Some(j) => Some(predict_with_loop(&j, o, &loop_spec)?.into()),
             None => {
                 not_supersonic += 1;
                 None
             }
         };
-        points.push(SweepPoint { value: v, npr, mj, state, uj_m_s, reference_length_m, prediction });
+        points.push(SweepPoint { value: v, npr, mj, regime, uj_m_s, reference_length_m, prediction });
     }
     Ok(Sweep { points, not_supersonic })
 }
@@ -285,7 +314,7 @@ pub fn sweep_until(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::physics::jet::{JetSize, Regime};
+    use crate::physics::jet::JetSize;
 
     #[test]
     fn npr_sweep_keeps_subsonic_points_and_mach_sweep_hits_its_mach_numbers() {
@@ -298,7 +327,7 @@ mod tests {
         let s = sweep(&base, SweepKind::Npr, &[1.5, 3.0, 4.0], &o).unwrap();
         assert_eq!(s.not_supersonic, 1);
         assert!(s.points[0].prediction.is_none());
-        assert_eq!(s.points[0].state.as_ref().unwrap().regime, Regime::Subsonic);
+        assert_eq!(s.points[0].regime, Some(Regime::Subsonic));
         // Mj sweep: NPR = (1 + 0.2 Mj^2)^3.5 (closed form) and the state's Mj is the value.
         let m = sweep(&base, SweepKind::Mach, &[1.2, 1.5], &o).unwrap();
         for p in &m.points {
@@ -312,7 +341,7 @@ mod tests {
             &OperatingPoint::new(4.0, 101_325.0, 288.15, 288.15).unwrap(),
         );
         let single = predict(&ExpandedJet::from_state(&st).unwrap(), &o).unwrap();
-        assert_eq!(s.points[2].prediction.as_ref().unwrap(), &single);
+        assert_eq!(s.points[2].prediction.as_ref().unwrap(), &SweepPrediction::from(single));
     }
 
     #[test]
@@ -323,8 +352,8 @@ mod tests {
         let o = ScreechOptions::default();
         let s = sweep(&SweepBase::Jet(jet), SweepKind::Reflector, &[0.0, 0.01], &o).unwrap();
         let a = jet.a_amb_m_s;
-        let tau0 = s.points[0].prediction.as_ref().unwrap().feedback.loop_time_s;
-        let tau1 = s.points[1].prediction.as_ref().unwrap().feedback.loop_time_s;
+        let tau0 = s.points[0].prediction.as_ref().unwrap().loop_time_s;
+        let tau1 = s.points[1].prediction.as_ref().unwrap().loop_time_s;
         // Loop grows by 2 d / a (physics notes, sec. 4; closed form).
         assert!((tau1 - tau0 - 0.02 / a).abs() < 1e-15);
         assert!(matches!(
