@@ -8,6 +8,7 @@ pub mod bessel;
 pub mod bounds;
 pub mod cells;
 pub mod gas;
+pub mod guided;
 pub mod jet;
 pub mod lsq;
 pub mod models;
