@@ -127,6 +127,10 @@ pub struct ScreechArgs {
     /// Harmonics per model, including the fundamental (server default 3).
     #[arg(long)]
     harmonics: Option<u32>,
+    /// Add the guided-jet-mode model: stage bands and closure tones per mode (round and
+    /// planar jets).
+    #[arg(long)]
+    guided: bool,
 }
 
 impl ScreechArgs {
@@ -148,6 +152,7 @@ impl ScreechArgs {
                 max_loop_order: self.max_loop_order,
             }),
             harmonics: self.harmonics,
+            guided_modes: self.guided.then(pb::GuidedModeOptions::default),
         }
     }
 }

@@ -62,6 +62,7 @@ async fn screech_models_side_by_side() {
         cells: Some(pb::CellOptions { spacing_factor: Some(0.8), ..Default::default() }),
         r#loop: Some(pb::FeedbackLoop { max_loop_order: Some(4), ..Default::default() }),
         harmonics: Some(3),
+        ..Default::default()
     };
     let r = t
         .predict_screech(pb::PredictScreechRequest { jet: Some(conditions(3.5)), options: Some(opts) })

@@ -5,6 +5,7 @@
 
 pub mod error;
 pub mod gas;
+pub mod guided;
 pub mod jet_input;
 pub mod provenance;
 pub mod spectrum;

@@ -8,7 +8,8 @@ use super::jet_input::{
 use super::provenance::{provenance, Defaults};
 use crate::cancel::Cancel;
 use crate::physics::cells::{self, CellOptions};
-use crate::physics::jet::{ExpandedJet, JetState};
+use crate::physics::guided;
+use crate::physics::jet::{ExpandedJet, JetSize, JetState};
 use crate::physics::models::{self, Model};
 use crate::physics::screech::{self, Harmonic, ScreechOptions, SweepBase, SweepError};
 use crate::physics::staging::SweepKind;
@@ -17,6 +18,9 @@ use jetloop_proto::pb;
 
 /// Most points in one sweep.
 pub const MAX_SWEEP_POINTS: usize = 10_000;
+/// Most points in one sweep that computes guided modes (each point solves every mode's band
+/// and closure: about 0.15 ms per mode).
+pub const MAX_GUIDED_SWEEP_POINTS: usize = 2_000;
 /// Most observer angles in one shock-noise request.
 pub const MAX_ANGLES: usize = 3600;
 
@@ -104,8 +108,33 @@ fn screech_settings(
     defaults: &mut Defaults,
     o: Option<pb::ScreechOptions>,
     path: &str,
+    size: &JetSize,
 ) -> Option<ScreechOptions> {
-    let pb::ScreechOptions { convection: c, cells: cl, r#loop, harmonics } = o.unwrap_or_default();
+    let pb::ScreechOptions { convection: c, cells: cl, r#loop, harmonics, guided_modes } =
+        o.unwrap_or_default();
+    let guided = match (guided_modes, size) {
+        (None, _) => None,
+        (Some(_), JetSize::Rectangular { .. }) => {
+            check.other(
+                format!("{path}.guided_modes"),
+                format!(
+                    "{path}.guided_modes: guided modes are computed for round and planar jets, not                      rectangular ones; leave it unset or give a planar jet of the same height"
+                ),
+            );
+            None
+        }
+        (Some(g), size) => {
+            let round = matches!(size, JetSize::Round { .. });
+            let o = super::guided::closure_options(
+                check,
+                defaults,
+                Some(g),
+                &format!("{path}.guided_modes"),
+                round,
+            );
+            Some(o?)
+        }
+    };
     let conv = convection(check, defaults, c, &format!("{path}.convection"));
     let cells = cell_options(check, defaults, cl, &format!("{path}.cells"), 1);
     let loop_spec = loop_spec(check, defaults, r#loop, &format!("{path}.loop"));
@@ -119,7 +148,7 @@ fn screech_settings(
             check.range(path, tones::HARMONICS.check("harmonics", f64::from(h))).map_or(d, |v| v as u32)
         }
     };
-    Some(ScreechOptions { convection: conv?, cells: cells?, loop_spec, harmonics })
+    Some(ScreechOptions { convection: conv?, cells: cells?, loop_spec, harmonics, guided })
 }
 
 /// A validated screech question.
@@ -138,7 +167,8 @@ impl TryFrom<pb::PredictScreechRequest> for ScreechQuery {
         let pb::PredictScreechRequest { jet, options } = req;
         let mut jet = resolve_jet(jet, "jet")?;
         let mut check = Check::new();
-        let s = screech_settings(&mut check, &mut jet.defaults, options, "options");
+        let size = jet.jet.size;
+        let s = screech_settings(&mut check, &mut jet.defaults, options, "options", &size);
         check.finish(s.map(|settings| ScreechQuery { jet, settings }))
     }
 }
@@ -198,6 +228,31 @@ fn zero_loop(path: &str) -> ApiError {
     }])
 }
 
+fn g_opts(s: &ScreechOptions) -> &guided::ClosureOptions {
+    s.guided.as_ref().expect("guided options present when guided results are")
+}
+
+/// Model name of a guided-mode closure in the predictions list.
+fn guided_model_name(m: &guided::GuidedMode) -> &'static str {
+    match (m.shape, m.radial) {
+        (guided::ModeShape::Round { azimuthal: 0 }, 1) => "guided jet mode m=0, radial order 1",
+        (guided::ModeShape::Round { azimuthal: 0 }, 2) => "guided jet mode m=0, radial order 2",
+        (guided::ModeShape::Round { azimuthal: 0 }, _) => "guided jet mode m=0, radial order 3",
+        (guided::ModeShape::Round { azimuthal: 1 }, 1) => "guided jet mode m=1, radial order 1",
+        (guided::ModeShape::Round { azimuthal: 1 }, 2) => "guided jet mode m=1, radial order 2",
+        (guided::ModeShape::Round { azimuthal: 1 }, _) => "guided jet mode m=1, radial order 3",
+        (guided::ModeShape::Round { .. }, 1) => "guided jet mode m=2, radial order 1",
+        (guided::ModeShape::Round { .. }, 2) => "guided jet mode m=2, radial order 2",
+        (guided::ModeShape::Round { .. }, _) => "guided jet mode m=2, radial order 3",
+        (guided::ModeShape::PlanarSymmetric, 1) => "guided jet mode symmetric, radial order 1",
+        (guided::ModeShape::PlanarSymmetric, 2) => "guided jet mode symmetric, radial order 2",
+        (guided::ModeShape::PlanarSymmetric, _) => "guided jet mode symmetric, radial order 3",
+        (guided::ModeShape::PlanarAntisymmetric, 1) => "guided jet mode antisymmetric, radial order 1",
+        (guided::ModeShape::PlanarAntisymmetric, 2) => "guided jet mode antisymmetric, radial order 2",
+        (guided::ModeShape::PlanarAntisymmetric, _) => "guided jet mode antisymmetric, radial order 3",
+    }
+}
+
 /// Computes and builds the PredictScreech response.
 ///
 /// # Errors
@@ -244,8 +299,55 @@ pub fn screech_response(q: &ScreechQuery) -> Result<pb::PredictScreechResponse, 
                 .into(),
         ),
     }
+    let guided_modes = match &r.guided {
+        Some(g) => {
+            used.push(models::GUIDED_JET_MODES);
+            notes.extend(super::guided::guided_notes());
+            for m in &g.modes {
+                let first = m.closures.first();
+                if let Some((_, _, guided::Closure::InBand(p))) = first {
+                    let f = g.scale.hz(p.omega);
+                    let mode = &m.band.mode;
+                    let stage = mode.customary_stage(g.sheet.mach());
+                    predictions.push(prediction(
+                        &models::Model {
+                            name: guided_model_name(mode),
+                            reference: models::GUIDED_JET_MODES.reference,
+                        },
+                        f,
+                        s.harmonics,
+                        jet,
+                        vec![
+                            format!(
+                                "Closure omega/Uc - k_s,1 = k_guided(omega) in the mode's band, Uc/Uj = {}, spacing factor {}.",
+                                g_opts(s).convection_ratio,
+                                g_opts(s).spacing_factor
+                            ),
+                            format!(
+                                "Stage family: {}{}.",
+                                mode.family(),
+                                if stage.is_empty() { String::new() } else { format!(" (customary stage {stage})") }
+                            ),
+                        ],
+                    ));
+                }
+            }
+            g.modes.iter().map(|m| super::guided::mode_message(&g.sheet, Some(&g.scale), m, 0)).collect()
+        }
+        None => {
+            if s.guided.is_some() {
+                notes.push(
+                    "Guided modes were asked for but not computed: the jet lies outside the \
+                     solver's range (Mj above 5 or an extreme temperature ratio)."
+                        .into(),
+                );
+            }
+            Vec::new()
+        }
+    };
     let used = with_state_models(used, &q.jet);
     Ok(pb::PredictScreechResponse {
+        guided_modes,
         state: q.jet.state.as_ref().map(jet_state_message),
         jet: Some(jet_summary(jet)),
         spacing_m: r.cells.spacing_m(),
@@ -437,7 +539,15 @@ impl TryFrom<pb::SweepScreechRequest> for SweepQuery {
                 l.values
             }
         };
-        let settings = screech_settings(&mut check, &mut jet.defaults, options, "options");
+        let size = jet.jet.size;
+        let settings = screech_settings(&mut check, &mut jet.defaults, options, "options", &size);
+        if settings.as_ref().is_some_and(|s| s.guided.is_some()) && values.len() > MAX_GUIDED_SWEEP_POINTS {
+            return Err(ApiError::TooLarge {
+                field: field.into(),
+                limit: format!("{MAX_GUIDED_SWEEP_POINTS} sweep points with options.guided_modes"),
+                actual: format!("{} points", values.len()),
+            });
+        }
         // Each value must be valid for its variable; report the first few bad ones by index,
         // at the request field that holds them.
         let last = values.len().saturating_sub(1);
@@ -535,6 +645,13 @@ pub fn sweep_response(q: &SweepQuery, cancel: &Cancel) -> Result<pb::SweepScreec
                 m.powell_fundamental_hz = Some(r.powell_hz);
                 m.tam_1986_hz = r.tam_1986_hz;
                 m.loop_frequencies_hz = r.loop_frequencies_hz;
+                if let Some(g) = &r.guided {
+                    m.guided_modes = g
+                        .modes
+                        .iter()
+                        .map(|md| super::guided::mode_message(&g.sheet, Some(&g.scale), md, 0))
+                        .collect();
+                }
             }
             m
         })
@@ -551,6 +668,10 @@ pub fn sweep_response(q: &SweepQuery, cancel: &Cancel) -> Result<pb::SweepScreec
         vec![models::POWELL_FUNDAMENTAL, models::POWELL_LOOP, models::TAM_1986, models::VORTEX_SHEET_CELLS];
     if q.jet.spec.is_some() {
         used.push(models::FULLY_EXPANDED_JET);
+    }
+    if q.settings.guided.is_some() {
+        used.push(models::GUIDED_JET_MODES);
+        notes.extend(super::guided::guided_notes());
     }
     Ok(pb::SweepScreechResponse {
         variable: match q.kind {

@@ -353,7 +353,7 @@ impl VortexSheet {
         let target = -n / d;
         let q0 = 1.0 / self.sound_speed_ratio;
         let g = |q: f64| self.p(mode, lam, q) - target;
-        if !(g(q0) < 0.0) {
+        if g(q0).partial_cmp(&0.0) != Some(std::cmp::Ordering::Less) {
             return None;
         }
         let mut q1 = 2.0 * q0;

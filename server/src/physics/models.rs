@@ -116,3 +116,9 @@ pub const ALL: &[Model] = &[
     A_WEIGHTING,
     STAGE_SEGMENTATION,
 ];
+
+/// Guided jet modes of the vortex sheet, their bands and the screech closure through them.
+pub const GUIDED_JET_MODES: Model = Model {
+    name: "guided jet modes of the vortex sheet (upstream neutral modes between branch and saddle points; closure omega/Uc - k_s,n = k_guided)",
+    reference: "Tam & Hu (1989), J. Fluid Mech. 201, 447-483; Gojon, Bogey & Mihaescu (2018), AIAA J. 56; Mancinelli et al. (2019), Exp. Fluids 60; Edgington-Mitchell (2019), Int. J. Aeroacoust. 18",
+};

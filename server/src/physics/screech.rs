@@ -15,6 +15,7 @@
 
 use super::cells::{self, CellOptions, Cells};
 use super::gas::Gas;
+use super::guided;
 use super::jet::{jet_state, ExpandedJet, NotSupersonic, Nozzle, OperatingPoint, Regime};
 use super::staging::SweepKind;
 use super::tones::{self, Convection, LoopResult, LoopSpec, ZeroLoopTime};
@@ -32,6 +33,8 @@ pub struct ScreechOptions {
     pub loop_spec: LoopSpec,
     /// Harmonics per model (fundamental included).
     pub harmonics: u32,
+    /// Guided-jet-mode model (bands and closure tones), when asked for.
+    pub guided: Option<guided::ClosureOptions>,
 }
 
 /// Convection ratio Uc/Uj used when none is given (Tam, Seiner & Yu 1986).
@@ -46,6 +49,7 @@ impl Default for ScreechOptions {
             cells: CellOptions::default(),
             loop_spec: LoopSpec::default(),
             harmonics: DEFAULT_HARMONICS,
+            guided: None,
         }
     }
 }
@@ -65,6 +69,32 @@ pub struct ScreechPrediction {
     pub tam_1986_hz: Option<f64>,
     /// Powell's loop criterion for the given loop.
     pub feedback: LoopResult,
+    /// Guided-mode bands and closures (asked for, round or planar jet, Mj within the
+    /// solver's range), with the sheet they were computed on.
+    pub guided: Option<GuidedPrediction>,
+}
+
+/// The guided-mode part of a prediction.
+#[derive(Debug, Clone, PartialEq)]
+pub struct GuidedPrediction {
+    /// The dimensionless vortex sheet.
+    pub sheet: guided::VortexSheet,
+    /// Its scale (lengths, sound speed) for hertz.
+    pub scale: guided::Scale,
+    /// True for round jets.
+    pub round: bool,
+    /// One per mode.
+    pub modes: Vec<guided::ModePrediction>,
+}
+
+/// Guided-mode bands and closures of a jet: `None` for rectangular jets and jets outside the
+/// solver's range (Mj above 5, extreme temperature ratios).
+pub fn guided_prediction(jet: &ExpandedJet, o: &guided::ClosureOptions) -> Option<GuidedPrediction> {
+    let scale = guided::Scale::of_jet(jet)?;
+    let sheet = guided::VortexSheet::of_jet(jet).ok()?;
+    let round = matches!(jet.size, super::jet::JetSize::Round { .. });
+    let modes = guided::predict(&sheet, round, o);
+    Some(GuidedPrediction { sheet, scale, round, modes })
 }
 
 /// One tone of a harmonic series.
@@ -120,6 +150,7 @@ fn predict_with_loop(
         uc_m_s: uc,
         convective_mach: uc / jet.a_amb_m_s,
         cells,
+        guided: o.guided.as_ref().and_then(|g| guided_prediction(jet, g)),
     })
 }
 
@@ -173,6 +204,8 @@ pub struct SweepPrediction {
     pub loop_time_s: f64,
     /// Loop frequencies n / tau, Hz.
     pub loop_frequencies_hz: Vec<f64>,
+    /// Guided-mode bands and closures.
+    pub guided: Option<GuidedPrediction>,
 }
 
 impl From<ScreechPrediction> for SweepPrediction {
@@ -183,6 +216,7 @@ impl From<ScreechPrediction> for SweepPrediction {
             tam_1986_hz: p.tam_1986_hz,
             loop_time_s: p.feedback.loop_time_s,
             loop_frequencies_hz: p.feedback.frequencies_hz,
+            guided: p.guided,
         }
     }
 }

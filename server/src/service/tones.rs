@@ -1,5 +1,6 @@
 //! `jetloop.v1.ToneService`.
 
+use crate::api::guided::{guided_response, GuidedQuery};
 use crate::api::tones::{
     screech_response, shock_noise_response, sweep_response, ScreechQuery, ShockNoiseQuery, SweepQuery,
 };
@@ -7,7 +8,8 @@ use jetloop_proto::pb::{self, tone_service_server::ToneService};
 use tonic::{Request, Response, Status};
 
 /// Handlers for screech and shock-noise predictions. Single predictions run on the reactor
-/// (microseconds); sweeps (up to 10,000 points) run on the blocking pool.
+/// (microseconds; with guided modes about a millisecond); sweeps (up to 10,000 points) and
+/// guided-mode curves run on the blocking pool.
 #[derive(Debug, Default, Clone, Copy)]
 pub struct Tones;
 
@@ -36,5 +38,16 @@ impl ToneService for Tones {
         let work = super::work_of(&request);
         let q = SweepQuery::try_from(request.into_inner())?;
         Ok(Response::new(super::blocking("sweep computation", work, move |c| sweep_response(&q, c)).await?))
+    }
+
+    async fn guided_modes(
+        &self,
+        request: Request<pb::GuidedModesRequest>,
+    ) -> Result<Response<pb::GuidedModesResponse>, Status> {
+        let work = super::work_of(&request);
+        let q = GuidedQuery::try_from(request.into_inner())?;
+        Ok(Response::new(
+            super::blocking("guided-mode computation", work, move |_| Ok(guided_response(&q))).await?,
+        ))
     }
 }

@@ -1,0 +1,367 @@
+//! Guided jet modes: conversion of the mode options and the dimensionless jet, and the
+//! messages shared by GuidedModes, PredictScreech, SweepScreech and the stage labels of
+//! extracted tones.
+
+use super::error::{ApiError, Check};
+use super::gas::jet_state_message;
+use super::jet_input::{jet_summary, resolve_jet, ResolvedJet};
+use super::provenance::{provenance, Defaults};
+use crate::physics::gas::{Gas, GAMMA};
+use crate::physics::guided::{
+    self, Closure, ClosureOptions, GuidedMode, ModeBand, ModePoint, ModePrediction, ModeShape, Scale,
+    VortexSheet,
+};
+use crate::physics::jet::{JetSize, JetState};
+use crate::physics::models;
+use jetloop_proto::pb;
+
+/// Most modes in one request.
+pub const MAX_MODES: usize = 12;
+/// Points per dispersion curve when none are asked for.
+pub const DEFAULT_CURVE_POINTS: u32 = 100;
+
+/// Converts `GuidedModeOptions` at `path` for a round (`round`) or planar jet.
+pub fn closure_options(
+    check: &mut Check,
+    defaults: &mut Defaults,
+    o: Option<pb::GuidedModeOptions>,
+    path: &str,
+    round: bool,
+) -> Option<ClosureOptions> {
+    let pb::GuidedModeOptions { modes, convection_ratio, spacing_factor, cell_modes } = o.unwrap_or_default();
+    if modes.len() > MAX_MODES {
+        check.other(
+            format!("{path}.modes"),
+            format!("{path}.modes holds {} modes; at most {MAX_MODES} are allowed", modes.len()),
+        );
+        return None;
+    }
+    let modes = if modes.is_empty() {
+        let list = if round {
+            "round m = 0, 1, 2 (radial order 1) and m = 0 (radial order 2)"
+        } else {
+            "planar symmetric and antisymmetric, radial orders 1 and 2"
+        };
+        defaults.note(&format!("{path}.modes"), list, "the modes that carry screech stages");
+        GuidedMode::defaults(round)
+    } else {
+        modes
+            .iter()
+            .enumerate()
+            .filter_map(|(i, m)| mode_of(check, m, &format!("{path}.modes[{i}]"), round))
+            .collect()
+    };
+    let conv = defaults.or(
+        convection_ratio,
+        &format!("{path}.convection_ratio"),
+        guided::DEFAULT_CONVECTION_RATIO,
+        "",
+        "Uc = 0.7 Uj (Tam 1986)",
+    );
+    let conv = check.range(path, guided::CONVECTION_RATIO.check("convection_ratio", conv));
+    let factor = defaults.or(
+        spacing_factor,
+        &format!("{path}.spacing_factor"),
+        crate::physics::cells::DEFAULT_SPACING_FACTOR,
+        "",
+        "pure vortex-sheet shock-cell spacing",
+    );
+    let factor = check.range(path, crate::physics::cells::SPACING_FACTOR.check("spacing_factor", factor));
+    let cells = match cell_modes {
+        None => {
+            defaults.note(
+                &format!("{path}.cell_modes"),
+                &guided::DEFAULT_CELL_MODES.to_string(),
+                "first and second shock-cell modes",
+            );
+            Some(guided::DEFAULT_CELL_MODES)
+        }
+        Some(n) => check.range(path, guided::CELL_MODES.check("cell_modes", f64::from(n))).map(|v| v as u32),
+    };
+    Some(ClosureOptions { modes, convection_ratio: conv?, spacing_factor: factor?, cell_modes: cells? })
+}
+
+fn mode_of(check: &mut Check, m: &pb::GuidedModeId, path: &str, round: bool) -> Option<GuidedMode> {
+    let shape = match pb::ModeShape::try_from(m.shape) {
+        Ok(pb::ModeShape::Round) => ModeShape::Round { azimuthal: m.azimuthal_order },
+        Ok(pb::ModeShape::PlanarSymmetric) => ModeShape::PlanarSymmetric,
+        Ok(pb::ModeShape::PlanarAntisymmetric) => ModeShape::PlanarAntisymmetric,
+        Ok(pb::ModeShape::Unspecified) | Err(_) => {
+            check.other(
+                format!("{path}.shape"),
+                format!(
+                    "{path}.shape = {} must be MODE_SHAPE_ROUND, MODE_SHAPE_PLANAR_SYMMETRIC or \
+                     MODE_SHAPE_PLANAR_ANTISYMMETRIC",
+                    m.shape
+                ),
+            );
+            return None;
+        }
+    };
+    let is_round = matches!(shape, ModeShape::Round { .. });
+    if is_round != round {
+        let jet = if round { "round" } else { "planar" };
+        check.other(
+            format!("{path}.shape"),
+            format!(
+                "{path}.shape does not fit a {jet} jet: use {} modes",
+                if round { "MODE_SHAPE_ROUND" } else { "planar" }
+            ),
+        );
+        return None;
+    }
+    if !is_round && m.azimuthal_order != 0 {
+        check.other(
+            format!("{path}.azimuthal_order"),
+            format!("{path}.azimuthal_order = {} applies to round modes only; leave it 0", m.azimuthal_order),
+        );
+        return None;
+    }
+    check.range(path, GuidedMode::new(shape, m.radial_order))
+}
+
+/// The mode as a message.
+pub fn mode_id(m: &GuidedMode) -> pb::GuidedModeId {
+    let (shape, azimuthal_order) = match m.shape {
+        ModeShape::Round { azimuthal } => (pb::ModeShape::Round, azimuthal),
+        ModeShape::PlanarSymmetric => (pb::ModeShape::PlanarSymmetric, 0),
+        ModeShape::PlanarAntisymmetric => (pb::ModeShape::PlanarAntisymmetric, 0),
+    };
+    pb::GuidedModeId { shape: shape as i32, azimuthal_order, radial_order: m.radial }
+}
+
+/// A curve point as a message; `scale` adds hertz and rad/m.
+pub fn point_message(
+    sheet: &VortexSheet,
+    scale: Option<&Scale>,
+    p: &ModePoint,
+    upstream: bool,
+) -> pb::ModePoint {
+    pb::ModePoint {
+        strouhal_number: sheet.strouhal(p.omega),
+        frequency_hz: scale.map(|s| s.hz(p.omega)),
+        // Dimensionless wavenumbers are per R (or b); the reference length is 2R (or 2b).
+        wavenumber_times_length: -2.0 * p.kappa,
+        wavenumber_rad_per_m: scale.map(|s| s.wavenumber(p.kappa)),
+        upstream,
+    }
+}
+
+/// One mode's result; `curve` points of its dispersion curve (0: none).
+pub fn mode_message(
+    sheet: &VortexSheet,
+    scale: Option<&Scale>,
+    m: &ModePrediction,
+    curve: usize,
+) -> pb::GuidedModeResult {
+    let ModePrediction { band, closures } = m;
+    let ModeBand { mode, branch, saddle } = band;
+    pb::GuidedModeResult {
+        mode: Some(mode_id(mode)),
+        family: mode.family().to_string(),
+        customary_stage: mode.customary_stage(sheet.mach()).to_string(),
+        branch_point: Some(point_message(sheet, scale, branch, band.has_band())),
+        saddle_point: saddle.as_ref().map(|s| point_message(sheet, scale, s, true)),
+        has_band: band.has_band(),
+        tones: closures
+            .iter()
+            .map(|(n, ks, c)| {
+                let (outcome, tone) = match c {
+                    Closure::InBand(p) => {
+                        (pb::ClosureOutcome::InBand, Some(point_message(sheet, scale, p, true)))
+                    }
+                    Closure::BelowBand => (pb::ClosureOutcome::BelowBand, None),
+                    Closure::AboveBand => (pb::ClosureOutcome::AboveBand, None),
+                    Closure::NoBand => (pb::ClosureOutcome::NoBand, None),
+                };
+                pb::ClosureTone {
+                    cell_mode: *n,
+                    shock_wavenumber_times_length: 2.0 * ks,
+                    outcome: outcome as i32,
+                    tone,
+                }
+            })
+            .collect(),
+        curve: sheet.curve(band, curve).iter().map(|(p, up)| point_message(sheet, scale, p, *up)).collect(),
+    }
+}
+
+/// The sheet parameters as a message.
+pub fn sheet_message(sheet: &VortexSheet, scale: Option<&Scale>, round: bool) -> pb::VortexSheetParameters {
+    pb::VortexSheetParameters {
+        fully_expanded_mach_number: sheet.mach(),
+        sound_speed_ratio: sheet.sound_speed_ratio(),
+        density_ratio: sheet.density_ratio(),
+        reference_length_m: scale.map(|s| 2.0 * s.length_m),
+        round,
+    }
+}
+
+/// Where a GuidedModes question's jet comes from.
+#[derive(Debug, Clone)]
+enum Source {
+    /// A jet with a size.
+    Jet(Box<ResolvedJet>),
+    /// Dimensionless parameters.
+    Sheet,
+}
+
+/// A validated GuidedModes question.
+#[derive(Debug, Clone)]
+pub struct GuidedQuery {
+    source: Source,
+    sheet: VortexSheet,
+    scale: Option<Scale>,
+    round: bool,
+    options: ClosureOptions,
+    curve_points: usize,
+    defaults: Defaults,
+}
+
+fn sheet_of_ratios(
+    check: &mut Check,
+    defaults: &mut Defaults,
+    v: pb::VortexSheetJet,
+) -> (Option<VortexSheet>, bool) {
+    use pb::vortex_sheet_jet::Temperature;
+    let pb::VortexSheetJet { fully_expanded_mach_number: mj, temperature, gamma, geometry } = v;
+    let p = "vortex_sheet";
+    let round = match pb::SheetGeometry::try_from(geometry) {
+        Ok(pb::SheetGeometry::Round) => true,
+        Ok(pb::SheetGeometry::Planar) => false,
+        Ok(pb::SheetGeometry::Unspecified) => {
+            defaults.note(&format!("{p}.geometry"), "round", "the usual laboratory nozzle");
+            true
+        }
+        Err(_) => {
+            check.other(
+                format!("{p}.geometry"),
+                format!("{p}.geometry = {geometry} must be SHEET_GEOMETRY_ROUND or SHEET_GEOMETRY_PLANAR"),
+            );
+            true
+        }
+    };
+    let g = defaults.or(gamma, &format!("{p}.gamma"), crate::physics::gas::AIR_GAMMA, "", "air");
+    let g = check.range(p, GAMMA.check("gamma", g));
+    let mach = check.range(p, guided::MACH.check("fully_expanded_mach_number", mj));
+    let tj = match temperature {
+        None => {
+            check.missing(
+                format!("{p}.temperature"),
+                "set static_temperature_ratio or total_temperature_ratio",
+            );
+            None
+        }
+        Some(Temperature::StaticTemperatureRatio(t)) => {
+            check.range(p, guided::TEMPERATURE_RATIO.check("static_temperature_ratio", t))
+        }
+        Some(Temperature::TotalTemperatureRatio(t)) => {
+            let t = check.range(p, guided::TEMPERATURE_RATIO.check("total_temperature_ratio", t));
+            match (t, g, mach) {
+                (Some(t), Some(g), Some(m)) => {
+                    let gas = Gas::new(g, crate::physics::gas::AIR_GAS_CONSTANT).ok();
+                    gas.map(|gas| t / gas.total_to_static_temperature(m))
+                }
+                _ => None,
+            }
+        }
+    };
+    let sheet = match (mach, tj) {
+        (Some(m), Some(t)) => check.range(p, VortexSheet::same_gas(m, t)),
+        _ => None,
+    };
+    (sheet, round)
+}
+
+impl TryFrom<pb::GuidedModesRequest> for GuidedQuery {
+    type Error = ApiError;
+
+    fn try_from(req: pb::GuidedModesRequest) -> Result<Self, ApiError> {
+        use pb::guided_modes_request::Source as S;
+        let pb::GuidedModesRequest { source, options, curve_points } = req;
+        let mut check = Check::new();
+        let (source, sheet, scale, round, mut defaults) = match source {
+            None => {
+                check.missing("source", "set jet or vortex_sheet");
+                return check.finish(None);
+            }
+            Some(S::Jet(j)) => {
+                let jet = resolve_jet(Some(j), "jet")?;
+                let Some(scale) = Scale::of_jet(&jet.jet) else {
+                    check.other(
+                        "jet",
+                        "guided modes are computed for round and planar jets; a rectangular jet has \
+                         no vortex-sheet modes here (give a planar jet of its height for the \
+                         large-aspect-ratio limit)",
+                    );
+                    return check.finish(None);
+                };
+                let round = matches!(jet.jet.size, JetSize::Round { .. });
+                let sheet = check.range("jet", VortexSheet::of_jet(&jet.jet));
+                let defaults = jet.defaults.clone();
+                (Source::Jet(Box::new(jet)), sheet, Some(scale), round, defaults)
+            }
+            Some(S::VortexSheet(v)) => {
+                let mut defaults = Defaults::default();
+                let (sheet, round) = sheet_of_ratios(&mut check, &mut defaults, v);
+                (Source::Sheet, sheet, None, round, defaults)
+            }
+        };
+        let options = closure_options(&mut check, &mut defaults, options, "options", round);
+        let n = defaults.or(
+            curve_points.map(f64::from),
+            "curve_points",
+            f64::from(DEFAULT_CURVE_POINTS),
+            "",
+            "enough for a smooth plot",
+        );
+        let n = check.range("", guided::CURVE_POINTS.check("curve_points", n)).map(|v| v as usize);
+        let q = match (sheet, options, n) {
+            (Some(sheet), Some(options), Some(curve_points)) => {
+                Some(GuidedQuery { source, sheet, scale, round, options, curve_points, defaults })
+            }
+            _ => None,
+        };
+        check.finish(q)
+    }
+}
+
+/// Notes shared by every answer that carries guided modes.
+pub fn guided_notes() -> Vec<String> {
+    vec![
+        "Guided modes: inviscid vortex sheet (no shear-layer thickness); bands are where the \
+         upstream-travelling neutral mode exists, between its branch point on the sonic line and \
+         its saddle point. A closure outside the band means the stage cannot close through that mode."
+            .into(),
+        "Customary stage letters (A1/A2, B, C, D) are those of cold round convergent nozzles and \
+         depend on the facility; they are a guide, not a measurement."
+            .into(),
+    ]
+}
+
+/// Computes and builds the GuidedModes response.
+pub fn guided_response(q: &GuidedQuery) -> pb::GuidedModesResponse {
+    let preds = guided::predict(&q.sheet, q.round, &q.options);
+    let (state, jet, mut notes) = match &q.source {
+        Source::Jet(j) => (
+            j.state.as_ref().map(jet_state_message),
+            Some(jet_summary(&j.jet)),
+            j.state.as_ref().map(JetState::notes).unwrap_or_default(),
+        ),
+        Source::Sheet => (None, None, Vec::new()),
+    };
+    notes.extend(guided_notes());
+    let mut used = vec![models::GUIDED_JET_MODES, models::VORTEX_SHEET_CELLS];
+    if q.scale.is_some() {
+        used.push(models::FULLY_EXPANDED_JET);
+    }
+    pb::GuidedModesResponse {
+        state,
+        jet,
+        sheet: Some(sheet_message(&q.sheet, q.scale.as_ref(), q.round)),
+        convection_ratio: q.options.convection_ratio,
+        spacing_factor: q.options.spacing_factor,
+        modes: preds.iter().map(|m| mode_message(&q.sheet, q.scale.as_ref(), m, q.curve_points)).collect(),
+        provenance: Some(provenance(&used, &q.defaults, notes)),
+    }
+}
