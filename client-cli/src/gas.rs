@@ -207,6 +207,11 @@ impl JetArgs {
 }
 
 impl JetArgs {
+    /// True when an operating pressure (NPR or total pressure) was given.
+    pub fn pressure_given(&self) -> bool {
+        self.npr.is_some() || self.total_pressure_pa.is_some()
+    }
+
     /// Total and ambient temperatures and the gas, for a jet given directly.
     pub fn conditions_gas_and_temperatures(&self) -> (Option<f64>, Option<f64>, pb::Gas) {
         (

@@ -7,6 +7,7 @@
 #![forbid(unsafe_code)]
 
 mod gas;
+mod modes;
 mod output;
 mod plot;
 mod readers;
@@ -50,6 +51,9 @@ enum Command {
     ShockNoise(tones::ShockNoiseCmd),
     /// Screech predictions over NPR, Mj or reflector distance (table, JSON or CSV).
     Sweep(tones::SweepCmd),
+    /// Guided jet modes: which screech stages are possible (bands), where the loop closes
+    /// through each, and the dispersion curves.
+    Modes(modes::ModesCmd),
     /// Tones, levels, harmonics (and bands) of a recording: WAV, CSV or raw.
     Tones(spectrum::TonesCmd),
     /// One-third-octave band levels, overall and A-weighted levels of a recording.
@@ -120,6 +124,7 @@ async fn run(cli: Cli) -> Result<output::Report, Failure> {
         Command::Screech(a) => a.run(&ctx).await,
         Command::ShockNoise(a) => a.run(&ctx).await,
         Command::Sweep(a) => a.run(&ctx).await,
+        Command::Modes(a) => a.run(&ctx).await,
         Command::Tones(a) => a.run(&ctx).await,
         Command::Bands(a) => a.run(&ctx).await,
         Command::Synth(a) => a.run(&ctx).await,

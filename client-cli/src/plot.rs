@@ -200,6 +200,31 @@ impl Plot {
         }
     }
 
+    /// A shaded band between `lower` and `upper` (same x values, in order), values clamped to
+    /// the axes, with a legend entry when `label` is given.
+    pub fn band(&mut self, lower: &[(f64, f64)], upper: &[(f64, f64)], colour: &str, label: Option<&str>) {
+        if lower.len() < 2 || lower.len() != upper.len() {
+            return;
+        }
+        let clamp = |p: &Self, (x, y): (f64, f64)| {
+            let fx = p.x.frac(x).clamp(0.0, 1.0);
+            let fy = p.y.frac(y).clamp(0.0, 1.0);
+            let w = p.w - p.left - p.right;
+            let h = p.h - p.top - p.bottom;
+            format!("{:.1},{:.1}", p.left + fx * w, p.top + (1.0 - fy) * h)
+        };
+        let mut pts: Vec<String> = lower.iter().map(|q| clamp(self, *q)).collect();
+        pts.extend(upper.iter().rev().map(|q| clamp(self, *q)));
+        let _ = writeln!(
+            self.body,
+            "<polygon fill=\"{colour}\" fill-opacity=\"0.18\" stroke=\"{colour}\" stroke-opacity=\"0.5\" stroke-width=\"0.5\" points=\"{}\"/>",
+            pts.join(" ")
+        );
+        if let Some(l) = label {
+            self.legend.push((l.to_string(), colour.to_string(), "band"));
+        }
+    }
+
     /// A marker at each point: filled circles, open circles or crosses.
     pub fn markers(&mut self, pts: &[(f64, f64)], colour: &str, kind: Marker, label: Option<&str>) {
         let shapes: Vec<String> = pts
@@ -246,6 +271,10 @@ impl Plot {
             let x = self.left + 12.0;
             let mark = match *kind {
                 "line" => format!("<line x1=\"{x}\" y1=\"{0:.1}\" x2=\"{1}\" y2=\"{0:.1}\" stroke=\"{colour}\"/>", y - 4.0, x + 16.0),
+                "band" => format!(
+                    "<rect x=\"{x}\" y=\"{:.1}\" width=\"16\" height=\"8\" fill=\"{colour}\" fill-opacity=\"0.3\" stroke=\"{colour}\"/>",
+                    y - 8.0
+                ),
                 "dash" => format!(
                     "<line x1=\"{x}\" y1=\"{0:.1}\" x2=\"{1}\" y2=\"{0:.1}\" stroke=\"{colour}\" stroke-dasharray=\"4 3\"/>",
                     y - 4.0,

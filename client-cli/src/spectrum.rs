@@ -95,6 +95,29 @@ pub struct TonesCmd {
     /// interleaved data over 4 MiB, else one request.
     #[arg(long)]
     block_bytes: Option<usize>,
+    /// The jet the recording was made at (nozzle and --npr, or --mj with --dj-m / --hj-m):
+    /// each tone is then labelled with the screech stages (guided jet modes) it fits.
+    #[command(flatten)]
+    jet: crate::tones::JetSourceArgs,
+}
+
+/// The stage label of a tone for the table.
+fn stage_text(t: &pb::ExtractedTone) -> String {
+    if t.harmonic_order.is_some_and(|o| o >= 2) {
+        return "(harmonic)".into();
+    }
+    match &t.best_stage {
+        None => "none".into(),
+        Some(s) => {
+            let id = s.mode.as_ref().map(crate::tones::mode_label).unwrap_or_default();
+            let letters =
+                if s.customary_stage.is_empty() { String::new() } else { format!(" {}", s.customary_stage) };
+            let dev = s.relative_deviation.map_or(String::new(), |d| format!(", {:+.1} %", 100.0 * d));
+            let more =
+                if t.stages.len() > 1 { format!(" (+{} more)", t.stages.len() - 1) } else { String::new() };
+            format!("{id}{letters}{dev}{more}")
+        }
+    }
 }
 
 /// Raw interleaved samples cut into blocks of whole frames of about `block` bytes; `None` when
@@ -226,7 +249,13 @@ impl Run for TonesCmd {
             include_band_levels: a.bands,
             max_band_frequency_hz: None,
             psd_output: Some(pb::PsdOutputOptions { include: want_psd, max_points: None }),
+            stage_labels: if a.jet.given() {
+                Some(pb::StageLabelOptions { jet: Some(a.jet.input()?), modes: None })
+            } else {
+                None
+            },
         };
+        let labelled = a.jet.given();
         let mut client = SpectrumServiceClient::new(ch)
             .max_decoding_message_size(256 * 1024 * 1024)
             .max_encoding_message_size(256 * 1024 * 1024);
@@ -276,15 +305,22 @@ impl Run for TonesCmd {
                 .col("bandwidth_3db_hz", "-3 dB width [Hz]")
                 .col("family", "family")
                 .col("harmonic_order", "order");
+            if labelled {
+                t = t.col("stage", "stage (guided mode)");
+            }
             for x in &c.tones {
-                t.row(vec![
+                let mut row = vec![
                     Some(Val::Num(x.frequency_hz)),
                     Some(Val::Num(x.level_db)),
                     Some(Val::Num(x.tone_to_floor_db)),
                     Some(Val::Num(x.bandwidth_3db_hz)),
                     x.family.map(|v| Val::Int(v.into())),
                     x.harmonic_order.map(|v| Val::Int(v.into())),
-                ]);
+                ];
+                if labelled {
+                    row.push(Some(Val::Text(stage_text(x))));
+                }
+                t.row(row);
             }
             rep = rep.table(t);
             let mut fam = Table::new("families", format!("Harmonic families, {label}"))

@@ -29,8 +29,29 @@ pub struct JetSourceArgs {
     bj_m: Option<f64>,
 }
 
+/// Short name of a guided mode: "m=1 r1" (round), "sym r1" / "anti r2" (planar).
+pub fn mode_label(m: &pb::GuidedModeId) -> String {
+    match pb::ModeShape::try_from(m.shape) {
+        Ok(pb::ModeShape::Round) => format!("m={} r{}", m.azimuthal_order, m.radial_order),
+        Ok(pb::ModeShape::PlanarSymmetric) => format!("sym r{}", m.radial_order),
+        Ok(pb::ModeShape::PlanarAntisymmetric) => format!("anti r{}", m.radial_order),
+        _ => "?".into(),
+    }
+}
+
 impl JetSourceArgs {
-    fn input(&self) -> Result<pb::JetInput, Failure> {
+    /// The --mj value, if given.
+    pub fn mach(&self) -> Option<f64> {
+        self.mj
+    }
+
+    /// True when a jet was described (an operating pressure, or --mj).
+    pub fn given(&self) -> bool {
+        self.mj.is_some() || self.conditions.pressure_given()
+    }
+
+    /// The jet these arguments describe.
+    pub fn input(&self) -> Result<pb::JetInput, Failure> {
         use pb::fully_expanded_jet::Size;
         let source = match self.mj {
             None => Source::Conditions(self.conditions.conditions()?),
@@ -230,6 +251,101 @@ pub struct SweepCmd {
     /// Also write the points as CSV to this file ("-" for standard output instead of the table).
     #[arg(long)]
     csv: Option<std::path::PathBuf>,
+    /// Write the screech map as an SVG plot: frequency against the swept value for Powell and
+    /// Tam, and with --guided the stage bands shaded and the closure tones of each mode.
+    #[arg(long)]
+    plot: Option<std::path::PathBuf>,
+}
+
+/// The screech map of a sweep: models as lines, guided-mode bands shaded (one band per run of
+/// consecutive points where the mode has one), closure tones of the first shock-cell mode as
+/// dots and of the second as rings.
+pub fn sweep_plot(r: &pb::SweepScreechResponse, x_label: &str) -> String {
+    use crate::plot::{Axis, Marker, Plot, COLOURS};
+    let pts: Vec<&pb::SweepPoint> = r.points.iter().filter(|p| p.supersonic).collect();
+    let xs = pts.iter().map(|p| p.value);
+    let (xlo, xhi) = xs.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| (a.min(v), b.max(v)));
+    let (xlo, xhi) = if xlo.is_finite() && xhi > xlo { (xlo, xhi) } else { (0.0, 1.0) };
+    let mut ymax = 0.0_f64;
+    for p in &pts {
+        for v in p.powell_fundamental_hz.iter().chain(p.tam_1986_hz.iter()) {
+            ymax = ymax.max(*v);
+        }
+        for m in &p.guided_modes {
+            for t in m.tones.iter().filter_map(|t| t.tone.as_ref()) {
+                ymax = ymax.max(t.frequency_hz.unwrap_or(0.0));
+            }
+        }
+    }
+    let ymax = if ymax > 0.0 { ymax * 1.15 } else { 1.0 };
+    let mut p = Plot::new(
+        "Screech map",
+        900.0,
+        560.0,
+        Axis::linear(xlo, xhi, x_label),
+        Axis::linear(0.0, ymax, "frequency [Hz]"),
+    );
+    let modes = pts.iter().map(|q| q.guided_modes.len()).max().unwrap_or(0);
+    for i in 0..modes {
+        let colour = COLOURS[(i + 2) % COLOURS.len()];
+        let name = pts
+            .iter()
+            .find_map(|q| q.guided_modes.get(i))
+            .map(|m| {
+                let id = m.mode.as_ref().map(mode_label).unwrap_or_default();
+                if m.customary_stage.is_empty() {
+                    id
+                } else {
+                    format!("{id} ({})", m.customary_stage)
+                }
+            })
+            .unwrap_or_default();
+        // Runs of consecutive points with a band.
+        let mut labelled = false;
+        let mut run: Vec<(f64, f64, f64)> = Vec::new();
+        let flush = |p: &mut Plot, run: &mut Vec<(f64, f64, f64)>, labelled: &mut bool| {
+            if run.len() >= 2 {
+                let lo: Vec<(f64, f64)> = run.iter().map(|r| (r.0, r.1)).collect();
+                let hi: Vec<(f64, f64)> = run.iter().map(|r| (r.0, r.2)).collect();
+                let label = format!("{name} band");
+                p.band(&lo, &hi, colour, if *labelled { None } else { Some(label.as_str()) });
+                *labelled = true;
+            }
+            run.clear();
+        };
+        for q in &pts {
+            let band = q.guided_modes.get(i).filter(|m| m.has_band).and_then(|m| {
+                let lo = m.branch_point.as_ref()?.frequency_hz?;
+                let hi = m.saddle_point.as_ref()?.frequency_hz?;
+                Some((q.value, lo, hi))
+            });
+            match band {
+                Some(b) => run.push(b),
+                None => flush(&mut p, &mut run, &mut labelled),
+            }
+        }
+        flush(&mut p, &mut run, &mut labelled);
+        for (n, marker) in [(1, Marker::Dot), (2, Marker::Ring)] {
+            let tones: Vec<(f64, f64)> = pts
+                .iter()
+                .filter_map(|q| {
+                    let t = q.guided_modes.get(i)?.tones.iter().find(|t| t.cell_mode == n)?;
+                    Some((q.value, t.tone.as_ref()?.frequency_hz?))
+                })
+                .collect();
+            let label = format!("{name} closure, cell mode {n}");
+            p.markers(&tones, colour, marker, (!tones.is_empty()).then_some(label.as_str()));
+        }
+    }
+    let line = |f: &dyn Fn(&pb::SweepPoint) -> Option<f64>| -> Vec<(f64, f64)> {
+        pts.iter().filter_map(|q| f(q).map(|v| (q.value, v))).collect()
+    };
+    p.line(&line(&|q| q.powell_fundamental_hz), COLOURS[0], false, Some("Powell fundamental"));
+    let tam = line(&|q| q.tam_1986_hz);
+    if !tam.is_empty() {
+        p.line(&tam, COLOURS[1], true, Some("Tam, Seiner & Yu 1986"));
+    }
+    p.finish()
 }
 
 fn jet_rows(r: Report, j: &Option<pb::ExpandedJetSummary>) -> Report {
@@ -350,11 +466,16 @@ impl Run for ScreechCmd {
             .num("source_distance_m", "loop source distance", fl.source_distance_m, "m")
             .num("fixed_delay_s", "fixed delays", fl.fixed_delay_s, "s")
             .num("loop_time_s", "loop time tau", fl.loop_time_s, "s");
-        Ok(rep
-            .table(models)
-            .table(paths)
-            .table(tone_table("loop_orders", "Loop orders n / tau", &fl.orders))
-            .provenance(r.provenance))
+        let mut rep = rep.table(models).table(paths).table(tone_table(
+            "loop_orders",
+            "Loop orders n / tau",
+            &fl.orders,
+        ));
+        if !r.guided_modes.is_empty() {
+            let (bands, closures) = crate::modes::mode_tables(&r.guided_modes, true);
+            rep = rep.table(bands).table(closures);
+        }
+        Ok(rep.provenance(r.provenance))
     }
 }
 
@@ -450,6 +571,16 @@ impl Run for SweepCmd {
                 row.push(p.loop_frequencies_hz.get(n).copied().map(Val::Num));
             }
             t.row(row);
+        }
+        if let Some(path) = &a.plot {
+            let x_label = match a.vary {
+                VaryArg::Npr => "nozzle pressure ratio",
+                VaryArg::Mj => "fully expanded Mach number Mj",
+                VaryArg::Reflector => "reflector distance [m]",
+            };
+            std::fs::write(path, sweep_plot(&r, x_label))
+                .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
+            eprintln!("wrote {}", path.display());
         }
         if let Some(path) = &a.csv {
             let csv = t.to_csv();

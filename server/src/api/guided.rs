@@ -20,6 +20,16 @@ pub const MAX_MODES: usize = 12;
 /// Points per dispersion curve when none are asked for.
 pub const DEFAULT_CURVE_POINTS: u32 = 100;
 
+/// Values a screech request already gives, used where its `guided_modes` leaves a field
+/// unset: the convection ratio of `options.convection` and the factor of `options.cells`.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct Fallbacks {
+    /// Uc / Uj and the field it came from.
+    pub convection_ratio: Option<(f64, &'static str)>,
+    /// Spacing factor and the field it came from.
+    pub spacing_factor: Option<(f64, &'static str)>,
+}
+
 /// Converts `GuidedModeOptions` at `path` for a round (`round`) or planar jet.
 pub fn closure_options(
     check: &mut Check,
@@ -27,6 +37,18 @@ pub fn closure_options(
     o: Option<pb::GuidedModeOptions>,
     path: &str,
     round: bool,
+) -> Option<ClosureOptions> {
+    closure_options_with(check, defaults, o, path, round, Fallbacks::default())
+}
+
+/// As [`closure_options`], taking unset fields from `fb` before the model's defaults.
+pub fn closure_options_with(
+    check: &mut Check,
+    defaults: &mut Defaults,
+    o: Option<pb::GuidedModeOptions>,
+    path: &str,
+    round: bool,
+    fb: Fallbacks,
 ) -> Option<ClosureOptions> {
     let pb::GuidedModeOptions { modes, convection_ratio, spacing_factor, cell_modes } = o.unwrap_or_default();
     if modes.len() > MAX_MODES {
@@ -51,6 +73,18 @@ pub fn closure_options(
             .filter_map(|(i, m)| mode_of(check, m, &format!("{path}.modes[{i}]"), round))
             .collect()
     };
+    let from =
+        |defaults: &mut Defaults, given: Option<f64>, fb: Option<(f64, &'static str)>, field: &str| match (
+            given, fb,
+        ) {
+            (None, Some((v, source))) => {
+                defaults.note(&format!("{path}.{field}"), &v.to_string(), &format!("the value of {source}"));
+                Some(v)
+            }
+            _ => given,
+        };
+    let convection_ratio = from(defaults, convection_ratio, fb.convection_ratio, "convection_ratio");
+    let spacing_factor = from(defaults, spacing_factor, fb.spacing_factor, "spacing_factor");
     let conv = defaults.or(
         convection_ratio,
         &format!("{path}.convection_ratio"),
@@ -363,5 +397,92 @@ pub fn guided_response(q: &GuidedQuery) -> pb::GuidedModesResponse {
         spacing_factor: q.options.spacing_factor,
         modes: preds.iter().map(|m| mode_message(&q.sheet, q.scale.as_ref(), m, q.curve_points)).collect(),
         provenance: Some(provenance(&used, &q.defaults, notes)),
+    }
+}
+
+/// The guided modes of the jet a recording was made at, for stage labels on its tones.
+#[derive(Debug, Clone)]
+pub struct StageContext {
+    sheet: VortexSheet,
+    scale: Scale,
+    round: bool,
+    modes: Vec<ModePrediction>,
+    state_notes: Vec<String>,
+}
+
+/// Converts `StageLabelOptions` at `path` and computes the bands and closures.
+///
+/// # Errors
+/// [`ApiError::Invalid`] for bad fields or a rectangular jet; [`ApiError::Precondition`] for a
+/// jet that is not supersonic.
+pub fn stage_context(
+    o: pb::StageLabelOptions,
+    path: &str,
+    defaults: &mut Defaults,
+) -> Result<StageContext, ApiError> {
+    let pb::StageLabelOptions { jet, modes } = o;
+    let jet = resolve_jet(jet, &format!("{path}.jet"))?;
+    let mut check = Check::new();
+    let Some(scale) = Scale::of_jet(&jet.jet) else {
+        check.other(
+            format!("{path}.jet"),
+            format!(
+                "{path}.jet: stage labels need a round or planar jet (guided modes); this one is rectangular"
+            ),
+        );
+        return check.finish(None);
+    };
+    defaults.0.extend(jet.defaults.0.iter().cloned());
+    let round = matches!(jet.jet.size, JetSize::Round { .. });
+    let sheet = check.range(&format!("{path}.jet"), VortexSheet::of_jet(&jet.jet));
+    let options = closure_options(&mut check, defaults, modes, &format!("{path}.modes"), round);
+    let state_notes = jet.state.as_ref().map(JetState::notes).unwrap_or_default();
+    let ctx = match (sheet, options) {
+        (Some(sheet), Some(o)) => {
+            Some(StageContext { sheet, scale, round, modes: guided::predict(&sheet, round, &o), state_notes })
+        }
+        _ => None,
+    };
+    check.finish(ctx)
+}
+
+impl StageContext {
+    /// The stages a tone at `f_hz` is compatible with, best first.
+    pub fn label(&self, f_hz: f64) -> Vec<pb::StageMatch> {
+        let omega = f_hz * 2.0 * std::f64::consts::PI * self.scale.length_m / self.scale.aj_m_s;
+        guided::label_tone(omega, &self.modes)
+            .iter()
+            .map(|m| {
+                let band = &self.modes[m.index].band;
+                pb::StageMatch {
+                    mode: Some(mode_id(&m.mode)),
+                    family: m.mode.family().to_string(),
+                    customary_stage: m.mode.customary_stage(self.sheet.mach()).to_string(),
+                    cell_mode: m.closure.map(|c| c.0),
+                    predicted_frequency_hz: m.closure.map(|c| self.scale.hz(c.1)),
+                    relative_deviation: m.relative_deviation,
+                    band_low_hz: self.scale.hz(band.branch.omega),
+                    band_high_hz: band.saddle.map_or(f64::NAN, |s| self.scale.hz(s.omega)),
+                }
+            })
+            .collect()
+    }
+
+    /// The bands and closures as messages.
+    pub fn bands(&self) -> Vec<pb::GuidedModeResult> {
+        self.modes.iter().map(|m| mode_message(&self.sheet, Some(&self.scale), m, 0)).collect()
+    }
+
+    /// The sheet as a message.
+    pub fn sheet(&self) -> pb::VortexSheetParameters {
+        sheet_message(&self.sheet, Some(&self.scale), self.round)
+    }
+
+    /// Notes for the provenance: the jet state's and the model's.
+    pub fn notes(&self) -> Vec<String> {
+        let mut n = self.state_notes.clone();
+        n.extend(guided_notes());
+        n.push("Stage labels: a tone is compatible with a mode when its frequency lies in the mode's band; harmonics (order 2 and above) are not labelled.".into());
+        n
     }
 }

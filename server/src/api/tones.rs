@@ -118,25 +118,32 @@ fn screech_settings(
             check.other(
                 format!("{path}.guided_modes"),
                 format!(
-                    "{path}.guided_modes: guided modes are computed for round and planar jets, not                      rectangular ones; leave it unset or give a planar jet of the same height"
+                    "{path}.guided_modes: guided modes are computed for round and planar jets, not \
+                     rectangular ones; leave it unset or give a planar jet of the same height"
                 ),
             );
             None
         }
-        (Some(g), size) => {
-            let round = matches!(size, JetSize::Round { .. });
-            let o = super::guided::closure_options(
-                check,
-                defaults,
-                Some(g),
-                &format!("{path}.guided_modes"),
-                round,
-            );
-            Some(o?)
-        }
+        (Some(g), size) => Some((g, matches!(size, JetSize::Round { .. }))),
     };
     let conv = convection(check, defaults, c, &format!("{path}.convection"));
     let cells = cell_options(check, defaults, cl, &format!("{path}.cells"), 1);
+    // The guided closure takes the request's convection ratio and spacing factor unless its
+    // own options set them.
+    let guided = match guided {
+        None => None,
+        Some((g, round)) => {
+            let fb = super::guided::Fallbacks {
+                convection_ratio: match conv {
+                    Some(Convection::Ratio(r)) => Some((r, "options.convection")),
+                    _ => None,
+                },
+                spacing_factor: cells.as_ref().map(|c| (c.factor(), "options.cells.spacing_factor")),
+            };
+            let path = format!("{path}.guided_modes");
+            Some(super::guided::closure_options_with(check, defaults, Some(g), &path, round, fb)?)
+        }
+    };
     let loop_spec = loop_spec(check, defaults, r#loop, &format!("{path}.loop"));
     let d = screech::DEFAULT_HARMONICS;
     let harmonics = match harmonics {

@@ -552,6 +552,51 @@ pub fn predict(sheet: &VortexSheet, round: bool, o: &ClosureOptions) -> Vec<Mode
         .collect()
 }
 
+/// A stage a measured tone is compatible with: its frequency lies in the mode's band.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct StageMatch {
+    /// Index of the mode in the prediction list.
+    pub index: usize,
+    /// The mode.
+    pub mode: GuidedMode,
+    /// Nearest closure tone in the band: (shock-cell mode, dimensionless omega).
+    pub closure: Option<(u32, f64)>,
+    /// (measured - predicted) / predicted for that closure tone.
+    pub relative_deviation: Option<f64>,
+}
+
+/// The modes whose band holds the dimensionless frequency `omega`, best first: by the
+/// smallest |relative deviation| from an in-band closure tone, then modes without one, in
+/// request order. Empty when `omega` lies in no band.
+pub fn label_tone(omega: f64, modes: &[ModePrediction]) -> Vec<StageMatch> {
+    let mut out: Vec<StageMatch> = modes
+        .iter()
+        .enumerate()
+        .filter(|(_, m)| m.band.contains(omega))
+        .map(|(index, m)| {
+            let closure = m
+                .closures
+                .iter()
+                .filter_map(|(n, _, c)| match c {
+                    Closure::InBand(p) => Some((*n, p.omega)),
+                    _ => None,
+                })
+                .min_by(|a, b| (a.1 - omega).abs().total_cmp(&(b.1 - omega).abs()));
+            StageMatch {
+                index,
+                mode: m.band.mode,
+                closure,
+                relative_deviation: closure.map(|(_, w)| (omega - w) / w),
+            }
+        })
+        .collect();
+    out.sort_by(|a, b| {
+        let key = |m: &StageMatch| m.relative_deviation.map_or(f64::INFINITY, f64::abs);
+        key(a).total_cmp(&key(b))
+    });
+    out
+}
+
 /// Converts dimensionless results of a jet with a size: the length unit (R = Dj/2 or b = hj/2)
 /// and the jet's sound speed.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -689,6 +734,35 @@ mod tests {
         }
         assert_eq!(sheet.close(&band, 0.5 * band.branch.kappa, 0.7), Closure::BelowBand);
         assert_eq!(sheet.close(&band, 10.0 * s.kappa, 0.7), Closure::AboveBand);
+    }
+
+    #[test]
+    fn a_tone_at_a_closure_is_labelled_with_its_mode_and_one_outside_every_band_with_none() {
+        // Definition of the labels (band membership; issue check "a synthetic tone at a
+        // predicted stage frequency is labelled with that stage").
+        let sheet = cold(1.3);
+        let o = ClosureOptions {
+            modes: GuidedMode::defaults(true),
+            convection_ratio: 0.7,
+            spacing_factor: 1.0,
+            cell_modes: 2,
+        };
+        let preds = predict(&sheet, true, &o);
+        let mut labelled = 0;
+        for (i, m) in preds.iter().enumerate() {
+            for (_, _, c) in &m.closures {
+                if let Closure::InBand(p) = c {
+                    let l = label_tone(p.omega, &preds);
+                    assert_eq!(l[0].index, i, "{:?}", m.band.mode);
+                    assert!(l[0].relative_deviation.unwrap().abs() < 1e-12);
+                    labelled += 1;
+                }
+            }
+        }
+        assert!(labelled > 0);
+        // Far below every branch point.
+        let lowest = preds.iter().map(|m| m.band.branch.omega).fold(f64::INFINITY, f64::min);
+        assert!(label_tone(0.5 * lowest, &preds).is_empty());
     }
 
     #[test]

@@ -43,6 +43,7 @@ pub struct ToneQuery {
     pub(super) predicted: Option<(f64, f64)>,
     pub(super) bands: Option<f64>,
     pub(super) psd_points: Option<Option<usize>>,
+    pub(super) stages: Option<crate::api::guided::StageContext>,
     pub(super) defaults: Defaults,
 }
 
@@ -77,6 +78,7 @@ pub(super) fn tone_query(
         include_band_levels,
         max_band_frequency_hz,
         psd_output,
+        stage_labels,
     } = req;
     let started = std::time::Instant::now();
     let mut defaults = Defaults::default();
@@ -85,6 +87,10 @@ pub(super) fn tone_query(
         None => samples.recording.len(),
         Some(Some(frames)) => usize::try_from(frames).unwrap_or(usize::MAX),
         Some(None) => usize::MAX,
+    };
+    let stages = match stage_labels {
+        Some(o) => Some(crate::api::guided::stage_context(o, "stage_labels", &mut defaults)?),
+        None => None,
     };
     let mut check = Check::new();
     let w = welch_config(&mut check, &mut defaults, welch, samples.fs, known);
@@ -106,8 +112,17 @@ pub(super) fn tone_query(
             check.range("psd_output", PSD_POINTS.check("max_points", f64::from(m))).map(|v| v as usize)
         })
     });
-    let q =
-        w.map(|welch| ToneQuery { started, samples, welch, tones, predicted, bands, psd_points, defaults });
+    let q = w.map(|welch| ToneQuery {
+        started,
+        samples,
+        welch,
+        tones,
+        predicted,
+        bands,
+        psd_points,
+        stages,
+        defaults,
+    });
     check.finish(q)
 }
 
@@ -215,17 +230,26 @@ pub(super) fn tones_answer(q: &ToneQuery, psds: &[Psd], t: std::time::Instant) -
             tones: set
                 .tones
                 .iter()
-                .map(|t| pb::ExtractedTone {
-                    frequency_hz: t.frequency_hz,
-                    peak_bin_frequency_hz: t.peak_bin_hz,
-                    level_db: t.level_db,
-                    mean_square_pa2: t.mean_square_pa2,
-                    peak_density_pa2_per_hz: t.peak_density,
-                    floor_density_pa2_per_hz: t.floor_density,
-                    tone_to_floor_db: t.tone_to_floor_db,
-                    bandwidth_3db_hz: t.bandwidth_3db_hz,
-                    family: t.family.map(|f| f.0 as u32),
-                    harmonic_order: t.family.map(|f| f.1),
+                .map(|t| {
+                    let harmonic = t.family.is_some_and(|f| f.1 >= 2);
+                    let stages = match &q.stages {
+                        Some(ctx) if !harmonic => ctx.label(t.frequency_hz),
+                        _ => Vec::new(),
+                    };
+                    pb::ExtractedTone {
+                        best_stage: stages.first().cloned(),
+                        stages,
+                        frequency_hz: t.frequency_hz,
+                        peak_bin_frequency_hz: t.peak_bin_hz,
+                        level_db: t.level_db,
+                        mean_square_pa2: t.mean_square_pa2,
+                        peak_density_pa2_per_hz: t.peak_density,
+                        floor_density_pa2_per_hz: t.floor_density,
+                        tone_to_floor_db: t.tone_to_floor_db,
+                        bandwidth_3db_hz: t.bandwidth_3db_hz,
+                        family: t.family.map(|f| f.0 as u32),
+                        harmonic_order: t.family.map(|f| f.1),
+                    }
                 })
                 .collect(),
             families: set
@@ -263,9 +287,16 @@ pub(super) fn tones_answer(q: &ToneQuery, psds: &[Psd], t: std::time::Instant) -
         used.push(models::THIRD_OCTAVE);
         used.push(models::A_WEIGHTING);
     }
+    let notes = q.stages.as_ref().map(crate::api::guided::StageContext::notes).unwrap_or_default();
+    if q.stages.is_some() {
+        used.push(models::GUIDED_JET_MODES);
+        used.push(models::FULLY_EXPANDED_JET);
+    }
     pb::ExtractTonesResponse {
         channels: out,
         compute_time_s: t.elapsed().as_secs_f64(),
-        provenance: Some(provenance(&used, &q.defaults, Vec::new())),
+        stage_bands: q.stages.as_ref().map(crate::api::guided::StageContext::bands).unwrap_or_default(),
+        stage_sheet: q.stages.as_ref().map(crate::api::guided::StageContext::sheet),
+        provenance: Some(provenance(&used, &q.defaults, notes)),
     }
 }
