@@ -354,6 +354,14 @@ impl VortexSheet {
         let q0 = 1.0 / self.sound_speed_ratio;
         let g = |q: f64| self.p(mode, lam, q) - target;
         if g(q0).partial_cmp(&0.0) != Some(std::cmp::Ordering::Less) {
+            // Where Q(0) = 0 (m = 0, planar) the branch point is the branch's lower end and
+            // Q(ga) ~ -1/ln(ga) for m = 0: just above it the curve lies closer to the sonic line
+            // than q^2 - 1/c^2 can resolve (ga below about 1e-8), so the point is the sonic
+            // line's to double precision. Elsewhere lam lies below the branch point.
+            if mode.outside(0.0) == 0.0 {
+                let omega = lam / self.ell(q0);
+                return Some(ModePoint { lam, omega, kappa: q0 * omega });
+            }
             return None;
         }
         let mut q1 = 2.0 * q0;

@@ -1,0 +1,246 @@
+//! End to end over a real socket: ToneService.GuidedModes, guided modes in PredictScreech and
+//! SweepScreech, and stage labels on extracted tones. The roots themselves are checked against
+//! an independent SciPy solver in tests/python/test_guided_modes.py.
+
+use jetloop_proto::pb::{
+    self, samples::Data, spectrum_service_client::SpectrumServiceClient,
+    tone_service_client::ToneServiceClient,
+};
+use jetloop_tests::fixtures::{direct, inch_nozzle, rel};
+use jetloop_tests::{assert_field, TestServer};
+use std::f64::consts::PI;
+use tonic::Code;
+
+fn sheet(mj: f64, t0: f64) -> pb::guided_modes_request::Source {
+    pb::guided_modes_request::Source::VortexSheet(pb::VortexSheetJet {
+        fully_expanded_mach_number: mj,
+        temperature: Some(pb::vortex_sheet_jet::Temperature::TotalTemperatureRatio(t0)),
+        gamma: None,
+        geometry: 0,
+    })
+}
+
+fn round_mode(m: u32, r: u32) -> pb::GuidedModeId {
+    pb::GuidedModeId { shape: pb::ModeShape::Round as i32, azimuthal_order: m, radial_order: r }
+}
+
+#[tokio::test]
+async fn bad_inputs_name_their_field() {
+    let server = TestServer::start().await;
+    let mut t = ToneServiceClient::new(server.channel().await);
+    let ask = |source, options| pb::GuidedModesRequest { source: Some(source), options, curve_points: None };
+    // Mj <= 1 for the solver.
+    let e = t.guided_modes(ask(sheet(1.0, 1.0), None)).await.unwrap_err();
+    assert_field(&e, Code::InvalidArgument, "vortex_sheet.fully_expanded_mach_number");
+    // Temperature ratio <= 0.
+    let e = t.guided_modes(ask(sheet(1.5, 0.0), None)).await.unwrap_err();
+    assert_field(&e, Code::InvalidArgument, "vortex_sheet.total_temperature_ratio");
+    // Mode orders out of range.
+    let opts = |m| Some(pb::GuidedModeOptions { modes: vec![m], ..Default::default() });
+    let e = t.guided_modes(ask(sheet(1.5, 1.0), opts(round_mode(3, 1)))).await.unwrap_err();
+    assert_field(&e, Code::InvalidArgument, "options.modes[0].azimuthal_order");
+    let e = t.guided_modes(ask(sheet(1.5, 1.0), opts(round_mode(0, 4)))).await.unwrap_err();
+    assert_field(&e, Code::InvalidArgument, "options.modes[0].radial_order");
+    // A planar mode for a round jet.
+    let planar = pb::GuidedModeId {
+        shape: pb::ModeShape::PlanarSymmetric as i32,
+        azimuthal_order: 0,
+        radial_order: 1,
+    };
+    let e = t.guided_modes(ask(sheet(1.5, 1.0), opts(planar))).await.unwrap_err();
+    assert_field(&e, Code::InvalidArgument, "options.modes[0].shape");
+    // A subsonic jet given by conditions is a precondition failure, not an argument error.
+    let e =
+        t.guided_modes(ask(pb::guided_modes_request::Source::Jet(inch_nozzle(1.5)), None)).await.unwrap_err();
+    assert_eq!(e.code(), Code::FailedPrecondition);
+}
+
+#[tokio::test]
+async fn a_jet_with_a_size_gets_hertz_consistent_with_its_strouhal_numbers() {
+    let server = TestServer::start().await;
+    let mut t = ToneServiceClient::new(server.channel().await);
+    let r = t
+        .guided_modes(pb::GuidedModesRequest {
+            source: Some(pb::guided_modes_request::Source::Jet(direct(1.3, 0.02))),
+            options: None,
+            curve_points: Some(50),
+        })
+        .await
+        .unwrap()
+        .into_inner();
+    let j = r.jet.unwrap();
+    assert_eq!(r.modes.len(), 4);
+    for m in &r.modes {
+        assert_eq!(m.curve.len(), 50);
+        let b = m.branch_point.unwrap();
+        // St = f Dj / Uj (definition).
+        let st = b.frequency_hz.unwrap() * j.reference_length_m / j.fully_expanded_velocity_m_per_s;
+        assert!(rel(st, b.strouhal_number) < 1e-12);
+        // The branch point lies on the sonic line k = -omega / a_ambient (definition).
+        let k_sonic = -2.0 * PI * b.frequency_hz.unwrap() / j.ambient_sound_speed_m_per_s;
+        assert!(rel(b.wavenumber_rad_per_m.unwrap(), k_sonic) < 1e-9, "{b:?} vs {k_sonic}");
+    }
+    // The same jet given by ratios: the cold jet T0 = Ta gives the same Strouhal numbers.
+    let d = t
+        .guided_modes(pb::GuidedModesRequest {
+            source: Some(sheet(1.3, 1.0)),
+            options: None,
+            curve_points: Some(0),
+        })
+        .await
+        .unwrap()
+        .into_inner();
+    for (a, b) in r.modes.iter().zip(&d.modes) {
+        let (x, y) = (a.branch_point.unwrap().strouhal_number, b.branch_point.unwrap().strouhal_number);
+        assert!(rel(x, y) < 1e-9, "{x} vs {y}");
+        assert!(b.curve.is_empty() && b.branch_point.unwrap().frequency_hz.is_none());
+    }
+}
+
+#[tokio::test]
+async fn screech_and_sweep_carry_guided_modes_on_request() {
+    let server = TestServer::start().await;
+    let mut t = ToneServiceClient::new(server.channel().await);
+    let options = pb::ScreechOptions {
+        cells: Some(pb::CellOptions { spacing_factor: Some(0.8), ..Default::default() }),
+        guided_modes: Some(pb::GuidedModeOptions::default()),
+        ..Default::default()
+    };
+    let r = t
+        .predict_screech(pb::PredictScreechRequest {
+            jet: Some(inch_nozzle(3.0)),
+            options: Some(options.clone()),
+        })
+        .await
+        .unwrap()
+        .into_inner();
+    assert_eq!(r.guided_modes.len(), 4);
+    // The closure took the request's spacing factor.
+    assert!(r
+        .provenance
+        .unwrap()
+        .defaults_applied
+        .iter()
+        .any(|d| d.field == "options.guided_modes.spacing_factor"
+            && d.reason.contains("options.cells.spacing_factor")));
+    // Every in-band closure of cell mode 1 is listed beside Powell and Tam, at its frequency.
+    for m in &r.guided_modes {
+        let t1 = m.tones.iter().find(|t| t.cell_mode == 1).unwrap();
+        if t1.outcome == pb::ClosureOutcome::InBand as i32 {
+            let f = t1.tone.unwrap().frequency_hz.unwrap();
+            assert!(r
+                .predictions
+                .iter()
+                .any(|p| p.model.starts_with("guided jet mode") && p.fundamental_hz == f));
+        }
+    }
+    let sw = t
+        .sweep_screech(pb::SweepScreechRequest {
+            jet: Some(inch_nozzle(3.0)),
+            variable: pb::SweepVariable::NozzlePressureRatio as i32,
+            values: Some(pb::sweep_screech_request::Values::List(pb::SweepValues {
+                values: vec![1.5, 2.5, 3.0, 4.0],
+            })),
+            options: Some(options.clone()),
+        })
+        .await
+        .unwrap()
+        .into_inner();
+    for p in &sw.points {
+        assert_eq!(p.guided_modes.len(), if p.supersonic { 4 } else { 0 });
+    }
+    // The sweep point at NPR 3.0 equals the single prediction.
+    assert_eq!(sw.points[2].guided_modes, r.guided_modes);
+    // Guided sweeps are bounded.
+    let e = t
+        .sweep_screech(pb::SweepScreechRequest {
+            jet: Some(inch_nozzle(3.0)),
+            variable: pb::SweepVariable::NozzlePressureRatio as i32,
+            values: Some(pb::sweep_screech_request::Values::Range(pb::SweepRange {
+                start: 2.0,
+                stop: 5.0,
+                count: 2001,
+            })),
+            options: Some(options),
+        })
+        .await
+        .unwrap_err();
+    assert_eq!(e.code(), Code::ResourceExhausted);
+}
+
+fn sine(n: usize, fs: f64, f: f64) -> Vec<f64> {
+    // 200 Pa amplitude: a screech tone of about 137 dB (below the 140 dB caution).
+    (0..n).map(|i| 200.0 * (2.0 * PI * f * i as f64 / fs).sin()).collect()
+}
+
+#[tokio::test]
+async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outside_every_band_with_none() {
+    let server = TestServer::start().await;
+    let ch = server.channel().await;
+    let mut t = ToneServiceClient::new(ch.clone());
+    let mut s = SpectrumServiceClient::new(ch);
+    // A cold 25.4 mm nozzle at NPR 3.0 with cells at 0.8 of the vortex sheet: the m = 1 mode
+    // closes in its band (checked here, not assumed).
+    let modes = pb::GuidedModeOptions { spacing_factor: Some(0.8), ..Default::default() };
+    let g = t
+        .guided_modes(pb::GuidedModesRequest {
+            source: Some(pb::guided_modes_request::Source::Jet(inch_nozzle(3.0))),
+            options: Some(modes.clone()),
+            curve_points: Some(0),
+        })
+        .await
+        .unwrap()
+        .into_inner();
+    let (mode, f_stage) = g
+        .modes
+        .iter()
+        .find_map(|m| {
+            let t = m.tones.iter().find(|t| t.outcome == pb::ClosureOutcome::InBand as i32)?;
+            Some((m.mode.unwrap(), t.tone.unwrap().frequency_hz.unwrap()))
+        })
+        .expect("some mode closes in its band");
+    let lowest = g
+        .modes
+        .iter()
+        .filter(|m| m.has_band)
+        .map(|m| m.branch_point.unwrap().frequency_hz.unwrap())
+        .fold(f64::INFINITY, f64::min);
+    let f_none = 0.5 * lowest;
+    let fs = 96_000.0;
+    let n = 1 << 17;
+    let values: Vec<f64> = sine(n, fs, f_stage).iter().zip(sine(n, fs, f_none)).map(|(a, b)| a + b).collect();
+    let req = pb::ExtractTonesRequest {
+        samples: Some(pb::Samples {
+            sample_rate_hz: fs,
+            data: Some(Data::Values(pb::SampleValues { values })),
+            ..Default::default()
+        }),
+        stage_labels: Some(pb::StageLabelOptions { jet: Some(inch_nozzle(3.0)), modes: Some(modes) }),
+        ..Default::default()
+    };
+    let r = s.extract_tones(req).await.unwrap().into_inner();
+    assert_eq!(r.stage_bands.len(), 4);
+    let tones = &r.channels[0].tones;
+    let near = |f: f64| tones.iter().find(|t| (t.frequency_hz - f).abs() < 0.002 * f).unwrap();
+    let staged = near(f_stage);
+    let best = staged.best_stage.as_ref().expect("labelled");
+    assert_eq!(best.mode.unwrap(), mode);
+    assert!(best.relative_deviation.unwrap().abs() < 1e-3, "{best:?}");
+    assert!(best.band_low_hz <= f_stage && f_stage <= best.band_high_hz);
+    let other = near(f_none);
+    assert!(other.best_stage.is_none() && other.stages.is_empty(), "{other:?}");
+    // Stage labels need a round or planar jet.
+    let e = s
+        .extract_tones(pb::ExtractTonesRequest {
+            samples: Some(pb::Samples {
+                sample_rate_hz: fs,
+                data: Some(Data::Values(pb::SampleValues { values: sine(4096, fs, 1000.0) })),
+                ..Default::default()
+            }),
+            stage_labels: Some(pb::StageLabelOptions { jet: None, modes: None }),
+            ..Default::default()
+        })
+        .await
+        .unwrap_err();
+    assert_field(&e, Code::InvalidArgument, "stage_labels.jet");
+}
