@@ -748,11 +748,12 @@ mod tests {
     fn a_tone_at_a_closure_is_labelled_with_its_mode_and_one_outside_every_band_with_none() {
         // Definition of the labels (band membership; issue check "a synthetic tone at a
         // predicted stage frequency is labelled with that stage").
-        let sheet = cold(1.3);
+        // Mj 1.2, cells at 0.8 of the vortex sheet: the m = 0 mode closes in its band.
+        let sheet = cold(1.2);
         let o = ClosureOptions {
             modes: GuidedMode::defaults(true),
             convection_ratio: 0.7,
-            spacing_factor: 1.0,
+            spacing_factor: 0.8,
             cell_modes: 2,
         };
         let preds = predict(&sheet, true, &o);
