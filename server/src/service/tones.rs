@@ -8,8 +8,8 @@ use jetloop_proto::pb::{self, tone_service_server::ToneService};
 use tonic::{Request, Response, Status};
 
 /// Handlers for screech and shock-noise predictions. Single predictions run on the reactor
-/// (microseconds; with guided modes about a millisecond); sweeps (up to 10,000 points) and
-/// guided-mode curves run on the blocking pool.
+/// (microseconds); predictions with guided modes (about a millisecond), sweeps (up to 10,000
+/// points) and guided-mode curves run on the blocking pool.
 #[derive(Debug, Default, Clone, Copy)]
 pub struct Tones;
 
@@ -19,8 +19,13 @@ impl ToneService for Tones {
         &self,
         request: Request<pb::PredictScreechRequest>,
     ) -> Result<Response<pb::PredictScreechResponse>, Status> {
+        let work = super::work_of(&request);
         let q = ScreechQuery::try_from(request.into_inner())?;
-        Ok(Response::new(screech_response(&q)?))
+        if q.settings.guided.is_none() {
+            return Ok(Response::new(screech_response(&q)?));
+        }
+        // Guided modes take about a millisecond: off the reactor.
+        Ok(Response::new(super::blocking("screech prediction", work, move |_| screech_response(&q)).await?))
     }
 
     async fn predict_shock_noise(
