@@ -99,6 +99,17 @@ pub struct TonesCmd {
     /// each tone is then labelled with the screech stages (guided jet modes) it fits.
     #[command(flatten)]
     jet: crate::tones::JetSourceArgs,
+    /// Stage labels: factor on the vortex-sheet shock-cell spacing in the closure (server
+    /// default 1).
+    #[arg(long)]
+    spacing_factor: Option<f64>,
+    /// Stage labels: convection ratio Uc/Uj in the closure (server default 0.7).
+    #[arg(long)]
+    convection_ratio: Option<f64>,
+    /// Stage labels: a tone within this fraction of a band edge still fits the stage (server
+    /// default 0.02).
+    #[arg(long)]
+    band_tolerance: Option<f64>,
 }
 
 /// The stage label of a tone for the table.
@@ -112,10 +123,16 @@ fn stage_text(t: &pb::ExtractedTone) -> String {
             let id = s.mode.as_ref().map(crate::tones::mode_label).unwrap_or_default();
             let letters =
                 if s.customary_stage.is_empty() { String::new() } else { format!(" {}", s.customary_stage) };
-            let dev = s.relative_deviation.map_or(String::new(), |d| format!(", {:+.1} %", 100.0 * d));
+            let dev =
+                s.relative_deviation.map_or(String::new(), |d| format!(", {:+.1} % from closure", 100.0 * d));
+            let near = if s.band_distance > 0.0 {
+                format!(", {:.1} % outside band", 100.0 * s.band_distance)
+            } else {
+                ", in band".to_string()
+            };
             let more =
                 if t.stages.len() > 1 { format!(" (+{} more)", t.stages.len() - 1) } else { String::new() };
-            format!("{id}{letters}{dev}{more}")
+            format!("{id}{letters}{near}{dev}{more}")
         }
     }
 }
@@ -250,7 +267,15 @@ impl Run for TonesCmd {
             max_band_frequency_hz: None,
             psd_output: Some(pb::PsdOutputOptions { include: want_psd, max_points: None }),
             stage_labels: if a.jet.given() {
-                Some(pb::StageLabelOptions { jet: Some(a.jet.input()?), modes: None })
+                Some(pb::StageLabelOptions {
+                    jet: Some(a.jet.input()?),
+                    modes: Some(pb::GuidedModeOptions {
+                        spacing_factor: a.spacing_factor,
+                        convection_ratio: a.convection_ratio,
+                        ..Default::default()
+                    }),
+                    band_tolerance_fraction: a.band_tolerance,
+                })
             } else {
                 None
             },

@@ -215,7 +215,11 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
             data: Some(Data::Values(pb::SampleValues { values })),
             ..Default::default()
         }),
-        stage_labels: Some(pb::StageLabelOptions { jet: Some(inch_nozzle(3.0)), modes: Some(modes) }),
+        stage_labels: Some(pb::StageLabelOptions {
+            jet: Some(inch_nozzle(3.0)),
+            modes: Some(modes),
+            band_tolerance_fraction: None,
+        }),
         ..Default::default()
     };
     let r = s.extract_tones(req).await.unwrap().into_inner();
@@ -226,7 +230,7 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
     let best = staged.best_stage.as_ref().expect("labelled");
     assert_eq!(best.mode.unwrap(), mode);
     assert!(best.relative_deviation.unwrap().abs() < 1e-3, "{best:?}");
-    assert!(best.band_low_hz <= f_stage && f_stage <= best.band_high_hz);
+    assert!(best.band_low_hz <= f_stage && f_stage <= best.band_high_hz && best.band_distance == 0.0);
     let other = near(f_none);
     assert!(other.best_stage.is_none() && other.stages.is_empty(), "{other:?}");
     // Stage labels need a round or planar jet.
@@ -237,7 +241,11 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
                 data: Some(Data::Values(pb::SampleValues { values: sine(4096, fs, 1000.0) })),
                 ..Default::default()
             }),
-            stage_labels: Some(pb::StageLabelOptions { jet: None, modes: None }),
+            stage_labels: Some(pb::StageLabelOptions {
+                jet: None,
+                modes: None,
+                band_tolerance_fraction: None,
+            }),
             ..Default::default()
         })
         .await

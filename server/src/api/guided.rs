@@ -407,6 +407,7 @@ pub struct StageContext {
     scale: Scale,
     round: bool,
     modes: Vec<ModePrediction>,
+    tolerance: f64,
     state_notes: Vec<String>,
 }
 
@@ -420,7 +421,7 @@ pub fn stage_context(
     path: &str,
     defaults: &mut Defaults,
 ) -> Result<StageContext, ApiError> {
-    let pb::StageLabelOptions { jet, modes } = o;
+    let pb::StageLabelOptions { jet, modes, band_tolerance_fraction } = o;
     let jet = resolve_jet(jet, &format!("{path}.jet"))?;
     let mut check = Check::new();
     let Some(scale) = Scale::of_jet(&jet.jet) else {
@@ -437,10 +438,23 @@ pub fn stage_context(
     let sheet = check.range(&format!("{path}.jet"), VortexSheet::of_jet(&jet.jet));
     let options = closure_options(&mut check, defaults, modes, &format!("{path}.modes"), round);
     let state_notes = jet.state.as_ref().map(JetState::notes).unwrap_or_default();
-    let ctx = match (sheet, options) {
-        (Some(sheet), Some(o)) => {
-            Some(StageContext { sheet, scale, round, modes: guided::predict(&sheet, round, &o), state_notes })
-        }
+    let tol = defaults.or(
+        band_tolerance_fraction,
+        &format!("{path}.band_tolerance_fraction"),
+        guided::DEFAULT_BAND_TOLERANCE,
+        "",
+        "measured stages spread by about this much between facilities; the inviscid m = 1 band is often narrower",
+    );
+    let tol = check.range(path, guided::BAND_TOLERANCE.check("band_tolerance_fraction", tol));
+    let ctx = match (sheet, options, tol) {
+        (Some(sheet), Some(o), Some(tolerance)) => Some(StageContext {
+            sheet,
+            scale,
+            round,
+            modes: guided::predict(&sheet, round, &o),
+            tolerance,
+            state_notes,
+        }),
         _ => None,
     };
     check.finish(ctx)
@@ -450,7 +464,7 @@ impl StageContext {
     /// The stages a tone at `f_hz` is compatible with, best first.
     pub fn label(&self, f_hz: f64) -> Vec<pb::StageMatch> {
         let omega = f_hz * 2.0 * std::f64::consts::PI * self.scale.length_m / self.scale.aj_m_s;
-        guided::label_tone(omega, &self.modes)
+        guided::label_tone(omega, &self.modes, self.tolerance)
             .iter()
             .map(|m| {
                 let band = &self.modes[m.index].band;
@@ -463,6 +477,7 @@ impl StageContext {
                     relative_deviation: m.relative_deviation,
                     band_low_hz: self.scale.hz(band.branch.omega),
                     band_high_hz: band.saddle.map_or(f64::NAN, |s| self.scale.hz(s.omega)),
+                    band_distance: m.band_distance,
                 }
             })
             .collect()
@@ -482,7 +497,10 @@ impl StageContext {
     pub fn notes(&self) -> Vec<String> {
         let mut n = self.state_notes.clone();
         n.extend(guided_notes());
-        n.push("Stage labels: a tone is compatible with a mode when its frequency lies in the mode's band; harmonics (order 2 and above) are not labelled.".into());
+        n.push(format!(
+            "Stage labels: a tone is compatible with a mode when its frequency lies in the mode's band or within {} % of a band edge; harmonics (order 2 and above) are not labelled.",
+            100.0 * self.tolerance
+        ));
         n
     }
 }

@@ -560,28 +560,55 @@ pub fn predict(sheet: &VortexSheet, round: bool, o: &ClosureOptions) -> Vec<Mode
         .collect()
 }
 
-/// A stage a measured tone is compatible with: its frequency lies in the mode's band.
+/// A stage a measured tone is compatible with: its frequency lies in the mode's band, or within
+/// a relative tolerance of it.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct StageMatch {
     /// Index of the mode in the prediction list.
     pub index: usize,
     /// The mode.
     pub mode: GuidedMode,
+    /// Relative distance of the tone from the band: 0 inside, else the distance to the nearer
+    /// edge over that edge's frequency.
+    pub band_distance: f64,
     /// Nearest closure tone in the band: (shock-cell mode, dimensionless omega).
     pub closure: Option<(u32, f64)>,
     /// (measured - predicted) / predicted for that closure tone.
     pub relative_deviation: Option<f64>,
 }
 
-/// The modes whose band holds the dimensionless frequency `omega`, best first: by the
-/// smallest |relative deviation| from an in-band closure tone, then modes without one, in
-/// request order. Empty when `omega` lies in no band.
-pub fn label_tone(omega: f64, modes: &[ModePrediction]) -> Vec<StageMatch> {
+/// Allowed relative tolerance on band membership for stage labels.
+pub const BAND_TOLERANCE: Bounds = Bounds::closed(0.0, 0.5, "");
+/// Band tolerance when none is given: 2 %, about the spread of measured stage frequencies
+/// between facilities at one NPR (common practice) and wider than the inviscid m = 1 band
+/// itself, which is often under 1 % wide.
+pub const DEFAULT_BAND_TOLERANCE: f64 = 0.02;
+
+/// Relative distance of `omega` from a band (0 inside); infinite without a band.
+fn band_distance(band: &ModeBand, omega: f64) -> f64 {
+    let Some(s) = band.saddle else { return f64::INFINITY };
+    if omega < band.branch.omega {
+        (band.branch.omega - omega) / band.branch.omega
+    } else if omega > s.omega {
+        (omega - s.omega) / s.omega
+    } else {
+        0.0
+    }
+}
+
+/// The modes whose band holds the dimensionless frequency `omega` or lies within `tolerance`
+/// (relative) of it, best first: inside a band before near one (by distance), then by the
+/// smallest |relative deviation| from an in-band closure tone. Empty when `omega` is near no
+/// band.
+pub fn label_tone(omega: f64, modes: &[ModePrediction], tolerance: f64) -> Vec<StageMatch> {
     let mut out: Vec<StageMatch> = modes
         .iter()
         .enumerate()
-        .filter(|(_, m)| m.band.contains(omega))
-        .map(|(index, m)| {
+        .filter_map(|(index, m)| {
+            let band_distance = band_distance(&m.band, omega);
+            if band_distance > tolerance {
+                return None;
+            }
             let closure = m
                 .closures
                 .iter()
@@ -590,17 +617,18 @@ pub fn label_tone(omega: f64, modes: &[ModePrediction]) -> Vec<StageMatch> {
                     _ => None,
                 })
                 .min_by(|a, b| (a.1 - omega).abs().total_cmp(&(b.1 - omega).abs()));
-            StageMatch {
+            Some(StageMatch {
                 index,
                 mode: m.band.mode,
+                band_distance,
                 closure,
                 relative_deviation: closure.map(|(_, w)| (omega - w) / w),
-            }
+            })
         })
         .collect();
     out.sort_by(|a, b| {
         let key = |m: &StageMatch| m.relative_deviation.map_or(f64::INFINITY, f64::abs);
-        key(a).total_cmp(&key(b))
+        a.band_distance.total_cmp(&b.band_distance).then(key(a).total_cmp(&key(b)))
     });
     out
 }
@@ -761,7 +789,7 @@ mod tests {
         for (i, m) in preds.iter().enumerate() {
             for (_, _, c) in &m.closures {
                 if let Closure::InBand(p) = c {
-                    let l = label_tone(p.omega, &preds);
+                    let l = label_tone(p.omega, &preds, 0.0);
                     assert_eq!(l[0].index, i, "{:?}", m.band.mode);
                     assert!(l[0].relative_deviation.unwrap().abs() < 1e-12);
                     labelled += 1;
@@ -771,7 +799,13 @@ mod tests {
         assert!(labelled > 0);
         // Far below every branch point.
         let lowest = preds.iter().map(|m| m.band.branch.omega).fold(f64::INFINITY, f64::min);
-        assert!(label_tone(0.5 * lowest, &preds).is_empty());
+        assert!(label_tone(0.5 * lowest, &preds, DEFAULT_BAND_TOLERANCE).is_empty());
+        // Just below a branch point: outside the band, inside the tolerance.
+        let b = preds[1].band.branch.omega;
+        assert!(label_tone(0.99 * b, &preds, 0.0).iter().all(|m| m.index != 1));
+        let near = label_tone(0.99 * b, &preds, 0.02);
+        let m = near.iter().find(|m| m.index == 1).unwrap();
+        assert!((m.band_distance - 0.01).abs() < 1e-12);
     }
 
     #[test]

@@ -48,7 +48,9 @@ async fn main() {
     let (s_med, s_min, s_max) = stats(sweep_ms.split_off(2));
     let (p_med, p_min, p_max) = stats(single_ms.split_off(2));
     println!("guided-mode screech map: 100 Mj values x 4 modes (bands, closures for 2 cell modes), {repeats} repeats");
-    println!("  server compute time: median {s_med:.2} ms, min {s_min:.2} ms, max {s_max:.2} ms (target < 100 ms)");
+    println!(
+        "  server compute time: median {s_med:.2} ms, min {s_min:.2} ms, max {s_max:.2} ms (target < 100 ms)"
+    );
     println!("single PredictScreech with the guided model (4 modes), client round trip over loopback");
     println!("  median {p_med:.3} ms, min {p_min:.3} ms, max {p_max:.3} ms (target < 2 ms)");
     server.stop().await;
