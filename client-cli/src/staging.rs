@@ -57,6 +57,14 @@ pub struct FitCmd {
     /// Write an SVG plot of frequency against x, coloured by stage, with the loop models.
     #[arg(long)]
     plot: Option<PathBuf>,
+    /// Label each stage with the screech stage (guided jet mode) its points fit (NPR and Mj
+    /// sweeps; at most 2000 points).
+    #[arg(long)]
+    label_stages: bool,
+    /// Stage labels: factor on the vortex-sheet shock-cell spacing in the closure (server
+    /// default 1).
+    #[arg(long)]
+    spacing_factor: Option<f64>,
 }
 
 fn direction(s: &str) -> Option<pb::SweepDirection> {
@@ -138,6 +146,10 @@ impl Run for FitCmd {
         let req = pb::FitStagesRequest {
             control: control as i32,
             points: points.clone(),
+            stage_labels: a.label_stages.then(|| pb::StageLabelSettings {
+                modes: Some(pb::GuidedModeOptions { spacing_factor: a.spacing_factor, ..Default::default() }),
+                band_tolerance_fraction: None,
+            }),
             jet,
             options: Some(pb::FitOptions {
                 jump_fraction: a.jump_fraction,
@@ -166,9 +178,21 @@ impl Run for FitCmd {
             .col("fixed_delay_s", "tau0 [s]")
             .col("reflector_path_factor", "g")
             .col("rms_relative_error", "rms rel. err.");
+        if a.label_stages {
+            stages = stages.col("stage_label", "guided mode (share of points)");
+        }
         for s in &r.stages {
             let text = |n: &str| find(&s.parameters, n).map(|p| Val::Text(param_text(p)));
-            stages.row(vec![
+            let label = s.best_stage.as_ref().map(|b| {
+                let id = b.mode.as_ref().map(crate::tones::mode_label).unwrap_or_default();
+                let letters = if b.customary_stage.is_empty() {
+                    String::new()
+                } else {
+                    format!(" {}", b.customary_stage)
+                };
+                Val::Text(format!("{id}{letters} ({:.0} %)", 100.0 * s.best_stage_point_fraction))
+            });
+            let mut row = vec![
                 Some(Val::Int(s.stage.into())),
                 Some(Val::Num(s.x_min)),
                 Some(Val::Num(s.x_max)),
@@ -179,7 +203,11 @@ impl Run for FitCmd {
                 text("fixed_delay_s"),
                 text("reflector_path_factor"),
                 s.rms_relative_error.map(Val::Num),
-            ]);
+            ];
+            if a.label_stages {
+                row.push(Some(label.unwrap_or(Val::Text("none".into()))));
+            }
+            stages.row(row);
         }
         let mut jumps = Table::new("jumps", "Jumps")
             .col("direction", "sweep")

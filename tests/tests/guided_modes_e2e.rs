@@ -252,3 +252,71 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
         .unwrap_err();
     assert_field(&e, Code::InvalidArgument, "stage_labels.jet");
 }
+
+#[tokio::test]
+async fn fitted_stages_are_labelled_with_the_mode_their_points_fit() {
+    use jetloop_proto::pb::staging_service_client::StagingServiceClient;
+    let server = TestServer::start().await;
+    let ch = server.channel().await;
+    let mut t = ToneServiceClient::new(ch.clone());
+    let mut st = StagingServiceClient::new(ch);
+    let modes = pb::GuidedModeOptions { spacing_factor: Some(0.8), ..Default::default() };
+    // Points at the m = 1 closure tone of a cold 25.4 mm nozzle over NPR 3.00-3.12 (where it
+    // closes in its band with cells at 0.8 of the vortex sheet; checked, not assumed).
+    let mut points = Vec::new();
+    for k in 0..7 {
+        let npr = 3.0 + 0.02 * f64::from(k);
+        let g = t
+            .guided_modes(pb::GuidedModesRequest {
+                source: Some(pb::guided_modes_request::Source::Jet(inch_nozzle(npr))),
+                options: Some(pb::GuidedModeOptions { modes: vec![round_mode(1, 1)], ..modes.clone() }),
+                curve_points: Some(0),
+            })
+            .await
+            .unwrap()
+            .into_inner();
+        let tone = g.modes[0].tones.iter().find(|t| t.cell_mode == 1).unwrap();
+        assert_eq!(tone.outcome, pb::ClosureOutcome::InBand as i32, "NPR {npr}");
+        points.push(pb::MeasuredTone {
+            x: npr,
+            frequency_hz: tone.tone.unwrap().frequency_hz.unwrap(),
+            ..Default::default()
+        });
+    }
+    let jet = jetloop_tests::fixtures::conditions(jetloop_tests::fixtures::round(0.0254), 3.0);
+    let r = st
+        .fit_stages(pb::FitStagesRequest {
+            control: pb::ControlVariable::NozzlePressureRatio as i32,
+            points,
+            jet: Some(jet.clone()),
+            options: None,
+            stage_labels: Some(pb::StageLabelSettings {
+                modes: Some(modes),
+                band_tolerance_fraction: Some(0.0),
+            }),
+        })
+        .await
+        .unwrap()
+        .into_inner();
+    assert_eq!(r.stages.len(), 1);
+    let s = &r.stages[0];
+    assert_eq!(s.best_stage.as_ref().unwrap().mode.unwrap(), round_mode(1, 1));
+    assert_eq!(s.best_stage_point_fraction, 1.0);
+    assert!(r.points.iter().all(|p| p.best_stage.as_ref().unwrap().relative_deviation.unwrap().abs() < 1e-9));
+    // A plain control variable has no jet to label with.
+    let e = st
+        .fit_stages(pb::FitStagesRequest {
+            control: pb::ControlVariable::Plain as i32,
+            points: vec![
+                pb::MeasuredTone { x: 1.0, frequency_hz: 1000.0, ..Default::default() },
+                pb::MeasuredTone { x: 2.0, frequency_hz: 1010.0, ..Default::default() },
+                pb::MeasuredTone { x: 3.0, frequency_hz: 1020.0, ..Default::default() },
+            ],
+            jet: None,
+            options: None,
+            stage_labels: Some(pb::StageLabelSettings::default()),
+        })
+        .await
+        .unwrap_err();
+    assert_field(&e, Code::InvalidArgument, "stage_labels");
+}

@@ -206,6 +206,7 @@ async fn expired_heavy_calls_leave_no_computation_running() {
             points: jetloop_tests::fixtures::pressure_sweep_points(100_000),
             jet: Some(jetloop_tests::fixtures::conditions(jetloop_tests::fixtures::round(0.0254), 3.0)),
             options: Some(pb::FitOptions { max_loop_order: Some(50), ..Default::default() }),
+            stage_labels: None,
         });
         r.set_timeout(Duration::from_millis(400));
         r

@@ -41,6 +41,7 @@ async fn reflector_sweep_lines_and_model_comparison() {
             points,
             jet: None,
             options: None,
+            stage_labels: None,
         })
         .await
         .unwrap()
@@ -96,6 +97,7 @@ async fn pressure_sweep_over_npr_with_given_source_cell() {
             points,
             jet: Some(jet()),
             options: Some(pb::FitOptions { source_cells: Some(4), ..Default::default() }),
+            stage_labels: None,
         })
         .await
         .unwrap()
@@ -119,7 +121,7 @@ async fn degenerate_input_is_refused_with_the_limit_named() {
                points: Vec<pb::MeasuredTone>,
                jet: Option<pb::JetConditions>,
                options: Option<pb::FitOptions>| {
-        pb::FitStagesRequest { control: control as i32, points, jet, options }
+        pb::FitStagesRequest { control: control as i32, points, jet, options, stage_labels: None }
     };
     let three = || vec![tone(2.5, 4000.0), tone(2.6, 3900.0), tone(2.7, 3800.0)];
     let cases = vec![
@@ -218,6 +220,7 @@ async fn npr_sweep_of_another_gas_uses_that_gas_critical_ratio() {
             points,
             jet: Some(jet),
             options: Some(pb::FitOptions { source_cells: Some(4), ..Default::default() }),
+            stage_labels: None,
         })
         .await
         .expect("gamma 1.2 at NPR 1.8 is supersonic")
@@ -238,6 +241,7 @@ async fn a_bad_point_field_is_named_with_its_full_path() {
             points: vec![tone(1.0, 100.0), tone(2.0, 110.0), tone(3.0, -5.0)],
             jet: None,
             options: None,
+            stage_labels: None,
         })
         .await
         .unwrap_err();

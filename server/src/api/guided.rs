@@ -411,6 +411,27 @@ pub struct StageContext {
     state_notes: Vec<String>,
 }
 
+/// Converts the guided-mode options and band tolerance of stage labels at `path`.
+pub fn label_settings(
+    check: &mut Check,
+    defaults: &mut Defaults,
+    modes: Option<pb::GuidedModeOptions>,
+    band_tolerance_fraction: Option<f64>,
+    path: &str,
+    round: bool,
+) -> Option<(ClosureOptions, f64)> {
+    let options = closure_options(check, defaults, modes, &format!("{path}.modes"), round);
+    let tol = defaults.or(
+        band_tolerance_fraction,
+        &format!("{path}.band_tolerance_fraction"),
+        guided::DEFAULT_BAND_TOLERANCE,
+        "",
+        "measured stages spread by about this much between facilities; the inviscid m = 1 band is often narrower",
+    );
+    let tol = check.range(path, guided::BAND_TOLERANCE.check("band_tolerance_fraction", tol));
+    Some((options?, tol?))
+}
+
 /// Converts `StageLabelOptions` at `path` and computes the bands and closures.
 ///
 /// # Errors
@@ -424,7 +445,7 @@ pub fn stage_context(
     let pb::StageLabelOptions { jet, modes, band_tolerance_fraction } = o;
     let jet = resolve_jet(jet, &format!("{path}.jet"))?;
     let mut check = Check::new();
-    let Some(scale) = Scale::of_jet(&jet.jet) else {
+    if Scale::of_jet(&jet.jet).is_none() {
         check.other(
             format!("{path}.jet"),
             format!(
@@ -432,35 +453,48 @@ pub fn stage_context(
             ),
         );
         return check.finish(None);
-    };
+    }
     defaults.0.extend(jet.defaults.0.iter().cloned());
     let round = matches!(jet.jet.size, JetSize::Round { .. });
-    let sheet = check.range(&format!("{path}.jet"), VortexSheet::of_jet(&jet.jet));
-    let options = closure_options(&mut check, defaults, modes, &format!("{path}.modes"), round);
+    let settings = label_settings(&mut check, defaults, modes, band_tolerance_fraction, path, round);
     let state_notes = jet.state.as_ref().map(JetState::notes).unwrap_or_default();
-    let tol = defaults.or(
-        band_tolerance_fraction,
-        &format!("{path}.band_tolerance_fraction"),
-        guided::DEFAULT_BAND_TOLERANCE,
-        "",
-        "measured stages spread by about this much between facilities; the inviscid m = 1 band is often narrower",
-    );
-    let tol = check.range(path, guided::BAND_TOLERANCE.check("band_tolerance_fraction", tol));
-    let ctx = match (sheet, options, tol) {
-        (Some(sheet), Some(o), Some(tolerance)) => Some(StageContext {
-            sheet,
-            scale,
-            round,
-            modes: guided::predict(&sheet, round, &o),
-            tolerance,
-            state_notes,
-        }),
-        _ => None,
+    let ctx = match settings {
+        Some((o, tol)) => match StageContext::for_jet(&jet.jet, &o, tol, state_notes) {
+            Some(c) => Some(c),
+            None => {
+                check.other(
+                    format!("{path}.jet"),
+                    format!(
+                        "{path}.jet: Mj = {} or its temperature ratio lies outside the guided-mode solver's range \
+                         (Mj in {}, Tj/Ta in {})",
+                        jet.jet.mj,
+                        guided::MACH,
+                        guided::TEMPERATURE_RATIO
+                    ),
+                );
+                None
+            }
+        },
+        None => None,
     };
     check.finish(ctx)
 }
 
 impl StageContext {
+    /// Bands and closures of a round or planar jet; `None` for rectangular jets and jets
+    /// outside the solver's range.
+    pub fn for_jet(
+        jet: &crate::physics::jet::ExpandedJet,
+        o: &ClosureOptions,
+        tolerance: f64,
+        state_notes: Vec<String>,
+    ) -> Option<Self> {
+        let scale = Scale::of_jet(jet)?;
+        let sheet = VortexSheet::of_jet(jet).ok()?;
+        let round = matches!(jet.size, JetSize::Round { .. });
+        Some(Self { sheet, scale, round, modes: guided::predict(&sheet, round, o), tolerance, state_notes })
+    }
+
     /// The stages a tone at `f_hz` is compatible with, best first.
     pub fn label(&self, f_hz: f64) -> Vec<pb::StageMatch> {
         let omega = f_hz * 2.0 * std::f64::consts::PI * self.scale.length_m / self.scale.aj_m_s;

@@ -18,6 +18,20 @@ use jetloop_proto::pb;
 
 /// Most points in one request.
 pub const MAX_POINTS: usize = 100_000;
+/// Most points in one request with stage labels (each point's guided modes take about half a
+/// millisecond).
+pub const MAX_LABELLED_POINTS: usize = 2_000;
+
+/// What stage labels need: the jet conditions (pressure replaced per point for NPR and Mj
+/// sweeps) and the guided-mode settings.
+#[derive(Debug, Clone)]
+struct LabelPlan {
+    gas: Gas,
+    nozzle: jet::Nozzle,
+    op: jet::OperatingPoint,
+    options: crate::physics::guided::ClosureOptions,
+    tolerance: f64,
+}
 
 /// A validated staging question with the physics evaluated at each point.
 #[derive(Debug, Clone)]
@@ -25,6 +39,7 @@ pub struct StagingQuery {
     kind: SweepKind,
     points: Vec<Point>,
     physics: Option<Vec<PointPhysics>>,
+    labels: Option<LabelPlan>,
     config: FitConfig,
     defaults: Defaults,
     started: std::time::Instant,
@@ -50,7 +65,14 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
 
     fn try_from(req: pb::FitStagesRequest) -> Result<Self, ApiError> {
         let started = std::time::Instant::now();
-        let pb::FitStagesRequest { control, points, jet: jet_msg, options } = req;
+        let pb::FitStagesRequest { control, points, jet: jet_msg, options, stage_labels } = req;
+        if stage_labels.is_some() && points.len() > MAX_LABELLED_POINTS {
+            return Err(ApiError::TooLarge {
+                field: "points".into(),
+                limit: format!("{MAX_LABELLED_POINTS} points with stage_labels"),
+                actual: format!("{} points", points.len()),
+            });
+        }
         if points.len() > MAX_POINTS {
             return Err(ApiError::TooLarge {
                 field: "points".into(),
@@ -267,6 +289,8 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
         // Jet physics at each x for pressure sweeps; the ambient sound speed for all kinds.
         let mut a_amb = Gas::AIR.sound_speed(jet::ISA_SEA_LEVEL_TEMPERATURE_K);
         let mut physics = None;
+        let mut pressure_given = false;
+        let mut spec_kept = None;
         let needs_jet = matches!(kind, Some(SweepKind::Npr | SweepKind::Mach));
         match jet_msg {
             None if needs_jet => {
@@ -277,6 +301,7 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
                 // The pressure is replaced by each point's x: fill a placeholder so the
                 // conditions convert.
                 let op = c.operating_point.get_or_insert_with(Default::default);
+                pressure_given = op.pressure.is_some();
                 if op.pressure.is_none() {
                     op.pressure = Some(pb::operating_point::Pressure::NozzlePressureRatio(2.0));
                 }
@@ -289,6 +314,7 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
                     Err(e) => return Err(e),
                     Ok(spec) => {
                         a_amb = spec.op.ambient_gas().sound_speed(spec.op.ambient_temperature_k());
+                        spec_kept = Some((spec.gas, spec.nozzle, spec.op));
                         defaults.0.extend(spec.defaults.0.iter().cloned());
                         if let (true, Some(kind)) = (needs_jet && check.is_clean(), kind) {
                             let xs: Vec<f64> = pts.iter().map(|p| p.x).collect();
@@ -324,9 +350,122 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
             fit_delay,
             a_amb,
         };
-        let q = kind.map(|kind| StagingQuery { kind, points: pts, physics, config, defaults, started });
+        let labels = match stage_labels {
+            None => None,
+            Some(st) => {
+                let pb::StageLabelSettings { modes, band_tolerance_fraction } = st;
+                match (kind, spec_kept) {
+                    (Some(SweepKind::Plain), _) => {
+                        check.other(
+                            "stage_labels",
+                            "stage_labels: a plain control variable gives no jet to label stages with",
+                        );
+                        None
+                    }
+                    (Some(SweepKind::Reflector), _) if !pressure_given => {
+                        check.other(
+                            "jet.operating_point.pressure",
+                            "stage_labels of a reflector sweep need the jet's pressure in jet.operating_point",
+                        );
+                        None
+                    }
+                    (Some(_), None) => {
+                        check.missing("jet", "stage labels need the jet conditions");
+                        None
+                    }
+                    (Some(_), Some((gas, nozzle, op))) => {
+                        let size = jet::jet_state(&gas, &nozzle, &op).size;
+                        if matches!(size, jet::JetSize::Rectangular { .. }) {
+                            check.other(
+                                "stage_labels",
+                                "stage_labels need a round or planar nozzle (guided modes); this one is rectangular",
+                            );
+                            None
+                        } else {
+                            let round = matches!(size, jet::JetSize::Round { .. });
+                            super::guided::label_settings(
+                                &mut check,
+                                &mut defaults,
+                                modes,
+                                band_tolerance_fraction,
+                                "stage_labels",
+                                round,
+                            )
+                            .map(|(options, tolerance)| LabelPlan {
+                                gas,
+                                nozzle,
+                                op,
+                                options,
+                                tolerance,
+                            })
+                        }
+                    }
+                    (None, _) => None,
+                }
+            }
+        };
+        let q =
+            kind.map(|kind| StagingQuery { kind, points: pts, physics, labels, config, defaults, started });
         check.finish(q)
     }
+}
+
+/// The best guided-mode match of each point's tone, from the jet at its x.
+fn label_points(
+    plan: &LabelPlan,
+    kind: SweepKind,
+    points: &[Point],
+    cancel: &Cancel,
+) -> Result<Vec<Option<pb::StageMatch>>, ApiError> {
+    let mut out = Vec::with_capacity(points.len());
+    for p in points {
+        cancel.check().map_err(ApiError::Stopped)?;
+        let npr = match kind {
+            SweepKind::Npr => Some(p.x),
+            SweepKind::Mach => Some(plan.gas.npr_for_mach(p.x)),
+            SweepKind::Reflector | SweepKind::Plain => None,
+        };
+        let op = match npr {
+            Some(n) => plan.op.with_npr(n).ok(),
+            None => Some(plan.op),
+        };
+        let jet = op
+            .and_then(|op| jet::ExpandedJet::from_state(&jet::jet_state(&plan.gas, &plan.nozzle, &op)).ok());
+        let ctx = jet.and_then(|j| {
+            super::guided::StageContext::for_jet(&j, &plan.options, plan.tolerance, Vec::new())
+        });
+        out.push(ctx.and_then(|c| c.label(p.f).into_iter().next()));
+    }
+    Ok(out)
+}
+
+/// The mode most of a stage's points fit, its match at the fitting point nearest the middle of
+/// the stage's x range, and the fraction of points that fit it.
+fn stage_label(
+    members: &[usize],
+    points: &[Point],
+    labels: &[Option<pb::StageMatch>],
+) -> Option<(pb::StageMatch, f64)> {
+    let mut counts: Vec<(pb::GuidedModeId, usize)> = Vec::new();
+    for &i in members {
+        if let Some(m) = labels[i].as_ref().and_then(|l| l.mode) {
+            match counts.iter_mut().find(|(id, _)| *id == m) {
+                Some((_, c)) => *c += 1,
+                None => counts.push((m, 1)),
+            }
+        }
+    }
+    let (mode, count) = counts.into_iter().max_by_key(|(_, c)| *c)?;
+    let (lo, hi) = members
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &i| (a.min(points[i].x), b.max(points[i].x)));
+    let mid = 0.5 * (lo + hi);
+    let best = members
+        .iter()
+        .filter(|&&i| labels[i].as_ref().and_then(|l| l.mode) == Some(mode))
+        .min_by(|&&a, &&b| (points[a].x - mid).abs().total_cmp(&(points[b].x - mid).abs()))
+        .and_then(|&i| labels[i].clone())?;
+    Some((best, count as f64 / members.len() as f64))
 }
 
 fn param_msg(p: &Param) -> pb::FittedParameter {
@@ -353,9 +492,13 @@ fn direction_msg(d: Direction) -> pb::SweepDirection {
 /// # Errors
 /// [`ApiError::Stopped`] once `cancel` is set.
 pub fn staging_response(q: StagingQuery, cancel: &Cancel) -> Result<pb::FitStagesResponse, ApiError> {
-    let StagingQuery { kind, mut points, physics, config, defaults, started } = q;
+    let StagingQuery { kind, mut points, physics, labels, config, defaults, started } = q;
     infer_directions(&mut points);
     let res: StagingResult = fit_stages_until(&points, kind, physics.as_deref(), &config, cancel)?;
+    let point_labels = match &labels {
+        Some(plan) => Some(label_points(plan, kind, &points, cancel)?),
+        None => None,
+    };
     let mut out_points: Vec<pb::PointResult> = points
         .iter()
         .enumerate()
@@ -363,6 +506,7 @@ pub fn staging_response(q: StagingQuery, cancel: &Cancel) -> Result<pb::FitStage
             index: i as u32,
             stage: res.stage_of[i] as u32,
             direction: direction_msg(p.direction) as i32,
+            best_stage: point_labels.as_ref().and_then(|l| l[i].clone()),
             ..Default::default()
         })
         .collect();
@@ -378,6 +522,12 @@ pub fn staging_response(q: StagingQuery, cancel: &Cancel) -> Result<pb::FitStage
             ..Default::default()
         };
         msg.rms_relative_error = st.rms_relative_error(&points);
+        if let Some(l) = &point_labels {
+            if let Some((best, fraction)) = stage_label(&st.points, &points, l) {
+                msg.best_stage = Some(best);
+                msg.best_stage_point_fraction = fraction;
+            }
+        }
         if let Some(fit) = &st.fit {
             for (k, &i) in st.points.iter().enumerate() {
                 let model = fit.model_hz[k];
@@ -450,6 +600,15 @@ pub fn staging_response(q: StagingQuery, cancel: &Cancel) -> Result<pb::FitStage
              neighbouring (n, N) pairs can fit almost equally well; see each stage's alias_resolution."
                 .to_string(),
         );
+    }
+    if let Some(plan) = &labels {
+        used.push(models::GUIDED_JET_MODES);
+        notes.extend(super::guided::guided_notes());
+        notes.push(format!(
+            "Stage labels: each point's tone against the guided-mode bands of the jet at its x \
+             (in a band or within {} % of an edge); a stage takes the mode most of its points fit.",
+            100.0 * plan.tolerance
+        ));
     }
     Ok(pb::FitStagesResponse {
         points: out_points,

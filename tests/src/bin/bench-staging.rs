@@ -65,6 +65,7 @@ async fn main() {
                 source_cells: label.contains("given").then_some(4),
                 ..Default::default()
             }),
+            stage_labels: None,
         };
         let mut t = Vec::new();
         let mut stages = 0;
