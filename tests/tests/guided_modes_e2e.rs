@@ -288,7 +288,7 @@ async fn fitted_stages_are_labelled_with_the_mode_their_points_fit() {
         .fit_stages(pb::FitStagesRequest {
             control: pb::ControlVariable::NozzlePressureRatio as i32,
             points,
-            jet: Some(jet.clone()),
+            jet: Some(jet),
             options: None,
             stage_labels: Some(pb::StageLabelSettings {
                 modes: Some(modes),
