@@ -30,6 +30,19 @@ impl Captured {
         let text = String::from_utf8_lossy(&self.0.lock().expect("log buffer")).to_string();
         text.lines().filter(|l| l.contains(needle)).map(str::to_string).collect()
     }
+
+    /// The lines containing `needle` once at least one is there, or after 5 s: the server
+    /// logs an expiry when its own deadline fires, which may come just after the client's.
+    async fn lines_soon(&self, needle: &str) -> Vec<String> {
+        let give_up = std::time::Instant::now() + Duration::from_secs(5);
+        loop {
+            let l = self.lines(needle);
+            if !l.is_empty() || std::time::Instant::now() > give_up {
+                return l;
+            }
+            tokio::time::sleep(Duration::from_millis(10)).await;
+        }
+    }
 }
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
@@ -54,7 +67,7 @@ async fn failures_and_expiries_are_logged_once_with_method_code_and_peer_and_ref
         .await
         .unwrap_err();
     assert_eq!(e.code(), Code::InvalidArgument);
-    let failed = log.lines("call failed");
+    let failed = log.lines_soon("call failed").await;
     assert_eq!(failed.len(), 1, "{failed:?}");
     assert!(failed[0].contains("/jetloop.v1.GasDynamicsService/NormalShock"), "{}", failed[0]);
     assert!(failed[0].contains("InvalidArgument") && failed[0].contains("127.0.0.1:"), "{}", failed[0]);
@@ -74,7 +87,7 @@ async fn failures_and_expiries_are_logged_once_with_method_code_and_peer_and_ref
     req.set_timeout(Duration::from_millis(5));
     let e = ToneServiceClient::new(ch.clone()).sweep_screech(req).await.unwrap_err();
     assert!(matches!(e.code(), Code::DeadlineExceeded | Code::Cancelled), "{e:?}");
-    let expired = log.lines("call expired");
+    let expired = log.lines_soon("call expired").await;
     assert_eq!(expired.len(), 1, "{expired:?}");
     assert!(expired[0].contains("/jetloop.v1.ToneService/SweepScreech") && expired[0].contains("127.0.0.1:"));
     assert_eq!(log.lines("call failed").len(), 1, "an expiry is not logged twice");

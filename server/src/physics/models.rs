@@ -122,3 +122,9 @@ pub const GUIDED_JET_MODES: Model = Model {
     name: "guided jet modes of the vortex sheet (upstream neutral modes between branch and saddle points; closure omega/Uc - k_s,n = k_guided)",
     reference: "Tam & Hu (1989), J. Fluid Mech. 201, 447-483; Gojon, Bogey & Mihaescu (2018), AIAA J. 56; Mancinelli et al. (2019), Exp. Fluids 60; Edgington-Mitchell (2019), Int. J. Aeroacoust. 18",
 };
+
+/// Welch cross-spectra, coherence and azimuthal decomposition.
+pub const CROSS_SPECTRA: Model = Model {
+    name: "Welch cross-spectral density, magnitude-squared coherence, azimuthal mode decomposition of a microphone ring",
+    reference: "Welch (1967), IEEE Trans. Audio Electroacoust. 15; Bendat & Piersol, Random Data (4th ed., 2010), ch. 9; scipy.signal.csd / coherence",
+};

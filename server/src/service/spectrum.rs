@@ -2,7 +2,9 @@
 
 use super::budget::{Held, SampleBudget};
 use crate::api::error::PreconditionViolation;
-use crate::api::spectrum::{bands_response, held_bytes, tones_response, BandQuery, ToneQuery, ToneStream};
+use crate::api::spectrum::{
+    bands_response, cross_response, held_bytes, tones_response, BandQuery, CrossQuery, ToneQuery, ToneStream,
+};
 use crate::api::ApiError;
 use jetloop_proto::pb::{self, spectrum_service_server::SpectrumService};
 use tonic::{Request, Response, Status, Streaming};
@@ -120,6 +122,22 @@ impl SpectrumService for Spectrum {
         drop(held);
         received?;
         Ok(Response::new(answer.map_err(Status::from)?))
+    }
+
+    async fn cross_spectra(
+        &self,
+        request: Request<pb::CrossSpectraRequest>,
+    ) -> Result<Response<pb::CrossSpectraResponse>, Status> {
+        let work = super::work_of(&request);
+        let req = request.into_inner();
+        let mut held = Held::default();
+        self.budget.take(&mut held, held_bytes(req.samples.as_ref()), "samples")?;
+        let r = super::blocking("cross-channel analysis", work, move |c| {
+            cross_response(&CrossQuery::try_from(req)?.with_cancel(c.clone()))
+        })
+        .await?;
+        drop(held);
+        Ok(Response::new(r))
     }
 
     async fn band_levels(

@@ -30,6 +30,7 @@ pub const MAX_CHANNELS: u32 = 64;
 use crate::dsp::limits::*;
 
 mod bands;
+mod cross;
 mod samples;
 mod stream;
 mod tones;
@@ -37,6 +38,7 @@ mod welch;
 
 use bands::band_summary;
 pub use bands::{bands_response, BandQuery};
+pub use cross::{cross_response, CrossQuery};
 use samples::sample_set_for;
 pub use samples::{held_bytes, sample_set, SampleSet};
 pub use stream::ToneStream;

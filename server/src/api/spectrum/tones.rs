@@ -2,7 +2,7 @@
 
 use super::*;
 
-fn tone_config(check: &mut Check, o: Option<pb::ToneOptions>) -> ToneConfig {
+pub(super) fn tone_config(check: &mut Check, o: Option<pb::ToneOptions>) -> ToneConfig {
     let pb::ToneOptions {
         threshold_db,
         min_separation_hz,
