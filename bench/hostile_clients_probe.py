@@ -196,12 +196,13 @@ def stalled_streams(binary, pb, budget_args):
     s = pb["spectrum_pb2"]
     ch = grpc.insecure_channel(addr, options=[("grpc.max_send_message_length", 1 << 28)])
     stub = pb["spectrum_pb2_grpc"].SpectrumServiceStub(ch)
-    block = np.zeros(1 << 24, dtype="<f4").tobytes()  # 64 MiB
+    block = np.zeros(1 << 23, dtype="<f4").tobytes()  # 32 MiB (under the 64 MiB message limit)
     stall = threading.Event()
     results = []
 
     def gen():
         yield s.SampleBlock(request=s.ExtractTonesRequest(samples=s.Samples(sample_rate_hz=204800, raw=s.RawSamples(format=s.SAMPLE_FORMAT_F32_LE))))
+        yield s.SampleBlock(frames=block)
         yield s.SampleBlock(frames=block)
         stall.wait()
 
@@ -226,7 +227,7 @@ def stalled_streams(binary, pb, budget_args):
     ch.close()
     stop(p)
     codes = {c: results.count(c) for c in set(results)}
-    return f"8 streams x 64 MiB then stalled: RSS baseline {base:.0f} MiB, peak {peak:.0f} MiB; outcomes {codes}"
+    return f"8 streams x 2 blocks of 32 MiB then stalled: RSS baseline {base:.0f} MiB, peak {peak:.0f} MiB; outcomes {codes}"
 
 
 def expired_calls(binary, pb):
@@ -269,10 +270,12 @@ def expired_calls(binary, pb):
     return f"normal heavy call {normal:.2f} s; CPU spent in the 10 s after 12 expired calls {orphan:.2f} s; next heavy call {after:.2f} s"
 
 
-def shutdown_idle(binary):
+def shutdown_idle(binary, pb):
     p, addr = start(binary)
+    health_and_call(addr, pb)  # the server is up and its signal handler installed
     host, port = addr.rsplit(":", 1)
     sock = socket.create_connection((host, int(port)))
+    time.sleep(0.5)
     t = time.time()
     p.send_signal(signal.SIGTERM)
     try:
@@ -301,7 +304,7 @@ def main():
             ("never-reading client", lambda: slow_reader(binary, pb)),
             ("stalled streams", lambda: stalled_streams(binary, pb, budget_args(binary))),
             ("expired calls", lambda: expired_calls(binary, pb)),
-            ("shutdown, idle connection", lambda: shutdown_idle(binary)),
+            ("shutdown, idle connection", lambda: shutdown_idle(binary, pb)),
         ]:
             try:
                 print(f"  {name}: {f()}", flush=True)

@@ -1,7 +1,8 @@
 //! Accepting connections without letting careless or hostile clients take the server down:
-//! - **a cap on open connections**: beyond it a new connection is accepted and closed at once
-//!   (a summary is logged once per interval), so file descriptors remain for health checks
-//!   and real calls;
+//! - **a cap on open connections**: at the cap a new connection takes the slot of the oldest
+//!   connection that has not sent a byte yet (that one is closed), so a flood of silent
+//!   connections cannot keep health checks and real calls out; when every connection has
+//!   spoken, the new one is closed at once (a summary is logged once per interval);
 //! - **a handshake timeout**: a connection that has sent no byte after it is closed, so bare
 //!   TCP connections cannot hold slots;
 //! - **back-off on accept errors** (e.g. the process is out of file descriptors): the accept
@@ -9,10 +10,12 @@
 //!
 //! HTTP/2 keepalive pings (set on the server builder) close connections whose peer is gone.
 
+use std::collections::VecDeque;
 use std::future::Future;
 use std::io;
 use std::pin::Pin;
-use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{Arc, Mutex, Weak};
 use std::task::{Context, Poll};
 use std::time::{Duration, Instant};
 use tokio::io::{AsyncRead, AsyncWrite, ReadBuf};
@@ -62,6 +65,8 @@ pub fn incoming(
         slots: Arc::new(Semaphore::new(limits.max_connections.clamp(1, Semaphore::MAX_PERMITS))),
         limits,
         refused: Summary::default(),
+        evicted: Summary::default(),
+        silent: VecDeque::new(),
         errors: Summary::default(),
         backoff: None,
         stop: Box::pin(stop),
@@ -74,6 +79,8 @@ pub struct Incoming {
     slots: Arc<Semaphore>,
     limits: ConnectionLimits,
     refused: Summary,
+    evicted: Summary,
+    silent: VecDeque<Silent>,
     errors: Summary,
     backoff: Option<Pin<Box<tokio::time::Sleep>>>,
     stop: Pin<Box<dyn std::future::Future<Output = ()> + Send>>,
@@ -106,7 +113,11 @@ impl tokio_stream::Stream for Incoming {
             match listener.poll_accept(cx) {
                 Poll::Pending => return Poll::Pending,
                 Poll::Ready(Ok((stream, _))) => {
-                    let Ok(slot) = this.slots.clone().try_acquire_owned() else {
+                    let slot = match this.slots.clone().try_acquire_owned() {
+                        Ok(p) => Some(p),
+                        Err(_) => evict_silent(&mut this.silent, &mut this.evicted),
+                    };
+                    let Some(slot) = slot else {
                         drop(stream);
                         let max = this.limits.max_connections;
                         this.refused.note(|n, s| {
@@ -122,7 +133,9 @@ impl tokio_stream::Stream for Incoming {
                     // TCP_NODELAY: without it Nagle's algorithm and delayed ACKs stall
                     // multi-megabyte uploads for tens of milliseconds.
                     let _ = stream.set_nodelay(true);
-                    return Poll::Ready(Some(Ok(Conn::new(stream, slot, this.limits.handshake_timeout))));
+                    let conn = Conn::new(stream, slot, this.limits.handshake_timeout);
+                    remember(&mut this.silent, this.limits.max_connections, &conn);
+                    return Poll::Ready(Some(Ok(conn)));
                 }
                 Poll::Ready(Err(e)) => {
                     // Out of file descriptors and the like: wait instead of spinning.
@@ -138,6 +151,51 @@ impl tokio_stream::Stream for Incoming {
             }
         }
     }
+}
+
+/// What the accept loop keeps of a connection that may still be silent.
+#[derive(Debug)]
+struct Silent {
+    spoke: Weak<AtomicBool>,
+    slot: Weak<Mutex<Option<OwnedSemaphorePermit>>>,
+    kill: ConnKill,
+}
+
+/// Notes a new connection as silent until it speaks; forgets connections that spoke or closed
+/// (bounded: never more entries than twice the cap, plus one).
+fn remember(silent: &mut VecDeque<Silent>, max: usize, c: &Conn) {
+    if silent.len() >= 2 * max {
+        silent.retain(|s| s.spoke.upgrade().is_some_and(|b| !b.load(Ordering::SeqCst)));
+    }
+    silent.push_back(Silent {
+        spoke: Arc::downgrade(&c.spoke),
+        slot: Arc::downgrade(&c.slot),
+        kill: c.info.kill.clone(),
+    });
+}
+
+/// At the cap: closes the oldest connection that has not spoken and hands its slot over.
+fn evict_silent(silent: &mut VecDeque<Silent>, evicted: &mut Summary) -> Option<OwnedSemaphorePermit> {
+    while let Some(s) = silent.pop_front() {
+        let (Some(spoke), Some(slot)) = (s.spoke.upgrade(), s.slot.upgrade()) else { continue };
+        if spoke.load(Ordering::SeqCst) {
+            continue;
+        }
+        // A poisoned lock only means a connection task panicked; the permit is still valid.
+        let permit = slot.lock().unwrap_or_else(|e| e.into_inner()).take();
+        if let Some(p) = permit {
+            s.kill.kill();
+            evicted.note(|n, w| {
+                tracing::info!(
+                    evicted = n,
+                    window_s = w,
+                    "silent connections closed to make room at the connection limit"
+                )
+            });
+            return Some(p);
+        }
+    }
+    None
 }
 
 /// Events counted and logged at most once per [`LOG_INTERVAL`].
@@ -164,7 +222,11 @@ impl Summary {
 #[derive(Debug)]
 pub struct Conn {
     inner: TcpStream,
-    _slot: OwnedSemaphorePermit,
+    /// The slot under the cap (taken over by a newer connection if this one is evicted while
+    /// silent).
+    slot: Arc<Mutex<Option<OwnedSemaphorePermit>>>,
+    /// Set at the first byte received.
+    spoke: Arc<AtomicBool>,
     handshake: Option<Pin<Box<tokio::time::Sleep>>>,
     info: ConnInfo,
 }
@@ -176,7 +238,13 @@ impl Conn {
             kill: ConnKill::default(),
             written: Arc::default(),
         };
-        Self { inner, _slot: slot, handshake: Some(Box::pin(tokio::time::sleep(timeout))), info }
+        Self {
+            inner,
+            slot: Arc::new(Mutex::new(Some(slot))),
+            spoke: Arc::default(),
+            handshake: Some(Box::pin(tokio::time::sleep(timeout))),
+            info,
+        }
     }
 
     fn killed(&self, cx: &Context<'_>) -> bool {
@@ -202,14 +270,14 @@ pub struct ConnKill(Arc<KillState>);
 
 #[derive(Debug, Default)]
 struct KillState {
-    set: std::sync::atomic::AtomicBool,
+    set: AtomicBool,
     waker: std::sync::Mutex<Option<std::task::Waker>>,
 }
 
 impl ConnKill {
     /// Closes the connection.
     pub fn kill(&self) {
-        self.0.set.store(true, std::sync::atomic::Ordering::SeqCst);
+        self.0.set.store(true, Ordering::SeqCst);
         // A poisoned lock only means a connection task panicked; the waker is still usable.
         if let Some(w) = self.0.waker.lock().unwrap_or_else(|e| e.into_inner()).take() {
             w.wake();
@@ -218,11 +286,11 @@ impl ConnKill {
 
     /// True once killed; otherwise remembers the connection task's waker.
     fn check(&self, cx: &Context<'_>) -> bool {
-        if self.0.set.load(std::sync::atomic::Ordering::SeqCst) {
+        if self.0.set.load(Ordering::SeqCst) {
             return true;
         }
         *self.0.waker.lock().unwrap_or_else(|e| e.into_inner()) = Some(cx.waker().clone());
-        self.0.set.load(std::sync::atomic::Ordering::SeqCst)
+        self.0.set.load(Ordering::SeqCst)
     }
 }
 
@@ -250,7 +318,9 @@ impl AsyncRead for Conn {
         let before = buf.filled().len();
         let r = Pin::new(&mut self.inner).poll_read(cx, buf);
         if matches!(r, Poll::Ready(Ok(()))) && buf.filled().len() > before {
-            self.handshake = None; // the client has spoken
+            if self.handshake.take().is_some() {
+                self.spoke.store(true, Ordering::SeqCst); // the client has spoken
+            }
             return r;
         }
         if let (Poll::Pending, Some(timer)) = (&r, self.handshake.as_mut()) {
@@ -272,7 +342,7 @@ impl AsyncWrite for Conn {
         }
         let r = Pin::new(&mut self.inner).poll_write(cx, buf);
         if let Poll::Ready(Ok(n)) = r {
-            self.info.written.fetch_add(n as u64, std::sync::atomic::Ordering::SeqCst);
+            self.info.written.fetch_add(n as u64, Ordering::SeqCst);
         }
         r
     }
@@ -295,7 +365,7 @@ impl AsyncWrite for Conn {
         }
         let r = Pin::new(&mut self.inner).poll_write_vectored(cx, bufs);
         if let Poll::Ready(Ok(n)) = r {
-            self.info.written.fetch_add(n as u64, std::sync::atomic::Ordering::SeqCst);
+            self.info.written.fetch_add(n as u64, Ordering::SeqCst);
         }
         r
     }

@@ -74,3 +74,35 @@ async fn a_client_that_speaks_keeps_its_connection_past_the_handshake_timeout() 
     }
     server.stop().await;
 }
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn health_and_calls_answer_while_silent_connections_hold_every_slot() {
+    // Reproduces: with the cap reached by connections that never speak (and a handshake
+    // timeout far away), a new client was closed at once, so health and every call failed
+    // for as long as the flood lasted. Now the oldest silent connection gives up its slot.
+    let server = TestServer::start_with_options(ServeOptions {
+        drain_notice: Duration::ZERO,
+        connections: ConnectionLimits { max_connections: 16, handshake_timeout: Duration::from_secs(60) },
+        ..ServeOptions::default()
+    })
+    .await;
+    let mut bare = Vec::new();
+    for _ in 0..64 {
+        bare.push(tokio::net::TcpStream::connect(server.addr).await.expect("TCP connect"));
+    }
+    let t = Instant::now();
+    let ch = server.channel().await;
+    let h = HealthClient::new(ch.clone())
+        .check(HealthCheckRequest { service: String::new() })
+        .await
+        .expect("health answers while silent connections fill the cap");
+    assert_eq!(h.into_inner().status, ServingStatus::Serving as i32);
+    let r = GasDynamicsServiceClient::new(ch)
+        .normal_shock(pb::NormalShockRequest { gamma: None, upstream_mach_number: 2.0 })
+        .await
+        .expect("a call succeeds while silent connections fill the cap");
+    assert!((r.into_inner().downstream_mach_number - 0.577_35).abs() < 1e-5); // NACA 1135
+    assert!(t.elapsed() < Duration::from_secs(5), "took {:?}", t.elapsed());
+    drop(bare);
+    server.stop().await;
+}
