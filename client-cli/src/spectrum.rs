@@ -110,6 +110,67 @@ pub struct TonesCmd {
     /// default 0.02).
     #[arg(long)]
     band_tolerance: Option<f64>,
+    /// Microphone azimuths in degrees, one per channel, comma separated: adds the cross-channel
+    /// analysis (phase and coherence of every channel against the reference at each tone, and
+    /// the azimuthal mode of a ring, or the symmetry of a pair).
+    #[arg(long, value_delimiter = ',', allow_negative_numbers = true)]
+    azimuths_deg: Vec<f64>,
+    /// Cross-channel analysis without positions (phase and coherence; pair symmetry for two
+    /// channels).
+    #[arg(long)]
+    cross: bool,
+    /// Reference channel of the cross-channel analysis (server default 0).
+    #[arg(long)]
+    reference_channel: Option<u32>,
+}
+
+fn pattern_name(p: i32) -> &'static str {
+    match pb::AzimuthalPattern::try_from(p) {
+        Ok(pb::AzimuthalPattern::Axisymmetric) => "axisymmetric",
+        Ok(pb::AzimuthalPattern::Standing) => "standing (flapping)",
+        Ok(pb::AzimuthalPattern::SpinningIncreasing) => "spinning towards increasing azimuth (helical)",
+        Ok(pb::AzimuthalPattern::SpinningDecreasing) => "spinning towards decreasing azimuth (helical)",
+        _ => "?",
+    }
+}
+
+/// The cross-channel report: one row per tone of the reference channel.
+fn cross_report(r: &pb::CrossSpectraResponse) -> Report {
+    let mut t =
+        Table::new("cross_tones", format!("Cross-channel, reference channel {}", r.reference_channel))
+            .col("frequency_hz", "f [Hz]")
+            .col("level_db", "L [dB re 20 uPa]")
+            .col("channels", "channel: phase [deg] / coherence")
+            .col("mode", "mode");
+    for x in &r.tones {
+        let chans: Vec<String> = x
+            .channels
+            .iter()
+            .map(|c| format!("{}: {:+.1} / {:.3}", c.channel, c.phase_deg, c.coherence))
+            .collect();
+        let mode = match (&x.modes, &x.pair) {
+            (Some(m), _) => format!(
+                "m = {} {} ({:.0} % of energy, spin ratio {:+.2})",
+                m.dominant_order,
+                pattern_name(m.pattern),
+                100.0 * m.dominant_share,
+                m.spin_ratio
+            ),
+            (None, Some(p)) => format!(
+                "{} (confidence {:.2})",
+                if p.symmetric { "symmetric" } else { "antisymmetric" },
+                p.confidence
+            ),
+            _ => String::new(),
+        };
+        t.row(vec![
+            Some(Val::Num(x.frequency_hz)),
+            Some(Val::Num(x.level_db)),
+            Some(Val::Text(chans.join("; "))),
+            Some(Val::Text(mode)),
+        ]);
+    }
+    Report::new("-- cross-channel").table(t)
 }
 
 /// The stage label of a tone for the table.
@@ -251,6 +312,7 @@ impl Run for TonesCmd {
     async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
         let (ch, a) = (ctx.channel().await?, self);
         let samples = a.input.read()?;
+        let cross_samples = (a.cross || !a.azimuths_deg.is_empty()).then(|| samples.clone());
         let want_psd = a.plot.is_some() || a.psd_csv.is_some();
         let req = pb::ExtractTonesRequest {
             samples: Some(samples),
@@ -423,6 +485,35 @@ impl Run for TonesCmd {
                 }
             }
             top = top.child(rep);
+        }
+        if let Some(samples) = cross_samples {
+            let positions = a
+                .azimuths_deg
+                .iter()
+                .map(|&azimuth_deg| pb::MicrophonePosition {
+                    azimuth_deg,
+                    polar_angle_deg: None,
+                    distance_m: None,
+                })
+                .collect();
+            let s = spinner("cross-channel analysis on the server");
+            let x = client
+                .cross_spectra(pb::CrossSpectraRequest {
+                    samples: Some(samples),
+                    welch: Some(a.welch.options()),
+                    tones: Some(pb::ToneOptions {
+                        threshold_db: a.threshold_db,
+                        min_separation_hz: a.min_separation_hz,
+                        max_tones: a.max_tones,
+                        ..Default::default()
+                    }),
+                    reference_channel: a.reference_channel,
+                    positions,
+                    spectra_max_points: None,
+                })
+                .await;
+            s.finish_and_clear();
+            top = top.child(cross_report(&x?.into_inner()));
         }
         Ok(top.provenance(r.provenance))
     }

@@ -97,8 +97,15 @@ impl tokio_stream::Stream for Incoming {
 
     fn poll_next(mut self: Pin<&mut Self>, cx: &mut Context<'_>) -> Poll<Option<Self::Item>> {
         let this = &mut *self;
-        if this.stop.as_mut().poll(cx).is_ready() {
+        if this.listener.is_some() && this.stop.as_mut().poll(cx).is_ready() {
             this.listener = None; // closes the listening socket now
+                                  // Connections that never spoke have no HTTP/2 session to drain: close them now
+                                  // rather than let them hold the shutdown until their handshake timeout.
+            for s in this.silent.drain(..) {
+                if s.spoke.upgrade().is_some_and(|b| !b.load(Ordering::SeqCst)) {
+                    s.kill.kill();
+                }
+            }
         }
         let Some(listener) = this.listener.as_ref() else {
             return Poll::Ready(None);
@@ -159,6 +166,23 @@ struct Silent {
     spoke: Weak<AtomicBool>,
     slot: Weak<Mutex<Option<OwnedSemaphorePermit>>>,
     kill: ConnKill,
+}
+
+/// Closes every connection that has not spoken: it has no HTTP/2 session to drain, so at
+/// shutdown it would otherwise hold the server until its handshake timeout.
+fn close_silent(silent: &mut VecDeque<Silent>) {
+    for s in silent.drain(..) {
+        if s.spoke.upgrade().is_some_and(|b| !b.load(Ordering::SeqCst)) {
+            s.kill.kill();
+        }
+    }
+}
+
+impl Drop for Incoming {
+    /// The server stops accepting (shutdown): silent connections are closed at once.
+    fn drop(&mut self) {
+        close_silent(&mut self.silent);
+    }
 }
 
 /// Notes a new connection as silent until it speaks; forgets connections that spoke or closed

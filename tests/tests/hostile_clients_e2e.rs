@@ -236,3 +236,30 @@ async fn expired_heavy_calls_leave_no_computation_running() {
     assert_eq!(running, 0, "computations still running {:?} after their deadlines", answered.elapsed());
     server.stop().await;
 }
+
+#[tokio::test]
+async fn a_silent_connection_does_not_hold_the_shutdown_until_its_handshake_timeout() {
+    // Reproduces (measured with bench/hostile_clients_probe.py): a bare TCP connection that
+    // never sent a byte kept the release server's shutdown waiting until its handshake timeout
+    // (9.5 s of the 10 s default). Now it is closed when accepting ends, so with a long drain
+    // time and a longer handshake timeout the server still ends right after the notice.
+    let notice = Duration::from_millis(200);
+    let mut server = TestServer::start_with_options(ServeOptions {
+        drain_notice: notice,
+        drain: Duration::from_secs(20),
+        connections: jetloop_server::connections::ConnectionLimits {
+            max_connections: 64,
+            handshake_timeout: Duration::from_secs(60),
+        },
+        ..ServeOptions::default()
+    })
+    .await;
+    let silent = tokio::net::TcpStream::connect(server.addr).await.expect("bare TCP connection");
+    let asked = Instant::now();
+    server.begin_shutdown();
+    tokio::time::timeout(Duration::from_secs(5), server.stop())
+        .await
+        .expect("the silent connection held the shutdown");
+    assert!(asked.elapsed() < notice + Duration::from_secs(2), "took {:?}", asked.elapsed());
+    drop(silent);
+}
