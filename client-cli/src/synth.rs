@@ -40,6 +40,28 @@ pub struct SynthCmd {
     /// Random seed.
     #[arg(long, default_value_t = 1)]
     seed: u64,
+    /// Microphones equally spaced on a ring around the jet (azimuths 360 j / M degrees), one
+    /// WAV channel each; 1 writes a single microphone.
+    #[arg(long, default_value_t = 1)]
+    ring: u32,
+    /// Azimuthal pattern of the screech tone on the ring.
+    #[arg(long, value_enum, default_value = "spinning")]
+    pattern: PatternArg,
+    /// Azimuthal order m of the tone (its h-th harmonic has order h m); a negative order spins
+    /// towards decreasing azimuth.
+    #[arg(long, default_value_t = 1, allow_negative_numbers = true)]
+    order: i32,
+}
+
+/// Azimuthal pattern of the synthesized tone.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum PatternArg {
+    /// cos(omega t - m theta): helical, spinning towards increasing azimuth for m > 0.
+    Spinning,
+    /// cos(m theta) cos(omega t): flapping, standing.
+    Standing,
+    /// The same at every azimuth (m ignored).
+    Axisymmetric,
 }
 
 fn rms_of(db: f64) -> f64 {
@@ -62,6 +84,9 @@ impl Run for SynthCmd {
                 "--screech-hz and --hump-hz must lie between 0 and half the sample rate".into(),
             ));
         }
+        if !(1..=64).contains(&a.ring) {
+            return Err(Failure::Usage("--ring must be 1 to 64 microphones".into()));
+        }
         let n = (a.seconds * fs) as usize;
         let mut state = a.seed.max(1);
         let mut gauss = move || {
@@ -74,29 +99,44 @@ impl Run for SynthCmd {
             let (u1, u2) = (u(), u());
             (-2.0 * u1.ln()).sqrt() * (2.0 * PI * u2).cos()
         };
-        // Hump: white noise through a two-pole resonance, scaled to its overall level.
+        let mics = a.ring as usize;
+        let azimuths: Vec<f64> = (0..mics).map(|j| 2.0 * PI * j as f64 / mics as f64).collect();
+        // Hump: white noise through a two-pole resonance, scaled to its overall level; each
+        // microphone has its own hump and background noise.
         let (rr, th) = (0.995, 2.0 * PI * a.hump_hz / fs);
         let (a1, a2) = (2.0 * rr * th.cos(), -rr * rr);
-        let mut hump = vec![0.0; n];
-        for k in 0..n {
-            let y1 = if k >= 1 { hump[k - 1] } else { 0.0 };
-            let y2 = if k >= 2 { hump[k - 2] } else { 0.0 };
-            hump[k] = gauss() + a1 * y1 + a2 * y2;
-        }
-        let hr = (hump.iter().map(|v| v * v).sum::<f64>() / n as f64).sqrt();
-        let (hump_k, noise_sigma) = (rms_of(a.hump_db) / hr, rms_of(a.noise_db));
-        let mut x = vec![0.0f64; n];
-        for (k, v) in x.iter_mut().enumerate() {
-            let t = k as f64 / fs;
-            let mut s = hump_k * hump[k] + noise_sigma * gauss();
-            for h in 1..=a.harmonics {
-                let amp = rms_of(a.screech_db - 9.0 * f64::from(h - 1)) * 2f64.sqrt();
-                if f64::from(h) * a.screech_hz < fs / 2.0 {
-                    s += amp * (2.0 * PI * f64::from(h) * a.screech_hz * t + 0.7 * f64::from(h)).sin();
-                }
+        let mut chans = Vec::with_capacity(mics);
+        for &theta in &azimuths {
+            let mut hump = vec![0.0; n];
+            for k in 0..n {
+                let y1 = if k >= 1 { hump[k - 1] } else { 0.0 };
+                let y2 = if k >= 2 { hump[k - 2] } else { 0.0 };
+                hump[k] = gauss() + a1 * y1 + a2 * y2;
             }
-            *v = s;
+            let hr = (hump.iter().map(|v| v * v).sum::<f64>() / n as f64).sqrt();
+            let (hump_k, noise_sigma) = (rms_of(a.hump_db) / hr, rms_of(a.noise_db));
+            let mut x = vec![0.0f64; n];
+            for (k, v) in x.iter_mut().enumerate() {
+                let t = k as f64 / fs;
+                let mut s = hump_k * hump[k] + noise_sigma * gauss();
+                for h in 1..=a.harmonics {
+                    let amp = rms_of(a.screech_db - 9.0 * f64::from(h - 1)) * 2f64.sqrt();
+                    if f64::from(h) * a.screech_hz < fs / 2.0 {
+                        let wt = 2.0 * PI * f64::from(h) * a.screech_hz * t + 0.7 * f64::from(h);
+                        let m = f64::from(a.order) * f64::from(h);
+                        s += amp
+                            * match a.pattern {
+                                PatternArg::Spinning => (wt - m * theta).cos(),
+                                PatternArg::Standing => (m * theta).cos() * wt.cos(),
+                                PatternArg::Axisymmetric => wt.cos(),
+                            };
+                    }
+                }
+                *v = s;
+            }
+            chans.push(x);
         }
+        let x: Vec<f64> = (0..n).flat_map(|k| chans.iter().map(move |c| c[k])).collect();
         let peak = x.iter().fold(0.0f64, |m, v| m.max(v.abs()));
         if peak >= a.full_scale_pa {
             return Err(Failure::Usage(format!(
@@ -105,7 +145,7 @@ impl Run for SynthCmd {
             )));
         }
         let spec = hound::WavSpec {
-            channels: 1,
+            channels: a.ring as u16,
             sample_rate: a.sample_rate_hz,
             bits_per_sample: 32,
             sample_format: hound::SampleFormat::Float,
@@ -123,10 +163,22 @@ impl Run for SynthCmd {
             .num("screech_db", "fundamental level", a.screech_db, "dB re 20 uPa")
             .num("hump_hz", "shock-noise hump centre", a.hump_hz, "Hz")
             .num("full_scale_pa", "full scale (use --pa-per-unit)", a.full_scale_pa, "Pa")
+            .int("microphones", "microphones on the ring", u64::from(a.ring), "")
             .text(
                 "analyse_with",
                 "analyse with",
-                format!("jetloop tones {} --pa-per-unit {}", a.out.display(), a.full_scale_pa),
+                if mics > 1 {
+                    let az: Vec<String> =
+                        (0..mics).map(|j| format!("{}", 360.0 * j as f64 / mics as f64)).collect();
+                    format!(
+                        "jetloop tones {} --pa-per-unit {} --azimuths-deg {}",
+                        a.out.display(),
+                        a.full_scale_pa,
+                        az.join(",")
+                    )
+                } else {
+                    format!("jetloop tones {} --pa-per-unit {}", a.out.display(), a.full_scale_pa)
+                },
             ))
     }
 }
