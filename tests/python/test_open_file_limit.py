@@ -44,3 +44,47 @@ def test_health_and_calls_answer_beyond_the_open_file_limit(pb):
             s.close()
         proc.terminate()
         proc.wait(timeout=30)
+
+
+def _cpu_seconds(pid):
+    import os
+
+    with open(f"/proc/{pid}/stat") as f:
+        parts = f.read().rsplit(")", 1)[1].split()
+    return (int(parts[11]) + int(parts[12])) / os.sysconf("SC_CLK_TCK")
+
+
+@pytest.mark.skipif(shutil.which("prlimit") is None, reason="prlimit (util-linux) not installed")
+def test_accept_errors_back_off_instead_of_spinning(pb):
+    """With the connection cap set above the open-file limit, accepting fails with EMFILE once
+    the descriptors run out; the accept loop must wait between attempts (the server used to
+    spin a whole core, silently). Check: the server's own CPU time over 2 s of held
+    connections stays below a third of one core (a spin uses all of it)."""
+    import time
+
+    proc = subprocess.Popen(
+        ["prlimit", "--nofile=128", "--", str(_server_binary()), "--listen", "127.0.0.1:0",
+         "--max-connections", "1000", "--handshake-timeout-s", "60"],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.DEVNULL,
+        text=True,
+    )
+    socks = []
+    try:
+        addr = proc.stdout.readline().strip().rsplit(" ", 1)[1]
+        host, port = addr.rsplit(":", 1)
+        for _ in range(300):
+            try:
+                socks.append(socket.create_connection((host, int(port)), timeout=2))
+            except OSError:
+                break
+        time.sleep(0.5)
+        c0, t0 = _cpu_seconds(proc.pid), time.monotonic()
+        time.sleep(2.0)
+        share = (_cpu_seconds(proc.pid) - c0) / (time.monotonic() - t0)
+        assert share < 0.33, f"server used {share:.0%} of a core while the descriptors were exhausted"
+    finally:
+        for s in socks:
+            s.close()
+        proc.terminate()
+        proc.wait(timeout=30)
