@@ -222,8 +222,30 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
         }),
         ..Default::default()
     };
+    // The same question as a block stream (raw f32 frames after the first message) must
+    // carry the same labels.
+    let Some(Data::Values(v)) = req.samples.as_ref().and_then(|x| x.data.clone()) else { unreachable!() };
+    let raw: Vec<u8> = v.values.iter().flat_map(|x| (*x as f32).to_le_bytes()).collect();
+    let mut first = req.clone();
+    first.samples = Some(pb::Samples {
+        sample_rate_hz: fs,
+        data: Some(Data::Raw(pb::RawSamples {
+            format: pb::SampleFormat::F32Le as i32,
+            data: Vec::new().into(),
+        })),
+        ..Default::default()
+    });
+    let msgs = vec![
+        pb::SampleBlock { request: Some(first), ..Default::default() },
+        pb::SampleBlock { frames: raw.into(), ..Default::default() },
+    ];
+    let streamed = s.extract_tones_stream(tokio_stream::iter(msgs)).await.unwrap().into_inner();
     let r = s.extract_tones(req).await.unwrap().into_inner();
     assert_eq!(r.stage_bands.len(), 4);
+    let best_of = |x: &pb::ExtractTonesResponse| -> Vec<Option<pb::GuidedModeId>> {
+        x.channels[0].tones.iter().map(|t| t.best_stage.as_ref().and_then(|b| b.mode)).collect()
+    };
+    assert_eq!(best_of(&streamed), best_of(&r), "a stream labels its tones as one request does");
     let tones = &r.channels[0].tones;
     let near = |f: f64| tones.iter().find(|t| (t.frequency_hz - f).abs() < 0.002 * f).unwrap();
     let staged = near(f_stage);

@@ -406,7 +406,7 @@ impl VortexSheet {
         let lb = branch.lam;
         // Coarse scan for the maximum of omega along the branch, then the zero of
         // d omega / d lam (central differences) bracketed around it.
-        const SCAN: usize = 12;
+        const SCAN: usize = 8;
         let span = hi - lb;
         let mut best = (0usize, branch.omega);
         let mut lams = [lb; SCAN];
