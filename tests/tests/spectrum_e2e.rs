@@ -144,3 +144,59 @@ async fn sizes_over_the_limits_are_refused() {
     assert!(matches!(e.code(), Code::ResourceExhausted | Code::OutOfRange), "{e:?}");
     server.stop().await;
 }
+
+#[tokio::test]
+async fn figures_that_may_be_wrong_carry_a_warning() {
+    // Each case reproduces a spectrum that used to be wrong without a word.
+    let server = TestServer::start().await;
+    let mut c = SpectrumServiceClient::new(server.channel().await);
+    let fs = 48_000.0;
+    let seg = |n: u32| pb::WelchOptions { segment: Some(Segment::SegmentLength(n)), ..Default::default() };
+    let warnings = |r: pb::ExtractTonesResponse| r.channels[0].warnings.clone();
+
+    // Clipped int16 data: a sine driven past full scale, saturated at +-32767 counts.
+    let raw: Vec<u8> = (0..1 << 16)
+        .flat_map(|i| {
+            let v = 40_000.0 * (2.0 * PI * 1000.0 * f64::from(i) / fs).sin();
+            (v.clamp(-32_767.0, 32_767.0) as i16).to_le_bytes()
+        })
+        .collect();
+    let clipped = pb::Samples {
+        sample_rate_hz: fs,
+        data: Some(Data::Raw(pb::RawSamples { format: pb::SampleFormat::I16Le as i32, data: raw.into() })),
+        calibration: Some(pb::Calibration { scale: Some(pb::calibration::Scale::PascalsPerUnit(0.001)) }),
+        ..Default::default()
+    };
+    let w = warnings(c.extract_tones(request(clipped)).await.unwrap().into_inner());
+    assert!(w.iter().any(|s| s.contains("clipped")), "{w:?}");
+
+    // A large offset with detrending off (a 40 Hz tone of 1 Pa on 10 Pa of DC).
+    let offset: Vec<f64> = tone(1 << 16, fs, 40.0, 2f64.sqrt()).iter().map(|v| v + 10.0).collect();
+    let mut req = request(samples(offset, fs));
+    req.welch = Some(pb::WelchOptions { detrend: pb::DetrendKind::None as i32, ..seg(8192) });
+    let w = warnings(c.extract_tones(req).await.unwrap().into_inner());
+    assert!(w.iter().any(|s| s.contains("detrending is off")), "{w:?}");
+
+    // Two tones 2.5 bins apart, both found as peaks (Hann main lobe: 4 bins).
+    let df = fs / 4096.0;
+    let pair: Vec<f64> = tone(1 << 16, fs, 300.25 * df, 1.0)
+        .iter()
+        .zip(tone(1 << 16, fs, 302.75 * df, 1.0))
+        .map(|(a, b)| a + b)
+        .collect();
+    let mut req = request(samples(pair, fs));
+    req.welch = Some(seg(4096));
+    let w = warnings(c.extract_tones(req).await.unwrap().into_inner());
+    assert!(w.iter().any(|s| s.contains("main lobe")), "{w:?}");
+
+    // A noise-free sine: rounding noise is not reported as dozens of tones.
+    let mut req = request(samples(tone(1 << 16, fs, 1000.0, 1.0), fs));
+    req.welch = Some(seg(4096));
+    let r = c.extract_tones(req).await.unwrap().into_inner();
+    assert!(
+        r.channels[0].tones.len() <= 2,
+        "{} tones: {:?}",
+        r.channels[0].tones.len(),
+        r.channels[0].tones.iter().map(|t| t.level_db).collect::<Vec<_>>()
+    );
+}

@@ -172,6 +172,27 @@ impl Recording {
         self.per_channel == 0
     }
 
+    /// Samples of channel `c` at or within one count of full scale, with the full scale in
+    /// pascals; `None` for float and packed data, which have no full scale.
+    pub fn clipped(&self, c: usize) -> Option<(usize, f64)> {
+        let counts = match &self.storage {
+            Storage::Blocks { format: Format::I16, .. } => 32_767.0,
+            Storage::Blocks { format: Format::I32, .. } => 2_147_483_647.0,
+            _ => return None,
+        };
+        let k = self.scale_pa.abs();
+        let limit = (counts - 1.0) * k;
+        let view = self.channel(c);
+        let mut buf = vec![0.0; 65_536];
+        let (mut at, mut n) = (0, 0);
+        while at < view.len() {
+            let got = view.read(at, &mut buf);
+            n += buf[..got].iter().filter(|x| x.abs() >= limit).count();
+            at += got;
+        }
+        Some((n, counts * k))
+    }
+
     /// A view of channel `c` (clamped to the last channel).
     pub fn channel(&self, c: usize) -> ChannelView<'_> {
         let c = c.min(self.channels.saturating_sub(1));

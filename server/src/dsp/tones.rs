@@ -112,7 +112,17 @@ pub struct ToneSet {
     pub combinations: Vec<Combination>,
     /// Name of the frequency estimator used.
     pub estimator: &'static str,
+    /// Pairs of tones (indices into `tones`) closer than the window's main-lobe width: their
+    /// lobes overlap, so each one's frequency and level are biased.
+    pub unresolved: Vec<(usize, usize)>,
+    /// Peaks dropped for lying more than [`DYNAMIC_RANGE_DB`] below the strongest one.
+    pub below_dynamic_range: usize,
 }
+
+/// Lines more than this many dB below the strongest peak are not reported: beyond the dynamic
+/// range of any measurement chain (24-bit converters reach about 144 dB; common practice), so
+/// only rounding noise of noise-free or synthetic data lies there.
+pub const DYNAMIC_RANGE_DB: f64 = 160.0;
 
 impl ToneSet {
     /// True when any tone is at or above the caution level.
@@ -204,6 +214,13 @@ pub fn find_tones(psd: &Psd, cfg: &ToneConfig) -> ToneSet {
         .filter(|&k| p[k] > p[k - 1] && p[k] >= p[k + 1] && p[k] >= ratio * floor[k])
         .map(|k| (k, p[k] / floor[k]))
         .collect();
+    // An absolute floor relative to the strongest line: rounding noise of noise-free data
+    // would otherwise stand far above its own (tiny) running-median floor.
+    let strongest = cand.iter().map(|&(k, _)| p[k]).fold(0.0_f64, f64::max);
+    let cut = strongest * 10f64.powf(-DYNAMIC_RANGE_DB / 10.0);
+    let before = cand.len();
+    cand.retain(|&(k, _)| p[k] >= cut);
+    let below_dynamic_range = before - cand.len();
     cand.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
     let min_sep = cfg.min_separation_hz.max(lobe as f64 * df);
     let mut kept: Vec<usize> = Vec::new();
@@ -287,7 +304,12 @@ pub fn find_tones(psd: &Psd, cfg: &ToneConfig) -> ToneSet {
         Window::Hann => "Grandke (1983) two-bin interpolation for the Hann window",
         _ => "parabola through ln(PSD) at the three top bins",
     };
-    ToneSet { floor, tones, families, combinations, estimator }
+    // Main lobes (2 x half-width bins wide) that overlap.
+    let unresolved = (1..tones.len())
+        .filter(|&i| tones[i].peak_bin - tones[i - 1].peak_bin < 2 * lobe)
+        .map(|i| (i - 1, i))
+        .collect();
+    ToneSet { floor, tones, families, combinations, estimator, unresolved, below_dynamic_range }
 }
 
 /// The tone nearest a predicted frequency.

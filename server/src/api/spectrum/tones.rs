@@ -126,6 +126,50 @@ pub(super) fn tone_query(
     check.finish(q)
 }
 
+/// Mean-square ratio of the mean to the spread above which an undetrended channel is flagged
+/// (the offset is then above 10 % of the rms: common practice for DC leakage).
+const OFFSET_RATIO: f64 = 0.01;
+
+/// Sentences about what may make channel `c`'s figures wrong.
+fn channel_warnings(q: &ToneQuery, c: usize, psd: &Psd, set: &ToneSet) -> Vec<String> {
+    let mut w = Vec::new();
+    if let Some((n, full)) = q.samples.recording.clipped(c) {
+        if n > 0 {
+            w.push(format!(
+                "{n} samples are at full scale ({full:.4e} Pa): the signal is clipped, levels read low and \
+                 clipping adds spurious harmonics; reduce the gain or raise the range"
+            ));
+        }
+    }
+    let m = &psd.moments;
+    let var = m.rms_about_mean().powi(2);
+    if psd.config.detrend == Detrend::None && m.mean * m.mean > OFFSET_RATIO * var {
+        w.push(format!(
+            "the mean is {:.4e} Pa against an rms of {:.4e} Pa about it and detrending is off: the offset \
+             leaks into the lowest bins (and low tones read high); use DETREND_KIND_MEAN",
+            m.mean,
+            m.rms_about_mean()
+        ));
+    }
+    for &(a, b) in &set.unresolved {
+        let (fa, fb) = (set.tones[a].frequency_hz, set.tones[b].frequency_hz);
+        w.push(format!(
+            "the tones at {fa:.2} Hz and {fb:.2} Hz lie closer than the window's main lobe ({} bins): their \
+             frequencies and levels are biased; use a longer segment (finer resolution) to separate them",
+            2 * psd.config.window.main_lobe_half_width_bins()
+        ));
+    }
+    if set.below_dynamic_range > 0 {
+        w.push(format!(
+            "{} peaks more than {} dB below the strongest line were left out (rounding noise, beyond any \
+             measurement chain's dynamic range)",
+            set.below_dynamic_range,
+            crate::dsp::tones::DYNAMIC_RANGE_DB
+        ));
+    }
+    w
+}
+
 pub(super) fn analysis(psd: &Psd, samples: usize, tones: Option<&ToneSet>) -> pb::AnalysisParameters {
     pb::AnalysisParameters {
         window: psd.config.window.name().to_string(),
@@ -209,6 +253,7 @@ pub(super) fn tones_answer(q: &ToneQuery, psds: &[Psd], t: std::time::Instant) -
         if overall >= CAUTION_LEVEL_DB {
             cautions.push(caution(overall, "The overall level"));
         }
+        let warnings = channel_warnings(q, c, psd, &set);
         let predicted_match = q.predicted.map(|(f, tol)| {
             let m = match_prediction(&set, f, tol);
             pb::PredictionMatch {
@@ -279,6 +324,7 @@ pub(super) fn tones_answer(q: &ToneQuery, psds: &[Psd], t: std::time::Instant) -
             bands: q.bands.map(|m| band_summary(&band_levels(psd, m))),
             psd: q.psd_points.map(|m| psd_data(psd, Some(&set.floor), m)),
             cautions,
+            warnings,
         });
     }
     let mut used = SPECTRUM_MODELS.to_vec();
