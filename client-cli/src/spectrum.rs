@@ -456,6 +456,9 @@ impl Run for TonesCmd {
                     .table(band_table(b));
             }
             rep = caution_rows(rep, &c.cautions);
+            for (i, w) in c.warnings.iter().enumerate() {
+                rep = rep.text(if i == 0 { "warning" } else { "warning_more" }, "WARNING", w.clone());
+            }
             if let Some(p) = &c.psd {
                 let suffix = |path: &PathBuf| -> PathBuf {
                     if several {

@@ -248,3 +248,101 @@ async fn a_bad_point_field_is_named_with_its_full_path() {
     assert_field(&e, Code::InvalidArgument, "points[2].frequency_hz");
     server.stop().await;
 }
+
+#[tokio::test]
+async fn the_shared_loop_keeps_a_given_source_cell_and_whole_cells() {
+    // Reproduces: the shared-loop model fitted N as a free real number, ignored a given source
+    // cell and could return a non-integer number of cells. Synthetic sweep from Powell's loop
+    // n / f = N Ls (1/(kappa Uj) + 1/a) (physics notes, sec. 4) with one kappa = 0.65 and
+    // N = 4 for three stages n = 1, 2, 3, no delay; Ls and Uj of each point from CellSpacing.
+    let server = TestServer::start().await;
+    let mut c = StagingServiceClient::new(server.channel().await);
+    let mut cells = pb::shock_cell_service_client::ShockCellServiceClient::new(server.channel().await);
+    let a = (1.4f64 * 287.05 * 288.15).sqrt();
+    let mut points = Vec::new();
+    for k in 0..90 {
+        let npr = 2.2 + 0.02 * f64::from(k);
+        let mut cond = jet();
+        cond.operating_point = Some(pb::OperatingPoint {
+            pressure: Some(pb::operating_point::Pressure::NozzlePressureRatio(npr)),
+            ..Default::default()
+        });
+        let r = cells
+            .cell_spacing(pb::CellSpacingRequest {
+                jet: Some(pb::JetInput { source: Some(pb::jet_input::Source::Conditions(cond)) }),
+                options: Some(pb::CellOptions { modes: Some(1), ..Default::default() }),
+            })
+            .await
+            .unwrap()
+            .into_inner();
+        let (ls, uj) = (r.modes[0].spacing_m, r.jet.unwrap().fully_expanded_velocity_m_per_s);
+        let n = if npr < 2.8 {
+            1.0
+        } else if npr < 3.4 {
+            2.0
+        } else {
+            3.0
+        };
+        points.push(tone(npr, n / (4.0 * ls * (1.0 / (0.65 * uj) + 1.0 / a))));
+    }
+    for given in [Some(4), None] {
+        let r = c
+            .fit_stages(pb::FitStagesRequest {
+                control: pb::ControlVariable::NozzlePressureRatio as i32,
+                points: points.clone(),
+                jet: Some(jet()),
+                options: Some(pb::FitOptions {
+                    source_cells: given,
+                    fit_fixed_delay: Some(false),
+                    ..Default::default()
+                }),
+                stage_labels: None,
+            })
+            .await
+            .unwrap()
+            .into_inner();
+        assert_eq!(r.stages.len(), 3, "given {given:?}");
+        let shared = r.shared_loop.as_ref().expect("a shared loop for three fitted stages");
+        assert_eq!(shared.loop_orders, vec![1, 2, 3], "given {given:?}");
+        let get = |name: &str| shared.parameters.iter().find(|p| p.name == name).unwrap();
+        let n = get("source_cells");
+        assert_eq!(n.value, 4.0, "given {given:?}: {n:?}");
+        assert!(n.fixed && n.value.fract() == 0.0);
+        let kappa = get("convection_ratio");
+        assert!((kappa.value - 0.65).abs() < 1e-6, "given {given:?}: {kappa:?}");
+    }
+    server.stop().await;
+}
+
+#[tokio::test]
+async fn a_free_path_factor_stays_within_its_bounds_in_the_shared_model() {
+    // Reproduces: with the path factor free, the shared reflector model returned a factor
+    // outside the documented bounds [1.5, 2.5]. Synthetic lines f_n(d) = n / (tau0 + g d / a)
+    // (Powell's loop with a reflector, physics notes sec. 4) with g = 3.2, beyond the bound.
+    let server = TestServer::start().await;
+    let mut c = StagingServiceClient::new(server.channel().await);
+    let a = (1.4f64 * 287.05 * 288.15).sqrt();
+    let mut points = Vec::new();
+    for n in [2.0, 3.0, 4.0] {
+        for k in 0..25 {
+            let d = 0.002 * f64::from(k);
+            points.push(tone(d, n / (2.5e-4 + 3.2 * d / a)));
+        }
+    }
+    let r = c
+        .fit_stages(pb::FitStagesRequest {
+            control: pb::ControlVariable::ReflectorDistanceM as i32,
+            points,
+            jet: None,
+            options: Some(pb::FitOptions { fit_reflector_path_factor: true, ..Default::default() }),
+            stage_labels: None,
+        })
+        .await
+        .unwrap()
+        .into_inner();
+    let shared = r.shared_loop.as_ref().expect("a shared loop");
+    let g = shared.parameters.iter().find(|p| p.name == "reflector_path_factor").unwrap();
+    assert!((1.5..=2.5).contains(&g.value), "{g:?}");
+    assert!(g.at_bound, "{g:?}");
+    server.stop().await;
+}
