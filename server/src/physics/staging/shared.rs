@@ -4,8 +4,8 @@
 use super::*;
 use crate::physics::lsq::{weighted_lsq, LinearFit};
 
-/// Shared-loop model across stages for pressure sweeps: n_s / f = N Ls (1/(kappa Uj) + 1/a)
-/// + tau0, with one convection ratio kappa, one whole source cell N and one delay tau0 for
+/// Shared-loop model across stages for pressure sweeps:
+/// `n_s / f = N Ls (1/(kappa Uj) + 1/a) + tau0`, with one convection ratio kappa, one whole source cell N and one delay tau0 for
 /// every stage and a loop order n_s per stage. N is an integer searched over its bounds (or
 /// held at the given value, as in the per-stage fits); for each N the model is linear in
 /// (1/kappa, tau0): y = n/f - N Ls/a = (1/kappa) N Ls/Uj + tau0. Orders come from the per-stage
