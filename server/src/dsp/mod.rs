@@ -9,6 +9,7 @@ pub mod cross;
 pub mod limits;
 pub mod samples;
 pub mod tones;
+pub mod track;
 pub mod welch;
 pub mod window;
 
