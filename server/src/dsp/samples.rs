@@ -172,6 +172,19 @@ impl Recording {
         self.per_channel == 0
     }
 
+    /// Drops every sample, keeping the format, channels and calibration.
+    pub fn clear(&mut self) {
+        match &mut self.storage {
+            Storage::Blocks { blocks, starts, total, .. } => {
+                blocks.clear();
+                starts.clear();
+                *total = 0;
+            }
+            Storage::Values(v) => v.clear(),
+        }
+        self.per_channel = 0;
+    }
+
     /// Samples of channel `c` at or within one count of full scale, with the full scale in
     /// pascals; `None` for float and packed data, which have no full scale.
     pub fn clipped(&self, c: usize) -> Option<(usize, f64)> {

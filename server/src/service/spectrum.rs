@@ -4,6 +4,7 @@ use super::budget::{Held, SampleBudget};
 use crate::api::error::PreconditionViolation;
 use crate::api::spectrum::{
     bands_response, cross_response, held_bytes, tones_response, BandQuery, CrossQuery, ToneQuery, ToneStream,
+    TrackSession,
 };
 use crate::api::ApiError;
 use jetloop_proto::pb::{self, spectrum_service_server::SpectrumService};
@@ -25,6 +26,9 @@ impl Spectrum {
 
 /// How often a block stream waiting for its client looks at its cancellation flag.
 const STREAM_CANCEL_POLL: std::time::Duration = std::time::Duration::from_millis(20);
+
+/// Updates a tracking stream may have waiting for its client.
+const TRACK_QUEUE: usize = 8;
 
 #[tonic::async_trait]
 impl SpectrumService for Spectrum {
@@ -122,6 +126,69 @@ impl SpectrumService for Spectrum {
         drop(held);
         received?;
         Ok(Response::new(answer.map_err(Status::from)?))
+    }
+
+    type TrackTonesStream =
+        std::pin::Pin<Box<dyn tokio_stream::Stream<Item = Result<pb::TrackUpdate, Status>> + Send + 'static>>;
+
+    async fn track_tones(
+        &self,
+        request: Request<Streaming<pb::TrackRequest>>,
+    ) -> Result<Response<Self::TrackTonesStream>, Status> {
+        let mut incoming = request.into_inner();
+        let first = incoming.message().await?.ok_or_else(|| {
+            Status::from(ApiError::Invalid(vec![crate::api::FieldViolation {
+                field: "config".into(),
+                description: "config is required: the tracking stream ended before its first message".into(),
+            }]))
+        })?;
+        let (mut session, first_updates) = TrackSession::start(first)?;
+        // Updates go out through a small bounded queue: a client that stops reading stops this
+        // task at its next update, which stops reading frames, so HTTP/2 flow control holds
+        // the sender back and the server keeps one analysis window per channel, no more.
+        let (tx, rx) = tokio::sync::mpsc::channel::<Result<pb::TrackUpdate, Status>>(TRACK_QUEUE);
+        tokio::spawn(async move {
+            for u in first_updates {
+                if tx.send(Ok(u)).await.is_err() {
+                    return;
+                }
+            }
+            loop {
+                // A caller that goes away, or a deadline that passes (the admission layer then
+                // ends the call), makes this fail or the queue close: the task ends and the
+                // session's window is freed.
+                let msg = match incoming.message().await {
+                    Ok(Some(m)) => m,
+                    Ok(None) => return,
+                    Err(e) => {
+                        let _ = tx.send(Err(e)).await;
+                        return;
+                    }
+                };
+                // The analysis of an update takes milliseconds: off the reactor.
+                let joined = tokio::task::spawn_blocking(move || {
+                    let r = session.push(msg);
+                    (session, r)
+                })
+                .await;
+                let Ok((s, result)) = joined else { return };
+                session = s;
+                match result {
+                    Ok(updates) => {
+                        for u in updates {
+                            if tx.send(Ok(u)).await.is_err() {
+                                return;
+                            }
+                        }
+                    }
+                    Err(e) => {
+                        let _ = tx.send(Err(Status::from(e))).await;
+                        return;
+                    }
+                }
+            }
+        });
+        Ok(Response::new(Box::pin(tokio_stream::wrappers::ReceiverStream::new(rx))))
     }
 
     async fn cross_spectra(

@@ -34,6 +34,7 @@ mod cross;
 mod samples;
 mod stream;
 mod tones;
+mod track;
 mod welch;
 
 use bands::band_summary;
@@ -44,6 +45,7 @@ pub use samples::{held_bytes, sample_set, SampleSet};
 pub use stream::ToneStream;
 use tones::{analysis, caution, tone_query, tones_answer, SPECTRUM_MODELS};
 pub use tones::{tones_response, ToneQuery};
+pub use track::TrackSession;
 pub use welch::RECORDING_TOO_SHORT;
 use welch::{welch_config, welch_error};
 

@@ -1,0 +1,230 @@
+//! A tracking stream: the configuration converted once, then frames decoded and fed to the
+//! tracker block by block.
+
+use super::*;
+use crate::dsp::track::{EventKind, Tracker, TrackerConfig, Update};
+
+/// Allowed window length, s.
+const WINDOW_S: Bounds = Bounds::open_closed(0.0, 60.0, "s");
+/// Allowed update interval, s.
+const UPDATE_S: Bounds = Bounds::closed(0.01, 60.0, "s");
+/// Allowed jump fraction.
+const JUMP_FRACTION: Bounds = Bounds::open_closed(0.0, 1.0, "");
+
+/// A tracking stream in progress.
+#[derive(Debug)]
+pub struct TrackSession {
+    tracker: Tracker,
+    template: Recording,
+    channels: usize,
+    messages: usize,
+    /// Defaults applied to the configuration.
+    pub defaults: Defaults,
+}
+
+fn config_missing() -> ApiError {
+    ApiError::Invalid(vec![FieldViolation {
+        field: "config".into(),
+        description: "config is required: the first message of a tracking stream carries the configuration"
+            .into(),
+    }])
+}
+
+impl TrackSession {
+    /// Validates the first message.
+    ///
+    /// # Errors
+    /// A missing configuration; bad fields under `config`.
+    pub fn start(first: pb::TrackRequest) -> Result<(Self, Vec<pb::TrackUpdate>), ApiError> {
+        let Some(pb::track_request::Item::Config(cfg)) = first.item else { return Err(config_missing()) };
+        let pb::TrackConfig { analysis, window_s, update_interval_s, jump_fraction } = cfg;
+        let Some(analysis) = analysis else {
+            let mut check = Check::new();
+            check.missing(
+                "config.analysis",
+                "the samples' format, rate and calibration, and the Welch settings",
+            );
+            return check.finish(None);
+        };
+        let q = tone_query(analysis, Some(None)).map_err(|e| e.within("config.analysis"))?;
+        let mut check = Check::new();
+        for (set, field) in [
+            (q.predicted.is_some(), "predicted_screech_hz"),
+            (q.bands.is_some(), "include_band_levels"),
+            (q.psd_points.is_some(), "psd_output"),
+            (q.stages.is_some(), "stage_labels"),
+        ] {
+            if set {
+                check.other(
+                    format!("config.analysis.{field}"),
+                    format!("config.analysis.{field} is not used by tracking: leave it unset"),
+                );
+            }
+        }
+        let mut defaults = q.defaults.clone();
+        let fs = q.samples.fs;
+        let n = q.welch.nperseg;
+        let window = match window_s {
+            None => {
+                defaults.note(
+                    "config.window_s",
+                    "8 segments at 50 % overlap",
+                    "enough averages for stable tones",
+                );
+                n * 9 / 2
+            }
+            Some(w) => {
+                check.range("config", WINDOW_S.check("window_s", w)).map_or(n, |w| (w * fs).round() as usize)
+            }
+        };
+        if window < n {
+            check.other(
+                "config.window_s",
+                format!("config.window_s gives {window} frames, shorter than one segment of {n}"),
+            );
+        }
+        let channels = q.samples.recording.channel_count();
+        if window.saturating_mul(channels) > MAX_TOTAL_SAMPLES {
+            check.other(
+                "config.window_s",
+                format!("config.window_s: {window} frames x {channels} channels exceed {MAX_TOTAL_SAMPLES} samples"),
+            );
+        }
+        let update = match update_interval_s {
+            None => {
+                defaults.note(
+                    "config.update_interval_s",
+                    "a quarter of the window",
+                    "four updates per window",
+                );
+                (window / 4).max(1)
+            }
+            Some(u) => check
+                .range("config", UPDATE_S.check("update_interval_s", u))
+                .map_or(1, |u| ((u * fs).round() as usize).max(1)),
+        };
+        let jump = defaults.or(
+            jump_fraction,
+            "config.jump_fraction",
+            0.05,
+            "",
+            "a stage jump is a few per cent or more",
+        );
+        let jump = check.range("config", JUMP_FRACTION.check("jump_fraction", jump));
+        if !check.is_clean() {
+            return check.finish(None);
+        }
+        let cfg = TrackerConfig {
+            fs,
+            welch: q.welch,
+            window,
+            update,
+            tones: q.tones,
+            jump_fraction: jump.unwrap_or(0.05),
+        };
+        let tracker = Tracker::new(cfg, channels).map_err(|e| welch_error(e, "config.window_s"))?;
+        // The first frames, if the configuration carried any.
+        let first_frames = q.samples.recording.clone();
+        let template = {
+            let mut t = q.samples.recording;
+            // An empty recording of the same format, channels and calibration.
+            t.clear();
+            t
+        };
+        let mut s = Self { tracker, template, channels, messages: 1, defaults };
+        let updates = s.feed(&first_frames)?;
+        Ok((s, updates))
+    }
+
+    /// Takes a later message.
+    ///
+    /// # Errors
+    /// A second configuration; frames that are not whole; a non-finite sample.
+    pub fn push(&mut self, msg: pb::TrackRequest) -> Result<Vec<pb::TrackUpdate>, ApiError> {
+        self.messages += 1;
+        match msg.item {
+            Some(pb::track_request::Item::Frames(bytes)) => {
+                let mut rec = self.template.clone();
+                rec.push_block(bytes::Bytes::from(bytes)).map_err(|e| {
+                    ApiError::Invalid(vec![FieldViolation {
+                        field: "frames".into(),
+                        description: format!("frames of message {}: {e}", self.messages),
+                    }])
+                })?;
+                self.feed(&rec)
+            }
+            Some(pb::track_request::Item::Config(_)) => Err(ApiError::Invalid(vec![FieldViolation {
+                field: "config".into(),
+                description: format!(
+                    "config sent again in message {}: only the first message carries it",
+                    self.messages
+                ),
+            }])),
+            None => Err(ApiError::Invalid(vec![FieldViolation {
+                field: "item".into(),
+                description: format!("message {} is empty: set frames", self.messages),
+            }])),
+        }
+    }
+
+    fn feed(&mut self, rec: &Recording) -> Result<Vec<pb::TrackUpdate>, ApiError> {
+        let frames = rec.len();
+        if frames == 0 {
+            return Ok(Vec::new());
+        }
+        let cols: Vec<Vec<f64>> = (0..self.channels).map(|c| rec.channel(c).to_vec()).collect();
+        let interleaved: Vec<f64> = (0..frames).flat_map(|k| cols.iter().map(move |c| c[k])).collect();
+        let updates = self.tracker.push(&interleaved).map_err(|e| {
+            ApiError::Invalid(vec![FieldViolation {
+                field: "frames".into(),
+                description: format!("frames: {e}"),
+            }])
+        })?;
+        Ok(updates.into_iter().map(update_message).collect())
+    }
+}
+
+fn update_message(u: Update) -> pb::TrackUpdate {
+    pb::TrackUpdate {
+        stream_time_s: u.time_s,
+        channels: u
+            .channels
+            .iter()
+            .enumerate()
+            .map(|(c, (tracks, strongest))| pb::ChannelTracks {
+                channel: c as u32,
+                tones: tracks
+                    .iter()
+                    .map(|t| pb::TrackedTone {
+                        track_id: t.id,
+                        frequency_hz: t.frequency_hz,
+                        level_db: t.level_db,
+                    })
+                    .collect(),
+                strongest_track_id: *strongest,
+            })
+            .collect(),
+        events: u
+            .events
+            .iter()
+            .map(|e| {
+                let (kind, from_id, from_hz) = match e.kind {
+                    EventKind::Appeared => (pb::TrackEventKind::Appeared, None, None),
+                    EventKind::Vanished => (pb::TrackEventKind::Vanished, None, None),
+                    EventKind::Jumped { from_id, from_hz } => {
+                        (pb::TrackEventKind::Jumped, Some(from_id), Some(from_hz))
+                    }
+                };
+                pb::TrackEvent {
+                    kind: kind as i32,
+                    channel: e.channel as u32,
+                    track_id: e.id,
+                    frequency_hz: e.frequency_hz,
+                    from_track_id: from_id,
+                    from_frequency_hz: from_hz,
+                    stream_time_s: e.time_s,
+                }
+            })
+            .collect(),
+    }
+}
