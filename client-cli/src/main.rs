@@ -15,6 +15,7 @@ mod spectrum;
 mod staging;
 mod synth;
 mod tones;
+mod track;
 
 use clap::{Parser, Subcommand};
 use std::process::ExitCode;
@@ -56,6 +57,9 @@ enum Command {
     Modes(modes::ModesCmd),
     /// Tones, levels, harmonics (and bands) of a recording: WAV, CSV or raw.
     Tones(spectrum::TonesCmd),
+    /// Live tone tracking: stream a recording (at its pace with --realtime) and see tones keep
+    /// their track ids and stage jumps reported as they happen.
+    Track(track::TrackCmd),
     /// One-third-octave band levels, overall and A-weighted levels of a recording.
     Bands(spectrum::BandsCmd),
     /// Write a demo WAV of an imagined jet rig (screech, harmonics, shock-noise hump, noise).
@@ -126,6 +130,7 @@ async fn run(cli: Cli) -> Result<output::Report, Failure> {
         Command::Sweep(a) => a.run(&ctx).await,
         Command::Modes(a) => a.run(&ctx).await,
         Command::Tones(a) => a.run(&ctx).await,
+        Command::Track(a) => a.run(&ctx).await,
         Command::Bands(a) => a.run(&ctx).await,
         Command::Synth(a) => a.run(&ctx).await,
         Command::Fit(a) => a.run(&ctx).await,

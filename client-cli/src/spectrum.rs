@@ -40,7 +40,7 @@ pub struct WelchArgs {
 }
 
 impl WelchArgs {
-    fn options(&self) -> pb::WelchOptions {
+    pub fn options(&self) -> pb::WelchOptions {
         use pb::welch_options::Segment;
         pb::WelchOptions {
             window: match self.window {

@@ -47,6 +47,12 @@ pub struct SynthCmd {
     /// Azimuthal pattern of the screech tone on the ring.
     #[arg(long, value_enum, default_value = "spinning")]
     pattern: PatternArg,
+    /// Stream time in s at which the screech tone jumps to --jump-to-hz (a stage jump).
+    #[arg(long)]
+    jump_at_s: Option<f64>,
+    /// Frequency after the jump, Hz (default: 12 % above --screech-hz).
+    #[arg(long, requires = "jump_at_s")]
+    jump_to_hz: Option<f64>,
     /// Azimuthal order m of the tone (its h-th harmonic has order h m); a negative order spins
     /// towards decreasing azimuth.
     #[arg(long, default_value_t = 1, allow_negative_numbers = true)]
@@ -83,6 +89,13 @@ impl Run for SynthCmd {
             return Err(Failure::Usage(
                 "--screech-hz and --hump-hz must lie between 0 and half the sample rate".into(),
             ));
+        }
+        if let Some(f1) = a.jump_to_hz {
+            if !(f1 > 0.0 && f1 < fs / 2.0) {
+                return Err(Failure::Usage(
+                    "--jump-to-hz must lie between 0 and half the sample rate".into(),
+                ));
+            }
         }
         if !(1..=64).contains(&a.ring) {
             return Err(Failure::Usage("--ring must be 1 to 64 microphones".into()));
@@ -121,8 +134,16 @@ impl Run for SynthCmd {
                 let mut s = hump_k * hump[k] + noise_sigma * gauss();
                 for h in 1..=a.harmonics {
                     let amp = rms_of(a.screech_db - 9.0 * f64::from(h - 1)) * 2f64.sqrt();
-                    if f64::from(h) * a.screech_hz < fs / 2.0 {
-                        let wt = 2.0 * PI * f64::from(h) * a.screech_hz * t + 0.7 * f64::from(h);
+                    // Phase of the fundamental, continuous through a jump.
+                    let (f_now, cycles) = match a.jump_at_s {
+                        Some(tj) if t >= tj => {
+                            let f1 = a.jump_to_hz.unwrap_or(1.12 * a.screech_hz);
+                            (f1, a.screech_hz * tj + f1 * (t - tj))
+                        }
+                        _ => (a.screech_hz, a.screech_hz * t),
+                    };
+                    if f64::from(h) * f_now < fs / 2.0 {
+                        let wt = 2.0 * PI * f64::from(h) * cycles + 0.7 * f64::from(h);
                         let m = f64::from(a.order) * f64::from(h);
                         s += amp
                             * match a.pattern {
