@@ -173,6 +173,18 @@ fn cross_report(r: &pb::CrossSpectraResponse) -> Report {
     Report::new("-- cross-channel").table(t)
 }
 
+impl TonesCmd {
+    /// The tone-search options given on the command line.
+    fn tone_options(&self) -> pb::ToneOptions {
+        pb::ToneOptions {
+            threshold_db: self.threshold_db,
+            min_separation_hz: self.min_separation_hz,
+            max_tones: self.max_tones,
+            ..Default::default()
+        }
+    }
+}
+
 /// The stage label of a tone for the table.
 fn stage_text(t: &pb::ExtractedTone) -> String {
     if t.harmonic_order.is_some_and(|o| o >= 2) {
@@ -317,12 +329,7 @@ impl Run for TonesCmd {
         let req = pb::ExtractTonesRequest {
             samples: Some(samples),
             welch: Some(a.welch.options()),
-            tones: Some(pb::ToneOptions {
-                threshold_db: a.threshold_db,
-                min_separation_hz: a.min_separation_hz,
-                max_tones: a.max_tones,
-                ..Default::default()
-            }),
+            tones: Some(a.tone_options()),
             predicted_screech_hz: a.predicted_hz,
             match_tolerance_fraction: None,
             include_band_levels: a.bands,
@@ -504,12 +511,7 @@ impl Run for TonesCmd {
                 .cross_spectra(pb::CrossSpectraRequest {
                     samples: Some(samples),
                     welch: Some(a.welch.options()),
-                    tones: Some(pb::ToneOptions {
-                        threshold_db: a.threshold_db,
-                        min_separation_hz: a.min_separation_hz,
-                        max_tones: a.max_tones,
-                        ..Default::default()
-                    }),
+                    tones: Some(a.tone_options()),
                     reference_channel: a.reference_channel,
                     positions,
                     spectra_max_points: None,

@@ -90,3 +90,11 @@ def channel(server_address):
     grpc.channel_ready_future(ch).result(timeout=10)
     yield ch
     ch.close()
+
+
+@pytest.fixture(scope="module")
+def sp(pb, channel):
+    """The spectrum messages module and a SpectrumService stub on the test server."""
+    mod = importlib.import_module("jetloop.v1.spectrum_pb2")
+    grpc_mod = importlib.import_module("jetloop.v1.spectrum_pb2_grpc")
+    return mod, grpc_mod.SpectrumServiceStub(channel)

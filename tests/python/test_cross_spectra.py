@@ -3,20 +3,11 @@ scipy.signal.coherence (SciPy): same window, nperseg, noverlap and detrend, ever
 relative (complex cross-spectrum against the largest |Pxy|, coherence where the auto spectra
 are above 1e-12 of their peak). Also the phase sign: a channel delayed by tau shows the phase
 -360 f tau degrees (arg of conj(X) Y, SciPy's convention)."""
-import importlib
-
 import numpy as np
 import pytest
 from scipy.signal import coherence, csd
 
 REL = 1e-9
-
-
-@pytest.fixture(scope="module")
-def sp(pb, channel):
-    mod = importlib.import_module("jetloop.v1.spectrum_pb2")
-    grpc_mod = importlib.import_module("jetloop.v1.spectrum_pb2_grpc")
-    return mod, grpc_mod.SpectrumServiceStub(channel)
 
 
 def channels(n, fs, seed):

@@ -12,19 +12,24 @@ import pytest
 from conftest import _server_binary
 
 
-@pytest.mark.skipif(shutil.which("prlimit") is None, reason="prlimit (util-linux) not installed")
-def test_health_and_calls_answer_beyond_the_open_file_limit(pb):
-    from grpc_health.v1 import health_pb2, health_pb2_grpc
-
+def _start_limited(*args):
+    """The release server under `prlimit --nofile=128` on a free port, with its address."""
     proc = subprocess.Popen(
-        ["prlimit", "--nofile=128", "--", str(_server_binary()), "--listen", "127.0.0.1:0", "--handshake-timeout-s", "60"],
+        ["prlimit", "--nofile=128", "--", str(_server_binary()), "--listen", "127.0.0.1:0", *args],
         stdout=subprocess.PIPE,
         stderr=subprocess.DEVNULL,
         text=True,
     )
+    return proc, proc.stdout.readline().strip().rsplit(" ", 1)[1]
+
+
+@pytest.mark.skipif(shutil.which("prlimit") is None, reason="prlimit (util-linux) not installed")
+def test_health_and_calls_answer_beyond_the_open_file_limit(pb):
+    from grpc_health.v1 import health_pb2, health_pb2_grpc
+
+    proc, addr = _start_limited("--handshake-timeout-s", "60")
     socks = []
     try:
-        addr = proc.stdout.readline().strip().rsplit(" ", 1)[1]
         host, port = addr.rsplit(":", 1)
         for _ in range(300):  # beyond 128 descriptors
             try:
@@ -62,16 +67,9 @@ def test_accept_errors_back_off_instead_of_spinning(pb):
     connections stays below a third of one core (a spin uses all of it)."""
     import time
 
-    proc = subprocess.Popen(
-        ["prlimit", "--nofile=128", "--", str(_server_binary()), "--listen", "127.0.0.1:0",
-         "--max-connections", "1000", "--handshake-timeout-s", "60"],
-        stdout=subprocess.PIPE,
-        stderr=subprocess.DEVNULL,
-        text=True,
-    )
+    proc, addr = _start_limited("--max-connections", "1000", "--handshake-timeout-s", "60")
     socks = []
     try:
-        addr = proc.stdout.readline().strip().rsplit(" ", 1)[1]
         host, port = addr.rsplit(":", 1)
         for _ in range(300):
             try:

@@ -1,20 +1,11 @@
 """Cross-check of SpectrumService against scipy.signal.welch (SciPy): same window, nperseg,
 noverlap, detrend and scaling, on random and tonal signals, odd lengths and odd segments, f64
 values and f32 bytes. Tolerance: 1e-9 relative on every PSD value."""
-import importlib
-
 import numpy as np
 import pytest
 from scipy.signal import welch
 
 REL = 1e-9
-
-
-@pytest.fixture(scope="module")
-def sp(pb, channel):
-    mod = importlib.import_module("jetloop.v1.spectrum_pb2")
-    grpc_mod = importlib.import_module("jetloop.v1.spectrum_pb2_grpc")
-    return mod, grpc_mod.SpectrumServiceStub(channel)
 
 
 WINDOWS = {1: "hann", 2: "hamming", 3: "blackmanharris", 4: "flattop"}

@@ -93,6 +93,15 @@ impl TestServer {
     }
 }
 
+/// Median, minimum and maximum of timings (benchmarks).
+///
+/// # Panics
+/// When `v` is empty.
+pub fn stats(mut v: Vec<f64>) -> (f64, f64, f64) {
+    v.sort_by(f64::total_cmp);
+    (v[v.len() / 2], v[0], v[v.len() - 1])
+}
+
 /// Asserts that `status` has `code` and a `google.rpc.BadRequest` violation on `field`.
 ///
 /// # Panics

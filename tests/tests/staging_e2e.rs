@@ -62,6 +62,28 @@ async fn reflector_sweep_lines_and_model_comparison() {
     server.stop().await;
 }
 
+/// Vortex-sheet cell spacing Ls (m) and Uj (m/s) of the test nozzle at `npr`, from CellSpacing
+/// (its spacing is checked against Pack's closed form elsewhere).
+async fn spacing_and_velocity(
+    cells: &mut pb::shock_cell_service_client::ShockCellServiceClient<tonic::transport::Channel>,
+    npr: f64,
+) -> (f64, f64) {
+    let mut cond = jet();
+    cond.operating_point = Some(pb::OperatingPoint {
+        pressure: Some(pb::operating_point::Pressure::NozzlePressureRatio(npr)),
+        ..Default::default()
+    });
+    let r = cells
+        .cell_spacing(pb::CellSpacingRequest {
+            jet: Some(pb::JetInput { source: Some(pb::jet_input::Source::Conditions(cond)) }),
+            options: Some(pb::CellOptions { modes: Some(1), ..Default::default() }),
+        })
+        .await
+        .expect("cell spacing")
+        .into_inner();
+    (r.modes[0].spacing_m, r.jet.expect("jet summary").fully_expanded_velocity_m_per_s)
+}
+
 #[tokio::test]
 async fn pressure_sweep_over_npr_with_given_source_cell() {
     // Two stages generated from the loop model itself with n = 1 and 2, N = 4 (given),
@@ -74,20 +96,7 @@ async fn pressure_sweep_over_npr_with_given_source_cell() {
     let mut points = Vec::new();
     for k in 0..60 {
         let npr = 2.2 + 0.02 * f64::from(k);
-        let mut cond = jet();
-        cond.operating_point = Some(pb::OperatingPoint {
-            pressure: Some(pb::operating_point::Pressure::NozzlePressureRatio(npr)),
-            ..Default::default()
-        });
-        let r = cells
-            .cell_spacing(pb::CellSpacingRequest {
-                jet: Some(pb::JetInput { source: Some(pb::jet_input::Source::Conditions(cond)) }),
-                options: Some(pb::CellOptions { modes: Some(1), ..Default::default() }),
-            })
-            .await
-            .unwrap()
-            .into_inner();
-        let (ls, uj) = (r.modes[0].spacing_m, r.jet.unwrap().fully_expanded_velocity_m_per_s);
+        let (ls, uj) = spacing_and_velocity(&mut cells, npr).await;
         let (n, kappa) = if npr < 2.8 { (1.0, 0.62) } else { (2.0, 0.65) };
         points.push(tone(npr, n / (4.0 * ls * (1.0 / (kappa * uj) + 1.0 / a))));
     }
@@ -262,20 +271,7 @@ async fn the_shared_loop_keeps_a_given_source_cell_and_whole_cells() {
     let mut points = Vec::new();
     for k in 0..90 {
         let npr = 2.2 + 0.02 * f64::from(k);
-        let mut cond = jet();
-        cond.operating_point = Some(pb::OperatingPoint {
-            pressure: Some(pb::operating_point::Pressure::NozzlePressureRatio(npr)),
-            ..Default::default()
-        });
-        let r = cells
-            .cell_spacing(pb::CellSpacingRequest {
-                jet: Some(pb::JetInput { source: Some(pb::jet_input::Source::Conditions(cond)) }),
-                options: Some(pb::CellOptions { modes: Some(1), ..Default::default() }),
-            })
-            .await
-            .unwrap()
-            .into_inner();
-        let (ls, uj) = (r.modes[0].spacing_m, r.jet.unwrap().fully_expanded_velocity_m_per_s);
+        let (ls, uj) = spacing_and_velocity(&mut cells, npr).await;
         let n = if npr < 2.8 {
             1.0
         } else if npr < 3.4 {

@@ -30,22 +30,39 @@ const STREAM_CANCEL_POLL: std::time::Duration = std::time::Duration::from_millis
 /// Updates a tracking stream may have waiting for its client.
 const TRACK_QUEUE: usize = 8;
 
+impl Spectrum {
+    /// One request's samples held against the budget while `f` analyses them on the blocking
+    /// pool (stopping once the call's cancellation flag is set).
+    async fn held_analysis<Q: Send + 'static, R: Send + 'static>(
+        &self,
+        request: Request<Q>,
+        samples: fn(&Q) -> Option<&pb::Samples>,
+        what: &'static str,
+        f: impl FnOnce(Q, &crate::cancel::Cancel) -> Result<R, ApiError> + Send + 'static,
+    ) -> Result<Response<R>, Status> {
+        let work = super::work_of(&request);
+        let req = request.into_inner();
+        let mut held = Held::default();
+        self.budget.take(&mut held, held_bytes(samples(&req)), "samples")?;
+        let r = super::blocking(what, work, move |c| f(req, c)).await?;
+        drop(held);
+        Ok(Response::new(r))
+    }
+}
+
 #[tonic::async_trait]
 impl SpectrumService for Spectrum {
     async fn extract_tones(
         &self,
         request: Request<pb::ExtractTonesRequest>,
     ) -> Result<Response<pb::ExtractTonesResponse>, Status> {
-        let work = super::work_of(&request);
-        let req = request.into_inner();
-        let mut held = Held::default();
-        self.budget.take(&mut held, held_bytes(req.samples.as_ref()), "samples")?;
-        let r = super::blocking("spectral analysis", work, move |c| {
-            tones_response(&ToneQuery::try_from(req)?.with_cancel(c.clone()))
-        })
-        .await?;
-        drop(held);
-        Ok(Response::new(r))
+        self.held_analysis(
+            request,
+            |r| r.samples.as_ref(),
+            "spectral analysis",
+            |req, c| tones_response(&ToneQuery::try_from(req)?.with_cancel(c.clone())),
+        )
+        .await
     }
 
     async fn extract_tones_stream(
@@ -195,31 +212,25 @@ impl SpectrumService for Spectrum {
         &self,
         request: Request<pb::CrossSpectraRequest>,
     ) -> Result<Response<pb::CrossSpectraResponse>, Status> {
-        let work = super::work_of(&request);
-        let req = request.into_inner();
-        let mut held = Held::default();
-        self.budget.take(&mut held, held_bytes(req.samples.as_ref()), "samples")?;
-        let r = super::blocking("cross-channel analysis", work, move |c| {
-            cross_response(&CrossQuery::try_from(req)?.with_cancel(c.clone()))
-        })
-        .await?;
-        drop(held);
-        Ok(Response::new(r))
+        self.held_analysis(
+            request,
+            |r| r.samples.as_ref(),
+            "cross-channel analysis",
+            |req, c| cross_response(&CrossQuery::try_from(req)?.with_cancel(c.clone())),
+        )
+        .await
     }
 
     async fn band_levels(
         &self,
         request: Request<pb::BandLevelsRequest>,
     ) -> Result<Response<pb::BandLevelsResponse>, Status> {
-        let work = super::work_of(&request);
-        let req = request.into_inner();
-        let mut held = Held::default();
-        self.budget.take(&mut held, held_bytes(req.samples.as_ref()), "samples")?;
-        let r = super::blocking("spectral analysis", work, move |c| {
-            bands_response(&BandQuery::try_from(req)?.with_cancel(c.clone()))
-        })
-        .await?;
-        drop(held);
-        Ok(Response::new(r))
+        self.held_analysis(
+            request,
+            |r| r.samples.as_ref(),
+            "spectral analysis",
+            |req, c| bands_response(&BandQuery::try_from(req)?.with_cancel(c.clone())),
+        )
+        .await
     }
 }

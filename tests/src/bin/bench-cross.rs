@@ -9,13 +9,8 @@
 #![forbid(unsafe_code)]
 
 use jetloop_proto::pb::{self, samples::Data, spectrum_service_client::SpectrumServiceClient};
-use jetloop_tests::TestServer;
+use jetloop_tests::{stats, TestServer};
 use std::f64::consts::PI;
-
-fn stats(mut v: Vec<f64>) -> (f64, f64, f64) {
-    v.sort_by(f64::total_cmp);
-    (v[v.len() / 2], v[0], v[v.len() - 1])
-}
 
 #[tokio::main]
 async fn main() {

@@ -6,13 +6,8 @@
 #![forbid(unsafe_code)]
 
 use jetloop_proto::pb::{self, sweep_screech_request::Values, tone_service_client::ToneServiceClient};
-use jetloop_tests::TestServer;
+use jetloop_tests::{stats, TestServer};
 use std::time::Instant;
-
-fn stats(mut v: Vec<f64>) -> (f64, f64, f64) {
-    v.sort_by(f64::total_cmp);
-    (v[v.len() / 2], v[0], v[v.len() - 1])
-}
 
 #[tokio::main]
 async fn main() {
