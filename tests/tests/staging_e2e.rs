@@ -20,21 +20,28 @@ fn tone(x: f64, f: f64) -> pb::MeasuredTone {
     pb::MeasuredTone { x, frequency_hz: f, ..Default::default() }
 }
 
-#[tokio::test]
-async fn reflector_sweep_lines_and_model_comparison() {
-    // f_n(d) = n / (tau0 + 2 d / a), n = 2, 3, 4, a = 340.29 m/s (ISA), tau0 = 0.25 ms.
-    let server = TestServer::start().await;
-    let mut c = StagingServiceClient::new(server.channel().await);
+/// Reflector lines f_n(d) = n / (tau0 + g d / a) for n = 2, 3, 4, tau0 = 0.25 ms, d = 0..48 mm
+/// in 2 mm steps, a = 340.29 m/s (ISA; Powell's loop with a reflector, physics notes sec. 4),
+/// each frequency times `ripple(k)`.
+fn reflector_lines(g: f64, ripple: impl Fn(u32) -> f64) -> Vec<pb::MeasuredTone> {
     let a = (1.4f64 * 287.05 * 288.15).sqrt();
     let mut points = Vec::new();
     for n in [2.0, 3.0, 4.0] {
         for k in 0..25 {
             let d = 0.002 * f64::from(k);
-            // Deterministic +-0.2 % ripple instead of noise.
-            let ripple = 1.0 + 0.002 * if k % 2 == 0 { 1.0 } else { -1.0 };
-            points.push(tone(d, n / (2.5e-4 + 2.0 * d / a) * ripple));
+            points.push(tone(d, n / (2.5e-4 + g * d / a) * ripple(k)));
         }
     }
+    points
+}
+
+#[tokio::test]
+async fn reflector_sweep_lines_and_model_comparison() {
+    // f_n(d) = n / (tau0 + 2 d / a), n = 2, 3, 4, a = 340.29 m/s (ISA), tau0 = 0.25 ms.
+    let server = TestServer::start().await;
+    let mut c = StagingServiceClient::new(server.channel().await);
+    // Deterministic +-0.2 % ripple instead of noise.
+    let points = reflector_lines(2.0, |k| 1.0 + 0.002 * if k % 2 == 0 { 1.0 } else { -1.0 });
     let r = c
         .fit_stages(pb::FitStagesRequest {
             control: pb::ControlVariable::ReflectorDistanceM as i32,
@@ -317,14 +324,7 @@ async fn a_free_path_factor_stays_within_its_bounds_in_the_shared_model() {
     // (Powell's loop with a reflector, physics notes sec. 4) with g = 3.2, beyond the bound.
     let server = TestServer::start().await;
     let mut c = StagingServiceClient::new(server.channel().await);
-    let a = (1.4f64 * 287.05 * 288.15).sqrt();
-    let mut points = Vec::new();
-    for n in [2.0, 3.0, 4.0] {
-        for k in 0..25 {
-            let d = 0.002 * f64::from(k);
-            points.push(tone(d, n / (2.5e-4 + 3.2 * d / a)));
-        }
-    }
+    let points = reflector_lines(3.2, |_| 1.0);
     let r = c
         .fit_stages(pb::FitStagesRequest {
             control: pb::ControlVariable::ReflectorDistanceM as i32,

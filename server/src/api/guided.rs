@@ -497,7 +497,7 @@ impl StageContext {
 
     /// The stages a tone at `f_hz` is compatible with, best first.
     pub fn label(&self, f_hz: f64) -> Vec<pb::StageMatch> {
-        let omega = f_hz * 2.0 * std::f64::consts::PI * self.scale.length_m / self.scale.aj_m_s;
+        let omega = self.scale.omega(f_hz);
         guided::label_tone(omega, &self.modes, self.tolerance)
             .iter()
             .map(|m| {

@@ -239,25 +239,15 @@ fn g_opts(s: &ScreechOptions) -> &guided::ClosureOptions {
     s.guided.as_ref().expect("guided options present when guided results are")
 }
 
-/// Model name of a guided-mode closure in the predictions list.
-fn guided_model_name(m: &guided::GuidedMode) -> &'static str {
-    match (m.shape, m.radial) {
-        (guided::ModeShape::Round { azimuthal: 0 }, 1) => "guided jet mode m=0, radial order 1",
-        (guided::ModeShape::Round { azimuthal: 0 }, 2) => "guided jet mode m=0, radial order 2",
-        (guided::ModeShape::Round { azimuthal: 0 }, _) => "guided jet mode m=0, radial order 3",
-        (guided::ModeShape::Round { azimuthal: 1 }, 1) => "guided jet mode m=1, radial order 1",
-        (guided::ModeShape::Round { azimuthal: 1 }, 2) => "guided jet mode m=1, radial order 2",
-        (guided::ModeShape::Round { azimuthal: 1 }, _) => "guided jet mode m=1, radial order 3",
-        (guided::ModeShape::Round { .. }, 1) => "guided jet mode m=2, radial order 1",
-        (guided::ModeShape::Round { .. }, 2) => "guided jet mode m=2, radial order 2",
-        (guided::ModeShape::Round { .. }, _) => "guided jet mode m=2, radial order 3",
-        (guided::ModeShape::PlanarSymmetric, 1) => "guided jet mode symmetric, radial order 1",
-        (guided::ModeShape::PlanarSymmetric, 2) => "guided jet mode symmetric, radial order 2",
-        (guided::ModeShape::PlanarSymmetric, _) => "guided jet mode symmetric, radial order 3",
-        (guided::ModeShape::PlanarAntisymmetric, 1) => "guided jet mode antisymmetric, radial order 1",
-        (guided::ModeShape::PlanarAntisymmetric, 2) => "guided jet mode antisymmetric, radial order 2",
-        (guided::ModeShape::PlanarAntisymmetric, _) => "guided jet mode antisymmetric, radial order 3",
-    }
+/// Model name of a guided-mode closure in the predictions list, e.g. "guided jet mode m=1,
+/// radial order 1".
+fn guided_model_name(m: &guided::GuidedMode) -> String {
+    let shape = match m.shape {
+        guided::ModeShape::Round { azimuthal } => format!("m={azimuthal}"),
+        guided::ModeShape::PlanarSymmetric => "symmetric".to_string(),
+        guided::ModeShape::PlanarAntisymmetric => "antisymmetric".to_string(),
+    };
+    format!("guided jet mode {shape}, radial order {}", m.radial)
 }
 
 /// Computes and builds the PredictScreech response.
@@ -316,11 +306,8 @@ pub fn screech_response(q: &ScreechQuery) -> Result<pb::PredictScreechResponse, 
                     let f = g.scale.hz(p.omega);
                     let mode = &m.band.mode;
                     let stage = mode.customary_stage(g.sheet.mach());
-                    predictions.push(prediction(
-                        &models::Model {
-                            name: guided_model_name(mode),
-                            reference: models::GUIDED_JET_MODES.reference,
-                        },
+                    let mut p = prediction(
+                        &models::GUIDED_JET_MODES,
                         f,
                         s.harmonics,
                         jet,
@@ -336,7 +323,9 @@ pub fn screech_response(q: &ScreechQuery) -> Result<pb::PredictScreechResponse, 
                                 if stage.is_empty() { String::new() } else { format!(" (customary stage {stage})") }
                             ),
                         ],
-                    ));
+                    );
+                    p.model = guided_model_name(mode);
+                    predictions.push(p);
                 }
             }
             g.modes.iter().map(|m| super::guided::mode_message(&g.sheet, Some(&g.scale), m, 0)).collect()

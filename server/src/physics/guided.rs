@@ -660,6 +660,11 @@ impl Scale {
         omega * self.aj_m_s / (2.0 * PI * self.length_m)
     }
 
+    /// Dimensionless omega of a frequency in Hz (inverse of [`Scale::hz`]).
+    pub fn omega(&self, hz: f64) -> f64 {
+        hz * 2.0 * PI * self.length_m / self.aj_m_s
+    }
+
     /// Axial wavenumber k in rad/m of a dimensionless kappa (k = -kappa / R).
     pub fn wavenumber(&self, kappa: f64) -> f64 {
         -kappa / self.length_m
