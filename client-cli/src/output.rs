@@ -217,11 +217,21 @@ impl Report {
         self
     }
 
-    /// Machine output: one JSON object with the rows as keys and the provenance.
+    /// Machine output: one JSON object with the rows as keys and the provenance. A key that
+    /// several rows share (notes of one kind, repeated cautions) becomes an array of their
+    /// values in row order: no row is dropped.
     pub fn to_json(&self) -> Value {
         let mut m = Map::new();
         for r in &self.rows {
-            m.insert(r.key.to_string(), val_json(&r.value));
+            let v = val_json(&r.value);
+            if self.rows.iter().filter(|o| o.key == r.key).count() > 1 {
+                match m.entry(r.key.to_string()).or_insert_with(|| Value::Array(Vec::new())) {
+                    Value::Array(a) => a.push(v),
+                    other => *other = v,
+                }
+            } else {
+                m.insert(r.key.to_string(), v);
+            }
         }
         for t in &self.tables {
             m.insert(t.key.to_string(), t.to_json());
@@ -321,5 +331,18 @@ mod tests {
         assert!(r.to_table().contains("Mach number"));
         assert_eq!(r.to_json()["mach_number"], json!(2.0));
         assert_eq!(r.to_json()["choked"], json!(true));
+    }
+
+    #[test]
+    fn repeated_keys_keep_every_row() {
+        let r = Report::new("t")
+            .text("alias", "note", "stage 0: first")
+            .num("x", "x", 1.0, "")
+            .text("alias", "note", "stage 1: second")
+            .text("warning", "warning", "only one");
+        let j = r.to_json();
+        assert_eq!(j["alias"], json!(["stage 0: first", "stage 1: second"]));
+        assert_eq!(j["warning"], json!("only one"));
+        assert_eq!(j["x"], json!(1.0));
     }
 }

@@ -124,6 +124,17 @@ fn param_text(p: &pb::FittedParameter) -> String {
     s
 }
 
+/// The loop fit's verdict against the stated noise, with its reduced chi^2.
+fn verdict_text(s: &pb::StageResult) -> Option<Val> {
+    let chi = s.reduced_chi_square.map(|c| format!(" (chi^2/dof {c:.2})")).unwrap_or_default();
+    match pb::FitVerdict::try_from(s.fit_verdict) {
+        Ok(pb::FitVerdict::Consistent) => Some(Val::Text(format!("ok{chi}"))),
+        Ok(pb::FitVerdict::ResidualsAboveNoise) => Some(Val::Text(format!("ABOVE NOISE{chi}"))),
+        Ok(pb::FitVerdict::NoFreedom) => Some(Val::Text("no freedom".into())),
+        _ => None,
+    }
+}
+
 fn find<'a>(ps: &'a [pb::FittedParameter], name: &str) -> Option<&'a pb::FittedParameter> {
     ps.iter().find(|p| p.name == name)
 }
@@ -177,7 +188,8 @@ impl Run for FitCmd {
             .col("source_cells", "N cells")
             .col("fixed_delay_s", "tau0 [s]")
             .col("reflector_path_factor", "g")
-            .col("rms_relative_error", "rms rel. err.");
+            .col("rms_relative_error", "rms rel. err.")
+            .col("fit_verdict", "fit vs noise");
         if a.label_stages {
             stages = stages.col("stage_label", "guided mode (share of points)");
         }
@@ -203,6 +215,7 @@ impl Run for FitCmd {
                 text("fixed_delay_s"),
                 text("reflector_path_factor"),
                 s.rms_relative_error.map(Val::Num),
+                verdict_text(s),
             ];
             if a.label_stages {
                 row.push(Some(label.unwrap_or(Val::Text("none".into()))));
@@ -273,6 +286,9 @@ impl Run for FitCmd {
         .table(jumps)
         .table(hyst)
         .table(models);
+        for w in &r.warnings {
+            rep = rep.text("warning", "warning", w.clone());
+        }
         for s in &r.stages {
             if !s.alias_resolution.is_empty() {
                 rep = rep.text(

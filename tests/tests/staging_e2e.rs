@@ -342,3 +342,50 @@ async fn a_free_path_factor_stays_within_its_bounds_in_the_shared_model() {
     assert!(g.at_bound, "{g:?}");
     server.stop().await;
 }
+
+#[tokio::test]
+async fn fit_verdicts_and_noise_warnings_reach_the_answer() {
+    // Reflector lines (Powell's loop with a reflector, physics notes sec. 4) with a +-0.2 %
+    // ripple against the default 1 % uncertainty: every fit consistent with the noise, no
+    // warning. Two lines forced into one stage by a jump fraction of 0.9: the fit is flagged
+    // and a warning names the stage. A stated 5 % uncertainty raises the jump threshold to
+    // 20 % (four standard deviations) and says that closer stages cannot be separated.
+    let server = TestServer::start().await;
+    let mut c = StagingServiceClient::new(server.channel().await);
+    let ripple = |k: u32| 1.0 + 0.002 * if k % 2 == 0 { 1.0 } else { -1.0 };
+    let ask = |points: Vec<pb::MeasuredTone>, options: pb::FitOptions| pb::FitStagesRequest {
+        control: pb::ControlVariable::ReflectorDistanceM as i32,
+        points,
+        jet: None,
+        options: Some(options),
+        stage_labels: None,
+    };
+    let r = c
+        .fit_stages(ask(reflector_lines(2.0, ripple), pb::FitOptions::default()))
+        .await
+        .unwrap()
+        .into_inner();
+    assert_eq!(r.stages.len(), 3);
+    for s in &r.stages {
+        assert_eq!(s.fit_verdict, pb::FitVerdict::Consistent as i32, "{s:?}");
+        assert!(s.fit_p_value.unwrap() > 1e-3 && s.reduced_chi_square.unwrap() < 1.0);
+    }
+    assert!(r.warnings.is_empty(), "{:?}", r.warnings);
+
+    // The n = 2 and n = 3 lines (the first 50 points).
+    let first_two: Vec<pb::MeasuredTone> = reflector_lines(2.0, ripple)[..50].to_vec();
+    let merged = pb::FitOptions { jump_fraction: Some(0.9), ..Default::default() };
+    let r = c.fit_stages(ask(first_two, merged)).await.unwrap().into_inner();
+    assert_eq!(r.stages.len(), 1);
+    assert_eq!(r.stages[0].fit_verdict, pb::FitVerdict::ResidualsAboveNoise as i32);
+    assert!(r.warnings.iter().any(|w| w.starts_with("stage 0:")), "{:?}", r.warnings);
+
+    let noisy = pb::FitOptions { default_relative_uncertainty: Some(0.05), ..Default::default() };
+    let r = c.fit_stages(ask(reflector_lines(2.0, ripple), noisy)).await.unwrap().into_inner();
+    assert!(
+        r.warnings.iter().any(|w| w.contains("cannot be separated") && w.contains("20.0 %")),
+        "{:?}",
+        r.warnings
+    );
+    server.stop().await;
+}

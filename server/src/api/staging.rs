@@ -12,7 +12,7 @@ use crate::physics::models;
 use crate::physics::staging::limits::{CELLS, FREQ, G, JUMP, KAPPA, MACH_X, ORDER, REFLECTOR_X, REL, SIGMA};
 use crate::physics::staging::{
     compare_models, fit_stages_until, infer_directions, pressure_sweep_physics, Direction, FitConfig,
-    FitDefaults, Param, Point, PointPhysics, ReflectorPath, StagingResult, SweepKind,
+    FitDefaults, FitVerdict, Param, Point, PointPhysics, ReflectorPath, StagingResult, SweepKind,
 };
 use jetloop_proto::pb;
 
@@ -541,6 +541,10 @@ pub fn staging_response(q: StagingQuery, cancel: &Cancel) -> Result<pb::FitStage
             msg.equivalent_loop_orders = fit.equivalent_orders.clone();
             msg.alias_resolution = fit.resolution.clone();
             msg.chi_square = Some(fit.chi2);
+            msg.fit_verdict = verdict_msg(fit.verdict) as i32;
+            msg.fit_p_value = fit.p_value;
+            let dof = st.points.len().saturating_sub(fit.free);
+            msg.reduced_chi_square = (dof > 0).then(|| fit.chi2 / dof as f64);
         }
         stages.push(msg);
     }
@@ -582,6 +586,8 @@ pub fn staging_response(q: StagingQuery, cancel: &Cancel) -> Result<pb::FitStage
         loop_orders: sh.orders.clone(),
         parameters: sh.params.iter().map(param_msg).collect(),
         alias_resolution: sh.resolution.clone(),
+        fit_verdict: verdict_msg(sh.verdict) as i32,
+        fit_p_value: sh.p_value,
     });
     let mut used = vec![models::STAGE_SEGMENTATION];
     let mut notes = Vec::new();
@@ -618,6 +624,15 @@ pub fn staging_response(q: StagingQuery, cancel: &Cancel) -> Result<pb::FitStage
         models: models_cmp,
         shared_loop,
         compute_time_s: started.elapsed().as_secs_f64(),
+        warnings: res.warnings,
         provenance: Some(provenance(&used, &defaults, notes)),
     })
+}
+
+fn verdict_msg(v: FitVerdict) -> pb::FitVerdict {
+    match v {
+        FitVerdict::Consistent => pb::FitVerdict::Consistent,
+        FitVerdict::ResidualsAboveNoise => pb::FitVerdict::ResidualsAboveNoise,
+        FitVerdict::NoFreedom => pb::FitVerdict::NoFreedom,
+    }
 }

@@ -7,6 +7,7 @@
 pub mod bessel;
 pub mod bounds;
 pub mod cells;
+pub mod chi2;
 pub mod gas;
 pub mod guided;
 pub mod jet;

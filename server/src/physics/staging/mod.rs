@@ -1,14 +1,19 @@
 //! Stage segmentation and feedback-loop fits of measured tone sweeps.
 //!
-//! **Segmentation (model-free).** Points are taken in order of increasing control value x
-//! (ties by frequency). Each point joins the open branch whose prediction at x (the last
-//! frequency, extended along the branch's recent slope) is nearest, if within
-//! `jump_fraction` of it; otherwise it starts a new branch. A branch closes after an x gap of
-//! twenty median point spacings. Several branches can be open at once, so coexisting stages at
-//! one x are kept apart, and an up-sweep and a down-sweep share the same stages. Jumps are
-//! read per sweep direction (in acquisition order where given) as the x where the set of
-//! stages present changes; hysteresis intervals are where the increasing and the decreasing
-//! sweep jump between the same two stages at different x.
+//! **Segmentation.** Points are split into sweep passes: in acquisition order where given,
+//! cut where the direction changes (directions inferred from the order where not given);
+//! otherwise one pass per direction. Inside a pass, each point joins the open branch whose
+//! prediction is nearest, if within the jump threshold of it; otherwise it starts a branch.
+//! Pressure sweeps compare f T(x), with T = Ls (1/(kappa Uj) + 1/a) the loop time per loop
+//! order of Powell's model at mid-range kappa: constant along a stage however fast f moves
+//! (near Mj = 1), and different loop orders stay apart by their ratio. Other sweeps follow
+//! local straight lines in f. Branches are linked into stages across passes where they overlap
+//! and agree, or continue each other across a gap; two branches of one pass that overlap in x
+//! coexist and are never one stage. The threshold is the jump fraction, raised to four
+//! standard deviations of the stated frequency uncertainty when that is larger (with a
+//! warning: stages closer than the noise cannot be separated). Jumps are read per pass as the
+//! x where the set of stages present changes; hysteresis intervals are where an increasing and
+//! a decreasing pass jump between the same two stages at different x.
 //!
 //! **Loop fits.** Powell's criterion `f = n / tau(x)` with an integer loop order n per stage:
 //! - pressure sweeps (x = NPR or Mj): `tau = N Ls(x) (1/(kappa Uj(x)) + 1/a) + tau0`, the
@@ -28,7 +33,9 @@
 //! loop order; a kappa outside them is held at the bound and flagged. Without a given N, one
 //! stage of a pressure sweep constrains only the loop time, so N and n stay ambiguous between
 //! neighbours (reported). A shared-loop model (one kappa, N, tau0 or one tau0, g for all
-//! stages, n per stage) is compared with the per-stage model by AIC and BIC.
+//! stages, n per stage) is compared with the per-stage model by AIC and BIC. Every fit carries
+//! a verdict from the chi-square upper tail with its degrees of freedom: below 0.001 the
+//! residuals are far above the stated noise, and the answer says so.
 
 use super::cells;
 use super::gas::Gas;
@@ -42,7 +49,7 @@ mod shared;
 
 pub use pressure::fit_pressure_stage;
 pub use reflector::fit_reflector_stage;
-pub use segment::{infer_directions, segment, stages};
+pub use segment::{infer_directions, loop_scale, segment, stages, Separation, NOISE_SIGMAS};
 use shared::{shared_pressure, shared_reflector};
 
 /// What the control value means.
@@ -215,6 +222,37 @@ pub struct StageLoop {
     pub free: usize,
     /// Model frequency at each point of the stage (same order as the stage's points).
     pub model_hz: Vec<f64>,
+    /// Goodness of fit against the stated uncertainties.
+    pub verdict: FitVerdict,
+    /// Probability that a right model with right uncertainties gives this chi^2 or more.
+    pub p_value: Option<f64>,
+}
+
+/// Below this chi-square tail probability, residuals are far above the stated noise.
+pub const POOR_FIT_P: f64 = 1e-3;
+
+/// Goodness of a loop fit against the stated frequency uncertainties.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum FitVerdict {
+    /// chi^2 is what the stated noise gives (tail probability at least [`POOR_FIT_P`]).
+    Consistent,
+    /// Residuals far above the stated noise: the stage may hold points of two stages, the
+    /// model may not apply, or the uncertainties are understated.
+    ResidualsAboveNoise,
+    /// No degrees of freedom left: nothing to judge.
+    NoFreedom,
+}
+
+impl FitVerdict {
+    /// The verdict and tail probability of a weighted chi^2 with `m` points and `free` fitted
+    /// parameters.
+    pub fn of(chi2: f64, m: usize, free: usize) -> (FitVerdict, Option<f64>) {
+        if m <= free {
+            return (FitVerdict::NoFreedom, None);
+        }
+        let p = crate::physics::chi2::chi2_sf(chi2, (m - free) as f64);
+        (if p < POOR_FIT_P { FitVerdict::ResidualsAboveNoise } else { FitVerdict::Consistent }, Some(p))
+    }
 }
 
 /// A stage.
@@ -275,6 +313,10 @@ pub struct SharedLoop {
     pub free: usize,
     /// How the alias was resolved.
     pub resolution: String,
+    /// Goodness of fit against the stated uncertainties.
+    pub verdict: FitVerdict,
+    /// Chi-square tail probability.
+    pub p_value: Option<f64>,
 }
 
 /// Everything found.
@@ -290,6 +332,9 @@ pub struct StagingResult {
     pub hysteresis: Vec<Hysteresis>,
     /// Shared-loop model, when fitted.
     pub shared: Option<SharedLoop>,
+    /// Cautions about the result, one sentence each: stages that the stated noise cannot
+    /// separate, fits whose residuals are far above it.
+    pub warnings: Vec<String>,
 }
 
 pub(super) fn param(name: &'static str, value: f64, se: Option<f64>, unit: &'static str) -> Param {
@@ -315,7 +360,7 @@ pub fn fit_stages(
 ) -> StagingResult {
     match fit_stages_until(points, kind, physics, cfg, &Cancel::default()) {
         Ok(r) => r,
-        Err(Stopped) => stages(points, cfg.jump_fraction),
+        Err(Stopped) => stages(points, scale_of(kind, physics, cfg).as_deref(), cfg.jump_fraction),
     }
 }
 
@@ -330,7 +375,7 @@ pub fn fit_stages_until(
     cfg: &FitConfig,
     cancel: &Cancel,
 ) -> Result<StagingResult, Stopped> {
-    let mut res = stages(points, cfg.jump_fraction);
+    let mut res = stages(points, scale_of(kind, physics, cfg).as_deref(), cfg.jump_fraction);
     for s in &mut res.stages {
         cancel.check()?;
         let pts: Vec<Point> = s.points.iter().map(|&i| points[i]).collect();
@@ -349,7 +394,32 @@ pub fn fit_stages_until(
         (SweepKind::Reflector, _) => shared_reflector(points, &res, cfg),
         _ => None,
     };
+    if let Some(sh) = res.shared.as_mut() {
+        // Judged on the points of the stages with a loop fit (the ones the shared model takes).
+        let m = res.stage_of.iter().filter(|&&s| res.stages[s].fit.is_some()).count();
+        (sh.verdict, sh.p_value) = FitVerdict::of(sh.chi2, m, sh.free);
+    }
+    for (k, s) in res.stages.iter().enumerate() {
+        if let Some(fit) = s.fit.as_ref().filter(|f| f.verdict == FitVerdict::ResidualsAboveNoise) {
+            let dof = s.points.len() - fit.free;
+            res.warnings.push(format!(
+                "stage {k}: the loop fit's residuals are far above the stated noise (chi-square {:.1} on {dof} \
+                 degrees of freedom, tail probability {:.1e}): the stage may hold points of two stages, the loop \
+                 model may not apply, or the uncertainties are understated.",
+                fit.chi2,
+                fit.p_value.unwrap_or(0.0)
+            ));
+        }
+    }
     Ok(res)
+}
+
+/// The loop-model scale for segmentation of pressure sweeps (none for the other kinds).
+fn scale_of(kind: SweepKind, physics: Option<&[PointPhysics]>, cfg: &FitConfig) -> Option<Vec<f64>> {
+    match (kind, physics) {
+        (SweepKind::Npr | SweepKind::Mach, Some(ph)) => Some(loop_scale(ph, cfg)),
+        _ => None,
+    }
 }
 
 /// Jet physics of each point of a pressure sweep: the fundamental vortex-sheet spacing and Uj
@@ -445,15 +515,17 @@ pub fn information_criteria(chi2: f64, k: usize, m: usize) -> (f64, f64) {
 }
 
 #[cfg(test)]
+mod sweep_tests;
+#[cfg(test)]
 mod tests {
-    use super::*;
+    pub(super) use super::*;
     use crate::physics::cells;
     use crate::physics::gas::Gas;
     use crate::physics::jet::{jet_state, ExpandedJet, Nozzle, OperatingPoint};
 
     use crate::test_rng::Rng;
 
-    fn physics_at_mj(mj: f64) -> PointPhysics {
+    pub(super) fn physics_at_mj(mj: f64) -> PointPhysics {
         let air = Gas::AIR;
         let npr = air.npr_for_mach(mj);
         let s = jet_state(
@@ -465,11 +537,11 @@ mod tests {
         PointPhysics { ls_m: cells::spacing(&j, 1.0), uj_m_s: j.uj_m_s }
     }
 
-    fn a_amb() -> f64 {
+    pub(super) fn a_amb() -> f64 {
         Gas::AIR.sound_speed(288.15)
     }
 
-    fn cfg() -> FitConfig {
+    pub(super) fn cfg() -> FitConfig {
         FitConfig {
             jump_fraction: 0.05,
             max_order: 10,
@@ -623,7 +695,7 @@ mod tests {
             order += 1;
         }
         infer_directions(&mut pts);
-        let res = stages(&pts, 0.05);
+        let res = stages(&pts, None, 0.05);
         assert_eq!(res.stages.len(), 2);
         assert_eq!(res.hysteresis.len(), 1, "{:?}", res.jumps);
         let h = &res.hysteresis[0];
@@ -649,7 +721,7 @@ mod tests {
             let f = factor[stage] * st * q.uj_m_s / 0.0254 * (1.0 + 0.003 * rng.gauss());
             pts.push(Point { x: mj, f, sigma: 0.005 * f, direction: Direction::Increasing, order: None });
         }
-        let res = stages(&pts, 0.05);
+        let res = stages(&pts, None, 0.05);
         assert_eq!(res.stages.len(), 5, "{:?}", res.stages.iter().map(|s| s.x_range).collect::<Vec<_>>());
         assert_eq!(res.jumps.len(), 4);
         for (j, want) in res.jumps.iter().zip(jumps) {
@@ -671,7 +743,7 @@ mod tests {
             let f = 3000.0 * 1.12f64.powf(s) * (1.0 - 0.02 * (x - 1.0));
             pts.push(Point { x, f, sigma: 0.005 * f, direction: Direction::Unknown, order: None });
         }
-        let r = stages(&pts, 0.05);
+        let r = stages(&pts, None, 0.05);
         assert_eq!(r.stages.len(), 6);
         for (k, &st) in r.stage_of.iter().enumerate() {
             assert_eq!(st, k / 167, "point {k}");

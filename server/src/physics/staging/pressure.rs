@@ -167,6 +167,17 @@ fn best_of(
         list.join(", ")
     );
     let (n, _, params, chi2, free) = best;
-    let model_hz = ph.iter().map(|q| model_pressure(&params, n, q, cfg.a_amb)).collect();
-    Some(StageLoop { n, params, equivalent_orders: orders, resolution, chi2, free, model_hz })
+    let model_hz: Vec<f64> = ph.iter().map(|q| model_pressure(&params, n, q, cfg.a_amb)).collect();
+    let (verdict, p_value) = FitVerdict::of(chi2, model_hz.len(), free);
+    Some(StageLoop {
+        n,
+        params,
+        equivalent_orders: orders,
+        resolution,
+        chi2,
+        free,
+        model_hz,
+        verdict,
+        p_value,
+    })
 }

@@ -70,6 +70,7 @@ pub fn fit_reflector_stage(pts: &[Point], cfg: &FitConfig) -> Option<StageLoop> 
     };
     let (tau0, g) = (params[0].value, params[1].value);
     let model_hz = pts.iter().map(|p| nf / (tau0 + g * p.x / a)).collect();
+    let (verdict, p_value) = FitVerdict::of(fit.chi2, pts.len(), free_count);
     Some(StageLoop {
         n,
         params,
@@ -78,5 +79,7 @@ pub fn fit_reflector_stage(pts: &[Point], cfg: &FitConfig) -> Option<StageLoop> 
         chi2: fit.chi2,
         free: free_count,
         model_hz,
+        verdict,
+        p_value,
     })
 }

@@ -83,6 +83,8 @@ pub(super) fn shared_pressure(
         None => format!("whole N in [{}, {}]", cfg.source_cells.0, cfg.source_cells.1),
     };
     Some(SharedLoop {
+        verdict: FitVerdict::NoFreedom,
+        p_value: None,
         orders,
         params,
         chi2: fit.chi2,
@@ -142,6 +144,8 @@ pub(super) fn shared_reflector(points: &[Point], res: &StagingResult, cfg: &FitC
             }
             let fit_b = weighted_lsq(&rows_b, &y, &w)?;
             return Some(SharedLoop {
+                verdict: FitVerdict::NoFreedom,
+                p_value: None,
                 orders,
                 params: vec![
                     param("fixed_delay_s", fit_b.coef[0], fit_b.se(0), "s"),
@@ -162,6 +166,8 @@ pub(super) fn shared_reflector(points: &[Point], res: &StagingResult, cfg: &FitC
         ReflectorPath::Free(..) => param("reflector_path_factor", fit.coef[1], fit.se(1), ""),
     });
     Some(SharedLoop {
+        verdict: FitVerdict::NoFreedom,
+        p_value: None,
         orders,
         params,
         chi2: fit.chi2,
