@@ -117,6 +117,43 @@ pub struct ToneSet {
     pub unresolved: Vec<(usize, usize)>,
     /// Peaks dropped for lying more than [`DYNAMIC_RANGE_DB`] below the strongest one.
     pub below_dynamic_range: usize,
+    /// Tones (indices into `tones`) whose 3 dB bandwidth exceeds [`BROAD_FACTOR`] times the
+    /// widest a single steady sinusoid shows with this window ([`single_tone_width_bins`]):
+    /// two tones inside one main lobe merged into one peak, or a tone that wanders.
+    pub broad: Vec<usize>,
+}
+
+/// A peak wider than this many times a single steady sinusoid's widest 3 dB bandwidth is
+/// flagged (margin for noise under the lobe at 10 dB tone-to-floor).
+pub const BROAD_FACTOR: f64 = 1.3;
+
+/// Broad peaks are judged only this far above the floor, where the floor cannot widen them.
+pub const BROAD_MIN_TONE_TO_FLOOR_DB: f64 = 10.0;
+
+/// The widest 3 dB bandwidth, in bins, that a single steady sinusoid shows in a PSD made with
+/// `window`, measured as [`ToneSet`] measures tones (linear interpolation between bins) at
+/// offsets from the bin centre of 0 to 0.5 bin. The window's power response is the DTFT of its
+/// 64-point periodic form.
+pub fn single_tone_width_bins(window: Window) -> f64 {
+    let w = window.values(64);
+    let n = w.len() as f64;
+    let response = |delta: f64| {
+        let (mut re, mut im) = (0.0, 0.0);
+        for (k, v) in w.iter().enumerate() {
+            let ph = 2.0 * std::f64::consts::PI * delta * k as f64 / n;
+            re += v * ph.cos();
+            im -= v * ph.sin();
+        }
+        re * re + im * im
+    };
+    (0..=10)
+        .map(|i| {
+            let off = 0.05 * f64::from(i);
+            let p: Vec<f64> = (-8..=8).map(|j| response(f64::from(j) - off)).collect();
+            let k = (0..p.len()).max_by(|&a, &b| p[a].total_cmp(&p[b])).unwrap_or(8);
+            bandwidth(&p, k, 1.0)
+        })
+        .fold(0.0, f64::max)
 }
 
 /// Lines more than this many dB below the strongest peak are not reported: beyond the dynamic
@@ -309,7 +346,14 @@ pub fn find_tones(psd: &Psd, cfg: &ToneConfig) -> ToneSet {
         .filter(|&i| tones[i].peak_bin - tones[i - 1].peak_bin < 2 * lobe)
         .map(|i| (i - 1, i))
         .collect();
-    ToneSet { floor, tones, families, combinations, estimator, unresolved, below_dynamic_range }
+    let widest = single_tone_width_bins(psd.config.window) * df;
+    let broad = (0..tones.len())
+        .filter(|&i| {
+            tones[i].tone_to_floor_db >= BROAD_MIN_TONE_TO_FLOOR_DB
+                && tones[i].bandwidth_3db_hz > BROAD_FACTOR * widest
+        })
+        .collect();
+    ToneSet { floor, tones, families, combinations, estimator, unresolved, below_dynamic_range, broad }
 }
 
 /// The tone nearest a predicted frequency.
@@ -357,6 +401,55 @@ mod tests {
 
     fn hann(n: usize) -> WelchConfig {
         WelchConfig { window: Window::Hann, nperseg: n, noverlap: n / 2, detrend: Detrend::Mean }
+    }
+
+    #[test]
+    fn single_tone_widths_match_the_window_responses() {
+        // Hann: sampled power response 1, 0.25 at +-1 bin on a bin centre (width 4/3 bin by
+        // interpolation), and 0.7268 at +-0.5 bin with 0.0295 at +-1.5 bin halfway between
+        // bins (width 2.05 bins): values of the Hann kernel |W(d)|^2 = (sinc(d)/(1-d^2))^2
+        // (Harris 1978). The widest Hann width is halfway between bins.
+        let hann = single_tone_width_bins(Window::Hann);
+        let half: f64 = {
+            let k = |d: f64| ((PI * d).sin() / (PI * d) / (1.0 - d * d)).powi(2);
+            let (top, side) = (k(0.5), k(1.5));
+            2.0 * (0.5 + (top - top / 2.0) / (top - side))
+        };
+        assert!((hann - half).abs() < 0.02, "{hann} vs {half}");
+        // Wider windows give wider single-tone peaks (Harris 1978: 3 dB widths grow from Hann
+        // to Blackman-Harris to flat-top).
+        let bh = single_tone_width_bins(Window::BlackmanHarris);
+        let ft = single_tone_width_bins(Window::FlatTop);
+        assert!(hann < bh && bh < ft, "{hann} {bh} {ft}");
+    }
+
+    #[test]
+    fn two_tones_in_one_lobe_are_flagged_and_a_single_tone_is_not() {
+        // Two equal tones 2 bins apart, each halfway between bins, merge into one Hann peak:
+        // it is flagged as broad (or, if found as two, as an unresolved pair). A single tone
+        // at any offset is neither.
+        let fs = 51_200.0;
+        let n = 4096;
+        let df = fs / n as f64;
+        for (i, frac) in [0.0, 0.25, 0.5].iter().enumerate() {
+            let sig = |fs_: &[f64]| -> Vec<f64> {
+                noise(1 << 18, 40 + i as u64, 1e-3)
+                    .iter()
+                    .enumerate()
+                    .map(|(k, v)| v + fs_.iter().map(|f| (2.0 * PI * f * k as f64 / fs).sin()).sum::<f64>())
+                    .collect()
+            };
+            let one = find_tones(
+                &welch(&sig(&[(300.0 + frac) * df]), fs, hann(n)).unwrap(),
+                &ToneConfig::default(),
+            );
+            assert!(one.broad.is_empty() && one.unresolved.is_empty(), "offset {frac}: {:?}", one.tones);
+            let two = find_tones(
+                &welch(&sig(&[(300.0 + frac) * df, (302.0 + frac) * df]), fs, hann(n)).unwrap(),
+                &ToneConfig::default(),
+            );
+            assert!(!two.broad.is_empty() || !two.unresolved.is_empty(), "offset {frac}: {:?}", two.tones);
+        }
     }
 
     #[test]

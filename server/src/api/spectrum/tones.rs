@@ -159,6 +159,18 @@ fn channel_warnings(q: &ToneQuery, c: usize, psd: &Psd, set: &ToneSet) -> Vec<St
             2 * psd.config.window.main_lobe_half_width_bins()
         ));
     }
+    for &i in &set.broad {
+        let t = &set.tones[i];
+        w.push(format!(
+            "the peak at {:.2} Hz is {:.2} Hz wide at -3 dB, more than {} times the widest a single steady tone \
+             shows with this window ({:.2} Hz): two tones inside one main lobe, or a tone wandering in frequency; \
+             its frequency and level are not those of one tone; use a longer segment to resolve it",
+            t.frequency_hz,
+            t.bandwidth_3db_hz,
+            crate::dsp::tones::BROAD_FACTOR,
+            crate::dsp::tones::single_tone_width_bins(psd.config.window) * psd.resolution_hz()
+        ));
+    }
     if set.below_dynamic_range > 0 {
         w.push(format!(
             "{} peaks more than {} dB below the strongest line were left out (rounding noise, beyond any \
