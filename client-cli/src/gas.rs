@@ -369,6 +369,7 @@ impl Run for InfoCmd {
             .text("services", "services", r.services.join(", "))
             .int("max_request_bytes", "largest request", l.max_request_bytes, "bytes")
             .num("request_timeout_s", "time limit per call", l.request_timeout_s, "s")
+            .num("stream_timeout_s", "time limit per live tracking stream", l.stream_timeout_s, "s")
             .int("max_concurrent_requests", "calls at once (server-wide)", l.max_concurrent_requests, "")
             .provenance(Some(p)))
     }

@@ -115,14 +115,16 @@ pub struct Shed<S> {
 #[derive(Debug, Clone)]
 pub struct DeadlineLayer {
     timeout: Duration,
+    stream_timeout: Duration,
     computing: Computing,
 }
 
 impl DeadlineLayer {
-    /// Every call ended after `timeout` at most; calls get the server's gauge of running
-    /// computations `computing` with their cancellation flag.
-    pub fn new(timeout: Duration, computing: Computing) -> Self {
-        Self { timeout, computing }
+    /// Every call ended after `timeout` at most, a live stream ([`LIVE_STREAMS`]) after
+    /// `stream_timeout`; calls get the server's gauge of running computations `computing` with
+    /// their cancellation flag.
+    pub fn new(timeout: Duration, stream_timeout: Duration, computing: Computing) -> Self {
+        Self { timeout, stream_timeout, computing }
     }
 }
 
@@ -130,7 +132,12 @@ impl<S> tower::Layer<S> for DeadlineLayer {
     type Service = Deadline<S>;
 
     fn layer(&self, inner: S) -> Deadline<S> {
-        Deadline { inner, timeout: self.timeout, computing: self.computing.clone() }
+        Deadline {
+            inner,
+            timeout: self.timeout,
+            stream_timeout: self.stream_timeout,
+            computing: self.computing.clone(),
+        }
     }
 }
 
@@ -139,7 +146,25 @@ impl<S> tower::Layer<S> for DeadlineLayer {
 pub struct Deadline<S> {
     inner: S,
     timeout: Duration,
+    stream_timeout: Duration,
     computing: Computing,
+}
+
+/// Methods whose answer is a stream that lives as long as a test run: they get the stream
+/// time limit, and end their own stream at it with DEADLINE_EXCEEDED ([`StreamDeadline`]).
+pub const LIVE_STREAMS: &[&str] = &["/jetloop.v1.SpectrumService/TrackTones"];
+
+/// Time after a live stream's limit before a stream that has not ended is cut with its
+/// connection (the handler ends it at the limit; this covers a client that stopped reading).
+pub const STREAM_END_GRACE: Duration = Duration::from_secs(5);
+
+/// When a live stream must end and why, for its handler (a request extension).
+#[derive(Debug, Clone)]
+pub struct StreamDeadline {
+    /// The instant the stream ends.
+    pub at: tokio::time::Instant,
+    /// Why, for the status message.
+    pub why: String,
 }
 
 /// Parses a `grpc-timeout` value (up to 8 digits and a unit: H, M, S, m, u, n).
@@ -415,7 +440,17 @@ route_service!(Shed, |self, req| {
 
 route_service!(Deadline, |self, req| {
     let mut req = req;
-    let (limit, why) = time_limit(req.headers(), self.timeout);
+    let live = LIVE_STREAMS.contains(&req.uri().path());
+    let (limit, why) = time_limit(req.headers(), if live { self.stream_timeout } else { self.timeout });
+    // A live stream's answer is ready at once and then streams: its handler ends it at the
+    // limit, and the send guard cuts it only after a grace beyond that.
+    let send_limit = if live {
+        req.extensions_mut()
+            .insert(StreamDeadline { at: tokio::time::Instant::now() + limit, why: why.clone() });
+        limit + STREAM_END_GRACE
+    } else {
+        limit
+    };
     // The call's cancellation flag: handlers hand it to their computation, which checks
     // it between units of work.
     let cancel = Cancel::new();
@@ -432,7 +467,7 @@ route_service!(Deadline, |self, req| {
         let mut fut = Box::pin(fut);
         match tokio::time::timeout(limit, &mut fut).await {
             // The answer is ready: the permit and the time limit now cover its sending.
-            Ok(Ok(resp)) => Ok(send_guarded(resp, admitted, conn, started + limit, method, peer)),
+            Ok(Ok(resp)) => Ok(send_guarded(resp, admitted, conn, started + send_limit, method, peer)),
             Ok(Err(e)) => Err(e),
             Err(_) => {
                 // Answer now, stop the work, and keep the call's admission permit until

@@ -12,6 +12,9 @@ pub struct Limits {
     pub max_request_bytes: usize,
     /// Server-side time limit for one call.
     pub request_timeout: Duration,
+    /// Server-side time limit for one live tracking stream (`TrackTones`), which runs as long
+    /// as the test run it follows; a shorter client deadline wins.
+    pub stream_timeout: Duration,
     /// Calls processed at once, server-wide; one more is refused with UNAVAILABLE and a retry
     /// hint (health checks are never refused).
     pub max_concurrent_requests: usize,
@@ -25,6 +28,7 @@ impl Default for Limits {
         Self {
             max_request_bytes: 64 * 1024 * 1024,
             request_timeout: Duration::from_secs(60),
+            stream_timeout: Duration::from_secs(12 * 3600),
             max_concurrent_requests: 256,
             sample_budget_bytes: default_sample_budget(),
         }
@@ -58,6 +62,11 @@ pub struct Config {
     #[arg(long, env = "JETLOOP_REQUEST_TIMEOUT_S", default_value_t = 60,
           value_parser = clap::value_parser!(u64).range(1..=3600))]
     pub request_timeout_s: u64,
+    /// Server-side time limit for one live tracking stream (TrackTones), in seconds: a run
+    /// streams for as long as it lasts, so this is separate from the per-call limit.
+    #[arg(long, env = "JETLOOP_STREAM_TIMEOUT_S", default_value_t = 12 * 3600,
+          value_parser = clap::value_parser!(u64).range(1..=7 * 24 * 3600))]
+    pub stream_timeout_s: u64,
     /// Calls processed at once, server-wide (the excess is refused with UNAVAILABLE and a
     /// retry hint; health checks are exempt).
     #[arg(long, env = "JETLOOP_MAX_CONCURRENT", default_value_t = 256,
@@ -152,6 +161,7 @@ impl Config {
         Limits {
             max_request_bytes: usize::try_from(self.max_request_bytes).unwrap_or(usize::MAX),
             request_timeout: Duration::from_secs(self.request_timeout_s),
+            stream_timeout: Duration::from_secs(self.stream_timeout_s),
             max_concurrent_requests: usize::try_from(self.max_concurrent_requests).unwrap_or(usize::MAX),
             sample_budget_bytes: match self.sample_budget_mib {
                 0 => default_sample_budget(),

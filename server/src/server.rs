@@ -111,8 +111,9 @@ pub async fn serve(
         // included, has finished.
         .layer(ShedLayer::new(limits.max_concurrent_requests))
         // Then the deadline, only for admitted calls: DEADLINE_EXCEEDED at the caller's
-        // grpc-timeout (answered just before it) or the server's limit, whichever is sooner.
-        .layer(DeadlineLayer::new(limits.request_timeout, computing.clone()))
+        // grpc-timeout (answered just before it) or the server's limit, whichever is sooner
+        // (live tracking streams have their own, longer limit).
+        .layer(DeadlineLayer::new(limits.request_timeout, limits.stream_timeout, computing.clone()))
         // Innermost, nearest the routes: a request body that does not decode, or is over the
         // size limit, is the caller's error (INVALID_ARGUMENT, RESOURCE_EXHAUSTED), not the
         // server's (tonic's INTERNAL, OUT_OF_RANGE).

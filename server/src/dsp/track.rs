@@ -121,7 +121,12 @@ impl Tracker {
         Ok(Self { cfg, channels: vec![ChannelState::default(); channels], frames: 0, since: 0, next_id: 1 })
     }
 
-    /// Frames taken so far.
+    /// Samples kept between calls: one window of every channel.
+    pub fn held_samples(&self) -> usize {
+        self.cfg.window.saturating_mul(self.channels.len())
+    }
+
+    /// Frames pushed so far.
     pub fn frames(&self) -> u64 {
         self.frames
     }

@@ -39,6 +39,7 @@ impl InfoService for Info {
                 request_timeout_s: self.limits.request_timeout.as_secs_f64(),
                 max_concurrent_requests: self.limits.max_concurrent_requests as u64,
                 sample_budget_bytes: self.limits.sample_budget_bytes as u64,
+                stream_timeout_s: self.limits.stream_timeout.as_secs_f64(),
             }),
             safety_notice: PRESSURE_CAUTION.to_string(),
             computations_in_flight: self.computing.count() as u64,

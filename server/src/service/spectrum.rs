@@ -152,6 +152,8 @@ impl SpectrumService for Spectrum {
         &self,
         request: Request<Streaming<pb::TrackRequest>>,
     ) -> Result<Response<Self::TrackTonesStream>, Status> {
+        // The stream's own end (the admission layer's live-stream limit); none outside a server.
+        let deadline = request.extensions().get::<crate::admission::StreamDeadline>().cloned();
         let mut incoming = request.into_inner();
         let first = incoming.message().await?.ok_or_else(|| {
             Status::from(ApiError::Invalid(vec![crate::api::FieldViolation {
@@ -160,21 +162,41 @@ impl SpectrumService for Spectrum {
             }]))
         })?;
         let (mut session, first_updates) = TrackSession::start(first)?;
+        // The session's analysis windows count against the server-wide sample budget for as
+        // long as the stream lives (freed when the task below ends, whatever ends it).
+        let mut held = Held::default();
+        self.budget.take(&mut held, session.held_bytes(), "config.window_s")?;
         // Updates go out through a small bounded queue: a client that stops reading stops this
         // task at its next update, which stops reading frames, so HTTP/2 flow control holds
         // the sender back and the server keeps one analysis window per channel, no more.
         let (tx, rx) = tokio::sync::mpsc::channel::<Result<pb::TrackUpdate, Status>>(TRACK_QUEUE);
         tokio::spawn(async move {
+            let _held = held;
             for u in first_updates {
                 if tx.send(Ok(u)).await.is_err() {
                     return;
                 }
             }
+            let end = async {
+                match &deadline {
+                    Some(d) => tokio::time::sleep_until(d.at).await,
+                    None => std::future::pending().await,
+                }
+            };
+            tokio::pin!(end);
             loop {
-                // A caller that goes away, or a deadline that passes (the admission layer then
-                // ends the call), makes this fail or the queue close: the task ends and the
-                // session's window is freed.
-                let msg = match incoming.message().await {
+                // A caller that goes away makes this fail or the queue close; the stream's
+                // time limit ends it with DEADLINE_EXCEEDED. Either way the task ends and the
+                // session's windows are freed.
+                let next = tokio::select! {
+                    m = incoming.message() => m,
+                    () = &mut end => {
+                        let why = deadline.as_ref().map_or_else(String::new, |d| d.why.clone());
+                        let _ = tx.send(Err(Status::deadline_exceeded(format!("stopped: {why}")))).await;
+                        return;
+                    }
+                };
+                let msg = match next {
                     Ok(Some(m)) => m,
                     Ok(None) => return,
                     Err(e) => {

@@ -136,6 +136,11 @@ impl TrackSession {
         Ok((s, updates))
     }
 
+    /// Bytes the session keeps between messages: one analysis window of every channel.
+    pub fn held_bytes(&self) -> usize {
+        self.tracker.held_samples().saturating_mul(std::mem::size_of::<f64>())
+    }
+
     /// Takes a later message.
     ///
     /// # Errors
