@@ -124,7 +124,7 @@ pub struct TonesCmd {
     reference_channel: Option<u32>,
 }
 
-fn pattern_name(p: i32) -> &'static str {
+pub(crate) fn pattern_name(p: i32) -> &'static str {
     match pb::AzimuthalPattern::try_from(p) {
         Ok(pb::AzimuthalPattern::Axisymmetric) => "axisymmetric",
         Ok(pb::AzimuthalPattern::Standing) => "standing (flapping)",

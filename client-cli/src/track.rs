@@ -38,6 +38,34 @@ pub struct TrackCmd {
     /// Frames per message, in s of recording.
     #[arg(long, default_value_t = 0.05)]
     block_s: f64,
+    /// Microphone azimuths in degrees, one per channel, comma separated: every update then
+    /// shows the azimuthal mode of the reference channel's strongest tone (a ring of three or
+    /// more), live.
+    #[arg(long, value_delimiter = ',', allow_negative_numbers = true)]
+    azimuths_deg: Vec<f64>,
+    /// Reference channel of the live cross-spectra (server default 0 when azimuths are given);
+    /// with two channels each update shows the pair's symmetry.
+    #[arg(long)]
+    reference_channel: Option<u32>,
+}
+
+/// The mode (or pair symmetry) of an update's strongest tone, in words.
+fn mode_text(x: &pb::CrossTone) -> Option<String> {
+    if let Some(m) = &x.modes {
+        return Some(format!(
+            "m = {} {} ({:.0} % of the energy)",
+            m.dominant_order,
+            crate::spectrum::pattern_name(m.pattern),
+            100.0 * m.dominant_share
+        ));
+    }
+    x.pair.as_ref().map(|p| {
+        format!(
+            "{} (confidence {:.2})",
+            if p.symmetric { "symmetric" } else { "antisymmetric" },
+            p.confidence
+        )
+    })
 }
 
 fn kind_name(k: i32) -> &'static str {
@@ -102,6 +130,16 @@ impl Run for TrackCmd {
                 window_s: a.window_s,
                 update_interval_s: a.update_interval_s,
                 jump_fraction: a.jump_fraction,
+                reference_channel: a.reference_channel,
+                positions: a
+                    .azimuths_deg
+                    .iter()
+                    .map(|&azimuth_deg| pb::MicrophonePosition {
+                        azimuth_deg,
+                        polar_angle_deg: None,
+                        distance_m: None,
+                    })
+                    .collect(),
             })),
         };
         if !(a.block_s > 0.0 && a.block_s <= 10.0) {
@@ -137,9 +175,31 @@ impl Run for TrackCmd {
             .col("frequency_hz", "f [Hz]")
             .col("from_frequency_hz", "from [Hz]")
             .col("track_id", "track");
+        let mut modes = Table::new("modes", "Mode of the strongest tone (when it changed)")
+            .col("stream_time_s", "t [s]")
+            .col("frequency_hz", "f [Hz]")
+            .col("mode", "mode");
         let (mut count, mut jumps) = (0u64, 0u64);
+        let mut last_mode: Option<String> = None;
         while let Some(u) = updates.message().await? {
             count += 1;
+            if let Some(x) = &u.strongest_cross {
+                let mode = mode_text(x);
+                // Printed when the mode (order and pattern) changes, not every update.
+                let key = mode.as_ref().map(|m| m.split(" (").next().unwrap_or_default().to_string());
+                if key.is_some() && key != last_mode {
+                    let text = mode.unwrap_or_default();
+                    if !a.json_lines {
+                        eprintln!("t = {:8.3} s  mode at {:.1} Hz: {text}", u.stream_time_s, x.frequency_hz);
+                    }
+                    modes.row(vec![
+                        Some(Val::Num(u.stream_time_s)),
+                        Some(Val::Num(x.frequency_hz)),
+                        Some(Val::Text(text)),
+                    ]);
+                    last_mode = key;
+                }
+            }
             if a.json_lines {
                 let line = serde_json::json!({
                     "stream_time_s": u.stream_time_s,
@@ -150,6 +210,13 @@ impl Run for TrackCmd {
                             "track_id": t.track_id, "frequency_hz": t.frequency_hz, "level_db": t.level_db,
                         })).collect::<Vec<_>>(),
                     })).collect::<Vec<_>>(),
+                    "strongest_cross": u.strongest_cross.as_ref().map(|x| serde_json::json!({
+                        "frequency_hz": x.frequency_hz,
+                        "mode": mode_text(x),
+                        "channels": x.channels.iter().map(|c| serde_json::json!({
+                            "channel": c.channel, "phase_deg": c.phase_deg, "coherence": c.coherence,
+                        })).collect::<Vec<_>>(),
+                    })),
                     "events": u.events.iter().map(|e| serde_json::json!({
                         "kind": kind_name(e.kind), "channel": e.channel, "track_id": e.track_id,
                         "frequency_hz": e.frequency_hz, "from_frequency_hz": e.from_frequency_hz,
@@ -187,6 +254,10 @@ impl Run for TrackCmd {
         if a.json_lines {
             return Ok(rep.quiet());
         }
-        Ok(rep.int("updates", "updates", count, "").int("jumps", "stage jumps", jumps, "").table(events))
+        Ok(rep
+            .int("updates", "updates", count, "")
+            .int("jumps", "stage jumps", jumps, "")
+            .table(modes)
+            .table(events))
     }
 }

@@ -29,6 +29,8 @@ fn config(fs: f64) -> pb::TrackRequest {
             window_s: None,
             update_interval_s: Some(0.1),
             jump_fraction: None,
+            reference_channel: None,
+            positions: Vec::new(),
         })),
     }
 }
@@ -288,5 +290,71 @@ async fn a_live_stream_outlives_the_call_limit_and_ends_at_its_own() {
         ended >= std::time::Duration::from_millis(2900) && ended < std::time::Duration::from_secs(5),
         "{ended:?}"
     );
+    server.stop().await;
+}
+
+#[tokio::test]
+async fn a_ring_stream_reports_its_mode_live() {
+    // Eight microphones at 45 degree steps, a tone cos(omega t - m theta_j) with m = 1 (spins
+    // towards increasing azimuth, the convention of dsp::cross), then from 2 s a standing
+    // m = 2 pattern cos(2 theta_j) cos(omega t) at another frequency: the updates carry the
+    // mode of the strongest tone, spinning m = 1 before and standing m = 2 after.
+    let server = TestServer::start().await;
+    let mut c = SpectrumServiceClient::new(server.channel().await);
+    let fs = 25_600.0;
+    let m_ch = 8;
+    let theta: Vec<f64> = (0..m_ch).map(|j| j as f64 * PI / 4.0).collect();
+    let n = (4.0 * fs) as usize;
+    let mut s = 11u64;
+    let mut x = Vec::with_capacity(n * m_ch);
+    for i in 0..n {
+        let t = i as f64 / fs;
+        for th in &theta {
+            s = s.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
+            let r = ((s >> 11) as f64 / (1u64 << 53) as f64) - 0.5;
+            let v = if t < 2.0 {
+                (2.0 * PI * 2000.0 * t - th).cos()
+            } else {
+                (2.0 * th).cos() * (2.0 * PI * 2600.0 * t).cos()
+            };
+            x.push(v + 0.05 * r);
+        }
+    }
+    let mut cfg = config(fs);
+    if let Some(pb::track_request::Item::Config(k)) = cfg.item.as_mut() {
+        k.update_interval_s = Some(0.25);
+        k.positions = theta
+            .iter()
+            .map(|th| pb::MicrophonePosition {
+                azimuth_deg: th.to_degrees(),
+                polar_angle_deg: None,
+                distance_m: None,
+            })
+            .collect();
+        if let Some(smp) = k.analysis.as_mut().and_then(|a| a.samples.as_mut()) {
+            smp.channel_count = m_ch as u32;
+        }
+    }
+    let mut msgs = vec![cfg];
+    msgs.extend(x.chunks(1280 * m_ch).map(frames));
+    let mut updates = c.track_tones(tokio_stream::iter(msgs)).await.unwrap().into_inner();
+    let (mut before, mut after) = (0, 0);
+    while let Some(u) = updates.message().await.unwrap() {
+        let Some(cross) = u.strongest_cross.clone() else { continue };
+        let modes = cross.modes.expect("a ring with positions gives modes");
+        // Windows wholly before or after the change (window 4.5 x 2048 frames = 0.36 s).
+        if u.stream_time_s < 2.0 {
+            assert_eq!(modes.dominant_order, 1, "t = {}: {modes:?}", u.stream_time_s);
+            assert_eq!(modes.pattern, pb::AzimuthalPattern::SpinningIncreasing as i32);
+            assert!((cross.frequency_hz - 2000.0).abs() < 12.5);
+            before += 1;
+        } else if u.stream_time_s > 2.4 {
+            assert_eq!(modes.dominant_order, 2, "t = {}: {modes:?}", u.stream_time_s);
+            assert_eq!(modes.pattern, pb::AzimuthalPattern::Standing as i32);
+            assert!((cross.frequency_hz - 2600.0).abs() < 12.5);
+            after += 1;
+        }
+    }
+    assert!(before >= 5 && after >= 5, "{before} / {after} updates");
     server.stop().await;
 }

@@ -11,11 +11,19 @@
 //!   more than `jump_fraction`, a `Jumped` event is emitted with the time the window's centre
 //!   passed (the strongest line changes when the new tone fills half the window).
 //!
+//! - With a reference channel, each update also holds the window's Welch cross-spectra of
+//!   every channel against it ([`super::cross::cross_spectra`]) and the reference channel's
+//!   strongest tone: phase, coherence and azimuthal mode at that tone, live.
+//!
 //! Memory per channel is one window of samples and the live tracks: a stream of any length
 //! holds no more.
 
-use super::tones::{find_tones, ToneConfig};
-use super::welch::{welch, WelchConfig, WelchError};
+use super::cross::{cross_spectra, CrossSpectra};
+use super::samples::ChannelView;
+use super::tones::{find_tones, Tone, ToneConfig};
+use super::welch::{welch, Psd, WelchConfig, WelchError};
+use crate::cancel::Cancel;
+use rayon::prelude::*;
 use std::collections::VecDeque;
 
 /// Consecutive updates a track may be missed before it ends.
@@ -90,6 +98,11 @@ pub struct Update {
     pub channels: Vec<(Vec<Track>, Option<u64>)>,
     /// Events since the previous update.
     pub events: Vec<Event>,
+    /// With a reference channel: the window's cross-spectra against it and the reference
+    /// channel's strongest tone (none when it has no tone).
+    pub cross: Option<(CrossSpectra, Option<Tone>)>,
+    /// The reference channel of `cross`.
+    pub reference: Option<usize>,
 }
 
 #[derive(Debug, Clone, Default)]
@@ -103,6 +116,7 @@ struct ChannelState {
 #[derive(Debug, Clone)]
 pub struct Tracker {
     cfg: TrackerConfig,
+    reference: Option<usize>,
     channels: Vec<ChannelState>,
     frames: u64,
     since: usize,
@@ -118,7 +132,20 @@ impl Tracker {
         if cfg.window < cfg.welch.nperseg {
             return Err(WelchError::TooShort { nperseg: cfg.welch.nperseg, samples: cfg.window });
         }
-        Ok(Self { cfg, channels: vec![ChannelState::default(); channels], frames: 0, since: 0, next_id: 1 })
+        Ok(Self {
+            cfg,
+            reference: None,
+            channels: vec![ChannelState::default(); channels],
+            frames: 0,
+            since: 0,
+            next_id: 1,
+        })
+    }
+
+    /// Adds cross-spectra against channel `reference` to every update (two channels or more).
+    pub fn with_reference(mut self, reference: usize) -> Self {
+        self.reference = Some(reference);
+        self
     }
 
     /// Samples kept between calls: one window of every channel.
@@ -163,12 +190,19 @@ impl Tracker {
         let centre_s = time_s - 0.5 * self.cfg.window as f64 / fs;
         let mut events = Vec::new();
         let mut channels = Vec::with_capacity(self.channels.len());
-        for (c, st) in self.channels.iter_mut().enumerate() {
-            let x: Vec<f64> = st.ring.iter().copied().collect();
-            let psd = welch(&x, fs, self.cfg.welch)?;
+        let windows: Vec<Vec<f64>> =
+            self.channels.iter().map(|st| st.ring.iter().copied().collect()).collect();
+        // The channels' PSDs, each on its own core.
+        let psds: Vec<Psd> =
+            windows.par_iter().map(|x| welch(x, fs, self.cfg.welch)).collect::<Result<Vec<_>, _>>()?;
+        let mut reference_strongest = None;
+        for (c, (st, psd)) in self.channels.iter_mut().zip(&psds).enumerate() {
             let df = psd.resolution_hz();
-            let mut found = find_tones(&psd, &self.cfg.tones).tones;
+            let mut found = find_tones(psd, &self.cfg.tones).tones;
             found.sort_by(|a, b| b.level_db.total_cmp(&a.level_db));
+            if Some(c) == self.reference {
+                reference_strongest = found.first().cloned();
+            }
             let mut matched = vec![false; st.tracks.len()];
             let mut live: Vec<Track> = Vec::with_capacity(found.len());
             for t in &found {
@@ -256,7 +290,15 @@ impl Tracker {
             st.tracks = live.clone();
             channels.push((live, st.strongest));
         }
-        Ok(Update { time_s, channels, events })
+        let cross = match self.reference.filter(|_| windows.len() >= 2) {
+            Some(r) => {
+                let views: Vec<ChannelView<'_>> =
+                    windows.iter().map(|x| ChannelView::of_pascals(x)).collect();
+                Some((cross_spectra(&views, r, fs, self.cfg.welch, &Cancel::default())?, reference_strongest))
+            }
+            None => None,
+        };
+        Ok(Update { time_s, channels, events, cross, reference: self.reference })
     }
 }
 

@@ -1,7 +1,9 @@
 //! Cross-channel analysis: the validated question and the answer.
 
 use super::*;
+use crate::dsp::cross::CrossSpectra;
 use crate::dsp::cross::{azimuthal_modes, cross_spectra, pair_symmetry, radians, Pattern};
+use crate::dsp::tones::Tone;
 
 /// Allowed microphone azimuth, degrees.
 const AZIMUTH: Bounds = Bounds::closed(-360.0, 360.0, "deg");
@@ -60,49 +62,8 @@ impl TryFrom<pb::CrossSpectraRequest> for CrossQuery {
         }
         let w = welch_config(&mut check, &mut defaults, welch, samples.fs, samples.recording.len());
         let tones = super::tones::tone_config(&mut check, tones);
-        let reference = match reference_channel {
-            None => {
-                defaults.note("reference_channel", "0", "the first channel");
-                0
-            }
-            Some(r) if (r as usize) < channels => r as usize,
-            Some(r) => {
-                check.other(
-                    "reference_channel",
-                    format!(
-                        "reference_channel = {r} is outside [0, {}] (the channels given)",
-                        channels.saturating_sub(1)
-                    ),
-                );
-                0
-            }
-        };
-        let azimuths_deg = if positions.is_empty() {
-            None
-        } else if positions.len() != channels {
-            check.other(
-                "positions",
-                format!(
-                    "positions holds {} entries; give one per channel ({channels}) or none",
-                    positions.len()
-                ),
-            );
-            None
-        } else {
-            let mut az = Vec::with_capacity(channels);
-            for (i, p) in positions.iter().enumerate() {
-                let path = format!("positions[{i}]");
-                let pb::MicrophonePosition { azimuth_deg, polar_angle_deg, distance_m } = *p;
-                az.push(check.range(&path, AZIMUTH.check("azimuth_deg", azimuth_deg)).unwrap_or(0.0));
-                if let Some(v) = polar_angle_deg {
-                    check.range(&path, POLAR.check("polar_angle_deg", v));
-                }
-                if let Some(v) = distance_m {
-                    check.range(&path, DISTANCE.check("distance_m", v));
-                }
-            }
-            Some(az)
-        };
+        let (reference, azimuths_deg) =
+            reference_and_azimuths(&mut check, &mut defaults, reference_channel, &positions, channels, "");
         let spectra_points = spectra_max_points.and_then(|m| {
             check.range("", SPECTRA_POINTS.check("spectra_max_points", f64::from(m))).map(|v| v as usize)
         });
@@ -126,6 +87,124 @@ fn pattern(p: Pattern) -> pb::AzimuthalPattern {
         Pattern::Standing => pb::AzimuthalPattern::Standing,
         Pattern::SpinningIncreasing => pb::AzimuthalPattern::SpinningIncreasing,
         Pattern::SpinningDecreasing => pb::AzimuthalPattern::SpinningDecreasing,
+    }
+}
+
+/// The reference channel (unset: 0) and the microphone azimuths (one position per channel, or
+/// none), each checked, with `prefix` before the field names.
+pub(crate) fn reference_and_azimuths(
+    check: &mut Check,
+    defaults: &mut Defaults,
+    reference_channel: Option<u32>,
+    positions: &[pb::MicrophonePosition],
+    channels: usize,
+    prefix: &str,
+) -> (usize, Option<Vec<f64>>) {
+    let reference = match reference_channel {
+        None => {
+            defaults.note(&format!("{prefix}reference_channel"), "0", "the first channel");
+            0
+        }
+        Some(r) if (r as usize) < channels => r as usize,
+        Some(r) => {
+            check.other(
+                &format!("{prefix}reference_channel"),
+                format!(
+                    "reference_channel = {r} is outside [0, {}] (the channels given)",
+                    channels.saturating_sub(1)
+                ),
+            );
+            0
+        }
+    };
+    let azimuths_deg = if positions.is_empty() {
+        None
+    } else if positions.len() != channels {
+        check.other(
+            &format!("{prefix}positions"),
+            format!("positions holds {} entries; give one per channel ({channels}) or none", positions.len()),
+        );
+        None
+    } else {
+        let mut az = Vec::with_capacity(channels);
+        for (i, p) in positions.iter().enumerate() {
+            let path = format!("{prefix}positions[{i}]");
+            let pb::MicrophonePosition { azimuth_deg, polar_angle_deg, distance_m } = *p;
+            az.push(check.range(&path, AZIMUTH.check("azimuth_deg", azimuth_deg)).unwrap_or(0.0));
+            if let Some(v) = polar_angle_deg {
+                check.range(&path, POLAR.check("polar_angle_deg", v));
+            }
+            if let Some(v) = distance_m {
+                check.range(&path, DISTANCE.check("distance_m", v));
+            }
+        }
+        Some(az)
+    };
+    (reference, azimuths_deg)
+}
+
+/// One tone of the reference channel with every other channel at its peak bin: phase,
+/// coherence and relative level; with two channels their symmetry, with three or more and
+/// azimuths the azimuthal modes.
+pub(crate) fn cross_tone(
+    cs: &CrossSpectra,
+    reference: usize,
+    azimuths_deg: Option<&[f64]>,
+    t: &Tone,
+) -> pb::CrossTone {
+    let channels = cs.psd.len() + 1;
+    let others: Vec<usize> = (0..channels).filter(|&c| c != reference).collect();
+    let k = t.peak_bin;
+    let chans: Vec<pb::ChannelAtTone> = others
+        .iter()
+        .enumerate()
+        .map(|(i, &c)| pb::ChannelAtTone {
+            channel: c as u32,
+            phase_deg: cs.phase_deg(i, k),
+            coherence: cs.coherence(i, k),
+            relative_level_db: 10.0 * (cs.psd[i][k] / cs.reference_psd[k]).log10(),
+        })
+        .collect();
+    let pair = (channels == 2).then(|| {
+        let p = pair_symmetry(cs.phase_deg(0, k), cs.coherence(0, k));
+        pb::PairSymmetry { symmetric: p.symmetric, confidence: p.confidence }
+    });
+    let modes = match (azimuths_deg, channels >= 3) {
+        (Some(az), true) => {
+            // Amplitudes in channel order: the reference's own is real.
+            let mut a = Vec::with_capacity(channels);
+            let mut theta = Vec::with_capacity(channels);
+            for (c, th) in radians(az).into_iter().enumerate() {
+                theta.push(th);
+                if c == reference {
+                    a.push(realfft::num_complex::Complex::new(cs.reference_psd[k].sqrt(), 0.0));
+                } else {
+                    let i = others.iter().position(|&o| o == c).unwrap_or(0);
+                    a.push(cs.locked_amplitude(i, k));
+                }
+            }
+            let d = azimuthal_modes(&a, &theta);
+            Some(pb::AzimuthalModes {
+                orders: d
+                    .energy
+                    .iter()
+                    .map(|&(order, energy)| pb::AzimuthalOrder { order, energy })
+                    .collect(),
+                dominant_order: d.dominant_order,
+                dominant_share: d.dominant_share,
+                spin_ratio: d.spin_ratio,
+                pattern: pattern(d.pattern) as i32,
+            })
+        }
+        _ => None,
+    };
+    pb::CrossTone {
+        frequency_hz: t.frequency_hz,
+        bin_frequency_hz: t.peak_bin_hz,
+        level_db: t.level_db,
+        channels: chans,
+        pair,
+        modes,
     }
 }
 
@@ -153,61 +232,7 @@ pub fn cross_response(q: &CrossQuery) -> Result<pb::CrossSpectraResponse, ApiErr
     order.sort_by(|&a, &b| set.tones[b].level_db.total_cmp(&set.tones[a].level_db));
     let tones = order
         .iter()
-        .map(|&ti| {
-            let t = &set.tones[ti];
-            let k = t.peak_bin;
-            let chans: Vec<pb::ChannelAtTone> = others
-                .iter()
-                .enumerate()
-                .map(|(i, &c)| pb::ChannelAtTone {
-                    channel: c as u32,
-                    phase_deg: cs.phase_deg(i, k),
-                    coherence: cs.coherence(i, k),
-                    relative_level_db: 10.0 * (cs.psd[i][k] / cs.reference_psd[k]).log10(),
-                })
-                .collect();
-            let pair = (channels == 2).then(|| {
-                let p = pair_symmetry(cs.phase_deg(0, k), cs.coherence(0, k));
-                pb::PairSymmetry { symmetric: p.symmetric, confidence: p.confidence }
-            });
-            let modes = match (&q.azimuths_deg, channels >= 3) {
-                (Some(az), true) => {
-                    // Amplitudes in channel order: the reference's own is real.
-                    let mut a = Vec::with_capacity(channels);
-                    let mut theta = Vec::with_capacity(channels);
-                    for (c, th) in radians(az).into_iter().enumerate() {
-                        theta.push(th);
-                        if c == q.reference {
-                            a.push(realfft::num_complex::Complex::new(cs.reference_psd[k].sqrt(), 0.0));
-                        } else {
-                            let i = others.iter().position(|&o| o == c).unwrap_or(0);
-                            a.push(cs.locked_amplitude(i, k));
-                        }
-                    }
-                    let d = azimuthal_modes(&a, &theta);
-                    Some(pb::AzimuthalModes {
-                        orders: d
-                            .energy
-                            .iter()
-                            .map(|&(order, energy)| pb::AzimuthalOrder { order, energy })
-                            .collect(),
-                        dominant_order: d.dominant_order,
-                        dominant_share: d.dominant_share,
-                        spin_ratio: d.spin_ratio,
-                        pattern: pattern(d.pattern) as i32,
-                    })
-                }
-                _ => None,
-            };
-            pb::CrossTone {
-                frequency_hz: t.frequency_hz,
-                bin_frequency_hz: t.peak_bin_hz,
-                level_db: t.level_db,
-                channels: chans,
-                pair,
-                modes,
-            }
-        })
+        .map(|&ti| cross_tone(&cs, q.reference, q.azimuths_deg.as_deref(), &set.tones[ti]))
         .collect();
     let spectra = match q.spectra_points {
         None => Vec::new(),

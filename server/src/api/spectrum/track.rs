@@ -20,6 +20,8 @@ pub struct TrackSession {
     messages: usize,
     /// Defaults applied to the configuration.
     pub defaults: Defaults,
+    /// Microphone azimuths, degrees, when given (live mode decomposition).
+    azimuths_deg: Option<Vec<f64>>,
 }
 
 fn config_missing() -> ApiError {
@@ -37,7 +39,14 @@ impl TrackSession {
     /// A missing configuration; bad fields under `config`.
     pub fn start(first: pb::TrackRequest) -> Result<(Self, Vec<pb::TrackUpdate>), ApiError> {
         let Some(pb::track_request::Item::Config(cfg)) = first.item else { return Err(config_missing()) };
-        let pb::TrackConfig { analysis, window_s, update_interval_s, jump_fraction } = cfg;
+        let pb::TrackConfig {
+            analysis,
+            window_s,
+            update_interval_s,
+            jump_fraction,
+            reference_channel,
+            positions,
+        } = cfg;
         let Some(analysis) = analysis else {
             let mut check = Check::new();
             check.missing(
@@ -62,6 +71,26 @@ impl TrackSession {
             }
         }
         let mut defaults = q.defaults.clone();
+        let channels = q.samples.recording.channel_count();
+        let cross = if reference_channel.is_some() || !positions.is_empty() {
+            if channels < 2 {
+                check.other(
+                    "config.reference_channel",
+                    format!("config.reference_channel: cross-spectra need at least 2 channels; this stream has {channels}"),
+                );
+            }
+            let (r, az) = super::cross::reference_and_azimuths(
+                &mut check,
+                &mut defaults,
+                reference_channel,
+                &positions,
+                channels,
+                "config.",
+            );
+            Some((r, az))
+        } else {
+            None
+        };
         let fs = q.samples.fs;
         let n = q.welch.nperseg;
         let window = match window_s {
@@ -122,7 +151,10 @@ impl TrackSession {
             tones: q.tones,
             jump_fraction: jump.unwrap_or(0.05),
         };
-        let tracker = Tracker::new(cfg, channels).map_err(|e| welch_error(e, "config.window_s"))?;
+        let mut tracker = Tracker::new(cfg, channels).map_err(|e| welch_error(e, "config.window_s"))?;
+        if let Some((r, _)) = &cross {
+            tracker = tracker.with_reference(*r);
+        }
         // The first frames, if the configuration carried any.
         let first_frames = q.samples.recording.clone();
         let template = {
@@ -131,7 +163,8 @@ impl TrackSession {
             t.clear();
             t
         };
-        let mut s = Self { tracker, template, channels, messages: 1, defaults };
+        let azimuths_deg = cross.and_then(|(_, az)| az);
+        let mut s = Self { tracker, template, channels, messages: 1, defaults, azimuths_deg };
         let updates = s.feed(&first_frames)?;
         Ok((s, updates))
     }
@@ -185,12 +218,16 @@ impl TrackSession {
                 description: format!("frames: {e}"),
             }])
         })?;
-        Ok(updates.into_iter().map(update_message).collect())
+        Ok(updates.into_iter().map(|u| update_message(u, self.azimuths_deg.as_deref())).collect())
     }
 }
 
-fn update_message(u: Update) -> pb::TrackUpdate {
+fn update_message(u: Update, azimuths_deg: Option<&[f64]>) -> pb::TrackUpdate {
+    let strongest_cross = u.cross.as_ref().and_then(|(cs, tone)| {
+        tone.as_ref().map(|t| super::cross::cross_tone(cs, u.reference.unwrap_or(0), azimuths_deg, t))
+    });
     pb::TrackUpdate {
+        strongest_cross,
         stream_time_s: u.time_s,
         channels: u
             .channels
