@@ -108,7 +108,7 @@ pub(crate) fn reference_and_azimuths(
         Some(r) if (r as usize) < channels => r as usize,
         Some(r) => {
             check.other(
-                &format!("{prefix}reference_channel"),
+                format!("{prefix}reference_channel"),
                 format!(
                     "reference_channel = {r} is outside [0, {}] (the channels given)",
                     channels.saturating_sub(1)
@@ -121,7 +121,7 @@ pub(crate) fn reference_and_azimuths(
         None
     } else if positions.len() != channels {
         check.other(
-            &format!("{prefix}positions"),
+            format!("{prefix}positions"),
             format!("positions holds {} entries; give one per channel ({channels}) or none", positions.len()),
         );
         None
