@@ -161,9 +161,11 @@ async fn a_cancelled_stream_frees_its_windows_at_once() {
         c.track_tones(tokio_stream::wrappers::ReceiverStream::new(rx)).await.unwrap().into_inner();
     let first = updates.message().await.unwrap().expect("an update");
     assert!(!first.channels.is_empty());
-    // Default window: 8 segments at 50 % overlap, 9216 frames of 8 bytes, held now.
+    // Default window: 8 segments of 2048 frames at 50 % overlap (9216 frames): the spectra of
+    // 8 segments (1025 complex bins of 16 bytes) and one segment of pending f64 samples.
     let during = held(&ch).await;
-    assert_eq!(during, 9216 * 8, "bytes held during the stream");
+    // The budget counts whole KiB.
+    assert_eq!(during, u64::div_ceil(8 * 1025 * 16 + 2048 * 8, 1024) * 1024, "bytes held during the stream");
     // Cancel: drop the response stream and the request sender.
     drop(updates);
     drop(tx);
@@ -235,7 +237,11 @@ async fn a_client_that_stops_reading_is_held_back() {
     assert!(last < 20_000, "{last} blocks absorbed before the stall");
     let held_b = held(&ch).await;
     assert_eq!(held_a, held_b);
-    assert_eq!(held_b, 1152 * 8, "bytes held: one window of 1152 frames");
+    assert_eq!(
+        held_b,
+        u64::div_ceil(8 * 129 * 16 + 256 * 8, 1024) * 1024,
+        "bytes held (whole KiB): the spectra of one window's 8 segments and one segment"
+    );
     // Such a client holds its stream (one window, the queue and the HTTP/2 windows) until it
     // reads, its connection closes or the stream's time limit passes; dropping only the
     // response stream does not cancel the call while the client's own sending is stalled on

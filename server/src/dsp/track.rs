@@ -2,8 +2,9 @@
 //! tones matched to tracks with stable ids across updates, and events when a tone appears,
 //! vanishes, or the strongest tone jumps to another frequency (a stage jump).
 //!
-//! - Each update is the Welch PSD and tone search ([`super::tones::find_tones`]) of the last
-//!   `window` frames of each channel.
+//! - Each update is the Welch PSD and tone search ([`super::tones::find_tones`]) of the
+//!   segments wholly inside the last `window` frames of each channel; segments lie on a fixed
+//!   grid of stream time and each is transformed once.
 //! - A tone continues a track when it lies within `max(2 bins, jump_fraction / 2 x f)` of the
 //!   track's last frequency (strongest tones matched first); otherwise it opens a track
 //!   (`Appeared`). A track missed by [`MISSES_TO_VANISH`] updates in a row ends (`Vanished`).
@@ -12,19 +13,22 @@
 //!   passed (the strongest line changes when the new tone fills half the window).
 //!
 //! - With a reference channel, each update also holds the window's Welch cross-spectra of
-//!   every channel against it ([`super::cross::cross_spectra`]) and the reference channel's
+//!   every channel against it (scaled as [`super::cross::cross_spectra`]) and the reference channel's
 //!   strongest tone: phase, coherence and azimuthal mode at that tone, live.
 //!
-//! Memory per channel is one window of samples and the live tracks: a stream of any length
-//! holds no more.
+//! Memory per channel is the segment spectra of one window, less than one segment of samples
+//! and the live tracks: a stream of any length holds no more.
 
-use super::cross::{cross_spectra, CrossSpectra};
-use super::samples::ChannelView;
+use super::cross::CrossSpectra;
+use super::samples::{first_non_finite, sum, SampleMoments};
 use super::tones::{find_tones, Tone, ToneConfig};
-use super::welch::{welch, Psd, WelchConfig, WelchError};
-use crate::cancel::Cancel;
+use super::welch::{plan, Detrend, Psd, WelchConfig, WelchError, MAX_SEGMENT, MIN_SEGMENT};
+use super::window::WindowSums;
 use rayon::prelude::*;
+use realfft::num_complex::Complex;
+use realfft::RealToComplex;
 use std::collections::VecDeque;
+use std::sync::Arc;
 
 /// Consecutive updates a track may be missed before it ends.
 pub const MISSES_TO_VANISH: u32 = 2;
@@ -107,13 +111,25 @@ pub struct Update {
 
 #[derive(Debug, Clone, Default)]
 struct ChannelState {
-    ring: VecDeque<f64>,
+    /// Samples from the start of the next segment on (fewer than one segment).
+    pending: Vec<f64>,
     tracks: Vec<Track>,
     strongest: Option<u64>,
 }
 
+/// One segment's spectra: its first frame and the one-sided FFT of every channel's windowed,
+/// detrended segment.
+struct Segment {
+    start: u64,
+    spectra: Vec<Vec<Complex<f64>>>,
+}
+
 /// A tracker fed frames as they arrive.
-#[derive(Debug, Clone)]
+///
+/// Segments lie on a fixed grid of stream time (segment s starts at frame s x step), and each
+/// is transformed once, when its last frame arrives; an update averages the segments wholly
+/// inside its window (the same Welch estimate as [`welch`] over those segments). So the work
+/// per second of stream does not grow with the update rate or the window length.
 pub struct Tracker {
     cfg: TrackerConfig,
     reference: Option<usize>,
@@ -121,17 +137,44 @@ pub struct Tracker {
     frames: u64,
     since: usize,
     next_id: u64,
+    window: Vec<f64>,
+    sums: WindowSums,
+    fft: Arc<dyn RealToComplex<f64>>,
+    step: usize,
+    /// Frame at which the next segment starts.
+    next_start: u64,
+    /// Segments that can still fall inside a window, oldest first.
+    segments: VecDeque<Segment>,
+}
+
+impl std::fmt::Debug for Tracker {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("Tracker")
+            .field("cfg", &self.cfg)
+            .field("frames", &self.frames)
+            .finish_non_exhaustive()
+    }
 }
 
 impl Tracker {
     /// A tracker of `channels` channels.
     ///
     /// # Errors
-    /// [`WelchError::TooShort`] when the window is shorter than one segment.
+    /// [`WelchError::TooShort`] when the window is shorter than one segment;
+    /// [`WelchError::SegmentLength`] or [`WelchError::Overlap`] for bad Welch settings.
     pub fn new(cfg: TrackerConfig, channels: usize) -> Result<Self, WelchError> {
-        if cfg.window < cfg.welch.nperseg {
-            return Err(WelchError::TooShort { nperseg: cfg.welch.nperseg, samples: cfg.window });
+        let n = cfg.welch.nperseg;
+        if !(MIN_SEGMENT..=MAX_SEGMENT).contains(&n) {
+            return Err(WelchError::SegmentLength(n));
         }
+        if cfg.welch.noverlap >= n {
+            return Err(WelchError::Overlap { noverlap: cfg.welch.noverlap, nperseg: n });
+        }
+        if cfg.window < n {
+            return Err(WelchError::TooShort { nperseg: n, samples: cfg.window });
+        }
+        let window = cfg.welch.window.values(n);
+        let sums = WindowSums::of(&window);
         Ok(Self {
             cfg,
             reference: None,
@@ -139,6 +182,12 @@ impl Tracker {
             frames: 0,
             since: 0,
             next_id: 1,
+            window,
+            sums,
+            fft: plan(n),
+            step: n - cfg.welch.noverlap,
+            next_start: 0,
+            segments: VecDeque::new(),
         })
     }
 
@@ -148,14 +197,59 @@ impl Tracker {
         self
     }
 
-    /// Samples kept between calls: one window of every channel.
+    /// Segments a window holds at most.
+    fn segments_per_window(&self) -> usize {
+        (self.cfg.window - self.cfg.welch.noverlap) / self.step
+    }
+
+    /// Samples kept between calls, in f64 units: the segment spectra a window can hold
+    /// (complex, two units per bin) and less than one segment of pending samples, per channel.
     pub fn held_samples(&self) -> usize {
-        self.cfg.window.saturating_mul(self.channels.len())
+        let bins = self.cfg.welch.nperseg / 2 + 1;
+        let per_channel = self.segments_per_window() * bins * 2 + self.cfg.welch.nperseg;
+        per_channel.saturating_mul(self.channels.len())
     }
 
     /// Frames pushed so far.
     pub fn frames(&self) -> u64 {
         self.frames
+    }
+
+    /// Transforms the segment starting at `next_start` (every channel's pending samples hold
+    /// it), each channel on its own core.
+    fn take_segment(&mut self) -> Result<(), WelchError> {
+        let n = self.cfg.welch.nperseg;
+        let (fft, w, detrend) = (&self.fft, &self.window, self.cfg.welch.detrend);
+        let start = self.next_start;
+        let spectra: Vec<Vec<Complex<f64>>> = self
+            .channels
+            .par_iter()
+            .map(|st| {
+                let seg = &st.pending[..n];
+                if let Some((i, v)) = first_non_finite(seg) {
+                    return Err(WelchError::NotFinite { index: start as usize + i, value: v });
+                }
+                let mean = match detrend {
+                    Detrend::Mean => sum(seg) / n as f64,
+                    Detrend::None => 0.0,
+                };
+                let mut buf: Vec<f64> = seg.iter().zip(w).map(|(v, wv)| (v - mean) * wv).collect();
+                let mut out = fft.make_output_vec();
+                let mut scratch = fft.make_scratch_vec();
+                // Lengths match the plan by construction.
+                let _ = fft.process_with_scratch(&mut buf, &mut out, &mut scratch);
+                Ok(out)
+            })
+            .collect::<Result<_, _>>()?;
+        for st in &mut self.channels {
+            st.pending.drain(..self.step);
+        }
+        self.segments.push_back(Segment { start, spectra });
+        while self.segments.len() > self.segments_per_window() {
+            self.segments.pop_front();
+        }
+        self.next_start += self.step as u64;
+        Ok(())
     }
 
     /// Appends interleaved frames (pascals) and returns the updates they complete.
@@ -164,24 +258,88 @@ impl Tracker {
     /// [`WelchError::NotFinite`] for a sample that is not finite.
     pub fn push(&mut self, interleaved: &[f64]) -> Result<Vec<Update>, WelchError> {
         let m = self.channels.len().max(1);
+        let n = self.cfg.welch.nperseg;
         let mut out = Vec::new();
         for frame in interleaved.chunks_exact(m) {
             for (st, &v) in self.channels.iter_mut().zip(frame) {
-                if st.ring.len() == self.cfg.window {
-                    st.ring.pop_front();
-                }
-                st.ring.push_back(v);
+                st.pending.push(v);
             }
             self.frames += 1;
             self.since += 1;
-            if self.since >= self.cfg.update
-                && self.channels.first().is_some_and(|c| c.ring.len() == self.cfg.window)
-            {
+            if self.channels.first().is_some_and(|c| c.pending.len() == n) {
+                self.take_segment()?;
+            }
+            if self.since >= self.cfg.update && self.frames >= self.cfg.window as u64 {
                 self.since = 0;
                 out.push(self.analyse()?);
             }
         }
         Ok(out)
+    }
+
+    /// The Welch PSD of every channel and, with a reference, the cross-spectra, averaged over
+    /// the segments wholly inside the window that ends now (scaled as [`welch`] and
+    /// [`cross_spectra`] scale them).
+    fn window_spectra(&self) -> (Vec<Psd>, Option<CrossSpectra>) {
+        let first = self.frames.saturating_sub(self.cfg.window as u64);
+        let inside: Vec<&Segment> = self.segments.iter().filter(|s| s.start >= first).collect();
+        let k = inside.len().max(1);
+        let n = self.cfg.welch.nperseg;
+        let bins = n / 2 + 1;
+        let last = if n % 2 == 0 { bins - 1 } else { bins };
+        let scale = 1.0 / (self.cfg.fs * self.sums.sum_sq) / k as f64;
+        let factor = |b: usize| if b == 0 || b == last { scale } else { 2.0 * scale };
+        let psds: Vec<Psd> = (0..self.channels.len())
+            .into_par_iter()
+            .map(|c| {
+                let mut density = vec![0.0; bins];
+                for s in &inside {
+                    for (d, x) in density.iter_mut().zip(&s.spectra[c]) {
+                        *d += x.norm_sqr();
+                    }
+                }
+                for (b, d) in density.iter_mut().enumerate() {
+                    *d *= factor(b);
+                }
+                Psd {
+                    fs: self.cfg.fs,
+                    config: self.cfg.welch,
+                    density,
+                    segments: inside.len(),
+                    unused_samples: 0,
+                    sums: self.sums,
+                    moments: SampleMoments::default(),
+                }
+            })
+            .collect();
+        let cross =
+            self.reference.filter(|&r| self.channels.len() >= 2 && r < self.channels.len()).map(|r| {
+                let others: Vec<usize> = (0..self.channels.len()).filter(|&c| c != r).collect();
+                let csd: Vec<Vec<Complex<f64>>> = others
+                    .par_iter()
+                    .map(|&c| {
+                        let mut acc = vec![Complex::new(0.0, 0.0); bins];
+                        for s in &inside {
+                            for ((a, x), y) in acc.iter_mut().zip(&s.spectra[r]).zip(&s.spectra[c]) {
+                                *a += x.conj() * y;
+                            }
+                        }
+                        for (b, a) in acc.iter_mut().enumerate() {
+                            *a *= factor(b);
+                        }
+                        acc
+                    })
+                    .collect();
+                CrossSpectra {
+                    fs: self.cfg.fs,
+                    config: self.cfg.welch,
+                    segments: inside.len(),
+                    reference_psd: psds[r].density.clone(),
+                    psd: others.iter().map(|&c| psds[c].density.clone()).collect(),
+                    csd,
+                }
+            });
+        (psds, cross)
     }
 
     fn analyse(&mut self) -> Result<Update, WelchError> {
@@ -190,16 +348,20 @@ impl Tracker {
         let centre_s = time_s - 0.5 * self.cfg.window as f64 / fs;
         let mut events = Vec::new();
         let mut channels = Vec::with_capacity(self.channels.len());
-        let windows: Vec<Vec<f64>> =
-            self.channels.iter().map(|st| st.ring.iter().copied().collect()).collect();
-        // The channels' PSDs, each on its own core.
-        let psds: Vec<Psd> =
-            windows.par_iter().map(|x| welch(x, fs, self.cfg.welch)).collect::<Result<Vec<_>, _>>()?;
+        let (psds, cross) = self.window_spectra();
+        // Tones of every channel, each on its own core.
+        let tone_cfg = self.cfg.tones;
+        let found_all: Vec<Vec<Tone>> = psds
+            .par_iter()
+            .map(|psd| {
+                let mut found = find_tones(psd, &tone_cfg).tones;
+                found.sort_by(|a, b| b.level_db.total_cmp(&a.level_db));
+                found
+            })
+            .collect();
         let mut reference_strongest = None;
-        for (c, (st, psd)) in self.channels.iter_mut().zip(&psds).enumerate() {
+        for (c, (st, (psd, found))) in self.channels.iter_mut().zip(psds.iter().zip(found_all)).enumerate() {
             let df = psd.resolution_hz();
-            let mut found = find_tones(psd, &self.cfg.tones).tones;
-            found.sort_by(|a, b| b.level_db.total_cmp(&a.level_db));
             if Some(c) == self.reference {
                 reference_strongest = found.first().cloned();
             }
@@ -290,14 +452,7 @@ impl Tracker {
             st.tracks = live.clone();
             channels.push((live, st.strongest));
         }
-        let cross = match self.reference.filter(|_| windows.len() >= 2) {
-            Some(r) => {
-                let views: Vec<ChannelView<'_>> =
-                    windows.iter().map(|x| ChannelView::of_pascals(x)).collect();
-                Some((cross_spectra(&views, r, fs, self.cfg.welch, &Cancel::default())?, reference_strongest))
-            }
-            None => None,
-        };
+        let cross = cross.map(|cs| (cs, reference_strongest));
         Ok(Update { time_s, channels, events, cross, reference: self.reference })
     }
 }

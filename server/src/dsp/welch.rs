@@ -159,7 +159,7 @@ pub fn default_segment(fs: f64, samples: usize) -> usize {
     want.min(cap).clamp(MIN_SEGMENT, MAX_SEGMENT)
 }
 
-fn plan(n: usize) -> Arc<dyn RealToComplex<f64>> {
+pub(crate) fn plan(n: usize) -> Arc<dyn RealToComplex<f64>> {
     static PLANNER: OnceLock<Mutex<RealFftPlanner<f64>>> = OnceLock::new();
     let planner = PLANNER.get_or_init(|| Mutex::new(RealFftPlanner::new()));
     // A poisoned lock only means another thread panicked while planning; the cache is still
