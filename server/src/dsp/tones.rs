@@ -135,6 +135,24 @@ pub const BROAD_MIN_TONE_TO_FLOOR_DB: f64 = 10.0;
 /// offsets from the bin centre of 0 to 0.5 bin. The window's power response is the DTFT of its
 /// 64-point periodic form.
 pub fn single_tone_width_bins(window: Window) -> f64 {
+    // Computed once per window kind (a few thousand sines): updates of a live stream ask for it
+    // many times a second.
+    static CACHE: [std::sync::OnceLock<f64>; 4] = [
+        std::sync::OnceLock::new(),
+        std::sync::OnceLock::new(),
+        std::sync::OnceLock::new(),
+        std::sync::OnceLock::new(),
+    ];
+    let slot = match window {
+        Window::Hann => 0,
+        Window::Hamming => 1,
+        Window::BlackmanHarris => 2,
+        Window::FlatTop => 3,
+    };
+    *CACHE[slot].get_or_init(|| single_tone_width_uncached(window))
+}
+
+fn single_tone_width_uncached(window: Window) -> f64 {
     let w = window.values(64);
     let n = w.len() as f64;
     let response = |delta: f64| {
@@ -175,25 +193,43 @@ impl ToneSet {
 /// so the cost is O(n w) memory moves of a few cache lines rather than a selection per bin.
 pub fn floor_estimate(p: &[f64], width: usize) -> Vec<f64> {
     let half = width.max(3) / 2;
-    let logs: Vec<f64> = p.iter().map(|v| v.max(f64::MIN_POSITIVE).ln()).collect();
+    // The median of ln(p) is ln of the median of p (ln is increasing and the median is an
+    // element), so the values are ranked as they are: no logarithms to take.
+    let logs: Vec<f64> = p.iter().map(|v| v.max(f64::MIN_POSITIVE)).collect();
     let mut win: Vec<f64> = Vec::with_capacity(2 * half + 1);
     let (mut lo, mut hi) = (0, 0);
     let mut out = Vec::with_capacity(p.len());
+    // Rank of x in the sorted window: a branch-free count beats a binary search on a window
+    // this short.
+    let rank = |win: &[f64], x: f64| win.iter().filter(|v| **v < x).count();
     for k in 0..p.len() {
         let (want_lo, want_hi) = (k.saturating_sub(half), (k + half + 1).min(p.len()));
+        // In the interior one value leaves and one enters: one shift of the values between
+        // their ranks instead of a removal and an insertion.
+        if hi < want_hi && lo < want_lo {
+            let (x_out, x_in) = (logs[lo], logs[hi]);
+            let (i_out, i_in) = (rank(&win, x_out), rank(&win, x_in));
+            if i_in > i_out {
+                win.copy_within(i_out + 1..i_in, i_out);
+                win[i_in - 1] = x_in;
+            } else {
+                win.copy_within(i_in..i_out, i_in + 1);
+                win[i_in] = x_in;
+            }
+            lo += 1;
+            hi += 1;
+        }
         while hi < want_hi {
             let x = logs[hi];
-            let at = win.partition_point(|v| v.total_cmp(&x).is_lt());
-            win.insert(at, x);
+            win.insert(rank(&win, x), x);
             hi += 1;
         }
         while lo < want_lo {
             let x = logs[lo];
-            let at = win.partition_point(|v| v.total_cmp(&x).is_lt());
-            win.remove(at);
+            win.remove(rank(&win, x));
             lo += 1;
         }
-        out.push(win[win.len() / 2].exp());
+        out.push(win[win.len() / 2]);
     }
     out
 }
@@ -461,10 +497,13 @@ mod tests {
             let half = width.max(3) / 2;
             let fast = floor_estimate(&p, width);
             for (k, f) in fast.iter().enumerate() {
-                let mut w: Vec<f64> =
-                    p[k.saturating_sub(half)..(k + half + 1).min(p.len())].iter().map(|v| v.ln()).collect();
+                let mut w: Vec<f64> = p[k.saturating_sub(half)..(k + half + 1).min(p.len())].to_vec();
                 w.sort_by(f64::total_cmp);
-                assert_eq!(*f, w[w.len() / 2].exp(), "width {width}, bin {k}");
+                assert_eq!(*f, w[w.len() / 2], "width {width}, bin {k}");
+                // The same element as the median of the logarithms (ln is increasing).
+                let mut l: Vec<f64> = w.iter().map(|v| v.ln()).collect();
+                l.sort_by(f64::total_cmp);
+                assert!((f.ln() - l[l.len() / 2]).abs() <= 1e-12 * l[l.len() / 2].abs().max(1.0));
             }
         }
     }
