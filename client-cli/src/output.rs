@@ -142,6 +142,7 @@ fn val_json(v: &Val) -> Value {
 #[derive(Debug, Clone, Default)]
 pub struct Report {
     quiet: bool,
+    title_only: bool,
     title: String,
     rows: Vec<Row>,
     tables: Vec<Table>,
@@ -190,6 +191,13 @@ impl Report {
     /// A report that prints nothing (its content went elsewhere, e.g. CSV on stdout).
     pub fn quiet(mut self) -> Self {
         self.quiet = true;
+        self
+    }
+
+    /// A report whose table form is its title line alone (the rows and provenance stay in
+    /// the JSON form): for results written to a file.
+    pub fn title_only(mut self) -> Self {
+        self.title_only = true;
         self
     }
 
@@ -248,6 +256,9 @@ impl Report {
     /// Human output: title, aligned "label  value unit" lines, then notes and sources.
     pub fn to_table(&self) -> String {
         let mut out = format!("{}\n", self.title);
+        if self.title_only {
+            return out;
+        }
         let w = self.rows.iter().map(|r| r.label.len()).max().unwrap_or(0);
         for r in &self.rows {
             let v = match &r.value {

@@ -248,7 +248,8 @@ pub struct SweepCmd {
     /// Explicit values, comma separated.
     #[arg(long, value_delimiter = ',')]
     values: Vec<f64>,
-    /// Also write the points as CSV to this file ("-" for standard output instead of the table).
+    /// Write the points as CSV to this file and print a one-line summary instead of the table
+    /// ("-": the CSV on standard output instead of the table).
     #[arg(long)]
     csv: Option<std::path::PathBuf>,
     /// Write the screech map as an SVG plot: frequency against the swept value for Powell and
@@ -590,7 +591,18 @@ impl Run for SweepCmd {
             }
             std::fs::write(path, csv)
                 .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
-            eprintln!("wrote {} points to {}", r.points.len(), path.display());
+            // The points went to the file: one summary line, not the table again (cautions
+            // and sources stay in --json).
+            let rep = Report::new(format!(
+                "Screech sweep: {} points written to {} ({:.3} ms server time)",
+                r.points.len(),
+                path.display(),
+                r.compute_time_s * 1e3
+            ))
+            .int("points", "points", r.points.len() as u64, "")
+            .text("csv_file", "CSV file", path.display().to_string())
+            .num("compute_time_s", "server compute time", r.compute_time_s, "s");
+            return Ok(rep.provenance(r.provenance).title_only());
         }
         Ok(Report::new(format!(
             "Screech sweep ({} points, {:.3} ms server time)",

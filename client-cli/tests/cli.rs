@@ -51,6 +51,10 @@ async fn cli_answers_with_units_json_csv_and_exit_codes() {
             ],
         );
         assert!(s.status.success(), "{}", String::from_utf8_lossy(&s.stderr));
+        // The points went to the file: one summary line on standard output.
+        let out = String::from_utf8_lossy(&s.stdout);
+        assert_eq!(out.lines().count(), 1, "{out}");
+        assert!(out.contains("8 points written to"), "{out}");
         let sweep_csv = std::fs::read_to_string(&csv).unwrap();
         let screech = jetloop(&u, &["--json", "screech", "--mj", "1.5", "--dj-m", "0.02"]);
         (jet, table, bad, sweep_csv, screech)
