@@ -236,8 +236,8 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
         ..Default::default()
     });
     let msgs = vec![
-        pb::SampleBlock { request: Some(first), ..Default::default() },
-        pb::SampleBlock { frames: raw.into(), ..Default::default() },
+        pb::SampleBlock { request: Some(first.clone()), ..Default::default() },
+        pb::SampleBlock { frames: raw.clone().into(), ..Default::default() },
     ];
     let streamed = s.extract_tones_stream(tokio_stream::iter(msgs)).await.unwrap().into_inner();
     let r = s.extract_tones(req).await.unwrap().into_inner();
@@ -255,6 +255,32 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
     assert!(best.band_low_hz <= f_stage && f_stage <= best.band_high_hz && best.band_distance == 0.0);
     let other = near(f_none);
     assert!(other.best_stage.is_none() && other.stages.is_empty(), "{other:?}");
+    // A live tracking stream labels its tracked tones the same way.
+    let mut analysis = first.clone();
+    analysis.welch = Some(pb::WelchOptions {
+        segment: Some(pb::welch_options::Segment::SegmentLength(8192)),
+        ..Default::default()
+    });
+    let config = pb::TrackRequest {
+        item: Some(pb::track_request::Item::Config(pb::TrackConfig {
+            analysis: Some(analysis),
+            ..Default::default()
+        })),
+    };
+    let frames = pb::TrackRequest { item: Some(pb::track_request::Item::Frames(raw.clone())) };
+    let mut live = s.track_tones(tokio_stream::iter(vec![config, frames])).await.unwrap().into_inner();
+    let mut labelled = 0;
+    while let Some(u) = live.message().await.unwrap() {
+        for t in &u.channels[0].tones {
+            if (t.frequency_hz - f_stage).abs() < 0.002 * f_stage {
+                assert_eq!(t.best_stage.as_ref().and_then(|b| b.mode), Some(mode), "{t:?}");
+                labelled += 1;
+            } else if (t.frequency_hz - f_none).abs() < 0.002 * f_none {
+                assert!(t.best_stage.is_none(), "{t:?}");
+            }
+        }
+    }
+    assert!(labelled > 0, "no update held the stage tone");
     // Stage labels need a round or planar jet.
     let e = s
         .extract_tones(pb::ExtractTonesRequest {

@@ -22,6 +22,8 @@ pub struct TrackSession {
     pub defaults: Defaults,
     /// Microphone azimuths, degrees, when given (live mode decomposition).
     azimuths_deg: Option<Vec<f64>>,
+    /// The jet's guided-mode bands, when stage labels were asked for.
+    stages: Option<crate::api::guided::StageContext>,
 }
 
 fn config_missing() -> ApiError {
@@ -61,7 +63,6 @@ impl TrackSession {
             (q.predicted.is_some(), "predicted_screech_hz"),
             (q.bands.is_some(), "include_band_levels"),
             (q.psd_points.is_some(), "psd_output"),
-            (q.stages.is_some(), "stage_labels"),
         ] {
             if set {
                 check.other(
@@ -71,6 +72,7 @@ impl TrackSession {
             }
         }
         let mut defaults = q.defaults.clone();
+        let stages = q.stages.clone();
         let channels = q.samples.recording.channel_count();
         let cross = if reference_channel.is_some() || !positions.is_empty() {
             if channels < 2 {
@@ -164,7 +166,7 @@ impl TrackSession {
             t
         };
         let azimuths_deg = cross.and_then(|(_, az)| az);
-        let mut s = Self { tracker, template, channels, messages: 1, defaults, azimuths_deg };
+        let mut s = Self { tracker, template, channels, messages: 1, defaults, azimuths_deg, stages };
         let updates = s.feed(&first_frames)?;
         Ok((s, updates))
     }
@@ -218,11 +220,18 @@ impl TrackSession {
                 description: format!("frames: {e}"),
             }])
         })?;
-        Ok(updates.into_iter().map(|u| update_message(u, self.azimuths_deg.as_deref())).collect())
+        Ok(updates
+            .into_iter()
+            .map(|u| update_message(u, self.azimuths_deg.as_deref(), self.stages.as_ref()))
+            .collect())
     }
 }
 
-fn update_message(u: Update, azimuths_deg: Option<&[f64]>) -> pb::TrackUpdate {
+fn update_message(
+    u: Update,
+    azimuths_deg: Option<&[f64]>,
+    stages: Option<&crate::api::guided::StageContext>,
+) -> pb::TrackUpdate {
     let strongest_cross = u.cross.as_ref().and_then(|(cs, tone)| {
         tone.as_ref().map(|t| super::cross::cross_tone(cs, u.reference.unwrap_or(0), azimuths_deg, t))
     });
@@ -241,6 +250,7 @@ fn update_message(u: Update, azimuths_deg: Option<&[f64]>) -> pb::TrackUpdate {
                         track_id: t.id,
                         frequency_hz: t.frequency_hz,
                         level_db: t.level_db,
+                        best_stage: stages.and_then(|s| s.label(t.frequency_hz).into_iter().next()),
                     })
                     .collect(),
                 strongest_track_id: *strongest,
