@@ -124,6 +124,14 @@ pub struct TonesCmd {
     reference_channel: Option<u32>,
 }
 
+/// Microphone positions from azimuths alone (degrees).
+pub(crate) fn positions(azimuths_deg: &[f64]) -> Vec<pb::MicrophonePosition> {
+    azimuths_deg
+        .iter()
+        .map(|&azimuth_deg| pb::MicrophonePosition { azimuth_deg, polar_angle_deg: None, distance_m: None })
+        .collect()
+}
+
 pub(crate) fn pattern_name(p: i32) -> &'static str {
     match pb::AzimuthalPattern::try_from(p) {
         Ok(pb::AzimuthalPattern::Axisymmetric) => "axisymmetric",
@@ -497,15 +505,7 @@ impl Run for TonesCmd {
             top = top.child(rep);
         }
         if let Some(samples) = cross_samples {
-            let positions = a
-                .azimuths_deg
-                .iter()
-                .map(|&azimuth_deg| pb::MicrophonePosition {
-                    azimuth_deg,
-                    polar_angle_deg: None,
-                    distance_m: None,
-                })
-                .collect();
+            let positions = positions(&a.azimuths_deg);
             let s = spinner("cross-channel analysis on the server");
             let x = client
                 .cross_spectra(pb::CrossSpectraRequest {

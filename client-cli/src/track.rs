@@ -131,15 +131,7 @@ impl Run for TrackCmd {
                 update_interval_s: a.update_interval_s,
                 jump_fraction: a.jump_fraction,
                 reference_channel: a.reference_channel,
-                positions: a
-                    .azimuths_deg
-                    .iter()
-                    .map(|&azimuth_deg| pb::MicrophonePosition {
-                        azimuth_deg,
-                        polar_angle_deg: None,
-                        distance_m: None,
-                    })
-                    .collect(),
+                positions: crate::spectrum::positions(&a.azimuths_deg),
             })),
         };
         if !(a.block_s > 0.0 && a.block_s <= 10.0) {

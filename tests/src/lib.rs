@@ -93,6 +93,25 @@ impl TestServer {
     }
 }
 
+/// Benchmark data (invented): `frames` interleaved f32 frames of `m` microphones equally
+/// spaced on a ring, a tone of amplitude 10 at 5 kHz spinning as m = 1 (cos(omega t - theta)),
+/// plus a deterministic pseudo-random floor (uniform in [-0.5, 0.5], LCG seeded with `seed`).
+pub fn ring_f32(m: usize, frames: usize, fs: f64, seed: u64) -> Vec<u8> {
+    let mut state = seed;
+    let mut bytes = Vec::with_capacity(m * frames * 4);
+    for k in 0..frames {
+        let t = k as f64 / fs;
+        for j in 0..m {
+            state = state.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
+            let r = ((state >> 11) as f64 / (1u64 << 53) as f64) - 0.5;
+            let th = 2.0 * std::f64::consts::PI * j as f64 / m as f64;
+            let v = 10.0 * (2.0 * std::f64::consts::PI * 5000.0 * t - th).cos() + r;
+            bytes.extend_from_slice(&(v as f32).to_le_bytes());
+        }
+    }
+    bytes
+}
+
 /// Median, minimum and maximum of timings (benchmarks).
 ///
 /// # Panics

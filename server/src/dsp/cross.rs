@@ -18,7 +18,7 @@
 //!   equally spaced azimuths; orders beyond M/2 alias onto lower ones.
 
 use super::samples::{sum, ChannelView};
-use super::welch::{Detrend, WelchConfig, WelchError, MAX_SEGMENT, MIN_SEGMENT};
+use super::welch::{Detrend, WelchConfig, WelchError};
 use super::window::WindowSums;
 use crate::cancel::Cancel;
 use rayon::prelude::*;
@@ -88,13 +88,8 @@ pub fn cross_spectra(
     config: WelchConfig,
     cancel: &Cancel,
 ) -> Result<CrossSpectra, WelchError> {
+    config.check()?;
     let n = config.nperseg;
-    if !(MIN_SEGMENT..=MAX_SEGMENT).contains(&n) {
-        return Err(WelchError::SegmentLength(n));
-    }
-    if config.noverlap >= n {
-        return Err(WelchError::Overlap { noverlap: config.noverlap, nperseg: n });
-    }
     let len = channels.first().map_or(0, ChannelView::len);
     if len < n {
         return Err(WelchError::TooShort { nperseg: n, samples: len });

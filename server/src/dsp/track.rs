@@ -22,7 +22,7 @@
 use super::cross::CrossSpectra;
 use super::samples::{first_non_finite, sum, SampleMoments};
 use super::tones::{find_tones, Tone, ToneConfig};
-use super::welch::{plan, Detrend, Psd, WelchConfig, WelchError, MAX_SEGMENT, MIN_SEGMENT};
+use super::welch::{plan, Detrend, Psd, WelchConfig, WelchError};
 use super::window::WindowSums;
 use rayon::prelude::*;
 use realfft::num_complex::Complex;
@@ -163,13 +163,8 @@ impl Tracker {
     /// [`WelchError::TooShort`] when the window is shorter than one segment;
     /// [`WelchError::SegmentLength`] or [`WelchError::Overlap`] for bad Welch settings.
     pub fn new(cfg: TrackerConfig, channels: usize) -> Result<Self, WelchError> {
+        cfg.welch.check()?;
         let n = cfg.welch.nperseg;
-        if !(MIN_SEGMENT..=MAX_SEGMENT).contains(&n) {
-            return Err(WelchError::SegmentLength(n));
-        }
-        if cfg.welch.noverlap >= n {
-            return Err(WelchError::Overlap { noverlap: cfg.welch.noverlap, nperseg: n });
-        }
         if cfg.window < n {
             return Err(WelchError::TooShort { nperseg: n, samples: cfg.window });
         }

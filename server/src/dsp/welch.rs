@@ -40,6 +40,24 @@ pub struct WelchConfig {
     pub detrend: Detrend,
 }
 
+impl WelchConfig {
+    /// Checks the segment length and overlap.
+    ///
+    /// # Errors
+    /// [`WelchError::SegmentLength`] outside [`MIN_SEGMENT`, `MAX_SEGMENT`];
+    /// [`WelchError::Overlap`] when the overlap is not shorter than a segment.
+    pub fn check(&self) -> Result<(), WelchError> {
+        let n = self.nperseg;
+        if !(MIN_SEGMENT..=MAX_SEGMENT).contains(&n) {
+            return Err(WelchError::SegmentLength(n));
+        }
+        if self.noverlap >= n {
+            return Err(WelchError::Overlap { noverlap: self.noverlap, nperseg: n });
+        }
+        Ok(())
+    }
+}
+
 /// A one-sided PSD with the figures that describe how it was made.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Psd {
@@ -225,13 +243,8 @@ impl WelchAccumulator {
     /// # Errors
     /// [`WelchError::SegmentLength`] or [`WelchError::Overlap`].
     pub fn new(fs: f64, config: WelchConfig) -> Result<Self, WelchError> {
+        config.check()?;
         let n = config.nperseg;
-        if !(MIN_SEGMENT..=MAX_SEGMENT).contains(&n) {
-            return Err(WelchError::SegmentLength(n));
-        }
-        if config.noverlap >= n {
-            return Err(WelchError::Overlap { noverlap: config.noverlap, nperseg: n });
-        }
         let window = config.window.values(n);
         let sums = WindowSums::of(&window);
         Ok(Self {

@@ -9,26 +9,14 @@
 #![forbid(unsafe_code)]
 
 use jetloop_proto::pb::{self, samples::Data, spectrum_service_client::SpectrumServiceClient};
-use jetloop_tests::{stats, TestServer};
-use std::f64::consts::PI;
+use jetloop_tests::{ring_f32, stats, TestServer};
 
 #[tokio::main]
 async fn main() {
     let repeats: usize = std::env::args().nth(1).and_then(|s| s.parse().ok()).unwrap_or(10);
     let (m, n, fs) = (8usize, 1usize << 21, 204_800.0);
     // A spinning m = 1 tone at 5 kHz on a ring plus a deterministic pseudo-random floor.
-    let mut state = 12345u64;
-    let mut bytes = Vec::with_capacity(m * n * 4);
-    for k in 0..n {
-        let t = k as f64 / fs;
-        for j in 0..m {
-            state = state.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
-            let r = ((state >> 11) as f64 / (1u64 << 53) as f64) - 0.5;
-            let th = 2.0 * PI * j as f64 / m as f64;
-            let v = 10.0 * (2.0 * PI * 5000.0 * t - th).cos() + r;
-            bytes.extend_from_slice(&(v as f32).to_le_bytes());
-        }
-    }
+    let bytes = ring_f32(m, n, fs, 12345);
     let samples = pb::Samples {
         sample_rate_hz: fs,
         channel_count: m as u32,

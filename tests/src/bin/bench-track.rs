@@ -10,8 +10,7 @@
 #![forbid(unsafe_code)]
 
 use jetloop_proto::pb::{self, spectrum_service_client::SpectrumServiceClient};
-use jetloop_tests::{stats, TestServer};
-use std::f64::consts::PI;
+use jetloop_tests::{ring_f32, stats, TestServer};
 use std::time::{Duration, Instant};
 
 const CHANNELS: usize = 16;
@@ -59,18 +58,7 @@ fn config(update_s: f64) -> pb::TrackRequest {
 fn blocks(seconds: f64) -> Vec<Vec<u8>> {
     let n = (seconds * FS) as usize;
     let per = (BLOCK_S * FS) as usize;
-    let mut state = 99u64;
-    let mut bytes = Vec::with_capacity(n * CHANNELS * 4);
-    for k in 0..n {
-        let t = k as f64 / FS;
-        for j in 0..CHANNELS {
-            state = state.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
-            let r = ((state >> 11) as f64 / (1u64 << 53) as f64) - 0.5;
-            let th = 2.0 * PI * j as f64 / CHANNELS as f64;
-            let v = 10.0 * (2.0 * PI * 5000.0 * t - th).cos() + r;
-            bytes.extend_from_slice(&(v as f32).to_le_bytes());
-        }
-    }
+    let bytes = ring_f32(CHANNELS, n, FS, 99);
     bytes.chunks(per * CHANNELS * 4).map(<[u8]>::to_vec).collect()
 }
 
