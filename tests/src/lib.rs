@@ -112,6 +112,57 @@ pub fn ring_f32(m: usize, frames: usize, fs: f64, seed: u64) -> Vec<u8> {
     bytes
 }
 
+/// The demo NPR sweep of `examples/npr-sweep-up-down.csv` (invented rig): Powell's loop
+/// f = n / (N Ls (1/(kappa Uj) + 1/a)) for a cold 25.4 mm round convergent nozzle (ISA sea
+/// level, reservoir at 288.15 K), with Ls the vortex-sheet spacing and Uj the fully expanded
+/// velocity from the server's own jet model, N = 4 and n = 4 in every stage and a convection
+/// ratio per stage: the stage changes are then 10-12 %, the usual size.
+pub mod demo_sweep {
+    use jetloop_server::physics::{
+        cells,
+        gas::Gas,
+        jet::{jet_state, ExpandedJet, Nozzle, OperatingPoint},
+    };
+
+    /// Nozzle exit diameter, m.
+    pub const DIAMETER_M: f64 = 0.0254;
+    /// Source cell N and loop order n of every stage.
+    pub const CELLS: f64 = 4.0;
+    /// Loop order of every stage.
+    pub const ORDER: f64 = 4.0;
+    /// Convection ratio of each stage (A2, B, C; invented).
+    pub const KAPPA: [f64; 3] = [0.72, 0.58, 0.68];
+    /// NPR thresholds of the up-sweep (A2 -> B, B -> C).
+    pub const UP: [f64; 2] = [3.125, 3.825];
+    /// NPR thresholds of the down-sweep (hysteresis: below the up ones).
+    pub const DOWN: [f64; 2] = [2.875, 3.625];
+    /// Relative standard deviation of the frequency noise.
+    pub const NOISE: f64 = 0.01;
+
+    /// The loop-model frequency of `stage` at `npr`, Hz.
+    ///
+    /// # Panics
+    /// When the jet at `npr` is not supersonic (NPR below 1.893).
+    pub fn model_hz(stage: usize, npr: f64) -> f64 {
+        let air = Gas::AIR;
+        let s = jet_state(
+            &air,
+            &Nozzle::round_convergent(DIAMETER_M).expect("nozzle"),
+            &OperatingPoint::new(npr, 101_325.0, 288.15, 288.15).expect("operating point"),
+        );
+        let j = ExpandedJet::from_state(&s).expect("supersonic");
+        let ls = cells::spacing(&j, 1.0);
+        let a = air.sound_speed(288.15);
+        ORDER / (CELLS * ls * (1.0 / (KAPPA[stage] * j.uj_m_s) + 1.0 / a))
+    }
+
+    /// The stage at `npr` on the way up (`rising`) or down.
+    pub fn stage_at(npr: f64, rising: bool) -> usize {
+        let t = if rising { &UP } else { &DOWN };
+        t.iter().filter(|&&x| npr > x).count()
+    }
+}
+
 /// Median, minimum and maximum of timings (benchmarks).
 ///
 /// # Panics

@@ -219,6 +219,10 @@ impl Group {
     }
 }
 
+/// Values of x a branch of an acquired pass may miss (another stage's points taking them)
+/// and still continue: intermittent switching between coexisting stages, not a stage change.
+const MAX_MISSED_STEPS: usize = 3;
+
 /// Most members compared per group when two groups overlap.
 const OVERLAP_SAMPLE: usize = 64;
 /// Most rounds of linking (a stage cut into single points where it moves fast is rejoined
@@ -232,8 +236,8 @@ const LINK_ROUNDS: usize = 16;
 /// after an x gap of twenty median point spacings. Branches are then linked into stages in
 /// rounds, best agreement first: two groups are one stage when they overlap in x and agree
 /// there (median deviation within half the threshold) or when one continues the other across
-/// a gap (within the threshold); two branches of one pass that overlap in x are never one
-/// stage (they coexist). Rounds repeat so that a stage cut into pieces where it moves fast
+/// a gap holding no other point (within the threshold); two branches of one pass that overlap
+/// in x are never one stage (they coexist). Rounds repeat so that a stage cut into pieces where it moves fast
 /// is rejoined piece by piece.
 pub fn segment(points: &[Point], scale: Option<&[f64]>, threshold: f64) -> Vec<Vec<usize>> {
     let levels = Levels {
@@ -251,31 +255,46 @@ pub fn segment(points: &[Point], scale: Option<&[f64]>, threshold: f64) -> Vec<V
     gaps.sort_by(f64::total_cmp);
     let gap_limit = gaps.get(gaps.len() / 2).map_or(f64::INFINITY, |g| 20.0 * g);
     let rel = |a: f64, b: f64| ((a - b) / b).abs();
+    let mut all_x: Vec<f64> = points.iter().map(|p| p.x).collect();
+    all_x.sort_by(f64::total_cmp);
 
     let mut groups: Vec<Group> = Vec::new();
     for (pass, members) in passes(points).into_iter().enumerate() {
-        let mut open: Vec<Vec<usize>> = Vec::new();
+        // In acquisition order, a branch that other branches have passed by for more than
+        // MAX_MISSED_STEPS values of x is closed: the tone went to another stage, and a later
+        // tone at a similar level is a stage of its own (A2 -> B -> C with C near A2).
+        let ordered = members.first().is_some_and(|&i| points[i].order.is_some());
+        let mut open: Vec<(Vec<usize>, usize)> = Vec::new();
+        let (mut step, mut last_x) = (0usize, None::<f64>);
         for i in members {
             let p = points[i];
-            // Branches left behind by more than the gap are closed.
-            let (keep, closed): (Vec<_>, Vec<_>) = open
-                .into_iter()
-                .partition(|b| b.last().is_some_and(|&l| (p.x - points[l].x).abs() <= gap_limit));
+            if last_x.is_some_and(|x| x != p.x) {
+                step += 1;
+            }
+            last_x = Some(p.x);
+            // Branches left behind by more than the gap (or passed by) are closed.
+            let (keep, closed): (Vec<_>, Vec<_>) = open.into_iter().partition(|(b, at)| {
+                b.last().is_some_and(|&l| (p.x - points[l].x).abs() <= gap_limit)
+                    && !(ordered && step - at > MAX_MISSED_STEPS + 1)
+            });
             open = keep;
-            groups.extend(closed.into_iter().map(|m| Group::of(points, pass, m)));
+            groups.extend(closed.into_iter().map(|(m, _)| Group::of(points, pass, m)));
             let mut best: Option<(usize, f64)> = None;
-            for (bi, b) in open.iter().enumerate() {
+            for (bi, (b, _)) in open.iter().enumerate() {
                 let d = rel(levels.y[i], levels.next(b, p.x));
                 if d <= threshold && best.is_none_or(|(_, bd)| d < bd) {
                     best = Some((bi, d));
                 }
             }
             match best {
-                Some((bi, _)) => open[bi].push(i),
-                None => open.push(vec![i]),
+                Some((bi, _)) => {
+                    open[bi].0.push(i);
+                    open[bi].1 = step;
+                }
+                None => open.push((vec![i], step)),
             }
         }
-        groups.extend(open.into_iter().map(|m| Group::of(points, pass, m)));
+        groups.extend(open.into_iter().map(|(m, _)| Group::of(points, pass, m)));
     }
 
     // Disagreement of two groups, None when they cannot be one stage.
@@ -295,6 +314,12 @@ pub fn segment(points: &[Point], scale: Option<&[f64]>, threshold: f64) -> Vec<V
         } else {
             let (early, late) = if ga.hi < gb.lo { (ga, gb) } else { (gb, ga) };
             if late.lo - early.hi > gap_limit {
+                return None;
+            }
+            // Never across points of another stage: a tone that left and came back at a
+            // similar level is not the same stage continued (A2 -> B -> C with C near A2).
+            let inside = all_x.partition_point(|&x| x <= early.hi) < all_x.partition_point(|&x| x < late.lo);
+            if inside {
                 return None;
             }
             let end = |g: &Group, x: f64| {

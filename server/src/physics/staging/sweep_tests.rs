@@ -222,3 +222,30 @@ fn directions_around_repeated_turnaround_values() {
     let got: Vec<Direction> = (0..xs.len()).map(|k| pts[xs.len() - 1 - k].direction).collect();
     assert_eq!(got, want);
 }
+
+#[test]
+fn a_stage_that_returns_near_an_earlier_level_is_its_own_stage() {
+    // One loop order (n = N = 4) and three convection ratios 0.72, 0.58, 0.68: the third
+    // stage's frequency lies within 5 % of the first one's continuation, with the second
+    // between them in every pass. Up then down over Mj 1.10-1.60 with hysteresis, 1 % noise:
+    // three stages, not the first and third joined.
+    let kappas = [0.72, 0.58, 0.68];
+    let freq = |s: usize, q: &PointPhysics| powell(4, 4.0, kappas[s], q);
+    for seed in [51u64, 52, 53] {
+        let s =
+            sweep(&[(1.10, 1.60), (1.60, 1.10)], 0.01, &[1.255, 1.455], &[1.215, 1.405], &freq, 0.01, seed);
+        let res = fit_stages(
+            &s.pts,
+            SweepKind::Mach,
+            Some(&s.ph),
+            &FitConfig { source_cells_fixed: Some(4.0), ..cfg() },
+        );
+        assert_eq!(res.stages.len(), 3, "{:?}", res.stages.iter().map(|s| s.x_range).collect::<Vec<_>>());
+        let (map, right) = assignment(&s, &res, 3);
+        assert!(right >= 0.97, "{right} {map:?}");
+        let mut seen = map.clone();
+        seen.sort_unstable();
+        assert_eq!(seen, vec![0, 1, 2], "{map:?}");
+        assert_eq!(res.hysteresis.len(), 2);
+    }
+}

@@ -1,0 +1,39 @@
+//! Writes the demo NPR sweep (invented) to standard output: NPR 2.30 -> 4.50 -> 2.30 in steps
+//! of 0.05 from the loop model in `jetloop_tests::demo_sweep`, with 1 % seeded Gaussian
+//! frequency noise. `tests/tests/demo_sweep.rs` checks the committed file against the model.
+//!
+//! Run with `cargo run -q -p jetloop-tests --bin make-demo-sweep > examples/npr-sweep-up-down.csv`.
+#![forbid(unsafe_code)]
+
+use jetloop_tests::demo_sweep::{model_hz, stage_at, CELLS, DOWN, KAPPA, NOISE, ORDER, UP};
+
+fn main() {
+    let mut state = 2026u64;
+    let mut uniform = || {
+        state = state.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
+        ((state >> 11) as f64 + 0.5) / (1u64 << 53) as f64
+    };
+    println!(
+        "# Demo data (invented): cold 25.4 mm convergent nozzle on an imagined rig, NPR swept up then down."
+    );
+    println!(
+        "# Made from Powell's loop f = n / (N Ls (1/(kappa Uj) + 1/a)) with the server's jet model, n = {ORDER}, \
+         N = {CELLS}, kappa {:?} (stages A2, B, C), up-sweep jumps at NPR {:?}, down-sweep at {:?}, \
+         {} % frequency noise (make-demo-sweep).",
+        KAPPA,
+        UP,
+        DOWN,
+        100.0 * NOISE
+    );
+    println!("npr,frequency_hz,level_db,direction");
+    let steps = 44;
+    let grid: Vec<f64> = (0..=steps).map(|k| 2.30 + 0.05 * f64::from(k)).collect();
+    for (rising, xs) in [(true, grid.clone()), (false, grid.iter().rev().copied().collect::<Vec<_>>())] {
+        for x in xs {
+            let (u1, u2) = (uniform(), uniform());
+            let g = (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos();
+            let f = model_hz(stage_at(x, rising), x) * (1.0 + NOISE * g);
+            println!("{x:.2},{f:.1},,{}", if rising { "up" } else { "down" });
+        }
+    }
+}

@@ -1,0 +1,49 @@
+//! The committed demo sweep `examples/npr-sweep-up-down.csv` lies on its stated loop model:
+//! every point within 4 % (four standard deviations of the stated 1 % noise) of
+//! `jetloop_tests::demo_sweep::model_hz` for its stage and direction, and the model itself is
+//! in the range the server predicts for this nozzle (Powell's fundamental within 25 %).
+
+use jetloop_tests::demo_sweep::{model_hz, stage_at, NOISE};
+
+#[test]
+fn demo_sweep_points_lie_on_the_loop_model() {
+    let text = include_str!("../../examples/npr-sweep-up-down.csv");
+    let mut n = 0;
+    for line in text.lines().filter(|l| !l.starts_with('#')).skip(1) {
+        let f: Vec<&str> = line.split(',').collect();
+        let (npr, hz): (f64, f64) = (f[0].parse().unwrap(), f[1].parse().unwrap());
+        let rising = f[3] == "up";
+        let model = model_hz(stage_at(npr, rising), npr);
+        assert!(
+            ((hz - model) / model).abs() <= 4.0 * NOISE,
+            "NPR {npr} {}: {hz} Hz vs model {model} Hz",
+            f[3]
+        );
+        n += 1;
+    }
+    assert_eq!(n, 90);
+}
+
+#[test]
+fn demo_sweep_model_is_near_the_powell_fundamental() {
+    // Powell's fundamental with Uc = 0.7 Uj and the vortex-sheet spacing (the server's
+    // PredictScreech, physics::tones::powell_fundamental), at three NPRs.
+    use jetloop_server::physics::{
+        cells,
+        gas::Gas,
+        jet::{jet_state, ExpandedJet, Nozzle, OperatingPoint},
+        tones::powell_fundamental,
+    };
+    for (npr, stage) in [(2.5, 0), (3.5, 1), (4.3, 2)] {
+        let s = jet_state(
+            &Gas::AIR,
+            &Nozzle::round_convergent(0.0254).unwrap(),
+            &OperatingPoint::new(npr, 101_325.0, 288.15, 288.15).unwrap(),
+        );
+        let j = ExpandedJet::from_state(&s).unwrap();
+        let powell =
+            powell_fundamental(0.7 * j.uj_m_s, Gas::AIR.sound_speed(288.15), cells::spacing(&j, 1.0));
+        let m = model_hz(stage, npr);
+        assert!((m / powell - 1.0).abs() < 0.25, "NPR {npr}: model {m} Hz, Powell {powell} Hz");
+    }
+}
