@@ -253,18 +253,43 @@ impl Tracker {
     /// [`WelchError::NotFinite`] for a sample that is not finite.
     pub fn push(&mut self, interleaved: &[f64]) -> Result<Vec<Update>, WelchError> {
         let m = self.channels.len().max(1);
+        let cols: Vec<Vec<f64>> =
+            (0..m).map(|c| interleaved.chunks_exact(m).map(|f| f[c]).collect()).collect();
+        self.push_channels(&cols)
+    }
+
+    /// Appends the same number of new frames to every channel (one slice per channel, pascals)
+    /// and returns the updates they complete: copied in runs up to the next segment end or
+    /// update, not frame by frame.
+    ///
+    /// # Errors
+    /// [`WelchError::NotFinite`] for a sample that is not finite.
+    pub fn push_channels(&mut self, cols: &[Vec<f64>]) -> Result<Vec<Update>, WelchError> {
+        let len = cols.iter().map(Vec::len).min().unwrap_or(0);
         let n = self.cfg.welch.nperseg;
+        let window = self.cfg.window as u64;
         let mut out = Vec::new();
-        for frame in interleaved.chunks_exact(m) {
-            for (st, &v) in self.channels.iter_mut().zip(frame) {
-                st.pending.push(v);
+        let mut k = 0;
+        while k < len {
+            // Frames until the current segment is whole, and until the next update is due.
+            let to_segment = n - self.channels.first().map_or(0, |c| c.pending.len());
+            let to_update = self
+                .cfg
+                .update
+                .saturating_sub(self.since)
+                .max(usize::try_from(window.saturating_sub(self.frames)).unwrap_or(usize::MAX))
+                .max(1);
+            let t = (len - k).min(to_segment).min(to_update);
+            for (st, col) in self.channels.iter_mut().zip(cols) {
+                st.pending.extend_from_slice(&col[k..k + t]);
             }
-            self.frames += 1;
-            self.since += 1;
+            k += t;
+            self.frames += t as u64;
+            self.since += t;
             if self.channels.first().is_some_and(|c| c.pending.len() == n) {
                 self.take_segment()?;
             }
-            if self.since >= self.cfg.update && self.frames >= self.cfg.window as u64 {
+            if self.since >= self.cfg.update && self.frames >= window {
                 self.since = 0;
                 out.push(self.analyse()?);
             }

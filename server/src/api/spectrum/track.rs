@@ -213,8 +213,7 @@ impl TrackSession {
             return Ok(Vec::new());
         }
         let cols: Vec<Vec<f64>> = (0..self.channels).map(|c| rec.channel(c).to_vec()).collect();
-        let interleaved: Vec<f64> = (0..frames).flat_map(|k| cols.iter().map(move |c| c[k])).collect();
-        let updates = self.tracker.push(&interleaved).map_err(|e| {
+        let updates = self.tracker.push_channels(&cols).map_err(|e| {
             ApiError::Invalid(vec![FieldViolation {
                 field: "frames".into(),
                 description: format!("frames: {e}"),
