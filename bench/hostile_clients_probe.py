@@ -105,7 +105,7 @@ def health_and_call(addr, pb, timeout=3.0):
     try:
         s = pb["spectrum_pb2"]
         x = np.sin(np.arange(8192) * 0.3)
-        req = s.ExtractTonesRequest(samples=s.Samples(sample_rate_hz=48000, values=s.SampleValues(values=x.tolist())))
+        req = s.ExtractTonesRequest(samples=s.Samples(sample_rate_hz=48000, values=s.SampleValues(values=x.tolist()), calibration=s.Calibration(in_pascals=True)))
         pb["spectrum_pb2_grpc"].SpectrumServiceStub(ch).ExtractTones(req, timeout=timeout)
         ok_call = True
     except Exception:
@@ -149,7 +149,7 @@ def slow_reader(binary, pb):
     s = pb["spectrum_pb2"]
     x = np.random.default_rng(1).standard_normal(1 << 22).astype("<f4")
     req = s.ExtractTonesRequest(
-        samples=s.Samples(sample_rate_hz=204800, raw=s.RawSamples(format=s.SAMPLE_FORMAT_F32_LE, data=x.tobytes())),
+        samples=s.Samples(sample_rate_hz=204800, raw=s.RawSamples(format=s.SAMPLE_FORMAT_F32_LE, data=x.tobytes()), calibration=s.Calibration(in_pascals=True)),
         welch=s.WelchOptions(segment_length=1 << 20),
         psd_output=s.PsdOutputOptions(include=True),
     ).SerializeToString()
@@ -201,7 +201,7 @@ def stalled_streams(binary, pb, budget_args):
     results = []
 
     def gen():
-        yield s.SampleBlock(request=s.ExtractTonesRequest(samples=s.Samples(sample_rate_hz=204800, raw=s.RawSamples(format=s.SAMPLE_FORMAT_F32_LE))))
+        yield s.SampleBlock(request=s.ExtractTonesRequest(samples=s.Samples(sample_rate_hz=204800, raw=s.RawSamples(format=s.SAMPLE_FORMAT_F32_LE), calibration=s.Calibration(in_pascals=True))))
         yield s.SampleBlock(frames=block)
         yield s.SampleBlock(frames=block)
         stall.wait()

@@ -69,13 +69,13 @@ def main():
         stub = sp_grpc.SpectrumServiceStub(ch)
         welch_opts = sp.WelchOptions(window=sp.WINDOW_KIND_HANN, segment_length=nper, overlap_fraction=0.5)
         req = sp.ExtractTonesRequest(
-            samples=sp.Samples(sample_rate_hz=fs, raw=sp.RawSamples(data=payload, format=sp.SAMPLE_FORMAT_F32_LE)),
+            samples=sp.Samples(sample_rate_hz=fs, raw=sp.RawSamples(data=payload, format=sp.SAMPLE_FORMAT_F32_LE), calibration=sp.Calibration(in_pascals=True)),
             welch=welch_opts,
             include_band_levels=True,
         )
         head = sp.SampleBlock(
             request=sp.ExtractTonesRequest(
-                samples=sp.Samples(sample_rate_hz=fs, raw=sp.RawSamples(format=sp.SAMPLE_FORMAT_F32_LE)),
+                samples=sp.Samples(sample_rate_hz=fs, raw=sp.RawSamples(format=sp.SAMPLE_FORMAT_F32_LE), calibration=sp.Calibration(in_pascals=True)),
                 welch=welch_opts,
                 include_band_levels=True,
             )

@@ -61,9 +61,13 @@ pub struct InputArgs {
     /// Channel layout of a raw file.
     #[arg(long, value_enum, default_value = "interleaved")]
     pub layout: LayoutArg,
-    /// Pascals per sample unit (WAV: per full-scale-normalized unit or per count).
-    #[arg(long, conflicts_with = "sensitivity_v_per_pa")]
+    /// Pascals per sample unit (WAV: per count for integer files, per full-scale unit for
+    /// float files). One calibration is required: this, the microphone chain, or --in-pascals.
+    #[arg(long, conflicts_with_all = ["sensitivity_v_per_pa", "in_pascals"])]
     pub pa_per_unit: Option<f64>,
+    /// The samples are already in pascals (1 Pa per unit): say so explicitly, nothing is assumed.
+    #[arg(long, conflicts_with = "sensitivity_v_per_pa")]
+    pub in_pascals: bool,
     /// Microphone sensitivity in V/Pa (with --volts-per-unit).
     #[arg(long, requires = "volts_per_unit")]
     pub sensitivity_v_per_pa: Option<f64>,
@@ -83,20 +87,31 @@ impl InputArgs {
         })
     }
 
-    fn calibration(&self) -> Option<pb::Calibration> {
+    /// The calibration the flags give; every input needs one (a recording's units are never
+    /// guessed: an uncalibrated file read as pascals gives levels tens of dB off).
+    fn calibration(&self) -> Result<pb::Calibration, Failure> {
         use pb::calibration::Scale;
-        let scale = match (self.pa_per_unit, self.sensitivity_v_per_pa, self.volts_per_unit) {
-            (Some(k), _, _) => Some(Scale::PascalsPerUnit(k)),
-            (None, Some(s), Some(v)) => {
-                Some(Scale::Microphone(pb::MicrophoneChain { sensitivity_v_per_pa: s, volts_per_unit: v }))
+        let scale = match (self.pa_per_unit, self.sensitivity_v_per_pa, self.volts_per_unit, self.in_pascals)
+        {
+            (Some(k), _, _, _) => Scale::PascalsPerUnit(k),
+            (None, Some(s), Some(v), _) => {
+                Scale::Microphone(pb::MicrophoneChain { sensitivity_v_per_pa: s, volts_per_unit: v })
             }
-            _ => None,
+            (None, _, _, true) => Scale::InPascals(true),
+            _ => {
+                return Err(Failure::Usage(format!(
+                    "{}: no calibration given; give --pa-per-unit, or --sensitivity-v-per-pa and \
+                     --volts-per-unit, or --in-pascals if the samples are already pascals",
+                    self.file.display()
+                )))
+            }
         };
-        scale.map(|s| pb::Calibration { scale: Some(s) })
+        Ok(pb::Calibration { scale: Some(scale) })
     }
 
     /// Reads the file into a `Samples` message, with a progress bar on a terminal.
     pub fn read(&self) -> Result<pb::Samples, Failure> {
+        self.calibration()?;
         let bytes = read_with_progress(&self.file)?;
         match self.kind() {
             InputKind::Wav => self.wav(&bytes),
@@ -115,13 +130,6 @@ impl InputArgs {
         };
         let mut r = hound::WavReader::new(std::io::Cursor::new(bytes)).map_err(bad)?;
         let spec = r.spec();
-        if self.calibration().is_none() {
-            return Err(Failure::Usage(format!(
-                "{}: WAV files carry no calibration; give --pa-per-unit, or --sensitivity-v-per-pa and \
-                 --volts-per-unit",
-                self.file.display()
-            )));
-        }
         let (data, format) = match (spec.sample_format, spec.bits_per_sample) {
             (hound::SampleFormat::Float, 32) => {
                 let mut out = Vec::with_capacity(r.len() as usize * 4);
@@ -156,7 +164,7 @@ impl InputArgs {
             channel_count: u32::from(spec.channels),
             layout: pb::ChannelLayout::Interleaved as i32,
             data: Some(pb::samples::Data::Raw(pb::RawSamples { data: data.into(), format: format as i32 })),
-            calibration: self.calibration(),
+            calibration: Some(self.calibration()?),
             channel_names: Vec::new(),
         })
     }
@@ -199,7 +207,7 @@ impl InputArgs {
             channel_count: channels.max(1),
             layout: pb::ChannelLayout::Planar as i32,
             data: Some(pb::samples::Data::Values(pb::SampleValues { values: columns.concat() })),
-            calibration: self.calibration(),
+            calibration: Some(self.calibration()?),
             channel_names: names,
         })
     }
@@ -220,7 +228,7 @@ impl InputArgs {
                 LayoutArg::Planar => pb::ChannelLayout::Planar,
             } as i32,
             data: Some(pb::samples::Data::Raw(pb::RawSamples { data: bytes.into(), format: format as i32 })),
-            calibration: self.calibration(),
+            calibration: Some(self.calibration()?),
             channel_names: Vec::new(),
         })
     }

@@ -8,7 +8,10 @@ use std::path::PathBuf;
 /// `jetloop synth`: a demo recording of an imagined cold model-scale jet rig.
 #[derive(Debug, Args)]
 pub struct SynthCmd {
-    /// Output WAV file (32-bit float, normalized to --full-scale-pa).
+    /// Output file; the extension picks the kind: `.wav` (32-bit float, normalized to
+    /// --full-scale-pa), `.csv` (one column of pascals per microphone, header row of names) or
+    /// `.bin` / `.raw` (interleaved little-endian int16, 32768 counts at --full-scale-pa, as a
+    /// DAQ dump).
     out: PathBuf,
     /// Sample rate in Hz.
     #[arg(long, default_value_t = 204_800)]
@@ -70,6 +73,36 @@ pub enum PatternArg {
     Axisymmetric,
 }
 
+/// The kinds of file `synth` writes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum OutKind {
+    Wav,
+    Csv,
+    RawI16,
+}
+
+impl OutKind {
+    fn of(path: &std::path::Path) -> Result<Self, Failure> {
+        match path.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase).as_deref() {
+            Some("wav") => Ok(Self::Wav),
+            Some("csv") => Ok(Self::Csv),
+            Some("bin") | Some("raw") => Ok(Self::RawI16),
+            _ => Err(Failure::Usage(format!(
+                "{}: give the output a .wav, .csv or .bin/.raw extension (the kind of file to write)",
+                path.display()
+            ))),
+        }
+    }
+
+    fn describe(self) -> &'static str {
+        match self {
+            Self::Wav => "WAV, 32-bit float, 1.0 = full scale",
+            Self::Csv => "CSV, pascals, one column per microphone",
+            Self::RawI16 => "raw interleaved int16 little-endian, 32768 counts = full scale",
+        }
+    }
+}
+
 fn rms_of(db: f64) -> f64 {
     20e-6 * 10f64.powf(db / 20.0)
 }
@@ -80,6 +113,7 @@ impl Run for SynthCmd {
         let a = self;
         use std::f64::consts::PI;
         let fs = f64::from(a.sample_rate_hz);
+        let kind = OutKind::of(&a.out)?;
         if !(a.seconds > 0.0 && a.seconds <= 600.0) || a.sample_rate_hz < 1000 {
             return Err(Failure::Usage(
                 "--seconds must be in (0, 600] and --sample-rate-hz at least 1000".into(),
@@ -165,41 +199,69 @@ impl Run for SynthCmd {
                 a.full_scale_pa
             )));
         }
-        let spec = hound::WavSpec {
-            channels: a.ring as u16,
-            sample_rate: a.sample_rate_hz,
-            bits_per_sample: 32,
-            sample_format: hound::SampleFormat::Float,
-        };
-        let werr = |e: hound::Error| Failure::Usage(format!("cannot write {}: {e}", a.out.display()));
-        let mut w = hound::WavWriter::create(&a.out, spec).map_err(werr)?;
-        for v in &x {
-            w.write_sample((v / a.full_scale_pa) as f32).map_err(werr)?;
+        let werr = |e: std::io::Error| Failure::Usage(format!("cannot write {}: {e}", a.out.display()));
+        let pa_per_count = a.full_scale_pa / 32_768.0;
+        match kind {
+            OutKind::Wav => {
+                let spec = hound::WavSpec {
+                    channels: a.ring as u16,
+                    sample_rate: a.sample_rate_hz,
+                    bits_per_sample: 32,
+                    sample_format: hound::SampleFormat::Float,
+                };
+                let herr = |e: hound::Error| Failure::Usage(format!("cannot write {}: {e}", a.out.display()));
+                let mut w = hound::WavWriter::create(&a.out, spec).map_err(herr)?;
+                for v in &x {
+                    w.write_sample((v / a.full_scale_pa) as f32).map_err(herr)?;
+                }
+                w.finalize().map_err(herr)?;
+            }
+            OutKind::Csv => {
+                use std::io::Write;
+                let mut w = std::io::BufWriter::new(std::fs::File::create(&a.out).map_err(werr)?);
+                let names: Vec<String> = (0..mics).map(|j| format!("mic_{:03}deg", 360 * j / mics)).collect();
+                writeln!(w, "{}", names.join(",")).map_err(werr)?;
+                for frame in x.chunks(mics) {
+                    let row: Vec<String> = frame.iter().map(|v| format!("{v:.5}")).collect();
+                    writeln!(w, "{}", row.join(",")).map_err(werr)?;
+                }
+                w.flush().map_err(werr)?;
+            }
+            OutKind::RawI16 => {
+                let bytes: Vec<u8> = x
+                    .iter()
+                    .flat_map(|v| {
+                        ((v / pa_per_count).round().clamp(-32_768.0, 32_767.0) as i16).to_le_bytes()
+                    })
+                    .collect();
+                std::fs::write(&a.out, bytes).map_err(werr)?;
+            }
         }
-        w.finalize().map_err(werr)?;
+        let az: Vec<String> = (0..mics).map(|j| format!("{}", 360.0 * j as f64 / mics as f64)).collect();
+        let modes = if mics > 1 { format!(" --azimuths-deg {}", az.join(",")) } else { String::new() };
+        let analyse = match kind {
+            OutKind::Wav => format!("jetloop tones {} --pa-per-unit {}{modes}", a.out.display(), a.full_scale_pa),
+            OutKind::Csv => format!(
+                "jetloop tones {} --sample-rate-hz {} --in-pascals{modes}",
+                a.out.display(),
+                a.sample_rate_hz
+            ),
+            OutKind::RawI16 => format!(
+                "jetloop tones {} --raw-format i16 --channels {mics} --sample-rate-hz {} --pa-per-unit {}{modes}",
+                a.out.display(),
+                a.sample_rate_hz,
+                pa_per_count
+            ),
+        };
         Ok(Report::new(format!("Wrote {} (demo data: an imagined cold model-scale jet)", a.out.display()))
+            .text("kind", "file kind", kind.describe())
             .num("sample_rate_hz", "sample rate", fs, "Hz")
             .num("duration_s", "duration", a.seconds, "s")
             .num("screech_hz", "screech fundamental", a.screech_hz, "Hz")
             .num("screech_db", "fundamental level", a.screech_db, "dB re 20 uPa")
             .num("hump_hz", "shock-noise hump centre", a.hump_hz, "Hz")
-            .num("full_scale_pa", "full scale (use --pa-per-unit)", a.full_scale_pa, "Pa")
+            .num("full_scale_pa", "full scale", a.full_scale_pa, "Pa")
             .int("microphones", "microphones on the ring", u64::from(a.ring), "")
-            .text(
-                "analyse_with",
-                "analyse with",
-                if mics > 1 {
-                    let az: Vec<String> =
-                        (0..mics).map(|j| format!("{}", 360.0 * j as f64 / mics as f64)).collect();
-                    format!(
-                        "jetloop tones {} --pa-per-unit {} --azimuths-deg {}",
-                        a.out.display(),
-                        a.full_scale_pa,
-                        az.join(",")
-                    )
-                } else {
-                    format!("jetloop tones {} --pa-per-unit {}", a.out.display(), a.full_scale_pa)
-                },
-            ))
+            .text("analyse_with", "analyse with", analyse))
     }
 }

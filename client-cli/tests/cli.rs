@@ -132,7 +132,14 @@ async fn synth_wav_then_tones_finds_the_screech_family() {
             text.push_str(&format!("{x},{}\n", 0.5 * x));
         }
         std::fs::write(&csv, text).unwrap();
-        let b = jetloop(&u, &["--json", "bands", csv.to_str().unwrap(), "--sample-rate-hz", "20000"]);
+        // CSV and raw input without a calibration are refused like WAV (no pascals assumed).
+        let csv_no_cal = jetloop(&u, &["bands", csv.to_str().unwrap(), "--sample-rate-hz", "20000"]);
+        assert_eq!(csv_no_cal.status.code(), Some(2), "CSV without calibration is a usage error");
+        assert!(String::from_utf8_lossy(&csv_no_cal.stderr).contains("--in-pascals"));
+        let b = jetloop(
+            &u,
+            &["--json", "bands", csv.to_str().unwrap(), "--sample-rate-hz", "20000", "--in-pascals"],
+        );
         let svg_text = std::fs::read_to_string(&svg).unwrap_or_default();
         (no_cal, t, b, svg_text, blocks)
     })

@@ -26,7 +26,7 @@ def test_cross_spectra_equal_scipy_csd_and_coherence(sp, window, name, nperseg, 
     inter = np.stack(xs, axis=1).ravel()
     r = stub.CrossSpectra(
         mod.CrossSpectraRequest(
-            samples=mod.Samples(sample_rate_hz=fs, channel_count=3, values=mod.SampleValues(values=inter.tolist())),
+            samples=mod.Samples(sample_rate_hz=fs, channel_count=3, values=mod.SampleValues(values=inter.tolist()), calibration=mod.Calibration(in_pascals=True)),
             welch=mod.WelchOptions(
                 window=window,
                 segment_length=nperseg,
@@ -61,7 +61,7 @@ def test_phase_at_the_tone_has_scipys_sign_and_pairs_are_classified(sp):
     a = 10 * np.sin(2 * np.pi * f0 * t) + rng.normal(0, 0.3, n)
     b = 10 * np.sin(2 * np.pi * f0 * (t - delay / fs)) + rng.normal(0, 0.3, n)
     req = mod.CrossSpectraRequest(
-        samples=mod.Samples(sample_rate_hz=fs, channel_count=2, values=mod.SampleValues(values=np.stack([a, b], 1).ravel().tolist())),
+        samples=mod.Samples(sample_rate_hz=fs, channel_count=2, values=mod.SampleValues(values=np.stack([a, b], 1).ravel().tolist()), calibration=mod.Calibration(in_pascals=True)),
         welch=mod.WelchOptions(segment_length=4096),
     )
     tone = stub.CrossSpectra(req).tones[0]

@@ -48,7 +48,7 @@ def test_psd_equals_scipy_welch_f64(sp, window, n, nperseg, noverlap, tonal, det
     mod, stub = sp
     fs = 51_200.0
     x = signal(n, fs, 7 + n, tonal)
-    samples = mod.Samples(sample_rate_hz=fs, values=mod.SampleValues(values=x.tolist()))
+    samples = mod.Samples(sample_rate_hz=fs, values=mod.SampleValues(values=x.tolist()), calibration=mod.Calibration(in_pascals=True))
     f, p, ch = server_psd(mod, stub, samples, fs, window, nperseg, noverlap, detrend)
     fr, pr = welch(x, fs=fs, window=WINDOWS[window], nperseg=nperseg, noverlap=noverlap,
                    detrend="constant" if detrend else False, scaling="density")
@@ -94,7 +94,7 @@ def test_tones_agree_with_scipy_find_peaks_on_a_clean_signal(sp):
     mod, stub = sp
     fs = 51_200.0
     x = signal(1 << 18, fs, 3, True)
-    samples = mod.Samples(sample_rate_hz=fs, values=mod.SampleValues(values=x.tolist()))
+    samples = mod.Samples(sample_rate_hz=fs, values=mod.SampleValues(values=x.tolist()), calibration=mod.Calibration(in_pascals=True))
     r = stub.ExtractTones(mod.ExtractTonesRequest(samples=samples, welch=mod.WelchOptions(segment_length=8192)))
     ch = r.channels[0]
     f, p = welch(x, fs=fs, nperseg=8192)

@@ -163,6 +163,33 @@ pub mod demo_sweep {
     }
 }
 
+/// The demo reflector sweep (invented): a flat reflector moved away from the nozzle lip of an
+/// imagined rig, the loop lengthened by twice the displacement (`tau = tau0 + 2 d / a`), the
+/// tone on loop order 4 until it has fallen 10 % below its start and then on order 5.
+pub mod demo_reflector {
+    use jetloop_server::physics::gas::Gas;
+
+    /// Loop period with the reflector at the lip, s (loop order 4 at 5 kHz).
+    pub const TAU0_S: f64 = 4.0 / 5000.0;
+    /// Loop orders before and after the jump.
+    pub const ORDERS: [f64; 2] = [4.0, 5.0];
+    /// Displacement above which the tone is on the second order, m.
+    pub const JUMP_M: f64 = 0.0150;
+    /// Relative standard deviation of the frequency noise.
+    pub const NOISE: f64 = 0.005;
+    /// Displacements of the sweep, m: 0 to 40 mm in 1 mm steps.
+    pub fn displacements() -> Vec<f64> {
+        (0..=40).map(|k| 0.001 * f64::from(k)).collect()
+    }
+
+    /// The loop-model frequency at displacement `d_m`, Hz.
+    pub fn model_hz(d_m: f64) -> f64 {
+        let a = Gas::AIR.sound_speed(288.15);
+        let n = if d_m > JUMP_M { ORDERS[1] } else { ORDERS[0] };
+        n / (TAU0_S + 2.0 * d_m / a)
+    }
+}
+
 /// Median, minimum and maximum of timings (benchmarks).
 ///
 /// # Panics
@@ -255,4 +282,11 @@ pub mod fixtures {
             })),
         }
     }
+}
+
+/// The explicit "samples already in pascals" calibration (the API assumes no unit).
+pub fn in_pascals() -> Option<jetloop_proto::pb::Calibration> {
+    Some(jetloop_proto::pb::Calibration {
+        scale: Some(jetloop_proto::pb::calibration::Scale::InPascals(true)),
+    })
 }

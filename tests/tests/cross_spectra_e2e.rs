@@ -46,6 +46,7 @@ fn ring(
             sample_rate_hz: fs,
             channel_count: m as u32,
             data: Some(Data::Values(pb::SampleValues { values })),
+            calibration: jetloop_tests::in_pascals(),
             ..Default::default()
         },
         positions,

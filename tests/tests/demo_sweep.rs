@@ -47,3 +47,29 @@ fn demo_sweep_model_is_near_the_powell_fundamental() {
         assert!((m / powell - 1.0).abs() < 0.25, "NPR {npr}: model {m} Hz, Powell {powell} Hz");
     }
 }
+
+/// The committed demo reflector sweep `examples/reflector-sweep.csv` lies on its stated loop
+/// model `f = n / (tau0 + 2 d / a)` (the reflector loop of physics/staging, g = 2: twice the
+/// displacement, common practice): every point within 4 standard deviations of the stated
+/// 0.5 % noise, at every displacement of the sweep.
+#[test]
+fn demo_reflector_points_lie_on_the_loop_model() {
+    use jetloop_tests::demo_reflector::{displacements, model_hz, NOISE};
+    let text = include_str!("../../examples/reflector-sweep.csv");
+    let rows: Vec<(f64, f64)> = text
+        .lines()
+        .filter(|l| !l.starts_with('#'))
+        .skip(1)
+        .map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            (f[0].parse().unwrap(), f[1].parse().unwrap())
+        })
+        .collect();
+    assert_eq!(rows.len(), displacements().len());
+    for (d, hz) in rows {
+        let model = model_hz(d);
+        assert!(((hz - model) / model).abs() <= 4.0 * NOISE, "d = {d} m: {hz} Hz vs model {model} Hz");
+    }
+    // The model itself: order 4 at 5 kHz at the lip, as the constants state.
+    assert!((model_hz(0.0) - 5000.0).abs() < 1e-9);
+}

@@ -213,6 +213,7 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
         samples: Some(pb::Samples {
             sample_rate_hz: fs,
             data: Some(Data::Values(pb::SampleValues { values })),
+            calibration: jetloop_tests::in_pascals(),
             ..Default::default()
         }),
         stage_labels: Some(pb::StageLabelOptions {
@@ -233,6 +234,7 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
             format: pb::SampleFormat::F32Le as i32,
             data: Vec::new().into(),
         })),
+        calibration: jetloop_tests::in_pascals(),
         ..Default::default()
     });
     let msgs = vec![
@@ -287,6 +289,7 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
             samples: Some(pb::Samples {
                 sample_rate_hz: fs,
                 data: Some(Data::Values(pb::SampleValues { values: sine(4096, fs, 1000.0) })),
+                calibration: jetloop_tests::in_pascals(),
                 ..Default::default()
             }),
             stage_labels: Some(pb::StageLabelOptions {

@@ -17,6 +17,7 @@ fn samples(values: Vec<f64>, fs: f64) -> pb::Samples {
     pb::Samples {
         sample_rate_hz: fs,
         data: Some(Data::Values(pb::SampleValues { values })),
+        calibration: jetloop_tests::in_pascals(),
         ..Default::default()
     }
 }
@@ -72,6 +73,7 @@ async fn bad_samples_name_the_field() {
         sample_rate_hz: fs,
         channel_count: channels,
         data: Some(Data::Raw(pb::RawSamples { data: data.into(), format: format as i32 })),
+        calibration: jetloop_tests::in_pascals(),
         ..Default::default()
     };
     let mut nan = ok();
@@ -91,6 +93,20 @@ async fn bad_samples_name_the_field() {
         (request(raw(vec![0; 12], pb::SampleFormat::I16Le, 4)), "samples.raw.data"),
         (request(pb::Samples { channel_count: 3, ..samples(vec![0.0; 4096], fs) }), "samples.values.values"),
         (request(pb::Samples { data: None, ..samples(ok(), fs) }), "samples.data"),
+        // No unit is assumed: a request without a calibration is refused, and "already in
+        // pascals" must be said with in_pascals = true.
+        (request(pb::Samples { calibration: None, ..samples(ok(), fs) }), "samples.calibration"),
+        (
+            request(pb::Samples { calibration: Some(pb::Calibration { scale: None }), ..samples(ok(), fs) }),
+            "samples.calibration",
+        ),
+        (
+            request(pb::Samples {
+                calibration: Some(pb::Calibration { scale: Some(pb::calibration::Scale::InPascals(false)) }),
+                ..samples(ok(), fs)
+            }),
+            "samples.calibration.in_pascals",
+        ),
         (
             pb::ExtractTonesRequest {
                 welch: Some(pb::WelchOptions { overlap_fraction: Some(0.99), ..Default::default() }),
@@ -129,6 +145,7 @@ async fn sizes_over_the_limits_are_refused() {
             data: vec![0; 2 * n].into(),
             format: pb::SampleFormat::I16Le as i32,
         })),
+        calibration: jetloop_tests::in_pascals(),
         ..Default::default()
     });
     let e = c.extract_tones(req).await.unwrap_err();

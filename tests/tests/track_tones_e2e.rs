@@ -17,6 +17,7 @@ fn config(fs: f64) -> pb::TrackRequest {
                         format: pb::SampleFormat::F32Le as i32,
                         data: Vec::new().into(),
                     })),
+                    calibration: jetloop_tests::in_pascals(),
                     ..Default::default()
                 }),
                 welch: Some(pb::WelchOptions {

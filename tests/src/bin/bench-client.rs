@@ -41,6 +41,7 @@ async fn main() {
         samples: Some(pb::Samples {
             sample_rate_hz: fs,
             data: Some(Data::Raw(pb::RawSamples { data, format: pb::SampleFormat::F32Le as i32 })),
+            calibration: jetloop_tests::in_pascals(),
             ..Default::default()
         }),
         welch: Some(pb::WelchOptions {

@@ -21,6 +21,7 @@ async fn main() {
         sample_rate_hz: fs,
         channel_count: m as u32,
         data: Some(Data::Raw(pb::RawSamples { format: pb::SampleFormat::F32Le as i32, data: bytes.into() })),
+        calibration: jetloop_tests::in_pascals(),
         ..Default::default()
     };
     let welch = pb::WelchOptions {

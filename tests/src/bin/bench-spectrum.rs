@@ -52,6 +52,7 @@ async fn main() {
                 data: bytes.into(),
                 format: pb::SampleFormat::F32Le as i32,
             })),
+            calibration: jetloop_tests::in_pascals(),
             ..Default::default()
         }),
         welch: Some(pb::WelchOptions { segment: Some(Segment::SegmentLength(8192)), ..Default::default() }),

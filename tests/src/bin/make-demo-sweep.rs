@@ -3,16 +3,50 @@
 //! frequency noise. `tests/tests/demo_sweep.rs` checks the committed file against the model.
 //!
 //! Run with `cargo run -q -p jetloop-tests --bin make-demo-sweep > examples/npr-sweep-up-down.csv`.
+//! With the argument `reflector` it writes the demo reflector sweep of
+//! `jetloop_tests::demo_reflector` instead (`> examples/reflector-sweep.csv`), checked by the
+//! same test file.
 #![forbid(unsafe_code)]
 
+use jetloop_tests::demo_reflector;
 use jetloop_tests::demo_sweep::{model_hz, stage_at, CELLS, DOWN, KAPPA, NOISE, ORDER, UP};
 
+/// A seeded standard normal deviate source.
+fn gauss(seed: u64) -> impl FnMut() -> f64 {
+    let mut state = seed;
+    move || {
+        let mut uniform = || {
+            state = state.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
+            ((state >> 11) as f64 + 0.5) / (1u64 << 53) as f64
+        };
+        let (u1, u2) = (uniform(), uniform());
+        (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
+    }
+}
+
+fn reflector() {
+    let mut g = gauss(2027);
+    println!("# Demo data (invented): a flat reflector moved away from the lip of an imagined rig's nozzle.");
+    println!(
+        "# Made from the loop f = n / (tau0 + 2 d / a), tau0 = {} s, n = {:?} (jump above d = {} m), a at \
+         288.15 K, {} % frequency noise (make-demo-sweep reflector).",
+        demo_reflector::TAU0_S,
+        demo_reflector::ORDERS,
+        demo_reflector::JUMP_M,
+        100.0 * demo_reflector::NOISE
+    );
+    println!("reflector_m,frequency_hz");
+    for d in demo_reflector::displacements() {
+        let f = demo_reflector::model_hz(d) * (1.0 + demo_reflector::NOISE * g());
+        println!("{d:.3},{f:.1}");
+    }
+}
+
 fn main() {
-    let mut state = 2026u64;
-    let mut uniform = || {
-        state = state.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
-        ((state >> 11) as f64 + 0.5) / (1u64 << 53) as f64
-    };
+    if std::env::args().nth(1).as_deref() == Some("reflector") {
+        return reflector();
+    }
+    let mut g = gauss(2026);
     println!(
         "# Demo data (invented): cold 25.4 mm convergent nozzle on an imagined rig, NPR swept up then down."
     );
@@ -30,9 +64,7 @@ fn main() {
     let grid: Vec<f64> = (0..=steps).map(|k| 2.30 + 0.05 * f64::from(k)).collect();
     for (rising, xs) in [(true, grid.clone()), (false, grid.iter().rev().copied().collect::<Vec<_>>())] {
         for x in xs {
-            let (u1, u2) = (uniform(), uniform());
-            let g = (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos();
-            let f = model_hz(stage_at(x, rising), x) * (1.0 + NOISE * g);
+            let f = model_hz(stage_at(x, rising), x) * (1.0 + NOISE * g());
             println!("{x:.2},{f:.1},,{}", if rising { "up" } else { "down" });
         }
     }

@@ -110,8 +110,21 @@ pub(super) fn sample_set_for(
     let layout = layout(&mut check, lay);
     let scale = match calibration.and_then(|c| c.scale) {
         None => {
-            defaults.note("samples.calibration", "1 Pa per unit", "samples taken as pascals");
-            Some(1.0)
+            check.missing(
+                "samples.calibration",
+                "give pascals_per_unit, microphone (sensitivity and volts per unit), or in_pascals = true \
+                 for samples already in pascals; no unit is assumed",
+            );
+            None
+        }
+        Some(Scale::InPascals(true)) => Some(1.0),
+        Some(Scale::InPascals(false)) => {
+            check.other(
+                "samples.calibration.in_pascals",
+                "samples.calibration.in_pascals = false: set it true only for samples already in pascals; \
+                 otherwise give pascals_per_unit or microphone",
+            );
+            None
         }
         Some(Scale::PascalsPerUnit(k)) => {
             check.range("samples.calibration", SCALE.check("pascals_per_unit", k))
