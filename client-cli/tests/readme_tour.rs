@@ -11,13 +11,18 @@ use std::process::Command;
 /// The prefix the README runs the client with.
 const CLIENT: &str = "cargo run -q -p jetloop-cli -- ";
 
-/// Set-up commands the README shows that this test does not run (it starts its own server and
-/// is itself run by the test command).
-const SET_UP: [&str; 4] = [
+/// Set-up commands the README shows that this test does not run: it starts its own server and
+/// is itself run by the test command; the Python set-up lines are run, with the README's Python
+/// snippets, by tests/python/test_readme_python.py.
+const SET_UP: [&str; 8] = [
     "cargo run --release -p jetloop-server",
     "cargo install --path client-cli",
     "cargo test --workspace",
     "cargo run --release -p jetloop-tests --bin ",
+    "python3 -m pip install ",
+    "mkdir -p build/python",
+    "python3 -m grpc_tools.protoc ",
+    "export PYTHONPATH=",
 ];
 
 /// Commands of the README's ```sh blocks: continuation lines joined, comments dropped.
