@@ -364,7 +364,6 @@ impl Run for InfoCmd {
         let l = r.limits.unwrap_or_default();
         let mut p = r.provenance.unwrap_or_default();
         p.models = r.models;
-        p.notes.push(r.safety_notice);
         Ok(Report::new(format!("jetloop server {}", r.server_version))
             .text("services", "services", r.services.join(", "))
             .int("max_request_bytes", "largest request", l.max_request_bytes, "bytes")

@@ -416,3 +416,25 @@ async fn a_client_deadline_is_answered_with_deadline_exceeded() {
     assert!(e.message().contains("server's time limit"), "{}", e.message());
     server.stop().await;
 }
+
+#[tokio::test]
+async fn the_pressure_caution_comes_with_reservoir_conditions_only_and_once() {
+    // Where the work can hurt someone (a pressurized reservoir) the answer says so, once; a jet
+    // given directly by Mj and Dj has no reservoir to warn about.
+    let server = TestServer::start().await;
+    let mut t = ToneServiceClient::new(server.channel().await);
+    let count = |notes: &[String]| notes.iter().filter(|n| n.contains("pressure equipment")).count();
+    let from_npr = t
+        .predict_screech(pb::PredictScreechRequest { jet: Some(conditions(3.5)), options: None })
+        .await
+        .unwrap()
+        .into_inner();
+    assert_eq!(count(&from_npr.provenance.unwrap().notes), 1);
+    let direct_jet = t
+        .predict_screech(pb::PredictScreechRequest { jet: Some(direct(1.4, 0.02)), options: None })
+        .await
+        .unwrap()
+        .into_inner();
+    assert_eq!(count(&direct_jet.provenance.unwrap().notes), 0);
+    server.stop().await;
+}

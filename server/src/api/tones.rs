@@ -60,9 +60,14 @@ fn with_state_models(mut m: Vec<Model>, r: &ResolvedJet) -> Vec<Model> {
     m
 }
 
+/// Notes of an answer about one jet: the jet state's notes and, when the jet came from
+/// reservoir conditions (a pressurized rig), the pressure-equipment caution; a jet given
+/// directly (Mj, Dj) has no reservoir to warn about.
 fn notes(r: &ResolvedJet) -> Vec<String> {
     let mut n = r.state.as_ref().map(JetState::notes).unwrap_or_default();
-    n.push(PRESSURE_CAUTION.to_string());
+    if r.state.is_some() {
+        n.push(PRESSURE_CAUTION.to_string());
+    }
     n
 }
 
@@ -652,7 +657,8 @@ pub fn sweep_response(q: &SweepQuery, cancel: &Cancel) -> Result<pb::SweepScreec
             m
         })
         .collect();
-    let mut notes = vec![PRESSURE_CAUTION.to_string()];
+    // The pressure-equipment caution once per sweep, when the points are reservoir conditions.
+    let mut notes = if q.jet.spec.is_some() { vec![PRESSURE_CAUTION.to_string()] } else { Vec::new() };
     if sweep.not_supersonic > 0 {
         notes.push(format!(
             "{} of {} points are not supersonic jets (no shock cells): they are kept with supersonic = false and no frequencies.",
