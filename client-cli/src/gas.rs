@@ -80,7 +80,7 @@ pub enum NozzleArg {
 /// `jetloop jet`.
 #[derive(Debug, Args)]
 #[command(allow_negative_numbers = true)]
-#[command(group(clap::ArgGroup::new("pressure").args(["npr", "total_pressure_pa"])))]
+#[command(group(clap::ArgGroup::new("pressure").args(["npr", "total_pressure_pa", "gauge_pressure_pa"])))]
 pub struct JetArgs {
     /// Nozzle kind.
     #[arg(long, value_enum, default_value = "convergent")]
@@ -106,6 +106,11 @@ pub struct JetArgs {
     /// Reservoir total pressure in Pa (absolute); needs --ambient-pressure-pa.
     #[arg(long, requires = "ambient_pressure_pa")]
     total_pressure_pa: Option<f64>,
+    /// Reservoir gauge pressure in Pa (above ambient, as rig transducers read it); needs
+    /// --ambient-pressure-pa (absolute, e.g. the lab barometer). Example: --gauge-pressure-pa
+    /// 253312 --ambient-pressure-pa 101325 is NPR 3.5.
+    #[arg(long, requires = "ambient_pressure_pa")]
+    gauge_pressure_pa: Option<f64>,
     /// Ambient pressure in Pa (server default 101325).
     #[arg(long)]
     ambient_pressure_pa: Option<f64>,
@@ -176,6 +181,13 @@ impl JetArgs {
         };
         let (pressure, ambient_pressure_pa) = match (self.npr, self.total_pressure_pa) {
             (Some(npr), _) => (Some(Pressure::NozzlePressureRatio(npr)), self.ambient_pressure_pa),
+            (None, None) if self.gauge_pressure_pa.is_some() => (
+                Some(Pressure::Gauge(pb::GaugeAndAmbientPressure {
+                    reservoir_gauge_pressure_pa: self.gauge_pressure_pa.unwrap_or_default(),
+                    ambient_pressure_pa: self.ambient_pressure_pa.unwrap_or_default(),
+                })),
+                None,
+            ),
             (None, Some(p0)) => (
                 Some(Pressure::Pressures(pb::ReservoirAndAmbientPressure {
                     total_pressure_pa: p0,
@@ -184,7 +196,9 @@ impl JetArgs {
                 None,
             ),
             (None, None) if pressure_optional => (None, self.ambient_pressure_pa),
-            (None, None) => return Err(Failure::Usage("give --npr or --total-pressure-pa".into())),
+            (None, None) => {
+                return Err(Failure::Usage("give --npr, --total-pressure-pa or --gauge-pressure-pa".into()))
+            }
         };
         Ok(pb::JetConditions {
             nozzle: Some(pb::Nozzle { kind: Some(kind) }),
@@ -209,7 +223,7 @@ impl JetArgs {
 impl JetArgs {
     /// True when an operating pressure (NPR or total pressure) was given.
     pub fn pressure_given(&self) -> bool {
-        self.npr.is_some() || self.total_pressure_pa.is_some()
+        self.npr.is_some() || self.total_pressure_pa.is_some() || self.gauge_pressure_pa.is_some()
     }
 
     /// Total and ambient temperatures and the gas, for a jet given directly.

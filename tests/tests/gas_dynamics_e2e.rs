@@ -265,3 +265,40 @@ async fn graceful_shutdown_refuses_new_connections() {
     let r = tonic::transport::Endpoint::from_shared(url).unwrap().connect().await;
     assert!(r.is_err(), "server still accepts connections after shutdown");
 }
+
+#[tokio::test]
+async fn a_gauge_reservoir_pressure_is_added_to_the_ambient_pressure() {
+    // Absolute = gauge + ambient (definition of gauge pressure; common practice). 2.5 bar gauge
+    // on a 0.95 bar day is NPR 3.45/0.95; the state equals the one asked by that NPR, and Mj the
+    // isentropic closed form Mj = sqrt(2/(g-1) (NPR^((g-1)/g) - 1)) (NACA Report 1135, eq. 44).
+    let server = TestServer::start().await;
+    let mut c = GasDynamicsServiceClient::new(server.channel().await);
+    let (gauge, amb) = (250_000.0, 95_000.0);
+    let mut by_gauge = conditions(round(0.0254), 1.0);
+    by_gauge.operating_point = Some(pb::OperatingPoint {
+        pressure: Some(Pressure::Gauge(pb::GaugeAndAmbientPressure {
+            reservoir_gauge_pressure_pa: gauge,
+            ambient_pressure_pa: amb,
+        })),
+        ..Default::default()
+    });
+    let mut by_npr = conditions(round(0.0254), (gauge + amb) / amb);
+    by_npr.operating_point.as_mut().unwrap().ambient_pressure_pa = Some(amb);
+    let a = c.jet_state(pb::JetStateRequest { conditions: Some(by_gauge) }).await.unwrap().into_inner();
+    let b = c.jet_state(pb::JetStateRequest { conditions: Some(by_npr) }).await.unwrap().into_inner();
+    let (sa, sb) = (a.state.unwrap(), b.state.unwrap());
+    let npr = (gauge + amb) / amb;
+    assert!(rel(sa.nozzle_pressure_ratio, npr) < 1e-15);
+    assert_eq!(sa.fully_expanded_mach_number, sb.fully_expanded_mach_number);
+    let mj = (2.0 / 0.4 * (npr.powf(0.4 / 1.4) - 1.0)).sqrt();
+    assert!(rel(sa.fully_expanded_mach_number.unwrap(), mj) < 1e-12);
+    // A negative gauge pressure (vacuum reservoir) is refused, naming the field.
+    let mut bad = by_gauge;
+    bad.operating_point.as_mut().unwrap().pressure = Some(Pressure::Gauge(pb::GaugeAndAmbientPressure {
+        reservoir_gauge_pressure_pa: -1000.0,
+        ambient_pressure_pa: amb,
+    }));
+    let e = c.jet_state(pb::JetStateRequest { conditions: Some(bad) }).await.unwrap_err();
+    assert_field(&e, "conditions.operating_point.gauge.reservoir_gauge_pressure_pa");
+    server.stop().await;
+}

@@ -383,6 +383,24 @@ fn operating_point_from(
                 r => check.range(&format!("{path}.pressures"), r),
             }
         }
+        Some(Pressure::Gauge(pb::GaugeAndAmbientPressure {
+            reservoir_gauge_pressure_pa,
+            ambient_pressure_pa: pa,
+        })) => {
+            if ambient_pressure_pa.is_some() {
+                check.other(
+                    format!("{path}.ambient_pressure_pa"),
+                    format!(
+                        "{path}.ambient_pressure_pa must be unset when a gauge pressure is given: \
+                         the ambient pressure is {path}.gauge.ambient_pressure_pa"
+                    ),
+                );
+            }
+            match OperatingPoint::from_gauge(reservoir_gauge_pressure_pa, pa, t0, t_amb) {
+                Err(e) if e.quantity.ends_with("temperature_k") => check.range(path, Err(e)),
+                r => check.range(&format!("{path}.gauge"), r),
+            }
+        }
     }
 }
 

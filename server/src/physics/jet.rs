@@ -25,6 +25,8 @@ pub const NOZZLE_AREA_RATIO: Bounds = Bounds::closed(1.0, 1e6, "");
 pub const NPR: Bounds = Bounds::closed(1.0, 1000.0, "");
 /// Allowed absolute pressure, Pa.
 pub const PRESSURE: Bounds = Bounds::open_closed(0.0, 1e9, "Pa");
+/// Allowed gauge pressure of the reservoir (above ambient), Pa.
+pub const GAUGE_PRESSURE: Bounds = Bounds::closed(0.0, 1e9, "Pa");
 /// Allowed absolute temperature, K.
 pub const TEMPERATURE: Bounds = Bounds::open_closed(0.0, 5000.0, "K");
 
@@ -235,6 +237,30 @@ impl OperatingPoint {
                      pressure may not be below ambient)",
                     NPR.min * p_amb,
                     NPR.max * p_amb
+                ),
+            ));
+        }
+        Self::new(npr, p_amb, t0, t_amb)
+    }
+
+    /// From a reservoir gauge pressure (what rig transducers read: p0 - p_ambient, Pa) and the
+    /// absolute ambient pressure `p_amb` (Pa): p0 = p_gauge + p_amb.
+    ///
+    /// # Errors
+    /// [`RangeError`] naming `reservoir_gauge_pressure_pa`, `ambient_pressure_pa` or a
+    /// temperature, or the gauge pressure when the ratio leaves [`NPR`].
+    pub fn from_gauge(p_gauge: f64, p_amb: f64, t0: f64, t_amb: f64) -> Result<Self, RangeError> {
+        let p_gauge = GAUGE_PRESSURE.check("reservoir_gauge_pressure_pa", p_gauge)?;
+        let p_amb = PRESSURE.check("ambient_pressure_pa", p_amb)?;
+        let npr = (p_gauge + p_amb) / p_amb;
+        if !NPR.contains(npr) {
+            return Err(RangeError::new(
+                "reservoir_gauge_pressure_pa",
+                p_gauge,
+                format!(
+                    "[0, {}] Pa: NPR at most {} over the ambient pressure {p_amb} Pa",
+                    (NPR.max - 1.0) * p_amb,
+                    NPR.max
                 ),
             ));
         }
