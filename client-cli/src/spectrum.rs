@@ -61,6 +61,98 @@ impl WelchArgs {
     }
 }
 
+/// Level corrections: microphone response curves, distance and atmospheric absorption.
+#[derive(Debug, Args)]
+pub struct CorrectionArgs {
+    /// A response correction curve applied to every channel (free-field or pressure response,
+    /// protective grid, ...): CSV with a header row and columns frequency_hz,correction_db; the
+    /// correction is added to the measured level. Repeat for several curves (they add up).
+    #[arg(long)]
+    response_curve: Vec<PathBuf>,
+    /// Microphone distance from the source in m: one value for every channel, or one per
+    /// channel, comma separated (with --reference-distance-m).
+    #[arg(long, value_delimiter = ',', requires = "reference_distance_m")]
+    mic_distance_m: Vec<f64>,
+    /// Correct levels to this distance in m by spherical spreading 20 log10(r / r_ref).
+    #[arg(long, requires = "mic_distance_m")]
+    reference_distance_m: Option<f64>,
+    /// Also correct for atmospheric absorption (ISO 9613-1) over r - r_ref: air temperature
+    /// in K (with --relative-humidity-percent).
+    #[arg(long, requires_all = ["relative_humidity_percent", "reference_distance_m"])]
+    air_temperature_k: Option<f64>,
+    /// Relative humidity in percent, for the absorption.
+    #[arg(long, requires = "air_temperature_k")]
+    relative_humidity_percent: Option<f64>,
+    /// Atmospheric pressure in Pa, for the absorption (server default 101325).
+    #[arg(long, requires = "air_temperature_k")]
+    air_pressure_pa: Option<f64>,
+}
+
+impl CorrectionArgs {
+    /// The corrections message, or none when no option was given.
+    pub fn corrections(&self) -> Result<Option<pb::LevelCorrections>, Failure> {
+        if self.response_curve.is_empty() && self.reference_distance_m.is_none() {
+            return Ok(None);
+        }
+        let curves = self.response_curve.iter().map(|p| read_curve(p)).collect::<Result<Vec<_>, _>>()?;
+        let distances: Vec<Option<f64>> = if self.mic_distance_m.is_empty() {
+            vec![None]
+        } else {
+            self.mic_distance_m.iter().map(|d| Some(*d)).collect()
+        };
+        Ok(Some(pb::LevelCorrections {
+            channels: distances
+                .into_iter()
+                .map(|distance_m| pb::ChannelCorrection { curves: curves.clone(), distance_m })
+                .collect(),
+            reference_distance_m: self.reference_distance_m,
+            atmosphere: self.air_temperature_k.map(|t| pb::Atmosphere {
+                temperature_k: t,
+                relative_humidity_percent: self.relative_humidity_percent.unwrap_or_default(),
+                pressure_pa: self.air_pressure_pa,
+            }),
+        }))
+    }
+}
+
+/// Reads a response curve CSV (header row, then frequency_hz,correction_db).
+fn read_curve(path: &std::path::Path) -> Result<pb::ResponseCurve, Failure> {
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| Failure::Usage(format!("cannot read {}: {e}", path.display())))?;
+    let (mut frequencies_hz, mut corrections_db) = (Vec::new(), Vec::new());
+    let mut header = false;
+    for (i, line) in text.lines().enumerate() {
+        let line = line.trim();
+        if line.is_empty() || line.starts_with('#') {
+            continue;
+        }
+        let cells: Vec<&str> = line.split(',').map(str::trim).collect();
+        match (cells.first().map(|c| c.parse::<f64>()), cells.get(1).map(|c| c.parse::<f64>())) {
+            (Some(Ok(f)), Some(Ok(db))) if cells.len() == 2 => {
+                frequencies_hz.push(f);
+                corrections_db.push(db);
+            }
+            _ if frequencies_hz.is_empty() && !header => header = true, // the header row
+            _ => {
+                return Err(Failure::Usage(format!(
+                    "{} line {}: expected frequency_hz,correction_db",
+                    path.display(),
+                    i + 1
+                )))
+            }
+        }
+    }
+    let name = path.file_stem().and_then(|s| s.to_str()).unwrap_or("curve").chars().take(64).collect();
+    Ok(pb::ResponseCurve { name, frequencies_hz, corrections_db })
+}
+
+fn correction_rows(mut r: Report, c: &[String]) -> Report {
+    for (i, s) in c.iter().enumerate() {
+        r = r.text(if i == 0 { "correction" } else { "correction_more" }, "level correction", s.clone());
+    }
+    r
+}
+
 /// `jetloop tones`.
 #[derive(Debug, Args)]
 pub struct TonesCmd {
@@ -68,6 +160,8 @@ pub struct TonesCmd {
     input: InputArgs,
     #[command(flatten)]
     welch: WelchArgs,
+    #[command(flatten)]
+    corrections: CorrectionArgs,
     /// Minimum tone-to-floor ratio in dB (server default 6).
     #[arg(long)]
     threshold_db: Option<f64>,
@@ -285,6 +379,8 @@ pub struct BandsCmd {
     input: InputArgs,
     #[command(flatten)]
     welch: WelchArgs,
+    #[command(flatten)]
+    corrections: CorrectionArgs,
     /// Highest band centre in Hz (server default 100000).
     #[arg(long)]
     max_band_hz: Option<f64>,
@@ -356,6 +452,7 @@ impl Run for TonesCmd {
             } else {
                 None
             },
+            corrections: a.corrections.corrections()?,
         };
         let labelled = a.jet.given();
         let mut client = SpectrumServiceClient::new(ch)
@@ -470,6 +567,7 @@ impl Run for TonesCmd {
                     .num("a_weighted_overall_db", "A-weighted overall", b.a_weighted_overall_db, "dB(A)")
                     .table(band_table(b));
             }
+            rep = correction_rows(rep, &c.corrections_applied);
             rep = caution_rows(rep, &c.cautions);
             for (i, w) in c.warnings.iter().enumerate() {
                 rep = rep.text(if i == 0 { "warning" } else { "warning_more" }, "WARNING", w.clone());
@@ -536,6 +634,7 @@ impl Run for BandsCmd {
                 samples: Some(samples),
                 welch: Some(a.welch.options()),
                 max_band_frequency_hz: a.max_band_hz,
+                corrections: a.corrections.corrections()?,
             })
             .await;
         s.finish_and_clear();
@@ -555,6 +654,7 @@ impl Run for BandsCmd {
                     "dB re 20 uPa",
                 )
                 .table(band_table(&b));
+            rep = correction_rows(rep, &c.corrections_applied);
             rep = caution_rows(rep, &c.cautions);
             top = top.child(rep);
         }

@@ -169,6 +169,11 @@ impl Check {
         self.violations.push(FieldViolation { field: field.into(), description: description.into() });
     }
 
+    /// Number of violations recorded so far.
+    pub fn count(&self) -> usize {
+        self.violations.len()
+    }
+
     /// True when nothing was recorded.
     pub fn is_clean(&self) -> bool {
         self.violations.is_empty()

@@ -78,6 +78,12 @@ pub struct Psd {
 }
 
 impl Psd {
+    /// Mean square from the density, Pa^2: the sum of density times bin spacing (Parseval's
+    /// theorem for the one-sided Welch density).
+    pub fn mean_square_pa2(&self) -> f64 {
+        self.density.iter().sum::<f64>() * self.resolution_hz()
+    }
+
     /// Bin spacing fs / nperseg, Hz.
     pub fn resolution_hz(&self) -> f64 {
         self.fs / self.config.nperseg as f64

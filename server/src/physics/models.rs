@@ -89,6 +89,17 @@ pub const THIRD_OCTAVE: Model =
 pub const A_WEIGHTING: Model =
     Model { name: "A-frequency-weighting", reference: "IEC 61672-1:2013, Annex E" };
 
+/// Level corrections: response curves, spherical spreading.
+pub const LEVEL_CORRECTIONS: Model = Model {
+    name:
+        "microphone response curves (log-frequency interpolation) and spherical spreading 20 log10(r / r_ref)",
+    reference:
+        "inverse-square law of a point source in the far field; response charts of the microphone maker",
+};
+/// Atmospheric absorption.
+pub const ATMOSPHERIC_ABSORPTION: Model =
+    Model { name: "pure-tone atmospheric absorption", reference: "ISO 9613-1:1993" };
+
 /// Stage segmentation.
 pub const STAGE_SEGMENTATION: Model = Model {
     name: "stage segmentation by frequency-continuity branch tracking, quadratic smooth fits",

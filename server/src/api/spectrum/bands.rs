@@ -8,6 +8,7 @@ pub struct BandQuery {
     samples: SampleSet,
     welch: WelchConfig,
     max_hz: f64,
+    corrections: Vec<crate::dsp::corrections::ChannelCorrection>,
     defaults: Defaults,
 }
 
@@ -23,7 +24,7 @@ impl TryFrom<pb::BandLevelsRequest> for BandQuery {
     type Error = ApiError;
 
     fn try_from(req: pb::BandLevelsRequest) -> Result<Self, ApiError> {
-        let pb::BandLevelsRequest { samples, welch, max_band_frequency_hz } = req;
+        let pb::BandLevelsRequest { samples, welch, max_band_frequency_hz, corrections } = req;
         let mut defaults = Defaults::default();
         let samples = sample_set(samples, &mut defaults)?;
         let mut check = Check::new();
@@ -32,7 +33,9 @@ impl TryFrom<pb::BandLevelsRequest> for BandQuery {
             None => 100_000.0,
             Some(f) => check.range("", BAND_MAX.check("max_band_frequency_hz", f)).unwrap_or(100_000.0),
         };
-        check.finish(w.map(|welch| BandQuery { samples, welch, max_hz, defaults }))
+        let corrections =
+            level_corrections(&mut check, &mut defaults, corrections, samples.recording.channel_count());
+        check.finish(w.map(|welch| BandQuery { samples, welch, max_hz, corrections, defaults }))
     }
 }
 
@@ -65,7 +68,8 @@ pub(super) fn band_summary(b: &BandLevels) -> pb::BandSummary {
 pub fn bands_response(q: &BandQuery) -> Result<pb::BandLevelsResponse, ApiError> {
     let mut out = Vec::new();
     for c in 0..q.samples.recording.channel_count() {
-        let psd = q.samples.psd(c, q.welch)?;
+        let mut psd = q.samples.psd(c, q.welch)?;
+        let applied = q.corrections.get(c).map(|cc| cc.apply(&mut psd)).unwrap_or_default();
         let b = band_levels(&psd, q.max_hz);
         let mut cautions = Vec::new();
         if b.overall_db >= CAUTION_LEVEL_DB {
@@ -77,9 +81,11 @@ pub fn bands_response(q: &BandQuery) -> Result<pb::BandLevelsResponse, ApiError>
             analysis: Some(analysis(&psd, q.samples.recording.len(), None)),
             bands: Some(band_summary(&b)),
             cautions,
+            corrections_applied: applied.notes.into_iter().chain(applied.warnings).collect(),
         });
     }
     let mut used = SPECTRUM_MODELS.to_vec();
     used.extend([models::THIRD_OCTAVE, models::A_WEIGHTING]);
+    used.extend(super::corrections::correction_models(&q.corrections));
     Ok(pb::BandLevelsResponse { channels: out, provenance: Some(provenance(&used, &q.defaults, Vec::new())) })
 }

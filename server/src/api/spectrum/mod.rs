@@ -30,6 +30,7 @@ pub const MAX_CHANNELS: u32 = 64;
 use crate::dsp::limits::*;
 
 mod bands;
+mod corrections;
 mod cross;
 mod samples;
 mod stream;
@@ -39,6 +40,7 @@ mod welch;
 
 use bands::band_summary;
 pub use bands::{bands_response, BandQuery};
+use corrections::level_corrections;
 pub use cross::{cross_response, CrossQuery};
 use samples::sample_set_for;
 pub use samples::{held_bytes, sample_set, SampleSet};

@@ -44,6 +44,8 @@ pub struct ToneQuery {
     pub(super) bands: Option<f64>,
     pub(super) psd_points: Option<Option<usize>>,
     pub(super) stages: Option<crate::api::guided::StageContext>,
+    /// Level corrections, one per channel, or none.
+    pub(super) corrections: Vec<crate::dsp::corrections::ChannelCorrection>,
     pub(super) defaults: Defaults,
 }
 
@@ -79,6 +81,7 @@ pub(super) fn tone_query(
         max_band_frequency_hz,
         psd_output,
         stage_labels,
+        corrections,
     } = req;
     let started = std::time::Instant::now();
     let mut defaults = Defaults::default();
@@ -95,6 +98,8 @@ pub(super) fn tone_query(
     let mut check = Check::new();
     let w = welch_config(&mut check, &mut defaults, welch, samples.fs, known);
     let tones = tone_config(&mut check, tones);
+    let corrections =
+        level_corrections(&mut check, &mut defaults, corrections, samples.recording.channel_count());
     let predicted = predicted_screech_hz.and_then(|f| {
         let f = check.range("", PREDICTED.check("predicted_screech_hz", f))?;
         let tol = match match_tolerance_fraction {
@@ -121,6 +126,7 @@ pub(super) fn tone_query(
         bands,
         psd_points,
         stages,
+        corrections,
         defaults,
     });
     check.finish(q)
@@ -252,9 +258,21 @@ pub fn tones_response(q: &ToneQuery) -> Result<pb::ExtractTonesResponse, ApiErro
 /// The answer from one PSD per channel; `t` is when the server's work began.
 pub(super) fn tones_answer(q: &ToneQuery, psds: &[Psd], t: std::time::Instant) -> pb::ExtractTonesResponse {
     let mut out = Vec::with_capacity(psds.len());
-    for (c, psd) in psds.iter().enumerate() {
+    for (c, measured) in psds.iter().enumerate() {
+        // Corrections act on a copy of the PSD; the rms then comes from the corrected density.
+        let mut corrected = None;
+        let mut applied = crate::dsp::corrections::Applied::default();
+        if let Some(cc) = q.corrections.get(c).filter(|cc| !cc.is_empty()) {
+            let mut p = measured.clone();
+            applied = cc.apply(&mut p);
+            corrected = Some(p);
+        }
+        let psd = corrected.as_ref().unwrap_or(measured);
         let set = find_tones(psd, &q.tones);
-        let rms_pa = psd.moments.rms_about_mean();
+        let rms_pa = match &corrected {
+            Some(p) => p.mean_square_pa2().sqrt(),
+            None => psd.moments.rms_about_mean(),
+        };
         let overall = spl_db(rms_pa * rms_pa);
         let mut cautions = Vec::new();
         if let Some(t) = set.tones.iter().max_by(|a, b| a.level_db.total_cmp(&b.level_db)) {
@@ -265,7 +283,8 @@ pub(super) fn tones_answer(q: &ToneQuery, psds: &[Psd], t: std::time::Instant) -
         if overall >= CAUTION_LEVEL_DB {
             cautions.push(caution(overall, "The overall level"));
         }
-        let warnings = channel_warnings(q, c, psd, &set);
+        let mut warnings = channel_warnings(q, c, psd, &set);
+        warnings.extend(applied.warnings);
         let predicted_match = q.predicted.map(|(f, tol)| {
             let m = match_prediction(&set, f, tol);
             pb::PredictionMatch {
@@ -337,10 +356,12 @@ pub(super) fn tones_answer(q: &ToneQuery, psds: &[Psd], t: std::time::Instant) -
             psd: q.psd_points.map(|m| psd_data(psd, Some(&set.floor), m)),
             cautions,
             warnings,
+            corrections_applied: applied.notes,
         });
     }
     let mut used = SPECTRUM_MODELS.to_vec();
     used.push(models::TONE_EXTRACTION);
+    used.extend(super::corrections::correction_models(&q.corrections));
     if q.bands.is_some() {
         used.push(models::THIRD_OCTAVE);
         used.push(models::A_WEIGHTING);
