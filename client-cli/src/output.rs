@@ -15,6 +15,8 @@ pub enum Val {
     Text(String),
     /// Yes/no.
     Flag(bool),
+    /// A number printed in its shortest plain form (band centres, counts of a unit).
+    Plain(f64),
 }
 
 /// One line of a report: JSON key (with unit suffix), label for people, value, unit.
@@ -24,6 +26,8 @@ pub struct Row {
     label: &'static str,
     value: Val,
     unit: &'static str,
+    /// Left out of the table form (kept in JSON): shown once elsewhere.
+    hidden: bool,
 }
 
 /// A table inside a report: JSON key, columns (JSON key, header with unit), rows.
@@ -59,6 +63,7 @@ impl Table {
             Some(Val::Int(x)) => x.to_string(),
             Some(Val::Text(t)) => t.clone(),
             Some(Val::Flag(b)) => if *b { "yes" } else { "no" }.into(),
+            Some(Val::Plain(x)) => fmt_plain(*x),
         }
     }
 
@@ -80,6 +85,9 @@ impl Table {
     }
 
     fn to_text(&self) -> String {
+        if self.rows.is_empty() {
+            return String::new();
+        }
         let cells: Vec<Vec<String>> =
             self.rows.iter().map(|r| r.iter().map(Self::cell_text).collect()).collect();
         let widths: Vec<usize> = self
@@ -116,7 +124,7 @@ impl Table {
                 .iter()
                 .map(|v| match v {
                     None => String::new(),
-                    Some(Val::Num(x)) => format!("{x}"),
+                    Some(Val::Num(x)) | Some(Val::Plain(x)) => format!("{x}"),
                     Some(Val::Int(x)) => x.to_string(),
                     Some(Val::Text(t)) => t.replace(',', ";"),
                     Some(Val::Flag(b)) => b.to_string(),
@@ -131,7 +139,7 @@ impl Table {
 
 fn val_json(v: &Val) -> Value {
     match v {
-        Val::Num(x) => json!(x),
+        Val::Num(x) | Val::Plain(x) => json!(x),
         Val::Int(x) => json!(x),
         Val::Text(t) => json!(t),
         Val::Flag(b) => json!(b),
@@ -158,7 +166,7 @@ impl Report {
 
     /// Adds a number.
     pub fn num(mut self, key: &'static str, label: &'static str, v: f64, unit: &'static str) -> Self {
-        self.rows.push(Row { key, label, value: Val::Num(v), unit });
+        self.rows.push(Row { key, label, value: Val::Num(v), unit, hidden: false });
         self
     }
 
@@ -172,19 +180,30 @@ impl Report {
 
     /// Adds a count or size.
     pub fn int(mut self, key: &'static str, label: &'static str, v: u64, unit: &'static str) -> Self {
-        self.rows.push(Row { key, label, value: Val::Int(v), unit });
+        self.rows.push(Row { key, label, value: Val::Int(v), unit, hidden: false });
         self
     }
 
     /// Adds text.
     pub fn text(mut self, key: &'static str, label: &'static str, v: impl Into<String>) -> Self {
-        self.rows.push(Row { key, label, value: Val::Text(v.into()), unit: "" });
+        self.rows.push(Row { key, label, value: Val::Text(v.into()), unit: "", hidden: false });
         self
     }
 
     /// Adds a yes/no flag.
     pub fn flag(mut self, key: &'static str, label: &'static str, v: bool) -> Self {
-        self.rows.push(Row { key, label, value: Val::Flag(v), unit: "" });
+        self.rows.push(Row { key, label, value: Val::Flag(v), unit: "", hidden: false });
+        self
+    }
+
+    /// Leaves the rows with these keys out of the table form (JSON keeps them): for figures
+    /// shown once for several sections.
+    pub fn hide(mut self, keys: &[&str]) -> Self {
+        for r in &mut self.rows {
+            if keys.contains(&r.key) {
+                r.hidden = true;
+            }
+        }
         self
     }
 
@@ -259,10 +278,11 @@ impl Report {
         if self.title_only {
             return out;
         }
-        let w = self.rows.iter().map(|r| r.label.len()).max().unwrap_or(0);
-        for r in &self.rows {
+        let w = self.rows.iter().filter(|r| !r.hidden).map(|r| r.label.len()).max().unwrap_or(0);
+        for r in self.rows.iter().filter(|r| !r.hidden) {
             let v = match &r.value {
                 Val::Num(x) => fmt_num(*x),
+                Val::Plain(x) => fmt_plain(*x),
                 Val::Int(x) => x.to_string(),
                 Val::Text(t) => t.clone(),
                 Val::Flag(b) => if *b { "yes" } else { "no" }.to_string(),
@@ -314,6 +334,28 @@ pub fn fmt_num(x: f64) -> String {
     }
 }
 
+/// The shortest plain form up to six significant digits: 20, 31.5, 12500, 0.0254.
+pub fn fmt_plain(x: f64) -> String {
+    if !x.is_finite() {
+        return format!("{x}");
+    }
+    let t = fmt_num(x);
+    if t.contains('e') || !t.contains('.') {
+        return t;
+    }
+    t.trim_end_matches('0').trim_end_matches('.').to_string()
+}
+
+/// A value with its standard error in plain notation, the error to two significant digits and
+/// the value to the same decimal place: `0.7198 ± 0.0024`, `801.02 ± 0.89`.
+pub fn fmt_uncertain(value: f64, se: f64) -> String {
+    if !(se.is_finite() && se > 0.0 && value.is_finite()) {
+        return fmt_plain(value);
+    }
+    let decimals = (1 - se.log10().floor() as i32).clamp(0, 12) as usize;
+    format!("{value:.decimals$} ± {se:.decimals$}")
+}
+
 /// Provenance as JSON.
 pub fn provenance_json(p: &pb::Provenance) -> Value {
     json!({
@@ -327,6 +369,34 @@ pub fn provenance_json(p: &pb::Provenance) -> Value {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn uncertain_values_keep_the_digits_their_error_supports() {
+        assert_eq!(fmt_uncertain(0.719_82, 0.0024), "0.7198 ± 0.0024");
+        assert_eq!(fmt_uncertain(8.0102e-4, 8.9e-7), "0.00080102 ± 0.00000089");
+        assert_eq!(fmt_uncertain(4523.7, 12.0), "4524 ± 12");
+        assert_eq!(fmt_uncertain(4.0, 0.0), "4");
+        assert_eq!(fmt_plain(20.0), "20");
+        assert_eq!(fmt_plain(31.5), "31.5");
+        assert_eq!(fmt_plain(12_500.0), "12500");
+    }
+
+    #[test]
+    fn empty_tables_print_nothing_and_hidden_rows_stay_in_json() {
+        let r = Report::new("t")
+            .num("a", "shown", 1.0, "")
+            .num("b", "hidden", 2.0, "")
+            .hide(&["b"])
+            .table(Table::new("empty", "Nothing here").col("x", "x"));
+        let text = r.to_table();
+        assert!(
+            text.contains("shown") && !text.contains("hidden") && !text.contains("Nothing here"),
+            "{text}"
+        );
+        let j = r.to_json();
+        assert_eq!(j["b"], 2.0);
+        assert!(j["empty"].as_array().is_some_and(|a| a.is_empty()));
+    }
 
     #[test]
     fn numbers_keep_six_significant_digits() {

@@ -406,7 +406,7 @@ fn band_table(b: &pb::BandSummary) -> Table {
         .col("resolved", "resolved");
     for x in &b.bands {
         t.row(vec![
-            Some(Val::Num(x.nominal_hz)),
+            Some(Val::Plain(x.nominal_hz)),
             Some(Val::Num(x.exact_hz)),
             Some(Val::Num(x.level_db)),
             Some(Val::Num(x.a_weighted_level_db)),
@@ -600,7 +600,14 @@ impl Run for TonesCmd {
                     eprintln!("wrote PSD {}", path.display());
                 }
             }
+            if several {
+                // Shown once for all channels in the summary above the sections.
+                rep = rep.hide(&PER_CHANNEL_SUMMARY);
+            }
             top = top.child(rep);
+        }
+        if several {
+            top = channel_summary(top, &r.channels);
         }
         if let Some(samples) = cross_samples {
             let positions = positions(&a.azimuths_deg);
@@ -620,6 +627,58 @@ impl Run for TonesCmd {
         }
         Ok(top.provenance(r.provenance))
     }
+}
+
+/// Rows of a channel section that the summary of several channels shows once.
+const PER_CHANNEL_SUMMARY: [&str; 13] = [
+    "channel",
+    "window",
+    "segment_length",
+    "overlap_samples",
+    "averages",
+    "frequency_resolution_hz",
+    "enbw_hz",
+    "normalized_random_error",
+    "unused_samples",
+    "rms_pa",
+    "overall_level_db",
+    "caution",
+    "caution_more",
+];
+
+/// The analysis settings once (every channel is analysed alike), one table row per channel,
+/// and the strongest caution once.
+fn channel_summary(mut top: Report, channels: &[pb::ChannelSpectrum]) -> Report {
+    if let Some(an) = channels.first().and_then(|c| c.analysis.as_ref()) {
+        top = analysis_rows(top, an);
+    }
+    let mut t = Table::new("summary", "Channels")
+        .col("channel", "channel")
+        .col("rms_pa", "rms [Pa]")
+        .col("overall_level_db", "overall [dB re 20 uPa]")
+        .col("tone_count", "tones")
+        .col("strongest_tone_hz", "strongest tone [Hz]")
+        .col("strongest_tone_level_db", "its level [dB re 20 uPa]");
+    for c in channels {
+        let label = if c.name.is_empty() { format!("channel {}", c.channel) } else { c.name.clone() };
+        let top_tone = c.tones.iter().max_by(|a, b| a.level_db.total_cmp(&b.level_db));
+        t.row(vec![
+            Some(Val::Text(label)),
+            Some(Val::Num(c.rms_pa)),
+            Some(Val::Num(c.overall_level_db)),
+            Some(Val::Int(c.tones.len() as u64)),
+            top_tone.map(|x| Val::Num(x.frequency_hz)),
+            top_tone.map(|x| Val::Num(x.level_db)),
+        ]);
+    }
+    let loudest = channels
+        .iter()
+        .filter(|c| !c.cautions.is_empty())
+        .max_by(|a, b| a.overall_level_db.total_cmp(&b.overall_level_db));
+    if let Some(c) = loudest {
+        top = top.text("caution", "CAUTION", c.cautions[0].clone());
+    }
+    top.table(t)
 }
 
 /// Runs `bands`.

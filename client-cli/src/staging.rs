@@ -112,8 +112,8 @@ fn read_points(path: &PathBuf) -> Result<Vec<pb::MeasuredTone>, Failure> {
 
 fn param_text(p: &pb::FittedParameter) -> String {
     let mut s = match p.standard_error {
-        Some(se) => format!("{:.4e} +- {:.1e}", p.value, se),
-        None => format!("{:.4e}", p.value),
+        Some(se) => crate::output::fmt_uncertain(p.value, se),
+        None => crate::output::fmt_plain(p.value),
     };
     if p.fixed {
         s.push_str(" (fixed)");
@@ -187,7 +187,7 @@ impl Run for FitCmd {
             .col("convection_ratio", "Uc/Uj")
             .col("source_cells", "N cells")
             .col("fixed_delay_s", "tau0 [s]")
-            .col("reflector_path_factor", "g")
+            .col("reflector_path_factor", "path factor g")
             .col("rms_relative_error", "rms rel. err.")
             .col("fit_verdict", "fit vs noise");
         if a.label_stages {
@@ -261,7 +261,7 @@ impl Run for FitCmd {
         }
         let mut models = Table::new("models", "Model comparison")
             .col("model", "model")
-            .col("parameter_count", "k")
+            .col("parameter_count", "parameters")
             .col("chi_square", "chi^2")
             .col("aic", "AIC")
             .col("bic", "BIC")

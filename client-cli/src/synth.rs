@@ -148,9 +148,12 @@ impl Run for SynthCmd {
         };
         let mics = a.ring as usize;
         let azimuths: Vec<f64> = (0..mics).map(|j| 2.0 * PI * j as f64 / mics as f64).collect();
-        // Hump: white noise through a two-pole resonance, scaled to its overall level; each
-        // microphone has its own hump and background noise.
-        let (rr, th) = (0.995, 2.0 * PI * a.hump_hz / fs);
+        // Hump: white noise through a two-pole resonance about 40 % of its centre frequency wide
+        // (pole radius r from the bandwidth B = (1 - r) fs / pi), a broad hump as shock-associated
+        // noise is, not a narrow line; scaled to its overall level; each microphone has its own
+        // hump and background noise.
+        let rr = (1.0 - PI * 0.4 * a.hump_hz / fs).max(0.5);
+        let th = 2.0 * PI * a.hump_hz / fs;
         let (a1, a2) = (2.0 * rr * th.cos(), -rr * rr);
         let mut chans = Vec::with_capacity(mics);
         for &theta in &azimuths {

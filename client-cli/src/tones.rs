@@ -408,7 +408,7 @@ impl Run for CellsCmd {
 
 fn tone_table(key: &'static str, title: &str, tones: &[pb::Tone]) -> Table {
     let mut t =
-        Table::new(key, title).col("order", "k").col("frequency_hz", "f [Hz]").col("strouhal_number", "St");
+        Table::new(key, title).col("order", "n").col("frequency_hz", "f [Hz]").col("strouhal_number", "St");
     for x in tones {
         t.row(vec![
             Some(Val::Int(x.order.into())),
@@ -469,7 +469,7 @@ impl Run for ScreechCmd {
             .num("loop_time_s", "loop time tau", fl.loop_time_s, "s");
         let mut rep = rep.table(models).table(paths).table(tone_table(
             "loop_orders",
-            "Loop orders n / tau",
+            "Loop orders (n periods in the loop time: f = n / tau)",
             &fl.orders,
         ));
         if !r.guided_modes.is_empty() {
@@ -543,11 +543,21 @@ impl Run for SweepCmd {
             VaryArg::Mj => ("fully_expanded_mach_number_swept", "Mj set"),
             VaryArg::Reflector => ("reflector_distance_m", "reflector [m]"),
         };
-        let mut t = Table::new("points", "Sweep")
-            .col(value_key.0, value_key.1)
-            .col("nozzle_pressure_ratio", "NPR")
-            .col("fully_expanded_mach_number", "Mj")
-            .col("regime", "regime")
+        // The swept NPR is the NPR column; the regime column only when the jet came from
+        // reservoir conditions (a jet given directly has none).
+        let npr_swept = matches!(a.vary, VaryArg::Npr);
+        let regimes = r.points.iter().any(|p| p.regime != pb::ExpansionRegime::Unspecified as i32);
+        let mut t = Table::new("points", "Sweep");
+        t = if npr_swept {
+            t.col("nozzle_pressure_ratio", "NPR")
+        } else {
+            t.col(value_key.0, value_key.1).col("nozzle_pressure_ratio", "NPR")
+        };
+        t = t.col("fully_expanded_mach_number", "Mj");
+        if regimes {
+            t = t.col("regime", "regime");
+        }
+        t = t
             .col("fully_expanded_velocity_m_per_s", "Uj [m/s]")
             .col("reference_length_m", "L [m]")
             .col("spacing_m", "Ls [m]")
@@ -557,17 +567,22 @@ impl Run for SweepCmd {
             t = t.col(format!("loop_n{n}_hz"), format!("n={n} [Hz]"));
         }
         for p in &r.points {
-            let mut row = vec![
-                Some(Val::Num(p.value)),
-                Some(Val::Num(p.nozzle_pressure_ratio)),
-                Some(Val::Num(p.fully_expanded_mach_number)),
-                Some(Val::Text(regime_name(p.regime))),
+            let mut row = Vec::new();
+            if !npr_swept {
+                row.push(Some(Val::Num(p.value)));
+            }
+            row.push(Some(Val::Num(p.nozzle_pressure_ratio)));
+            row.push(Some(Val::Num(p.fully_expanded_mach_number)));
+            if regimes {
+                row.push(Some(Val::Text(regime_name(p.regime))));
+            }
+            row.extend([
                 Some(Val::Num(p.fully_expanded_velocity_m_per_s)),
                 Some(Val::Num(p.reference_length_m)),
                 p.spacing_m.map(Val::Num),
                 p.powell_fundamental_hz.map(Val::Num),
                 p.tam_1986_hz.map(Val::Num),
-            ];
+            ]);
             for n in 0..orders {
                 row.push(p.loop_frequencies_hz.get(n).copied().map(Val::Num));
             }
@@ -601,7 +616,8 @@ impl Run for SweepCmd {
             ))
             .int("points", "points", r.points.len() as u64, "")
             .text("csv_file", "CSV file", path.display().to_string())
-            .num("compute_time_s", "server compute time", r.compute_time_s, "s");
+            .num("compute_time_s", "server compute time", r.compute_time_s, "s")
+            .hide(&["compute_time_s"]);
             return Ok(rep.provenance(r.provenance).title_only());
         }
         Ok(Report::new(format!(
@@ -610,6 +626,7 @@ impl Run for SweepCmd {
             r.compute_time_s * 1e3
         ))
         .num("compute_time_s", "server compute time", r.compute_time_s, "s")
+        .hide(&["compute_time_s"])
         .table(t)
         .provenance(r.provenance))
     }

@@ -72,7 +72,8 @@ async fn cli_answers_with_units_json_csv_and_exit_codes() {
     assert!(e.contains("exit_diameter_m") && e.contains("nozzle_pressure_ratio"), "{e}");
     let lines: Vec<&str> = sweep_csv.lines().collect();
     assert_eq!(lines.len(), 9);
-    assert!(lines[0].starts_with("nozzle_pressure_ratio_swept,"));
+    // The swept NPR is the NPR column (no second NPR column), then Mj and the regime.
+    assert!(lines[0].starts_with("nozzle_pressure_ratio,fully_expanded_mach_number,regime,"), "{}", lines[0]);
     assert!(lines[1].contains(",subsonic,"));
     let s = json(&screech);
     assert!(s["predictions"].as_array().unwrap().len() >= 2);
@@ -140,6 +141,14 @@ async fn synth_wav_then_tones_finds_the_screech_family() {
             &u,
             &["--json", "bands", csv.to_str().unwrap(), "--sample-rate-hz", "20000", "--in-pascals"],
         );
+        // Several channels: the analysis settings once and one summary table, not a block per
+        // channel.
+        let two = jetloop(&u, &["tones", csv.to_str().unwrap(), "--sample-rate-hz", "20000", "--in-pascals"]);
+        let text = String::from_utf8_lossy(&two.stdout);
+        assert!(two.status.success(), "{}", String::from_utf8_lossy(&two.stderr));
+        assert_eq!(text.matches("segment length").count(), 1, "{text}");
+        assert_eq!(text.matches("\nChannels\n").count(), 1, "{text}");
+        assert!(text.contains("mic_a") && text.contains("mic_b"), "{text}");
         let svg_text = std::fs::read_to_string(&svg).unwrap_or_default();
         (no_cal, t, b, svg_text, blocks)
     })

@@ -101,7 +101,7 @@ impl TryFrom<pb::IsentropicRatiosRequest> for IsentropicQuery {
                 let b = match branch.flatten() {
                     Some(b) => b,
                     None => {
-                        defaults.note("branch", "MACH_BRANCH_SUPERSONIC", "jets of interest are supersonic");
+                        defaults.note("branch", "supersonic", "jets of interest are supersonic");
                         Branch::Supersonic
                     }
                 };

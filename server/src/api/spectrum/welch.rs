@@ -40,7 +40,7 @@ pub(super) fn welch_config(
     let pb::WelchOptions { window, segment, overlap_fraction, detrend } = o.unwrap_or_default();
     let window = match pb::WindowKind::try_from(window) {
         Ok(pb::WindowKind::Unspecified) => {
-            defaults.note("welch.window", "WINDOW_KIND_HANN", "the usual window for tone analysis");
+            defaults.note("welch.window", "Hann", "the usual window for tone analysis");
             Some(Window::Hann)
         }
         Ok(pb::WindowKind::Hann) => Some(Window::Hann),
