@@ -10,6 +10,7 @@ mod gas;
 mod modes;
 mod output;
 mod plot;
+mod ramp;
 mod readers;
 mod spectrum;
 mod staging;
@@ -62,7 +63,11 @@ enum Command {
     Track(track::TrackCmd),
     /// One-third-octave band levels, overall and A-weighted levels of a recording.
     Bands(spectrum::BandsCmd),
-    /// Write a demo WAV of an imagined jet rig (screech, harmonics, shock-noise hump, noise).
+    /// Tones against NPR from a continuous ramp: a recording with an NPR or reservoir-pressure
+    /// channel beside the microphones, in short-time frames; points written for `fit`.
+    Ramp(ramp::RampCmd),
+    /// Write a demo recording of an imagined jet rig (WAV, CSV or raw int16; ring of
+    /// microphones, stage jump, NPR ramp with its pressure channel).
     Synth(synth::SynthCmd),
     /// Stages, jumps, hysteresis and loop-model fits of a measured sweep (CSV).
     Fit(staging::FitCmd),
@@ -133,6 +138,7 @@ async fn run(cli: Cli) -> Result<output::Report, Failure> {
         Command::Track(a) => a.run(&ctx).await,
         Command::Bands(a) => a.run(&ctx).await,
         Command::Synth(a) => a.run(&ctx).await,
+        Command::Ramp(a) => a.run(&ctx).await,
         Command::Fit(a) => a.run(&ctx).await,
         Command::Info(a) => a.run(&ctx).await,
     }

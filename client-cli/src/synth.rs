@@ -54,8 +54,20 @@ pub struct SynthCmd {
     #[arg(long)]
     jump_at_s: Option<f64>,
     /// Frequency after the jump, Hz (default: 12 % above --screech-hz).
-    #[arg(long, requires = "jump_at_s")]
+    #[arg(long)]
     jump_to_hz: Option<f64>,
+    /// A continuous NPR ramp FROM,TO: the NPR runs from FROM to TO and back over the recording,
+    /// the tone follows Powell's fundamental of a cold round convergent jet (Uc = 0.7 Uj,
+    /// vortex-sheet cell spacing) scaled to --screech-hz at FROM, silent while the jet is not
+    /// supersonic, and one more channel (the last) carries a gauge-pressure transducer: 0-10 V
+    /// over 0-1 MPa, ambient 101325 Pa.
+    #[arg(long, value_delimiter = ',')]
+    ramp_npr: Vec<f64>,
+    /// With --ramp-npr: NPR above which the tone is on a second stage on the way up, and on the
+    /// way down (below the first: hysteresis), UP,DOWN; the second stage is at
+    /// --jump-to-hz / --screech-hz times the first (default 0.88).
+    #[arg(long, value_delimiter = ',', requires = "ramp_npr")]
+    stage_npr: Vec<f64>,
     /// Azimuthal order m of the tone (its h-th harmonic has order h m); a negative order spins
     /// towards decreasing azimuth.
     #[arg(long, default_value_t = 1, allow_negative_numbers = true)]
@@ -101,6 +113,33 @@ impl OutKind {
             Self::RawI16 => "raw interleaved int16 little-endian, 32768 counts = full scale",
         }
     }
+}
+
+/// Ambient pressure of the demo ramp, Pa (ICAO standard atmosphere, sea level).
+const AMBIENT_PA: f64 = 101_325.0;
+/// The demo ramp's gauge transducer: pascals per volt (0-10 V over 0-1 MPa).
+const PA_PER_VOLT: f64 = 1e5;
+/// Full scale of the transducer channel, V (WAV 1.0 and int16 32768 counts stand for it).
+const CONTROL_FULL_SCALE_V: f64 = 10.0;
+
+/// Powell's fundamental of a cold round convergent jet at `npr`, up to a constant (nozzle
+/// diameter 1): Mj from isentropic expansion (NACA Report 1135), Dj from the area ratio,
+/// Ls = pi sqrt(Mj^2 - 1) Dj / 2.405 (vortex sheet), Uc = 0.7 Uj, f = Uc / (Ls (1 + Uc/a));
+/// None while the jet is not supersonic. For demo data only.
+fn powell_shape(npr: f64) -> Option<f64> {
+    let (g, r, t0) = (1.4f64, 287.05, 288.15);
+    let m2 = 2.0 / (g - 1.0) * (npr.powf((g - 1.0) / g) - 1.0);
+    if m2 <= 1.0 + 1e-6 {
+        return None;
+    }
+    let mj = m2.sqrt();
+    let tj = t0 / (1.0 + 0.5 * (g - 1.0) * m2);
+    let uj = mj * (g * r * tj).sqrt();
+    let area =
+        (1.0 / mj) * ((1.0 + 0.5 * (g - 1.0) * m2) / (0.5 * (g + 1.0))).powf((g + 1.0) / (2.0 * (g - 1.0)));
+    let ls = std::f64::consts::PI * (m2 - 1.0).sqrt() * area.sqrt() / 2.404_825_557_695_773;
+    let uc = 0.7 * uj;
+    Some(uc / (ls * (1.0 + uc / (g * r * t0).sqrt())))
 }
 
 fn rms_of(db: f64) -> f64 {
@@ -155,7 +194,51 @@ impl Run for SynthCmd {
         let rr = (1.0 - PI * 0.4 * a.hump_hz / fs).max(0.5);
         let th = 2.0 * PI * a.hump_hz / fs;
         let (a1, a2) = (2.0 * rr * th.cos(), -rr * rr);
-        let mut chans = Vec::with_capacity(mics);
+        // The fundamental at every sample and its cycles (phase continuous through jumps).
+        let ramp = match a.ramp_npr.as_slice() {
+            [] => None,
+            [lo, hi] if *lo >= 1.0 && *hi >= 1.0 && *lo <= 50.0 && *hi <= 50.0 => Some((*lo, *hi)),
+            _ => return Err(Failure::Usage("--ramp-npr takes FROM,TO, each NPR in [1, 50]".into())),
+        };
+        let npr_at = |t: f64| {
+            let (lo, hi) = ramp.unwrap_or((1.0, 1.0));
+            let u = 2.0 * t / a.seconds;
+            lo + (hi - lo) * if u <= 1.0 { u } else { 2.0 - u }
+        };
+        let mut fundamental = vec![0.0f64; n];
+        let mut cycles = vec![0.0f64; n];
+        let mut c = 0.0;
+        for k in 0..n {
+            let t = k as f64 / fs;
+            let f = match ramp {
+                Some((lo, _)) => {
+                    let npr = npr_at(t);
+                    let second = match a.stage_npr.as_slice() {
+                        [] => false,
+                        [up, down] => npr > if 2.0 * t < a.seconds { *up } else { *down },
+                        _ => return Err(Failure::Usage("--stage-npr takes UP,DOWN".into())),
+                    };
+                    let ratio = if second { a.jump_to_hz.map_or(0.88, |f1| f1 / a.screech_hz) } else { 1.0 };
+                    match (powell_shape(npr), powell_shape(lo)) {
+                        (Some(p), Some(p0)) => a.screech_hz * p / p0 * ratio,
+                        _ => 0.0,
+                    }
+                }
+                None => match a.jump_at_s {
+                    Some(tj) if t >= tj => a.jump_to_hz.unwrap_or(1.12 * a.screech_hz),
+                    _ => a.screech_hz,
+                },
+            };
+            fundamental[k] = f;
+            cycles[k] = c;
+            c += f / fs;
+        }
+        if ramp.is_some() && powell_shape(ramp.map_or(1.0, |r| r.0)).is_none() {
+            return Err(Failure::Usage(
+                "--ramp-npr must start where the jet is supersonic (NPR above 1.9)".into(),
+            ));
+        }
+        let mut chans = Vec::with_capacity(mics + 1);
         for &theta in &azimuths {
             let mut hump = vec![0.0; n];
             for k in 0..n {
@@ -167,20 +250,12 @@ impl Run for SynthCmd {
             let (hump_k, noise_sigma) = (rms_of(a.hump_db) / hr, rms_of(a.noise_db));
             let mut x = vec![0.0f64; n];
             for (k, v) in x.iter_mut().enumerate() {
-                let t = k as f64 / fs;
                 let mut s = hump_k * hump[k] + noise_sigma * gauss();
                 for h in 1..=a.harmonics {
                     let amp = rms_of(a.screech_db - 9.0 * f64::from(h - 1)) * 2f64.sqrt();
-                    // Phase of the fundamental, continuous through a jump.
-                    let (f_now, cycles) = match a.jump_at_s {
-                        Some(tj) if t >= tj => {
-                            let f1 = a.jump_to_hz.unwrap_or(1.12 * a.screech_hz);
-                            (f1, a.screech_hz * tj + f1 * (t - tj))
-                        }
-                        _ => (a.screech_hz, a.screech_hz * t),
-                    };
-                    if f64::from(h) * f_now < fs / 2.0 {
-                        let wt = 2.0 * PI * f64::from(h) * cycles + 0.7 * f64::from(h);
+                    let f_now = fundamental[k];
+                    if f_now > 0.0 && f64::from(h) * f_now < fs / 2.0 {
+                        let wt = 2.0 * PI * f64::from(h) * cycles[k] + 0.7 * f64::from(h);
                         let m = f64::from(a.order) * f64::from(h);
                         s += amp
                             * match a.pattern {
@@ -194,8 +269,13 @@ impl Run for SynthCmd {
             }
             chans.push(x);
         }
+        let peak = chans.iter().flatten().fold(0.0f64, |m, v| m.max(v.abs()));
+        // The gauge transducer of a ramp, in volts: 1e5 Pa per volt over 0-10 V.
+        if ramp.is_some() {
+            chans.push((0..n).map(|k| (npr_at(k as f64 / fs) - 1.0) * AMBIENT_PA / PA_PER_VOLT).collect());
+        }
+        let all = chans.len();
         let x: Vec<f64> = (0..n).flat_map(|k| chans.iter().map(move |c| c[k])).collect();
-        let peak = x.iter().fold(0.0f64, |m, v| m.max(v.abs()));
         if peak >= a.full_scale_pa {
             return Err(Failure::Usage(format!(
                 "the signal peaks at {peak:.0} Pa, above --full-scale-pa {}: raise it",
@@ -207,24 +287,29 @@ impl Run for SynthCmd {
         match kind {
             OutKind::Wav => {
                 let spec = hound::WavSpec {
-                    channels: a.ring as u16,
+                    channels: all as u16,
                     sample_rate: a.sample_rate_hz,
                     bits_per_sample: 32,
                     sample_format: hound::SampleFormat::Float,
                 };
                 let herr = |e: hound::Error| Failure::Usage(format!("cannot write {}: {e}", a.out.display()));
                 let mut w = hound::WavWriter::create(&a.out, spec).map_err(herr)?;
-                for v in &x {
-                    w.write_sample((v / a.full_scale_pa) as f32).map_err(herr)?;
+                for (i, v) in x.iter().enumerate() {
+                    let unit = if i % all == mics { CONTROL_FULL_SCALE_V } else { a.full_scale_pa };
+                    w.write_sample((v / unit) as f32).map_err(herr)?;
                 }
                 w.finalize().map_err(herr)?;
             }
             OutKind::Csv => {
                 use std::io::Write;
                 let mut w = std::io::BufWriter::new(std::fs::File::create(&a.out).map_err(werr)?);
-                let names: Vec<String> = (0..mics).map(|j| format!("mic_{:03}deg", 360 * j / mics)).collect();
+                let mut names: Vec<String> =
+                    (0..mics).map(|j| format!("mic_{:03}deg", 360 * j / mics)).collect();
+                if ramp.is_some() {
+                    names.push("gauge_v".into());
+                }
                 writeln!(w, "{}", names.join(",")).map_err(werr)?;
-                for frame in x.chunks(mics) {
+                for frame in x.chunks(all) {
                     let row: Vec<String> = frame.iter().map(|v| format!("{v:.5}")).collect();
                     writeln!(w, "{}", row.join(",")).map_err(werr)?;
                 }
@@ -242,19 +327,27 @@ impl Run for SynthCmd {
         }
         let az: Vec<String> = (0..mics).map(|j| format!("{}", 360.0 * j as f64 / mics as f64)).collect();
         let modes = if mics > 1 { format!(" --azimuths-deg {}", az.join(",")) } else { String::new() };
-        let analyse = match kind {
-            OutKind::Wav => format!("jetloop tones {} --pa-per-unit {}{modes}", a.out.display(), a.full_scale_pa),
-            OutKind::Csv => format!(
-                "jetloop tones {} --sample-rate-hz {} --in-pascals{modes}",
-                a.out.display(),
-                a.sample_rate_hz
+        let (calibration, control_per_unit) = match kind {
+            OutKind::Wav => {
+                (format!("--pa-per-unit {}", a.full_scale_pa), CONTROL_FULL_SCALE_V * PA_PER_VOLT)
+            }
+            OutKind::Csv => (format!("--sample-rate-hz {} --in-pascals", a.sample_rate_hz), PA_PER_VOLT),
+            OutKind::RawI16 => (
+                format!(
+                    "--raw-format i16 --channels {all} --sample-rate-hz {} --pa-per-unit {pa_per_count}",
+                    a.sample_rate_hz
+                ),
+                CONTROL_FULL_SCALE_V / 32_768.0 * PA_PER_VOLT,
             ),
-            OutKind::RawI16 => format!(
-                "jetloop tones {} --raw-format i16 --channels {mics} --sample-rate-hz {} --pa-per-unit {}{modes}",
-                a.out.display(),
-                a.sample_rate_hz,
-                pa_per_count
-            ),
+        };
+        let analyse = if ramp.is_some() {
+            format!(
+                "jetloop ramp {} {calibration} --control-channel {mics} --control gauge-pa --control-per-unit \
+                 {control_per_unit} --ambient-pressure-pa {AMBIENT_PA}",
+                a.out.display()
+            )
+        } else {
+            format!("jetloop tones {} {calibration}{modes}", a.out.display())
         };
         Ok(Report::new(format!("Wrote {} (demo data: an imagined cold model-scale jet)", a.out.display()))
             .text("kind", "file kind", kind.describe())

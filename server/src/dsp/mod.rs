@@ -8,6 +8,7 @@ pub mod bands;
 pub mod corrections;
 pub mod cross;
 pub mod limits;
+pub mod ramp;
 pub mod samples;
 pub mod tones;
 pub mod track;

@@ -252,6 +252,17 @@ impl<'a> ChannelView<'a> {
         self.len
     }
 
+    /// The `len` samples from `start` (clamped to the channel).
+    pub fn range(self, start: usize, len: usize) -> Self {
+        let start = start.min(self.len);
+        Self { first: self.first + start * self.stride, len: len.min(self.len - start), ..self }
+    }
+
+    /// The same samples in their recorded units (the calibration left out).
+    pub fn unscaled(self) -> Self {
+        Self { scale: 1.0, ..self }
+    }
+
     /// True when the channel has no samples.
     pub fn is_empty(&self) -> bool {
         self.len == 0

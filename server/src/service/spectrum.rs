@@ -3,8 +3,8 @@
 use super::budget::{Held, SampleBudget};
 use crate::api::error::PreconditionViolation;
 use crate::api::spectrum::{
-    bands_response, cross_response, held_bytes, tones_response, BandQuery, CrossQuery, ToneQuery, ToneStream,
-    TrackSession,
+    bands_response, cross_response, held_bytes, ramp_response, tones_response, BandQuery, CrossQuery,
+    RampQuery, ToneQuery, ToneStream, TrackSession,
 };
 use crate::api::ApiError;
 use jetloop_proto::pb::{self, spectrum_service_server::SpectrumService};
@@ -239,6 +239,19 @@ impl SpectrumService for Spectrum {
             |r| r.samples.as_ref(),
             "cross-channel analysis",
             |req, c| cross_response(&CrossQuery::try_from(req)?.with_cancel(c.clone())),
+        )
+        .await
+    }
+
+    async fn analyse_ramp(
+        &self,
+        request: Request<pb::AnalyseRampRequest>,
+    ) -> Result<Response<pb::AnalyseRampResponse>, Status> {
+        self.held_analysis(
+            request,
+            |r| r.samples.as_ref(),
+            "ramp analysis",
+            |req, c| ramp_response(&RampQuery::try_from(req)?.with_cancel(c.clone())),
         )
         .await
     }

@@ -248,10 +248,15 @@ pub fn segment(points: &[Point], scale: Option<&[f64]>, threshold: f64) -> Vec<V
         },
         flat: scale.is_some(),
     };
-    let mut xs: Vec<f64> = points.iter().map(|p| p.x).collect();
-    xs.sort_by(f64::total_cmp);
-    xs.dedup();
-    let mut gaps: Vec<f64> = xs.windows(2).map(|w| w[1] - w[0]).collect();
+    // The sweep's step: the median x step between successive points of a pass. (Not the
+    // spacing of all distinct x values: an up and a down pass of a continuous ramp sample
+    // interleaved x values a hair apart, and that spacing would close every branch.)
+    let all_passes = passes(points);
+    let mut gaps: Vec<f64> = all_passes
+        .iter()
+        .flat_map(|pass| pass.windows(2).map(|w| (points[w[1]].x - points[w[0]].x).abs()))
+        .filter(|&d| d > 0.0)
+        .collect();
     gaps.sort_by(f64::total_cmp);
     let gap_limit = gaps.get(gaps.len() / 2).map_or(f64::INFINITY, |g| 20.0 * g);
     let rel = |a: f64, b: f64| ((a - b) / b).abs();
@@ -259,7 +264,7 @@ pub fn segment(points: &[Point], scale: Option<&[f64]>, threshold: f64) -> Vec<V
     all_x.sort_by(f64::total_cmp);
 
     let mut groups: Vec<Group> = Vec::new();
-    for (pass, members) in passes(points).into_iter().enumerate() {
+    for (pass, members) in all_passes.into_iter().enumerate() {
         // In acquisition order, a branch that other branches have passed by for more than
         // MAX_MISSED_STEPS values of x is closed: the tone went to another stage, and a later
         // tone at a similar level is a stage of its own (A2 -> B -> C with C near A2).

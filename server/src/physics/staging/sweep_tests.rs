@@ -249,3 +249,26 @@ fn a_stage_that_returns_near_an_earlier_level_is_its_own_stage() {
         assert_eq!(res.hysteresis.len(), 2);
     }
 }
+
+#[test]
+fn a_continuous_ramp_whose_passes_sample_interleaved_x_values() {
+    // A continuous ramp cut into frames: the down pass samples x values a hair away from the
+    // up pass's (here 1e-5 in Mj), so the distinct x values alternate tiny and whole steps.
+    // The branch gap must follow the sweep's step inside a pass, not the spacing of all
+    // distinct x values (which closed every branch after one point: one stage per point).
+    let dx = 0.01;
+    let (up, down) = ([1.305, 1.505], [1.445, 1.255]);
+    let freq = |s: usize, q: &PointPhysics| powell([3u32, 4, 5][s], 4.0, 0.62, q);
+    let mut s = sweep(&[(1.05, 1.70), (1.70, 1.05)], dx, &up, &down, &freq, 0.01, 21);
+    let half = s.pts.len() / 2;
+    for p in &mut s.pts[half..] {
+        p.x += 1e-5;
+    }
+    let given = FitConfig { source_cells_fixed: Some(4.0), ..cfg() };
+    let res = fit_stages(&s.pts, SweepKind::Mach, Some(&s.ph), &given);
+    let ranges: Vec<_> = res.stages.iter().map(|st| (st.x_range, st.points.len())).collect();
+    assert_eq!(res.stages.len(), 3, "{ranges:?}");
+    let (_, right) = assignment(&s, &res, 3);
+    assert!(right >= 0.97, "{right}");
+    assert_eq!(res.jumps.len(), 4, "{:?}", res.jumps);
+}
