@@ -181,6 +181,13 @@ pub struct TonesCmd {
     /// when there are several).
     #[arg(long)]
     plot: Option<PathBuf>,
+    /// With --plot and several channels: every channel's PSD in one plot (one colour each)
+    /// instead of one file per channel.
+    #[arg(long, requires = "plot")]
+    overlay: bool,
+    /// With --plot: a linear frequency axis (default logarithmic).
+    #[arg(long, requires = "plot")]
+    linear_frequency: bool,
     /// Write the PSD as CSV (frequency_hz, density_pa2_per_hz, floor_pa2_per_hz).
     #[arg(long)]
     psd_csv: Option<PathBuf>,
@@ -582,10 +589,13 @@ impl Run for TonesCmd {
                         path.clone()
                     }
                 };
-                if let Some(path) = &a.plot {
+                if let Some(path) = a.plot.as_ref().filter(|_| !(several && a.overlay)) {
                     let path = suffix(path);
-                    std::fs::write(&path, svg_plot(&label, p, &c.tones))
-                        .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
+                    std::fs::write(
+                        &path,
+                        svg_plot(&label, &[(label.clone(), p, &c.tones)], a.linear_frequency),
+                    )
+                    .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
                     eprintln!("wrote PSD plot {}", path.display());
                 }
                 if let Some(path) = &a.psd_csv {
@@ -608,6 +618,21 @@ impl Run for TonesCmd {
         }
         if several {
             top = channel_summary(top, &r.channels);
+        }
+        if let Some(path) = a.plot.as_ref().filter(|_| several && a.overlay) {
+            let series: Vec<(String, &pb::PsdData, &[pb::ExtractedTone])> = r
+                .channels
+                .iter()
+                .filter_map(|c| {
+                    let label =
+                        if c.name.is_empty() { format!("channel {}", c.channel) } else { c.name.clone() };
+                    c.psd.as_ref().map(|p| (label, p, c.tones.as_slice()))
+                })
+                .collect();
+            let title = a.input.file.display().to_string();
+            std::fs::write(path, svg_plot(&title, &series, a.linear_frequency))
+                .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
+            eprintln!("wrote PSD plot of {} channels {}", series.len(), path.display());
         }
         if let Some(samples) = cross_samples {
             let positions = positions(&a.azimuths_deg);
@@ -721,45 +746,67 @@ impl Run for BandsCmd {
     }
 }
 
-/// An SVG plot of a PSD in dB re (20 uPa)^2/Hz against log frequency, with the floor and the
-/// tones marked (each labelled with its frequency and its level in dB re 20 uPa).
-pub fn svg_plot(title: &str, p: &pb::PsdData, tones: &[pb::ExtractedTone]) -> String {
+/// An SVG plot of PSDs in dB re (20 uPa)^2/Hz against frequency (logarithmic, or linear with
+/// `linear`): one channel with its floor, or several overlaid in one colour each. Tones are
+/// marked at their peak density and labelled with their frequency and their level in
+/// dB re 20 uPa (the tone's power summed over its bins, so it sits above the density curve).
+pub fn svg_plot(
+    title: &str,
+    channels: &[(String, &pb::PsdData, &[pb::ExtractedTone])],
+    linear: bool,
+) -> String {
     let db = |d: f64| 10.0 * (d.max(1e-30) / 4e-10).log10();
-    let series = |ys: &[f64]| -> Vec<(f64, f64)> {
+    let series = |p: &pb::PsdData, ys: &[f64]| -> Vec<(f64, f64)> {
         p.frequency_hz.iter().zip(ys).filter(|(f, _)| **f > 0.0).map(|(f, d)| (*f, db(*d))).collect()
     };
-    let pts = series(&p.density_pa2_per_hz);
-    let (Some(first), Some(last)) = (pts.first(), pts.last()) else {
+    let all: Vec<Vec<(f64, f64)>> =
+        channels.iter().map(|(_, p, _)| series(p, &p.density_pa2_per_hz)).collect();
+    let flat = || all.iter().flatten();
+    let (Some(fmin), Some(fmax)) =
+        (flat().map(|p| p.0).min_by(f64::total_cmp), flat().map(|p| p.0).max_by(f64::total_cmp))
+    else {
         return String::from("<svg xmlns=\"http://www.w3.org/2000/svg\"/>");
     };
-    let (fmin, fmax) = (first.0, last.0);
-    let ymax = pts.iter().map(|p| p.1).fold(f64::MIN, f64::max) + 5.0;
-    let ymin = pts.iter().map(|p| p.1).fold(f64::MAX, f64::min);
+    let ymax = flat().map(|p| p.1).fold(f64::MIN, f64::max) + 5.0;
+    let ymin = flat().map(|p| p.1).fold(f64::MAX, f64::min);
+    let x = if linear {
+        Axis::linear(0.0, fmax, "frequency [Hz]")
+    } else {
+        Axis::log(fmin, fmax, "frequency [Hz]")
+    };
     let mut plot = Plot::new(
         &format!("PSD, {title}"),
         900.0,
         480.0,
-        Axis::log(fmin, fmax, "frequency [Hz]"),
+        x,
         Axis::linear(ymin, ymax, "PSD [dB re (20 uPa)^2/Hz]"),
     );
-    plot.line(&pts, COLOURS[0], false, Some("PSD"));
-    let floor = series(&p.floor_pa2_per_hz);
-    if !floor.is_empty() {
-        plot.line(&floor, "#999", true, Some("floor (running median)"));
-    }
-    let marks: Vec<(f64, f64)> = tones
-        .iter()
-        .filter(|t| t.frequency_hz > fmin && t.frequency_hz < fmax)
-        .map(|t| (t.frequency_hz, db(t.peak_density_pa2_per_hz)))
-        .collect();
-    plot.markers(&marks, COLOURS[1], Marker::Ring, Some("tones: Hz, level in dB re 20 uPa"));
-    for t in tones.iter().filter(|t| t.frequency_hz > fmin && t.frequency_hz < fmax) {
-        plot.label(
-            t.frequency_hz,
-            db(t.peak_density_pa2_per_hz),
-            &format!("{:.0} Hz, {:.1} dB", t.frequency_hz, t.level_db),
-            COLOURS[1],
-        );
+    let one = channels.len() == 1;
+    for (k, ((label, p, tones), pts)) in channels.iter().zip(&all).enumerate() {
+        let c = COLOURS[k % COLOURS.len()];
+        plot.line(pts, c, false, Some(&if one { "PSD".to_string() } else { format!("{label} PSD") }));
+        if one {
+            let floor = series(p, &p.floor_pa2_per_hz);
+            if !floor.is_empty() {
+                plot.line(&floor, "#999", true, Some("broadband floor (running median)"));
+            }
+        }
+        let shown: Vec<&pb::ExtractedTone> =
+            tones.iter().filter(|t| t.frequency_hz >= fmin && t.frequency_hz <= fmax).collect();
+        let marks: Vec<(f64, f64)> =
+            shown.iter().map(|t| (t.frequency_hz, db(t.peak_density_pa2_per_hz))).collect();
+        let mark_colour = if one { COLOURS[1] } else { c };
+        let legend =
+            if one { "tones: Hz, tone level in dB re 20 uPa".to_string() } else { format!("{label} tones") };
+        plot.markers(&marks, mark_colour, Marker::Ring, Some(&legend));
+        for t in shown {
+            plot.label(
+                t.frequency_hz,
+                db(t.peak_density_pa2_per_hz),
+                &format!("{:.0} Hz, {:.1} dB", t.frequency_hz, t.level_db),
+                mark_colour,
+            );
+        }
     }
     plot.finish()
 }

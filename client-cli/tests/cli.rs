@@ -149,6 +149,28 @@ async fn synth_wav_then_tones_finds_the_screech_family() {
         assert_eq!(text.matches("segment length").count(), 1, "{text}");
         assert_eq!(text.matches("\nChannels\n").count(), 1, "{text}");
         assert!(text.contains("mic_a") && text.contains("mic_b"), "{text}");
+        // --overlay: both channels in one plot; --linear-frequency: a linear axis (ticks at
+        // multiples of 2000 Hz, no "1k" decade labels).
+        let ov = dir.join("overlay.svg");
+        let o = jetloop(
+            &u,
+            &[
+                "tones",
+                csv.to_str().unwrap(),
+                "--sample-rate-hz",
+                "20000",
+                "--in-pascals",
+                "--plot",
+                ov.to_str().unwrap(),
+                "--overlay",
+                "--linear-frequency",
+            ],
+        );
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        let svg_ov = std::fs::read_to_string(&ov).unwrap();
+        assert!(svg_ov.contains("mic_a PSD") && svg_ov.contains("mic_b PSD"), "{svg_ov}");
+        assert!(svg_ov.contains(">2000<") && !svg_ov.contains(">1k<"));
+        assert!(!dir.join("overlay-ch0.svg").exists());
         let svg_text = std::fs::read_to_string(&svg).unwrap_or_default();
         (no_cal, t, b, svg_text, blocks)
     })
