@@ -3,9 +3,10 @@
 //! Every subcommand calls the server (never the physics directly) and prints an aligned table
 //! with units, or JSON with `--json`. Exit codes: 0 success, 2 usage error, 3 server not
 //! reachable, 4 request rejected by the server (bad input or impossible physics), 5 other
-//! server error.
+//! server error, 6 a regression check (`jetloop check`) failed.
 #![forbid(unsafe_code)]
 
+mod check;
 mod gas;
 mod modes;
 mod output;
@@ -73,6 +74,10 @@ enum Command {
     Fit(staging::FitCmd),
     /// Server version, models with references, and limits.
     Info(gas::InfoCmd),
+    /// Regression suite: run the cases of TOML files (a jetloop command line, expected values
+    /// with tolerances and their published sources) and print pass/fail with the deviations;
+    /// exit code 6 when any fails. Example: jetloop check tests/data/*.toml
+    Check(check::CheckCmd),
 }
 
 /// Why the CLI failed, mapped to an exit code.
@@ -84,6 +89,29 @@ pub enum Failure {
     Server(tonic::Status),
     /// Arguments that parse but do not make a request.
     Usage(String),
+    /// Regression checks ran and some failed: the report says which.
+    Checks(Box<output::Report>),
+}
+
+/// One line saying what went wrong (for a regression case that could not run).
+pub(crate) fn failure_text(f: &Failure) -> String {
+    match f {
+        Failure::Connect(m) | Failure::Usage(m) => m.clone(),
+        Failure::Server(s) => format!("the server answered {:?}: {}", s.code(), s.message()),
+        Failure::Checks(_) => "nested checks".into(),
+    }
+}
+
+/// Runs a jetloop command line (without the program name) against `ctx`'s server.
+pub(crate) async fn run_args(ctx: &Ctx, args: &[String]) -> Result<output::Report, Failure> {
+    let cli = Cli::try_parse_from(std::iter::once("jetloop".to_string()).chain(args.iter().cloned()))
+        .map_err(|e| Failure::Usage(e.to_string().trim().to_string()))?;
+    if matches!(cli.command, Command::Check(_)) {
+        return Err(Failure::Usage("a check case cannot run `check`".into()));
+    }
+    let f: std::pin::Pin<Box<dyn std::future::Future<Output = Result<output::Report, Failure>> + '_>> =
+        Box::pin(run_command(cli.command, ctx));
+    f.await
 }
 
 impl From<tonic::Status> for Failure {
@@ -125,22 +153,27 @@ pub(crate) trait Run {
 
 async fn run(cli: Cli) -> Result<output::Report, Failure> {
     let ctx = Ctx { server: cli.server };
-    match cli.command {
-        Command::Isentropic(a) => a.run(&ctx).await,
-        Command::Shock(a) => a.run(&ctx).await,
-        Command::Jet(a) => a.run(&ctx).await,
-        Command::Cells(a) => a.run(&ctx).await,
-        Command::Screech(a) => a.run(&ctx).await,
-        Command::ShockNoise(a) => a.run(&ctx).await,
-        Command::Sweep(a) => a.run(&ctx).await,
-        Command::Modes(a) => a.run(&ctx).await,
-        Command::Tones(a) => a.run(&ctx).await,
-        Command::Track(a) => a.run(&ctx).await,
-        Command::Bands(a) => a.run(&ctx).await,
-        Command::Synth(a) => a.run(&ctx).await,
-        Command::Ramp(a) => a.run(&ctx).await,
-        Command::Fit(a) => a.run(&ctx).await,
-        Command::Info(a) => a.run(&ctx).await,
+    run_command(cli.command, &ctx).await
+}
+
+async fn run_command(command: Command, ctx: &Ctx) -> Result<output::Report, Failure> {
+    match command {
+        Command::Isentropic(a) => a.run(ctx).await,
+        Command::Shock(a) => a.run(ctx).await,
+        Command::Jet(a) => a.run(ctx).await,
+        Command::Cells(a) => a.run(ctx).await,
+        Command::Screech(a) => a.run(ctx).await,
+        Command::ShockNoise(a) => a.run(ctx).await,
+        Command::Sweep(a) => a.run(ctx).await,
+        Command::Modes(a) => a.run(ctx).await,
+        Command::Tones(a) => a.run(ctx).await,
+        Command::Track(a) => a.run(ctx).await,
+        Command::Bands(a) => a.run(ctx).await,
+        Command::Synth(a) => a.run(ctx).await,
+        Command::Ramp(a) => a.run(ctx).await,
+        Command::Fit(a) => a.run(ctx).await,
+        Command::Info(a) => a.run(ctx).await,
+        Command::Check(a) => a.run(ctx).await,
     }
 }
 
@@ -161,6 +194,14 @@ async fn main() -> ExitCode {
         Err(Failure::Usage(m)) => {
             eprintln!("error: {m}");
             ExitCode::from(2)
+        }
+        Err(Failure::Checks(report)) => {
+            if json {
+                println!("{}", serde_json::to_string_pretty(&report.to_json()).unwrap_or_default());
+            } else {
+                print!("{}", report.to_table());
+            }
+            ExitCode::from(6)
         }
         Err(Failure::Connect(m)) => {
             eprintln!(

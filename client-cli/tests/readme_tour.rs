@@ -80,6 +80,7 @@ async fn every_readme_command_runs_in_order_on_a_fresh_folder() {
     let dir = std::env::temp_dir().join(format!("jetloop-readme-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&dir);
     copy_dir(&root.join("examples"), &dir.join("examples"));
+    copy_dir(&root.join("tests/data"), &dir.join("tests/data"));
     let failures = tokio::task::spawn_blocking(move || {
         let bin = env!("CARGO_BIN_EXE_jetloop");
         let mut failures = Vec::new();
