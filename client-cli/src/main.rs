@@ -7,6 +7,7 @@
 #![forbid(unsafe_code)]
 
 mod check;
+mod demo;
 mod gas;
 mod modes;
 mod output;
@@ -78,6 +79,10 @@ enum Command {
     /// with tolerances and their published sources) and print pass/fail with the deviations;
     /// exit code 6 when any fails. Example: jetloop check tests/data/*.toml
     Check(check::CheckCmd),
+    /// The whole job on an invented scenario against a running server: a pressure sweep with
+    /// stage jumps and hysteresis, a microphone synthesized at each point, tones extracted, a
+    /// stage fit, plots and a summary written to a folder. Example: jetloop demo demo-out
+    Demo(demo::DemoCmd),
 }
 
 /// Why the CLI failed, mapped to an exit code.
@@ -174,6 +179,7 @@ async fn run_command(command: Command, ctx: &Ctx) -> Result<output::Report, Fail
         Command::Fit(a) => a.run(ctx).await,
         Command::Info(a) => a.run(ctx).await,
         Command::Check(a) => a.run(ctx).await,
+        Command::Demo(a) => a.run(ctx).await,
     }
 }
 

@@ -316,7 +316,7 @@ impl Run for FitCmd {
 /// Frequency against x, one colour per stage, up-sweep points as upward and down-sweep points
 /// as downward triangles (hysteresis shows as two colours at one x), model frequencies as
 /// crosses, jumps as dashed segments.
-fn svg(points: &[pb::MeasuredTone], r: &pb::FitStagesResponse, x_label: &str) -> String {
+pub(crate) fn svg(points: &[pb::MeasuredTone], r: &pb::FitStagesResponse, x_label: &str) -> String {
     let xs = || points.iter().map(|p| p.x);
     let fs =
         || points.iter().map(|p| p.frequency_hz).chain(r.points.iter().filter_map(|p| p.model_frequency_hz));
