@@ -92,7 +92,7 @@ impl Run for DemoCmd {
         let ch = ctx.channel().await?;
         std::fs::create_dir_all(&self.out)
             .map_err(|e| Failure::Usage(format!("cannot create {}: {e}", self.out.display())))?;
-        let (step, seconds) = if self.small { (0.1, 0.1) } else { (0.05, 0.25) };
+        let (step, seconds): (f64, f64) = if self.small { (0.1, 0.1) } else { (0.05, 0.25) };
         let count = ((4.5 - 2.3) / step).round() as usize;
         let grid: Vec<f64> = (0..=count).map(|k| 2.3 + step * k as f64).collect();
 
