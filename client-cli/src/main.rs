@@ -83,6 +83,15 @@ enum Command {
     /// stage jumps and hysteresis, a microphone synthesized at each point, tones extracted, a
     /// stage fit, plots and a summary written to a folder. Example: jetloop demo demo-out
     Demo(demo::DemoCmd),
+    /// Shell completions for bash, zsh, fish, elvish or PowerShell on standard output.
+    /// Example: jetloop completions bash > ~/.local/share/bash-completion/completions/jetloop
+    Completions {
+        /// The shell.
+        shell: clap_complete::Shell,
+    },
+    /// Every command's --help as one Markdown document on standard output (the source of
+    /// docs/cli.md).
+    HelpMarkdown,
 }
 
 /// Why the CLI failed, mapped to an exit code.
@@ -180,6 +189,21 @@ async fn run_command(command: Command, ctx: &Ctx) -> Result<output::Report, Fail
         Command::Info(a) => a.run(ctx).await,
         Command::Check(a) => a.run(ctx).await,
         Command::Demo(a) => a.run(ctx).await,
+        Command::Completions { shell } => {
+            use clap::CommandFactory;
+            use std::io::Write;
+            let mut cmd = Cli::command();
+            let mut buf = Vec::new();
+            clap_complete::generate(shell, &mut cmd, "jetloop", &mut buf);
+            // A closed pipe (`| head`) is not an error worth a panic.
+            let _ = std::io::stdout().write_all(&buf);
+            Ok(output::Report::new("").quiet())
+        }
+        Command::HelpMarkdown => {
+            use std::io::Write;
+            let _ = std::io::stdout().write_all(clap_markdown::help_markdown::<Cli>().as_bytes());
+            Ok(output::Report::new("").quiet())
+        }
     }
 }
 
