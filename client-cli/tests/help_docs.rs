@@ -10,8 +10,8 @@ fn jetloop(args: &[&str]) -> String {
 
 #[test]
 fn docs_cli_md_is_the_current_help() {
-    let committed = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/../docs/cli.md"))
-        .expect("docs/cli.md");
+    let committed =
+        std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/../docs/cli.md")).expect("docs/cli.md");
     assert!(
         jetloop(&["help-markdown"]) == committed,
         "docs/cli.md is out of date: run `cargo run -q -p jetloop-cli -- help-markdown > docs/cli.md`"

@@ -46,6 +46,35 @@ def _server_binary():
     raise RuntimeError("no jetloop-server binary: run `cargo build --release -p jetloop-server` first")
 
 
+def _cli_binary():
+    """The jetloop CLI: $JETLOOP_CLI_BIN, else target/debug or target/release (cargo test builds
+    the debug one)."""
+    env = os.environ.get("JETLOOP_CLI_BIN")
+    if env:
+        return pathlib.Path(env)
+    for profile in ("debug", "release"):
+        p = ROOT / "target" / profile / "jetloop"
+        if p.exists():
+            return p
+    raise RuntimeError("no jetloop CLI binary: run `cargo test --workspace` or `cargo build -p jetloop-cli` first")
+
+
+def start_server(stderr=subprocess.DEVNULL):
+    """Starts jetloop-server on 127.0.0.1:0; returns the process and host:port from its first
+    stdout line."""
+    proc = subprocess.Popen(
+        [str(_server_binary()), "--listen", "127.0.0.1:0"],
+        stdout=subprocess.PIPE,
+        stderr=stderr,
+        text=True,
+    )
+    line = proc.stdout.readline().strip()
+    if not line.startswith("jetloop-server listening on "):
+        proc.kill()
+        raise RuntimeError(f"unexpected first line from the server: {line!r}")
+    return proc, line.rsplit(" ", 1)[1]
+
+
 @pytest.fixture(scope="session")
 def pb():
     """The generated modules: pb.gas (gas_dynamics_pb2), pb.gas_grpc, pb.common, pb.info, pb.info_grpc."""
@@ -64,17 +93,9 @@ def pb():
 @pytest.fixture(scope="session")
 def server_address():
     """Starts jetloop-server on 127.0.0.1:0 and yields host:port from its first stdout line."""
-    proc = subprocess.Popen(
-        [str(_server_binary()), "--listen", "127.0.0.1:0"],
-        stdout=subprocess.PIPE,
-        stderr=subprocess.DEVNULL,
-        text=True,
-    )
+    proc, address = start_server()
     try:
-        line = proc.stdout.readline().strip()
-        if not line.startswith("jetloop-server listening on "):
-            raise RuntimeError(f"unexpected first line from the server: {line!r}")
-        yield line.rsplit(" ", 1)[1]
+        yield address
     finally:
         proc.terminate()
         try:

@@ -316,6 +316,31 @@ fn nozzle_from(
     }
 }
 
+/// An operating point from a pressure message that carries its own ambient pressure (`field`:
+/// `pressures` or `gauge`): the top-level ambient pressure must then be unset, and range errors
+/// name the message's fields (temperatures stay on the operating point).
+fn with_own_ambient(
+    check: &mut Check,
+    path: &str,
+    field: &str,
+    top_level_ambient: bool,
+    make: impl FnOnce() -> Result<OperatingPoint, crate::physics::bounds::RangeError>,
+) -> Option<OperatingPoint> {
+    if top_level_ambient {
+        check.other(
+            format!("{path}.ambient_pressure_pa"),
+            format!(
+                "{path}.ambient_pressure_pa must be unset when {field} is given: the ambient pressure is \
+                 {path}.{field}.ambient_pressure_pa"
+            ),
+        );
+    }
+    match make() {
+        Err(e) if e.quantity.ends_with("temperature_k") => check.range(path, Err(e)),
+        r => check.range(&format!("{path}.{field}"), r),
+    }
+}
+
 fn operating_point_from(
     check: &mut Check,
     defaults: &mut Defaults,
@@ -368,39 +393,15 @@ fn operating_point_from(
         Some(Pressure::Pressures(pb::ReservoirAndAmbientPressure {
             total_pressure_pa,
             ambient_pressure_pa: pa,
-        })) => {
-            if ambient_pressure_pa.is_some() {
-                check.other(
-                    format!("{path}.ambient_pressure_pa"),
-                    format!(
-                        "{path}.ambient_pressure_pa must be unset when pressures are given: \
-                         the ambient pressure is {path}.pressures.ambient_pressure_pa"
-                    ),
-                );
-            }
-            match OperatingPoint::from_pressures(total_pressure_pa, pa, t0, t_amb) {
-                Err(e) if e.quantity.ends_with("temperature_k") => check.range(path, Err(e)),
-                r => check.range(&format!("{path}.pressures"), r),
-            }
-        }
+        })) => with_own_ambient(check, path, "pressures", ambient_pressure_pa.is_some(), || {
+            OperatingPoint::from_pressures(total_pressure_pa, pa, t0, t_amb)
+        }),
         Some(Pressure::Gauge(pb::GaugeAndAmbientPressure {
             reservoir_gauge_pressure_pa,
             ambient_pressure_pa: pa,
-        })) => {
-            if ambient_pressure_pa.is_some() {
-                check.other(
-                    format!("{path}.ambient_pressure_pa"),
-                    format!(
-                        "{path}.ambient_pressure_pa must be unset when a gauge pressure is given: \
-                         the ambient pressure is {path}.gauge.ambient_pressure_pa"
-                    ),
-                );
-            }
-            match OperatingPoint::from_gauge(reservoir_gauge_pressure_pa, pa, t0, t_amb) {
-                Err(e) if e.quantity.ends_with("temperature_k") => check.range(path, Err(e)),
-                r => check.range(&format!("{path}.gauge"), r),
-            }
-        }
+        })) => with_own_ambient(check, path, "gauge", ambient_pressure_pa.is_some(), || {
+            OperatingPoint::from_gauge(reservoir_gauge_pressure_pa, pa, t0, t_amb)
+        }),
     }
 }
 
