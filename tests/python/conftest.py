@@ -35,28 +35,27 @@ def _generate_stubs():
         sys.path.insert(0, str(GEN_DIR))
 
 
-def _server_binary():
-    env = os.environ.get("JETLOOP_SERVER_BIN")
+def _binary(name, env_var, profiles, hint):
+    """A built binary: $env_var, else the first of target/<profile>/<name> that exists."""
+    env = os.environ.get(env_var)
     if env:
         return pathlib.Path(env)
-    for profile in ("release", "debug"):
-        p = ROOT / "target" / profile / "jetloop-server"
+    for profile in profiles:
+        p = ROOT / "target" / profile / name
         if p.exists():
             return p
-    raise RuntimeError("no jetloop-server binary: run `cargo build --release -p jetloop-server` first")
+    raise RuntimeError(f"no {name} binary: {hint}")
+
+
+def _server_binary():
+    return _binary("jetloop-server", "JETLOOP_SERVER_BIN", ("release", "debug"),
+                   "run `cargo build --release -p jetloop-server` first")
 
 
 def _cli_binary():
-    """The jetloop CLI: $JETLOOP_CLI_BIN, else target/debug or target/release (cargo test builds
-    the debug one)."""
-    env = os.environ.get("JETLOOP_CLI_BIN")
-    if env:
-        return pathlib.Path(env)
-    for profile in ("debug", "release"):
-        p = ROOT / "target" / profile / "jetloop"
-        if p.exists():
-            return p
-    raise RuntimeError("no jetloop CLI binary: run `cargo test --workspace` or `cargo build -p jetloop-cli` first")
+    """The jetloop CLI (cargo test builds the debug one)."""
+    return _binary("jetloop", "JETLOOP_CLI_BIN", ("debug", "release"),
+                   "run `cargo test --workspace` or `cargo build -p jetloop-cli` first")
 
 
 def start_server(stderr=subprocess.DEVNULL):
