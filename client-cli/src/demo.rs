@@ -87,6 +87,12 @@ fn write(path: &std::path::Path, text: &str) -> Result<(), Failure> {
     std::fs::write(path, text).map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))
 }
 
+/// A plot as `name.svg` and `name.png` in `dir`.
+fn plot(dir: &std::path::Path, name: &str, svg: &str) -> Result<(), Failure> {
+    write(&dir.join(format!("{name}.svg")), svg)?;
+    crate::plot::write_plot(&dir.join(format!("{name}.png")), svg).map_err(Failure::Usage)
+}
+
 impl Run for DemoCmd {
     async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
         let ch = ctx.channel().await?;
@@ -220,16 +226,13 @@ impl Run for DemoCmd {
             ));
         }
         write(&self.out.join("points.csv"), &csv)?;
-        write(&self.out.join("stages.svg"), &crate::staging::svg(&points, &fit, "nozzle pressure ratio"))?;
+        plot(&self.out, "stages", &crate::staging::svg(&points, &fit, "nozzle pressure ratio"))?;
         if let Some(m) = &map {
-            write(&self.out.join("screech-map.svg"), &crate::tones::sweep_plot(m, "nozzle pressure ratio"))?;
+            plot(&self.out, "screech-map", &crate::tones::sweep_plot(m, "nozzle pressure ratio"))?;
         }
         if let Some((p, t)) = &first_psd {
             let label = format!("NPR {:.2}", grid[0]);
-            write(
-                &self.out.join("spectrum.svg"),
-                &crate::spectrum::svg_plot(&label, &[(label.clone(), p, t)], false),
-            )?;
+            plot(&self.out, "spectrum", &crate::spectrum::svg_plot(&label, &[(label.clone(), p, t)], false))?;
         }
         let mut t = Table::new("stages", "Stages found against the scenario")
             .col("stage", "stage")
@@ -264,7 +267,7 @@ impl Run for DemoCmd {
         .int("stages_found", "stages found", fit.stages.len() as u64, "")
         .int("jumps_found", "jumps found", fit.jumps.len() as u64, "")
         .flag("loop_orders_recovered", "fitted loop orders equal the built ones", recovered)
-        .text("files", "files", "points.csv, stages.svg, screech-map.svg, spectrum.svg, summary.txt")
+        .text("files", "files", "points.csv, stages, screech-map and spectrum as .svg and .png, summary.txt")
         .table(t);
         write(&self.out.join("summary.txt"), &summary.to_table())?;
         Ok(summary)

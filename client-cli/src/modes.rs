@@ -37,7 +37,8 @@ pub struct ModesCmd {
     /// Points per dispersion curve (server default 100).
     #[arg(long)]
     curve_points: Option<u32>,
-    /// Write the dispersion curves, bands and closure tones as an SVG plot.
+    /// Write the dispersion curves, bands and closure tones as a plot (SVG, or PNG for a .png
+    /// name).
     #[arg(long)]
     plot: Option<PathBuf>,
 }
@@ -89,8 +90,7 @@ impl Run for ModesCmd {
         let hz = sheet.reference_length_m.is_some();
         let (bands, tones) = mode_tables(&r.modes, hz);
         if let Some(path) = &a.plot {
-            std::fs::write(path, dispersion_plot(&r, &sheet))
-                .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
+            crate::plot::write_plot(path, &dispersion_plot(&r, &sheet)).map_err(Failure::Usage)?;
             eprintln!("wrote {}", path.display());
         }
         Ok(Report::new(format!(

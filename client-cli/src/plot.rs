@@ -2,6 +2,39 @@
 //! every command that draws (spectra, stage maps).
 
 use std::fmt::Write as _;
+use std::path::Path;
+
+/// The font every plot is drawn with, built into the binary so a machine without fonts draws
+/// the same PNG (DejaVu Sans; Bitstream Vera licence, see assets/DejaVuSans-LICENSE.txt).
+static FONT: &[u8] = include_bytes!("../assets/DejaVuSans.ttf");
+
+/// Rasterizes an SVG document drawn by [`Plot`] to PNG bytes at its own size.
+///
+/// # Errors
+/// A sentence when the SVG cannot be read or the image cannot be encoded.
+pub fn png_of(svg: &str) -> Result<Vec<u8>, String> {
+    use resvg::{tiny_skia, usvg};
+    let mut fonts = usvg::fontdb::Database::new();
+    fonts.load_font_data(FONT.to_vec());
+    fonts.set_sans_serif_family("DejaVu Sans");
+    let opt = usvg::Options { fontdb: std::sync::Arc::new(fonts), ..usvg::Options::default() };
+    let tree = usvg::Tree::from_str(svg, &opt).map_err(|e| format!("plot SVG not readable: {e}"))?;
+    let size = tree.size().to_int_size();
+    let mut pixmap =
+        tiny_skia::Pixmap::new(size.width(), size.height()).ok_or_else(|| "plot has no size".to_string())?;
+    resvg::render(&tree, tiny_skia::Transform::default(), &mut pixmap.as_mut());
+    pixmap.encode_png().map_err(|e| format!("PNG encoding failed: {e}"))
+}
+
+/// Writes a plot to `path`: PNG when the name ends in `.png`, the SVG document otherwise.
+///
+/// # Errors
+/// A sentence naming the file when it cannot be written.
+pub fn write_plot(path: &Path, svg: &str) -> Result<(), String> {
+    let png = path.extension().and_then(|e| e.to_str()).is_some_and(|e| e.eq_ignore_ascii_case("png"));
+    let bytes = if png { png_of(svg)? } else { svg.as_bytes().to_vec() };
+    std::fs::write(path, bytes).map_err(|e| format!("cannot write {}: {e}", path.display()))
+}
 
 /// Colours of successive series (stages, channels).
 pub const COLOURS: [&str; 8] =
@@ -116,6 +149,8 @@ pub struct Plot {
     y: Axis,
     body: String,
     legend: Vec<(String, String, &'static str)>,
+    /// Page positions of the data drawn, to place the legend where it hides the least.
+    drawn: Vec<(f64, f64)>,
 }
 
 impl Plot {
@@ -132,6 +167,7 @@ impl Plot {
             y,
             body: String::new(),
             legend: Vec::new(),
+            drawn: Vec::new(),
         };
         let _ = writeln!(p.body, "<text x=\"{}\" y=\"22\" font-size=\"14\">{}</text>", p.left, escape(title));
         let (l, r, t, b) = (p.left, p.w - p.right, p.top, p.h - p.bottom);
@@ -184,11 +220,13 @@ impl Plot {
 
     /// A line through the points, with a legend entry when `label` is given.
     pub fn line(&mut self, pts: &[(f64, f64)], colour: &str, dashed: bool, label: Option<&str>) {
-        let coords: Vec<String> = pts
+        let page: Vec<(f64, f64)> = pts
             .iter()
             .filter(|(x, y)| self.inside(*x, *y))
-            .map(|(x, y)| format!("{:.1},{:.1}", self.px(*x), self.py(*y)))
+            .map(|(x, y)| (self.px(*x), self.py(*y)))
             .collect();
+        let coords: Vec<String> = page.iter().map(|(x, y)| format!("{x:.1},{y:.1}")).collect();
+        self.drawn.extend(page);
         let dash = if dashed { " stroke-dasharray=\"4 3\"" } else { "" };
         let _ = writeln!(
             self.body,
@@ -227,11 +265,10 @@ impl Plot {
 
     /// A marker at each point: filled circles, open circles or crosses.
     pub fn markers(&mut self, pts: &[(f64, f64)], colour: &str, kind: Marker, label: Option<&str>) {
-        let shapes: Vec<String> = pts
-            .iter()
-            .filter(|(x, y)| self.inside(*x, *y))
-            .map(|&(x, y)| kind.svg(self.px(x), self.py(y), colour))
-            .collect();
+        let page: Vec<(f64, f64)> =
+            pts.iter().filter(|(x, y)| self.inside(*x, *y)).map(|&(x, y)| (self.px(x), self.py(y))).collect();
+        let shapes: Vec<String> = page.iter().map(|&(x, y)| kind.svg(x, y, colour)).collect();
+        self.drawn.extend(page);
         for shape in shapes {
             let _ = writeln!(self.body, "{shape}");
         }
@@ -240,35 +277,48 @@ impl Plot {
         }
     }
 
-    /// Text at a data point, offset up and right.
+    /// Text at a data point, offset up and right, or up and left where it would run past the
+    /// right edge of the frame.
     pub fn label(&mut self, x: f64, y: f64, text: &str, colour: &str) {
+        let (px, py) = (self.px(x), self.py(y));
+        let fits_right = px + 6.0 + 6.6 * text.chars().count() as f64 <= self.w - self.right;
+        let (tx, anchor) = if fits_right { (px + 6.0, "start") } else { (px - 6.0, "end") };
         let _ = writeln!(
             self.body,
-            "<text x=\"{:.1}\" y=\"{:.1}\" fill=\"{colour}\">{}</text>",
-            self.px(x) + 6.0,
-            self.py(y) - 6.0,
+            "<text x=\"{tx:.1}\" y=\"{:.1}\" text-anchor=\"{anchor}\" fill=\"{colour}\">{}</text>",
+            py - 6.0,
             escape(text)
         );
     }
 
     /// The finished SVG document, legend and frame last.
     pub fn finish(mut self) -> String {
-        // Legend top-left inside the frame, on a white box so data under it stays readable.
-        let t = self.top;
+        // Legend inside the frame, in the corner where it hides the fewest data points, on a
+        // white box so data under it stays readable.
         let longest = self.legend.iter().map(|(l, _, _)| l.chars().count()).max().unwrap_or(0);
+        let (bw, bh) = (30.0 + 6.6 * longest as f64, 8.0 + 16.0 * self.legend.len() as f64);
+        let (l, r, top, bottom) = (
+            self.left + 6.0,
+            self.w - self.right - 6.0 - bw,
+            self.top + 4.0,
+            self.h - self.bottom - 4.0 - bh,
+        );
+        let hidden = |x0: f64, y0: f64| {
+            self.drawn.iter().filter(|(x, y)| *x >= x0 && *x <= x0 + bw && *y >= y0 && *y <= y0 + bh).count()
+        };
+        let (bx, by) = [(l, top), (r, top), (l, bottom), (r, bottom)]
+            .into_iter()
+            .min_by_key(|&(x, y)| hidden(x, y))
+            .unwrap_or((l, top));
         if !self.legend.is_empty() {
             let _ = writeln!(
                 self.body,
-                "<rect x=\"{:.1}\" y=\"{:.1}\" width=\"{:.1}\" height=\"{:.1}\" fill=\"white\" fill-opacity=\"0.85\" stroke=\"#ccc\"/>",
-                self.left + 6.0,
-                t + 4.0,
-                30.0 + 6.6 * longest as f64,
-                8.0 + 16.0 * self.legend.len() as f64
+                "<rect x=\"{bx:.1}\" y=\"{by:.1}\" width=\"{bw:.1}\" height=\"{bh:.1}\" fill=\"white\" fill-opacity=\"0.85\" stroke=\"#ccc\"/>",
             );
         }
         for (i, (label, colour, kind)) in self.legend.iter().enumerate() {
-            let y = t + 20.0 + 16.0 * i as f64;
-            let x = self.left + 12.0;
+            let y = by + 16.0 + 16.0 * i as f64;
+            let x = bx + 6.0;
             let mark = match *kind {
                 "line" => format!("<line x1=\"{x}\" y1=\"{0:.1}\" x2=\"{1}\" y2=\"{0:.1}\" stroke=\"{colour}\"/>", y - 4.0, x + 16.0),
                 "band" => format!(
@@ -289,6 +339,7 @@ impl Plot {
                 escape(label)
             );
         }
+        let t = self.top;
         format!(
             "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{h}\" font-family=\"sans-serif\" font-size=\"12\">\n\
              <rect width=\"100%\" height=\"100%\" fill=\"white\"/>\n{body}\

@@ -177,8 +177,8 @@ pub struct TonesCmd {
     /// Also show one-third-octave band levels.
     #[arg(long)]
     bands: bool,
-    /// Write the PSD with its floor and tones as an SVG plot (one file per channel: NAME-chK.svg
-    /// when there are several).
+    /// Write the PSD with its floor and tones as a plot, SVG or PNG by the extension (one file
+    /// per channel, NAME-chK.svg, when there are several; see --overlay).
     #[arg(long)]
     plot: Option<PathBuf>,
     /// With --plot and several channels: every channel's PSD in one plot (one colour each)
@@ -591,11 +591,11 @@ impl Run for TonesCmd {
                 };
                 if let Some(path) = a.plot.as_ref().filter(|_| !(several && a.overlay)) {
                     let path = suffix(path);
-                    std::fs::write(
+                    crate::plot::write_plot(
                         &path,
-                        svg_plot(&label, &[(label.clone(), p, &c.tones)], a.linear_frequency),
+                        &svg_plot(&label, &[(label.clone(), p, &c.tones)], a.linear_frequency),
                     )
-                    .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
+                    .map_err(Failure::Usage)?;
                     eprintln!("wrote PSD plot {}", path.display());
                 }
                 if let Some(path) = &a.psd_csv {
@@ -630,8 +630,8 @@ impl Run for TonesCmd {
                 })
                 .collect();
             let title = a.input.file.display().to_string();
-            std::fs::write(path, svg_plot(&title, &series, a.linear_frequency))
-                .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
+            crate::plot::write_plot(path, &svg_plot(&title, &series, a.linear_frequency))
+                .map_err(Failure::Usage)?;
             eprintln!("wrote PSD plot of {} channels {}", series.len(), path.display());
         }
         if let Some(samples) = cross_samples {

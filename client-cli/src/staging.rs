@@ -54,7 +54,8 @@ pub struct FitCmd {
     /// Relative frequency uncertainty of every point (server default 0.01).
     #[arg(long)]
     relative_uncertainty: Option<f64>,
-    /// Write an SVG plot of frequency against x, coloured by stage, with the loop models.
+    /// Write a plot of frequency against x, coloured by stage, with the loop models (SVG, or PNG
+    /// for a .png name).
     #[arg(long)]
     plot: Option<PathBuf>,
     /// Label each stage with the screech stage (guided jet mode) its points fit (NPR and Mj
@@ -305,8 +306,7 @@ impl Run for FitCmd {
                 ControlArg::Reflector => "reflector distance [m]",
                 ControlArg::Plain => "x",
             };
-            std::fs::write(path, svg(&points, &r, x_label))
-                .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
+            crate::plot::write_plot(path, &svg(&points, &r, x_label)).map_err(Failure::Usage)?;
             eprintln!("wrote stage plot {}", path.display());
         }
         Ok(rep.provenance(r.provenance))

@@ -252,7 +252,8 @@ pub struct SweepCmd {
     /// ("-": the CSV on standard output instead of the table).
     #[arg(long)]
     csv: Option<std::path::PathBuf>,
-    /// Write the screech map as an SVG plot: frequency against the swept value for Powell and
+    /// Write the screech map as a plot (SVG, or PNG for a .png name): frequency against the
+    /// swept value for Powell and
     /// Tam, and with --guided the stage bands shaded and the closure tones of each mode.
     #[arg(long)]
     plot: Option<std::path::PathBuf>,
@@ -594,8 +595,7 @@ impl Run for SweepCmd {
                 VaryArg::Mj => "fully expanded Mach number Mj",
                 VaryArg::Reflector => "reflector distance [m]",
             };
-            std::fs::write(path, sweep_plot(&r, x_label))
-                .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
+            crate::plot::write_plot(path, &sweep_plot(&r, x_label)).map_err(Failure::Usage)?;
             eprintln!("wrote {}", path.display());
         }
         if let Some(path) = &a.csv {

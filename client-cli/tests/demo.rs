@@ -29,6 +29,18 @@ async fn the_demo_writes_its_plots_and_recovers_the_built_loop_orders() {
     for f in ["points.csv", "stages.svg", "screech-map.svg", "spectrum.svg", "summary.txt"] {
         assert!(dir.join(f).exists(), "{f}");
     }
+    // Every plot also as PNG (drawn with the font built into the binary), decoding at the SVG's
+    // size, and not blank.
+    for (name, w, h) in [("stages", 900, 520), ("spectrum", 900, 480)] {
+        let bytes = std::fs::read(dir.join(format!("{name}.png"))).expect("png");
+        let mut reader = png::Decoder::new(std::io::Cursor::new(bytes)).read_info().expect("a PNG");
+        let (width, height) = (reader.info().width, reader.info().height);
+        assert_eq!((width, height), (w, h), "{name}");
+        let mut buf = vec![0; reader.output_buffer_size().expect("size")];
+        reader.next_frame(&mut buf).expect("pixels");
+        let dark = buf.chunks(4).filter(|p| p[0] < 128 && p[3] > 0).count();
+        assert!(dark > 1000, "{name}: {dark} dark pixels (axes, text and data are drawn)");
+    }
     let stages = std::fs::read_to_string(dir.join("stages.svg")).expect("svg");
     assert!(stages.contains("nozzle pressure ratio") && stages.contains("frequency [Hz]"));
     let spectrum = std::fs::read_to_string(dir.join("spectrum.svg")).expect("svg");
