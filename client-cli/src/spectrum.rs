@@ -391,6 +391,9 @@ pub struct BandsCmd {
     /// Highest band centre in Hz (server default 100000).
     #[arg(long)]
     max_band_hz: Option<f64>,
+    /// Write the band levels of every channel as a plot (SVG, or PNG for a .png name).
+    #[arg(long)]
+    plot: Option<PathBuf>,
 }
 
 fn analysis_rows(r: Report, a: &pb::AnalysisParameters) -> Report {
@@ -654,6 +657,39 @@ impl Run for TonesCmd {
     }
 }
 
+/// One-third-octave band levels against band centre (log frequency), a series per channel,
+/// each band's level and, dashed, its A-weighted level.
+pub fn bands_plot(title: &str, channels: &[pb::ChannelBands]) -> String {
+    use crate::plot::{Axis, Marker, Plot, COLOURS};
+    let all = || channels.iter().filter_map(|c| c.bands.as_ref()).flat_map(|b| b.bands.iter());
+    let (fmin, fmax) = all().fold((f64::MAX, 0.0f64), |(a, b), x| (a.min(x.exact_hz), b.max(x.exact_hz)));
+    let (lmin, lmax) = all()
+        .flat_map(|x| [x.level_db, x.a_weighted_level_db])
+        .filter(|v| v.is_finite())
+        .fold((f64::MAX, f64::MIN), |(a, b), v| (a.min(v), b.max(v)));
+    if fmax <= 0.0 || lmax < lmin {
+        return String::from("<svg xmlns=\"http://www.w3.org/2000/svg\"/>");
+    }
+    let mut p = Plot::new(
+        &format!("One-third-octave band levels (IEC 61260-1), {title}"),
+        900.0,
+        480.0,
+        Axis::log(fmin / 1.2, fmax * 1.2, "band centre frequency [Hz]"),
+        Axis::linear(lmin.max(lmax - 80.0), lmax + 3.0, "band level [dB re 20 uPa]"),
+    );
+    for (k, c) in channels.iter().enumerate() {
+        let Some(b) = &c.bands else { continue };
+        let name = if c.name.is_empty() { format!("channel {}", c.channel) } else { c.name.clone() };
+        let colour = COLOURS[k % COLOURS.len()];
+        let lin: Vec<(f64, f64)> = b.bands.iter().map(|x| (x.exact_hz, x.level_db)).collect();
+        let aw: Vec<(f64, f64)> = b.bands.iter().map(|x| (x.exact_hz, x.a_weighted_level_db)).collect();
+        p.line(&lin, colour, false, None);
+        p.markers(&lin, colour, Marker::Dot, Some(&format!("{name}, dB re 20 uPa")));
+        p.line(&aw, colour, true, Some(&format!("{name}, A-weighted, dB(A)")));
+    }
+    p.finish()
+}
+
 /// Rows of a channel section that the summary of several channels shows once.
 const PER_CHANNEL_SUMMARY: [&str; 13] = [
     "channel",
@@ -741,6 +777,11 @@ impl Run for BandsCmd {
             rep = correction_rows(rep, &c.corrections_applied);
             rep = caution_rows(rep, &c.cautions);
             top = top.child(rep);
+        }
+        if let Some(path) = &a.plot {
+            crate::plot::write_plot(path, &bands_plot(&a.input.file.display().to_string(), &r.channels))
+                .map_err(Failure::Usage)?;
+            eprintln!("wrote {}", path.display());
         }
         Ok(top.provenance(r.provenance))
     }

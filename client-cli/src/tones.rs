@@ -186,6 +186,9 @@ pub struct CellsCmd {
     jet: JetSourceArgs,
     #[command(flatten)]
     cells: CellArgs,
+    /// Write the shock positions along the jet as a plot (SVG, or PNG for a .png name).
+    #[arg(long)]
+    plot: Option<std::path::PathBuf>,
 }
 
 /// `jetloop screech`.
@@ -212,6 +215,10 @@ pub struct ShockNoiseCmd {
     /// default 30..180 in 10 degree steps).
     #[arg(long, value_delimiter = ',')]
     angles_deg: Vec<f64>,
+    /// Write the peak frequency against observer angle as a plot, one series per shock-cell
+    /// mode (SVG, or PNG for a .png name).
+    #[arg(long)]
+    plot: Option<std::path::PathBuf>,
 }
 
 /// Swept quantity.
@@ -403,8 +410,69 @@ impl Run for CellsCmd {
             r.spacing_factor,
             "",
         );
+        if let Some(path) = &a.plot {
+            crate::plot::write_plot(path, &cells_plot(&r)).map_err(Failure::Usage)?;
+            eprintln!("wrote {}", path.display());
+        }
         Ok(rep.table(modes).table(shocks).provenance(r.provenance))
     }
+}
+
+/// Shock positions along the jet axis (x in m and x / L), one marker per shock, with the cell
+/// boundaries drawn down to the axis.
+pub fn cells_plot(r: &pb::CellSpacingResponse) -> String {
+    use crate::plot::{Axis, Marker, Plot, COLOURS};
+    let xs: Vec<f64> = r.shocks.iter().map(|s| s.axial_position_m).collect();
+    let xmax = xs.iter().copied().fold(0.0, f64::max).max(1e-6);
+    let mut p = Plot::new(
+        "Shock positions along the jet (vortex-sheet spacing, fundamental mode)",
+        900.0,
+        320.0,
+        Axis::linear(0.0, xmax * 1.05, "axial distance from the nozzle exit x [m]"),
+        Axis::linear(0.0, f64::from(u32::try_from(xs.len()).unwrap_or(0)).max(1.0) + 1.0, "shock number"),
+    );
+    let pts: Vec<(f64, f64)> = r.shocks.iter().map(|s| (s.axial_position_m, f64::from(s.index))).collect();
+    for &(x, n) in &pts {
+        p.line(&[(x, 0.0), (x, n)], "#bbb", true, None);
+        p.label(
+            x,
+            n,
+            &format!("{:.1} L", x / r.jet.as_ref().map_or(1.0, |j| j.reference_length_m.max(1e-12))),
+            COLOURS[0],
+        );
+    }
+    p.markers(&pts, COLOURS[0], Marker::Dot, Some("shock (x and x / L, L the fully expanded size)"));
+    p.finish()
+}
+
+/// Shock-associated noise peak frequency against observer angle, one series per mode.
+pub fn shock_noise_plot(r: &pb::PredictShockNoiseResponse) -> String {
+    use crate::plot::{Axis, Marker, Plot, COLOURS};
+    let f: Vec<f64> = r.peaks.iter().filter_map(|p| p.peak_frequency_hz).collect();
+    let (fmin, fmax) = (f.iter().copied().fold(f64::MAX, f64::min), f.iter().copied().fold(0.0, f64::max));
+    let (fmin, fmax) = if fmax > 0.0 { (fmin, fmax) } else { (0.0, 1.0) };
+    let mut p = Plot::new(
+        "Shock-associated noise peak against observer angle",
+        900.0,
+        480.0,
+        Axis::linear(0.0, 180.0, "observer angle from the downstream jet axis [deg]"),
+        Axis::linear(fmin * 0.9, fmax * 1.1, "peak frequency [Hz]"),
+    );
+    let mut modes: Vec<u32> = r.peaks.iter().map(|p| p.mode).collect();
+    modes.sort_unstable();
+    modes.dedup();
+    for (k, m) in modes.iter().enumerate() {
+        let pts: Vec<(f64, f64)> = r
+            .peaks
+            .iter()
+            .filter(|p| p.mode == *m)
+            .filter_map(|p| p.peak_frequency_hz.map(|f| (p.observer_angle_deg, f)))
+            .collect();
+        let c = COLOURS[k % COLOURS.len()];
+        p.line(&pts, c, false, None);
+        p.markers(&pts, c, Marker::Dot, Some(&format!("shock-cell mode {m}")));
+    }
+    p.finish()
 }
 
 fn tone_table(key: &'static str, title: &str, tones: &[pb::Tone]) -> Table {
@@ -510,6 +578,10 @@ impl Run for ShockNoiseCmd {
         let rep = jet_rows(Report::new("Shock-associated noise"), &r.jet)
             .num("convection_speed_m_per_s", "Uc", r.convection_speed_m_per_s, "m/s")
             .num("convective_mach_number", "Mc = Uc/a", r.convective_mach_number, "");
+        if let Some(path) = &a.plot {
+            crate::plot::write_plot(path, &shock_noise_plot(&r)).map_err(Failure::Usage)?;
+            eprintln!("wrote {}", path.display());
+        }
         Ok(rep.table(t).provenance(r.provenance))
     }
 }
