@@ -35,6 +35,11 @@ struct Cli {
     /// Print JSON instead of a table.
     #[arg(long, global = true)]
     json: bool,
+    /// Give up on a call after this many seconds (the server is told the deadline too;
+    /// connecting may take at least a second). Default: no client-side limit (the server's own
+    /// limits apply).
+    #[arg(long, global = true, env = "JETLOOP_TIMEOUT_S")]
+    timeout: Option<f64>,
     #[command(subcommand)]
     command: Command,
 }
@@ -138,6 +143,7 @@ impl From<tonic::Status> for Failure {
 #[derive(Debug)]
 pub(crate) struct Ctx {
     server: String,
+    timeout: Option<std::time::Duration>,
 }
 
 impl Ctx {
@@ -148,8 +154,13 @@ impl Ctx {
     /// reached.
     pub async fn channel(&self) -> Result<tonic::transport::Channel, Failure> {
         let url = &self.server;
-        let ep = tonic::transport::Endpoint::from_shared(url.clone())
+        let mut ep = tonic::transport::Endpoint::from_shared(url.clone())
             .map_err(|e| Failure::Usage(format!("--server {url}: {e}")))?;
+        if let Some(t) = self.timeout {
+            // Connecting gets at least a second whatever the call's limit (a loopback connect
+            // takes far less, a remote one may take more).
+            ep = ep.timeout(t).connect_timeout(t.max(std::time::Duration::from_secs(1)));
+        }
         ep.connect()
             .await
             .map_err(|e| Failure::Connect(format!("cannot reach the jetloop server at {url}: {e}")))
@@ -166,7 +177,12 @@ pub(crate) trait Run {
 }
 
 async fn run(cli: Cli) -> Result<output::Report, Failure> {
-    let ctx = Ctx { server: cli.server };
+    let timeout = match cli.timeout {
+        None => None,
+        Some(t) if t > 0.0 && t <= 1e6 => Some(std::time::Duration::from_secs_f64(t)),
+        Some(t) => return Err(Failure::Usage(format!("--timeout {t}: give seconds in (0, 1e6]"))),
+    };
+    let ctx = Ctx { server: cli.server, timeout };
     run_command(cli.command, &ctx).await
 }
 
@@ -238,6 +254,10 @@ async fn main() -> ExitCode {
                 "error: {m}\nhint: start it with `cargo run --release -p jetloop-server` or pass --server"
             );
             ExitCode::from(3)
+        }
+        Err(Failure::Server(s)) if s.code() == Code::Cancelled && s.message().contains("Timeout expired") => {
+            eprintln!("error: no answer within the --timeout given");
+            ExitCode::from(5)
         }
         Err(Failure::Server(s)) => {
             let details = s.get_error_details();

@@ -174,11 +174,10 @@ impl Run for FitCmd {
                 ..Default::default()
             }),
         };
-        let r = StagingServiceClient::new(ch)
-            .max_decoding_message_size(256 << 20)
-            .fit_stages(req)
-            .await?
-            .into_inner();
+        let s = crate::readers::spinner("fitting stages on the server");
+        let r = StagingServiceClient::new(ch).max_decoding_message_size(256 << 20).fit_stages(req).await;
+        s.finish_and_clear();
+        let r = r?.into_inner();
         let mut stages = Table::new("stages", "Stages")
             .col("stage", "stage")
             .col("x_min", "x from")

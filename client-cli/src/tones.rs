@@ -601,6 +601,7 @@ impl Run for SweepCmd {
             VaryArg::Mj => pb::SweepVariable::FullyExpandedMachNumber,
             VaryArg::Reflector => pb::SweepVariable::ReflectorDistanceM,
         };
+        let s = crate::readers::spinner("sweeping on the server");
         let r = ToneServiceClient::new(ch)
             .sweep_screech(pb::SweepScreechRequest {
                 jet: Some(a.jet.input()?),
@@ -608,8 +609,9 @@ impl Run for SweepCmd {
                 values: Some(values),
                 options: Some(a.screech.options()),
             })
-            .await?
-            .into_inner();
+            .await;
+        s.finish_and_clear();
+        let r = r?.into_inner();
         let orders = r.points.iter().map(|p| p.loop_frequencies_hz.len()).max().unwrap_or(0);
         let value_key = match a.vary {
             VaryArg::Npr => ("nozzle_pressure_ratio_swept", "NPR"),

@@ -75,6 +75,13 @@ async fn cli_answers_with_units_json_csv_and_exit_codes() {
     // The swept NPR is the NPR column (no second NPR column), then Mj and the regime.
     assert!(lines[0].starts_with("nozzle_pressure_ratio,fully_expanded_mach_number,regime,"), "{}", lines[0]);
     assert!(lines[1].contains(",subsonic,"));
+    // --timeout: a call that cannot finish in time ends with exit code 5 and says so.
+    let u2 = server.url();
+    let late = tokio::task::spawn_blocking(move || jetloop(&u2, &["--timeout", "0.0000001", "info"]))
+        .await
+        .expect("runs");
+    assert_eq!(late.status.code(), Some(5));
+    assert!(String::from_utf8_lossy(&late.stderr).contains("--timeout"));
     let s = json(&screech);
     assert!(s["predictions"].as_array().unwrap().len() >= 2);
     server.stop().await;
