@@ -13,6 +13,9 @@
 //! value = 0.12780
 //! rel_tolerance = 5e-5         # or abs_tolerance; |got - value| within it passes
 //! ```
+//!
+//! `{dir}` in an argument stands for the folder of the case file (for recordings kept beside
+//! it).
 
 use crate::output::{Report, Table, Val};
 use crate::{Ctx, Failure, Run};
@@ -69,6 +72,14 @@ struct Case {
 }
 
 fn parse_cases(file: &str, text: &str) -> Result<Vec<Case>, Failure> {
+    let dir = std::path::Path::new(file).parent().map_or(".".to_string(), |d| {
+        if d.as_os_str().is_empty() {
+            ".".to_string()
+        } else {
+            d.display().to_string()
+        }
+    });
+    let dir = dir.as_str();
     let bad = |m: String| Failure::Usage(format!("{file}: {m}"));
     let doc: toml::Table = text.parse().map_err(|e: toml::de::Error| bad(e.to_string()))?;
     let cases =
@@ -83,7 +94,7 @@ fn parse_cases(file: &str, text: &str) -> Result<Vec<Case>, Failure> {
             .and_then(|v| v.as_array())
             .ok_or_else(|| here("args (the jetloop command line, as a list) is required"))?
             .iter()
-            .map(|a| a.as_str().map(str::to_string).ok_or_else(|| here("args must be strings")))
+            .map(|a| a.as_str().map(|a| a.replace("{dir}", dir)).ok_or_else(|| here("args must be strings")))
             .collect::<Result<_, _>>()?;
         let case_source = t.get("source").and_then(|v| v.as_str());
         let mut expects = Vec::new();
