@@ -47,38 +47,59 @@ struct Cli {
 #[derive(Debug, Subcommand)]
 enum Command {
     /// Isentropic ratios from a Mach number, or the Mach number from one ratio.
+    #[command(after_help = "Example: jetloop isentropic --mach 2")]
     Isentropic(gas::IsentropicArgs),
     /// Normal-shock jump conditions.
+    #[command(after_help = "Example: jetloop shock --mach 2.5")]
     Shock(gas::ShockArgs),
     /// Fully expanded jet state of a nozzle at an operating point.
+    #[command(after_help = "Example: jetloop jet --diameter-m 0.0254 --npr 4")]
     Jet(gas::JetArgs),
     /// Shock-cell spacing (vortex-sheet model) and shock positions.
+    #[command(after_help = "Example: jetloop cells --diameter-m 0.0254 --npr 3.5 --plot cells.png")]
     Cells(tones::CellsCmd),
     /// Screech frequency by several models, harmonics and the feedback loop.
+    #[command(after_help = "Example: jetloop screech --diameter-m 0.0254 --npr 3.5 --source-cells 4")]
     Screech(tones::ScreechCmd),
     /// Peak frequency of shock-associated noise against observer angle.
+    #[command(after_help = "Example: jetloop shock-noise --diameter-m 0.0254 --npr 4 --angles-deg 30,60,90")]
     ShockNoise(tones::ShockNoiseCmd),
     /// Screech predictions over NPR, Mj or reflector distance (table, JSON or CSV).
+    #[command(
+        after_help = "Example: jetloop sweep --diameter-m 0.0254 --npr 3 --vary npr --from 1.5 --to 6 --count 200 --csv map.csv"
+    )]
     Sweep(tones::SweepCmd),
     /// Guided jet modes: which screech stages are possible (bands), where the loop closes
     /// through each, and the dispersion curves.
+    #[command(after_help = "Example: jetloop modes --mj 1.3 --t0-over-ta 1 --plot modes.svg")]
     Modes(modes::ModesCmd),
     /// Tones, levels, harmonics (and bands) of a recording: WAV, CSV or raw.
+    #[command(after_help = "Example: jetloop tones demo.wav --pa-per-unit 2000 --bands --plot psd.png")]
     Tones(spectrum::TonesCmd),
     /// Live tone tracking: stream a recording (at its pace with --realtime) and see tones keep
     /// their track ids and stage jumps reported as they happen.
+    #[command(after_help = "Example: jetloop track jump.wav --pa-per-unit 2000 --realtime")]
     Track(track::TrackCmd),
     /// One-third-octave band levels, overall and A-weighted levels of a recording.
+    #[command(after_help = "Example: jetloop bands mics.csv --sample-rate-hz 51200 --in-pascals")]
     Bands(spectrum::BandsCmd),
     /// Tones against NPR from a continuous ramp: a recording with an NPR or reservoir-pressure
     /// channel beside the microphones, in short-time frames; points written for `fit`.
+    #[command(
+        after_help = "Example: jetloop ramp ramp.wav --pa-per-unit 2000 --control-channel 1 --control gauge-pa --control-per-unit 1000000"
+    )]
     Ramp(ramp::RampCmd),
     /// Write a demo recording of an imagined jet rig (WAV, CSV or raw int16; ring of
     /// microphones, stage jump, NPR ramp with its pressure channel).
+    #[command(after_help = "Example: jetloop synth ring.wav --ring 8 --pattern spinning --order 1")]
     Synth(synth::SynthCmd),
     /// Stages, jumps, hysteresis and loop-model fits of a measured sweep (CSV).
+    #[command(
+        after_help = "Example: jetloop fit sweep.csv --control npr --diameter-m 0.0254 --plot stages.png"
+    )]
     Fit(staging::FitCmd),
     /// Server version, models with references, and limits.
+    #[command(after_help = "Example: jetloop info")]
     Info(gas::InfoCmd),
     /// Regression suite: run the cases of TOML files (a jetloop command line, expected values
     /// with tolerances and their published sources) and print pass/fail with the deviations;

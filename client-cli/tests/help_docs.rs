@@ -26,3 +26,20 @@ fn completions_name_every_subcommand() {
     }
     assert!(jetloop(&["completions", "zsh"]).contains("#compdef jetloop"));
 }
+
+#[test]
+fn every_subcommand_help_shows_an_example() {
+    let top = jetloop(&["--help"]);
+    let subs: Vec<&str> = top
+        .lines()
+        .skip_while(|l| !l.starts_with("Commands:"))
+        .skip(1)
+        .take_while(|l| l.starts_with("  "))
+        .filter_map(|l| l.split_whitespace().next())
+        .filter(|s| !["help", "completions", "help-markdown"].contains(s))
+        .collect();
+    assert!(subs.len() >= 17, "{subs:?}");
+    for s in subs {
+        assert!(jetloop(&[s, "--help"]).contains("Example: jetloop"), "{s} --help has no example");
+    }
+}
