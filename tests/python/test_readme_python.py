@@ -60,8 +60,19 @@ def snippet(marker):
     return found[0]
 
 
-def test_readme_has_three_python_snippets():
-    assert len(blocks("python")) == 3
+def test_readme_has_four_python_snippets():
+    assert len(blocks("python")) == 4
+
+
+def test_package_snippet(stubs, server_address):
+    # Runs with the installed package (clients/python; .ci/run installs it).
+    out = run_snippet(snippet("from jetloop_client import"), stubs, server_address).strip().splitlines()
+    # Mj = sqrt(5 (4^(2/7) - 1)) (NACA Report 1135, eq. 44); 1 Pa rms = 93.98 dB re 20 uPa.
+    assert out[0] == f"Mj {math.sqrt(5 * (4 ** (2 / 7) - 1)):.5f}"
+    m = re.match(r"([\d.]+) Hz at ([\d.]+) dB re 20 uPa", out[1])
+    assert m and float(m.group(1)) == pytest.approx(4000.0, abs=0.1)
+    assert float(m.group(2)) == pytest.approx(93.98, abs=0.05)
+    assert out[2] == "conditions.nozzle.round_convergent.exit_diameter_m"
 
 
 def test_jet_state_snippet(stubs, server_address):
