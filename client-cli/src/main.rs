@@ -109,6 +109,10 @@ enum Command {
     /// stage jumps and hysteresis, a microphone synthesized at each point, tones extracted, a
     /// stage fit, plots and a summary written to a folder. Example: jetloop demo demo-out
     Demo(demo::DemoCmd),
+    /// Ask the server's gRPC health service: exit code 0 when it answers SERVING, 5 otherwise
+    /// (for container and service-manager health checks).
+    #[command(after_help = "Example: jetloop --timeout 2 health")]
+    Health,
     /// Shell completions for bash, zsh, fish, elvish or PowerShell on standard output.
     /// Example: jetloop completions bash > ~/.local/share/bash-completion/completions/jetloop
     Completions {
@@ -226,6 +230,20 @@ async fn run_command(command: Command, ctx: &Ctx) -> Result<output::Report, Fail
         Command::Info(a) => a.run(ctx).await,
         Command::Check(a) => a.run(ctx).await,
         Command::Demo(a) => a.run(ctx).await,
+        Command::Health => {
+            use tonic_health::pb::{health_check_response::ServingStatus, health_client::HealthClient};
+            let r = HealthClient::new(ctx.channel().await?)
+                .check(tonic_health::pb::HealthCheckRequest { service: String::new() })
+                .await?
+                .into_inner();
+            match ServingStatus::try_from(r.status) {
+                Ok(ServingStatus::Serving) => Ok(output::Report::new("SERVING")),
+                other => Err(Failure::Server(tonic::Status::unavailable(format!(
+                    "health: {}",
+                    other.map_or("unknown status", |s| s.as_str_name())
+                )))),
+            }
+        }
         Command::Completions { shell } => {
             use clap::CommandFactory;
             use std::io::Write;
