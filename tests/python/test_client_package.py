@@ -27,6 +27,10 @@ def client(server_address):
 
 def test_gas_dynamics_and_info(client):
     assert client.server_info().server_version
+    assert client.health() is True
+    services = client.services()
+    for name in ("jetloop.v1.SpectrumService", "jetloop.v1.StagingService", "grpc.health.v1.Health"):
+        assert name in services, services
     # NACA Report 1135, Table I, M = 2: p/p0 0.12780.
     assert client.isentropic(mach_number=2.0).pressure_ratio == pytest.approx(0.12780, rel=5e-5)
     # NACA Report 1135, Table II, M1 = 2: M2 0.57735.

@@ -144,6 +144,22 @@ class Client:
         raise ServerBusy(grpc.StatusCode.UNAVAILABLE, "no attempts left", None)
 
     # Information and gas dynamics.
+    def health(self) -> bool:
+        """True when the server's gRPC health service answers SERVING."""
+        from grpc_health.v1 import health_pb2, health_pb2_grpc
+
+        try:
+            r = health_pb2_grpc.HealthStub(self.channel).Check(health_pb2.HealthCheckRequest(), timeout=self.timeout_s)
+        except grpc.RpcError as e:
+            raise typed(e) from None
+        return r.status == health_pb2.HealthCheckResponse.SERVING
+
+    def services(self) -> list:
+        """The services the server lists through gRPC reflection (when reflection is on)."""
+        from grpc_reflection.v1alpha.proto_reflection_descriptor_database import ProtoReflectionDescriptorDatabase
+
+        return sorted(ProtoReflectionDescriptorDatabase(self.channel).get_services())
+
     def server_info(self) -> i.ServerInfoResponse:
         """Server version, services, models with references and limits."""
         return self._call(self._info.ServerInfo, i.ServerInfoRequest())
