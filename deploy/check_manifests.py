@@ -56,6 +56,8 @@ def check(folder: pathlib.Path):
     args = c.get("args", [])
     if "--reflection" not in args or args[args.index("--reflection") + 1] != "off":
         problems.append("the pods listen on all interfaces without TLS or tokens: reflection off")
+    if "--token-file" not in args and "--allow-insecure-network" not in args:
+        problems.append("the pods listen on all interfaces: give --token-file or (knowingly) --allow-insecure-network")
     try:
         drain = arg(args, "--drain-notice-s") + arg(args, "--drain-s")
         grace = pod.get("terminationGracePeriodSeconds", 30)
@@ -84,6 +86,8 @@ def check(folder: pathlib.Path):
         problems.append("Dockerfile: a HEALTHCHECK asking the gRPC health service is expected")
     if '"0.0.0.0:50051"' not in docker or '"--reflection", "off"' not in docker:
         problems.append("Dockerfile: listens on all interfaces, so reflection off")
+    if '"--token-file"' not in docker and '"--allow-insecure-network"' not in docker:
+        problems.append("Dockerfile: listens on all interfaces: --token-file or (knowingly) --allow-insecure-network")
     return problems
 
 

@@ -40,6 +40,10 @@ struct Cli {
     /// limits apply).
     #[arg(long, global = true, env = "JETLOOP_TIMEOUT_S")]
     timeout: Option<f64>,
+    /// File holding the bearer token for a server that requires one (its first non-comment
+    /// line); JETLOOP_TOKEN gives the token itself instead.
+    #[arg(long, global = true, env = "JETLOOP_TOKEN_FILE")]
+    token_file: Option<std::path::PathBuf>,
     #[command(subcommand)]
     command: Command,
 }
@@ -169,6 +173,42 @@ impl From<tonic::Status> for Failure {
 pub(crate) struct Ctx {
     server: String,
     timeout: Option<std::time::Duration>,
+    bearer: Bearer,
+}
+
+/// Adds `authorization: Bearer <token>` to every call when a token was given.
+#[derive(Debug, Clone, Default)]
+pub(crate) struct Bearer(Option<tonic::metadata::MetadataValue<tonic::metadata::Ascii>>);
+
+impl tonic::service::Interceptor for Bearer {
+    fn call(&mut self, mut req: tonic::Request<()>) -> Result<tonic::Request<()>, tonic::Status> {
+        if let Some(v) = &self.0 {
+            req.metadata_mut().insert("authorization", v.clone());
+        }
+        Ok(req)
+    }
+}
+
+/// A connection to the server with the token (if any) on every call.
+pub(crate) type Conn = tonic::service::interceptor::InterceptedService<tonic::transport::Channel, Bearer>;
+
+/// The bearer token from `--token-file` or `JETLOOP_TOKEN`.
+fn bearer(token_file: Option<&std::path::Path>) -> Result<Bearer, Failure> {
+    let token = match token_file {
+        Some(p) => {
+            let text = std::fs::read_to_string(p)
+                .map_err(|e| Failure::Usage(format!("cannot read the token file {}: {e}", p.display())))?;
+            text.lines().map(str::trim).find(|l| !l.is_empty() && !l.starts_with('#')).map(str::to_string)
+        }
+        None => std::env::var("JETLOOP_TOKEN").ok().filter(|t| !t.is_empty()),
+    };
+    match token {
+        None => Ok(Bearer(None)),
+        Some(t) => format!("Bearer {t}")
+            .parse()
+            .map(|v| Bearer(Some(v)))
+            .map_err(|_| Failure::Usage("the token must be printable ASCII".into())),
+    }
 }
 
 impl Ctx {
@@ -177,7 +217,7 @@ impl Ctx {
     /// # Errors
     /// [`Failure::Usage`] for a malformed address, [`Failure::Connect`] when it cannot be
     /// reached.
-    pub async fn channel(&self) -> Result<tonic::transport::Channel, Failure> {
+    pub async fn channel(&self) -> Result<Conn, Failure> {
         let url = &self.server;
         let mut ep = tonic::transport::Endpoint::from_shared(url.clone())
             .map_err(|e| Failure::Usage(format!("--server {url}: {e}")))?;
@@ -186,9 +226,11 @@ impl Ctx {
             // takes far less, a remote one may take more).
             ep = ep.timeout(t).connect_timeout(t.max(std::time::Duration::from_secs(1)));
         }
-        ep.connect()
+        let channel = ep
+            .connect()
             .await
-            .map_err(|e| Failure::Connect(format!("cannot reach the jetloop server at {url}: {e}")))
+            .map_err(|e| Failure::Connect(format!("cannot reach the jetloop server at {url}: {e}")))?;
+        Ok(tonic::service::interceptor::InterceptedService::new(channel, self.bearer.clone()))
     }
 }
 
@@ -207,7 +249,7 @@ async fn run(cli: Cli) -> Result<output::Report, Failure> {
         Some(t) if t > 0.0 && t <= 1e6 => Some(std::time::Duration::from_secs_f64(t)),
         Some(t) => return Err(Failure::Usage(format!("--timeout {t}: give seconds in (0, 1e6]"))),
     };
-    let ctx = Ctx { server: cli.server, timeout };
+    let ctx = Ctx { server: cli.server, timeout, bearer: bearer(cli.token_file.as_deref())? };
     run_command(cli.command, &ctx).await
 }
 

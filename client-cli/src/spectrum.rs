@@ -7,7 +7,6 @@ use crate::{Ctx, Failure, Run};
 use clap::{Args, ValueEnum};
 use jetloop_proto::pb::{self, spectrum_service_client::SpectrumServiceClient};
 use std::path::PathBuf;
-use tonic::transport::Channel;
 
 /// Windows on the command line.
 #[derive(Debug, Clone, Copy, ValueEnum)]
@@ -346,7 +345,7 @@ fn blocks_of(samples: &pb::Samples, block: usize) -> Option<Vec<bytes::Bytes>> {
 
 /// Sends the question and then the blocks, with a progress bar of bytes sent on a terminal.
 async fn extract_in_blocks(
-    client: &mut SpectrumServiceClient<Channel>,
+    client: &mut SpectrumServiceClient<crate::Conn>,
     mut req: pb::ExtractTonesRequest,
     blocks: Vec<bytes::Bytes>,
 ) -> Result<pb::ExtractTonesResponse, tonic::Status> {

@@ -412,6 +412,62 @@ macro_rules! route_service {
 
 type BoxFuture<R, E> = Pin<Box<dyn Future<Output = Result<R, E>> + Send>>;
 
+/// Bearer-token check: with tokens configured, every call but health checks must carry
+/// `authorization: Bearer <token>` with one of them (compared in constant time), else it is
+/// answered UNAUTHENTICATED at once. Without tokens it passes everything.
+#[derive(Debug, Clone)]
+pub struct AuthLayer {
+    tokens: Arc<Vec<Vec<u8>>>,
+}
+
+impl AuthLayer {
+    /// A check against `tokens` (empty: no check).
+    pub fn new(tokens: &[String]) -> Self {
+        Self { tokens: Arc::new(tokens.iter().map(|t| t.as_bytes().to_vec()).collect()) }
+    }
+
+    /// True when `header` (the authorization value) names one of the tokens. Every token is
+    /// compared whole, whatever matched, so the time taken does not tell how much of a guess
+    /// was right.
+    fn accepts(&self, header: Option<&http::HeaderValue>) -> bool {
+        let Some(given) = header.and_then(|h| h.as_bytes().strip_prefix(b"Bearer ")) else {
+            return false;
+        };
+        self.tokens.iter().fold(false, |ok, t| ok | constant_time_eq(t, given))
+    }
+}
+
+/// Equality of two byte strings in time that depends only on their lengths.
+fn constant_time_eq(a: &[u8], b: &[u8]) -> bool {
+    a.len() == b.len() && a.iter().zip(b).fold(0u8, |acc, (x, y)| acc | (x ^ y)) == 0
+}
+
+impl<S> tower::Layer<S> for AuthLayer {
+    type Service = Auth<S>;
+
+    fn layer(&self, inner: S) -> Auth<S> {
+        Auth { inner, layer: self.clone() }
+    }
+}
+
+/// The service [`AuthLayer`] wraps around the routes.
+#[derive(Debug, Clone)]
+pub struct Auth<S> {
+    inner: S,
+    layer: AuthLayer,
+}
+
+route_service!(Auth, |self, req| {
+    let open = self.layer.tokens.is_empty() || req.uri().path().starts_with(HEALTH);
+    if !open && !self.layer.accepts(req.headers().get(http::header::AUTHORIZATION)) {
+        let refused = tonic::Status::unauthenticated(
+            "this server requires a bearer token: send `authorization: Bearer <token>` with a token it was given",
+        );
+        return Box::pin(std::future::ready(Ok(refused.into_http())));
+    }
+    Box::pin(self.inner.call(req))
+});
+
 route_service!(Shed, |self, req| {
     let mut req = req;
     let permit = if req.uri().path().starts_with(HEALTH) {

@@ -99,6 +99,46 @@ pub struct Config {
     /// Seconds a new connection has to send its first byte before it is closed.
     #[arg(long, env = "JETLOOP_HANDSHAKE_TIMEOUT_S", default_value_t = 10.0, value_parser = parse_seconds)]
     pub handshake_timeout_s: f64,
+    /// File of bearer tokens, one per line (blank lines and `#` comments ignored; each at least
+    /// 16 characters). When given, every call but health checks must carry
+    /// `authorization: Bearer <token>` with one of them, else it is refused with
+    /// UNAUTHENTICATED.
+    #[arg(long, env = "JETLOOP_TOKEN_FILE")]
+    pub token_file: Option<std::path::PathBuf>,
+    /// Allow listening on a non-loopback address without tokens (only on a network that only
+    /// your lab reaches: anyone who reaches the port can call every RPC).
+    #[arg(long, env = "JETLOOP_ALLOW_INSECURE_NETWORK")]
+    pub allow_insecure_network: bool,
+}
+
+/// Shortest accepted bearer token, characters.
+pub const MIN_TOKEN_CHARS: usize = 16;
+
+/// The tokens of a token file (one per line, blank lines and `#` comments ignored).
+///
+/// # Errors
+/// A sentence naming the file when it cannot be read, holds no token, or holds one shorter
+/// than [`MIN_TOKEN_CHARS`].
+pub fn read_tokens(path: &std::path::Path) -> Result<Vec<String>, String> {
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| format!("cannot read the token file {}: {e}", path.display()))?;
+    let tokens: Vec<String> = text
+        .lines()
+        .map(str::trim)
+        .filter(|l| !l.is_empty() && !l.starts_with('#'))
+        .map(str::to_string)
+        .collect();
+    if tokens.is_empty() {
+        return Err(format!("the token file {} holds no token", path.display()));
+    }
+    if let Some((i, _)) = tokens.iter().enumerate().find(|(_, t)| t.chars().count() < MIN_TOKEN_CHARS) {
+        return Err(format!(
+            "token {} of {} is shorter than {MIN_TOKEN_CHARS} characters",
+            i + 1,
+            path.display()
+        ));
+    }
+    Ok(tokens)
 }
 
 fn parse_seconds(s: &str) -> Result<f64, String> {
@@ -109,7 +149,7 @@ fn parse_seconds(s: &str) -> Result<f64, String> {
 }
 
 /// How the server starts and stops, beside the per-call [`Limits`].
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, PartialEq)]
 pub struct ServeOptions {
     /// Limits on every call.
     pub limits: Limits,
@@ -121,6 +161,8 @@ pub struct ServeOptions {
     pub drain: Duration,
     /// Connection cap and handshake timeout.
     pub connections: ConnectionLimits,
+    /// Bearer tokens a call must carry one of (health checks exempt); empty: no check.
+    pub tokens: Vec<String>,
 }
 
 impl Default for ServeOptions {
@@ -134,6 +176,7 @@ impl Default for ServeOptions {
                 max_connections: default_max_connections(),
                 handshake_timeout: Duration::from_secs(10),
             },
+            tokens: Vec::new(),
         }
     }
 }
@@ -153,6 +196,7 @@ impl Config {
                 },
                 handshake_timeout: Duration::from_secs_f64(self.handshake_timeout_s),
             },
+            tokens: Vec::new(),
         }
     }
 

@@ -1,6 +1,6 @@
 //! Builds the tonic server: jetloop services, health, reflection and the limits around them.
 
-use crate::admission::{DeadlineLayer, InboundErrorsLayer, ShedLayer};
+use crate::admission::{AuthLayer, DeadlineLayer, InboundErrorsLayer, ShedLayer};
 use crate::config::ServeOptions;
 use crate::service::budget::SampleBudget;
 use crate::service::{
@@ -75,7 +75,7 @@ pub async fn serve(
     options: ServeOptions,
     shutdown: impl Future<Output = ()> + Send,
 ) -> Result<(), ServeError> {
-    let ServeOptions { limits, reflection, drain_notice, drain, connections } = options;
+    let ServeOptions { limits, reflection, drain_notice, drain, connections, tokens } = options;
     let (health_reporter, health) = tonic_health::server::health_reporter();
     // Every jetloop service is SERVING as soon as the listener accepts (they hold no state).
     for name in JETLOOP_SERVICES {
@@ -105,7 +105,11 @@ pub async fn serve(
     // `trace_fn` below, which wraps this stack, so a refused or expired call is logged in the
     // span of its method.
     let stack = tower::ServiceBuilder::new()
-        // Shed first: a call over the server-wide limit is refused at once with UNAVAILABLE and
+        // Authentication outermost: a call without a valid bearer token (when tokens are set)
+        // is refused with UNAUTHENTICATED before it takes a permit or any work; health checks
+        // pass so probes and load balancers need no token.
+        .layer(AuthLayer::new(&tokens))
+        // Shed next: a call over the server-wide limit is refused at once with UNAVAILABLE and
         // a RetryInfo hint before it costs anything; health checks pass untouched (a busy pod
         // must not be restarted). The permit is held until the inner future, deadline
         // included, has finished.

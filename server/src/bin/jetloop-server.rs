@@ -18,6 +18,25 @@ async fn main() -> ExitCode {
         // Colour codes only on a terminal, not in files or the journal.
         .with_ansi(std::io::stderr().is_terminal())
         .init();
+    let mut options = config.serve_options();
+    if let Some(path) = &config.token_file {
+        match jetloop_server::config::read_tokens(path) {
+            Ok(tokens) => options.tokens = tokens,
+            Err(e) => {
+                tracing::error!("{e}");
+                return ExitCode::from(2);
+            }
+        }
+    }
+    if !config.listen.ip().is_loopback() && options.tokens.is_empty() && !config.allow_insecure_network {
+        tracing::error!(
+            "refusing to listen on {} (not a loopback address) without --token-file: anyone who reaches the \
+             port could call every RPC. Give --token-file, or --allow-insecure-network on a network only your \
+             lab reaches",
+            config.listen
+        );
+        return ExitCode::from(2);
+    }
     let listener = match tokio::net::TcpListener::bind(config.listen).await {
         Ok(l) => l,
         Err(e) => {
@@ -37,7 +56,7 @@ async fn main() -> ExitCode {
     println!("jetloop-server listening on {addr}");
     let _ = std::io::stdout().flush();
     tracing::info!(%addr, version = env!("CARGO_PKG_VERSION"), "serving");
-    match server::serve(listener, config.serve_options(), shutdown_signal()).await {
+    match server::serve(listener, options, shutdown_signal()).await {
         Ok(()) => {
             tracing::info!("stopped");
             ExitCode::SUCCESS
