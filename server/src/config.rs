@@ -109,6 +109,138 @@ pub struct Config {
     /// your lab reaches: anyone who reaches the port can call every RPC).
     #[arg(long, env = "JETLOOP_ALLOW_INSECURE_NETWORK")]
     pub allow_insecure_network: bool,
+    /// A TOML file of settings, keys named as the flags (`max_request_bytes = 1048576`,
+    /// `allow_insecure_network = true`). Precedence: flags, then JETLOOP_* environment
+    /// variables, then this file, then the defaults.
+    #[arg(long, env = "JETLOOP_CONFIG")]
+    pub config: Option<std::path::PathBuf>,
+    /// Print the effective settings with where each came from (flag, environment, file,
+    /// default), then exit.
+    #[arg(long)]
+    pub print_config: bool,
+}
+
+/// Where a setting's effective value came from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Source {
+    /// A command-line flag.
+    Flag,
+    /// A `JETLOOP_*` environment variable.
+    Environment,
+    /// The `--config` file.
+    File,
+    /// The built-in default.
+    Default,
+}
+
+impl Source {
+    /// Lower-case name.
+    pub fn name(self) -> &'static str {
+        match self {
+            Source::Flag => "flag",
+            Source::Environment => "environment",
+            Source::File => "config file",
+            Source::Default => "default",
+        }
+    }
+}
+
+/// Every setting's name, effective value and source, in flag order.
+pub type Sources = Vec<(String, String, Source)>;
+
+/// Settings that are actions, not settings (never taken from the file or printed).
+const NOT_SETTINGS: [&str; 2] = ["config", "print_config"];
+
+/// The configuration from `args` (program name first): flags, then environment, then the TOML
+/// file of `--config` / `JETLOOP_CONFIG`, then defaults; with the source of every setting.
+///
+/// # Errors
+/// The usage error to print (unknown flags, a value out of range, an unreadable or unknown
+/// key in the file).
+pub fn load(args: Vec<std::ffi::OsString>) -> Result<(Config, Sources), clap::Error> {
+    use clap::{parser::ValueSource, CommandFactory, FromArgMatches};
+    let cmd = Config::command();
+    let first = cmd.clone().try_get_matches_from(&args)?;
+    let mut args = args;
+    let mut from_file = Vec::new();
+    if let Some(path) = first.get_one::<std::path::PathBuf>("config") {
+        let text = std::fs::read_to_string(path).map_err(|e| {
+            cmd.clone().error(
+                clap::error::ErrorKind::Io,
+                format!("cannot read the config file {}: {e}", path.display()),
+            )
+        })?;
+        let table: toml::Table = text.parse().map_err(|e: toml::de::Error| {
+            cmd.clone()
+                .error(clap::error::ErrorKind::InvalidValue, format!("config file {}: {e}", path.display()))
+        })?;
+        for (key, value) in table {
+            let id = key.replace('-', "_");
+            let Some(arg) = cmd
+                .get_arguments()
+                .find(|a| a.get_id() == id.as_str() && !NOT_SETTINGS.contains(&id.as_str()))
+            else {
+                return Err(cmd.clone().error(
+                    clap::error::ErrorKind::UnknownArgument,
+                    format!(
+                        "config file {}: unknown setting '{key}' (keys are the flag names)",
+                        path.display()
+                    ),
+                ));
+            };
+            if first.value_source(&id) != Some(ValueSource::DefaultValue) && first.value_source(&id).is_some()
+            {
+                continue; // a flag or the environment wins
+            }
+            let flag = format!("--{}", arg.get_long().unwrap_or(&id));
+            let text = match &value {
+                toml::Value::String(s) => s.clone(),
+                toml::Value::Integer(i) => i.to_string(),
+                toml::Value::Float(f) => f.to_string(),
+                toml::Value::Boolean(b) => b.to_string(),
+                _ => {
+                    return Err(cmd.clone().error(
+                        clap::error::ErrorKind::InvalidValue,
+                        format!(
+                            "config file {}: '{key}' must be a string, number or true/false",
+                            path.display()
+                        ),
+                    ))
+                }
+            };
+            if arg.get_action().takes_values() {
+                args.push(flag.into());
+                args.push(text.into());
+            } else if value.as_bool() == Some(true) {
+                args.push(flag.into());
+            }
+            from_file.push(id);
+        }
+    }
+    let matches = cmd.clone().try_get_matches_from(&args)?;
+    let config = Config::from_arg_matches(&matches)?;
+    let mut sources = Vec::new();
+    for arg in cmd.get_arguments() {
+        let id = arg.get_id().as_str().to_string();
+        if NOT_SETTINGS.contains(&id.as_str()) || ["help", "version"].contains(&id.as_str()) {
+            continue;
+        }
+        let source = if from_file.contains(&id) {
+            Source::File
+        } else {
+            match first.value_source(&id) {
+                Some(ValueSource::CommandLine) => Source::Flag,
+                Some(ValueSource::EnvVariable) => Source::Environment,
+                _ => Source::Default,
+            }
+        };
+        let value = matches
+            .get_raw(&id)
+            .map(|v| v.map(|x| x.to_string_lossy().into_owned()).collect::<Vec<_>>().join(","))
+            .unwrap_or_else(|| "(unset)".into());
+        sources.push((id, value, source));
+    }
+    Ok((config, sources))
 }
 
 /// Shortest accepted bearer token, characters.

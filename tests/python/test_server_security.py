@@ -39,6 +39,17 @@ def test_the_cli_sends_its_token(tmp_path):
         assert env_token.returncode == 0, env_token.stderr
         health = subprocess.run([cli, "--server", url, "health"], capture_output=True, text=True, timeout=30)
         assert health.returncode == 0, health.stderr
+        # The Python package sends it too.
+        from jetloop_client import Client, JetloopError
+
+        with Client(f"127.0.0.1:{port}", token=TOKEN) as c:
+            assert c.server_info().server_version
+        with Client(f"127.0.0.1:{port}") as c:
+            try:
+                c.server_info()
+                raise AssertionError("a call without the token was answered")
+            except JetloopError as e:
+                assert e.code.name == "UNAUTHENTICATED"
     finally:
         proc.terminate()
         proc.wait(timeout=30)

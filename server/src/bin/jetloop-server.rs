@@ -1,14 +1,22 @@
 //! `jetloop-server`: parse flags, set up logging, bind, serve until SIGINT/SIGTERM.
 #![forbid(unsafe_code)]
 
-use clap::Parser;
-use jetloop_server::{config::Config, server};
+use jetloop_server::server;
 use std::io::{IsTerminal, Write};
 use std::process::ExitCode;
 
 #[tokio::main]
 async fn main() -> ExitCode {
-    let config = Config::parse();
+    let (config, sources) = match jetloop_server::config::load(std::env::args_os().collect()) {
+        Ok(c) => c,
+        Err(e) => e.exit(),
+    };
+    if config.print_config {
+        for (name, value, source) in &sources {
+            println!("{name} = {value}    # {}", source.name());
+        }
+        return ExitCode::SUCCESS;
+    }
     tracing_subscriber::fmt()
         .with_env_filter(
             tracing_subscriber::EnvFilter::try_from_default_env()

@@ -104,18 +104,21 @@ def _jet(diameter_m=None, fully_expanded_mach_number=None, fully_expanded_diamet
 class Client:
     """A connection to a jetloop server at `address` ("host:port").
 
-    `timeout_s` bounds every call (the server is told the deadline); calls refused with
+    `token` is sent as `authorization: Bearer <token>` with every call (servers started with
+    --token-file). `timeout_s` bounds every call (the server is told the deadline); calls refused with
     UNAVAILABLE or RESOURCE_EXHAUSTED are retried up to `retries` times after the server's
     RetryInfo delay (or 0.2 s). Errors raise `InvalidRequest` (with `.violations`),
     `PhysicsRefused` (with `.kind`), `ServerBusy` or `JetloopError`.
     """
 
     def __init__(self, address: str = "127.0.0.1:50051", timeout_s: float = 60.0, retries: int = 3,
-                 channel: Optional[grpc.Channel] = None):
+                 channel: Optional[grpc.Channel] = None, token: Optional[str] = None):
         opts = [("grpc.max_send_message_length", 256 << 20), ("grpc.max_receive_message_length", 256 << 20)]
         self.channel = channel or grpc.insecure_channel(address, options=opts)
         self.timeout_s = timeout_s
         self.retries = retries
+        # Sent with every call when the server requires a bearer token (--token-file).
+        self.metadata = [("authorization", f"Bearer {token}")] if token else None
         self._gas = gg.GasDynamicsServiceStub(self.channel)
         self._info = ig.InfoServiceStub(self.channel)
         self._cells = scg.ShockCellServiceStub(self.channel)
@@ -135,7 +138,7 @@ class Client:
     def _call(self, method, request):
         for attempt in range(self.retries + 1):
             try:
-                return method(request, timeout=self.timeout_s)
+                return method(request, timeout=self.timeout_s, metadata=self.metadata)
             except grpc.RpcError as e:
                 if e.code() in RETRYABLE and attempt < self.retries:
                     time.sleep(retry_delay_s(e) or 0.2)
@@ -261,7 +264,7 @@ class Client:
                 yield s.SampleBlock(frames=_frames(b)[0])
 
         try:
-            return self._spectrum.ExtractTonesStream(messages(), timeout=self.timeout_s)
+            return self._spectrum.ExtractTonesStream(messages(), timeout=self.timeout_s, metadata=self.metadata)
         except grpc.RpcError as e:
             raise typed(e) from None
 
@@ -323,7 +326,7 @@ class Client:
                 yield s.TrackRequest(frames=_frames(b)[0])
 
         try:
-            yield from self._spectrum.TrackTones(messages(), timeout=self.timeout_s)
+            yield from self._spectrum.TrackTones(messages(), timeout=self.timeout_s, metadata=self.metadata)
         except grpc.RpcError as e:
             raise typed(e) from None
 
