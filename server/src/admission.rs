@@ -457,6 +457,78 @@ pub struct Auth<S> {
     layer: AuthLayer,
 }
 
+/// Request ids: the caller's `x-request-id` (up to 64 visible ASCII characters) or a new one,
+/// recorded in the call's log span and returned in the response metadata, so a lab can match
+/// its DAQ log lines to the server's.
+#[derive(Debug, Clone, Default)]
+pub struct RequestIdLayer {
+    next: Arc<std::sync::atomic::AtomicU64>,
+}
+
+/// The metadata key of request ids.
+pub const REQUEST_ID: &str = "x-request-id";
+
+impl RequestIdLayer {
+    /// Ids generated from a per-process random start and a counter: unique within the process
+    /// and unlikely to repeat across restarts.
+    pub fn new() -> Self {
+        let seed = std::time::SystemTime::now()
+            .duration_since(std::time::UNIX_EPOCH)
+            .map_or(0, |d| d.as_nanos() as u64)
+            .wrapping_mul(0x9E37_79B9_7F4A_7C15)
+            ^ u64::from(std::process::id());
+        Self { next: Arc::new(std::sync::atomic::AtomicU64::new(seed)) }
+    }
+
+    fn id_for(&self, given: Option<&http::HeaderValue>) -> http::HeaderValue {
+        let ok = |v: &&http::HeaderValue| {
+            let b = v.as_bytes();
+            !b.is_empty() && b.len() <= 64 && b.iter().all(|c| c.is_ascii_graphic())
+        };
+        match given.filter(ok) {
+            Some(v) => v.clone(),
+            None => {
+                let n = self.next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+                // Mixed so consecutive ids do not look alike (splitmix64 finalizer).
+                let mut z = n.wrapping_add(0x9E37_79B9_7F4A_7C15);
+                z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+                z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+                z ^= z >> 31;
+                http::HeaderValue::from_str(&format!("{z:016x}"))
+                    .unwrap_or(http::HeaderValue::from_static("0"))
+            }
+        }
+    }
+}
+
+impl<S> tower::Layer<S> for RequestIdLayer {
+    type Service = RequestId<S>;
+
+    fn layer(&self, inner: S) -> RequestId<S> {
+        RequestId { inner, layer: self.clone() }
+    }
+}
+
+/// The service [`RequestIdLayer`] wraps around the routes.
+#[derive(Debug, Clone)]
+pub struct RequestId<S> {
+    inner: S,
+    layer: RequestIdLayer,
+}
+
+route_service!(RequestId, |self, req| {
+    let id = self.layer.id_for(req.headers().get(REQUEST_ID));
+    tracing::Span::current().record("request_id", id.to_str().unwrap_or(""));
+    let mut req = req;
+    req.headers_mut().insert(REQUEST_ID, id.clone());
+    let fut = self.inner.call(req);
+    Box::pin(async move {
+        let mut resp = fut.await?;
+        resp.headers_mut().insert(REQUEST_ID, id);
+        Ok(resp)
+    })
+});
+
 route_service!(Auth, |self, req| {
     let open = self.layer.tokens.is_empty() || req.uri().path().starts_with(HEALTH);
     if !open && !self.layer.accepts(req.headers().get(http::header::AUTHORIZATION)) {

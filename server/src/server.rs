@@ -1,6 +1,6 @@
 //! Builds the tonic server: jetloop services, health, reflection and the limits around them.
 
-use crate::admission::{AuthLayer, DeadlineLayer, InboundErrorsLayer, ShedLayer};
+use crate::admission::{AuthLayer, DeadlineLayer, InboundErrorsLayer, RequestIdLayer, ShedLayer};
 use crate::config::ServeOptions;
 use crate::service::budget::SampleBudget;
 use crate::service::{
@@ -105,7 +105,10 @@ pub async fn serve(
     // `trace_fn` below, which wraps this stack, so a refused or expired call is logged in the
     // span of its method.
     let stack = tower::ServiceBuilder::new()
-        // Authentication outermost: a call without a valid bearer token (when tokens are set)
+        // The request id first, so every answer (refusals included) carries it and every log
+        // line of the call names it: the caller's x-request-id or a new one.
+        .layer(RequestIdLayer::new())
+        // Then authentication: a call without a valid bearer token (when tokens are set)
         // is refused with UNAUTHENTICATED before it takes a permit or any work; health checks
         // pass so probes and load balancers need no token.
         .layer(AuthLayer::new(&tokens))
@@ -145,7 +148,9 @@ pub async fn serve(
     let budget = SampleBudget::new(limits.sample_budget_bytes);
     let serving = Server::builder()
         // A span per call, so logs carry the method path.
-        .trace_fn(|req| tracing::info_span!("grpc", path = %req.uri().path()))
+        .trace_fn(
+            |req| tracing::info_span!("grpc", path = %req.uri().path(), request_id = tracing::field::Empty),
+        )
         // Large flow-control windows: a DAQ block of a few MB then arrives in one round trip
         // instead of many 64 KB steps (the default), which dominated upload time.
         .initial_stream_window_size(Some(16 * 1024 * 1024))
