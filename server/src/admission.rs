@@ -458,8 +458,8 @@ pub struct Auth<S> {
 }
 
 /// Request ids: the caller's `x-request-id` (up to 64 visible ASCII characters) or a new one,
-/// recorded in the call's log span and returned in the response metadata, so a lab can match
-/// its DAQ log lines to the server's.
+/// returned in the response metadata and written in the call's DEBUG line ("answered", with
+/// the status and time), so a lab can match its DAQ log lines to the server's.
 #[derive(Debug, Clone, Default)]
 pub struct RequestIdLayer {
     next: Arc<std::sync::atomic::AtomicU64>,
@@ -518,12 +518,21 @@ pub struct RequestId<S> {
 
 route_service!(RequestId, |self, req| {
     let id = self.layer.id_for(req.headers().get(REQUEST_ID));
-    tracing::Span::current().record("request_id", id.to_str().unwrap_or(""));
     let mut req = req;
     req.headers_mut().insert(REQUEST_ID, id.clone());
     let fut = self.inner.call(req);
+    let started = std::time::Instant::now();
     Box::pin(async move {
         let mut resp = fut.await?;
+        // One line per call at DEBUG (RUST_LOG=jetloop_server=debug), in the call's span.
+        let status =
+            resp.headers().get("grpc-status").and_then(|v| v.to_str().ok()).unwrap_or("0 or in trailers");
+        tracing::debug!(
+            request_id = id.to_str().unwrap_or(""),
+            grpc_status = status,
+            elapsed_ms = started.elapsed().as_secs_f64() * 1e3,
+            "answered"
+        );
         resp.headers_mut().insert(REQUEST_ID, id);
         Ok(resp)
     })

@@ -105,8 +105,8 @@ pub async fn serve(
     // `trace_fn` below, which wraps this stack, so a refused or expired call is logged in the
     // span of its method.
     let stack = tower::ServiceBuilder::new()
-        // The request id first, so every answer (refusals included) carries it and every log
-        // line of the call names it: the caller's x-request-id or a new one.
+        // The request id first, so every answer (refusals included) carries it and the call's
+        // log line names it: the caller's x-request-id or a new one.
         .layer(RequestIdLayer::new())
         // Then authentication: a call without a valid bearer token (when tokens are set)
         // is refused with UNAUTHENTICATED before it takes a permit or any work; health checks

@@ -5,7 +5,7 @@ import time
 
 import grpc
 
-from conftest import start_server
+from conftest import _server_binary, start_server
 
 
 def test_logs_to_a_pipe_have_no_colour_codes():
@@ -20,3 +20,24 @@ def test_logs_to_a_pipe_have_no_colour_codes():
     _, err = proc.communicate(timeout=30)
     assert "INFO" in err, err
     assert "\x1b[" not in err, repr(err[:300])
+
+
+def test_request_ids_name_the_call_in_the_logs(pb):
+    import os
+
+    env = dict(os.environ, RUST_LOG="jetloop_server=debug")
+    proc = subprocess.Popen([str(_server_binary()), "--listen", "127.0.0.1:0"], stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True, env=env)
+    try:
+        address = proc.stdout.readline().strip().rsplit(" ", 1)[1]
+        with grpc.insecure_channel(address) as ch:
+            stub = pb.gas_grpc.GasDynamicsServiceStub(ch)
+            _, call = stub.NormalShock.with_call(pb.gas.NormalShockRequest(upstream_mach_number=2.0),
+                                                 metadata=[("x-request-id", "rig-3-run-17-point-2")], timeout=10)
+            assert ("x-request-id", "rig-3-run-17-point-2") in call.initial_metadata()
+        time.sleep(0.2)
+    finally:
+        proc.terminate()
+    _, err = proc.communicate(timeout=30)
+    line = [l for l in err.splitlines() if "answered" in l]
+    assert line and "request_id=\"rig-3-run-17-point-2\"" in line[0], err[-2000:]
