@@ -44,6 +44,17 @@ struct Cli {
     /// line); JETLOOP_TOKEN gives the token itself instead.
     #[arg(long, global = true, env = "JETLOOP_TOKEN_FILE")]
     token_file: Option<std::path::PathBuf>,
+    /// CA certificate (PEM) the server's TLS certificate must chain to; connects with TLS
+    /// (the --server address may then be written https://...).
+    #[arg(long, global = true, env = "JETLOOP_CA_FILE")]
+    ca_file: Option<std::path::PathBuf>,
+    /// Client certificate (PEM) for a server that requires one (mutual TLS); needs --ca-file
+    /// and --client-key.
+    #[arg(long, global = true, env = "JETLOOP_CLIENT_CERT", requires_all = ["ca_file", "client_key"])]
+    client_cert: Option<std::path::PathBuf>,
+    /// Private key (PEM) of --client-cert.
+    #[arg(long, global = true, env = "JETLOOP_CLIENT_KEY", requires = "client_cert")]
+    client_key: Option<std::path::PathBuf>,
     #[command(subcommand)]
     command: Command,
 }
@@ -174,6 +185,7 @@ pub(crate) struct Ctx {
     server: String,
     timeout: Option<std::time::Duration>,
     bearer: Bearer,
+    tls: Option<tonic::transport::ClientTlsConfig>,
 }
 
 /// Adds `authorization: Bearer <token>` to every call when a token was given.
@@ -211,6 +223,27 @@ fn bearer(token_file: Option<&std::path::Path>) -> Result<Bearer, Failure> {
     }
 }
 
+/// The TLS settings of `--ca-file` and, for mutual TLS, `--client-cert` / `--client-key`.
+fn client_tls(
+    ca: Option<&std::path::Path>,
+    cert: Option<&std::path::Path>,
+    key: Option<&std::path::Path>,
+) -> Result<Option<tonic::transport::ClientTlsConfig>, Failure> {
+    let Some(ca) = ca else { return Ok(None) };
+    let read = |flag: &str, p: &std::path::Path| {
+        std::fs::read(p).map_err(|e| Failure::Usage(format!("cannot read {flag} {}: {e}", p.display())))
+    };
+    let mut tls = tonic::transport::ClientTlsConfig::new()
+        .ca_certificate(tonic::transport::Certificate::from_pem(read("--ca-file", ca)?));
+    if let (Some(cert), Some(key)) = (cert, key) {
+        tls = tls.identity(tonic::transport::Identity::from_pem(
+            read("--client-cert", cert)?,
+            read("--client-key", key)?,
+        ));
+    }
+    Ok(Some(tls))
+}
+
 impl Ctx {
     /// A connection to the server.
     ///
@@ -219,8 +252,24 @@ impl Ctx {
     /// reached.
     pub async fn channel(&self) -> Result<Conn, Failure> {
         let url = &self.server;
+        let tls_url;
+        let url = match (&self.tls, url.strip_prefix("http://")) {
+            (Some(_), Some(rest)) => {
+                tls_url = format!("https://{rest}");
+                &tls_url
+            }
+            (None, _) if url.starts_with("https://") => {
+                return Err(Failure::Usage(format!(
+                    "--server {url}: give --ca-file (the CA the server's certificate chains to) for TLS"
+                )))
+            }
+            _ => url,
+        };
         let mut ep = tonic::transport::Endpoint::from_shared(url.clone())
             .map_err(|e| Failure::Usage(format!("--server {url}: {e}")))?;
+        if let Some(tls) = &self.tls {
+            ep = ep.tls_config(tls.clone()).map_err(|e| Failure::Usage(format!("TLS settings: {e}")))?;
+        }
         if let Some(t) = self.timeout {
             // Connecting gets at least a second whatever the call's limit (a loopback connect
             // takes far less, a remote one may take more).
@@ -249,7 +298,8 @@ async fn run(cli: Cli) -> Result<output::Report, Failure> {
         Some(t) if t > 0.0 && t <= 1e6 => Some(std::time::Duration::from_secs_f64(t)),
         Some(t) => return Err(Failure::Usage(format!("--timeout {t}: give seconds in (0, 1e6]"))),
     };
-    let ctx = Ctx { server: cli.server, timeout, bearer: bearer(cli.token_file.as_deref())? };
+    let tls = client_tls(cli.ca_file.as_deref(), cli.client_cert.as_deref(), cli.client_key.as_deref())?;
+    let ctx = Ctx { server: cli.server, timeout, bearer: bearer(cli.token_file.as_deref())?, tls };
     run_command(cli.command, &ctx).await
 }
 

@@ -105,8 +105,21 @@ pub struct Config {
     /// UNAUTHENTICATED.
     #[arg(long, env = "JETLOOP_TOKEN_FILE")]
     pub token_file: Option<std::path::PathBuf>,
-    /// Allow listening on a non-loopback address without tokens (only on a network that only
-    /// your lab reaches: anyone who reaches the port can call every RPC).
+    /// Certificate chain (PEM) the server presents: with `--tls-key`, every connection is TLS
+    /// (clients then connect to `https://`).
+    #[arg(long, env = "JETLOOP_TLS_CERT", requires = "tls_key")]
+    pub tls_cert: Option<std::path::PathBuf>,
+    /// Private key (PEM) of `--tls-cert`.
+    #[arg(long, env = "JETLOOP_TLS_KEY", requires = "tls_cert")]
+    pub tls_key: Option<std::path::PathBuf>,
+    /// CA certificates (PEM) that client certificates must chain to: with it, a client without
+    /// a valid certificate cannot connect at all (mutual TLS; health checks too). Needs
+    /// `--tls-cert`.
+    #[arg(long, env = "JETLOOP_TLS_CLIENT_CA", requires = "tls_cert")]
+    pub tls_client_ca: Option<std::path::PathBuf>,
+    /// Allow listening on a non-loopback address with neither TLS nor tokens (only on a
+    /// network that only your lab reaches: anyone who reaches the port can call every RPC and
+    /// read every answer).
     #[arg(long, env = "JETLOOP_ALLOW_INSECURE_NETWORK")]
     pub allow_insecure_network: bool,
     /// A TOML file of settings, keys named as the flags (`max_request_bytes = 1048576`,
@@ -243,6 +256,64 @@ pub fn load(args: Vec<std::ffi::OsString>) -> Result<(Config, Sources), clap::Er
     Ok((config, sources))
 }
 
+/// PEM files of the server's TLS identity and, for mutual TLS, the CA of client certificates.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct TlsFiles {
+    /// Certificate chain, PEM.
+    pub cert_pem: Vec<u8>,
+    /// Private key, PEM.
+    pub key_pem: Vec<u8>,
+    /// CA certificates client certificates must chain to, PEM; `None`: no client certificates.
+    pub client_ca_pem: Option<Vec<u8>>,
+}
+
+impl Config {
+    /// The TLS files named by `--tls-cert`, `--tls-key` and `--tls-client-ca`, read; `None`
+    /// without `--tls-cert`.
+    ///
+    /// # Errors
+    /// A sentence naming the file that cannot be read or holds no PEM block.
+    pub fn read_tls(&self) -> Result<Option<TlsFiles>, String> {
+        let (Some(cert), Some(key)) = (&self.tls_cert, &self.tls_key) else {
+            return Ok(None);
+        };
+        let read = |flag: &str, path: &std::path::Path| -> Result<Vec<u8>, String> {
+            let bytes =
+                std::fs::read(path).map_err(|e| format!("cannot read {flag} {}: {e}", path.display()))?;
+            if !bytes.windows(11).any(|w| w == b"-----BEGIN ") {
+                return Err(format!("{flag} {}: no PEM block (-----BEGIN ...) in the file", path.display()));
+            }
+            Ok(bytes)
+        };
+        Ok(Some(TlsFiles {
+            cert_pem: read("--tls-cert", cert)?,
+            key_pem: read("--tls-key", key)?,
+            client_ca_pem: self.tls_client_ca.as_deref().map(|p| read("--tls-client-ca", p)).transpose()?,
+        }))
+    }
+
+    /// Whether the listen address may be used with the protection configured: a loopback
+    /// address always; any other only with TLS or tokens, or `--allow-insecure-network`.
+    ///
+    /// # Errors
+    /// The message to log when the address is refused.
+    pub fn check_exposure(&self, have_tokens: bool) -> Result<(), String> {
+        if self.listen.ip().is_loopback()
+            || have_tokens
+            || self.tls_cert.is_some()
+            || self.allow_insecure_network
+        {
+            return Ok(());
+        }
+        Err(format!(
+            "refusing to listen on {} (not a loopback address) with neither TLS nor tokens: anyone who reaches \
+             the port could call every RPC. Give --tls-cert/--tls-key (and --tls-client-ca for client \
+             certificates) or --token-file, or --allow-insecure-network on a network only your lab reaches",
+            self.listen
+        ))
+    }
+}
+
 /// Shortest accepted bearer token, characters.
 pub const MIN_TOKEN_CHARS: usize = 16;
 
@@ -295,6 +366,8 @@ pub struct ServeOptions {
     pub connections: ConnectionLimits,
     /// Bearer tokens a call must carry one of (health checks exempt); empty: no check.
     pub tokens: Vec<String>,
+    /// TLS identity (and client CA for mutual TLS); `None`: plaintext HTTP/2.
+    pub tls: Option<TlsFiles>,
 }
 
 impl Default for ServeOptions {
@@ -309,6 +382,7 @@ impl Default for ServeOptions {
                 handshake_timeout: Duration::from_secs(10),
             },
             tokens: Vec::new(),
+            tls: None,
         }
     }
 }
@@ -329,6 +403,7 @@ impl Config {
                 handshake_timeout: Duration::from_secs_f64(self.handshake_timeout_s),
             },
             tokens: Vec::new(),
+            tls: None,
         }
     }
 

@@ -1,7 +1,7 @@
 //! Builds the tonic server: jetloop services, health, reflection and the limits around them.
 
 use crate::admission::{AuthLayer, DeadlineLayer, InboundErrorsLayer, RequestIdLayer, ShedLayer};
-use crate::config::ServeOptions;
+use crate::config::{ServeOptions, TlsFiles};
 use crate::service::budget::SampleBudget;
 use crate::service::{
     gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells, spectrum::Spectrum, staging::Staging,
@@ -59,6 +59,32 @@ pub enum ServeError {
     Transport(#[from] tonic::transport::Error),
 }
 
+/// The rustls server configuration of `files`: the server's identity, and client
+/// certificates required against the CA when one is given. A client that opens a connection
+/// and never finishes the handshake is cut off after `handshake_timeout`.
+pub fn tls_config(
+    files: &TlsFiles,
+    handshake_timeout: std::time::Duration,
+) -> tonic::transport::ServerTlsConfig {
+    let mut config = tonic::transport::ServerTlsConfig::new()
+        .identity(tonic::transport::Identity::from_pem(&files.cert_pem, &files.key_pem))
+        .timeout(handshake_timeout);
+    if let Some(ca) = &files.client_ca_pem {
+        config = config.client_ca_root(tonic::transport::Certificate::from_pem(ca));
+    }
+    config
+}
+
+/// Whether `files` make a usable TLS configuration (certificate and key parse and belong
+/// together), checked before the port is bound.
+///
+/// # Errors
+/// [`ServeError::Transport`] with rustls' reason.
+pub fn check_tls(files: &TlsFiles) -> Result<(), ServeError> {
+    Server::builder().tls_config(tls_config(files, std::time::Duration::from_secs(10)))?;
+    Ok(())
+}
+
 /// Serves every jetloop service on an already bound listener until `shutdown` resolves, then
 /// drains:
 /// 1. health answers NOT_SERVING for `drain_notice` while calls are still accepted, so load
@@ -75,7 +101,7 @@ pub async fn serve(
     options: ServeOptions,
     shutdown: impl Future<Output = ()> + Send,
 ) -> Result<(), ServeError> {
-    let ServeOptions { limits, reflection, drain_notice, drain, connections, tokens } = options;
+    let ServeOptions { limits, reflection, drain_notice, drain, connections, tokens, tls } = options;
     let (health_reporter, health) = tonic_health::server::health_reporter();
     // Every jetloop service is SERVING as soon as the listener accepts (they hold no state).
     for name in JETLOOP_SERVICES {
@@ -146,7 +172,11 @@ pub async fn serve(
 
     let max = limits.max_request_bytes;
     let budget = SampleBudget::new(limits.sample_budget_bytes);
-    let serving = Server::builder()
+    let mut builder = Server::builder();
+    if let Some(files) = &tls {
+        builder = builder.tls_config(tls_config(files, connections.handshake_timeout))?;
+    }
+    let serving = builder
         // A span per call, so logs carry the method path.
         .trace_fn(
             |req| tracing::info_span!("grpc", path = %req.uri().path(), request_id = tracing::field::Empty),

@@ -36,14 +36,31 @@ async fn main() -> ExitCode {
             }
         }
     }
-    if !config.listen.ip().is_loopback() && options.tokens.is_empty() && !config.allow_insecure_network {
-        tracing::error!(
-            "refusing to listen on {} (not a loopback address) without --token-file: anyone who reaches the \
-             port could call every RPC. Give --token-file, or --allow-insecure-network on a network only your \
-             lab reaches",
-            config.listen
-        );
+    match config.read_tls() {
+        Ok(tls) => {
+            if let Some(Err(e)) = tls.as_ref().map(server::check_tls) {
+                tracing::error!("the TLS certificate or key cannot be used: {e}");
+                return ExitCode::from(2);
+            }
+            options.tls = tls;
+        }
+        Err(e) => {
+            tracing::error!("{e}");
+            return ExitCode::from(2);
+        }
+    }
+    if let Err(e) = config.check_exposure(!options.tokens.is_empty()) {
+        tracing::error!("{e}");
         return ExitCode::from(2);
+    }
+    if !config.listen.ip().is_loopback()
+        && options.tokens.is_empty()
+        && options.tls.as_ref().is_some_and(|t| t.client_ca_pem.is_none())
+    {
+        tracing::warn!(
+            "TLS without client certificates or tokens: answers are encrypted, but anyone who reaches the port \
+             can call every RPC"
+        );
     }
     let listener = match tokio::net::TcpListener::bind(config.listen).await {
         Ok(l) => l,

@@ -112,8 +112,17 @@ class Client:
     """
 
     def __init__(self, address: str = "127.0.0.1:50051", timeout_s: float = 60.0, retries: int = 3,
-                 channel: Optional[grpc.Channel] = None, token: Optional[str] = None):
+                 channel: Optional[grpc.Channel] = None, token: Optional[str] = None,
+                 ca_pem: Optional[bytes] = None, client_cert_pem: Optional[bytes] = None,
+                 client_key_pem: Optional[bytes] = None):
+        """`ca_pem` connects with TLS trusting that CA (the server's --tls-cert chains to it);
+        `client_cert_pem` and `client_key_pem` add a client certificate for a server with
+        --tls-client-ca; `token` is sent as `authorization: Bearer` on every call."""
         opts = [("grpc.max_send_message_length", 256 << 20), ("grpc.max_receive_message_length", 256 << 20)]
+        if channel is None and ca_pem is not None:
+            creds = grpc.ssl_channel_credentials(root_certificates=ca_pem, private_key=client_key_pem,
+                                                 certificate_chain=client_cert_pem)
+            channel = grpc.secure_channel(address, creds, options=opts)
         self.channel = channel or grpc.insecure_channel(address, options=opts)
         self.timeout_s = timeout_s
         self.retries = retries
