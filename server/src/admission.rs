@@ -51,6 +51,7 @@ pub struct ShedLayer {
     permits: Arc<Semaphore>,
     limit: usize,
     refusals: Arc<Refusals>,
+    metrics: Option<Arc<crate::metrics::Metrics>>,
 }
 
 /// Refused calls, logged as one WARN summary per interval instead of a line each (a flood of
@@ -90,7 +91,13 @@ impl ShedLayer {
     pub fn new(max_in_flight: usize) -> Self {
         let limit = max_in_flight.clamp(1, Semaphore::MAX_PERMITS);
         let refusals = Refusals { since_last: 0.into(), last_log: std::sync::Mutex::new(None) };
-        Self { permits: Arc::new(Semaphore::new(limit)), limit, refusals: Arc::new(refusals) }
+        Self { permits: Arc::new(Semaphore::new(limit)), limit, refusals: Arc::new(refusals), metrics: None }
+    }
+
+    /// Refusals also counted in `metrics` (the `jetloop_shed_total` counter).
+    pub fn with_metrics(mut self, metrics: Option<Arc<crate::metrics::Metrics>>) -> Self {
+        self.metrics = metrics;
+        self
     }
 }
 
@@ -563,6 +570,9 @@ route_service!(Shed, |self, req| {
             }
             Err(_) => {
                 self.layer.refusals.note(self.layer.limit);
+                if let Some(m) = &self.layer.metrics {
+                    m.note_shed();
+                }
                 return Box::pin(std::future::ready(Ok(refused(self.layer.limit).into_http())));
             }
         }

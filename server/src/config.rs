@@ -122,6 +122,14 @@ pub struct Config {
     /// read every answer).
     #[arg(long, env = "JETLOOP_ALLOW_INSECURE_NETWORK")]
     pub allow_insecure_network: bool,
+    /// Serve Prometheus metrics at http://ADDR/metrics (a separate plain-HTTP listener; off
+    /// when unset). Metrics name methods and counts, never request contents.
+    #[arg(long, env = "JETLOOP_METRICS_LISTEN")]
+    pub metrics_listen: Option<SocketAddr>,
+    /// Log line format on stderr: `text` (for people) or `json` (one object per line, for log
+    /// collectors). The level filter is RUST_LOG (default `info`).
+    #[arg(long, env = "JETLOOP_LOG_FORMAT", default_value = "text", value_parser = ["text", "json"])]
+    pub log_format: String,
     /// A TOML file of settings, keys named as the flags (`max_request_bytes = 1048576`,
     /// `allow_insecure_network = true`). Precedence: flags, then JETLOOP_* environment
     /// variables, then this file, then the defaults.

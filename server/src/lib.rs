@@ -11,6 +11,7 @@ pub mod cancel;
 pub mod config;
 pub mod connections;
 pub mod dsp;
+pub mod metrics;
 pub mod physics;
 pub mod server;
 pub mod service;

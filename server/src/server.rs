@@ -2,6 +2,7 @@
 
 use crate::admission::{AuthLayer, DeadlineLayer, InboundErrorsLayer, RequestIdLayer, ShedLayer};
 use crate::config::{ServeOptions, TlsFiles};
+use crate::metrics::{Metrics, MetricsLayer};
 use crate::service::budget::SampleBudget;
 use crate::service::{
     gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells, spectrum::Spectrum, staging::Staging,
@@ -13,6 +14,7 @@ use jetloop_proto::pb::{
     staging_service_server::StagingServiceServer, tone_service_server::ToneServiceServer,
 };
 use std::future::Future;
+use std::sync::Arc;
 use tokio::net::TcpListener;
 use tonic::server::NamedService;
 use tonic::transport::Server;
@@ -101,6 +103,20 @@ pub async fn serve(
     options: ServeOptions,
     shutdown: impl Future<Output = ()> + Send,
 ) -> Result<(), ServeError> {
+    serve_observed(listener, options, shutdown, None).await
+}
+
+/// As [`serve`], with Prometheus metrics served on `metrics_listener` (`GET /metrics`) while
+/// the server runs; `None`: no metrics are kept.
+///
+/// # Errors
+/// [`ServeError`] when reflection cannot be built or the transport fails.
+pub async fn serve_observed(
+    listener: TcpListener,
+    options: ServeOptions,
+    shutdown: impl Future<Output = ()> + Send,
+    metrics_listener: Option<TcpListener>,
+) -> Result<(), ServeError> {
     let ServeOptions { limits, reflection, drain_notice, drain, connections, tokens, tls } = options;
     let (health_reporter, health) = tonic_health::server::health_reporter();
     // Every jetloop service is SERVING as soon as the listener accepts (they hold no state).
@@ -126,6 +142,15 @@ pub async fn serve(
 
     // The gauge of running computations, handed to every call by the deadline layer.
     let computing = crate::service::Computing::default();
+    let budget = SampleBudget::new(limits.sample_budget_bytes);
+    // Metrics only when they are served; the endpoint task ends with this function.
+    let metrics = metrics_listener
+        .as_ref()
+        .map(|_| Arc::new(Metrics::new(Some(budget.clone()), Some(computing.clone()))));
+    let _endpoint = match (metrics_listener, &metrics) {
+        (Some(l), Some(m)) => Some(AbortOnDrop(tokio::spawn(crate::metrics::serve_metrics(l, m.clone())))),
+        _ => None,
+    };
 
     // One stack around every route, outermost first. The per-call trace span is tonic's
     // `trace_fn` below, which wraps this stack, so a refused or expired call is logged in the
@@ -134,6 +159,10 @@ pub async fn serve(
         // The request id first, so every answer (refusals included) carries it and the call's
         // log line names it: the caller's x-request-id or a new one.
         .layer(RequestIdLayer::new())
+        // Metrics next, outside authentication and admission, so refused calls are counted
+        // with their codes and every call's time includes the refusal path; a no-op when
+        // metrics are off.
+        .layer(MetricsLayer::new(metrics.clone()))
         // Then authentication: a call without a valid bearer token (when tokens are set)
         // is refused with UNAUTHENTICATED before it takes a permit or any work; health checks
         // pass so probes and load balancers need no token.
@@ -142,7 +171,7 @@ pub async fn serve(
         // a RetryInfo hint before it costs anything; health checks pass untouched (a busy pod
         // must not be restarted). The permit is held until the inner future, deadline
         // included, has finished.
-        .layer(ShedLayer::new(limits.max_concurrent_requests))
+        .layer(ShedLayer::new(limits.max_concurrent_requests).with_metrics(metrics.clone()))
         // Then the deadline, only for admitted calls: DEADLINE_EXCEEDED at the caller's
         // grpc-timeout (answered just before it) or the server's limit, whichever is sooner
         // (live tracking streams have their own, longer limit).
@@ -171,7 +200,6 @@ pub async fn serve(
     };
 
     let max = limits.max_request_bytes;
-    let budget = SampleBudget::new(limits.sample_budget_bytes);
     let mut builder = Server::builder();
     if let Some(files) = &tls {
         builder = builder.tls_config(tls_config(files, connections.handshake_timeout))?;
@@ -197,7 +225,7 @@ pub async fn serve(
         .add_service(limited!(InfoServiceServer::new(Info::new(limits, budget.clone(), computing)), max))
         .add_service(limited!(ShockCellServiceServer::new(ShockCells), max))
         .add_service(limited!(ToneServiceServer::new(Tones), max))
-        .add_service(limited!(SpectrumServiceServer::new(Spectrum::new(budget)), max))
+        .add_service(limited!(SpectrumServiceServer::new(Spectrum::new(budget, metrics)), max))
         .add_service(limited!(StagingServiceServer::new(Staging), max))
         // Connections through the capped accept loop (handshake timeout, back-off on accept
         // errors, TCP_NODELAY): see `connections`.
@@ -226,4 +254,13 @@ pub async fn serve(
         ),
     }
     Ok(())
+}
+
+/// Aborts a spawned task when dropped (the metrics endpoint ends with the server).
+struct AbortOnDrop(tokio::task::JoinHandle<()>);
+
+impl Drop for AbortOnDrop {
+    fn drop(&mut self) {
+        self.0.abort();
+    }
 }

@@ -43,12 +43,25 @@ impl TestServer {
     /// # Panics
     /// When the loopback socket cannot be bound.
     pub async fn start_with_options(options: ServeOptions) -> Self {
+        Self::start_observed(options, None).await
+    }
+
+    /// As [`TestServer::start_with_options`], with metrics served on `metrics` when given.
+    ///
+    /// # Panics
+    /// When the loopback socket cannot be bound.
+    pub async fn start_observed(options: ServeOptions, metrics: Option<tokio::net::TcpListener>) -> Self {
         let listener = tokio::net::TcpListener::bind("127.0.0.1:0").await.expect("bind loopback");
         let addr = listener.local_addr().expect("local addr");
         let (tx, rx) = oneshot::channel::<()>();
-        let handle = tokio::spawn(jetloop_server::server::serve(listener, options, async {
-            let _ = rx.await;
-        }));
+        let handle = tokio::spawn(jetloop_server::server::serve_observed(
+            listener,
+            options,
+            async {
+                let _ = rx.await;
+            },
+            metrics,
+        ));
         Self { addr, shutdown: Some(tx), handle: Some(handle) }
     }
 

@@ -17,15 +17,17 @@ async fn main() -> ExitCode {
         }
         return ExitCode::SUCCESS;
     }
-    tracing_subscriber::fmt()
-        .with_env_filter(
-            tracing_subscriber::EnvFilter::try_from_default_env()
-                .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info")),
-        )
-        .with_writer(std::io::stderr)
+    let filter = tracing_subscriber::EnvFilter::try_from_default_env()
+        .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info"));
+    let logs = tracing_subscriber::fmt().with_env_filter(filter).with_writer(std::io::stderr);
+    if config.log_format == "json" {
+        // One JSON object per line with the span fields (method path, request id) flattened
+        // beside the event's own.
+        logs.json().with_current_span(true).with_span_list(false).init();
+    } else {
         // Colour codes only on a terminal, not in files or the journal.
-        .with_ansi(std::io::stderr().is_terminal())
-        .init();
+        logs.with_ansi(std::io::stderr().is_terminal()).init();
+    }
     let mut options = config.serve_options();
     if let Some(path) = &config.token_file {
         match jetloop_server::config::read_tokens(path) {
@@ -76,12 +78,26 @@ async fn main() -> ExitCode {
             return ExitCode::from(3);
         }
     };
+    let metrics = match config.metrics_listen {
+        None => None,
+        Some(at) => match tokio::net::TcpListener::bind(at).await {
+            Ok(l) => Some(l),
+            Err(e) => {
+                tracing::error!("cannot listen for metrics on {at}: {e}");
+                return ExitCode::from(3);
+            }
+        },
+    };
     // The first line on stdout is the bound address, so scripts that start the server on
-    // port 0 can find it.
+    // port 0 can find it; the metrics address follows when metrics are on.
     println!("jetloop-server listening on {addr}");
+    if let Some(m) = metrics.as_ref().and_then(|l| l.local_addr().ok()) {
+        println!("metrics on http://{m}/metrics");
+        tracing::info!(metrics = %m, "serving metrics");
+    }
     let _ = std::io::stdout().flush();
     tracing::info!(%addr, version = env!("CARGO_PKG_VERSION"), "serving");
-    match server::serve(listener, options, shutdown_signal()).await {
+    match server::serve_observed(listener, options, shutdown_signal(), metrics).await {
         Ok(()) => {
             tracing::info!("stopped");
             ExitCode::SUCCESS

@@ -3,11 +3,13 @@
 use super::budget::{Held, SampleBudget};
 use crate::api::error::PreconditionViolation;
 use crate::api::spectrum::{
-    bands_response, cross_response, held_bytes, ramp_response, tones_response, BandQuery, CrossQuery,
-    RampQuery, ToneQuery, ToneStream, TrackSession,
+    bands_response, cross_response, held_bytes, ramp_response, sample_width, tones_response, values_in,
+    BandQuery, CrossQuery, RampQuery, ToneQuery, ToneStream, TrackSession,
 };
 use crate::api::ApiError;
+use crate::metrics::Metrics;
 use jetloop_proto::pb::{self, spectrum_service_server::SpectrumService};
+use std::sync::Arc;
 use tonic::{Request, Response, Status, Streaming};
 
 /// Handlers for spectral analysis. Decoding and the FFT work run on the blocking pool (the
@@ -15,12 +17,21 @@ use tonic::{Request, Response, Status, Streaming};
 #[derive(Debug, Clone)]
 pub struct Spectrum {
     budget: SampleBudget,
+    metrics: Option<Arc<Metrics>>,
 }
 
 impl Spectrum {
-    /// Handlers sharing one server-wide budget of sample bytes.
-    pub fn new(budget: SampleBudget) -> Self {
-        Self { budget }
+    /// Handlers sharing one server-wide budget of sample bytes, counting the samples they
+    /// receive in `metrics` when given.
+    pub fn new(budget: SampleBudget, metrics: Option<Arc<Metrics>>) -> Self {
+        Self { budget, metrics }
+    }
+
+    /// Counts `bytes` of sample data of `width` bytes per value.
+    fn count(&self, bytes: usize, width: usize) {
+        if let Some(m) = &self.metrics {
+            m.note_samples(values_in(bytes, width), bytes as u64);
+        }
     }
 }
 
@@ -44,6 +55,7 @@ impl Spectrum {
         let req = request.into_inner();
         let mut held = Held::default();
         self.budget.take(&mut held, held_bytes(samples(&req)), "samples")?;
+        self.count(held_bytes(samples(&req)), sample_width(samples(&req)));
         let r = super::blocking(what, work, move |c| f(req, c)).await?;
         drop(held);
         Ok(Response::new(r))
@@ -77,6 +89,8 @@ impl SpectrumService for Spectrum {
         let first_bytes =
             first.frames.len() + held_bytes(first.request.as_ref().and_then(|r| r.samples.as_ref()));
         self.budget.take(&mut held, first_bytes, "request.samples")?;
+        let width = sample_width(first.request.as_ref().and_then(|r| r.samples.as_ref()));
+        self.count(first_bytes, width);
         // The analysis runs on one blocking thread (fanning segments out to rayon) and takes
         // blocks from this loop as they arrive; the reactor only moves bytes. The feed ends with
         // `None`; if it closes without one (the caller went away, or the deadline dropped this
@@ -122,6 +136,7 @@ impl SpectrumService for Spectrum {
                         received = Err(Status::from(e));
                         break;
                     }
+                    self.count(block.frames.len(), width);
                     if tx.send(Some(block)).is_err() {
                         // The analysis stopped on an error; it is reported below.
                         break;
@@ -161,6 +176,16 @@ impl SpectrumService for Spectrum {
                 description: "config is required: the tracking stream ended before its first message".into(),
             }]))
         })?;
+        let width = match &first.item {
+            Some(pb::track_request::Item::Config(c)) => {
+                sample_width(c.analysis.as_ref().and_then(|a| a.samples.as_ref()))
+            }
+            _ => 0,
+        };
+        if let Some(pb::track_request::Item::Config(c)) = &first.item {
+            self.count(held_bytes(c.analysis.as_ref().and_then(|a| a.samples.as_ref())), width);
+        }
+        let metrics = self.metrics.clone();
         let (mut session, first_updates) = TrackSession::start(first)?;
         // The session's analysis windows count against the server-wide sample budget for as
         // long as the stream lives (freed when the task below ends, whatever ends it).
@@ -197,7 +222,12 @@ impl SpectrumService for Spectrum {
                     }
                 };
                 let msg = match next {
-                    Ok(Some(m)) => m,
+                    Ok(Some(m)) => {
+                        if let (Some(mt), Some(pb::track_request::Item::Frames(f))) = (&metrics, &m.item) {
+                            mt.note_samples(values_in(f.len(), width), f.len() as u64);
+                        }
+                        m
+                    }
                     Ok(None) => return,
                     Err(e) => {
                         let _ = tx.send(Err(e)).await;

@@ -45,7 +45,7 @@ use corrections::level_corrections;
 pub use cross::{cross_response, CrossQuery};
 pub use ramp::{ramp_response, RampQuery};
 use samples::sample_set_for;
-pub use samples::{held_bytes, sample_set, SampleSet};
+pub use samples::{held_bytes, sample_set, sample_width, values_in, SampleSet};
 pub use stream::ToneStream;
 use tones::{analysis, caution, tone_query, tones_answer, SPECTRUM_MODELS};
 pub use tones::{tones_response, ToneQuery};

@@ -72,6 +72,25 @@ pub fn held_bytes(s: Option<&pb::Samples>) -> usize {
     }
 }
 
+/// Bytes per sample value of `s`: 8 for values, the raw format's width, 0 when unknown.
+pub fn sample_width(s: Option<&pb::Samples>) -> usize {
+    match s.and_then(|s| s.data.as_ref()) {
+        Some(pb::samples::Data::Values(_)) => 8,
+        Some(pb::samples::Data::Raw(r)) => match pb::SampleFormat::try_from(r.format) {
+            Ok(pb::SampleFormat::F32Le | pb::SampleFormat::I32Le) => 4,
+            Ok(pb::SampleFormat::F64Le) => 8,
+            Ok(pb::SampleFormat::I16Le) => 2,
+            Ok(pb::SampleFormat::Unspecified) | Err(_) => 0,
+        },
+        None => 0,
+    }
+}
+
+/// Sample values in `bytes` bytes of width `width` (0 when the width is unknown).
+pub fn values_in(bytes: usize, width: usize) -> u64 {
+    bytes.checked_div(width).unwrap_or(0) as u64
+}
+
 /// As [`sample_set`]; for the first message of a block stream (`stream`), raw interleaved
 /// bytes are required and an empty first block is allowed.
 pub(super) fn sample_set_for(
