@@ -1,6 +1,8 @@
 //! Helpers for end-to-end tests: a real jetloop server on a loopback socket.
 #![forbid(unsafe_code)]
 
+pub mod hostile;
+
 use jetloop_server::config::{Limits, ServeOptions};
 use std::net::SocketAddr;
 use std::time::Duration;

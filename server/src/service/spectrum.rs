@@ -230,6 +230,11 @@ impl SpectrumService for Spectrum {
                     }
                     Ok(None) => return,
                     Err(e) => {
+                        // The answer's headers are out, so the inbound-errors layer cannot
+                        // correct this one: a later message that does not decode is the
+                        // caller's error (INVALID_ARGUMENT), one over the size limit
+                        // RESOURCE_EXHAUSTED, as for the first.
+                        let e = crate::admission::inbound_status(&e).unwrap_or(e);
                         let _ = tx.send(Err(e)).await;
                         return;
                     }

@@ -1,0 +1,580 @@
+//! Hostile input for every RPC: one valid seed request per method, mutations at the protobuf
+//! level (bit flips, truncation, inserted and replaced bytes, huge length-delimited lengths,
+//! wrong wire types, extreme numbers, repeated messages, random bytes) and at the gRPC framing
+//! level (huge or wrong length prefixes, a compressed flag without an encoding, cut headers,
+//! trailing bytes), and a raw HTTP/2 sender that reports the gRPC status of each answer.
+//!
+//! Used by the in-process fuzz harness (`fuzz-requests`), its short CI run, and the socket test
+//! of 100,000 mutated requests.
+
+use crate::fixtures;
+use bytes::Bytes;
+use jetloop_proto::pb;
+use prost::Message;
+
+/// A small deterministic generator (splitmix64): the same seed gives the same mutations, so
+/// a failure can be replayed from the seed and iteration printed with it.
+#[derive(Debug, Clone)]
+pub struct Rng(u64);
+
+impl Rng {
+    /// A generator from `seed`.
+    pub fn new(seed: u64) -> Self {
+        Self(seed)
+    }
+
+    /// The next 64 random bits.
+    pub fn next_u64(&mut self) -> u64 {
+        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        let mut z = self.0;
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        z ^ (z >> 31)
+    }
+
+    /// Uniform in `0..n` (`n` > 0).
+    pub fn below(&mut self, n: usize) -> usize {
+        (self.next_u64() % n.max(1) as u64) as usize
+    }
+
+    /// `n` random bytes.
+    pub fn bytes(&mut self, n: usize) -> Vec<u8> {
+        (0..n).map(|_| self.next_u64() as u8).collect()
+    }
+}
+
+/// A method and the messages of one valid call (one for unary methods, several for streams).
+#[derive(Debug, Clone)]
+pub struct Seed {
+    /// `/package.Service/Method`.
+    pub path: &'static str,
+    /// Encoded request messages, in order.
+    pub messages: Vec<Vec<u8>>,
+    /// Relative share of the mutated calls this method gets (cheap methods more).
+    pub weight: usize,
+}
+
+fn enc(m: &impl Message) -> Vec<u8> {
+    m.encode_to_vec()
+}
+
+fn tone_values(n: usize, fs: f64, f: f64) -> Vec<f64> {
+    (0..n)
+        .map(|i| {
+            2.0 * (2.0 * std::f64::consts::PI * f * i as f64 / fs).sin() + 0.01 * ((i * 7919) % 13) as f64
+        })
+        .collect()
+}
+
+fn welch(segment: u32) -> Option<pb::WelchOptions> {
+    Some(pb::WelchOptions {
+        segment: Some(pb::welch_options::Segment::SegmentLength(segment)),
+        ..Default::default()
+    })
+}
+
+fn raw_f32(channels: u32, fs: f64, data: Vec<u8>) -> Option<pb::Samples> {
+    Some(pb::Samples {
+        sample_rate_hz: fs,
+        channel_count: channels,
+        data: Some(pb::samples::Data::Raw(pb::RawSamples {
+            data: data.into(),
+            format: pb::SampleFormat::F32Le as i32,
+        })),
+        calibration: crate::in_pascals(),
+        ..Default::default()
+    })
+}
+
+/// The tones request used by the spectral seeds: 2048 values of a 3 kHz tone at 48 kHz,
+/// 512-sample segments.
+fn tones_request() -> pb::ExtractTonesRequest {
+    pb::ExtractTonesRequest {
+        samples: Some(pb::Samples {
+            sample_rate_hz: 48_000.0,
+            data: Some(pb::samples::Data::Values(pb::SampleValues {
+                values: tone_values(2048, 48_000.0, 3000.0),
+            })),
+            calibration: crate::in_pascals(),
+            ..Default::default()
+        }),
+        welch: welch(512),
+        ..Default::default()
+    }
+}
+
+/// One valid seed per RPC of every jetloop service, and the health check.
+pub fn seeds() -> Vec<Seed> {
+    use fixtures::{conditions, inch_nozzle, round};
+    let f32s = |n: usize, f: f64| -> Vec<u8> {
+        tone_values(n, 48_000.0, f).iter().flat_map(|v| (*v as f32).to_le_bytes()).collect()
+    };
+    // A ramp: microphone and an NPR channel (2.5 -> 3.5) interleaved.
+    let ramp: Vec<u8> = (0..4096)
+        .flat_map(|i| {
+            let mic = (2.0 * (2.0 * std::f64::consts::PI * 4000.0 * i as f64 / 48_000.0).sin()) as f32;
+            let npr = (2.5 + i as f64 / 4096.0) as f32;
+            [mic.to_le_bytes(), npr.to_le_bytes()].concat()
+        })
+        .collect();
+    let stream_first = pb::SampleBlock {
+        request: Some(pb::ExtractTonesRequest {
+            samples: raw_f32(1, 48_000.0, Vec::new()),
+            welch: welch(512),
+            ..Default::default()
+        }),
+        ..Default::default()
+    };
+    let track_first = pb::TrackRequest {
+        item: Some(pb::track_request::Item::Config(pb::TrackConfig {
+            analysis: Some(pb::ExtractTonesRequest {
+                samples: raw_f32(1, 48_000.0, Vec::new()),
+                welch: welch(512),
+                ..Default::default()
+            }),
+            update_interval_s: Some(0.02),
+            ..Default::default()
+        })),
+    };
+    let frames = |b: Vec<u8>| pb::TrackRequest { item: Some(pb::track_request::Item::Frames(b)) };
+    vec![
+        Seed {
+            path: "/jetloop.v1.GasDynamicsService/IsentropicRatios",
+            messages: vec![enc(&pb::IsentropicRatiosRequest {
+                given: Some(pb::isentropic_ratios_request::Given::MachNumber(2.0)),
+                ..Default::default()
+            })],
+            weight: 10,
+        },
+        Seed {
+            path: "/jetloop.v1.GasDynamicsService/NormalShock",
+            messages: vec![enc(&pb::NormalShockRequest { gamma: Some(1.4), upstream_mach_number: 2.0 })],
+            weight: 10,
+        },
+        Seed {
+            path: "/jetloop.v1.GasDynamicsService/JetState",
+            messages: vec![enc(&pb::JetStateRequest { conditions: Some(conditions(round(0.0254), 4.0)) })],
+            weight: 10,
+        },
+        Seed { path: "/jetloop.v1.InfoService/ServerInfo", messages: vec![Vec::new()], weight: 3 },
+        Seed {
+            path: "/jetloop.v1.ShockCellService/CellSpacing",
+            messages: vec![enc(&pb::CellSpacingRequest { jet: Some(inch_nozzle(4.0)), options: None })],
+            weight: 10,
+        },
+        Seed {
+            path: "/jetloop.v1.ToneService/PredictScreech",
+            messages: vec![enc(&pb::PredictScreechRequest { jet: Some(inch_nozzle(4.0)), options: None })],
+            weight: 10,
+        },
+        Seed {
+            path: "/jetloop.v1.ToneService/PredictShockNoise",
+            messages: vec![enc(&pb::PredictShockNoiseRequest {
+                jet: Some(inch_nozzle(4.0)),
+                observer_angles_deg: vec![90.0, 120.0, 150.0],
+                ..Default::default()
+            })],
+            weight: 8,
+        },
+        Seed {
+            path: "/jetloop.v1.ToneService/SweepScreech",
+            messages: vec![enc(&pb::SweepScreechRequest {
+                jet: Some(inch_nozzle(3.0)),
+                variable: pb::SweepVariable::NozzlePressureRatio as i32,
+                values: Some(pb::sweep_screech_request::Values::Range(pb::SweepRange {
+                    start: 2.5,
+                    stop: 4.5,
+                    count: 5,
+                })),
+                options: None,
+            })],
+            weight: 5,
+        },
+        Seed {
+            path: "/jetloop.v1.ToneService/GuidedModes",
+            messages: vec![enc(&pb::GuidedModesRequest {
+                source: Some(pb::guided_modes_request::Source::Jet(inch_nozzle(4.0))),
+                options: None,
+                curve_points: Some(8),
+            })],
+            weight: 2,
+        },
+        Seed {
+            path: "/jetloop.v1.StagingService/FitStages",
+            messages: vec![enc(&pb::FitStagesRequest {
+                control: pb::ControlVariable::NozzlePressureRatio as i32,
+                points: fixtures::pressure_sweep_points(24),
+                ..Default::default()
+            })],
+            weight: 3,
+        },
+        Seed {
+            path: "/jetloop.v1.SpectrumService/ExtractTones",
+            messages: vec![enc(&tones_request())],
+            weight: 6,
+        },
+        Seed {
+            path: "/jetloop.v1.SpectrumService/BandLevels",
+            messages: vec![enc(&pb::BandLevelsRequest {
+                samples: tones_request().samples,
+                welch: welch(512),
+                ..Default::default()
+            })],
+            weight: 4,
+        },
+        Seed {
+            path: "/jetloop.v1.SpectrumService/CrossSpectra",
+            messages: vec![enc(&pb::CrossSpectraRequest {
+                samples: raw_f32(2, 48_000.0, crate::ring_f32(2, 2048, 48_000.0, 3)),
+                welch: welch(512),
+                ..Default::default()
+            })],
+            weight: 4,
+        },
+        Seed {
+            path: "/jetloop.v1.SpectrumService/AnalyseRamp",
+            messages: vec![enc(&pb::AnalyseRampRequest {
+                samples: raw_f32(2, 48_000.0, ramp),
+                control: Some(pb::ControlChannel {
+                    channel: 1,
+                    quantity: pb::ControlQuantity::NozzlePressureRatio as i32,
+                    units_per_sample: 1.0,
+                    offset: None,
+                    ambient_pressure_pa: None,
+                }),
+                frame_duration_s: Some(0.02),
+                welch: welch(256),
+                ..Default::default()
+            })],
+            weight: 3,
+        },
+        Seed {
+            path: "/jetloop.v1.SpectrumService/ExtractTonesStream",
+            messages: vec![
+                enc(&stream_first),
+                enc(&pb::SampleBlock { frames: f32s(1024, 3000.0).into(), ..Default::default() }),
+                enc(&pb::SampleBlock { frames: f32s(1024, 3000.0).into(), ..Default::default() }),
+            ],
+            weight: 4,
+        },
+        Seed {
+            path: "/jetloop.v1.SpectrumService/TrackTones",
+            messages: vec![
+                enc(&track_first),
+                enc(&frames(f32s(1024, 3000.0))),
+                enc(&frames(f32s(1024, 5000.0))),
+            ],
+            weight: 3,
+        },
+        Seed {
+            path: "/grpc.health.v1.Health/Check",
+            messages: vec![enc(&tonic_health::pb::HealthCheckRequest { service: String::new() })],
+            weight: 2,
+        },
+    ]
+}
+
+/// Picks a seed by weight.
+pub fn pick<'a>(rng: &mut Rng, seeds: &'a [Seed]) -> &'a Seed {
+    let total: usize = seeds.iter().map(|s| s.weight).sum();
+    let mut r = rng.below(total);
+    for s in seeds {
+        if r < s.weight {
+            return s;
+        }
+        r -= s.weight;
+    }
+    &seeds[0]
+}
+
+/// Extreme doubles: NaN, infinities, the largest and smallest, negative zero, a denormal.
+const EXTREME_F64: [f64; 9] =
+    [f64::NAN, f64::INFINITY, f64::NEG_INFINITY, f64::MAX, -f64::MAX, f64::MIN_POSITIVE, 5e-324, -0.0, 1e300];
+
+/// Offsets of the fields of `msg` that parse as (tag, wire type) at the top level.
+fn fields(msg: &[u8]) -> Vec<(usize, u8, usize)> {
+    // (offset of the tag, wire type, offset of the value)
+    let mut out = Vec::new();
+    let mut i = 0;
+    let varint = |i: &mut usize| -> Option<u64> {
+        let mut v = 0u64;
+        for k in 0..10 {
+            let b = *msg.get(*i)?;
+            *i += 1;
+            v |= u64::from(b & 0x7f) << (7 * k);
+            if b < 0x80 {
+                return Some(v);
+            }
+        }
+        None
+    };
+    while i < msg.len() {
+        let start = i;
+        let Some(tag) = varint(&mut i) else { break };
+        let wt = (tag & 7) as u8;
+        let value_at = i;
+        let skip = match wt {
+            0 => varint(&mut i).map(|_| 0),
+            1 => Some(8),
+            5 => Some(4),
+            2 => varint(&mut i).and_then(|l| usize::try_from(l).ok()),
+            _ => None,
+        };
+        let Some(skip) = skip else { break };
+        out.push((start, wt, value_at));
+        i = i.saturating_add(skip);
+    }
+    out
+}
+
+/// One protobuf-level mutation of `msg`.
+pub fn mutate_message(rng: &mut Rng, msg: &[u8]) -> Vec<u8> {
+    let mut m = msg.to_vec();
+    let f = fields(msg);
+    match rng.below(11) {
+        0 => {
+            for _ in 0..1 + rng.below(8) {
+                if !m.is_empty() {
+                    let i = rng.below(m.len());
+                    m[i] ^= 1 << rng.below(8);
+                }
+            }
+        }
+        1 => m.truncate(rng.below(m.len() + 1)),
+        2 => {
+            let at = rng.below(m.len() + 1);
+            let n = 1 + rng.below(16);
+            let ins = rng.bytes(n);
+            m.splice(at..at, ins);
+        }
+        3 => {
+            if !m.is_empty() {
+                let at = rng.below(m.len());
+                let n = (1 + rng.below(16)).min(m.len() - at);
+                let rep = rng.bytes(n);
+                m.splice(at..at + n, rep);
+            }
+        }
+        4 => {
+            // A length-delimited field whose length is huge (2^28 .. 2^63) with few bytes after.
+            let field = 1 + rng.below(12) as u64;
+            let mut tail = Vec::new();
+            put_varint(&mut tail, (field << 3) | 2);
+            put_varint(&mut tail, 1u64 << (28 + rng.below(36)));
+            let n = rng.below(8);
+            tail.extend(rng.bytes(n));
+            let at = if rng.below(2) == 0 { m.len() } else { 0 };
+            m.splice(at..at, tail);
+        }
+        5 => {
+            // A wrong wire type on one field.
+            if let Some(&(at, wt, _)) = f.get(rng.below(f.len().max(1))) {
+                let mut other = rng.below(8) as u8;
+                if other == wt {
+                    other = (other + 1) % 8;
+                }
+                m[at] = (m[at] & !7) | other;
+            }
+        }
+        6 => {
+            // An extreme number in a double field, or the largest varint in a varint field.
+            let doubles: Vec<_> = f.iter().filter(|x| x.1 == 1).collect();
+            let ints: Vec<_> = f.iter().filter(|x| x.1 == 0).collect();
+            if !doubles.is_empty() && (ints.is_empty() || rng.below(2) == 0) {
+                let &&(_, _, at) = &doubles[rng.below(doubles.len())];
+                let v = EXTREME_F64[rng.below(EXTREME_F64.len())];
+                m[at..at + 8].copy_from_slice(&v.to_le_bytes());
+            } else if let Some(&&(_, _, at)) = ints.get(rng.below(ints.len().max(1))) {
+                let mut end = at;
+                while end < m.len() && m[end] >= 0x80 {
+                    end += 1;
+                }
+                let mut big = Vec::new();
+                put_varint(&mut big, if rng.below(2) == 0 { u64::MAX } else { 1 << 32 });
+                m.splice(at..(end + 1).min(m.len()), big);
+            }
+        }
+        7 => {
+            // Every field twice (merged: repeated fields doubled, singular ones overwritten).
+            let copy = m.clone();
+            m.extend(copy);
+        }
+        8 => {
+            let n = rng.below(64);
+            m = rng.bytes(n);
+        }
+        9 => m.clear(),
+        _ => {
+            // A length-delimited field's length made longer or shorter than its bytes.
+            if let Some(&(_, _, at)) = f.iter().find(|x| x.1 == 2) {
+                if at < m.len() {
+                    m[at] = m[at].wrapping_add(1 + rng.below(200) as u8);
+                }
+            }
+        }
+    }
+    m
+}
+
+fn put_varint(out: &mut Vec<u8>, mut v: u64) {
+    while v >= 0x80 {
+        out.push((v as u8) | 0x80);
+        v >>= 7;
+    }
+    out.push(v as u8);
+}
+
+/// The gRPC frame of one message: flag 0, big-endian length, bytes.
+pub fn frame(msg: &[u8]) -> Vec<u8> {
+    let mut f = Vec::with_capacity(msg.len() + 5);
+    f.push(0);
+    f.extend_from_slice(&(msg.len() as u32).to_be_bytes());
+    f.extend_from_slice(msg);
+    f
+}
+
+/// A whole mutated request body for `seed`: usually its messages framed with one of them
+/// mutated, sometimes a framing-level defect.
+pub fn mutate_body(rng: &mut Rng, seed: &Seed) -> Vec<u8> {
+    let mut msgs = seed.messages.clone();
+    let k = rng.below(msgs.len());
+    msgs[k] = mutate_message(rng, &msgs[k]);
+    let framed: Vec<u8> = msgs.iter().flat_map(|m| frame(m)).collect();
+    match rng.below(20) {
+        // A length prefix declaring 1 GiB, 4 GiB - 1 or just more than there is.
+        0 => {
+            let mut f = framed.clone();
+            let declared: u32 =
+                [1 << 30, u32::MAX, (msgs[0].len() as u32).saturating_add(1 + rng.below(100) as u32)]
+                    [rng.below(3)];
+            f[1..5].copy_from_slice(&declared.to_be_bytes());
+            f
+        }
+        // The compressed flag (no grpc-encoding was sent) or an unknown flag value.
+        1 => {
+            let mut f = framed.clone();
+            f[0] = if rng.below(2) == 0 { 1 } else { rng.next_u64() as u8 };
+            f
+        }
+        // A frame header cut short.
+        2 => framed[..rng.below(5)].to_vec(),
+        // Bytes after the last frame.
+        3 => {
+            let mut f = framed.clone();
+            let n = 1 + rng.below(8);
+            f.extend(rng.bytes(n));
+            f
+        }
+        // The body cut anywhere.
+        4 => framed[..rng.below(framed.len() + 1)].to_vec(),
+        _ => framed,
+    }
+}
+
+/// What came back for one request.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Outcome {
+    /// An answer with this gRPC status code.
+    Status(u32),
+    /// The HTTP/2 stream failed before any gRPC status arrived (text of the error).
+    NoStatus(String),
+}
+
+/// Sends one request of `body` to `path` over `client` (HTTP/2, with a 10 s gRPC deadline)
+/// and reads the whole answer.
+pub async fn send(client: &mut h2::client::SendRequest<Bytes>, path: &str, body: Vec<u8>) -> Outcome {
+    let req = match http::Request::builder()
+        .method("POST")
+        .uri(format!("http://jetloop{path}"))
+        .header("content-type", "application/grpc")
+        .header("te", "trailers")
+        .header("grpc-timeout", "10S")
+        .body(())
+    {
+        Ok(r) => r,
+        Err(e) => return Outcome::NoStatus(format!("request: {e}")),
+    };
+    let mut ready = match client.clone().ready().await {
+        Ok(c) => c,
+        Err(e) => return Outcome::NoStatus(format!("connection: {e}")),
+    };
+    let (answer, mut stream) = match ready.send_request(req, false) {
+        Ok(x) => x,
+        Err(e) => return Outcome::NoStatus(format!("send: {e}")),
+    };
+    *client = ready;
+    // Send what the window allows; the server may answer and reset before it takes it all.
+    let mut rest = Bytes::from(body);
+    let sending = async {
+        while !rest.is_empty() {
+            stream.reserve_capacity(rest.len());
+            let cap = match std::future::poll_fn(|cx| stream.poll_capacity(cx)).await {
+                Some(Ok(c)) => c,
+                _ => return,
+            };
+            let chunk = rest.split_to(cap.min(rest.len()));
+            if stream.send_data(chunk, false).is_err() {
+                return;
+            }
+        }
+        let _ = stream.send_data(Bytes::new(), true);
+    };
+    let (resp, ()) = tokio::join!(answer, sending);
+    let resp = match resp {
+        Ok(r) => r,
+        Err(e) => return Outcome::NoStatus(format!("answer: {e}")),
+    };
+    let code = |h: &http::HeaderMap| h.get("grpc-status").and_then(|v| v.to_str().ok()?.parse::<u32>().ok());
+    if let Some(c) = code(resp.headers()) {
+        return Outcome::Status(c);
+    }
+    let mut body = resp.into_body();
+    while let Some(chunk) = body.data().await {
+        match chunk {
+            Ok(c) => {
+                let _ = body.flow_control().release_capacity(c.len());
+            }
+            Err(e) => return Outcome::NoStatus(format!("body: {e}")),
+        }
+    }
+    match body.trailers().await {
+        Ok(Some(t)) => {
+            code(&t).map_or_else(|| Outcome::NoStatus("trailers without grpc-status".into()), Outcome::Status)
+        }
+        Ok(None) => Outcome::NoStatus("no trailers".into()),
+        Err(e) => Outcome::NoStatus(format!("trailers: {e}")),
+    }
+}
+
+/// An HTTP/2 connection to `addr` for [`send`] (its driver runs on a spawned task).
+///
+/// # Errors
+/// When the connection or handshake fails.
+pub async fn connect(addr: std::net::SocketAddr) -> Result<h2::client::SendRequest<Bytes>, String> {
+    let tcp = tokio::net::TcpStream::connect(addr).await.map_err(|e| e.to_string())?;
+    let _ = tcp.set_nodelay(true);
+    let (client, conn) = h2::client::Builder::new()
+        .initial_window_size(1 << 20)
+        .handshake::<_, Bytes>(tcp)
+        .await
+        .map_err(|e| e.to_string())?;
+    tokio::spawn(async move {
+        let _ = conn.await;
+    });
+    Ok(client)
+}
+
+/// Peak and current resident memory of this process, bytes (Linux `/proc/self/status`).
+pub fn memory() -> Option<(u64, u64)> {
+    let s = std::fs::read_to_string("/proc/self/status").ok()?;
+    let kib = |key: &str| -> Option<u64> {
+        s.lines()
+            .find(|l| l.starts_with(key))?
+            .split_whitespace()
+            .nth(1)?
+            .parse::<u64>()
+            .ok()
+            .map(|k| k * 1024)
+    };
+    Some((kib("VmHWM:")?, kib("VmRSS:")?))
+}
