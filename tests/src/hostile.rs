@@ -578,3 +578,249 @@ pub fn memory() -> Option<(u64, u64)> {
     };
     Some((kib("VmHWM:")?, kib("VmRSS:")?))
 }
+
+/// In-process fuzzing: the handlers of every RPC called directly (no socket) with mutated
+/// messages, and the sample decoders checked against a plain reference decode.
+pub mod in_process {
+    use super::{mutate_message, pick, Rng, Seed};
+    use jetloop_proto::pb::{
+        self, gas_dynamics_service_server::GasDynamicsService, info_service_server::InfoService,
+        shock_cell_service_server::ShockCellService, spectrum_service_server::SpectrumService,
+        staging_service_server::StagingService, tone_service_server::ToneService,
+    };
+    use jetloop_server::api::spectrum::{ToneStream, TrackSession};
+    use jetloop_server::dsp::samples::{Format, Layout, Recording};
+    use jetloop_server::service::{
+        budget::SampleBudget, gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells,
+        spectrum::Spectrum, staging::Staging, tones::Tones,
+    };
+    use prost::Message;
+    use tonic::{Code, Request};
+
+    /// The handlers, as a server holds them.
+    #[derive(Debug, Clone)]
+    pub struct Handlers {
+        info: Info,
+        spectrum: Spectrum,
+    }
+
+    impl Default for Handlers {
+        fn default() -> Self {
+            let limits = jetloop_server::config::Limits::default();
+            let budget = SampleBudget::new(512 << 20);
+            Self {
+                info: Info::new(limits, budget.clone(), jetloop_server::service::Computing::default()),
+                spectrum: Spectrum::new(budget, None),
+            }
+        }
+    }
+
+    fn decode<M: Message + Default>(bytes: &[u8]) -> Option<M> {
+        M::decode(bytes).ok()
+    }
+
+    /// Runs `messages` (already mutated) through the handler of `path`: `Ok(Some(code))` with
+    /// the answer's code, `Ok(None)` when a message did not decode.
+    ///
+    /// # Errors
+    /// A description when the handler answered UNKNOWN or INTERNAL.
+    pub async fn call(h: &Handlers, path: &str, messages: &[Vec<u8>]) -> Result<Option<Code>, String> {
+        let m0 = messages.first().map_or(&[][..], Vec::as_slice);
+        macro_rules! u {
+            ($svc:expr, $method:ident, $ty:ty) => {{
+                let Some(req) = decode::<$ty>(m0) else { return Ok(None) };
+                match $svc.$method(Request::new(req)).await {
+                    Ok(_) => Some(Code::Ok),
+                    Err(s) => Some(s.code()),
+                }
+            }};
+        }
+        let code = match path {
+            "/jetloop.v1.GasDynamicsService/IsentropicRatios" => {
+                u!(GasDynamics, isentropic_ratios, pb::IsentropicRatiosRequest)
+            }
+            "/jetloop.v1.GasDynamicsService/NormalShock" => {
+                u!(GasDynamics, normal_shock, pb::NormalShockRequest)
+            }
+            "/jetloop.v1.GasDynamicsService/JetState" => u!(GasDynamics, jet_state, pb::JetStateRequest),
+            "/jetloop.v1.InfoService/ServerInfo" => u!(h.info, server_info, pb::ServerInfoRequest),
+            "/jetloop.v1.ShockCellService/CellSpacing" => {
+                u!(ShockCells, cell_spacing, pb::CellSpacingRequest)
+            }
+            "/jetloop.v1.ToneService/PredictScreech" => u!(Tones, predict_screech, pb::PredictScreechRequest),
+            "/jetloop.v1.ToneService/PredictShockNoise" => {
+                u!(Tones, predict_shock_noise, pb::PredictShockNoiseRequest)
+            }
+            "/jetloop.v1.ToneService/SweepScreech" => u!(Tones, sweep_screech, pb::SweepScreechRequest),
+            "/jetloop.v1.ToneService/GuidedModes" => u!(Tones, guided_modes, pb::GuidedModesRequest),
+            "/jetloop.v1.StagingService/FitStages" => u!(Staging, fit_stages, pb::FitStagesRequest),
+            "/jetloop.v1.SpectrumService/ExtractTones" => {
+                u!(h.spectrum, extract_tones, pb::ExtractTonesRequest)
+            }
+            "/jetloop.v1.SpectrumService/BandLevels" => u!(h.spectrum, band_levels, pb::BandLevelsRequest),
+            "/jetloop.v1.SpectrumService/CrossSpectra" => {
+                u!(h.spectrum, cross_spectra, pb::CrossSpectraRequest)
+            }
+            "/jetloop.v1.SpectrumService/AnalyseRamp" => u!(h.spectrum, analyse_ramp, pb::AnalyseRampRequest),
+            "/jetloop.v1.SpectrumService/ExtractTonesStream" => {
+                let Some(blocks) =
+                    messages.iter().map(|m| decode::<pb::SampleBlock>(m)).collect::<Option<Vec<_>>>()
+                else {
+                    return Ok(None);
+                };
+                let r = tokio::task::spawn_blocking(move || -> Result<(), jetloop_server::api::ApiError> {
+                    let mut it = blocks.into_iter();
+                    let mut s = ToneStream::start(it.next().unwrap_or_default())?;
+                    for b in it {
+                        s.next(b)?;
+                    }
+                    s.finish().map(|_| ())
+                })
+                .await
+                .map_err(|e| format!("{path}: the stream analysis panicked: {e}"))?;
+                Some(r.map_or_else(|e| tonic::Status::from(e).code(), |()| Code::Ok))
+            }
+            "/jetloop.v1.SpectrumService/TrackTones" => {
+                let Some(msgs) =
+                    messages.iter().map(|m| decode::<pb::TrackRequest>(m)).collect::<Option<Vec<_>>>()
+                else {
+                    return Ok(None);
+                };
+                let r = tokio::task::spawn_blocking(move || -> Result<(), jetloop_server::api::ApiError> {
+                    let mut it = msgs.into_iter();
+                    let (mut s, _) = TrackSession::start(it.next().unwrap_or_default())?;
+                    for m in it {
+                        s.push(m)?;
+                    }
+                    Ok(())
+                })
+                .await
+                .map_err(|e| format!("{path}: the tracking session panicked: {e}"))?;
+                Some(r.map_or_else(|e| tonic::Status::from(e).code(), |()| Code::Ok))
+            }
+            _ => return Ok(Some(Code::Unimplemented)),
+        };
+        match code {
+            Some(c @ (Code::Unknown | Code::Internal)) => Err(format!("{path}: answered {c:?}")),
+            other => Ok(other),
+        }
+    }
+
+    /// One mutated call of a seed picked by `rng`; the path and the result.
+    pub async fn one(
+        h: &Handlers,
+        seeds: &[Seed],
+        rng: &mut Rng,
+    ) -> (&'static str, Result<Option<Code>, String>) {
+        // jetloop's own methods (the health service is exercised over the socket).
+        let mut s = pick(rng, seeds);
+        while !s.path.starts_with("/jetloop.v1.") {
+            s = pick(rng, seeds);
+        }
+        let mut msgs = s.messages.clone();
+        let k = rng.below(msgs.len());
+        msgs[k] = mutate_message(rng, &msgs[k]);
+        let h2 = h.clone();
+        let path = s.path;
+        // A panic in the handler ends this task, not the harness: reported as a failure.
+        let r = tokio::spawn(async move { call(&h2, path, &msgs).await })
+            .await
+            .unwrap_or_else(|e| Err(format!("{path}: the handler panicked: {e}")));
+        (path, r)
+    }
+
+    /// The reference decode of sample `i` of channel `c`: plain arithmetic on the bytes.
+    fn reference(bytes: &[u8], format: Format, layout: Layout, channels: usize, c: usize, i: usize) -> f64 {
+        let w = format.width();
+        let per = bytes.len() / w / channels;
+        let k = match layout {
+            Layout::Interleaved => i * channels + c,
+            Layout::Planar => c * per + i,
+        };
+        let b = &bytes[k * w..k * w + w];
+        match format {
+            Format::F32 => f64::from(f32::from_le_bytes([b[0], b[1], b[2], b[3]])),
+            Format::F64 => f64::from_le_bytes([b[0], b[1], b[2], b[3], b[4], b[5], b[6], b[7]]),
+            Format::I16 => f64::from(i16::from_le_bytes([b[0], b[1]])),
+            Format::I32 => f64::from(i32::from_le_bytes([b[0], b[1], b[2], b[3]])),
+        }
+    }
+
+    fn same(a: f64, b: f64) -> bool {
+        a == b || (a.is_nan() && b.is_nan())
+    }
+
+    /// One random recording (format, layout, channels, bytes, blocks) decoded by the server's
+    /// decoder and read back through channel views at random offsets, against [`reference`].
+    ///
+    /// # Errors
+    /// A description of the first sample that differs, or a decode that should have failed.
+    pub fn samples_once(rng: &mut Rng) -> Result<(), String> {
+        let format = [Format::F32, Format::F64, Format::I16, Format::I32][rng.below(4)];
+        let layout = if rng.below(2) == 0 { Layout::Interleaved } else { Layout::Planar };
+        let channels = [0, 1, 2, 3, 7, 8, 16, 1 << 20, usize::MAX][rng.below(9)];
+        let n = rng.below(2048);
+        let bytes = rng.bytes(n);
+        let scale = [1.0, 0.5, 1e-3, 250.0][rng.below(4)];
+        let whole = channels != 0
+            && n % format.width().saturating_mul(channels).max(1) == 0
+            && format.width().checked_mul(channels).is_some();
+        let rec = Recording::from_bytes(bytes.clone().into(), format, layout, channels, scale);
+        let rec = match (rec, whole) {
+            (Err(_), false) => return Ok(()),
+            (Err(e), true) => {
+                return Err(format!("whole frames refused: {e} ({n} bytes, {channels} channels, {format:?})"))
+            }
+            (Ok(_), false) => {
+                return Err(format!("ragged bytes accepted ({n} bytes, {channels} channels, {format:?})"))
+            }
+            (Ok(r), true) => r,
+        };
+        let per = n / format.width() / channels;
+        for c in 0..channels.min(8) {
+            let view = rec.channel(c);
+            if view.len() != per {
+                return Err(format!("channel {c} has {} samples, not {per}", view.len()));
+            }
+            let start = rng.below(per + 3);
+            let mut out = vec![f64::NAN; rng.below(per + 3)];
+            let got = view.read(start, &mut out);
+            let expect = out.len().min(per.saturating_sub(start));
+            if got != expect {
+                return Err(format!("read({start}, {}) gave {got} samples, not {expect}", out.len()));
+            }
+            for (j, v) in out[..got].iter().enumerate() {
+                let r = reference(&bytes, format, layout, channels, c, start + j) * scale;
+                if !same(*v, r) {
+                    return Err(format!(
+                        "channel {c} sample {}: {v} vs {r} ({format:?}, {layout:?})",
+                        start + j
+                    ));
+                }
+            }
+        }
+        // The same bytes as a stream of blocks (interleaved) read the same across block edges.
+        if layout == Layout::Interleaved && channels <= 16 {
+            let mut s = Recording::stream(format, channels, scale);
+            let frame = format.width() * channels;
+            let mut at = 0;
+            while at < n {
+                let take = ((1 + rng.below(6)) * frame).min(n - at);
+                s.push_block(bytes[at..at + take].to_vec().into())
+                    .map_err(|e| format!("block refused: {e}"))?;
+                at += take;
+            }
+            for c in 0..channels {
+                let mut out = vec![0.0; per];
+                s.channel(c).read(0, &mut out);
+                for (i, v) in out.iter().enumerate() {
+                    let r = reference(&bytes, format, layout, channels, c, i) * scale;
+                    if !same(*v, r) {
+                        return Err(format!("stream channel {c} sample {i}: {v} vs {r}"));
+                    }
+                }
+            }
+        }
+        Ok(())
+    }
+}

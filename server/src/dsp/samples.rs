@@ -97,8 +97,10 @@ impl Recording {
         scale_pa: f64,
     ) -> Result<Self, DecodeError> {
         let w = format.width();
-        if channels == 0 || bytes.len() % (w * channels) != 0 {
-            return Err(DecodeError::Ragged { bytes: bytes.len(), channels, width: w });
+        // A frame wider than memory (an absurd channel count) cannot be whole either.
+        match w.checked_mul(channels) {
+            Some(frame) if frame > 0 && bytes.len() % frame == 0 => {}
+            _ => return Err(DecodeError::Ragged { bytes: bytes.len(), channels, width: w }),
         }
         let per_channel = bytes.len() / (w * channels);
         let total = bytes.len() / w;
@@ -124,7 +126,7 @@ impl Recording {
         match &mut self.storage {
             Storage::Blocks { blocks, starts, total, format } if self.layout == Layout::Interleaved => {
                 let w = format.width();
-                if block.len() % (w * channels) != 0 {
+                if w.checked_mul(channels).is_none_or(|frame| block.len() % frame != 0) {
                     return Err(DecodeError::Ragged { bytes: block.len(), channels, width: w });
                 }
                 if block.is_empty() {
