@@ -245,7 +245,12 @@ fn send_guarded(
     let written_at_ready = conn.as_ref().map_or(0, |c| c.written.load(SeqCst));
     tokio::spawn(async move {
         let out = |c: &crate::connections::ConnInfo| c.written.load(SeqCst).saturating_sub(written_at_ready);
+        let wrote = conn.as_ref().map(|c| c.wrote.clone()).unwrap_or_default();
         loop {
+            // Registered before the check, so a write between the check and the wait is seen.
+            let written = wrote.notified();
+            tokio::pin!(written);
+            written.as_mut().enable();
             let finished = watch.finished.load(SeqCst);
             let left = match &conn {
                 Some(c) => finished && out(c) >= watch.yielded.load(SeqCst),
@@ -261,7 +266,20 @@ fn send_guarded(
                 }
                 break;
             }
-            tokio::time::sleep(SEND_CHECK).await;
+            // Woken when the body finishes and, once it has, by every write to the
+            // connection, so the permit is let go as the last byte leaves (a caller calling
+            // back to back at the limit is not refused); the timer covers a stalled peer.
+            if finished {
+                tokio::select! {
+                    () = &mut written => {}
+                    () = tokio::time::sleep(SEND_CHECK) => {}
+                }
+            } else {
+                tokio::select! {
+                    () = watch.changed.notified() => {}
+                    () = tokio::time::sleep(SEND_CHECK) => {}
+                }
+            }
         }
         drop(admitted);
     });
@@ -276,6 +294,15 @@ struct Progress {
     yielded: std::sync::atomic::AtomicU64,
     /// The body ended (trailers or end of stream) or was dropped.
     finished: std::sync::atomic::AtomicBool,
+    /// Notified when `finished` is set.
+    changed: tokio::sync::Notify,
+}
+
+impl Progress {
+    fn finish(&self) {
+        self.finished.store(true, std::sync::atomic::Ordering::SeqCst);
+        self.changed.notify_one();
+    }
 }
 
 /// An answer's body that reports how far it has got.
@@ -286,7 +313,7 @@ struct SendGuard {
 
 impl Drop for SendGuard {
     fn drop(&mut self) {
-        self.progress.finished.store(true, std::sync::atomic::Ordering::SeqCst);
+        self.progress.finish();
     }
 }
 
@@ -301,12 +328,12 @@ impl http_body::Body for SendGuard {
         use std::sync::atomic::Ordering::SeqCst;
         let r = Pin::new(&mut self.inner).poll_frame(cx);
         match &r {
-            Poll::Ready(Some(Ok(f))) if f.is_trailers() => self.progress.finished.store(true, SeqCst),
+            Poll::Ready(Some(Ok(f))) if f.is_trailers() => self.progress.finish(),
             Poll::Ready(Some(Ok(f))) => {
                 let n = f.data_ref().map_or(0, |d| d.len() as u64);
                 self.progress.yielded.fetch_add(n, SeqCst);
             }
-            Poll::Ready(None) => self.progress.finished.store(true, SeqCst),
+            Poll::Ready(None) => self.progress.finish(),
             Poll::Ready(Some(Err(_))) | Poll::Pending => {}
         }
         r
@@ -386,9 +413,7 @@ pub fn inbound_status(status: &Status) -> Option<Status> {
 
 /// The method path and the peer address of a call, for its log lines.
 fn call_names<B>(req: &http::Request<B>) -> (String, String) {
-    let peer = req
-        .extensions()
-        .get::<crate::connections::ConnInfo>()
+    let peer = crate::connections::ConnInfo::of(req)
         .and_then(|c| c.remote_addr)
         .map_or_else(|| "unknown".to_string(), |a| a.to_string());
     (req.uri().path().to_string(), peer)
@@ -604,7 +629,7 @@ route_service!(Deadline, |self, req| {
     req.extensions_mut().insert(cancel.clone());
     req.extensions_mut().insert(self.computing.clone());
     let admitted = req.extensions().get::<Admitted>().cloned();
-    let conn = req.extensions().get::<crate::connections::ConnInfo>().cloned();
+    let conn = crate::connections::ConnInfo::of(&req);
     let (method, peer) = call_names(&req);
     let started = tokio::time::Instant::now();
     let fut = self.inner.call(req);

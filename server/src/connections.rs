@@ -261,6 +261,7 @@ impl Conn {
             remote_addr: inner.peer_addr().ok(),
             kill: ConnKill::default(),
             written: Arc::default(),
+            wrote: Arc::default(),
         };
         Self {
             inner,
@@ -285,6 +286,19 @@ pub struct ConnInfo {
     pub kill: ConnKill,
     /// Bytes written to the connection so far.
     pub written: Arc<std::sync::atomic::AtomicU64>,
+    /// Woken after every write, for tasks waiting until an answer has left.
+    pub wrote: Arc<tokio::sync::Notify>,
+}
+
+impl ConnInfo {
+    /// The connection of a call, whether it came over plain TCP or TLS (the TLS layer wraps
+    /// the connection's information in its own).
+    pub fn of<B>(req: &tonic::codegen::http::Request<B>) -> Option<ConnInfo> {
+        let ext = req.extensions();
+        ext.get::<ConnInfo>().cloned().or_else(|| {
+            ext.get::<tonic::transport::server::TlsConnectInfo<ConnInfo>>().map(|t| t.get_ref().clone())
+        })
+    }
 }
 
 /// A switch that closes a connection: set from any task, the connection fails its next read
@@ -367,6 +381,7 @@ impl AsyncWrite for Conn {
         let r = Pin::new(&mut self.inner).poll_write(cx, buf);
         if let Poll::Ready(Ok(n)) = r {
             self.info.written.fetch_add(n as u64, Ordering::SeqCst);
+            self.info.wrote.notify_waiters();
         }
         r
     }
@@ -390,6 +405,7 @@ impl AsyncWrite for Conn {
         let r = Pin::new(&mut self.inner).poll_write_vectored(cx, bufs);
         if let Poll::Ready(Ok(n)) = r {
             self.info.written.fetch_add(n as u64, Ordering::SeqCst);
+            self.info.wrote.notify_waiters();
         }
         r
     }

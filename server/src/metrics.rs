@@ -462,7 +462,7 @@ mod tests {
     #[test]
     fn the_label_set_is_the_served_methods_and_unknown_paths_are_other() {
         let m = Metrics::new(None, None);
-        assert!(m.index.contains_key("/jetloop.v1.GasDynamicsService/Isentropic"), "{:?}", m.names);
+        assert!(m.index.contains_key("/jetloop.v1.GasDynamicsService/IsentropicRatios"), "{:?}", m.names);
         assert!(m.index.contains_key("/grpc.health.v1.Health/Check"));
         assert!(m.methods[m.method("/jetloop.v1.SpectrumService/TrackTones")].streaming);
         assert_eq!(m.method("/no.Such/Path"), m.method("other"));
