@@ -77,9 +77,13 @@ async fn cli_answers_with_units_json_csv_and_exit_codes() {
     assert!(lines[1].contains(",subsonic,"));
     // --timeout: a call that cannot finish in time ends with exit code 5 and says so.
     let u2 = server.url();
-    let late = tokio::task::spawn_blocking(move || jetloop(&u2, &["--timeout", "0.0000001", "info"]))
-        .await
-        .expect("runs");
+    // (Guided-mode dispersion curves take tens of milliseconds, far beyond 1 ms; a quick call
+    // such as `info` can finish inside the client's first timer tick.)
+    let late = tokio::task::spawn_blocking(move || {
+        jetloop(&u2, &["--timeout", "0.001", "modes", "--mj", "1.3", "--t0-over-ta", "1"])
+    })
+    .await
+    .expect("runs");
     assert_eq!(late.status.code(), Some(5));
     assert!(String::from_utf8_lossy(&late.stderr).contains("--timeout"));
     let s = json(&screech);

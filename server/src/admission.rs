@@ -193,15 +193,33 @@ pub fn parse_grpc_timeout(v: &str) -> Option<Duration> {
 }
 
 /// How long a call may run, and why that long.
-fn time_limit(headers: &http::HeaderMap, server: Duration) -> (Duration, String) {
+fn time_limit(headers: &http::HeaderMap, server: Duration) -> (Duration, Why) {
     let caller = headers.get("grpc-timeout").and_then(|v| v.to_str().ok()).and_then(parse_grpc_timeout);
     match caller {
         Some(t) if t < server => {
             // Early enough to reach the caller before its own timer gives up locally.
             let early = (t / 50).clamp(Duration::from_millis(2), Duration::from_millis(20)).min(t / 2);
-            (t - early, format!("the caller's deadline of {:.3} s passed", t.as_secs_f64()))
+            (t - early, Why::Caller(t))
         }
-        _ => (server, format!("the server's time limit of {} s per call passed", server.as_secs_f64())),
+        _ => (server, Why::Server(server)),
+    }
+}
+
+/// Which limit ends a call (formatted only when it does: most calls end well before).
+#[derive(Debug, Clone, Copy)]
+enum Why {
+    /// The caller's `grpc-timeout`.
+    Caller(Duration),
+    /// The server's own limit.
+    Server(Duration),
+}
+
+impl std::fmt::Display for Why {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            Why::Caller(t) => write!(f, "the caller's deadline of {:.3} s passed", t.as_secs_f64()),
+            Why::Server(t) => write!(f, "the server's time limit of {} s per call passed", t.as_secs_f64()),
+        }
     }
 }
 
@@ -221,99 +239,68 @@ fn refused(limit: usize) -> Status {
 /// Least time an answer that is ready is given to be taken by its client.
 pub const MIN_SEND_TIME: Duration = Duration::from_secs(1);
 
-/// How often a ready answer's watchdog looks whether the answer has left the server.
-const SEND_CHECK: Duration = Duration::from_millis(10);
-
 /// Wraps a ready answer so that the call's admission permit is held until the answer has left
 /// the server (its body finished and at least as many bytes written to the connection since it
 /// was ready as the body yielded: HTTP/2 may buffer a finished body that the client's window
 /// does not let out), and so that an answer not out by `send_by` (the call's deadline, and at
 /// least [`MIN_SEND_TIME`] from now) closes the connection: a client that never opens its
 /// HTTP/2 window cannot keep answers in server memory, nor their permits.
+///
+/// The permit is let go by the connection's own write that takes the answer's last byte out
+/// (see [`crate::connections::ConnInfo::release_when_written`]), not by a task that has to be
+/// scheduled first: under full load such tasks lag, and permits of answers already sent would
+/// refuse new calls. A body dropped before its end (the call was reset) lets go at once.
 fn send_guarded(
     resp: http::Response<Body>,
     admitted: Option<Admitted>,
     conn: Option<crate::connections::ConnInfo>,
     send_by: tokio::time::Instant,
-    method: String,
-    peer: String,
+    method: Method,
 ) -> http::Response<Body> {
     use std::sync::atomic::Ordering::SeqCst;
-    let progress = Arc::new(Progress::default());
-    let watch = progress.clone();
     let at = send_by.max(tokio::time::Instant::now() + MIN_SEND_TIME);
     let written_at_ready = conn.as_ref().map_or(0, |c| c.written.load(SeqCst));
-    tokio::spawn(async move {
-        let out = |c: &crate::connections::ConnInfo| c.written.load(SeqCst).saturating_sub(written_at_ready);
-        let wrote = conn.as_ref().map(|c| c.wrote.clone()).unwrap_or_default();
-        loop {
-            // Registered before the check, so a write between the check and the wait is seen.
-            let written = wrote.notified();
-            tokio::pin!(written);
-            written.as_mut().enable();
-            let finished = watch.finished.load(SeqCst);
-            let left = match &conn {
-                Some(c) => finished && out(c) >= watch.yielded.load(SeqCst),
-                None => finished,
-            };
-            if left {
-                break;
-            }
-            if tokio::time::Instant::now() >= at {
-                if let Some(c) = &conn {
-                    tracing::warn!(%method, peer = %peer, "answer not taken in time: closing the connection");
-                    c.kill.kill();
-                }
-                break;
-            }
-            // Woken when the body finishes and, once it has, by every write to the
-            // connection, so the permit is let go as the last byte leaves (a caller calling
-            // back to back at the limit is not refused); the timer covers a stalled peer.
-            if finished {
-                tokio::select! {
-                    () = &mut written => {}
-                    () = tokio::time::sleep(SEND_CHECK) => {}
-                }
-            } else {
-                tokio::select! {
-                    () = watch.changed.notified() => {}
-                    () = tokio::time::sleep(SEND_CHECK) => {}
-                }
-            }
-        }
-        drop(admitted);
-    });
+    // The time limit is kept by the connection's watching task (one per connection).
+    let out = conn.as_ref().map(|c| c.watch_send(at, method.0.clone()));
+    let pending = Pending { admitted, conn, written_at_ready, yielded: 0, out };
     let (parts, body) = resp.into_parts();
-    http::Response::from_parts(parts, Body::new(SendGuard { inner: body, progress }))
+    http::Response::from_parts(parts, Body::new(SendGuard { inner: body, pending: Some(pending) }))
 }
 
-/// How far an answer's body has got.
-#[derive(Debug, Default)]
-struct Progress {
-    /// Data bytes the body yielded.
-    yielded: std::sync::atomic::AtomicU64,
-    /// The body ended (trailers or end of stream) or was dropped.
-    finished: std::sync::atomic::AtomicBool,
-    /// Notified when `finished` is set.
-    changed: tokio::sync::Notify,
+/// What an answer's body holds until its last byte is out: the permit and the mark that
+/// tells the connection's watching task the answer is out.
+struct Pending {
+    admitted: Option<Admitted>,
+    conn: Option<crate::connections::ConnInfo>,
+    written_at_ready: u64,
+    yielded: u64,
+    out: Option<crate::connections::OutOnDrop>,
 }
 
-impl Progress {
-    fn finish(&self) {
-        self.finished.store(true, std::sync::atomic::Ordering::SeqCst);
-        self.changed.notify_one();
-    }
-}
-
-/// An answer's body that reports how far it has got.
+/// An answer's body that lets its permit go once the answer has left.
 struct SendGuard {
     inner: Body,
-    progress: Arc<Progress>,
+    pending: Option<Pending>,
+}
+
+impl SendGuard {
+    /// The body ended (`sent`: its end was yielded, the bytes may still be queued) or was
+    /// dropped before its end (nothing more will be sent).
+    fn finish(&mut self, sent: bool) {
+        let Some(p) = self.pending.take() else { return };
+        match (&p.conn, sent) {
+            (Some(c), true) => {
+                let target = p.written_at_ready.saturating_add(p.yielded);
+                c.clone().release_when_written(target, Box::new((p.admitted, p.out)));
+            }
+            _ => drop(p),
+        }
+    }
 }
 
 impl Drop for SendGuard {
     fn drop(&mut self) {
-        self.progress.finish();
+        self.finish(false);
     }
 }
 
@@ -325,15 +312,16 @@ impl http_body::Body for SendGuard {
         mut self: Pin<&mut Self>,
         cx: &mut Context<'_>,
     ) -> Poll<Option<Result<http_body::Frame<Self::Data>, Self::Error>>> {
-        use std::sync::atomic::Ordering::SeqCst;
         let r = Pin::new(&mut self.inner).poll_frame(cx);
         match &r {
-            Poll::Ready(Some(Ok(f))) if f.is_trailers() => self.progress.finish(),
+            Poll::Ready(Some(Ok(f))) if f.is_trailers() => self.finish(true),
             Poll::Ready(Some(Ok(f))) => {
                 let n = f.data_ref().map_or(0, |d| d.len() as u64);
-                self.progress.yielded.fetch_add(n, SeqCst);
+                if let Some(p) = &mut self.pending {
+                    p.yielded += n;
+                }
             }
-            Poll::Ready(None) => self.progress.finish(),
+            Poll::Ready(None) => self.finish(true),
             Poll::Ready(Some(Err(_))) | Poll::Pending => {}
         }
         r
@@ -412,11 +400,31 @@ pub fn inbound_status(status: &Status) -> Option<Status> {
 }
 
 /// The method path and the peer address of a call, for its log lines.
-fn call_names<B>(req: &http::Request<B>) -> (String, String) {
-    let peer = crate::connections::ConnInfo::of(req)
-        .and_then(|c| c.remote_addr)
-        .map_or_else(|| "unknown".to_string(), |a| a.to_string());
-    (req.uri().path().to_string(), peer)
+fn call_names<B>(req: &http::Request<B>) -> (Method, Peer) {
+    (Method(req.uri().clone()), Peer(crate::connections::ConnInfo::of(req).and_then(|c| c.remote_addr)))
+}
+
+/// A call's method path, for log lines (the URI is shared, not copied, until printed).
+#[derive(Debug, Clone)]
+struct Method(http::Uri);
+
+impl std::fmt::Display for Method {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.0.path())
+    }
+}
+
+/// A call's peer address, for log lines.
+#[derive(Debug, Clone, Copy)]
+struct Peer(Option<std::net::SocketAddr>);
+
+impl std::fmt::Display for Peer {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self.0 {
+            Some(a) => write!(f, "{a}"),
+            None => f.write_str("unknown"),
+        }
+    }
 }
 
 /// The `tower::Service` shape every layer here shares (ready when the routes are, boxed
@@ -526,8 +534,11 @@ impl RequestIdLayer {
                 z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
                 z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
                 z ^= z >> 31;
-                http::HeaderValue::from_str(&format!("{z:016x}"))
-                    .unwrap_or(http::HeaderValue::from_static("0"))
+                let mut hex = [0u8; 16];
+                for (i, h) in hex.iter_mut().enumerate() {
+                    *h = b"0123456789abcdef"[((z >> (60 - 4 * i)) & 0xf) as usize];
+                }
+                http::HeaderValue::from_bytes(&hex).unwrap_or(http::HeaderValue::from_static("0"))
             }
         }
     }
@@ -618,7 +629,7 @@ route_service!(Deadline, |self, req| {
     // limit, and the send guard cuts it only after a grace beyond that.
     let send_limit = if live {
         req.extensions_mut()
-            .insert(StreamDeadline { at: tokio::time::Instant::now() + limit, why: why.clone() });
+            .insert(StreamDeadline { at: tokio::time::Instant::now() + limit, why: why.to_string() });
         limit + STREAM_END_GRACE
     } else {
         limit
@@ -639,7 +650,7 @@ route_service!(Deadline, |self, req| {
         let mut fut = Box::pin(fut);
         match tokio::time::timeout(limit, &mut fut).await {
             // The answer is ready: the permit and the time limit now cover its sending.
-            Ok(Ok(resp)) => Ok(send_guarded(resp, admitted, conn, started + send_limit, method, peer)),
+            Ok(Ok(resp)) => Ok(send_guarded(resp, admitted, conn, started + send_limit, method)),
             Ok(Err(e)) => Err(e),
             Err(_) => {
                 // Answer now, stop the work, and keep the call's admission permit until
@@ -710,10 +721,10 @@ mod tests {
         assert_eq!(t, Duration::from_millis(98));
         h.insert("grpc-timeout", http::HeaderValue::from_static("5S"));
         assert_eq!(time_limit(&h, server).0, Duration::from_millis(4980));
-        assert!(why.contains("caller"));
+        assert!(why.to_string().contains("caller"));
         h.insert("grpc-timeout", http::HeaderValue::from_static("1m"));
         assert_eq!(time_limit(&h, server).0, Duration::from_micros(500));
         h.insert("grpc-timeout", http::HeaderValue::from_static("2H"));
-        assert!(time_limit(&h, server).1.contains("server"));
+        assert!(time_limit(&h, server).1.to_string().contains("server"));
     }
 }

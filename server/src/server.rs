@@ -160,9 +160,9 @@ pub async fn serve_observed(
         // log line names it: the caller's x-request-id or a new one.
         .layer(RequestIdLayer::new())
         // Metrics next, outside authentication and admission, so refused calls are counted
-        // with their codes and every call's time includes the refusal path; a no-op when
+        // with their codes and every call's time includes the refusal path; absent when
         // metrics are off.
-        .layer(MetricsLayer::new(metrics.clone()))
+        .option_layer(metrics.clone().map(|m| MetricsLayer::new(Some(m))))
         // Then authentication: a call without a valid bearer token (when tokens are set)
         // is refused with UNAUTHENTICATED before it takes a permit or any work; health checks
         // pass so probes and load balancers need no token.
