@@ -121,15 +121,21 @@ async fn main() {
     let started = Instant::now();
     let mut tasks = Vec::new();
     if rate > 0.0 {
-        // Open loop: one ticker, each call its own task, latency from the scheduled time.
+        // Open loop: calls go out at the offered rate whatever the answers, each its own task.
+        // The timer ticks every millisecond, so the calls due in a tick go out together and
+        // each call's latency counts from when it went out (the ticker's own lag of up to a
+        // tick is the generator's, not the server's).
         let interval = Duration::from_secs_f64(1.0 / rate);
         let total = (rate * seconds) as u64;
         for i in 0..total {
-            let at = started + interval.mul_f64(i as f64);
-            tokio::time::sleep_until(at.into()).await;
+            let due = started + interval.mul_f64(i as f64);
+            if due > Instant::now() {
+                tokio::time::sleep_until(due.into()).await;
+            }
             let mut c = calls[i as usize % calls.len()].clone();
             let (lat, err) = (latencies.clone(), errors.clone());
             tasks.push(tokio::spawn(async move {
+                let at = Instant::now();
                 let r = c.once().await;
                 let l = at.elapsed().as_secs_f64();
                 if r.is_err() {
