@@ -152,9 +152,14 @@ pub async fn serve_observed(
         _ => None,
     };
 
-    // One stack around every route, outermost first. The per-call trace span is tonic's
-    // `trace_fn` below, which wraps this stack, so a refused or expired call is logged in the
-    // span of its method.
+    // One stack around every route, outermost first. Below it all, the transport: TLS (and
+    // client certificates) is checked in the handshake, before any call exists. The per-call
+    // trace span is tonic's `trace_fn` below, which wraps this stack, so a refused or expired
+    // call is logged in the span of its method. The order: trace, request id, metrics, auth,
+    // admission (shed), deadline, inbound errors. Admission comes before the deadline (not
+    // after, as a plain timeout-then-limit stack would have it) because a refusal must cost
+    // nothing, not even a timer, and because the permit must outlive the deadline: expired
+    // work keeps its permit until it has really stopped.
     let stack = tower::ServiceBuilder::new()
         // The request id first, so every answer (refusals included) carries it and the call's
         // log line names it: the caller's x-request-id or a new one.
