@@ -112,4 +112,54 @@ async fn failures_and_expiries_are_logged_once_with_method_code_and_peer_and_ref
     let summaries = log.lines("calls refused");
     assert!(summaries.len() == 1, "{refused} refusals gave {} lines: {summaries:?}", summaries.len());
     server.stop().await;
+
+    // Over TLS the connection's information reaches the calls too: the failed call's line
+    // names its peer, not "unknown".
+    let ca = {
+        let mut params = rcgen::CertificateParams::new(Vec::<String>::new()).expect("params");
+        params.is_ca = rcgen::IsCa::Ca(rcgen::BasicConstraints::Unconstrained);
+        rcgen::CertifiedIssuer::self_signed(params, rcgen::KeyPair::generate().expect("key")).expect("CA")
+    };
+    let key = rcgen::KeyPair::generate().expect("key");
+    let cert = rcgen::CertificateParams::new(vec!["127.0.0.1".to_string()])
+        .expect("params")
+        .signed_by(&key, &ca)
+        .expect("certificate");
+    let tls = jetloop_server::config::TlsFiles {
+        cert_pem: cert.pem().into_bytes(),
+        key_pem: key.serialize_pem().into_bytes(),
+        client_ca_pem: None,
+    };
+    let server = TestServer::start_with_options(jetloop_server::config::ServeOptions {
+        tls: Some(tls),
+        drain_notice: Duration::ZERO,
+        ..Default::default()
+    })
+    .await;
+    let ch = tonic::transport::Endpoint::from_shared(server.url().replace("http://", "https://"))
+        .expect("url")
+        .tls_config(
+            tonic::transport::ClientTlsConfig::new()
+                .ca_certificate(tonic::transport::Certificate::from_pem(ca.pem())),
+        )
+        .expect("tls")
+        .connect()
+        .await
+        .expect("TLS connect");
+    let e = GasDynamicsServiceClient::new(ch)
+        .normal_shock(pb::NormalShockRequest { gamma: Some(9.0), upstream_mach_number: 2.0 })
+        .await
+        .unwrap_err();
+    assert_eq!(e.code(), Code::InvalidArgument);
+    let mut over_tls = Vec::new();
+    for _ in 0..500 {
+        over_tls = log.lines("call failed");
+        if over_tls.len() >= 2 {
+            break;
+        }
+        tokio::time::sleep(Duration::from_millis(10)).await;
+    }
+    assert_eq!(over_tls.len(), 2, "{over_tls:?}");
+    assert!(over_tls[1].contains("127.0.0.1:") && !over_tls[1].contains("unknown"), "{}", over_tls[1]);
+    server.stop().await;
 }
