@@ -401,7 +401,8 @@ pub fn inbound_status(status: &Status) -> Option<Status> {
 
 /// The method path and the peer address of a call, for its log lines.
 fn call_names<B>(req: &http::Request<B>) -> (Method, Peer) {
-    (Method(req.uri().clone()), Peer(crate::connections::ConnInfo::of(req).and_then(|c| c.remote_addr)))
+    let peer = req.extensions().get::<crate::connections::ConnInfo>().and_then(|c| c.remote_addr);
+    (Method(req.uri().clone()), Peer(peer))
 }
 
 /// A call's method path, for log lines (the URI is shared, not copied, until printed).
@@ -648,7 +649,14 @@ route_service!(Deadline, |self, req| {
         // Dropped with this future (the caller went away): the work stops too.
         let guard = CancelOnDrop(cancel.clone());
         let mut fut = Box::pin(fut);
-        match tokio::time::timeout(limit, &mut fut).await {
+        // Most calls (physics answered on the reactor) are done at their first poll: they
+        // need no timer at all.
+        let first = std::future::poll_fn(|cx| Poll::Ready(fut.as_mut().poll(cx))).await;
+        let outcome = match first {
+            Poll::Ready(r) => Ok(r),
+            Poll::Pending => tokio::time::timeout(limit, &mut fut).await,
+        };
+        match outcome {
             // The answer is ready: the permit and the time limit now cover its sending.
             Ok(Ok(resp)) => Ok(send_guarded(resp, admitted, conn, started + send_limit, method)),
             Ok(Err(e)) => Err(e),
