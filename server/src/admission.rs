@@ -264,7 +264,10 @@ fn send_guarded(
     let out = conn.as_ref().map(|c| c.watch_send(at, method.0.clone()));
     let pending = Pending { admitted, conn, written_at_ready, yielded: 0, out };
     let (parts, body) = resp.into_parts();
-    http::Response::from_parts(parts, Body::new(SendGuard { inner: body, pending: Some(pending) }))
+    http::Response::from_parts(
+        parts,
+        Body::new(Watched { inner: body, watch: SendGuard { pending: Some(pending) } }),
+    )
 }
 
 /// What an answer's body holds until its last byte is out: the permit and the mark that
@@ -277,9 +280,48 @@ struct Pending {
     out: Option<crate::connections::OutOnDrop>,
 }
 
-/// An answer's body that lets its permit go once the answer has left.
+/// Sees an answer's frames as they pass ([`Watched`]); dropped with the body.
+pub(crate) trait FrameWatch: Send + Unpin + 'static {
+    /// A frame the body yielded (data or trailers).
+    fn frame(&mut self, frame: &http_body::Frame<bytes::Bytes>);
+    /// The body ended without trailers.
+    fn end(&mut self);
+}
+
+/// An answer's body passed through unchanged while its watch sees every frame.
+pub(crate) struct Watched<W> {
+    pub(crate) inner: Body,
+    pub(crate) watch: W,
+}
+
+impl<W: FrameWatch> http_body::Body for Watched<W> {
+    type Data = bytes::Bytes;
+    type Error = Status;
+
+    fn poll_frame(
+        mut self: Pin<&mut Self>,
+        cx: &mut Context<'_>,
+    ) -> Poll<Option<Result<http_body::Frame<Self::Data>, Self::Error>>> {
+        let r = Pin::new(&mut self.inner).poll_frame(cx);
+        match &r {
+            Poll::Ready(Some(Ok(f))) => self.watch.frame(f),
+            Poll::Ready(None) => self.watch.end(),
+            Poll::Ready(Some(Err(_))) | Poll::Pending => {}
+        }
+        r
+    }
+
+    fn is_end_stream(&self) -> bool {
+        self.inner.is_end_stream()
+    }
+
+    fn size_hint(&self) -> http_body::SizeHint {
+        self.inner.size_hint()
+    }
+}
+
+/// Lets an answer's permit go once the answer has left (the watch of [`send_guarded`]).
 struct SendGuard {
-    inner: Body,
     pending: Option<Pending>,
 }
 
@@ -304,35 +346,17 @@ impl Drop for SendGuard {
     }
 }
 
-impl http_body::Body for SendGuard {
-    type Data = bytes::Bytes;
-    type Error = Status;
-
-    fn poll_frame(
-        mut self: Pin<&mut Self>,
-        cx: &mut Context<'_>,
-    ) -> Poll<Option<Result<http_body::Frame<Self::Data>, Self::Error>>> {
-        let r = Pin::new(&mut self.inner).poll_frame(cx);
-        match &r {
-            Poll::Ready(Some(Ok(f))) if f.is_trailers() => self.finish(true),
-            Poll::Ready(Some(Ok(f))) => {
-                let n = f.data_ref().map_or(0, |d| d.len() as u64);
-                if let Some(p) = &mut self.pending {
-                    p.yielded += n;
-                }
-            }
-            Poll::Ready(None) => self.finish(true),
-            Poll::Ready(Some(Err(_))) | Poll::Pending => {}
+impl FrameWatch for SendGuard {
+    fn frame(&mut self, f: &http_body::Frame<bytes::Bytes>) {
+        if f.is_trailers() {
+            self.finish(true);
+        } else if let Some(p) = &mut self.pending {
+            p.yielded += f.data_ref().map_or(0, |d| d.len() as u64);
         }
-        r
     }
 
-    fn is_end_stream(&self) -> bool {
-        self.inner.is_end_stream()
-    }
-
-    fn size_hint(&self) -> http_body::SizeHint {
-        self.inner.size_hint()
+    fn end(&mut self) {
+        self.finish(true);
     }
 }
 
@@ -450,8 +474,10 @@ macro_rules! route_service {
         }
     };
 }
+pub(crate) use route_service;
 
-type BoxFuture<R, E> = Pin<Box<dyn Future<Output = Result<R, E>> + Send>>;
+/// The boxed future every layer answers with.
+pub(crate) type BoxFuture<R, E> = Pin<Box<dyn Future<Output = Result<R, E>> + Send>>;
 
 /// Bearer-token check: with tokens configured, every call but health checks must carry
 /// `authorization: Bearer <token>` with one of them (compared in constant time), else it is

@@ -6,11 +6,11 @@
 //! caller sending random paths cannot grow the label set (they count as `other`). Counting is
 //! lock-free (atomics in a table built once).
 
+use crate::admission::{route_service, BoxFuture, FrameWatch, Watched};
 use crate::service::budget::SampleBudget;
 use crate::service::Computing;
 use std::collections::HashMap;
 use std::fmt::Write as _;
-use std::pin::Pin;
 use std::sync::atomic::{AtomicI64, AtomicU64, Ordering::Relaxed};
 use std::sync::Arc;
 use std::task::{Context, Poll};
@@ -287,47 +287,30 @@ pub struct Measured<S> {
     metrics: Option<Arc<Metrics>>,
 }
 
-type BoxFuture<R, E> = Pin<Box<dyn std::future::Future<Output = Result<R, E>> + Send>>;
-
-impl<S, B> tower::Service<http::Request<B>> for Measured<S>
-where
-    S: tower::Service<http::Request<B>, Response = http::Response<Body>> + Send + 'static,
-    S::Future: Send + 'static,
-    S::Error: Send + 'static,
-{
-    type Response = http::Response<Body>;
-    type Error = S::Error;
-    type Future = BoxFuture<Self::Response, Self::Error>;
-
-    fn poll_ready(&mut self, cx: &mut Context<'_>) -> Poll<Result<(), Self::Error>> {
-        self.inner.poll_ready(cx)
-    }
-
-    fn call(&mut self, req: http::Request<B>) -> Self::Future {
-        let Some(metrics) = self.metrics.clone() else {
-            return Box::pin(self.inner.call(req));
+route_service!(Measured, |self, req| {
+    let Some(metrics) = self.metrics.clone() else {
+        return Box::pin(self.inner.call(req));
+    };
+    let method = metrics.method(req.uri().path());
+    metrics.start(method);
+    let started = Instant::now();
+    let mut watch = Finish { metrics, method, started, code: None, done: false };
+    let fut = self.inner.call(req);
+    Box::pin(async move {
+        let resp = match fut.await {
+            Ok(r) => r,
+            Err(e) => {
+                watch.code = Some(14);
+                drop(watch);
+                return Err(e);
+            }
         };
-        let method = metrics.method(req.uri().path());
-        metrics.start(method);
-        let started = Instant::now();
-        let mut watch = Finish { metrics, method, started, code: None, done: false };
-        let fut = self.inner.call(req);
-        Box::pin(async move {
-            let resp = match fut.await {
-                Ok(r) => r,
-                Err(e) => {
-                    watch.code = Some(14);
-                    drop(watch);
-                    return Err(e);
-                }
-            };
-            // A trailers-only answer (errors, refusals) has its status in the headers.
-            watch.code = header_code(resp.headers());
-            let (parts, body) = resp.into_parts();
-            Ok(http::Response::from_parts(parts, Body::new(Observed { inner: body, finish: watch })))
-        })
-    }
-}
+        // A trailers-only answer (errors, refusals) has its status in the headers.
+        watch.code = header_code(resp.headers());
+        let (parts, body) = resp.into_parts();
+        Ok(http::Response::from_parts(parts, Body::new(Watched { inner: body, watch })))
+    })
+});
 
 fn header_code(h: &http::HeaderMap) -> Option<usize> {
     h.get("grpc-status").and_then(|v| v.to_str().ok()).and_then(|v| v.parse().ok())
@@ -359,42 +342,18 @@ impl Drop for Finish {
     }
 }
 
-/// An answer's body that records the call when it ends.
-struct Observed {
-    inner: Body,
-    finish: Finish,
-}
-
-impl http_body::Body for Observed {
-    type Data = bytes::Bytes;
-    type Error = tonic::Status;
-
-    fn poll_frame(
-        mut self: Pin<&mut Self>,
-        cx: &mut Context<'_>,
-    ) -> Poll<Option<Result<http_body::Frame<Self::Data>, Self::Error>>> {
-        let r = Pin::new(&mut self.inner).poll_frame(cx);
-        match &r {
-            Poll::Ready(Some(Ok(f))) => {
-                if let Some(t) = f.trailers_ref() {
-                    if let Some(c) = header_code(t) {
-                        self.finish.code = Some(c);
-                    }
-                    self.finish.record();
-                }
+impl FrameWatch for Finish {
+    fn frame(&mut self, f: &http_body::Frame<bytes::Bytes>) {
+        if let Some(t) = f.trailers_ref() {
+            if let Some(c) = header_code(t) {
+                self.code = Some(c);
             }
-            Poll::Ready(None) => self.finish.record(),
-            Poll::Ready(Some(Err(_))) | Poll::Pending => {}
+            self.record();
         }
-        r
     }
 
-    fn is_end_stream(&self) -> bool {
-        self.inner.is_end_stream()
-    }
-
-    fn size_hint(&self) -> http_body::SizeHint {
-        self.inner.size_hint()
+    fn end(&mut self) {
+        self.record();
     }
 }
 

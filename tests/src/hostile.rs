@@ -125,17 +125,7 @@ pub fn seeds() -> Vec<Seed> {
         }),
         ..Default::default()
     };
-    let track_first = pb::TrackRequest {
-        item: Some(pb::track_request::Item::Config(pb::TrackConfig {
-            analysis: Some(pb::ExtractTonesRequest {
-                samples: raw_f32(1, 48_000.0, Vec::new()),
-                welch: welch(512),
-                ..Default::default()
-            }),
-            update_interval_s: Some(0.02),
-            ..Default::default()
-        })),
-    };
+    let track_first = fixtures::track_config(48_000.0, 512, 0.02);
     let frames = |b: Vec<u8>| pb::TrackRequest { item: Some(pb::track_request::Item::Frames(b)) };
     vec![
         Seed {

@@ -287,6 +287,34 @@ pub mod fixtures {
             .collect()
     }
 
+    /// The first message of a tracking stream: f32 frames of one channel at `fs` Hz already in
+    /// pascals, Welch segments of `segment` samples, an update every `update_s` s; every other
+    /// setting left to the server.
+    pub fn track_config(fs: f64, segment: u32, update_s: f64) -> pb::TrackRequest {
+        pb::TrackRequest {
+            item: Some(pb::track_request::Item::Config(pb::TrackConfig {
+                analysis: Some(pb::ExtractTonesRequest {
+                    samples: Some(pb::Samples {
+                        sample_rate_hz: fs,
+                        data: Some(pb::samples::Data::Raw(pb::RawSamples {
+                            format: pb::SampleFormat::F32Le as i32,
+                            data: Vec::new().into(),
+                        })),
+                        calibration: crate::in_pascals(),
+                        ..Default::default()
+                    }),
+                    welch: Some(pb::WelchOptions {
+                        segment: Some(pb::welch_options::Segment::SegmentLength(segment)),
+                        ..Default::default()
+                    }),
+                    ..Default::default()
+                }),
+                update_interval_s: Some(update_s),
+                ..Default::default()
+            })),
+        }
+    }
+
     /// A cold round jet given directly: Mj and Dj in m.
     pub fn direct(mj: f64, dj: f64) -> pb::JetInput {
         pb::JetInput {

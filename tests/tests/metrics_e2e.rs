@@ -52,31 +52,6 @@ fn mach(m: f64) -> pb::IsentropicRatiosRequest {
     }
 }
 
-fn track_config() -> pb::TrackRequest {
-    pb::TrackRequest {
-        item: Some(pb::track_request::Item::Config(pb::TrackConfig {
-            analysis: Some(pb::ExtractTonesRequest {
-                samples: Some(pb::Samples {
-                    sample_rate_hz: 48_000.0,
-                    data: Some(pb::samples::Data::Raw(pb::RawSamples {
-                        format: pb::SampleFormat::F32Le as i32,
-                        data: Vec::new().into(),
-                    })),
-                    calibration: jetloop_tests::in_pascals(),
-                    ..Default::default()
-                }),
-                welch: Some(pb::WelchOptions {
-                    segment: Some(pb::welch_options::Segment::SegmentLength(2048)),
-                    ..Default::default()
-                }),
-                ..Default::default()
-            }),
-            update_interval_s: Some(0.1),
-            ..Default::default()
-        })),
-    }
-}
-
 #[tokio::test]
 async fn the_metrics_endpoint_counts_what_happened() {
     let metrics = tokio::net::TcpListener::bind("127.0.0.1:0").await.expect("bind metrics");
@@ -126,7 +101,7 @@ async fn the_metrics_endpoint_counts_what_happened() {
 
     // A tracking stream holds the only permit; a call meanwhile is shed. 1000 f32 frames.
     let (tx, rx) = tokio::sync::mpsc::channel(4);
-    tx.send(track_config()).await.expect("send config");
+    tx.send(jetloop_tests::fixtures::track_config(48_000.0, 2048, 0.1)).await.expect("send config");
     tx.send(pb::TrackRequest { item: Some(pb::track_request::Item::Frames(vec![0u8; 4000])) })
         .await
         .expect("send frames");

@@ -54,11 +54,15 @@ async fn call(server: &TestServer, trust: &Ca, identity: Option<(String, String)
         tls = tls.identity(Identity::from_pem(cert, key));
     }
     let url = server.url().replace("http://", "https://");
-    let ep = Endpoint::from_shared(url)
-        .map_err(|e| e.to_string())?
-        .tls_config(tls)
-        .map_err(|e| e.to_string())?
-        .timeout(std::time::Duration::from_secs(10));
+    let ep =
+        Endpoint::from_shared(url).map_err(|e| e.to_string())?.tls_config(tls).map_err(|e| e.to_string())?;
+    server_info(ep).await
+}
+
+/// Connects through `ep` (10 s limits) and calls `ServerInfo`: Ok, or the error text.
+async fn server_info(ep: Endpoint) -> Result<(), String> {
+    let ep =
+        ep.timeout(std::time::Duration::from_secs(10)).connect_timeout(std::time::Duration::from_secs(10));
     let channel = ep.connect().await.map_err(|e| format!("connect: {e:?}"))?;
     InfoServiceClient::new(channel)
         .server_info(pb::ServerInfoRequest {})
@@ -69,16 +73,7 @@ async fn call(server: &TestServer, trust: &Ca, identity: Option<(String, String)
 
 /// A plaintext HTTP/2 call to a TLS port.
 async fn plaintext_call(server: &TestServer) -> Result<(), String> {
-    let ep = Endpoint::from_shared(server.url())
-        .map_err(|e| e.to_string())?
-        .timeout(std::time::Duration::from_secs(10))
-        .connect_timeout(std::time::Duration::from_secs(10));
-    let channel = ep.connect().await.map_err(|e| format!("connect: {e:?}"))?;
-    InfoServiceClient::new(channel)
-        .server_info(pb::ServerInfoRequest {})
-        .await
-        .map(|_| ())
-        .map_err(|e| format!("call: {e:?}"))
+    server_info(Endpoint::from_shared(server.url()).map_err(|e| e.to_string())?).await
 }
 
 #[tokio::test]

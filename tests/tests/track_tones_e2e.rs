@@ -8,32 +8,13 @@ use std::f64::consts::PI;
 use tonic::Code;
 
 fn config(fs: f64) -> pb::TrackRequest {
-    pb::TrackRequest {
-        item: Some(pb::track_request::Item::Config(pb::TrackConfig {
-            analysis: Some(pb::ExtractTonesRequest {
-                samples: Some(pb::Samples {
-                    sample_rate_hz: fs,
-                    data: Some(pb::samples::Data::Raw(pb::RawSamples {
-                        format: pb::SampleFormat::F32Le as i32,
-                        data: Vec::new().into(),
-                    })),
-                    calibration: jetloop_tests::in_pascals(),
-                    ..Default::default()
-                }),
-                welch: Some(pb::WelchOptions {
-                    segment: Some(pb::welch_options::Segment::SegmentLength(2048)),
-                    ..Default::default()
-                }),
-                tones: Some(pb::ToneOptions { threshold_db: Some(10.0), ..Default::default() }),
-                ..Default::default()
-            }),
-            window_s: None,
-            update_interval_s: Some(0.1),
-            jump_fraction: None,
-            reference_channel: None,
-            positions: Vec::new(),
-        })),
+    let mut r = jetloop_tests::fixtures::track_config(fs, 2048, 0.1);
+    if let Some(pb::track_request::Item::Config(c)) = &mut r.item {
+        if let Some(a) = &mut c.analysis {
+            a.tones = Some(pb::ToneOptions { threshold_db: Some(10.0), ..Default::default() });
+        }
     }
+    r
 }
 
 fn frames(x: &[f64]) -> pb::TrackRequest {
