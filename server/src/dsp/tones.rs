@@ -208,7 +208,10 @@ pub fn floor_estimate(p: &[f64], width: usize) -> Vec<f64> {
         // their ranks instead of a removal and an insertion.
         if hi < want_hi && lo < want_lo {
             let (x_out, x_in) = (logs[lo], logs[hi]);
-            let (i_out, i_in) = (rank(&win, x_out), rank(&win, x_in));
+            // Both ranks in one pass over the window.
+            let (i_out, i_in) = win
+                .iter()
+                .fold((0, 0), |(a, b), v| (a + usize::from(*v < x_out), b + usize::from(*v < x_in)));
             if i_in > i_out {
                 win.copy_within(i_out + 1..i_in, i_out);
                 win[i_in - 1] = x_in;
