@@ -324,9 +324,11 @@ struct SendWatch {
     wake: tokio::sync::Notify,
     started: AtomicBool,
     closed: AtomicBool,
+    /// List length at which answers already out are dropped (at least [`PRUNE_AT`]).
+    prune_at: std::sync::atomic::AtomicUsize,
 }
 
-/// Entries at which `watch` drops answers already out before adding one.
+/// Least list length at which `watch_send` drops answers already out before adding one.
 const PRUNE_AT: usize = 64;
 
 fn nanos(t: tokio::time::Instant) -> u64 {
@@ -405,8 +407,12 @@ impl ConnInfo {
         let w = &self.sends;
         {
             let mut list = w.list.lock().unwrap_or_else(|e| e.into_inner());
-            if list.len() >= PRUNE_AT {
+            let prune_at = w.prune_at.load(Ordering::Relaxed).max(PRUNE_AT);
+            if list.len() >= prune_at {
                 list.retain(|s| !s.out.load(Ordering::SeqCst));
+                // Many answers genuinely in flight: prune again only when the list doubles,
+                // so the cost per call stays constant.
+                w.prune_at.store(2 * list.len(), Ordering::Relaxed);
             }
             list.push(sending.clone());
         }
