@@ -1,4 +1,4 @@
-//! Hostile input for every RPC: one valid seed request per method, mutations at the protobuf
+//! Hostile input for every RPC: one valid base call per method, mutations at the protobuf
 //! level (bit flips, truncation, inserted and replaced bytes, huge length-delimited lengths,
 //! wrong wire types, extreme numbers, repeated messages, random bytes) and at the gRPC framing
 //! level (huge or wrong length prefixes, a compressed flag without an encoding, cut headers,
@@ -45,7 +45,7 @@ impl Rng {
 
 /// A method and the messages of one valid call (one for unary methods, several for streams).
 #[derive(Debug, Clone)]
-pub struct Seed {
+pub struct BaseCall {
     /// `/package.Service/Method`.
     pub path: &'static str,
     /// Encoded request messages, in order.
@@ -86,7 +86,7 @@ fn raw_f32(channels: u32, fs: f64, data: Vec<u8>) -> Option<pb::Samples> {
     })
 }
 
-/// The tones request used by the spectral seeds: 2048 values of a 3 kHz tone at 48 kHz,
+/// The tones request used by the spectral base_calls: 2048 values of a 3 kHz tone at 48 kHz,
 /// 512-sample segments.
 fn tones_request() -> pb::ExtractTonesRequest {
     pb::ExtractTonesRequest {
@@ -103,8 +103,8 @@ fn tones_request() -> pb::ExtractTonesRequest {
     }
 }
 
-/// One valid seed per RPC of every jetloop service, and the health check.
-pub fn seeds() -> Vec<Seed> {
+/// One valid base call per RPC of every jetloop service, and the health check.
+pub fn base_calls() -> Vec<BaseCall> {
     use fixtures::{conditions, inch_nozzle, round};
     let f32s = |n: usize, f: f64| -> Vec<u8> {
         tone_values(n, 48_000.0, f).iter().flat_map(|v| (*v as f32).to_le_bytes()).collect()
@@ -128,7 +128,7 @@ pub fn seeds() -> Vec<Seed> {
     let track_first = fixtures::track_config(48_000.0, 512, 0.02);
     let frames = |b: Vec<u8>| pb::TrackRequest { item: Some(pb::track_request::Item::Frames(b)) };
     vec![
-        Seed {
+        BaseCall {
             path: "/jetloop.v1.GasDynamicsService/IsentropicRatios",
             messages: vec![enc(&pb::IsentropicRatiosRequest {
                 given: Some(pb::isentropic_ratios_request::Given::MachNumber(2.0)),
@@ -136,28 +136,28 @@ pub fn seeds() -> Vec<Seed> {
             })],
             weight: 10,
         },
-        Seed {
+        BaseCall {
             path: "/jetloop.v1.GasDynamicsService/NormalShock",
             messages: vec![enc(&pb::NormalShockRequest { gamma: Some(1.4), upstream_mach_number: 2.0 })],
             weight: 10,
         },
-        Seed {
+        BaseCall {
             path: "/jetloop.v1.GasDynamicsService/JetState",
             messages: vec![enc(&pb::JetStateRequest { conditions: Some(conditions(round(0.0254), 4.0)) })],
             weight: 10,
         },
-        Seed { path: "/jetloop.v1.InfoService/ServerInfo", messages: vec![Vec::new()], weight: 3 },
-        Seed {
+        BaseCall { path: "/jetloop.v1.InfoService/ServerInfo", messages: vec![Vec::new()], weight: 3 },
+        BaseCall {
             path: "/jetloop.v1.ShockCellService/CellSpacing",
             messages: vec![enc(&pb::CellSpacingRequest { jet: Some(inch_nozzle(4.0)), options: None })],
             weight: 10,
         },
-        Seed {
+        BaseCall {
             path: "/jetloop.v1.ToneService/PredictScreech",
             messages: vec![enc(&pb::PredictScreechRequest { jet: Some(inch_nozzle(4.0)), options: None })],
             weight: 10,
         },
-        Seed {
+        BaseCall {
             path: "/jetloop.v1.ToneService/PredictShockNoise",
             messages: vec![enc(&pb::PredictShockNoiseRequest {
                 jet: Some(inch_nozzle(4.0)),
@@ -166,7 +166,7 @@ pub fn seeds() -> Vec<Seed> {
             })],
             weight: 8,
         },
-        Seed {
+        BaseCall {
             path: "/jetloop.v1.ToneService/SweepScreech",
             messages: vec![enc(&pb::SweepScreechRequest {
                 jet: Some(inch_nozzle(3.0)),
@@ -180,7 +180,7 @@ pub fn seeds() -> Vec<Seed> {
             })],
             weight: 5,
         },
-        Seed {
+        BaseCall {
             path: "/jetloop.v1.ToneService/GuidedModes",
             messages: vec![enc(&pb::GuidedModesRequest {
                 source: Some(pb::guided_modes_request::Source::Jet(inch_nozzle(4.0))),
@@ -189,7 +189,7 @@ pub fn seeds() -> Vec<Seed> {
             })],
             weight: 2,
         },
-        Seed {
+        BaseCall {
             path: "/jetloop.v1.StagingService/FitStages",
             messages: vec![enc(&pb::FitStagesRequest {
                 control: pb::ControlVariable::NozzlePressureRatio as i32,
@@ -198,12 +198,12 @@ pub fn seeds() -> Vec<Seed> {
             })],
             weight: 3,
         },
-        Seed {
+        BaseCall {
             path: "/jetloop.v1.SpectrumService/ExtractTones",
             messages: vec![enc(&tones_request())],
             weight: 6,
         },
-        Seed {
+        BaseCall {
             path: "/jetloop.v1.SpectrumService/BandLevels",
             messages: vec![enc(&pb::BandLevelsRequest {
                 samples: tones_request().samples,
@@ -212,7 +212,7 @@ pub fn seeds() -> Vec<Seed> {
             })],
             weight: 4,
         },
-        Seed {
+        BaseCall {
             path: "/jetloop.v1.SpectrumService/CrossSpectra",
             messages: vec![enc(&pb::CrossSpectraRequest {
                 samples: raw_f32(2, 48_000.0, crate::ring_f32(2, 2048, 48_000.0, 3)),
@@ -221,7 +221,7 @@ pub fn seeds() -> Vec<Seed> {
             })],
             weight: 4,
         },
-        Seed {
+        BaseCall {
             path: "/jetloop.v1.SpectrumService/AnalyseRamp",
             messages: vec![enc(&pb::AnalyseRampRequest {
                 samples: raw_f32(2, 48_000.0, ramp),
@@ -238,7 +238,7 @@ pub fn seeds() -> Vec<Seed> {
             })],
             weight: 3,
         },
-        Seed {
+        BaseCall {
             path: "/jetloop.v1.SpectrumService/ExtractTonesStream",
             messages: vec![
                 enc(&stream_first),
@@ -247,7 +247,7 @@ pub fn seeds() -> Vec<Seed> {
             ],
             weight: 4,
         },
-        Seed {
+        BaseCall {
             path: "/jetloop.v1.SpectrumService/TrackTones",
             messages: vec![
                 enc(&track_first),
@@ -256,7 +256,7 @@ pub fn seeds() -> Vec<Seed> {
             ],
             weight: 3,
         },
-        Seed {
+        BaseCall {
             path: "/grpc.health.v1.Health/Check",
             messages: vec![enc(&tonic_health::pb::HealthCheckRequest { service: String::new() })],
             weight: 2,
@@ -264,17 +264,17 @@ pub fn seeds() -> Vec<Seed> {
     ]
 }
 
-/// Picks a seed by weight.
-pub fn pick<'a>(rng: &mut Rng, seeds: &'a [Seed]) -> &'a Seed {
-    let total: usize = seeds.iter().map(|s| s.weight).sum();
+/// Picks a base call by weight.
+pub fn pick<'a>(rng: &mut Rng, base_calls: &'a [BaseCall]) -> &'a BaseCall {
+    let total: usize = base_calls.iter().map(|s| s.weight).sum();
     let mut r = rng.below(total);
-    for s in seeds {
+    for s in base_calls {
         if r < s.weight {
             return s;
         }
         r -= s.weight;
     }
-    &seeds[0]
+    &base_calls[0]
 }
 
 /// Extreme doubles: NaN, infinities, the largest and smallest, negative zero, a denormal.
@@ -423,10 +423,10 @@ pub fn frame(msg: &[u8]) -> Vec<u8> {
     f
 }
 
-/// A whole mutated request body for `seed`: usually its messages framed with one of them
+/// A whole mutated request body for `base`: usually its messages framed with one of them
 /// mutated, sometimes a framing-level defect.
-pub fn mutate_body(rng: &mut Rng, seed: &Seed) -> Vec<u8> {
-    let mut msgs = seed.messages.clone();
+pub fn mutate_body(rng: &mut Rng, base: &BaseCall) -> Vec<u8> {
+    let mut msgs = base.messages.clone();
     let k = rng.below(msgs.len());
     msgs[k] = mutate_message(rng, &msgs[k]);
     let framed: Vec<u8> = msgs.iter().flat_map(|m| frame(m)).collect();
@@ -572,7 +572,7 @@ pub fn memory() -> Option<(u64, u64)> {
 /// In-process fuzzing: the handlers of every RPC called directly (no socket) with mutated
 /// messages, and the sample decoders checked against a plain reference decode.
 pub mod in_process {
-    use super::{mutate_message, pick, Rng, Seed};
+    use super::{mutate_message, pick, BaseCall, Rng};
     use jetloop_proto::pb::{
         self, gas_dynamics_service_server::GasDynamicsService, info_service_server::InfoService,
         shock_cell_service_server::ShockCellService, spectrum_service_server::SpectrumService,
@@ -696,16 +696,16 @@ pub mod in_process {
         }
     }
 
-    /// One mutated call of a seed picked by `rng`; the path and the result.
+    /// One mutated call of a base call picked by `rng`; the path and the result.
     pub async fn one(
         h: &Handlers,
-        seeds: &[Seed],
+        base_calls: &[BaseCall],
         rng: &mut Rng,
     ) -> (&'static str, Result<Option<Code>, String>) {
         // jetloop's own methods (the health service is exercised over the socket).
-        let mut s = pick(rng, seeds);
+        let mut s = pick(rng, base_calls);
         while !s.path.starts_with("/jetloop.v1.") {
-            s = pick(rng, seeds);
+            s = pick(rng, base_calls);
         }
         let mut msgs = s.messages.clone();
         let k = rng.below(msgs.len());

@@ -47,14 +47,14 @@ async fn oversize_and_100k_mutated_requests_get_proper_statuses_in_bounded_memor
     // The mutated requests: 4 connections, 16 calls in flight on each.
     let total = env_or("JETLOOP_MUTATED_REQUESTS", 100_000);
     let seed = env_or("JETLOOP_MUTATION_SEED", 0x0005_EED0_F4A7);
-    let seeds = std::sync::Arc::new(hostile::seeds());
+    let base_calls = std::sync::Arc::new(hostile::base_calls());
     let next = std::sync::Arc::new(std::sync::atomic::AtomicU64::new(0));
     let started = Instant::now();
     let mut workers = Vec::new();
     for _ in 0..4 {
         let client = hostile::connect(server.addr).await.expect("connect");
         for _ in 0..16 {
-            let (mut client, seeds, next) = (client.clone(), seeds.clone(), next.clone());
+            let (mut client, base_calls, next) = (client.clone(), base_calls.clone(), next.clone());
             workers.push(tokio::spawn(async move {
                 let mut tally: BTreeMap<(String, String), u64> = BTreeMap::new();
                 let mut bad = Vec::new();
@@ -64,7 +64,7 @@ async fn oversize_and_100k_mutated_requests_get_proper_statuses_in_bounded_memor
                         break;
                     }
                     let mut rng = Rng::new(seed ^ i.wrapping_mul(0x2545_F491_4F6C_DD1D));
-                    let s = hostile::pick(&mut rng, &seeds);
+                    let s = hostile::pick(&mut rng, &base_calls);
                     let body = hostile::mutate_body(&mut rng, s);
                     let out = hostile::send(&mut client, s.path, body).await;
                     let key = match &out {
@@ -105,7 +105,7 @@ async fn oversize_and_100k_mutated_requests_get_proper_statuses_in_bounded_memor
     assert!(bad.is_empty(), "improper answers (replay with JETLOOP_MUTATION_SEED={seed}): {bad:#?}");
     // Every method was reached, and mutations were not all refused at the door: some were
     // still valid requests and answered OK.
-    for s in seeds.iter() {
+    for s in base_calls.iter() {
         assert!(tally.keys().any(|(p, _)| p == s.path), "{} never called", s.path);
     }
     assert!(by_code.get("0").copied().unwrap_or(0) > total / 100, "{by_code:?}");

@@ -54,8 +54,9 @@ impl Spectrum {
         let work = super::work_of(&request);
         let req = request.into_inner();
         let mut held = Held::default();
-        self.budget.take(&mut held, held_bytes(samples(&req)), "samples")?;
-        self.count(held_bytes(samples(&req)), sample_width(samples(&req)));
+        let bytes = held_bytes(samples(&req));
+        self.budget.take(&mut held, bytes, "samples")?;
+        self.count(bytes, sample_width(samples(&req)));
         let r = super::blocking(what, work, move |c| f(req, c)).await?;
         drop(held);
         Ok(Response::new(r))
@@ -176,15 +177,12 @@ impl SpectrumService for Spectrum {
                 description: "config is required: the tracking stream ended before its first message".into(),
             }]))
         })?;
-        let width = match &first.item {
-            Some(pb::track_request::Item::Config(c)) => {
-                sample_width(c.analysis.as_ref().and_then(|a| a.samples.as_ref()))
-            }
-            _ => 0,
+        let first_samples = match &first.item {
+            Some(pb::track_request::Item::Config(c)) => c.analysis.as_ref().and_then(|a| a.samples.as_ref()),
+            _ => None,
         };
-        if let Some(pb::track_request::Item::Config(c)) = &first.item {
-            self.count(held_bytes(c.analysis.as_ref().and_then(|a| a.samples.as_ref())), width);
-        }
+        let width = sample_width(first_samples);
+        self.count(held_bytes(first_samples), width);
         let metrics = self.metrics.clone();
         let (mut session, first_updates) = TrackSession::start(first)?;
         // The session's analysis windows count against the server-wide sample budget for as

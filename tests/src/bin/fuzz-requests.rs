@@ -8,7 +8,7 @@
 //! (`tests/tests/fuzz_short.rs`).
 #![forbid(unsafe_code)]
 
-use jetloop_tests::hostile::{in_process, seeds, Rng};
+use jetloop_tests::hostile::{base_calls, in_process, Rng};
 use std::collections::BTreeMap;
 use std::time::{Duration, Instant};
 
@@ -18,7 +18,7 @@ async fn main() {
     let seed: u64 = std::env::args().nth(2).and_then(|s| s.parse().ok()).unwrap_or_else(|| {
         std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map_or(1, |d| d.as_nanos() as u64)
     });
-    let seeds = seeds();
+    let base_calls = base_calls();
     let h = in_process::Handlers::default();
     let end = Instant::now() + Duration::from_secs_f64(secs);
     let (mut calls, mut recordings) = (0u64, 0u64);
@@ -36,7 +36,7 @@ async fn main() {
             continue;
         }
         calls += 1;
-        let (path, r) = in_process::one(&h, &seeds, &mut rng).await;
+        let (path, r) = in_process::one(&h, &base_calls, &mut rng).await;
         match r {
             Ok(code) => {
                 *codes.entry(code.map_or("not decoded".into(), |c| format!("{c:?}"))).or_default() += 1
