@@ -189,52 +189,104 @@ impl ToneSet {
 /// Running median of ln(p) over `width` bins (made odd), exponentiated. Near the ends the
 /// window is cut short, and for an even count the upper median is taken.
 ///
-/// The window is kept sorted as it slides (one binary-search insert and one removal per bin),
-/// so the cost is O(n w) memory moves of a few cache lines rather than a selection per bin.
+/// The values are ranked once (one sort of the whole spectrum) and the window is a bit set over
+/// the ranks: a bin entering or leaving sets or clears one bit, and the median moves to a
+/// neighbouring set bit (one or two word scans) as the window slides. So the cost is one sort
+/// plus O(n) word operations, whatever the width.
 pub fn floor_estimate(p: &[f64], width: usize) -> Vec<f64> {
+    let n = p.len();
     let half = width.max(3) / 2;
     // The median of ln(p) is ln of the median of p (ln is increasing and the median is an
     // element), so the values are ranked as they are: no logarithms to take.
-    let logs: Vec<f64> = p.iter().map(|v| v.max(f64::MIN_POSITIVE)).collect();
-    let mut win: Vec<f64> = Vec::with_capacity(2 * half + 1);
-    let (mut lo, mut hi) = (0, 0);
-    let mut out = Vec::with_capacity(p.len());
-    // Rank of x in the sorted window: a branch-free count beats a binary search on a window
-    // this short.
-    let rank = |win: &[f64], x: f64| win.iter().filter(|v| **v < x).count();
-    for k in 0..p.len() {
-        let (want_lo, want_hi) = (k.saturating_sub(half), (k + half + 1).min(p.len()));
-        // In the interior one value leaves and one enters: one shift of the values between
-        // their ranks instead of a removal and an insertion.
-        if hi < want_hi && lo < want_lo {
-            let (x_out, x_in) = (logs[lo], logs[hi]);
-            // Both ranks in one pass over the window.
-            let (i_out, i_in) = win
-                .iter()
-                .fold((0, 0), |(a, b), v| (a + usize::from(*v < x_out), b + usize::from(*v < x_in)));
-            if i_in > i_out {
-                win.copy_within(i_out + 1..i_in, i_out);
-                win[i_in - 1] = x_in;
-            } else {
-                win.copy_within(i_in..i_out, i_in + 1);
-                win[i_in] = x_in;
-            }
-            lo += 1;
-            hi += 1;
-        }
+    let vals: Vec<f64> = p.iter().map(|v| v.max(f64::MIN_POSITIVE)).collect();
+    let order = rank_order(&vals);
+    let mut rank = vec![0usize; n];
+    for (r, &i) in order.iter().enumerate() {
+        rank[i] = r;
+    }
+    let mut bits = vec![0u64; n.div_ceil(64)];
+    // The window [lo, hi) and the rank m of its median, with `below` set bits under m.
+    let (mut lo, mut hi, mut m, mut below) = (0usize, 0usize, 0usize, 0usize);
+    let mut out = Vec::with_capacity(n);
+    for k in 0..n {
+        let (want_lo, want_hi) = (k.saturating_sub(half), (k + half + 1).min(n));
         while hi < want_hi {
-            let x = logs[hi];
-            win.insert(rank(&win, x), x);
+            let r = rank[hi];
+            bits[r >> 6] |= 1 << (r & 63);
+            below += usize::from(r < m);
             hi += 1;
         }
         while lo < want_lo {
-            let x = logs[lo];
-            win.remove(rank(&win, x));
+            let r = rank[lo];
+            bits[r >> 6] &= !(1 << (r & 63));
+            below -= usize::from(r < m);
             lo += 1;
         }
-        out.push(win[win.len() / 2]);
+        // The median is the set bit with exactly `(hi - lo) / 2` set bits below it.
+        let target = (hi - lo) / 2;
+        loop {
+            if below > target {
+                m = previous_set(&bits, m);
+                below -= 1;
+                continue;
+            }
+            let here = bits[m >> 6] >> (m & 63) & 1 == 1;
+            if below == target && here {
+                break;
+            }
+            m = next_set(&bits, m);
+            below += usize::from(here);
+        }
+        out.push(vals[order[m]]);
     }
     out
+}
+
+/// Indices of `vals` (positive, not NaN) in increasing order of value.
+///
+/// Positive floats order as their bit patterns. The patterns are sorted with the index in
+/// their lowest bits (a plain integer sort, the fastest there is), which orders by the
+/// remaining high bits only; runs equal in those are then sorted by the whole value.
+fn rank_order(vals: &[f64]) -> Vec<usize> {
+    let n = vals.len();
+    let shift = usize::BITS - n.leading_zeros();
+    let low = (1u64 << shift) - 1;
+    let mut keys: Vec<u64> = vals.iter().enumerate().map(|(i, v)| (v.to_bits() & !low) | i as u64).collect();
+    keys.sort_unstable();
+    let mut order: Vec<usize> = keys.iter().map(|k| (k & low) as usize).collect();
+    let mut start = 0;
+    for end in 1..=n {
+        if end == n || keys[end] & !low != keys[start] & !low {
+            if end - start > 1 {
+                order[start..end].sort_unstable_by_key(|&i| vals[i].to_bits());
+            }
+            start = end;
+        }
+    }
+    order
+}
+
+/// The first set bit above bit `r` (one exists).
+fn next_set(bits: &[u64], r: usize) -> usize {
+    let r = r + 1;
+    let mut w = r >> 6;
+    let mut word = bits[w] & (!0u64 << (r & 63));
+    while word == 0 {
+        w += 1;
+        word = bits[w];
+    }
+    (w << 6) + word.trailing_zeros() as usize
+}
+
+/// The last set bit below bit `r` (one exists).
+fn previous_set(bits: &[u64], r: usize) -> usize {
+    let mut w = r >> 6;
+    let mut word = bits[w] & ((1u64 << (r & 63)) - 1);
+    while word == 0 {
+        w -= 1;
+        word = bits[w];
+    }
+    (w << 6) + 63 - word.leading_zeros() as usize
 }
 
 /// Sub-bin peak position in bins. The floor is subtracted first so broadband noise under the
@@ -496,9 +548,20 @@ mod tests {
         // The definition: sort the (cut-short) window at each bin and take element len/2.
         let p: Vec<f64> =
             crate::dsp::welch::tests::noise(3001, 11, 1.0).iter().map(|v| v * v + 1e-3).collect();
-        for width in [3usize, 4, 65, 201] {
+        // Repeated values, and values that differ only in their last mantissa bits (the
+        // ranking sorts those in a second pass).
+        let ties: Vec<f64> = p.iter().map(|v| 1.0 + (v * 20.0).round()).collect();
+        let close: Vec<f64> =
+            p.iter().map(|v| f64::from_bits(1.0f64.to_bits() + (v * 1e4) as u64 % 4096)).collect();
+        // Short spectra, and a window wider than the spectrum.
+        let short = [&p[..1], &p[..2], &p[..70], &p[..500]];
+        let cases = [3usize, 4, 65, 201]
+            .into_iter()
+            .flat_map(|w| [(&p[..], w), (&ties[..], w), (&close[..], w)])
+            .chain([(short[0], 65), (short[1], 3), (short[2], 65), (short[3], 4097)]);
+        for (p, width) in cases {
             let half = width.max(3) / 2;
-            let fast = floor_estimate(&p, width);
+            let fast = floor_estimate(p, width);
             for (k, f) in fast.iter().enumerate() {
                 let mut w: Vec<f64> = p[k.saturating_sub(half)..(k + half + 1).min(p.len())].to_vec();
                 w.sort_by(f64::total_cmp);
