@@ -143,11 +143,12 @@ async fn a_cancelled_stream_frees_its_windows_at_once() {
         c.track_tones(tokio_stream::wrappers::ReceiverStream::new(rx)).await.unwrap().into_inner();
     let first = updates.message().await.unwrap().expect("an update");
     assert!(!first.channels.is_empty());
-    // Default window: 8 segments of 2048 frames at 50 % overlap (9216 frames): the spectra of
-    // 8 segments (1025 complex bins of 16 bytes) and one segment of pending f64 samples.
+    // Default window: 8 segments of 2048 frames at 50 % overlap (9216 frames): |X|^2 of 8
+    // segments (1025 bins of 8 bytes; one channel, no cross terms) and one segment of pending
+    // f64 samples.
     let during = held(&ch).await;
     // The budget counts whole KiB.
-    assert_eq!(during, u64::div_ceil(8 * 1025 * 16 + 2048 * 8, 1024) * 1024, "bytes held during the stream");
+    assert_eq!(during, u64::div_ceil(8 * 1025 * 8 + 2048 * 8, 1024) * 1024, "bytes held during the stream");
     // Cancel: drop the response stream and the request sender.
     drop(updates);
     drop(tx);
@@ -221,8 +222,8 @@ async fn a_client_that_stops_reading_is_held_back() {
     assert_eq!(held_a, held_b);
     assert_eq!(
         held_b,
-        u64::div_ceil(8 * 129 * 16 + 256 * 8, 1024) * 1024,
-        "bytes held (whole KiB): the spectra of one window's 8 segments and one segment"
+        u64::div_ceil(8 * 129 * 8 + 256 * 8, 1024) * 1024,
+        "bytes held (whole KiB): |X|^2 of one window's 8 segments and one segment"
     );
     // Such a client holds its stream (one window, the queue and the HTTP/2 windows) until it
     // reads, its connection closes or the stream's time limit passes; dropping only the

@@ -49,14 +49,18 @@ impl CrossSpectra {
         self.fs / self.config.nperseg as f64
     }
 
+    /// Every density at bin `k`.
+    pub fn at_bin(&self, k: usize) -> CrossAtBin {
+        CrossAtBin {
+            reference_psd: self.reference_psd[k],
+            psd: self.psd.iter().map(|p| p[k]).collect(),
+            csd: self.csd.iter().map(|c| c[k]).collect(),
+        }
+    }
+
     /// Magnitude-squared coherence of channel `i` with the reference at bin `k`.
     pub fn coherence(&self, i: usize, k: usize) -> f64 {
-        let d = self.reference_psd[k] * self.psd[i][k];
-        if d > 0.0 {
-            self.csd[i][k].norm_sqr() / d
-        } else {
-            0.0
-        }
+        coherence(self.reference_psd[k], self.psd[i][k], self.csd[i][k])
     }
 
     /// Phase of channel `i` relative to the reference at bin `k`, degrees in (-180, 180].
@@ -66,12 +70,56 @@ impl CrossSpectra {
 
     /// Complex amplitude of channel `i` locked to the reference at bin `k`: Pxy / sqrt(Pxx).
     pub fn locked_amplitude(&self, i: usize, k: usize) -> Complex<f64> {
-        let r = self.reference_psd[k].sqrt();
-        if r > 0.0 {
-            self.csd[i][k] / r
-        } else {
-            Complex::new(0.0, 0.0)
-        }
+        locked_amplitude(self.reference_psd[k], self.csd[i][k])
+    }
+}
+
+/// The densities of several channels against one reference at one bin (scaled as
+/// [`CrossSpectra`]): what a tone's phase, coherence and modes need.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CrossAtBin {
+    /// PSD of the reference, Pa^2/Hz.
+    pub reference_psd: f64,
+    /// PSD of each other channel, Pa^2/Hz.
+    pub psd: Vec<f64>,
+    /// Cross-spectral density reference -> channel, Pa^2/Hz.
+    pub csd: Vec<Complex<f64>>,
+}
+
+impl CrossAtBin {
+    /// Magnitude-squared coherence of channel `i` with the reference.
+    pub fn coherence(&self, i: usize) -> f64 {
+        coherence(self.reference_psd, self.psd[i], self.csd[i])
+    }
+
+    /// Phase of channel `i` relative to the reference, degrees in (-180, 180].
+    pub fn phase_deg(&self, i: usize) -> f64 {
+        self.csd[i].arg().to_degrees()
+    }
+
+    /// Complex amplitude of channel `i` locked to the reference: Pxy / sqrt(Pxx).
+    pub fn locked_amplitude(&self, i: usize) -> Complex<f64> {
+        locked_amplitude(self.reference_psd, self.csd[i])
+    }
+}
+
+/// |Pxy|^2 / (Pxx Pyy); 0 where either density is 0.
+fn coherence(pxx: f64, pyy: f64, pxy: Complex<f64>) -> f64 {
+    let d = pxx * pyy;
+    if d > 0.0 {
+        pxy.norm_sqr() / d
+    } else {
+        0.0
+    }
+}
+
+/// Pxy / sqrt(Pxx); 0 where Pxx is 0.
+fn locked_amplitude(pxx: f64, pxy: Complex<f64>) -> Complex<f64> {
+    let r = pxx.sqrt();
+    if r > 0.0 {
+        pxy / r
+    } else {
+        Complex::new(0.0, 0.0)
     }
 }
 

@@ -12,14 +12,16 @@
 //!   more than `jump_fraction`, a `Jumped` event is emitted with the time the window's centre
 //!   passed (the strongest line changes when the new tone fills half the window).
 //!
-//! - With a reference channel, each update also holds the window's Welch cross-spectra of
-//!   every channel against it (scaled as [`super::cross::cross_spectra`]) and the reference channel's
-//!   strongest tone: phase, coherence and azimuthal mode at that tone, live.
+//! - With a reference channel, each update also holds the reference channel's strongest tone
+//!   and the window's Welch cross-spectral densities of every channel against it at that
+//!   tone's peak bin (scaled as [`super::cross::cross_spectra`]): phase, coherence and
+//!   azimuthal mode at that tone, live. Only that bin is summed: it is all an update reports.
 //!
-//! Memory per channel is the segment spectra of one window, less than one segment of samples
-//! and the live tracks: a stream of any length holds no more.
+//! Memory per channel is |X|^2 of the segments of one window (and their transforms with a
+//! reference), less than one segment of samples and the live tracks: a stream of any length
+//! holds no more.
 
-use super::cross::CrossSpectra;
+use super::cross::CrossAtBin;
 use super::samples::{first_non_finite, sum, SampleMoments};
 use super::tones::{find_tones, Tone, ToneConfig};
 use super::welch::{plan, Detrend, Psd, WelchConfig, WelchError};
@@ -102,25 +104,30 @@ pub struct Update {
     pub channels: Vec<(Vec<Track>, Option<u64>)>,
     /// Events since the previous update.
     pub events: Vec<Event>,
-    /// With a reference channel: the window's cross-spectra against it and the reference
-    /// channel's strongest tone (none when it has no tone).
-    pub cross: Option<(CrossSpectra, Option<Tone>)>,
+    /// With a reference channel that has a tone in this window: its strongest tone and the
+    /// window's cross-spectral densities of every other channel against it at the tone's peak
+    /// bin.
+    pub cross: Option<(CrossAtBin, Tone)>,
     /// The reference channel of `cross`.
     pub reference: Option<usize>,
 }
 
 #[derive(Debug, Clone, Default)]
 struct ChannelState {
-    /// Samples from the start of the next segment on (fewer than one segment).
-    pending: Vec<f64>,
+    /// Samples from the start of the next segment on (fewer than one segment): a ring, so a
+    /// segment taken moves no samples.
+    pending: VecDeque<f64>,
     tracks: Vec<Track>,
     strongest: Option<u64>,
 }
 
-/// One segment's spectra: its first frame and the one-sided FFT of every channel's windowed,
-/// detrended segment.
+/// One segment: its first frame, |X|^2 of every channel's one-sided FFT X (of the windowed,
+/// detrended segment), formed once however many updates the segment falls in, and, with a
+/// reference channel, the transforms themselves (the cross terms are formed at one bin only,
+/// the reference's strongest tone, when an update needs them).
 struct Segment {
     start: u64,
+    power: Vec<Vec<f64>>,
     spectra: Vec<Vec<Complex<f64>>>,
 }
 
@@ -197,12 +204,22 @@ impl Tracker {
         (self.cfg.window - self.cfg.welch.noverlap) / self.step
     }
 
-    /// Samples kept between calls, in f64 units: the segment spectra a window can hold
-    /// (complex, two units per bin) and less than one segment of pending samples, per channel.
+    /// The reference channel, when cross-spectra are formed (two channels or more).
+    fn cross_reference(&self) -> Option<usize> {
+        self.reference.filter(|&r| self.channels.len() >= 2 && r < self.channels.len())
+    }
+
+    /// Samples kept between calls, in f64 units: for each segment a window can hold, one unit
+    /// per bin and channel (|X|^2) and, with a reference, two more (the complex transform);
+    /// and less than one segment of pending samples per channel.
     pub fn held_samples(&self) -> usize {
         let bins = self.cfg.welch.nperseg / 2 + 1;
-        let per_channel = self.segments_per_window() * bins * 2 + self.cfg.welch.nperseg;
-        per_channel.saturating_mul(self.channels.len())
+        let m = self.channels.len();
+        let units = m * if self.cross_reference().is_some() { 3 } else { 1 };
+        let per_segment = bins.saturating_mul(units);
+        per_segment
+            .saturating_mul(self.segments_per_window())
+            .saturating_add(self.cfg.welch.nperseg.saturating_mul(m))
     }
 
     /// Frames pushed so far.
@@ -211,35 +228,46 @@ impl Tracker {
     }
 
     /// Transforms the segment starting at `next_start` (every channel's pending samples hold
-    /// it), each channel on its own core.
+    /// it) and forms its terms of the Welch sums, each channel on its own core.
     fn take_segment(&mut self) -> Result<(), WelchError> {
         let n = self.cfg.welch.nperseg;
         let (fft, w, detrend) = (&self.fft, &self.window, self.cfg.welch.detrend);
         let start = self.next_start;
-        let spectra: Vec<Vec<Complex<f64>>> = self
+        let transformed: Vec<(Vec<Complex<f64>>, Vec<f64>)> = self
             .channels
             .par_iter()
             .map(|st| {
-                let seg = &st.pending[..n];
-                if let Some((i, v)) = first_non_finite(seg) {
+                // The segment made contiguous, then detrended and windowed in place.
+                let (a, b) = st.pending.as_slices();
+                let mut buf = Vec::with_capacity(n);
+                buf.extend_from_slice(&a[..a.len().min(n)]);
+                buf.extend_from_slice(&b[..n - buf.len()]);
+                if let Some((i, v)) = first_non_finite(&buf) {
                     return Err(WelchError::NotFinite { index: start as usize + i, value: v });
                 }
                 let mean = match detrend {
-                    Detrend::Mean => sum(seg) / n as f64,
+                    Detrend::Mean => sum(&buf) / n as f64,
                     Detrend::None => 0.0,
                 };
-                let mut buf: Vec<f64> = seg.iter().zip(w).map(|(v, wv)| (v - mean) * wv).collect();
+                for (v, wv) in buf.iter_mut().zip(w) {
+                    *v = (*v - mean) * wv;
+                }
                 let mut out = fft.make_output_vec();
                 let mut scratch = fft.make_scratch_vec();
                 // Lengths match the plan by construction.
                 let _ = fft.process_with_scratch(&mut buf, &mut out, &mut scratch);
-                Ok(out)
+                let power = out.iter().map(|v| v.norm_sqr()).collect();
+                Ok((out, power))
             })
             .collect::<Result<_, _>>()?;
         for st in &mut self.channels {
             st.pending.drain(..self.step);
         }
-        self.segments.push_back(Segment { start, spectra });
+        let (mut spectra, power): (Vec<_>, Vec<_>) = transformed.into_iter().unzip();
+        if self.cross_reference().is_none() {
+            spectra = Vec::new();
+        }
+        self.segments.push_back(Segment { start, power, spectra });
         while self.segments.len() > self.segments_per_window() {
             self.segments.pop_front();
         }
@@ -281,7 +309,7 @@ impl Tracker {
                 .max(1);
             let t = (len - k).min(to_segment).min(to_update);
             for (st, col) in self.channels.iter_mut().zip(cols) {
-                st.pending.extend_from_slice(&col[k..k + t]);
+                st.pending.extend(&col[k..k + t]);
             }
             k += t;
             self.frames += t as u64;
@@ -297,25 +325,28 @@ impl Tracker {
         Ok(out)
     }
 
-    /// The Welch PSD of every channel and, with a reference, the cross-spectra, averaged over
-    /// the segments wholly inside the window that ends now (scaled as [`welch`] and
-    /// [`cross_spectra`] scale them).
-    fn window_spectra(&self) -> (Vec<Psd>, Option<CrossSpectra>) {
+    /// The segments wholly inside the window that ends now, and the scale of their sums at
+    /// each bin (as [`welch`] scales them: one-sided, per hertz, averaged).
+    fn inside(&self) -> (Vec<&Segment>, impl Fn(usize) -> f64) {
         let first = self.frames.saturating_sub(self.cfg.window as u64);
         let inside: Vec<&Segment> = self.segments.iter().filter(|s| s.start >= first).collect();
-        let k = inside.len().max(1);
         let n = self.cfg.welch.nperseg;
-        let bins = n / 2 + 1;
-        let last = if n % 2 == 0 { bins - 1 } else { bins };
-        let scale = 1.0 / (self.cfg.fs * self.sums.sum_sq) / k as f64;
-        let factor = |b: usize| if b == 0 || b == last { scale } else { 2.0 * scale };
-        let psds: Vec<Psd> = (0..self.channels.len())
+        let last = if n % 2 == 0 { n / 2 } else { n / 2 + 1 };
+        let scale = 1.0 / (self.cfg.fs * self.sums.sum_sq) / inside.len().max(1) as f64;
+        (inside, move |b: usize| if b == 0 || b == last { scale } else { 2.0 * scale })
+    }
+
+    /// The Welch PSD of every channel over the window that ends now.
+    fn window_psds(&self) -> Vec<Psd> {
+        let (inside, factor) = self.inside();
+        let bins = self.cfg.welch.nperseg / 2 + 1;
+        (0..self.channels.len())
             .into_par_iter()
             .map(|c| {
                 let mut density = vec![0.0; bins];
                 for s in &inside {
-                    for (d, x) in density.iter_mut().zip(&s.spectra[c]) {
-                        *d += x.norm_sqr();
+                    for (d, x) in density.iter_mut().zip(&s.power[c]) {
+                        *d += x;
                     }
                 }
                 for (b, d) in density.iter_mut().enumerate() {
@@ -331,35 +362,25 @@ impl Tracker {
                     moments: SampleMoments::default(),
                 }
             })
-            .collect();
-        let cross =
-            self.reference.filter(|&r| self.channels.len() >= 2 && r < self.channels.len()).map(|r| {
-                let others: Vec<usize> = (0..self.channels.len()).filter(|&c| c != r).collect();
-                let csd: Vec<Vec<Complex<f64>>> = others
-                    .par_iter()
-                    .map(|&c| {
-                        let mut acc = vec![Complex::new(0.0, 0.0); bins];
-                        for s in &inside {
-                            for ((a, x), y) in acc.iter_mut().zip(&s.spectra[r]).zip(&s.spectra[c]) {
-                                *a += x.conj() * y;
-                            }
-                        }
-                        for (b, a) in acc.iter_mut().enumerate() {
-                            *a *= factor(b);
-                        }
-                        acc
-                    })
-                    .collect();
-                CrossSpectra {
-                    fs: self.cfg.fs,
-                    config: self.cfg.welch,
-                    segments: inside.len(),
-                    reference_psd: psds[r].density.clone(),
-                    psd: others.iter().map(|&c| psds[c].density.clone()).collect(),
-                    csd,
-                }
-            });
-        (psds, cross)
+            .collect()
+    }
+
+    /// The window's cross-spectral densities against reference `r` at bin `k` (scaled as
+    /// [`cross_spectra`] scales them), with the channels' PSDs `psds` at that bin.
+    fn cross_at(&self, r: usize, k: usize, psds: &[Psd]) -> CrossAtBin {
+        let (inside, factor) = self.inside();
+        let others = (0..self.channels.len()).filter(|&c| c != r);
+        CrossAtBin {
+            reference_psd: psds[r].density[k],
+            psd: others.clone().map(|c| psds[c].density[k]).collect(),
+            csd: others
+                .map(|c| {
+                    let sum: Complex<f64> =
+                        inside.iter().map(|s| s.spectra[r][k].conj() * s.spectra[c][k]).sum();
+                    sum * factor(k)
+                })
+                .collect(),
+        }
     }
 
     fn analyse(&mut self) -> Result<Update, WelchError> {
@@ -368,7 +389,7 @@ impl Tracker {
         let centre_s = time_s - 0.5 * self.cfg.window as f64 / fs;
         let mut events = Vec::new();
         let mut channels = Vec::with_capacity(self.channels.len());
-        let (psds, cross) = self.window_spectra();
+        let psds = self.window_psds();
         // Tones of every channel, each on its own core.
         let tone_cfg = self.cfg.tones;
         let found_all: Vec<Vec<Tone>> = psds
@@ -472,7 +493,10 @@ impl Tracker {
             st.tracks = live.clone();
             channels.push((live, st.strongest));
         }
-        let cross = cross.map(|cs| (cs, reference_strongest));
+        let cross = self
+            .cross_reference()
+            .zip(reference_strongest)
+            .map(|(r, t)| (self.cross_at(r, t.peak_bin, &psds), t));
         Ok(Update { time_s, channels, events, cross, reference: self.reference })
     }
 }
@@ -480,6 +504,7 @@ impl Tracker {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::dsp::samples::ChannelView;
     use crate::dsp::welch::Detrend;
     use crate::dsp::window::Window;
     use std::f64::consts::PI;
@@ -533,6 +558,50 @@ mod tests {
         let bin = fs / 2048.0;
         let EventKind::Jumped { from_hz, .. } = j.kind else { unreachable!() };
         assert!((from_hz - 2000.0).abs() < bin && (j.frequency_hz - 2300.0).abs() < bin, "{j:?}");
+    }
+
+    #[test]
+    fn live_cross_terms_at_the_tone_equal_the_batch_cross_spectra_of_the_same_segments() {
+        // The batch cross_spectra is checked against scipy.signal.csd / coherence in
+        // tests/python; the live update, formed at one bin from the segments inside its window,
+        // must give the same densities there (to rounding of a different summation order).
+        let fs = 25_600.0;
+        let n = (2.0 * fs) as usize;
+        let chans: Vec<Vec<f64>> = (0..3u64)
+            .map(|c| {
+                let noise = crate::dsp::welch::tests::noise(n, 20 + c, 0.05);
+                (0..n)
+                    .map(|i| (2.0 * PI * 2000.0 * i as f64 / fs - 0.7 * c as f64).sin() + noise[i])
+                    .collect()
+            })
+            .collect();
+        let interleaved: Vec<f64> = (0..n).flat_map(|i| chans.iter().map(move |x| x[i])).collect();
+        let mut t = tracker(fs);
+        t = Tracker::new(t.cfg, 3).unwrap().with_reference(0);
+        let ups = t.push(&interleaved).unwrap();
+        let u = ups.last().unwrap();
+        let (at, tone) = u.cross.as_ref().expect("a tone on the reference");
+        assert!((tone.frequency_hz - 2000.0).abs() < fs / 2048.0);
+        // Segments of 2048 frames every 1024 wholly inside the window of 9216 frames.
+        let end = (u.time_s * fs).round() as usize;
+        let first = (end - 9 * 1024).div_ceil(1024) * 1024;
+        let last = (end - 2048) / 1024 * 1024 + 2048;
+        let views: Vec<ChannelView<'_>> =
+            chans.iter().map(|x| ChannelView::of_pascals(&x[first..last])).collect();
+        let cs = crate::dsp::cross::cross_spectra(&views, 0, fs, t.cfg.welch, &crate::cancel::Cancel::new())
+            .unwrap();
+        assert_eq!(cs.segments, 8);
+        let k = tone.peak_bin;
+        let close = |a: f64, b: f64| (a - b).abs() <= 1e-12 * b.abs().max(1e-300);
+        assert!(close(at.reference_psd, cs.reference_psd[k]));
+        for i in 0..2 {
+            assert!(close(at.psd[i], cs.psd[i][k]), "channel {}", i + 1);
+            assert!((at.csd[i] - cs.csd[i][k]).norm() <= 1e-12 * cs.csd[i][k].norm(), "channel {}", i + 1);
+            assert!((at.phase_deg(i) - cs.phase_deg(i, k)).abs() < 1e-9);
+        }
+        // Memory: |X|^2 (one unit per bin) and the transform (two) of 3 channels for the 8
+        // segments of a window, and one segment of pending samples per channel.
+        assert_eq!(t.held_samples(), 8 * 1025 * 3 * 3 + 2048 * 3);
     }
 
     #[test]

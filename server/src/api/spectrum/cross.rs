@@ -1,7 +1,7 @@
 //! Cross-channel analysis: the validated question and the answer.
 
 use super::*;
-use crate::dsp::cross::CrossSpectra;
+use crate::dsp::cross::CrossAtBin;
 use crate::dsp::cross::{azimuthal_modes, cross_spectra, pair_symmetry, radians, Pattern};
 use crate::dsp::tones::Tone;
 
@@ -147,26 +147,25 @@ pub(crate) fn reference_and_azimuths(
 /// coherence and relative level; with two channels their symmetry, with three or more and
 /// azimuths the azimuthal modes.
 pub(crate) fn cross_tone(
-    cs: &CrossSpectra,
+    at: &CrossAtBin,
     reference: usize,
     azimuths_deg: Option<&[f64]>,
     t: &Tone,
 ) -> pb::CrossTone {
-    let channels = cs.psd.len() + 1;
+    let channels = at.psd.len() + 1;
     let others: Vec<usize> = (0..channels).filter(|&c| c != reference).collect();
-    let k = t.peak_bin;
     let chans: Vec<pb::ChannelAtTone> = others
         .iter()
         .enumerate()
         .map(|(i, &c)| pb::ChannelAtTone {
             channel: c as u32,
-            phase_deg: cs.phase_deg(i, k),
-            coherence: cs.coherence(i, k),
-            relative_level_db: 10.0 * (cs.psd[i][k] / cs.reference_psd[k]).log10(),
+            phase_deg: at.phase_deg(i),
+            coherence: at.coherence(i),
+            relative_level_db: 10.0 * (at.psd[i] / at.reference_psd).log10(),
         })
         .collect();
     let pair = (channels == 2).then(|| {
-        let p = pair_symmetry(cs.phase_deg(0, k), cs.coherence(0, k));
+        let p = pair_symmetry(at.phase_deg(0), at.coherence(0));
         pb::PairSymmetry { symmetric: p.symmetric, confidence: p.confidence }
     });
     let modes = match (azimuths_deg, channels >= 3) {
@@ -177,10 +176,10 @@ pub(crate) fn cross_tone(
             for (c, th) in radians(az).into_iter().enumerate() {
                 theta.push(th);
                 if c == reference {
-                    a.push(realfft::num_complex::Complex::new(cs.reference_psd[k].sqrt(), 0.0));
+                    a.push(realfft::num_complex::Complex::new(at.reference_psd.sqrt(), 0.0));
                 } else {
                     let i = others.iter().position(|&o| o == c).unwrap_or(0);
-                    a.push(cs.locked_amplitude(i, k));
+                    a.push(at.locked_amplitude(i));
                 }
             }
             let d = azimuthal_modes(&a, &theta);
@@ -232,7 +231,10 @@ pub fn cross_response(q: &CrossQuery) -> Result<pb::CrossSpectraResponse, ApiErr
     order.sort_by(|&a, &b| set.tones[b].level_db.total_cmp(&set.tones[a].level_db));
     let tones = order
         .iter()
-        .map(|&ti| cross_tone(&cs, q.reference, q.azimuths_deg.as_deref(), &set.tones[ti]))
+        .map(|&ti| {
+            let t = &set.tones[ti];
+            cross_tone(&cs.at_bin(t.peak_bin), q.reference, q.azimuths_deg.as_deref(), t)
+        })
         .collect();
     let spectra = match q.spectra_points {
         None => Vec::new(),

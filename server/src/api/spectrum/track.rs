@@ -231,9 +231,10 @@ fn update_message(
     azimuths_deg: Option<&[f64]>,
     stages: Option<&crate::api::guided::StageContext>,
 ) -> pb::TrackUpdate {
-    let strongest_cross = u.cross.as_ref().and_then(|(cs, tone)| {
-        tone.as_ref().map(|t| super::cross::cross_tone(cs, u.reference.unwrap_or(0), azimuths_deg, t))
-    });
+    let strongest_cross = u
+        .cross
+        .as_ref()
+        .map(|(at, t)| super::cross::cross_tone(at, u.reference.unwrap_or(0), azimuths_deg, t));
     pb::TrackUpdate {
         strongest_cross,
         stream_time_s: u.time_s,
