@@ -336,10 +336,12 @@ impl Tracker {
         (inside, move |b: usize| if b == 0 || b == last { scale } else { 2.0 * scale })
     }
 
-    /// The Welch PSD of every channel over the window that ends now.
-    fn window_psds(&self) -> Vec<Psd> {
+    /// The Welch PSD of every channel over the window that ends now and its tones, strongest
+    /// first: each channel on its own core, in one parallel pass.
+    fn window_tones(&self) -> Vec<(Psd, Vec<Tone>)> {
         let (inside, factor) = self.inside();
         let bins = self.cfg.welch.nperseg / 2 + 1;
+        let tone_cfg = self.cfg.tones;
         (0..self.channels.len())
             .into_par_iter()
             .map(|c| {
@@ -352,7 +354,7 @@ impl Tracker {
                 for (b, d) in density.iter_mut().enumerate() {
                     *d *= factor(b);
                 }
-                Psd {
+                let psd = Psd {
                     fs: self.cfg.fs,
                     config: self.cfg.welch,
                     density,
@@ -360,7 +362,10 @@ impl Tracker {
                     unused_samples: 0,
                     sums: self.sums,
                     moments: SampleMoments::default(),
-                }
+                };
+                let mut found = find_tones(&psd, &tone_cfg).tones;
+                found.sort_by(|a, b| b.level_db.total_cmp(&a.level_db));
+                (psd, found)
             })
             .collect()
     }
@@ -389,17 +394,7 @@ impl Tracker {
         let centre_s = time_s - 0.5 * self.cfg.window as f64 / fs;
         let mut events = Vec::new();
         let mut channels = Vec::with_capacity(self.channels.len());
-        let psds = self.window_psds();
-        // Tones of every channel, each on its own core.
-        let tone_cfg = self.cfg.tones;
-        let found_all: Vec<Vec<Tone>> = psds
-            .par_iter()
-            .map(|psd| {
-                let mut found = find_tones(psd, &tone_cfg).tones;
-                found.sort_by(|a, b| b.level_db.total_cmp(&a.level_db));
-                found
-            })
-            .collect();
+        let (psds, found_all): (Vec<Psd>, Vec<Vec<Tone>>) = self.window_tones().into_iter().unzip();
         let mut reference_strongest = None;
         for (c, (st, (psd, found))) in self.channels.iter_mut().zip(psds.iter().zip(found_all)).enumerate() {
             let df = psd.resolution_hz();
