@@ -378,13 +378,21 @@ pub fn find_tones(psd: &Psd, cfg: &ToneConfig) -> ToneSet {
     let floor = floor_estimate(p, cfg.floor_window_bins);
     let lobe = psd.config.window.main_lobe_half_width_bins();
     let ratio = 10f64.powf(cfg.threshold_db / 10.0);
-    // Local maxima at or above the threshold. The three tests are combined without
-    // short-circuits: on noise "is this a local maximum" is a coin toss the branch predictor
-    // loses, while "all three" is rare and predictable.
+    // Local maxima at or above the threshold: the three tests as flags over whole slices (no
+    // branch: on noise "is this a local maximum" is a coin toss a branch predictor loses),
+    // then the rare bins that pass all three.
+    let n = p.len();
     let mut cand: Vec<(usize, f64)> = Vec::new();
-    for (i, (w, f)) in p.windows(3).zip(&floor[1..]).enumerate() {
-        if (w[1] > w[0]) & (w[1] >= w[2]) & (w[1] >= ratio * f) {
-            cand.push((i + 1, w[1] / f));
+    if n >= 3 {
+        let flags: Vec<u8> = p[1..n - 1]
+            .iter()
+            .zip(&p[..n - 2])
+            .zip(&p[2..])
+            .zip(&floor[1..n - 1])
+            .map(|(((c, l), r), f)| u8::from(c > l) & u8::from(c >= r) & u8::from(*c >= ratio * f))
+            .collect();
+        for (i, _) in flags.iter().enumerate().filter(|(_, f)| **f != 0) {
+            cand.push((i + 1, p[i + 1] / floor[i + 1]));
         }
     }
     // An absolute floor relative to the strongest line: rounding noise of noise-free data
