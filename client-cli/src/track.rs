@@ -150,7 +150,8 @@ impl Run for TrackCmd {
                 if realtime {
                     tokio::time::sleep_until(start + pace * i as u32).await;
                 }
-                let m = pb::TrackRequest { item: Some(pb::track_request::Item::Frames(chunk.to_vec())) };
+                let m =
+                    pb::TrackRequest { item: Some(pb::track_request::Item::Frames(chunk.to_vec().into())) };
                 if tx.send(m).await.is_err() {
                     return;
                 }

@@ -126,7 +126,7 @@ pub fn base_calls() -> Vec<BaseCall> {
         ..Default::default()
     };
     let track_first = fixtures::track_config(48_000.0, 512, 0.02);
-    let frames = |b: Vec<u8>| pb::TrackRequest { item: Some(pb::track_request::Item::Frames(b)) };
+    let frames = |b: Vec<u8>| pb::TrackRequest { item: Some(pb::track_request::Item::Frames(b.into())) };
     vec![
         BaseCall {
             path: "/jetloop.v1.GasDynamicsService/IsentropicRatios",

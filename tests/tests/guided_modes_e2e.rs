@@ -269,7 +269,7 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
             ..Default::default()
         })),
     };
-    let frames = pb::TrackRequest { item: Some(pb::track_request::Item::Frames(raw.clone())) };
+    let frames = pb::TrackRequest { item: Some(pb::track_request::Item::Frames(raw.clone().into())) };
     let mut live = s.track_tones(tokio_stream::iter(vec![config, frames])).await.unwrap().into_inner();
     let mut labelled = 0;
     while let Some(u) = live.message().await.unwrap() {

@@ -102,7 +102,7 @@ async fn the_metrics_endpoint_counts_what_happened() {
     // A tracking stream holds the only permit; a call meanwhile is shed. 1000 f32 frames.
     let (tx, rx) = tokio::sync::mpsc::channel(4);
     tx.send(jetloop_tests::fixtures::track_config(48_000.0, 2048, 0.1)).await.expect("send config");
-    tx.send(pb::TrackRequest { item: Some(pb::track_request::Item::Frames(vec![0u8; 4000])) })
+    tx.send(pb::TrackRequest { item: Some(pb::track_request::Item::Frames(vec![0u8; 4000].into())) })
         .await
         .expect("send frames");
     let stream = spec

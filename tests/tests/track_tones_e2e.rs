@@ -20,7 +20,7 @@ fn config(fs: f64) -> pb::TrackRequest {
 fn frames(x: &[f64]) -> pb::TrackRequest {
     pb::TrackRequest {
         item: Some(pb::track_request::Item::Frames(
-            x.iter().flat_map(|v| (*v as f32).to_le_bytes()).collect(),
+            x.iter().flat_map(|v| (*v as f32).to_le_bytes()).collect::<Vec<u8>>().into(),
         )),
     }
 }
@@ -81,7 +81,10 @@ async fn stream_faults_end_the_stream_with_the_field_named() {
     let cases = [
         (vec![config(fs), frames(&tone), config(fs)], "config"),
         (
-            vec![config(fs), pb::TrackRequest { item: Some(pb::track_request::Item::Frames(vec![0u8; 6])) }],
+            vec![
+                config(fs),
+                pb::TrackRequest { item: Some(pb::track_request::Item::Frames(vec![0u8; 6].into())) },
+            ],
             "frames",
         ),
     ];

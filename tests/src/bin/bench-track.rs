@@ -73,7 +73,8 @@ async fn main() {
     let mut c = SpectrumServiceClient::new(ch.clone());
     let mut msgs = vec![config(BLOCK_S)];
     msgs.extend(
-        data.iter().map(|b| pb::TrackRequest { item: Some(pb::track_request::Item::Frames(b.clone())) }),
+        data.iter()
+            .map(|b| pb::TrackRequest { item: Some(pb::track_request::Item::Frames(b.clone().into())) }),
     );
     let started = Instant::now();
     let mut updates = c.track_tones(tokio_stream::iter(msgs)).await.expect("stream").into_inner();
@@ -106,7 +107,11 @@ async fn main() {
         for (i, b) in feed.into_iter().enumerate() {
             tokio::time::sleep_until(start + pace * i as u32).await;
             log.lock().expect("log").push(Instant::now());
-            if tx.send(pb::TrackRequest { item: Some(pb::track_request::Item::Frames(b)) }).await.is_err() {
+            if tx
+                .send(pb::TrackRequest { item: Some(pb::track_request::Item::Frames(b.into())) })
+                .await
+                .is_err()
+            {
                 return;
             }
         }

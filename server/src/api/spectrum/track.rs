@@ -185,7 +185,7 @@ impl TrackSession {
         match msg.item {
             Some(pb::track_request::Item::Frames(bytes)) => {
                 let mut rec = self.template.clone();
-                rec.push_block(bytes::Bytes::from(bytes)).map_err(|e| {
+                rec.push_block(bytes).map_err(|e| {
                     ApiError::Invalid(vec![FieldViolation {
                         field: "frames".into(),
                         description: format!("frames of message {}: {e}", self.messages),
