@@ -135,7 +135,7 @@ struct Segment {
 ///
 /// Segments lie on a fixed grid of stream time (segment s starts at frame s x step), and each
 /// is transformed once, when its last frame arrives; an update averages the segments wholly
-/// inside its window (the same Welch estimate as [`welch`] over those segments). So the work
+/// inside its window (the same Welch estimate as [`super::welch::welch`] over those segments). So the work
 /// per second of stream does not grow with the update rate or the window length.
 pub struct Tracker {
     cfg: TrackerConfig,
@@ -326,7 +326,7 @@ impl Tracker {
     }
 
     /// The segments wholly inside the window that ends now, and the scale of their sums at
-    /// each bin (as [`welch`] scales them: one-sided, per hertz, averaged).
+    /// each bin (as [`super::welch::welch`] scales them: one-sided, per hertz, averaged).
     fn inside(&self) -> (Vec<&Segment>, impl Fn(usize) -> f64) {
         let first = self.frames.saturating_sub(self.cfg.window as u64);
         let inside: Vec<&Segment> = self.segments.iter().filter(|s| s.start >= first).collect();
@@ -371,7 +371,7 @@ impl Tracker {
     }
 
     /// The window's cross-spectral densities against reference `r` at bin `k` (scaled as
-    /// [`cross_spectra`] scales them), with the channels' PSDs `psds` at that bin.
+    /// [`super::cross::cross_spectra`] scales them), with the channels' PSDs `psds` at that bin.
     fn cross_at(&self, r: usize, k: usize, psds: &[Psd]) -> CrossAtBin {
         let (inside, factor) = self.inside();
         let others = (0..self.channels.len()).filter(|&c| c != r);
