@@ -5,12 +5,6 @@ use jetloop_server::server;
 use std::io::{IsTerminal, Write};
 use std::process::ExitCode;
 
-/// mimalloc instead of the system allocator: a unary call allocates and frees a few dozen small
-/// buffers across the runtime's threads, and glibc's malloc spent about a sixth of the
-/// server's time on them under load (perf, h2load against IsentropicRatios).
-#[global_allocator]
-static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
-
 #[tokio::main]
 async fn main() -> ExitCode {
     let (config, sources) = match jetloop_server::config::load(std::env::args_os().collect()) {
