@@ -8,7 +8,7 @@
 //!   decreasing tone-to-floor ratio (ties: lower frequency first) and kept when at least
 //!   `min_separation_hz` from every kept tone.
 //! - Frequency: Hann windows use Grandke's (1983) interpolation delta = (2 alpha - 1) /
-//!   (alpha + 1), alpha = sqrt(P[k+-1] / P[k]), which is exact for a Hann-windowed sinusoid
+//!   (alpha + 1), alpha = `sqrt(P[k+-1] / P[k])`, which is exact for a Hann-windowed sinusoid
 //!   (apart from its negative-frequency image); other windows use a parabola through ln P at
 //!   the three top bins, whose bias is up to a few hundredths of a bin (largest for
 //!   Hamming, about 0.05 bin between bins).

@@ -17,7 +17,7 @@ pub enum Window {
 }
 
 impl Window {
-    /// Cosine-sum coefficients a_k: w[n] = sum_k (-1)^k a_k cos(2 pi k n / N).
+    /// Cosine-sum coefficients a_k: `w[n] = sum_k (-1)^k a_k cos(2 pi k n / N)`.
     pub fn coefficients(self) -> &'static [f64] {
         match self {
             Window::Hann => &[0.5, 0.5],
