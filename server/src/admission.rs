@@ -243,8 +243,8 @@ pub const MIN_SEND_TIME: Duration = Duration::from_secs(1);
 /// the server (its body finished and at least as many bytes written to the connection since it
 /// was ready as the body yielded: HTTP/2 may buffer a finished body that the client's window
 /// does not let out), and so that an answer not out by `send_by` (the call's deadline, and at
-/// least [`MIN_SEND_TIME`] from now) closes the connection: a client that never opens its
-/// HTTP/2 window cannot keep answers in server memory, nor their permits.
+/// least [`MIN_SEND_TIME`] after `ready_at`, when it was ready) closes the connection: a client
+/// that never opens its HTTP/2 window cannot keep answers in server memory, nor their permits.
 ///
 /// The permit is let go by the connection's own write that takes the answer's last byte out
 /// (see [`crate::connections::ConnInfo::release_when_written`]), not by a task that has to be
@@ -255,10 +255,11 @@ fn send_guarded(
     admitted: Option<Admitted>,
     conn: Option<crate::connections::ConnInfo>,
     send_by: tokio::time::Instant,
+    ready_at: tokio::time::Instant,
     method: Method,
 ) -> http::Response<Body> {
     use std::sync::atomic::Ordering::SeqCst;
-    let at = send_by.max(tokio::time::Instant::now() + MIN_SEND_TIME);
+    let at = send_by.max(ready_at + MIN_SEND_TIME);
     let written_at_ready = conn.as_ref().map_or(0, |c| c.written.load(SeqCst));
     // The time limit is kept by the connection's watching task (one per connection).
     let out = conn.as_ref().map(|c| c.watch_send(at, method.0.clone()));
@@ -423,10 +424,22 @@ pub fn inbound_status(status: &Status) -> Option<Status> {
     }
 }
 
-/// The method path and the peer address of a call, for its log lines.
-fn call_names<B>(req: &http::Request<B>) -> (Method, Peer) {
+/// The method path, the peer address and the request id of a call, for its log lines.
+fn call_names<B>(req: &http::Request<B>) -> (Method, Peer, CallId) {
     let peer = req.extensions().get::<crate::connections::ConnInfo>().and_then(|c| c.remote_addr);
-    (Method(req.uri().clone()), Peer(peer))
+    let id = req.extensions().get::<CallId>().cloned().unwrap_or(CallId(http::HeaderValue::from_static("")));
+    (Method(req.uri().clone()), Peer(peer), id)
+}
+
+/// A call's request id ([`RequestIdLayer`]), for log lines; empty outside that layer.
+#[derive(Debug, Clone)]
+struct CallId(http::HeaderValue);
+
+impl std::fmt::Display for CallId {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        // Ids are checked to be visible ASCII (or made here), so this is the whole id.
+        f.write_str(self.0.to_str().unwrap_or(""))
+    }
 }
 
 /// A call's method path, for log lines (the URI is shared, not copied, until printed).
@@ -534,6 +547,8 @@ pub struct RequestIdLayer {
 
 /// The metadata key of request ids.
 pub const REQUEST_ID: &str = "x-request-id";
+/// [`REQUEST_ID`] as a header name (a constant: no allocation per call).
+static REQUEST_ID_HEADER: http::HeaderName = http::HeaderName::from_static(REQUEST_ID);
 
 impl RequestIdLayer {
     /// Ids generated from a per-process random start and a counter: unique within the process
@@ -547,12 +562,13 @@ impl RequestIdLayer {
         Self { next: Arc::new(std::sync::atomic::AtomicU64::new(seed)) }
     }
 
+    /// The caller's id when it is usable (`None` for a new one), else a new id.
     fn id_for(&self, given: Option<&http::HeaderValue>) -> http::HeaderValue {
         let ok = |v: &&http::HeaderValue| {
             let b = v.as_bytes();
             !b.is_empty() && b.len() <= 64 && b.iter().all(|c| c.is_ascii_graphic())
         };
-        match given.filter(ok) {
+        let mut id = match given.filter(ok) {
             Some(v) => v.clone(),
             None => {
                 let n = self.next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
@@ -565,9 +581,16 @@ impl RequestIdLayer {
                 for (i, h) in hex.iter_mut().enumerate() {
                     *h = b"0123456789abcdef"[((z >> (60 - 4 * i)) & 0xf) as usize];
                 }
-                http::HeaderValue::from_bytes(&hex).unwrap_or(http::HeaderValue::from_static("0"))
+                // Owned by a shared buffer, so the copy kept for the log lines costs no
+                // allocation.
+                http::HeaderValue::from_maybe_shared(bytes::Bytes::from_owner(hex))
+                    .unwrap_or(http::HeaderValue::from_static("0"))
             }
-        }
+        };
+        // Every id is new, so HPACK must not put it in the connection's header table (where
+        // it would only push out entries that do repeat, and cost a table search per answer).
+        id.set_sensitive(true);
+        id
     }
 }
 
@@ -587,37 +610,58 @@ pub struct RequestId<S> {
 }
 
 route_service!(RequestId, |self, req| {
-    let id = self.layer.id_for(req.headers().get(REQUEST_ID));
+    let id = self.layer.id_for(req.headers().get(&REQUEST_ID_HEADER));
     let mut req = req;
-    req.headers_mut().insert(REQUEST_ID, id.clone());
+    // For the lines of the layers inside (a failed or expired call names its id).
+    req.extensions_mut().insert(CallId(id.clone()));
     let fut = self.inner.call(req);
-    let started = std::time::Instant::now();
+    // The time only when the line that shows it is written.
+    let started = tracing::enabled!(tracing::Level::DEBUG).then(std::time::Instant::now);
     Box::pin(async move {
         let mut resp = fut.await?;
         // One line per call at DEBUG (RUST_LOG=jetloop_server=debug), in the call's span.
-        let status =
-            resp.headers().get("grpc-status").and_then(|v| v.to_str().ok()).unwrap_or("0 or in trailers");
-        tracing::debug!(
-            request_id = id.to_str().unwrap_or(""),
-            grpc_status = status,
-            elapsed_ms = started.elapsed().as_secs_f64() * 1e3,
-            "answered"
-        );
-        resp.headers_mut().insert(REQUEST_ID, id);
+        if let Some(started) = started {
+            let status =
+                resp.headers().get("grpc-status").and_then(|v| v.to_str().ok()).unwrap_or("0 or in trailers");
+            tracing::debug!(
+                request_id = id.to_str().unwrap_or(""),
+                grpc_status = status,
+                elapsed_ms = started.elapsed().as_secs_f64() * 1e3,
+                "answered"
+            );
+        }
+        resp.headers_mut().insert(REQUEST_ID_HEADER.clone(), id);
         Ok(resp)
     })
 });
 
-route_service!(Auth, |self, req| {
-    let open = self.layer.tokens.is_empty() || req.uri().path().starts_with(HEALTH);
-    if !open && !self.layer.accepts(req.headers().get(http::header::AUTHORIZATION)) {
-        let refused = tonic::Status::unauthenticated(
-            "this server requires a bearer token: send `authorization: Bearer <token>` with a token it was given",
-        );
-        return Box::pin(std::future::ready(Ok(refused.into_http())));
+/// Auth answers with the inner call's own future (no box of its own: this layer runs on every
+/// call) or, for a refused call, a ready answer.
+impl<S, B> tower::Service<http::Request<B>> for Auth<S>
+where
+    S: tower::Service<http::Request<B>, Response = http::Response<Body>>,
+{
+    type Response = http::Response<Body>;
+    type Error = S::Error;
+    type Future =
+        futures_util::future::Either<std::future::Ready<Result<http::Response<Body>, S::Error>>, S::Future>;
+
+    fn poll_ready(&mut self, cx: &mut Context<'_>) -> Poll<Result<(), Self::Error>> {
+        self.inner.poll_ready(cx)
     }
-    Box::pin(self.inner.call(req))
-});
+
+    fn call(&mut self, req: http::Request<B>) -> Self::Future {
+        use futures_util::future::Either;
+        let open = self.layer.tokens.is_empty() || req.uri().path().starts_with(HEALTH);
+        if !open && !self.layer.accepts(req.headers().get(http::header::AUTHORIZATION)) {
+            let refused = tonic::Status::unauthenticated(
+                "this server requires a bearer token: send `authorization: Bearer <token>` with a token it was given",
+            );
+            return Either::Left(std::future::ready(Ok(refused.into_http())));
+        }
+        Either::Right(self.inner.call(req))
+    }
+}
 
 route_service!(Shed, |self, req| {
     let mut req = req;
@@ -664,11 +708,11 @@ route_service!(Deadline, |self, req| {
     // The call's cancellation flag: handlers hand it to their computation, which checks
     // it between units of work.
     let cancel = Cancel::new();
-    req.extensions_mut().insert(cancel.clone());
-    req.extensions_mut().insert(self.computing.clone());
+    req.extensions_mut()
+        .insert(crate::service::Work { cancel: cancel.clone(), computing: self.computing.clone() });
     let admitted = req.extensions().get::<Admitted>().cloned();
     let conn = crate::connections::ConnInfo::of(&req);
-    let (method, peer) = call_names(&req);
+    let (method, peer, id) = call_names(&req);
     let started = tokio::time::Instant::now();
     let fut = self.inner.call(req);
     Box::pin(async move {
@@ -678,20 +722,30 @@ route_service!(Deadline, |self, req| {
         // Most calls (physics answered on the reactor) are done at their first poll: they
         // need no timer at all.
         let first = std::future::poll_fn(|cx| Poll::Ready(fut.as_mut().poll(cx))).await;
-        let outcome = match first {
-            Poll::Ready(r) => Ok(r),
-            Poll::Pending => tokio::time::timeout(limit, &mut fut).await,
+        let (outcome, ready_at) = match first {
+            // Ready at once: no need to read the clock again.
+            Poll::Ready(r) => (Ok(r), started),
+            Poll::Pending => {
+                let r = tokio::time::timeout(limit, &mut fut).await;
+                (r, tokio::time::Instant::now())
+            }
         };
         match outcome {
             // The answer is ready: the permit and the time limit now cover its sending.
-            Ok(Ok(resp)) => Ok(send_guarded(resp, admitted, conn, started + send_limit, method)),
+            Ok(Ok(resp)) => Ok(send_guarded(resp, admitted, conn, started + send_limit, ready_at, method)),
             Ok(Err(e)) => Err(e),
             Err(_) => {
                 // Answer now, stop the work, and keep the call's admission permit until
                 // the work has really stopped (at most STOP_GRACE), so expired calls cannot
                 // pile orphaned computations past the concurrency limit.
                 cancel.cancel();
-                tracing::info!(%method, peer = %peer, code = "DEADLINE_EXCEEDED", "call expired: {why}");
+                tracing::info!(
+                    %method,
+                    peer = %peer,
+                    request_id = %id,
+                    code = "DEADLINE_EXCEEDED",
+                    "call expired: {why}"
+                );
                 tokio::spawn(async move {
                     let _ = tokio::time::timeout(STOP_GRACE, fut).await;
                     drop(admitted);
@@ -704,7 +758,7 @@ route_service!(Deadline, |self, req| {
 });
 
 route_service!(InboundErrors, |self, req| {
-    let (method, peer) = call_names(&req);
+    let (method, peer, id) = call_names(&req);
     let fut = self.inner.call(req);
     Box::pin(async move {
         let resp = fut.await?;
@@ -721,7 +775,14 @@ route_service!(InboundErrors, |self, req| {
         if !matches!(status.code(), tonic::Code::Ok | tonic::Code::Cancelled) {
             // Once per failed call, at info: the caller's errors are routine, the log is
             // for tracing who sent what.
-            tracing::info!(%method, peer = %peer, code = ?status.code(), "call failed: {}", status.message());
+            tracing::info!(
+                %method,
+                peer = %peer,
+                request_id = %id,
+                code = ?status.code(),
+                "call failed: {}",
+                status.message()
+            );
         }
         Ok(resp)
     })
@@ -730,6 +791,25 @@ route_service!(InboundErrors, |self, req| {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn request_ids_are_kept_or_made_and_never_enter_the_hpack_table() {
+        let layer = RequestIdLayer::new();
+        let given = http::HeaderValue::from_static("rig-3-run-17-point-2");
+        let kept = layer.id_for(Some(&given));
+        assert_eq!(kept.as_bytes(), given.as_bytes());
+        // RFC 7541 section 6.2.3: a never-indexed literal; h2 sends sensitive values so.
+        assert!(kept.is_sensitive());
+        let made = layer.id_for(None);
+        assert_eq!(made.len(), 16);
+        assert!(made.as_bytes().iter().all(u8::is_ascii_hexdigit));
+        assert!(made.is_sensitive());
+        assert_ne!(made, layer.id_for(None));
+        // Over 64 characters, or not visible ASCII: replaced by a new one.
+        let long = http::HeaderValue::from_str(&"x".repeat(65)).expect("ascii");
+        assert_eq!(layer.id_for(Some(&long)).len(), 16);
+        assert_eq!(layer.id_for(Some(&http::HeaderValue::from_static("a b"))).len(), 16);
+    }
 
     #[test]
     fn grpc_timeout_values_parse_per_the_grpc_http2_protocol() {

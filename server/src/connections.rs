@@ -257,13 +257,13 @@ pub struct Conn {
 
 impl Conn {
     fn new(inner: TcpStream, slot: OwnedSemaphorePermit, timeout: Duration) -> Self {
-        let info = ConnInfo {
+        let info = ConnInfo(Arc::new(ConnShared {
             remote_addr: inner.peer_addr().ok(),
             kill: ConnKill::default(),
-            written: Arc::default(),
-            pending: Arc::default(),
-            sends: Arc::default(),
-        };
+            written: std::sync::atomic::AtomicU64::default(),
+            pending: PendingReleases::default(),
+            sends: SendWatch::default(),
+        }));
         Self {
             inner,
             slot: Arc::new(Mutex::new(Some(slot))),
@@ -278,19 +278,32 @@ impl Conn {
     }
 }
 
-/// What every call learns about its connection (in its request extensions).
+/// What every call learns about its connection (in its request extensions): one shared
+/// record per connection, so handing it to a call costs one reference count, not one per field.
 #[derive(Debug, Clone)]
-pub struct ConnInfo {
+pub struct ConnInfo(Arc<ConnShared>);
+
+impl std::ops::Deref for ConnInfo {
+    type Target = ConnShared;
+
+    fn deref(&self) -> &ConnShared {
+        &self.0
+    }
+}
+
+/// The fields of [`ConnInfo`].
+#[derive(Debug)]
+pub struct ConnShared {
     /// The peer's address.
     pub remote_addr: Option<std::net::SocketAddr>,
     /// Closes the connection.
     pub kill: ConnKill,
     /// Bytes written to the connection so far.
-    pub written: Arc<std::sync::atomic::AtomicU64>,
+    pub written: std::sync::atomic::AtomicU64,
     /// What answers hold until the connection has written their last byte.
-    pending: Arc<PendingReleases>,
+    pending: PendingReleases,
     /// Answers being sent, each with the time by which it must be out.
-    sends: Arc<SendWatch>,
+    sends: SendWatch,
 }
 
 /// One answer being sent: out (its permit let go) or not, and by when it must be.
@@ -431,7 +444,7 @@ impl ConnInfo {
     /// The connection's watching task: sleeps until the earliest answer is due, closes the
     /// connection if it is not out by then, ends when the connection closes.
     async fn watch_sends(self) {
-        let w = self.sends.clone();
+        let w = &self.sends;
         loop {
             if w.closed.load(Ordering::SeqCst) {
                 return;
@@ -486,17 +499,16 @@ pub struct ConnKill(Arc<KillState>);
 #[derive(Debug, Default)]
 struct KillState {
     set: AtomicBool,
-    waker: std::sync::Mutex<Option<std::task::Waker>>,
+    /// The connection task's waker (lock-free, and not cloned again while it is the same:
+    /// this is checked on every read and write).
+    waker: atomic_waker::AtomicWaker,
 }
 
 impl ConnKill {
     /// Closes the connection.
     pub fn kill(&self) {
         self.0.set.store(true, Ordering::SeqCst);
-        // A poisoned lock only means a connection task panicked; the waker is still usable.
-        if let Some(w) = self.0.waker.lock().unwrap_or_else(|e| e.into_inner()).take() {
-            w.wake();
-        }
+        self.0.waker.wake();
     }
 
     /// True once killed; otherwise remembers the connection task's waker.
@@ -504,7 +516,7 @@ impl ConnKill {
         if self.0.set.load(Ordering::SeqCst) {
             return true;
         }
-        *self.0.waker.lock().unwrap_or_else(|e| e.into_inner()) = Some(cx.waker().clone());
+        self.0.waker.register(cx.waker());
         self.0.set.load(Ordering::SeqCst)
     }
 }

@@ -1,7 +1,7 @@
 //! GasDynamicsService: request conversion and response building.
 
 use super::error::{ApiError, Check};
-use super::provenance::{provenance, Defaults};
+use super::provenance::{provenance, provenance_owned, Defaults};
 use crate::physics::gas::{self, Branch, Gas, Isentropic, IsentropicInput, NormalShock};
 use crate::physics::jet::{self, JetSize, JetState, Nozzle, OperatingPoint, Regime};
 use crate::physics::models;
@@ -409,7 +409,7 @@ fn operating_point_from(
 ///
 /// # Errors
 /// [`ApiError::Invalid`] naming the input whose result lies outside the Mach range.
-pub fn isentropic_answer(q: &IsentropicQuery) -> Result<pb::IsentropicRatiosResponse, ApiError> {
+pub fn isentropic_answer(q: IsentropicQuery) -> Result<pb::IsentropicRatiosResponse, ApiError> {
     let mut check = Check::new();
     let r = check.range("", q.gas.isentropic(q.input));
     Ok(isentropic_response(q, &check.finish(r)?))
@@ -426,11 +426,9 @@ pub fn normal_shock_answer(q: &NormalShockQuery) -> Result<pb::NormalShockRespon
 }
 
 /// Builds the IsentropicRatios response.
-pub fn isentropic_response(q: &IsentropicQuery, r: &Isentropic) -> pb::IsentropicRatiosResponse {
-    let mut used = vec![models::ISENTROPIC];
-    if r.prandtl_meyer_deg.is_some() {
-        used.push(models::PRANDTL_MEYER);
-    }
+pub fn isentropic_response(q: IsentropicQuery, r: &Isentropic) -> pb::IsentropicRatiosResponse {
+    let both = [models::ISENTROPIC, models::PRANDTL_MEYER];
+    let used = if r.prandtl_meyer_deg.is_some() { &both[..] } else { &both[..1] };
     pb::IsentropicRatiosResponse {
         gamma: q.gas.gamma(),
         mach_number: r.mach,
@@ -441,7 +439,7 @@ pub fn isentropic_response(q: &IsentropicQuery, r: &Isentropic) -> pb::Isentropi
         mach_angle_deg: r.mach_angle_deg,
         prandtl_meyer_angle_deg: r.prandtl_meyer_deg,
         critical_velocity_ratio: r.critical_velocity_ratio,
-        provenance: Some(provenance(&used, &q.defaults, q.notes.clone())),
+        provenance: Some(provenance_owned(used, q.defaults, q.notes)),
     }
 }
 

@@ -42,17 +42,19 @@ impl Defaults {
 
 /// Builds the provenance message.
 pub fn provenance(models: &[Model], defaults: &Defaults, notes: Vec<String>) -> pb::Provenance {
+    provenance_owned(models, defaults.clone(), notes)
+}
+
+/// [`provenance`] taking the defaults, whose texts then move into the message instead of
+/// being copied (the physics calls answered most often use this).
+pub fn provenance_owned(models: &[Model], defaults: Defaults, notes: Vec<String>) -> pb::Provenance {
     pb::Provenance {
         server_version: SERVER_VERSION.to_string(),
         models: models.iter().map(model).collect(),
         defaults_applied: defaults
             .0
-            .iter()
-            .map(|d| pb::AppliedDefault {
-                field: d.field.clone(),
-                value: d.value.clone(),
-                reason: d.reason.clone(),
-            })
+            .into_iter()
+            .map(|d| pb::AppliedDefault { field: d.field, value: d.value, reason: d.reason })
             .collect(),
         notes,
     }

@@ -19,7 +19,7 @@ impl GasDynamicsService for GasDynamics {
         request: Request<pb::IsentropicRatiosRequest>,
     ) -> Result<Response<pb::IsentropicRatiosResponse>, Status> {
         let q = IsentropicQuery::try_from(request.into_inner())?;
-        Ok(Response::new(isentropic_answer(&q)?))
+        Ok(Response::new(isentropic_answer(q)?))
     }
 
     async fn normal_shock(

@@ -82,8 +82,8 @@ impl Drop for Running {
 }
 
 /// What a call's computation needs from the call: its cancellation flag and the server's
-/// gauge of running computations (both attached by the deadline layer; fresh ones for a call
-/// served outside it).
+/// gauge of running computations (attached by the deadline layer as one request extension;
+/// fresh ones for a call served outside it).
 #[derive(Debug, Clone, Default)]
 pub(crate) struct Work {
     pub(crate) cancel: Cancel,
@@ -92,8 +92,5 @@ pub(crate) struct Work {
 
 /// The [`Work`] context of a call.
 pub(crate) fn work_of<T>(request: &tonic::Request<T>) -> Work {
-    Work {
-        cancel: request.extensions().get::<Cancel>().cloned().unwrap_or_default(),
-        computing: request.extensions().get::<Computing>().cloned().unwrap_or_default(),
-    }
+    request.extensions().get::<Work>().cloned().unwrap_or_default()
 }
