@@ -15,10 +15,10 @@ use crate::cancel::{Cancel, CancelOnDrop};
 use crate::service::Computing;
 use std::future::Future;
 use std::pin::Pin;
+use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::Arc;
 use std::task::{Context, Poll};
 use std::time::Duration;
-use tokio::sync::Semaphore;
 use tonic::body::Body;
 use tonic::codegen::http;
 use tonic::Status;
@@ -33,7 +33,27 @@ pub const STOP_GRACE: Duration = Duration::from_secs(5);
 /// last holder lets go).
 #[derive(Debug, Clone)]
 pub struct Admitted {
-    _permit: Arc<tokio::sync::OwnedSemaphorePermit>,
+    _permit: Arc<Permit>,
+}
+
+/// One call counted in a [`ShedLayer`]'s calls in flight until dropped.
+#[derive(Debug)]
+struct Permit(Arc<AtomicUsize>);
+
+impl Drop for Permit {
+    fn drop(&mut self) {
+        self.0.fetch_sub(1, Ordering::AcqRel);
+    }
+}
+
+/// Takes one of `limit` places in `in_flight`, or `None` when all are taken. A counter, not a
+/// semaphore: calls never wait for a place (the excess is refused), so nothing needs a queue,
+/// and letting a place go is one atomic operation (a semaphore takes its waiters' lock).
+fn try_admit(in_flight: &Arc<AtomicUsize>, limit: usize) -> Option<Permit> {
+    in_flight
+        .fetch_update(Ordering::AcqRel, Ordering::Acquire, |n| (n < limit).then_some(n + 1))
+        .ok()
+        .map(|_| Permit(in_flight.clone()))
 }
 
 /// Suggested wait before retrying a refused call.
@@ -48,7 +68,8 @@ pub const RETRY_AFTER: Duration = Duration::from_millis(100);
 /// future (deadline included) has finished.
 #[derive(Debug, Clone)]
 pub struct ShedLayer {
-    permits: Arc<Semaphore>,
+    /// Calls admitted and not yet answered (sent) or stopped.
+    in_flight: Arc<AtomicUsize>,
     limit: usize,
     refusals: Arc<Refusals>,
     metrics: Option<Arc<crate::metrics::Metrics>>,
@@ -89,9 +110,9 @@ impl Refusals {
 impl ShedLayer {
     /// At most `max_in_flight` calls at once (at least 1).
     pub fn new(max_in_flight: usize) -> Self {
-        let limit = max_in_flight.clamp(1, Semaphore::MAX_PERMITS);
+        let limit = max_in_flight.max(1);
         let refusals = Refusals { since_last: 0.into(), last_log: std::sync::Mutex::new(None) };
-        Self { permits: Arc::new(Semaphore::new(limit)), limit, refusals: Arc::new(refusals), metrics: None }
+        Self { in_flight: Arc::default(), limit, refusals: Arc::new(refusals), metrics: None }
     }
 
     /// Refusals also counted in `metrics` (the `jetloop_shed_total` counter).
@@ -668,14 +689,14 @@ route_service!(Shed, |self, req| {
     let permit = if req.uri().path().starts_with(HEALTH) {
         None
     } else {
-        match self.layer.permits.clone().try_acquire_owned() {
-            Ok(p) => {
+        match try_admit(&self.layer.in_flight, self.layer.limit) {
+            Some(p) => {
                 // Shared with the deadline layer, which keeps it while stopped work winds down.
                 let p = Admitted { _permit: Arc::new(p) };
                 req.extensions_mut().insert(p.clone());
                 Some(p)
             }
-            Err(_) => {
+            None => {
                 self.layer.refusals.note(self.layer.limit);
                 if let Some(m) = &self.layer.metrics {
                     m.note_shed();

@@ -353,41 +353,57 @@ static SEND_EPOCH: std::sync::OnceLock<tokio::time::Instant> = std::sync::OnceLo
 
 /// Things held until the connection's written byte count reaches a target: dropped, in
 /// the write that reaches it.
-#[derive(Default)]
 struct PendingReleases {
-    /// Entries in `list` (read without the lock on every write).
-    len: std::sync::atomic::AtomicUsize,
+    /// The lowest target in `list` (`u64::MAX` when it is empty), read without the lock on
+    /// every write; changed only under the lock.
+    next: std::sync::atomic::AtomicU64,
     list: Mutex<Vec<(u64, Box<dyn Send>)>>,
+}
+
+impl Default for PendingReleases {
+    fn default() -> Self {
+        Self { next: u64::MAX.into(), list: Mutex::default() }
+    }
 }
 
 impl std::fmt::Debug for PendingReleases {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        write!(f, "PendingReleases({})", self.len.load(Ordering::Relaxed))
+        write!(f, "PendingReleases(next {})", self.next.load(Ordering::Relaxed))
     }
 }
 
 impl PendingReleases {
-    /// Drops every entry whose target `written` has reached.
+    /// Drops every entry whose target `written` has reached (a write that reaches none takes
+    /// no lock).
     fn release_up_to(&self, written: u64) {
-        if self.len.load(Ordering::SeqCst) == 0 {
+        if written < self.next.load(Ordering::SeqCst) {
             return;
         }
         let done: Vec<Box<dyn Send>> = {
             let mut list = self.list.lock().unwrap_or_else(|e| e.into_inner());
             let mut out = Vec::new();
+            let mut next = u64::MAX;
             let mut i = 0;
             while i < list.len() {
                 if list[i].0 <= written {
                     out.push(list.swap_remove(i).1);
                 } else {
+                    next = next.min(list[i].0);
                     i += 1;
                 }
             }
-            self.len.store(list.len(), Ordering::SeqCst);
+            self.next.store(next, Ordering::SeqCst);
             out
         };
         // Dropped outside the lock (a permit's release may wake other tasks).
         drop(done);
+    }
+
+    /// Holds `held` until `target` is reached.
+    fn push(&self, target: u64, held: Box<dyn Send>) {
+        let mut list = self.list.lock().unwrap_or_else(|e| e.into_inner());
+        list.push((target, held));
+        self.next.fetch_min(target, Ordering::SeqCst);
     }
 }
 
@@ -398,11 +414,7 @@ impl ConnInfo {
         if self.written.load(Ordering::SeqCst) >= target {
             return drop(held);
         }
-        {
-            let mut list = self.pending.list.lock().unwrap_or_else(|e| e.into_inner());
-            list.push((target, held));
-            self.pending.len.store(list.len(), Ordering::SeqCst);
-        }
+        self.pending.push(target, held);
         // A write between the check above and the push has not seen this entry.
         self.pending.release_up_to(self.written.load(Ordering::SeqCst));
     }
