@@ -814,6 +814,22 @@ mod tests {
     use super::*;
 
     #[test]
+    fn admission_takes_at_most_the_limit_and_a_place_returns_with_its_last_holder() {
+        let in_flight = Arc::new(AtomicUsize::new(0));
+        let a = try_admit(&in_flight, 2).expect("first place");
+        let b = try_admit(&in_flight, 2).expect("second place");
+        assert!(try_admit(&in_flight, 2).is_none(), "a third call is refused at a limit of 2");
+        drop(a);
+        let c = Admitted { _permit: Arc::new(try_admit(&in_flight, 2).expect("a place came back")) };
+        let c2 = c.clone(); // the deadline layer's share
+        drop(c);
+        assert!(try_admit(&in_flight, 2).is_none(), "held by the remaining share");
+        drop(c2);
+        drop(b);
+        assert_eq!(in_flight.load(Ordering::SeqCst), 0);
+    }
+
+    #[test]
     fn request_ids_are_kept_or_made_and_never_enter_the_hpack_table() {
         let layer = RequestIdLayer::new();
         let given = http::HeaderValue::from_static("rig-3-run-17-point-2");

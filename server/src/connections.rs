@@ -631,3 +631,40 @@ impl AsyncWrite for Conn {
         false
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Sets its flag when dropped.
+    struct Mark(Arc<AtomicBool>);
+
+    impl Drop for Mark {
+        fn drop(&mut self) {
+            self.0.store(true, Ordering::SeqCst);
+        }
+    }
+
+    fn mark() -> (Arc<AtomicBool>, Box<dyn Send>) {
+        let f = Arc::new(AtomicBool::new(false));
+        (f.clone(), Box::new(Mark(f)))
+    }
+
+    #[test]
+    fn held_things_go_in_the_write_that_reaches_their_target_and_not_before() {
+        let p = PendingReleases::default();
+        let (late, late_box) = mark();
+        let (soon, soon_box) = mark();
+        p.push(100, late_box);
+        p.push(50, soon_box);
+        assert_eq!(p.next.load(Ordering::SeqCst), 50);
+        p.release_up_to(49);
+        assert!(!soon.load(Ordering::SeqCst) && !late.load(Ordering::SeqCst));
+        p.release_up_to(50);
+        assert!(soon.load(Ordering::SeqCst) && !late.load(Ordering::SeqCst));
+        assert_eq!(p.next.load(Ordering::SeqCst), 100);
+        p.release_up_to(u64::MAX);
+        assert!(late.load(Ordering::SeqCst));
+        assert_eq!(p.next.load(Ordering::SeqCst), u64::MAX);
+    }
+}
