@@ -583,7 +583,8 @@ impl RequestIdLayer {
         Self { next: Arc::new(std::sync::atomic::AtomicU64::new(seed)) }
     }
 
-    /// The caller's id when it is usable (`None` for a new one), else a new id.
+    /// The caller's id (`given`) when it is usable (1 to 64 visible ASCII characters), else a
+    /// new one; either way marked sensitive, so HPACK never indexes it.
     fn id_for(&self, given: Option<&http::HeaderValue>) -> http::HeaderValue {
         let ok = |v: &&http::HeaderValue| {
             let b = v.as_bytes();
