@@ -5,15 +5,14 @@
 //! never import tonic, prost or tokio.
 #![forbid(unsafe_code)]
 
+// The computation lives in `jetloop-core`; re-exported so `crate::physics::...` paths in the
+// API edge and services read as before.
+pub use jetloop_core::{cancel, dsp, physics};
+
 pub mod admission;
 pub mod api;
-pub mod cancel;
 pub mod config;
 pub mod connections;
-pub mod dsp;
 pub mod metrics;
-pub mod physics;
 pub mod server;
 pub mod service;
-#[cfg(test)]
-mod test_rng;

@@ -5,7 +5,7 @@
 //! temperature, velocity, and the size that carries the nozzle's mass flow at that state.
 //!
 //! ```
-//! use jetloop_server::physics::{gas::Gas, jet::{Nozzle, OperatingPoint, jet_state}};
+//! use jetloop_core::physics::{gas::Gas, jet::{Nozzle, OperatingPoint, jet_state}};
 //! let nozzle = Nozzle::round_convergent(0.0254).unwrap();
 //! let op = OperatingPoint::new(4.0, 101_325.0, 288.15, 288.15).unwrap();
 //! let s = jet_state(&Gas::AIR, &nozzle, &op);

@@ -2,7 +2,7 @@
 //! (NACA Report 1135, 1953).
 //!
 //! ```
-//! use jetloop_server::physics::gas::Gas;
+//! use jetloop_core::physics::gas::Gas;
 //! let air = Gas::AIR;
 //! let r = air.isentropic_at(2.0).unwrap();
 //! assert!((r.pressure_ratio - 0.127_804_525_462_951).abs() < 1e-12);

@@ -6,7 +6,7 @@
 //! - [`sweep`]: [`predict`] at each value of an NPR, Mj or reflector-distance sweep.
 //!
 //! ```
-//! use jetloop_server::physics::{gas::Gas, jet::{ExpandedJet, JetSize}, screech};
+//! use jetloop_core::physics::{gas::Gas, jet::{ExpandedJet, JetSize}, screech};
 //! let jet = ExpandedJet::direct(Gas::AIR, Gas::AIR, 1.5, JetSize::Round { diameter_m: 0.02 }, 288.15, 288.15)
 //!     .unwrap();
 //! let p = screech::predict(&jet, &screech::ScreechOptions::default()).unwrap();
