@@ -1,6 +1,6 @@
 //! Server configuration: command-line flags with environment fallbacks and safe defaults.
 
-use crate::connections::{default_max_connections, ConnectionLimits};
+use crate::transport::{default_max_connections, ConnectionLimits};
 use clap::Parser;
 use std::net::SocketAddr;
 use std::time::Duration;

@@ -6,17 +6,13 @@
 //! caller sending random paths cannot grow the label set (they count as `other`). Counting is
 //! lock-free (atomics in a table built once).
 
-use crate::admission::{route_service, BoxFuture, FrameWatch, Watched};
-use crate::service::budget::SampleBudget;
-use crate::service::Computing;
+use crate::runtime::budget::SampleBudget;
+use crate::runtime::Computing;
 use std::collections::HashMap;
 use std::fmt::Write as _;
 use std::sync::atomic::{AtomicI64, AtomicU64, Ordering::Relaxed};
 use std::sync::Arc;
-use std::task::{Context, Poll};
-use std::time::{Duration, Instant};
-use tonic::body::Body;
-use tonic::codegen::http;
+use std::time::Duration;
 
 /// Upper bounds of the latency histogram buckets, seconds (then +Inf).
 pub const LATENCY_BUCKETS_S: [f64; 19] = [
@@ -126,7 +122,7 @@ impl Metrics {
         }
     }
 
-    fn method(&self, path: &str) -> usize {
+    pub(crate) fn method(&self, path: &str) -> usize {
         self.index.get(path).copied().unwrap_or(self.names.len() - 1)
     }
 
@@ -141,14 +137,14 @@ impl Metrics {
         self.sample_bytes.fetch_add(bytes, Relaxed);
     }
 
-    fn start(&self, method: usize) {
+    pub(crate) fn start(&self, method: usize) {
         self.in_flight.fetch_add(1, Relaxed);
         if self.methods[method].streaming {
             self.streams_open.fetch_add(1, Relaxed);
         }
     }
 
-    fn finish(&self, method: usize, code: usize, elapsed: Duration) {
+    pub(crate) fn finish(&self, method: usize, code: usize, elapsed: Duration) {
         let m = &self.methods[method];
         self.in_flight.fetch_sub(1, Relaxed);
         if m.streaming {
@@ -256,104 +252,6 @@ impl Metrics {
             );
         }
         o
-    }
-}
-
-/// The layer that counts every call (outside authentication and admission, so refusals count).
-#[derive(Debug, Clone)]
-pub struct MetricsLayer {
-    metrics: Option<Arc<Metrics>>,
-}
-
-impl MetricsLayer {
-    /// Counting into `metrics`; `None` passes calls through untouched.
-    pub fn new(metrics: Option<Arc<Metrics>>) -> Self {
-        Self { metrics }
-    }
-}
-
-impl<S> tower::Layer<S> for MetricsLayer {
-    type Service = Measured<S>;
-
-    fn layer(&self, inner: S) -> Measured<S> {
-        Measured { inner, metrics: self.metrics.clone() }
-    }
-}
-
-/// The service [`MetricsLayer`] wraps around the routes.
-#[derive(Debug, Clone)]
-pub struct Measured<S> {
-    inner: S,
-    metrics: Option<Arc<Metrics>>,
-}
-
-route_service!(Measured, |self, req| {
-    let Some(metrics) = self.metrics.clone() else {
-        return Box::pin(self.inner.call(req));
-    };
-    let method = metrics.method(req.uri().path());
-    metrics.start(method);
-    let started = Instant::now();
-    let mut watch = Finish { metrics, method, started, code: None, done: false };
-    let fut = self.inner.call(req);
-    Box::pin(async move {
-        let resp = match fut.await {
-            Ok(r) => r,
-            Err(e) => {
-                watch.code = Some(14);
-                drop(watch);
-                return Err(e);
-            }
-        };
-        // A trailers-only answer (errors, refusals) has its status in the headers.
-        watch.code = header_code(resp.headers());
-        let (parts, body) = resp.into_parts();
-        Ok(http::Response::from_parts(parts, Body::new(Watched { inner: body, watch })))
-    })
-});
-
-fn header_code(h: &http::HeaderMap) -> Option<usize> {
-    h.get("grpc-status").and_then(|v| v.to_str().ok()).and_then(|v| v.parse().ok())
-}
-
-/// Records a call once: when its answer ends, or when it is dropped unfinished (a caller that
-/// went away: CANCELLED unless a status was seen).
-#[derive(Debug)]
-struct Finish {
-    metrics: Arc<Metrics>,
-    method: usize,
-    started: Instant,
-    code: Option<usize>,
-    done: bool,
-}
-
-impl Finish {
-    fn record(&mut self) {
-        if !self.done {
-            self.done = true;
-            self.metrics.finish(self.method, self.code.unwrap_or(1), self.started.elapsed());
-        }
-    }
-}
-
-impl Drop for Finish {
-    fn drop(&mut self) {
-        self.record();
-    }
-}
-
-impl FrameWatch for Finish {
-    fn frame(&mut self, f: &http_body::Frame<bytes::Bytes>) {
-        if let Some(t) = f.trailers_ref() {
-            if let Some(c) = header_code(t) {
-                self.code = Some(c);
-            }
-            self.record();
-        }
-    }
-
-    fn end(&mut self) {
-        self.record();
     }
 }
 

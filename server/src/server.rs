@@ -1,13 +1,14 @@
 //! Builds the tonic server: jetloop services, health, reflection and the limits around them.
 
-use crate::admission::{AuthLayer, DeadlineLayer, InboundErrorsLayer, RequestIdLayer, ShedLayer};
 use crate::config::{ServeOptions, TlsFiles};
-use crate::metrics::{Metrics, MetricsLayer};
-use crate::service::budget::SampleBudget;
+use crate::layers::{AuthLayer, DeadlineLayer, InboundErrorsLayer, MetricsLayer, RequestIdLayer, ShedLayer};
+use crate::metrics::Metrics;
+use crate::runtime::budget::SampleBudget;
 use crate::service::{
     gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells, spectrum::Spectrum, staging::Staging,
     tones::Tones,
 };
+pub use crate::service::{JETLOOP_SERVICES, STANDARD_SERVICES};
 use jetloop_proto::pb::{
     gas_dynamics_service_server::GasDynamicsServiceServer, info_service_server::InfoServiceServer,
     shock_cell_service_server::ShockCellServiceServer, spectrum_service_server::SpectrumServiceServer,
@@ -16,7 +17,6 @@ use jetloop_proto::pb::{
 use std::future::Future;
 use std::sync::Arc;
 use tokio::net::TcpListener;
-use tonic::server::NamedService;
 use tonic::transport::Server;
 
 /// The message-size limit of every jetloop service, requests and answers alike (spectra with
@@ -31,24 +31,6 @@ macro_rules! limited {
 pub const KEEPALIVE_INTERVAL: std::time::Duration = std::time::Duration::from_secs(20);
 /// Time a peer has to answer a keepalive ping before its connection is closed.
 pub const KEEPALIVE_TIMEOUT: std::time::Duration = std::time::Duration::from_secs(10);
-
-/// The jetloop services this server answers, by their gRPC names (taken from the generated
-/// servers, so the list cannot drift from what is served).
-pub const JETLOOP_SERVICES: &[&str] = &[
-    <GasDynamicsServiceServer<GasDynamics> as NamedService>::NAME,
-    <InfoServiceServer<Info> as NamedService>::NAME,
-    <ShockCellServiceServer<ShockCells> as NamedService>::NAME,
-    <ToneServiceServer<Tones> as NamedService>::NAME,
-    <SpectrumServiceServer<Spectrum> as NamedService>::NAME,
-    <StagingServiceServer<Staging> as NamedService>::NAME,
-];
-
-/// The standard services served beside them: health and reflection (v1 and v1alpha).
-pub const STANDARD_SERVICES: &[&str] = &[
-    tonic_health::pb::health_server::SERVICE_NAME,
-    tonic_reflection::pb::v1::server_reflection_server::SERVICE_NAME,
-    tonic_reflection::pb::v1alpha::server_reflection_server::SERVICE_NAME,
-];
 
 /// Error starting or running the server.
 #[derive(Debug, thiserror::Error)]
@@ -141,7 +123,7 @@ pub async fn serve_observed(
     let (reflection_v1, reflection_v1alpha) = reflection.unzip();
 
     // The gauge of running computations, handed to every call by the deadline layer.
-    let computing = crate::service::Computing::default();
+    let computing = crate::runtime::Computing::default();
     let budget = SampleBudget::new(limits.sample_budget_bytes);
     // Metrics only when they are served; the endpoint task ends with this function.
     let metrics = metrics_listener
@@ -237,7 +219,7 @@ pub async fn serve_observed(
         // Connections through the capped accept loop (handshake timeout, back-off on accept
         // errors, TCP_NODELAY): see `connections`.
         .serve_with_incoming_shutdown(
-            crate::connections::incoming(listener, connections, async {
+            crate::transport::incoming(listener, connections, async {
                 let _ = stop_listening.await;
             }),
             stop_accepting,

@@ -580,8 +580,9 @@ pub mod in_process {
     };
     use jetloop_server::api::spectrum::{ToneStream, TrackSession};
     use jetloop_server::dsp::samples::{Format, Layout, Recording};
+    use jetloop_server::runtime::budget::SampleBudget;
     use jetloop_server::service::{
-        budget::SampleBudget, gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells,
+        gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells,
         spectrum::Spectrum, staging::Staging, tones::Tones,
     };
     use prost::Message;
@@ -599,7 +600,7 @@ pub mod in_process {
             let limits = jetloop_server::config::Limits::default();
             let budget = SampleBudget::new(512 << 20);
             Self {
-                info: Info::new(limits, budget.clone(), jetloop_server::service::Computing::default()),
+                info: Info::new(limits, budget.clone(), jetloop_server::runtime::Computing::default()),
                 spectrum: Spectrum::new(budget, None),
             }
         }

@@ -3,7 +3,7 @@
 
 use jetloop_proto::pb::{self, gas_dynamics_service_client::GasDynamicsServiceClient};
 use jetloop_server::config::ServeOptions;
-use jetloop_server::connections::ConnectionLimits;
+use jetloop_server::transport::ConnectionLimits;
 use jetloop_tests::TestServer;
 use std::time::{Duration, Instant};
 use tokio::io::AsyncReadExt;

@@ -247,7 +247,7 @@ async fn a_silent_connection_does_not_hold_the_shutdown_until_its_handshake_time
     let mut server = TestServer::start_with_options(ServeOptions {
         drain_notice: notice,
         drain: Duration::from_secs(20),
-        connections: jetloop_server::connections::ConnectionLimits {
+        connections: jetloop_server::transport::ConnectionLimits {
             max_connections: 64,
             handshake_timeout: Duration::from_secs(60),
         },

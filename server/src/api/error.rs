@@ -195,6 +195,47 @@ impl Check {
     }
 }
 
+/// Messages tonic gives request bodies it cannot decode (tonic 0.14 `codec/decode.rs`,
+/// tonic-prost `from_decode_error`).
+const DECODE_FAILURES: [&str; 5] = [
+    "failed to decode Protobuf message",
+    "protocol error: received message with",
+    "Error decompressing",
+    "Unexpected EOF decoding stream",
+    "Missing request message",
+];
+/// tonic's message for a request over the size limit.
+const TOO_LARGE: &str = "Error, decoded message length too large";
+
+/// The status a trailers-only error answer should carry instead, if any.
+pub fn inbound_status(status: &Status) -> Option<Status> {
+    let msg = status.message();
+    match status.code() {
+        tonic::Code::Internal if DECODE_FAILURES.iter().any(|p| msg.starts_with(p)) => {
+            let mut details = ErrorDetails::new();
+            details.add_bad_request_violation(
+                "(request body)",
+                format!("the request body is not a valid message of this RPC: {msg}"),
+            );
+            Some(Status::with_error_details(
+                tonic::Code::InvalidArgument,
+                format!("the request body could not be decoded: {msg}"),
+                details,
+            ))
+        }
+        tonic::Code::OutOfRange if msg.starts_with(TOO_LARGE) => {
+            let mut details = ErrorDetails::new();
+            details.add_bad_request_violation("(request body)", msg.to_string());
+            Some(Status::with_error_details(
+                tonic::Code::ResourceExhausted,
+                format!("{msg}; send smaller messages (samples in blocks: ExtractTonesStream)"),
+                details,
+            ))
+        }
+        _ => None,
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -1,11 +1,11 @@
 //! `jetloop.v1.InfoService`.
 
-use super::budget::SampleBudget;
+use super::{JETLOOP_SERVICES, STANDARD_SERVICES};
 use crate::api::gas::PRESSURE_CAUTION;
 use crate::api::provenance::{model, provenance, Defaults, SERVER_VERSION};
 use crate::config::Limits;
 use crate::physics::models;
-use crate::server::{JETLOOP_SERVICES, STANDARD_SERVICES};
+use crate::runtime::budget::SampleBudget;
 use jetloop_proto::pb::{self, info_service_server::InfoService};
 use tonic::{Request, Response, Status};
 
@@ -14,12 +14,12 @@ use tonic::{Request, Response, Status};
 pub struct Info {
     limits: Limits,
     budget: SampleBudget,
-    computing: super::Computing,
+    computing: crate::runtime::Computing,
 }
 
 impl Info {
     /// Info for a server running with `limits`.
-    pub fn new(limits: Limits, budget: SampleBudget, computing: super::Computing) -> Self {
+    pub fn new(limits: Limits, budget: SampleBudget, computing: crate::runtime::Computing) -> Self {
         Self { limits, budget, computing }
     }
 }

@@ -1,6 +1,5 @@
 //! Thin gRPC handlers: convert, compute, convert back. One file per service.
 
-pub mod budget;
 pub mod gas_dynamics;
 pub mod info;
 pub mod shock_cells;
@@ -8,89 +7,33 @@ pub mod spectrum;
 pub mod staging;
 pub mod tones;
 
-use crate::api::ApiError;
-use crate::cancel::{Cancel, CancelOnDrop};
-use std::sync::atomic::{AtomicUsize, Ordering};
-use std::sync::Arc;
-use tonic::Status;
+use gas_dynamics::GasDynamics;
+use info::Info;
+use jetloop_proto::pb::{
+    gas_dynamics_service_server::GasDynamicsServiceServer, info_service_server::InfoServiceServer,
+    shock_cell_service_server::ShockCellServiceServer, spectrum_service_server::SpectrumServiceServer,
+    staging_service_server::StagingServiceServer, tone_service_server::ToneServiceServer,
+};
+use shock_cells::ShockCells;
+use spectrum::Spectrum;
+use staging::Staging;
+use tones::Tones;
+use tonic::server::NamedService;
 
-/// Runs CPU-heavy work `f` (a conversion and its computation) on the blocking pool, so the
-/// reactor only moves bytes. `f` gets the call's cancellation flag ([`work_of`]) and checks
-/// it between units of work; if this future is dropped (the caller went away) the flag is set
-/// too, so no orphaned work runs on. A task that panicked or was cancelled is logged with
-/// `what` and answered INTERNAL without internal detail; the work's own error maps through
-/// `From<ApiError> for Status`.
-///
-/// # Errors
-/// The work's [`ApiError`] as a [`Status`], or INTERNAL when the task did not finish.
-pub(crate) async fn blocking<T: Send + 'static>(
-    what: &'static str,
-    work: Work,
-    f: impl FnOnce(&Cancel) -> Result<T, ApiError> + Send + 'static,
-) -> Result<T, Status> {
-    let Work { cancel, computing } = work;
-    let guard = CancelOnDrop(cancel.clone());
-    let task = tokio::task::spawn_blocking(move || {
-        let _running = Running::start(&computing);
-        f(&cancel)
-    });
-    let out = join(what, task.await)?.map_err(Status::from);
-    drop(guard);
-    out
-}
+/// The jetloop services this server answers, by their gRPC names (taken from the generated
+/// servers, so the list cannot drift from what is served).
+pub const JETLOOP_SERVICES: &[&str] = &[
+    <GasDynamicsServiceServer<GasDynamics> as NamedService>::NAME,
+    <InfoServiceServer<Info> as NamedService>::NAME,
+    <ShockCellServiceServer<ShockCells> as NamedService>::NAME,
+    <ToneServiceServer<Tones> as NamedService>::NAME,
+    <SpectrumServiceServer<Spectrum> as NamedService>::NAME,
+    <StagingServiceServer<Staging> as NamedService>::NAME,
+];
 
-/// Maps a blocking task's join result: a task that panicked or was cancelled is logged with
-/// `what` and answered INTERNAL without internal detail.
-///
-/// # Errors
-/// INTERNAL when the task did not finish.
-pub(crate) fn join<T>(what: &'static str, r: Result<T, tokio::task::JoinError>) -> Result<T, Status> {
-    r.map_err(|e| {
-        tracing::error!("{what} task failed: {e}");
-        Status::internal(format!("the {what} failed; see the server log"))
-    })
-}
-
-/// Computations running on one server's blocking pool now (ServerInfo
-/// `computations_in_flight`). Shared by the deadline layer, which hands it to every call, and
-/// the info service.
-#[derive(Debug, Clone, Default)]
-pub struct Computing(Arc<AtomicUsize>);
-
-impl Computing {
-    /// Computations running now.
-    pub fn count(&self) -> usize {
-        self.0.load(Ordering::Relaxed)
-    }
-}
-
-/// Counts one computation while it lives (a panic included).
-pub(crate) struct Running(Computing);
-
-impl Running {
-    /// Counts a computation that starts now.
-    pub(crate) fn start(c: &Computing) -> Self {
-        c.0.fetch_add(1, Ordering::Relaxed);
-        Running(c.clone())
-    }
-}
-
-impl Drop for Running {
-    fn drop(&mut self) {
-        self.0 .0.fetch_sub(1, Ordering::Relaxed);
-    }
-}
-
-/// What a call's computation needs from the call: its cancellation flag and the server's
-/// gauge of running computations (attached by the deadline layer as one request extension;
-/// fresh ones for a call served outside it).
-#[derive(Debug, Clone, Default)]
-pub(crate) struct Work {
-    pub(crate) cancel: Cancel,
-    pub(crate) computing: Computing,
-}
-
-/// The [`Work`] context of a call.
-pub(crate) fn work_of<T>(request: &tonic::Request<T>) -> Work {
-    request.extensions().get::<Work>().cloned().unwrap_or_default()
-}
+/// The standard services served beside them: health and reflection (v1 and v1alpha).
+pub const STANDARD_SERVICES: &[&str] = &[
+    tonic_health::pb::health_server::SERVICE_NAME,
+    tonic_reflection::pb::v1::server_reflection_server::SERVICE_NAME,
+    tonic_reflection::pb::v1alpha::server_reflection_server::SERVICE_NAME,
+];

@@ -1,6 +1,5 @@
 //! `jetloop.v1.SpectrumService`.
 
-use super::budget::{Held, SampleBudget};
 use crate::api::error::PreconditionViolation;
 use crate::api::spectrum::{
     bands_response, cross_response, held_bytes, ramp_response, sample_width, tones_response, values_in,
@@ -8,6 +7,7 @@ use crate::api::spectrum::{
 };
 use crate::api::ApiError;
 use crate::metrics::Metrics;
+use crate::runtime::budget::{Held, SampleBudget};
 use jetloop_proto::pb::{self, spectrum_service_server::SpectrumService};
 use std::sync::Arc;
 use tonic::{Request, Response, Status, Streaming};
@@ -51,13 +51,13 @@ impl Spectrum {
         what: &'static str,
         f: impl FnOnce(Q, &crate::cancel::Cancel) -> Result<R, ApiError> + Send + 'static,
     ) -> Result<Response<R>, Status> {
-        let work = super::work_of(&request);
+        let work = crate::runtime::work_of(&request);
         let req = request.into_inner();
         let mut held = Held::default();
         let bytes = held_bytes(samples(&req));
         self.budget.take(&mut held, bytes, "samples")?;
         self.count(bytes, sample_width(samples(&req)));
-        let r = super::blocking(what, work, move |c| f(req, c)).await?;
+        let r = crate::runtime::blocking(what, work, move |c| f(req, c)).await?;
         drop(held);
         Ok(Response::new(r))
     }
@@ -82,7 +82,7 @@ impl SpectrumService for Spectrum {
         &self,
         request: Request<Streaming<pb::SampleBlock>>,
     ) -> Result<Response<pb::ExtractTonesResponse>, Status> {
-        let work = super::work_of(&request);
+        let work = crate::runtime::work_of(&request);
         let mut incoming = request.into_inner();
         let first = incoming.message().await?.ok_or_else(|| Status::from(ToneStream::empty()))?;
         // Every block's bytes count against the server-wide budget until the stream ends.
@@ -99,7 +99,7 @@ impl SpectrumService for Spectrum {
         let (tx, rx) = std::sync::mpsc::channel::<Option<pb::SampleBlock>>();
         let (cancel, computing) = (work.cancel, work.computing);
         let worker = tokio::task::spawn_blocking(move || -> Result<_, ApiError> {
-            let _running = super::Running::start(&computing);
+            let _running = crate::runtime::Running::start(&computing);
             let mut stream = ToneStream::start(first)?;
             loop {
                 match rx.recv() {
@@ -155,7 +155,7 @@ impl SpectrumService for Spectrum {
             }
         }
         drop(tx);
-        let answer = super::join("spectral analysis", worker.await)?;
+        let answer = crate::runtime::join("spectral analysis", worker.await)?;
         drop(held);
         received?;
         Ok(Response::new(answer.map_err(Status::from)?))
@@ -168,8 +168,8 @@ impl SpectrumService for Spectrum {
         &self,
         request: Request<Streaming<pb::TrackRequest>>,
     ) -> Result<Response<Self::TrackTonesStream>, Status> {
-        // The stream's own end (the admission layer's live-stream limit); none outside a server.
-        let deadline = request.extensions().get::<crate::admission::StreamDeadline>().cloned();
+        // The stream's own end (the deadline layer's live-stream limit); none outside a server.
+        let deadline = request.extensions().get::<crate::runtime::StreamDeadline>().cloned();
         let mut incoming = request.into_inner();
         let first = incoming.message().await?.ok_or_else(|| {
             Status::from(ApiError::Invalid(vec![crate::api::FieldViolation {
@@ -232,7 +232,7 @@ impl SpectrumService for Spectrum {
                         // correct this one: a later message that does not decode is the
                         // caller's error (INVALID_ARGUMENT), one over the size limit
                         // RESOURCE_EXHAUSTED, as for the first.
-                        let e = crate::admission::inbound_status(&e).unwrap_or(e);
+                        let e = crate::api::error::inbound_status(&e).unwrap_or(e);
                         let _ = tx.send(Err(e)).await;
                         return;
                     }

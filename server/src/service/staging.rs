@@ -14,11 +14,12 @@ impl StagingService for Staging {
         &self,
         request: Request<pb::FitStagesRequest>,
     ) -> Result<Response<pb::FitStagesResponse>, Status> {
-        let work = super::work_of(&request);
+        let work = crate::runtime::work_of(&request);
         let req = request.into_inner();
-        let r =
-            super::blocking("stage fit", work, move |c| staging_response(StagingQuery::try_from(req)?, c))
-                .await?;
+        let r = crate::runtime::blocking("stage fit", work, move |c| {
+            staging_response(StagingQuery::try_from(req)?, c)
+        })
+        .await?;
         Ok(Response::new(r))
     }
 }

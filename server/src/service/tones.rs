@@ -19,13 +19,15 @@ impl ToneService for Tones {
         &self,
         request: Request<pb::PredictScreechRequest>,
     ) -> Result<Response<pb::PredictScreechResponse>, Status> {
-        let work = super::work_of(&request);
+        let work = crate::runtime::work_of(&request);
         let q = ScreechQuery::try_from(request.into_inner())?;
         if q.settings.guided.is_none() {
             return Ok(Response::new(screech_response(&q)?));
         }
         // Guided modes take about a millisecond: off the reactor.
-        Ok(Response::new(super::blocking("screech prediction", work, move |_| screech_response(&q)).await?))
+        Ok(Response::new(
+            crate::runtime::blocking("screech prediction", work, move |_| screech_response(&q)).await?,
+        ))
     }
 
     async fn predict_shock_noise(
@@ -40,19 +42,22 @@ impl ToneService for Tones {
         &self,
         request: Request<pb::SweepScreechRequest>,
     ) -> Result<Response<pb::SweepScreechResponse>, Status> {
-        let work = super::work_of(&request);
+        let work = crate::runtime::work_of(&request);
         let q = SweepQuery::try_from(request.into_inner())?;
-        Ok(Response::new(super::blocking("sweep computation", work, move |c| sweep_response(&q, c)).await?))
+        Ok(Response::new(
+            crate::runtime::blocking("sweep computation", work, move |c| sweep_response(&q, c)).await?,
+        ))
     }
 
     async fn guided_modes(
         &self,
         request: Request<pb::GuidedModesRequest>,
     ) -> Result<Response<pb::GuidedModesResponse>, Status> {
-        let work = super::work_of(&request);
+        let work = crate::runtime::work_of(&request);
         let q = GuidedQuery::try_from(request.into_inner())?;
         Ok(Response::new(
-            super::blocking("guided-mode computation", work, move |_| Ok(guided_response(&q))).await?,
+            crate::runtime::blocking("guided-mode computation", work, move |_| Ok(guided_response(&q)))
+                .await?,
         ))
     }
 }
