@@ -49,6 +49,32 @@ async fn bad_inputs_name_their_field() {
     };
     let e = t.guided_modes(ask(sheet(1.5, 1.0), opts(planar))).await.unwrap_err();
     assert_field(&e, Code::InvalidArgument, "options.modes[0].shape");
+    // A jet outside the solver's range names the field the caller sent (not the solver's own
+    // parameters): a fully expanded Mach number given directly, a pressure ratio, and the
+    // temperatures that set an extreme density ratio.
+    let expanded = |mj: f64, t0: Option<f64>, ta: Option<f64>| {
+        pb::guided_modes_request::Source::Jet(pb::JetInput {
+            source: Some(pb::jet_input::Source::FullyExpanded(pb::FullyExpandedJet {
+                fully_expanded_mach_number: mj,
+                size: Some(pb::fully_expanded_jet::Size::FullyExpandedDiameterM(0.0254)),
+                total_temperature_k: t0,
+                ambient_temperature_k: ta,
+                gas: None,
+                ambient_gas: None,
+            })),
+        })
+    };
+    let e = t.guided_modes(ask(expanded(6.5, None, None), None)).await.unwrap_err();
+    assert_field(&e, Code::InvalidArgument, "jet.fully_expanded.fully_expanded_mach_number");
+    let e = t.guided_modes(ask(pb::guided_modes_request::Source::Jet(inch_nozzle(600.0)), None)).await.unwrap_err();
+    assert_field(&e, Code::InvalidArgument, "jet.conditions.operating_point.nozzle_pressure_ratio");
+    // Tj / Ta = (5000 K / 1.8) / 20 K = 139: density ratio 0.007, below the solver's 0.01.
+    let e = t.guided_modes(ask(expanded(2.0, Some(5000.0), Some(20.0)), None)).await.unwrap_err();
+    assert_field(&e, Code::InvalidArgument, "jet.fully_expanded.total_temperature_k");
+    assert_field(&e, Code::InvalidArgument, "jet.fully_expanded.ambient_temperature_k");
+    for v in tonic_types::StatusExt::get_error_details(&e).bad_request().expect("details").field_violations.iter() {
+        assert!(!v.field.ends_with(".density_ratio") && v.field != "jet.fully_expanded_mach_number", "{v:?}");
+    }
     // A subsonic jet given by conditions is a precondition failure, not an argument error.
     let e =
         t.guided_modes(ask(pb::guided_modes_request::Source::Jet(inch_nozzle(1.5)), None)).await.unwrap_err();

@@ -2,7 +2,8 @@
 //! (its own test binary, because it installs the process-wide log subscriber).
 
 use jetloop_proto::pb::{
-    self, gas_dynamics_service_client::GasDynamicsServiceClient, tone_service_client::ToneServiceClient,
+    self, gas_dynamics_service_client::GasDynamicsServiceClient, spectrum_service_client::SpectrumServiceClient,
+    tone_service_client::ToneServiceClient,
 };
 use jetloop_tests::TestServer;
 use std::io::Write;
@@ -161,5 +162,41 @@ async fn failures_and_expiries_are_logged_once_with_method_code_and_peer_and_ref
     }
     assert_eq!(over_tls.len(), 2, "{over_tls:?}");
     assert!(over_tls[1].contains("127.0.0.1:") && !over_tls[1].contains("unknown"), "{}", over_tls[1]);
+    server.stop().await;
+
+    // A live stream that fails part-way (its answer's headers already out, the status in its
+    // trailers) is logged like a failed unary call: one line with the method, code and peer.
+    let server = TestServer::start().await;
+    let mut c = SpectrumServiceClient::new(server.channel().await);
+    let msgs = vec![
+        jetloop_tests::fixtures::track_config(48_000.0, 2048, 0.1),
+        pb::TrackRequest { item: Some(pb::track_request::Item::Frames(vec![0u8; 6].into())) },
+    ];
+    let mut updates = c.track_tones(tokio_stream::iter(msgs)).await.expect("stream opens").into_inner();
+    let e = loop {
+        match updates.message().await {
+            Ok(Some(_)) => continue,
+            Ok(None) => panic!("the stream ended without an error"),
+            Err(e) => break e,
+        }
+    };
+    assert_eq!(e.code(), Code::InvalidArgument, "{e:?}");
+    let mut streamed = Vec::new();
+    for _ in 0..500 {
+        streamed = log.lines("call failed").into_iter().filter(|l| l.contains("TrackTones")).collect();
+        if !streamed.is_empty() {
+            break;
+        }
+        tokio::time::sleep(Duration::from_millis(10)).await;
+    }
+    assert_eq!(streamed.len(), 1, "a stream failing part-way is logged once: {streamed:?}");
+    assert!(
+        streamed[0].contains("/jetloop.v1.SpectrumService/TrackTones")
+            && streamed[0].contains("InvalidArgument")
+            && streamed[0].contains("127.0.0.1:")
+            && streamed[0].contains("frames"),
+        "{}",
+        streamed[0]
+    );
     server.stop().await;
 }

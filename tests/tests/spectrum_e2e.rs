@@ -336,3 +336,43 @@ async fn response_curves_distance_and_absorption_correct_the_levels() {
     assert!((b8k.level_db - 93.979 - curve_db).abs() < 0.05, "{}", b8k.level_db);
     server.stop().await;
 }
+
+/// Every option left unset is listed in `provenance.defaults_applied` with the value used (the
+/// README's promise): the tone options and the detrending included, and none listed that was
+/// given.
+#[tokio::test]
+async fn every_default_applied_to_a_tone_analysis_is_listed() {
+    let server = TestServer::start().await;
+    let mut c = SpectrumServiceClient::new(server.channel().await);
+    let fs = 48_000.0;
+    let values: Vec<f64> = (0..1 << 15).map(|i| (2.0 * PI * 1000.0 * i as f64 / fs).sin()).collect();
+    let req = pb::ExtractTonesRequest {
+        samples: Some(pb::Samples {
+            sample_rate_hz: fs,
+            data: Some(Data::Values(pb::SampleValues { values })),
+            calibration: jetloop_tests::in_pascals(),
+            ..Default::default()
+        }),
+        tones: Some(pb::ToneOptions { max_tones: Some(7), ..Default::default() }),
+        ..Default::default()
+    };
+    let r = c.extract_tones(req).await.unwrap().into_inner();
+    let applied = r.provenance.expect("provenance").defaults_applied;
+    let value_of = |field: &str| applied.iter().find(|d| d.field == field).map(|d| d.value.clone());
+    // Values from the proto comments of ToneOptions and WelchOptions ("Unset: ...").
+    for (field, value) in [
+        ("tones.threshold_db", "6 dB"),
+        ("tones.floor_window_bins", "65 bins"),
+        ("tones.harmonic_tolerance_bins", "2 bins"),
+        ("tones.max_harmonic_order", "10"),
+        ("tones.min_separation_hz", "0 Hz"),
+        ("welch.detrend", "mean"),
+        ("welch.overlap_fraction", "0.5"),
+        ("welch.window", "Hann"),
+    ] {
+        assert_eq!(value_of(field).as_deref(), Some(value), "{field} in {applied:?}");
+    }
+    assert!(value_of("tones.max_tones").is_none(), "max_tones was given: {applied:?}");
+    assert!(applied.iter().all(|d| !d.reason.is_empty()), "{applied:?}");
+    server.stop().await;
+}

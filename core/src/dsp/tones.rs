@@ -16,9 +16,11 @@
 //!   for a sinusoid of amplitude A this is A^2/2 whatever the window (to the lobe's share of
 //!   the window energy).
 
+use super::limits::{FLOOR_BINS, HARM_ORDER, HARM_TOL, MAX_TONES, SEPARATION, THRESHOLD};
 use super::welch::Psd;
 use super::window::Window;
 use super::{spl_db, CAUTION_LEVEL_DB};
+use crate::physics::Setting;
 
 /// Tone-search settings.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -37,15 +39,47 @@ pub struct ToneConfig {
     pub max_harmonic_order: u32,
 }
 
+impl ToneConfig {
+    /// Minimum tone-to-floor ratio: 6 dB, a peak at four times the local floor density, clear
+    /// of the spread of a Welch PSD's floor after a few tens of averages (common practice).
+    pub const THRESHOLD_DB: Setting =
+        Setting::new("threshold_db", THRESHOLD, 6.0, "a peak 4x the local floor density (common practice)");
+    /// Minimum distance between tones: 0 means the window's main-lobe half-width, the least
+    /// distance at which two peaks are separate tones.
+    pub const MIN_SEPARATION_HZ: Setting =
+        Setting::new("min_separation_hz", SEPARATION, 0.0, "0: the window's main-lobe half-width");
+    /// Running-median length of the floor: 65 bins, wide enough that a tone's few bins do not
+    /// move the median, narrow enough to follow a shock-noise hump.
+    pub const FLOOR_WINDOW_BINS: Setting = Setting::new(
+        "floor_window_bins",
+        FLOOR_BINS,
+        65.0,
+        "wide enough to ignore a tone's bins, narrow enough to follow a broadband hump",
+    );
+    /// Most tones reported per channel.
+    pub const MAX_TONES: Setting =
+        Setting::new("max_tones", MAX_TONES, 50.0, "screech, its harmonics and other tones of a rig");
+    /// Harmonic-matching tolerance: 2 bins, the Welch peak's frequency error plus a margin.
+    pub const HARMONIC_TOLERANCE_BINS: Setting = Setting::new(
+        "harmonic_tolerance_bins",
+        HARM_TOL,
+        2.0,
+        "the sub-bin frequency error of a peak with a margin",
+    );
+    /// Highest harmonic order searched.
+    pub const MAX_HARMONIC_ORDER: Setting =
+        Setting::new("max_harmonic_order", HARM_ORDER, 10.0, "screech harmonics seen above the floor");
+}
+
 impl Default for ToneConfig {
     fn default() -> Self {
         Self {
-            threshold_db: 6.0,
-            min_separation_hz: 0.0,
-            floor_window_bins: 65,
-            max_tones: 50,
-            harmonic_tolerance_bins: 2.0,
-            max_harmonic_order: 10,
+            threshold_db: Self::THRESHOLD_DB.default,
+            min_separation_hz: Self::MIN_SEPARATION_HZ.default,
+            floor_window_bins: Self::FLOOR_WINDOW_BINS.default as usize,
+            max_tones: Self::MAX_TONES.default as usize,
+            harmonic_tolerance_bins: Self::HARMONIC_TOLERANCE_BINS.default,
+            max_harmonic_order: Self::MAX_HARMONIC_ORDER.default as u32,
         }
     }
 }

@@ -22,6 +22,16 @@ pub enum Detrend {
     None,
 }
 
+impl Detrend {
+    /// The choice as the API names it (`mean`, `none`).
+    pub fn name(self) -> &'static str {
+        match self {
+            Detrend::Mean => "mean",
+            Detrend::None => "none",
+        }
+    }
+}
+
 /// Smallest segment length.
 pub const MIN_SEGMENT: usize = 16;
 /// Largest segment length (2^20).
@@ -41,6 +51,19 @@ pub struct WelchConfig {
 }
 
 impl WelchConfig {
+    /// Overlap as a fraction of a segment: 50 %, the usual choice with a Hann window (common
+    /// practice; Welch 1967 shows little is gained beyond it for that window).
+    pub const OVERLAP_FRACTION: crate::physics::Setting = crate::physics::Setting::new(
+        "overlap_fraction",
+        super::limits::OVERLAP,
+        0.5,
+        "50 % overlap (common practice with Hann)",
+    );
+    /// Detrending when unset: the segment mean is removed, so a DC offset of the DAQ (or a
+    /// static pressure in a pressure transducer's signal) does not leak into the lowest bins.
+    pub const DETREND: (Detrend, &'static str) =
+        (Detrend::Mean, "each segment's mean removed, so a DC offset does not leak into the lowest bins");
+
     /// Checks the segment length and overlap.
     ///
     /// # Errors

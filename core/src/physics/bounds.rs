@@ -68,6 +68,47 @@ impl fmt::Display for Bounds {
     }
 }
 
+/// An optional input: its name as the API spells it (the last part of the field path), its
+/// allowed range, the value used when a caller leaves it unset, and why that value. Domain
+/// option types hold one constant of this type per option: it is the only place the default
+/// is written, and the API edge reads every optional field through it (checking the range and
+/// recording the default in the answer's provenance in one step).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Setting {
+    /// Name of the input as the API spells it, e.g. `threshold_db`.
+    pub name: &'static str,
+    /// Allowed values, with their unit.
+    pub bounds: Bounds,
+    /// Value used when the input is not given, in the unit of `bounds`.
+    pub default: f64,
+    /// Why that default (a source, a convention, or what it is enough for).
+    pub reason: &'static str,
+}
+
+impl Setting {
+    /// A setting; `default` must lie inside `bounds` (checked by the tests of each user).
+    pub const fn new(name: &'static str, bounds: Bounds, default: f64, reason: &'static str) -> Self {
+        Self { name, bounds, default, reason }
+    }
+
+    /// Checks a given value against the bounds, naming the setting in the error.
+    ///
+    /// # Errors
+    /// [`RangeError`] when `v` is NaN, infinite or outside the bounds.
+    pub fn check(&self, v: f64) -> Result<f64, RangeError> {
+        self.bounds.check(self.name, v)
+    }
+
+    /// The default with its unit, as it is reported (e.g. `6` or `0.5 s`).
+    pub fn default_text(&self) -> String {
+        if self.bounds.unit.is_empty() {
+            format!("{}", self.default)
+        } else {
+            format!("{} {}", self.default, self.bounds.unit)
+        }
+    }
+}
+
 /// A physical input outside its allowed range. `quantity` is the name of the input as the API
 /// spells it (the last part of the field path), so the API layer can prefix the path.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]

@@ -18,4 +18,4 @@ pub mod screech;
 pub mod staging;
 pub mod tones;
 
-pub use bounds::{Bounds, RangeError};
+pub use bounds::{Bounds, RangeError, Setting};

@@ -320,6 +320,7 @@ impl TryFrom<pb::GuidedModesRequest> for GuidedQuery {
                 return check.finish(None);
             }
             Some(S::Jet(j)) => {
+                let sent = SentJet::of(&j);
                 let jet = resolve_jet(Some(j), "jet")?;
                 let Some(scale) = Scale::of_jet(&jet.jet) else {
                     check.other(
@@ -331,7 +332,13 @@ impl TryFrom<pb::GuidedModesRequest> for GuidedQuery {
                     return check.finish(None);
                 };
                 let round = matches!(jet.jet.size, JetSize::Round { .. });
-                let sheet = check.range("jet", VortexSheet::of_jet(&jet.jet));
+                let sheet = match VortexSheet::of_jet(&jet.jet) {
+                    Ok(sheet) => Some(sheet),
+                    Err(e) => {
+                        sent.outside_solver(&mut check, &e);
+                        None
+                    }
+                };
                 let defaults = jet.defaults.clone();
                 (Source::Jet(Box::new(jet)), sheet, Some(scale), round, defaults)
             }
@@ -357,6 +364,85 @@ impl TryFrom<pb::GuidedModesRequest> for GuidedQuery {
             _ => None,
         };
         check.finish(q)
+    }
+}
+
+/// The fields of a `JetInput` that set the vortex sheet's parameters, as the caller sent them:
+/// a jet outside the solver's range is reported against these (the Mach number against the
+/// field that gave it, the density and sound-speed ratios against the temperatures), never
+/// against the solver's own parameter names, which are no request fields.
+struct SentJet {
+    /// Path and value of the field that sets the fully expanded Mach number.
+    mach: (String, Option<f64>),
+    /// Paths and values of the temperatures the caller set.
+    temperatures: Vec<(String, f64)>,
+}
+
+impl SentJet {
+    fn of(j: &pb::JetInput) -> Self {
+        use pb::jet_input::Source as S;
+        use pb::operating_point::Pressure as P;
+        match &j.source {
+            Some(S::FullyExpanded(f)) => {
+                let p = "jet.fully_expanded";
+                let temperatures = [
+                    ("total_temperature_k", f.total_temperature_k),
+                    ("ambient_temperature_k", f.ambient_temperature_k),
+                ]
+                .into_iter()
+                .filter_map(|(name, v)| v.map(|v| (format!("{p}.{name}"), v)))
+                .collect();
+                Self {
+                    mach: (format!("{p}.fully_expanded_mach_number"), Some(f.fully_expanded_mach_number)),
+                    temperatures,
+                }
+            }
+            Some(S::Conditions(c)) => {
+                let p = "jet.conditions.operating_point";
+                let op = c.operating_point.unwrap_or_default();
+                let mach = match op.pressure {
+                    Some(P::NozzlePressureRatio(npr)) => (format!("{p}.nozzle_pressure_ratio"), Some(npr)),
+                    Some(P::Pressures(_)) => (format!("{p}.pressures"), None),
+                    Some(P::Gauge(_)) => (format!("{p}.gauge"), None),
+                    None => (p.to_string(), None),
+                };
+                let temperatures = [
+                    ("total_temperature_k", op.total_temperature_k),
+                    ("ambient_temperature_k", op.ambient_temperature_k),
+                ]
+                .into_iter()
+                .filter_map(|(name, v)| v.map(|v| (format!("{p}.{name}"), v)))
+                .collect();
+                Self { mach, temperatures }
+            }
+            None => Self { mach: ("jet".into(), None), temperatures: Vec::new() },
+        }
+    }
+
+    /// Records `e` (from [`VortexSheet::of_jet`]) against the fields the caller sent.
+    fn outside_solver(&self, check: &mut Check, e: &crate::physics::RangeError) {
+        let what = match e.quantity {
+            "fully_expanded_mach_number" => "fully expanded Mach number",
+            "sound_speed_ratio" => "ambient-to-jet sound-speed ratio",
+            _ => "jet-to-ambient density ratio",
+        };
+        let problem =
+            format!("gives a {what} of {:.4} outside the guided-mode solver's range {}", e.value, e.allowed);
+        let sent = |(field, value): &(String, Option<f64>)| match value {
+            Some(v) => (field.clone(), format!("{field} = {v} {problem}")),
+            None => (field.clone(), format!("{field} {problem}")),
+        };
+        let mut fields = Vec::new();
+        if e.quantity != "fully_expanded_mach_number" {
+            fields.extend(self.temperatures.iter().map(|(f, v)| sent(&(f.clone(), Some(*v)))));
+        }
+        if fields.is_empty() {
+            // The Mach number, or ratios set by the Mach number alone (default temperatures).
+            fields.push(sent(&self.mach));
+        }
+        for (field, description) in fields {
+            check.other(field, description);
+        }
     }
 }
 

@@ -4,6 +4,7 @@
 //! Nothing below this module sees a proto message; nothing above it sees an unchecked number.
 
 pub mod error;
+pub mod field;
 pub mod gas;
 pub mod guided;
 pub mod jet_input;

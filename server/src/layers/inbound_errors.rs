@@ -1,9 +1,12 @@
 //! Inbound errors are the caller's: request bodies that do not decode and messages over the
 //! size limit are answered INVALID_ARGUMENT and RESOURCE_EXHAUSTED (the mapping itself is
 //! [`crate::api::error::inbound_status`], which the streaming handler uses too), and every
-//! failed call is logged once at info.
+//! failed call is logged once at info: unary calls from their trailers-only answer, live
+//! streams from the trailers that end them.
 
-use super::{call_names, route_service, BoxFuture};
+use super::body::{FrameWatch, Watched};
+use super::deadline::LIVE_STREAMS;
+use super::{call_names, route_service, BoxFuture, CallId, Method, Peer};
 use crate::api::error::inbound_status;
 use std::task::{Context, Poll};
 use tonic::body::Body;
@@ -34,31 +37,53 @@ pub struct InboundErrors<S> {
 
 route_service!(InboundErrors, |self, req| {
     let (method, peer, id) = call_names(&req);
+    // A live stream's answer is out before it can fail: its status comes in the trailers.
+    let streams = LIVE_STREAMS.contains(&req.uri().path());
     let fut = self.inner.call(req);
     Box::pin(async move {
         let resp = fut.await?;
-        // Only trailers-only answers (the status in the headers) carry these errors, and
-        // every error answer of this server is one (no RPC streams its answer).
+        // Errors before the answer started are trailers-only (the status in the headers):
+        // the inbound errors are corrected here.
         let Some(status) = Status::from_header_map(resp.headers()) else {
-            return Ok(resp);
+            if !streams {
+                return Ok(resp);
+            }
+            let watch = FailureLog { names: Some((method, peer, id)) };
+            let (parts, body) = resp.into_parts();
+            return Ok(http::Response::from_parts(parts, Body::new(Watched { inner: body, watch })));
         };
         let (status, resp) = match inbound_status(&status) {
             Some(fixed) => (fixed.clone(), fixed.into_http()),
             None => (status, resp),
         };
-        // CANCELLED is work stopped after its deadline answered (logged there as expired).
-        if !matches!(status.code(), tonic::Code::Ok | tonic::Code::Cancelled) {
-            // Once per failed call, at info: the caller's errors are routine, the log is
-            // for tracing who sent what.
-            tracing::info!(
-                %method,
-                peer = %peer,
-                request_id = %id,
-                code = ?status.code(),
-                "call failed: {}",
-                status.message()
-            );
-        }
+        log_failed(&method, &peer, &id, status.code(), status.message());
         Ok(resp)
     })
 });
+
+/// One line per failed call, unary or streamed (the only place a failure is logged), at info:
+/// the caller's errors are routine, the log is for tracing who sent what. CANCELLED is work
+/// stopped after its deadline answered (logged there as expired), and not logged here.
+fn log_failed(method: &Method, peer: &Peer, id: &CallId, code: tonic::Code, message: &str) {
+    if !matches!(code, tonic::Code::Ok | tonic::Code::Cancelled) {
+        tracing::info!(%method, peer = %peer, request_id = %id, code = ?code, "call failed: {message}");
+    }
+}
+
+/// Watches a streamed answer's trailers and logs its status if it failed.
+struct FailureLog {
+    names: Option<(Method, Peer, CallId)>,
+}
+
+impl FrameWatch for FailureLog {
+    fn frame(&mut self, f: &http_body::Frame<bytes::Bytes>) {
+        let Some(trailers) = f.trailers_ref() else { return };
+        if let (Some(status), Some((method, peer, id))) =
+            (Status::from_header_map(trailers), self.names.take())
+        {
+            log_failed(&method, &peer, &id, status.code(), status.message());
+        }
+    }
+
+    fn end(&mut self) {}
+}

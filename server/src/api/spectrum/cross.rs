@@ -61,7 +61,7 @@ impl TryFrom<pb::CrossSpectraRequest> for CrossQuery {
             );
         }
         let w = welch_config(&mut check, &mut defaults, welch, samples.fs, samples.recording.len());
-        let tones = super::tones::tone_config(&mut check, tones);
+        let tones = super::tones::tone_config(&mut check, &mut defaults, tones);
         let (reference, azimuths_deg) =
             reference_and_azimuths(&mut check, &mut defaults, reference_channel, &positions, channels, "");
         let spectra_points = spectra_max_points.and_then(|m| {

@@ -139,7 +139,7 @@ impl TryFrom<pb::AnalyseRampRequest> for RampQuery {
             }
         }
         let w = welch_config(&mut check, &mut defaults, welch, samples.fs, frame.unwrap_or(0).max(1));
-        let tones = super::tones::tone_config(&mut check, tones);
+        let tones = super::tones::tone_config(&mut check, &mut defaults, tones);
         let ctl_channel = control.map(|c| c.channel);
         let mics: Vec<usize> = (0..channels).filter(|&c| Some(c) != ctl_channel).collect();
         let fit_channel = match fit_channel {

@@ -2,7 +2,13 @@
 
 use super::*;
 
-pub(super) fn tone_config(check: &mut Check, o: Option<pb::ToneOptions>) -> ToneConfig {
+/// Tone options at `tones`: each checked against its bounds or its default applied and
+/// recorded (defaults are the [`ToneConfig`] settings).
+pub(super) fn tone_config(
+    check: &mut Check,
+    defaults: &mut Defaults,
+    o: Option<pb::ToneOptions>,
+) -> ToneConfig {
     let pb::ToneOptions {
         threshold_db,
         min_separation_hz,
@@ -12,24 +18,22 @@ pub(super) fn tone_config(check: &mut Check, o: Option<pb::ToneOptions>) -> Tone
         max_harmonic_order,
     } = o.unwrap_or_default();
     let d = ToneConfig::default();
-    let mut get = |v: Option<f64>, b: Bounds, name: &'static str, dflt: f64| match v {
-        None => dflt,
-        Some(v) => check.range("tones", b.check(name, v)).unwrap_or(dflt),
-    };
+    let mut f = crate::api::field::Fields::new(check, defaults, "tones");
     ToneConfig {
-        threshold_db: get(threshold_db, THRESHOLD, "threshold_db", d.threshold_db),
-        min_separation_hz: get(min_separation_hz, SEPARATION, "min_separation_hz", d.min_separation_hz),
-        floor_window_bins: get(floor_window_bins.map(f64::from), FLOOR_BINS, "floor_window_bins", 65.0)
-            as usize,
-        max_tones: get(max_tones.map(f64::from), MAX_TONES, "max_tones", 50.0) as usize,
-        harmonic_tolerance_bins: get(
-            harmonic_tolerance_bins,
-            HARM_TOL,
-            "harmonic_tolerance_bins",
-            d.harmonic_tolerance_bins,
-        ),
-        max_harmonic_order: get(max_harmonic_order.map(f64::from), HARM_ORDER, "max_harmonic_order", 10.0)
-            as u32,
+        threshold_db: f.read(threshold_db, &ToneConfig::THRESHOLD_DB).unwrap_or(d.threshold_db),
+        min_separation_hz: f
+            .read(min_separation_hz, &ToneConfig::MIN_SEPARATION_HZ)
+            .unwrap_or(d.min_separation_hz),
+        floor_window_bins: f
+            .read_count(floor_window_bins, &ToneConfig::FLOOR_WINDOW_BINS)
+            .unwrap_or(d.floor_window_bins),
+        max_tones: f.read_count(max_tones, &ToneConfig::MAX_TONES).unwrap_or(d.max_tones),
+        harmonic_tolerance_bins: f
+            .read(harmonic_tolerance_bins, &ToneConfig::HARMONIC_TOLERANCE_BINS)
+            .unwrap_or(d.harmonic_tolerance_bins),
+        max_harmonic_order: f
+            .read_count(max_harmonic_order, &ToneConfig::MAX_HARMONIC_ORDER)
+            .map_or(d.max_harmonic_order, |v| v as u32),
     }
 }
 
@@ -97,7 +101,7 @@ pub(super) fn tone_query(
     };
     let mut check = Check::new();
     let w = welch_config(&mut check, &mut defaults, welch, samples.fs, known);
-    let tones = tone_config(&mut check, tones);
+    let tones = tone_config(&mut check, &mut defaults, tones);
     let corrections =
         level_corrections(&mut check, &mut defaults, corrections, samples.recording.channel_count());
     let predicted = predicted_screech_hz.and_then(|f| {

@@ -1,6 +1,7 @@
 //! Welch settings from the request, and Welch errors as API errors.
 
 use super::*;
+use crate::api::field::Fields;
 
 /// Kind of the precondition failure for a recording shorter than one Welch segment.
 pub const RECORDING_TOO_SHORT: &str = "RECORDING_TOO_SHORT";
@@ -54,7 +55,12 @@ pub(super) fn welch_config(
         }
     };
     let detrend = match pb::DetrendKind::try_from(detrend) {
-        Ok(pb::DetrendKind::Unspecified | pb::DetrendKind::Mean) => Some(Detrend::Mean),
+        Ok(pb::DetrendKind::Unspecified) => {
+            let (d, why) = WelchConfig::DETREND;
+            defaults.note("welch.detrend", d.name(), why);
+            Some(d)
+        }
+        Ok(pb::DetrendKind::Mean) => Some(Detrend::Mean),
         Ok(pb::DetrendKind::None) => Some(Detrend::None),
         Err(_) => {
             check.other(
@@ -121,13 +127,8 @@ pub(super) fn welch_config(
             }
         }
     };
-    let overlap = match overlap_fraction {
-        None => {
-            defaults.note("welch.overlap_fraction", "0.5", "50 % overlap (common practice with Hann)");
-            Some(0.5)
-        }
-        Some(f) => check.range("welch", OVERLAP.check("overlap_fraction", f)),
-    };
+    let overlap =
+        Fields::new(check, defaults, "welch").read(overlap_fraction, &WelchConfig::OVERLAP_FRACTION);
     match (window, detrend, nperseg, overlap) {
         (Some(window), Some(detrend), Some(nperseg), Some(f)) => {
             let noverlap = ((f * nperseg as f64).round() as usize).min(nperseg - 1);
