@@ -37,6 +37,7 @@
 //! a verdict from the chi-square upper tail with its degrees of freedom: below 0.001 the
 //! residuals are far above the stated noise, and the answer says so.
 
+use super::bounds::Setting;
 use super::cells;
 use super::gas::Gas;
 use super::jet::{jet_state, ExpandedJet, Nozzle, OperatingPoint};
@@ -167,15 +168,65 @@ pub struct FitDefaults {
 }
 
 impl FitDefaults {
+    /// Relative frequency change that separates stages: 5 %, above the drift of a stage
+    /// over a sweep step and below the 10-20 % jumps between stages (common practice).
+    pub const JUMP_FRACTION: Setting = Setting::new("jump_fraction", limits::JUMP, 0.05, "5 % separates stages");
+    /// Highest loop order searched.
+    pub const MAX_LOOP_ORDER: Setting =
+        Setting::new("max_loop_order", limits::ORDER, 10.0, "loop orders searched up to 10");
+    /// Lower bound on kappa = Uc/Uj.
+    pub const CONVECTION_RATIO_MIN: Setting = Setting::new(
+        "convection_ratio_min",
+        limits::KAPPA,
+        0.4,
+        "physical convection ratios of screeching jets (common practice)",
+    );
+    /// Upper bound on kappa = Uc/Uj.
+    pub const CONVECTION_RATIO_MAX: Setting = Setting::new(
+        "convection_ratio_max",
+        limits::KAPPA,
+        0.9,
+        "physical convection ratios of screeching jets (common practice)",
+    );
+    /// Fewest source cells searched when `source_cells` is not given.
+    pub const SOURCE_CELLS_MIN: Setting = Setting::new(
+        "source_cells_min",
+        limits::CELLS,
+        1.0,
+        "whole source cells searched (when source_cells is not given)",
+    );
+    /// Most source cells searched when `source_cells` is not given.
+    pub const SOURCE_CELLS_MAX: Setting = Setting::new(
+        "source_cells_max",
+        limits::CELLS,
+        10.0,
+        "whole source cells searched (when source_cells is not given)",
+    );
+    /// Reflector path factor when held fixed: the acoustic path grows by twice the
+    /// reflector's displacement (common practice).
+    pub const REFLECTOR_PATH_FACTOR: Setting = Setting::new(
+        "reflector_path_factor",
+        limits::G,
+        2.0,
+        "the acoustic path grows by twice the displacement (common practice)",
+    );
+    /// Relative frequency uncertainty of points that give none.
+    pub const DEFAULT_RELATIVE_UNCERTAINTY: Setting = Setting::new(
+        "default_relative_uncertainty",
+        limits::REL,
+        0.01,
+        "1 % of each frequency where a point gives no uncertainty",
+    );
+
     /// The defaults.
     pub const DEFAULT: FitDefaults = FitDefaults {
-        jump_fraction: 0.05,
-        max_order: 10,
-        kappa: (0.4, 0.9),
-        source_cells: (1.0, 10.0),
-        path_factor: 2.0,
+        jump_fraction: Self::JUMP_FRACTION.default,
+        max_order: Self::MAX_LOOP_ORDER.default as u32,
+        kappa: (Self::CONVECTION_RATIO_MIN.default, Self::CONVECTION_RATIO_MAX.default),
+        source_cells: (Self::SOURCE_CELLS_MIN.default, Self::SOURCE_CELLS_MAX.default),
+        path_factor: Self::REFLECTOR_PATH_FACTOR.default,
         path_factor_bounds: (1.5, 2.5),
-        relative_uncertainty: 0.01,
+        relative_uncertainty: Self::DEFAULT_RELATIVE_UNCERTAINTY.default,
     };
 }
 
