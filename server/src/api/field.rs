@@ -66,3 +66,208 @@ impl<'a> Fields<'a> {
         self.check
     }
 }
+
+#[cfg(test)]
+mod tests {
+    //! The proto files document every option's allowed range ("Allowed [a, b]") and default
+    //! ("Unset: v") in comments, for clients that never read this code. These tests read those
+    //! comments and compare them with the [`Setting`] constants the server applies, so the two
+    //! cannot drift apart.
+
+    use super::*;
+    use crate::dsp::tones::ToneConfig;
+    use crate::dsp::welch::WelchConfig;
+    use crate::physics::staging::FitDefaults;
+    use std::collections::HashMap;
+
+    /// The proto sources, read at compile time.
+    const PROTOS: [(&str, &str); 6] = [
+        ("common.proto", include_str!("../../../proto/jetloop/v1/common.proto")),
+        ("gas_dynamics.proto", include_str!("../../../proto/jetloop/v1/gas_dynamics.proto")),
+        ("shock_cells.proto", include_str!("../../../proto/jetloop/v1/shock_cells.proto")),
+        ("spectrum.proto", include_str!("../../../proto/jetloop/v1/spectrum.proto")),
+        ("staging.proto", include_str!("../../../proto/jetloop/v1/staging.proto")),
+        ("tones.proto", include_str!("../../../proto/jetloop/v1/tones.proto")),
+    ];
+
+    /// How the proto comment states the default.
+    enum Unset {
+        /// As the setting's default value.
+        Value,
+        /// In words (the default is a sentinel the server resolves, e.g. "the main-lobe
+        /// half-width" for 0).
+        Words(&'static str),
+    }
+
+    /// Every setting read through [`Fields`], with the proto field (`Message.field`) it reads.
+    fn registry() -> Vec<(&'static str, Setting, Unset)> {
+        vec![
+            ("ToneOptions.threshold_db", ToneConfig::THRESHOLD_DB, Unset::Value),
+            (
+                "ToneOptions.min_separation_hz",
+                ToneConfig::MIN_SEPARATION_HZ,
+                Unset::Words("main-lobe half-width"),
+            ),
+            ("ToneOptions.floor_window_bins", ToneConfig::FLOOR_WINDOW_BINS, Unset::Value),
+            ("ToneOptions.max_tones", ToneConfig::MAX_TONES, Unset::Value),
+            ("ToneOptions.harmonic_tolerance_bins", ToneConfig::HARMONIC_TOLERANCE_BINS, Unset::Value),
+            ("ToneOptions.max_harmonic_order", ToneConfig::MAX_HARMONIC_ORDER, Unset::Value),
+            ("WelchOptions.overlap_fraction", WelchConfig::OVERLAP_FRACTION, Unset::Value),
+            ("FitOptions.jump_fraction", FitDefaults::JUMP_FRACTION, Unset::Value),
+            ("FitOptions.max_loop_order", FitDefaults::MAX_LOOP_ORDER, Unset::Value),
+            ("FitOptions.convection_ratio_min", FitDefaults::CONVECTION_RATIO_MIN, Unset::Value),
+            ("FitOptions.convection_ratio_max", FitDefaults::CONVECTION_RATIO_MAX, Unset::Value),
+            ("FitOptions.source_cells_min", FitDefaults::SOURCE_CELLS_MIN, Unset::Value),
+            ("FitOptions.source_cells_max", FitDefaults::SOURCE_CELLS_MAX, Unset::Value),
+            ("FitOptions.reflector_path_factor", FitDefaults::REFLECTOR_PATH_FACTOR, Unset::Value),
+            (
+                "FitOptions.default_relative_uncertainty",
+                FitDefaults::DEFAULT_RELATIVE_UNCERTAINTY,
+                Unset::Value,
+            ),
+        ]
+    }
+
+    /// The comment above each field, by `Message.field` (nested messages by their own name),
+    /// with the file it is in.
+    fn field_comments() -> HashMap<String, (String, &'static str)> {
+        let mut out = HashMap::new();
+        for (file, text) in PROTOS {
+            let mut messages: Vec<String> = Vec::new();
+            let mut comment = String::new();
+            for line in text.lines().map(str::trim) {
+                if let Some(c) = line.strip_prefix("//") {
+                    comment.push_str(c.trim());
+                    comment.push(' ');
+                    continue;
+                }
+                let words: Vec<&str> = line.split_whitespace().collect();
+                match words.as_slice() {
+                    ["message", name, "{", ..] => messages.push((*name).to_string()),
+                    ["oneof", _, "{", ..] | ["enum", _, "{", ..] => messages.push(String::new()),
+                    ["}", ..] => {
+                        messages.pop();
+                    }
+                    _ => {
+                        // `[optional|repeated] type name = n;`
+                        if let Some(eq) = words.iter().position(|w| *w == "=") {
+                            let owner = messages.iter().rev().find(|m| !m.is_empty());
+                            if let (Some(owner), true) = (owner, eq >= 2) {
+                                out.insert(format!("{owner}.{}", words[eq - 1]), (comment.clone(), file));
+                            }
+                        }
+                    }
+                }
+                comment.clear();
+            }
+        }
+        out
+    }
+
+    /// The first number in `s` (an optional sign, digits, a fraction, an exponent).
+    fn number(s: &str) -> Option<f64> {
+        let s = s.trim_start();
+        let end = s
+            .char_indices()
+            .take_while(|&(i, c)| {
+                c.is_ascii_digit()
+                    || c == '.'
+                    || ((c == '-' || c == '+') && (i == 0 || s[..i].ends_with(['e', 'E'])))
+                    || ((c == 'e' || c == 'E') && i > 0)
+            })
+            .last()
+            .map(|(i, c)| i + c.len_utf8())?;
+        // A sentence's full stop after the number is not part of it.
+        s[..end].trim_end_matches('.').parse().ok()
+    }
+
+    /// The interval after "Allowed" in `comment`: (lower bracket, lower end, upper end, upper
+    /// bracket), an end `None` where the comment names another field (e.g. "(min, 1.5]").
+    fn allowed(comment: &str) -> Option<(char, Option<f64>, Option<f64>, char)> {
+        let rest = &comment[comment.find("Allowed ")? + "Allowed ".len()..];
+        let open = rest.chars().next().filter(|c| *c == '[' || *c == '(')?;
+        let close_at = rest.find([']', ')'])?;
+        let inner = &rest[1..close_at];
+        let (lo, hi) = inner.split_once(',')?;
+        let close = rest[close_at..].chars().next()?;
+        Some((open, number(lo), number(hi), close))
+    }
+
+    #[test]
+    fn proto_comments_state_the_bounds_and_defaults_the_code_applies() {
+        let comments = field_comments();
+        let mut wrong = Vec::new();
+        for (field, setting, unset) in registry() {
+            let Some((comment, file)) = comments.get(field) else {
+                wrong.push(format!("{field}: no such field in the proto files"));
+                continue;
+            };
+            let field_name = field.rsplit('.').next().unwrap_or_default();
+            if setting.name != field_name {
+                wrong.push(format!("{field}: the setting is named {}", setting.name));
+            }
+            let b = setting.bounds;
+            match allowed(comment) {
+                None => wrong.push(format!("{file} {field}: no \"Allowed [a, b]\" in: {comment}")),
+                Some((open, lo, hi, close)) => {
+                    if (open == '[') != b.min_inclusive || lo.is_some_and(|v| v != b.min) {
+                        wrong.push(format!("{file} {field}: comment says {open}{lo:?}, code {b}"));
+                    }
+                    if (close == ']') != b.max_inclusive || hi.is_some_and(|v| v != b.max) {
+                        wrong.push(format!("{file} {field}: comment says {hi:?}{close}, code {b}"));
+                    }
+                }
+            }
+            let Some(at) = comment.find("Unset") else {
+                wrong.push(format!("{file} {field}: no \"Unset: ...\" in: {comment}"));
+                continue;
+            };
+            let stated = comment[at..].split_once(':').map(|x| x.1).unwrap_or_default();
+            match unset {
+                Unset::Value => {
+                    if number(stated) != Some(setting.default) {
+                        wrong.push(format!(
+                            "{file} {field}: comment says Unset:{stated} but the code applies {}",
+                            setting.default_text()
+                        ));
+                    }
+                }
+                Unset::Words(words) => {
+                    if !stated.contains(words) {
+                        wrong.push(format!("{file} {field}: comment should say \"{words}\": {stated}"));
+                    }
+                }
+            }
+            if !b.contains(setting.default) && !matches!(unset, Unset::Words(_)) {
+                wrong.push(format!("{field}: the default {} lies outside {b}", setting.default));
+            }
+        }
+        assert!(wrong.is_empty(), "proto comments and code disagree:\n{}", wrong.join("\n"));
+    }
+
+    #[test]
+    fn the_comment_reader_finds_intervals_and_numbers() {
+        assert_eq!(allowed("x. Allowed [0, 1e6]. Unset: 2."), Some(('[', Some(0.0), Some(1e6), ']')));
+        assert_eq!(allowed("Allowed (min, 1.5]."), Some(('(', None, Some(1.5), ']')));
+        assert_eq!(number(" 0.05."), Some(0.05));
+        assert_eq!(number(" -2.5e-3 Pa"), Some(-2.5e-3));
+        assert_eq!(number(" the main-lobe half-width"), None);
+        // A comment whose range disagrees with the code is reported (the check can fail).
+        let comments = field_comments();
+        assert!(comments["ToneOptions.threshold_db"].0.contains("Allowed [0, 100]"));
+    }
+
+    #[test]
+    fn a_read_field_is_checked_or_its_default_recorded() {
+        let mut check = Check::new();
+        let mut defaults = Defaults::default();
+        let mut f = Fields::new(&mut check, &mut defaults, "tones");
+        assert_eq!(f.read(None, &ToneConfig::THRESHOLD_DB), Some(6.0));
+        assert_eq!(f.read(Some(12.0), &ToneConfig::THRESHOLD_DB), Some(12.0));
+        assert_eq!(f.read(Some(-1.0), &ToneConfig::THRESHOLD_DB), None);
+        assert_eq!(defaults.0.len(), 1);
+        assert_eq!(defaults.0[0].field, "tones.threshold_db");
+        assert_eq!(defaults.0[0].value, "6 dB");
+        assert!(!check.is_clean());
+    }
+}
