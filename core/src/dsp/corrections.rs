@@ -7,6 +7,14 @@
 
 use super::welch::Psd;
 
+/// Atmospheric pressure of the absorption path when unset: the ISO 9613-1 reference.
+pub const ATMOSPHERE_PRESSURE: crate::physics::Setting = crate::physics::Setting::new(
+    "pressure_pa",
+    crate::physics::Bounds::closed(50_000.0, 120_000.0, "Pa"),
+    101_325.0,
+    "ISO 9613-1 reference pressure",
+);
+
 /// A correction curve: frequency (Hz, strictly increasing, > 0) against correction (dB).
 #[derive(Debug, Clone, PartialEq)]
 pub struct ResponseCurve {

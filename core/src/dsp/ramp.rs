@@ -7,6 +7,22 @@ use super::samples::ChannelView;
 use super::tones::{find_tones, ToneConfig};
 use super::welch::{WelchAccumulator, WelchConfig, WelchError};
 use crate::cancel::Cancel;
+use crate::physics::{Bounds, Setting};
+
+/// Length of each frame of a ramp (one point per frame).
+pub const FRAME_DURATION: Setting = Setting::new(
+    "frame_duration_s",
+    Bounds::open_closed(0.0, 3600.0, "s"),
+    0.25,
+    "a quarter second per point",
+);
+/// Ambient pressure for pressure-valued control channels.
+pub const AMBIENT_PRESSURE: Setting = Setting::new(
+    "ambient_pressure_pa",
+    Bounds::open_closed(0.0, 1e9, "Pa"),
+    101_325.0,
+    "ICAO standard atmosphere, sea level",
+);
 
 /// What the scaled control channel measures.
 #[derive(Debug, Clone, Copy, PartialEq)]

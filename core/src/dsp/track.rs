@@ -32,6 +32,14 @@ use realfft::RealToComplex;
 use std::collections::VecDeque;
 use std::sync::Arc;
 
+/// Relative frequency change between updates reported as a stage jump.
+pub const JUMP_FRACTION: crate::physics::Setting = crate::physics::Setting::new(
+    "jump_fraction",
+    crate::physics::Bounds::open_closed(0.0, 1.0, ""),
+    0.05,
+    "a stage jump is a few per cent or more",
+);
+
 /// Consecutive updates a track may be missed before it ends.
 pub const MISSES_TO_VANISH: u32 = 2;
 

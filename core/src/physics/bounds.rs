@@ -83,12 +83,20 @@ pub struct Setting {
     pub default: f64,
     /// Why that default (a source, a convention, or what it is enough for).
     pub reason: &'static str,
+    /// The allowed range in words for error messages, when the bounds alone do not say it
+    /// well (e.g. "(1, 5/3]: ..."); `None`: the bounds as an interval.
+    pub allowed: Option<&'static str>,
 }
 
 impl Setting {
     /// A setting; `default` must lie inside `bounds` (checked by the tests of each user).
     pub const fn new(name: &'static str, bounds: Bounds, default: f64, reason: &'static str) -> Self {
-        Self { name, bounds, default, reason }
+        Self { name, bounds, default, reason, allowed: None }
+    }
+
+    /// The same setting with its allowed range explained in words in error messages.
+    pub const fn explained(self, allowed: &'static str) -> Self {
+        Self { allowed: Some(allowed), ..self }
     }
 
     /// Checks a given value against the bounds, naming the setting in the error.
@@ -96,7 +104,10 @@ impl Setting {
     /// # Errors
     /// [`RangeError`] when `v` is NaN, infinite or outside the bounds.
     pub fn check(&self, v: f64) -> Result<f64, RangeError> {
-        self.bounds.check(self.name, v)
+        match self.allowed {
+            Some(words) if !self.bounds.contains(v) => Err(RangeError::new(self.name, v, words)),
+            _ => self.bounds.check(self.name, v),
+        }
     }
 
     /// The default with its unit, as it is reported (e.g. `6` or `0.5 s`).

@@ -12,7 +12,7 @@
 //! reported with the result.
 
 use super::bessel;
-use super::bounds::{Bounds, RangeError};
+use super::bounds::{Bounds, RangeError, Setting};
 use super::jet::{ExpandedJet, JetSize};
 use std::f64::consts::PI;
 
@@ -35,6 +35,13 @@ pub struct CellOptions {
 pub const DEFAULT_SPACING_FACTOR: f64 = 1.0;
 /// Shock positions listed when no count is given.
 pub const DEFAULT_SHOCKS: u32 = 8;
+
+impl CellOptions {
+    /// Factor on every vortex-sheet spacing (for the shortening of real cells; Tam, Seiner &
+    /// Yu 1986 use 0.8): 1 when unset, the pure vortex-sheet spacing.
+    pub const SPACING_FACTOR: Setting =
+        Setting::new("spacing_factor", SPACING_FACTOR, DEFAULT_SPACING_FACTOR, "pure vortex-sheet spacing");
+}
 
 impl Default for CellOptions {
     fn default() -> Self {

@@ -8,7 +8,7 @@
 //! assert!((r.pressure_ratio - 0.127_804_525_462_951).abs() < 1e-12);
 //! ```
 
-use super::bounds::{Bounds, RangeError};
+use super::bounds::{Bounds, RangeError, Setting};
 use super::roots::newton_bracketed;
 
 /// Largest ratio of specific heats of a perfect gas: 5/3, a monatomic gas (kinetic theory:
@@ -36,6 +36,27 @@ pub const MACH_ANGLE: Bounds = Bounds::open_closed(0.0, 90.0, "deg");
 pub const AIR_GAMMA: f64 = 1.4;
 /// Specific gas constant of dry air, J/(kg K) (ICAO standard atmosphere, Doc 7488).
 pub const AIR_GAS_CONSTANT: f64 = 287.05;
+/// Ratio of specific heats of the jet gas when unset: dry air.
+pub const JET_GAMMA: Setting =
+    Setting::new("gamma", GAMMA, AIR_GAMMA, "dry air, common practice").explained(GAMMA_ALLOWED);
+/// Specific gas constant of the jet gas when unset: dry air.
+pub const JET_GAS_CONSTANT: Setting =
+    Setting::new("gas_constant_j_per_kg_k", GAS_CONSTANT, AIR_GAS_CONSTANT, "dry air, common practice");
+/// Ratio of specific heats of the surroundings when unset: dry air whatever the jet gas is.
+pub const AMBIENT_GAMMA: Setting = Setting::new(
+    "gamma",
+    GAMMA,
+    AIR_GAMMA,
+    "the surroundings are dry air whatever the jet gas is (common practice)",
+)
+.explained(GAMMA_ALLOWED);
+/// Specific gas constant of the surroundings when unset: dry air whatever the jet gas is.
+pub const AMBIENT_GAS_CONSTANT: Setting = Setting::new(
+    "gas_constant_j_per_kg_k",
+    GAS_CONSTANT,
+    AIR_GAS_CONSTANT,
+    "the surroundings are dry air whatever the jet gas is (common practice)",
+);
 
 /// A calorically perfect gas.
 #[derive(Debug, Clone, Copy, PartialEq)]

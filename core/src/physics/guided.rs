@@ -42,7 +42,7 @@
 //! Powell's `f = Uc / (Ls (1 + Uc/a))` exactly (checked in the tests).
 
 use super::bessel;
-use super::bounds::{Bounds, RangeError};
+use super::bounds::{Bounds, RangeError, Setting};
 use super::jet::{ExpandedJet, JetSize};
 use super::roots::brent;
 use std::f64::consts::PI;
@@ -531,6 +531,33 @@ pub struct ClosureOptions {
     pub spacing_factor: f64,
     /// Shock-cell modes n = 1..=cell_modes.
     pub cell_modes: u32,
+}
+
+impl ClosureOptions {
+    /// Convection ratio Uc / Uj of the instability waves in the closure.
+    pub const CONVECTION_RATIO: Setting = Setting::new(
+        "convection_ratio",
+        CONVECTION_RATIO,
+        DEFAULT_CONVECTION_RATIO,
+        "Uc = 0.7 Uj (Tam 1986)",
+    );
+    /// Factor on the vortex-sheet shock-cell spacing.
+    pub const SPACING_FACTOR: Setting = Setting::new(
+        "spacing_factor",
+        super::cells::SPACING_FACTOR,
+        super::cells::DEFAULT_SPACING_FACTOR,
+        "pure vortex-sheet shock-cell spacing",
+    );
+    /// Points per dispersion curve in an answer.
+    pub const CURVE_POINTS: Setting =
+        Setting::new("curve_points", CURVE_POINTS, 100.0, "enough for a smooth plot");
+    /// Relative tolerance on band membership for stage labels ([`DEFAULT_BAND_TOLERANCE`]).
+    pub const BAND_TOLERANCE_FRACTION: Setting = Setting::new(
+        "band_tolerance_fraction",
+        BAND_TOLERANCE,
+        DEFAULT_BAND_TOLERANCE,
+        "measured stages spread by about this much between facilities; the inviscid m = 1 band is often narrower",
+    );
 }
 
 /// One mode's band and its closure with each shock-cell mode.

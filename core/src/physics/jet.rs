@@ -12,7 +12,7 @@
 //! assert!((s.mj - 1.558_83).abs() < 1e-5); // sqrt(5 (4^(2/7) - 1)), closed form
 //! ```
 
-use super::bounds::{Bounds, RangeError};
+use super::bounds::{Bounds, RangeError, Setting};
 use super::gas::{Branch, Gas};
 
 /// Allowed nozzle dimension (diameter, height, width), m.
@@ -44,6 +44,39 @@ pub const MACH_DISK_EXIT_PRESSURE_RATIO: f64 = 2.0;
 pub const DEFAULT_IDEAL_TOLERANCE: f64 = 0.005;
 /// Allowed tolerance on |pe/pa - 1| for the ideally expanded class.
 pub const IDEAL_TOLERANCE: Bounds = Bounds::closed(0.0, 0.2, "");
+/// Relative exit-to-ambient pressure difference still called ideally expanded.
+pub const IDEAL_EXPANSION_TOLERANCE: Setting = Setting::new(
+    "ideal_expansion_tolerance",
+    IDEAL_TOLERANCE,
+    DEFAULT_IDEAL_TOLERANCE,
+    "0.5 % of the ambient pressure, about what a lab pressure gauge resolves (common practice)",
+);
+/// Ambient temperature when unset: ICAO standard atmosphere at sea level.
+pub const AMBIENT_TEMPERATURE: Setting = Setting::new(
+    "ambient_temperature_k",
+    TEMPERATURE,
+    ISA_SEA_LEVEL_TEMPERATURE_K,
+    "ICAO standard atmosphere, sea level",
+);
+/// Ambient pressure when unset: ICAO standard atmosphere at sea level.
+pub const AMBIENT_PRESSURE: Setting = Setting::new(
+    "ambient_pressure_pa",
+    PRESSURE,
+    ISA_SEA_LEVEL_PRESSURE_PA,
+    "ICAO standard atmosphere, sea level",
+);
+/// Reservoir (total) temperature when unset: an unheated jet, the reservoir at the ambient
+/// temperature (the default applied is the ambient temperature of the same request; this
+/// constant's value is that of the standard atmosphere).
+pub const TOTAL_TEMPERATURE: Setting = Setting::new(
+    "total_temperature_k",
+    TEMPERATURE,
+    ISA_SEA_LEVEL_TEMPERATURE_K,
+    "unheated jet: reservoir at the ambient temperature",
+);
+/// Design Mach number of a rectangular or planar nozzle when unset: a convergent nozzle.
+pub const DESIGN_MACH_NUMBER: Setting =
+    Setting::new("design_mach_number", DESIGN_MACH, 1.0, "convergent nozzle: sonic exit");
 /// Relative tolerance of the choking and exit-shock thresholds (numerical, not a gauge's).
 const THRESHOLD_TOLERANCE: f64 = 1e-9;
 

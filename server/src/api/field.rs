@@ -39,6 +39,19 @@ impl<'a> Fields<'a> {
         }
     }
 
+    /// [`Fields::read`] where the default depends on the request (e.g. the reservoir
+    /// temperature of an unheated jet is the ambient temperature given): `value` is applied and
+    /// recorded with the setting's reason.
+    pub fn read_or(&mut self, given: Option<f64>, setting: &Setting, value: f64) -> Option<f64> {
+        match given {
+            Some(v) => self.check.range(self.path, setting.check(v)),
+            None => {
+                self.record(&Setting { default: value, ..*setting });
+                Some(value)
+            }
+        }
+    }
+
     /// [`Fields::read`] for an integer field (counts, orders, lengths in bins).
     pub fn read_count(&mut self, given: Option<u32>, setting: &Setting) -> Option<usize> {
         self.read(given.map(f64::from), setting).map(|v| v as usize)
@@ -77,7 +90,10 @@ mod tests {
     use super::*;
     use crate::dsp::tones::ToneConfig;
     use crate::dsp::welch::WelchConfig;
+    use crate::physics::cells::CellOptions;
+    use crate::physics::guided::ClosureOptions;
     use crate::physics::staging::FitDefaults;
+    use crate::physics::{gas, jet};
     use std::collections::HashMap;
 
     /// The proto sources, read at compile time.
@@ -125,6 +141,47 @@ mod tests {
                 FitDefaults::DEFAULT_RELATIVE_UNCERTAINTY,
                 Unset::Value,
             ),
+            ("GuidedModeOptions.convection_ratio", ClosureOptions::CONVECTION_RATIO, Unset::Value),
+            ("GuidedModeOptions.spacing_factor", ClosureOptions::SPACING_FACTOR, Unset::Value),
+            ("GuidedModesRequest.curve_points", ClosureOptions::CURVE_POINTS, Unset::Value),
+            (
+                "StageLabelOptions.band_tolerance_fraction",
+                ClosureOptions::BAND_TOLERANCE_FRACTION,
+                Unset::Value,
+            ),
+            (
+                "StageLabelSettings.band_tolerance_fraction",
+                ClosureOptions::BAND_TOLERANCE_FRACTION,
+                Unset::Value,
+            ),
+            ("CellOptions.spacing_factor", CellOptions::SPACING_FACTOR, Unset::Value),
+            ("Gas.gamma", gas::JET_GAMMA, Unset::Value),
+            ("Gas.gas_constant_j_per_kg_k", gas::JET_GAS_CONSTANT, Unset::Value),
+            ("Gas.gamma", gas::AMBIENT_GAMMA, Unset::Value),
+            ("Gas.gas_constant_j_per_kg_k", gas::AMBIENT_GAS_CONSTANT, Unset::Value),
+            ("IsentropicRatiosRequest.gamma", gas::JET_GAMMA, Unset::Value),
+            ("NormalShockRequest.gamma", gas::JET_GAMMA, Unset::Value),
+            ("VortexSheetJet.gamma", gas::JET_GAMMA, Unset::Value),
+            ("JetConditions.ideal_expansion_tolerance", jet::IDEAL_EXPANSION_TOLERANCE, Unset::Value),
+            ("OperatingPoint.ambient_temperature_k", jet::AMBIENT_TEMPERATURE, Unset::Value),
+            ("OperatingPoint.ambient_pressure_pa", jet::AMBIENT_PRESSURE, Unset::Value),
+            (
+                "OperatingPoint.total_temperature_k",
+                jet::TOTAL_TEMPERATURE,
+                Unset::Words("ambient temperature"),
+            ),
+            ("FullyExpandedJet.ambient_temperature_k", jet::AMBIENT_TEMPERATURE, Unset::Value),
+            (
+                "FullyExpandedJet.total_temperature_k",
+                jet::TOTAL_TEMPERATURE,
+                Unset::Words("ambient temperature"),
+            ),
+            ("RectangularNozzle.design_mach_number", jet::DESIGN_MACH_NUMBER, Unset::Value),
+            ("PlanarNozzle.design_mach_number", jet::DESIGN_MACH_NUMBER, Unset::Value),
+            ("AnalyseRampRequest.frame_duration_s", crate::dsp::ramp::FRAME_DURATION, Unset::Value),
+            ("ControlChannel.ambient_pressure_pa", crate::dsp::ramp::AMBIENT_PRESSURE, Unset::Value),
+            ("TrackConfig.jump_fraction", crate::dsp::track::JUMP_FRACTION, Unset::Value),
+            ("Atmosphere.pressure_pa", crate::dsp::corrections::ATMOSPHERE_PRESSURE, Unset::Value),
         ]
     }
 
@@ -178,7 +235,16 @@ mod tests {
             .last()
             .map(|(i, c)| i + c.len_utf8())?;
         // A sentence's full stop after the number is not part of it.
-        s[..end].trim_end_matches('.').parse().ok()
+        let n: f64 = s[..end].trim_end_matches('.').parse().ok()?;
+        // A fraction such as 5/3.
+        match s[end..].strip_prefix('/').and_then(number) {
+            Some(d)
+                if s[end..].starts_with('/') && s[end + 1..].starts_with(|c: char| c.is_ascii_digit()) =>
+            {
+                Some(n / d)
+            }
+            _ => Some(n),
+        }
     }
 
     /// The interval after "Allowed" in `comment`: (lower bracket, lower end, upper end, upper
@@ -252,6 +318,7 @@ mod tests {
         assert_eq!(number(" 0.05."), Some(0.05));
         assert_eq!(number(" -2.5e-3 Pa"), Some(-2.5e-3));
         assert_eq!(number(" the main-lobe half-width"), None);
+        assert_eq!(number("5/3]"), Some(5.0 / 3.0));
         // A comment whose range disagrees with the code is reported (the check can fail).
         let comments = field_comments();
         assert!(comments["ToneOptions.threshold_db"].0.contains("Allowed [0, 100]"));

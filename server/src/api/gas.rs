@@ -1,15 +1,15 @@
 //! GasDynamicsService: request conversion and response building.
 
 use super::error::{ApiError, Check};
+use super::field::Fields;
 use super::provenance::{provenance, provenance_owned, Defaults};
 use crate::physics::gas::{self, Branch, Gas, Isentropic, IsentropicInput, NormalShock};
 use crate::physics::jet::{self, JetSize, JetState, Nozzle, OperatingPoint, Regime};
 use crate::physics::models;
 use jetloop_proto::pb;
 
-const AIR_REASON: &str = "dry air, common practice";
-const AMBIENT_AIR_REASON: &str = "the surroundings are dry air whatever the jet gas is (common practice)";
-const ISA_REASON: &str = "ICAO standard atmosphere, sea level";
+/// The reason recorded with standard-atmosphere defaults (the answer notes when they were used).
+const ISA_REASON: &str = jet::AMBIENT_TEMPERATURE.reason;
 
 /// A validated isentropic question.
 #[derive(Debug, Clone, PartialEq)]
@@ -49,7 +49,7 @@ pub struct JetSpec {
 }
 
 fn gamma_only(check: &mut Check, defaults: &mut Defaults, gamma: Option<f64>) -> Option<Gas> {
-    let g = defaults.or(gamma, "gamma", gas::AIR_GAMMA, "", AIR_REASON);
+    let g = Fields::new(check, defaults, "").read(gamma, &gas::JET_GAMMA).unwrap_or(gas::AIR_GAMMA);
     check.range("", Gas::new(g, gas::AIR_GAS_CONSTANT))
 }
 
@@ -203,17 +203,17 @@ pub fn gas_from(
     path: &str,
     ambient: bool,
 ) -> Option<Gas> {
-    let reason = if ambient { AMBIENT_AIR_REASON } else { AIR_REASON };
+    let (gamma_setting, r_setting) = if ambient {
+        (gas::AMBIENT_GAMMA, gas::AMBIENT_GAS_CONSTANT)
+    } else {
+        (gas::JET_GAMMA, gas::JET_GAS_CONSTANT)
+    };
     let pb::Gas { gamma, gas_constant_j_per_kg_k } = msg.unwrap_or_default();
-    let g = defaults.or(gamma, &format!("{path}.gamma"), gas::AIR_GAMMA, "", reason);
-    let r = defaults.or(
-        gas_constant_j_per_kg_k,
-        &format!("{path}.gas_constant_j_per_kg_k"),
-        gas::AIR_GAS_CONSTANT,
-        "J/(kg K)",
-        reason,
-    );
-    check.range(path, Gas::new(g, r))
+    let mut f = Fields::new(check, defaults, path);
+    let g = f.read(gamma, &gamma_setting);
+    let r = f.read(gas_constant_j_per_kg_k, &r_setting);
+    // A value outside its range is reported once, by the field reader.
+    check.range(path, Gas::new(g?, r?))
 }
 
 /// Converts jet conditions found at `path` in a request (e.g. `conditions`).
@@ -239,13 +239,9 @@ pub fn jet_spec(c: Option<pb::JetConditions>, path: &str) -> Result<JetSpec, Api
     // The area-ratio design needs a valid gas; fall back to air only to keep checking fields.
     let nozzle =
         nozzle_from(&mut check, &mut defaults, nozzle, &format!("{path}.nozzle"), &gas.unwrap_or(Gas::AIR));
-    let tol = defaults.or(
-        ideal_expansion_tolerance,
-        &format!("{path}.ideal_expansion_tolerance"),
-        jet::DEFAULT_IDEAL_TOLERANCE,
-        "",
-        "0.5 % of the ambient pressure, about what a lab pressure gauge resolves (common practice)",
-    );
+    let tol = Fields::new(&mut check, &mut defaults, path)
+        .read(ideal_expansion_tolerance, &jet::IDEAL_EXPANSION_TOLERANCE)
+        .unwrap_or(jet::DEFAULT_IDEAL_TOLERANCE);
     let op =
         operating_point_from(&mut check, &mut defaults, operating_point, &format!("{path}.operating_point"));
     let op = op.and_then(|op| check.range(path, op.with_ideal_tolerance(tol)));
@@ -264,8 +260,10 @@ fn nozzle_from(
     path: &str,
     gas: &Gas,
 ) -> Option<Nozzle> {
-    let mut design = |d: Option<f64>, p: &str| {
-        defaults.or(d, &format!("{p}.design_mach_number"), 1.0, "", "convergent nozzle: sonic exit")
+    let mut design = |check: &mut Check, d: Option<f64>, p: &str| {
+        Fields::new(check, defaults, p)
+            .read(d, &jet::DESIGN_MACH_NUMBER)
+            .unwrap_or(jet::DESIGN_MACH_NUMBER.default)
     };
     use pb::nozzle::Kind;
     use pb::round_convergent_divergent_nozzle::Design;
@@ -305,12 +303,12 @@ fn nozzle_from(
                 check.missing(format!("{p}.exit_width_m"), "a rectangular nozzle needs its exit width in m");
                 return None;
             }
-            let md = design(design_mach_number, &p);
+            let md = design(check, design_mach_number, &p);
             check.range(&p, Nozzle::rectangular(exit_height_m, exit_width_m, md))
         }
         Kind::Planar(pb::PlanarNozzle { exit_height_m, design_mach_number }) => {
             let p = format!("{path}.planar");
-            let md = design(design_mach_number, &p);
+            let md = design(check, design_mach_number, &p);
             check.range(&p, Nozzle::planar(exit_height_m, md))
         }
     }
@@ -358,20 +356,10 @@ fn operating_point_from(
         check.missing(path, "give the nozzle pressure ratio or the reservoir and ambient pressures");
         return None;
     };
-    let t_amb = defaults.or(
-        ambient_temperature_k,
-        &format!("{path}.ambient_temperature_k"),
-        jet::ISA_SEA_LEVEL_TEMPERATURE_K,
-        "K",
-        ISA_REASON,
-    );
-    let t0 = defaults.or(
-        total_temperature_k,
-        &format!("{path}.total_temperature_k"),
-        t_amb,
-        "K",
-        "unheated jet: reservoir at the ambient temperature",
-    );
+    let mut f = Fields::new(check, defaults, path);
+    let t_amb =
+        f.read(ambient_temperature_k, &jet::AMBIENT_TEMPERATURE).unwrap_or(jet::ISA_SEA_LEVEL_TEMPERATURE_K);
+    let t0 = f.read_or(total_temperature_k, &jet::TOTAL_TEMPERATURE, t_amb).unwrap_or(t_amb);
     match pressure {
         None => {
             check.missing(
@@ -381,13 +369,9 @@ fn operating_point_from(
             None
         }
         Some(Pressure::NozzlePressureRatio(npr)) => {
-            let p_amb = defaults.or(
-                ambient_pressure_pa,
-                &format!("{path}.ambient_pressure_pa"),
-                jet::ISA_SEA_LEVEL_PRESSURE_PA,
-                "Pa",
-                ISA_REASON,
-            );
+            let p_amb = Fields::new(check, defaults, path)
+                .read(ambient_pressure_pa, &jet::AMBIENT_PRESSURE)
+                .unwrap_or(jet::ISA_SEA_LEVEL_PRESSURE_PA);
             check.range(path, OperatingPoint::new(npr, p_amb, t0, t_amb))
         }
         Some(Pressure::Pressures(pb::ReservoirAndAmbientPressure {

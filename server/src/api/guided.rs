@@ -3,10 +3,11 @@
 //! extracted tones.
 
 use super::error::{ApiError, Check};
+use super::field::Fields;
 use super::gas::jet_state_message;
 use super::jet_input::{jet_summary, resolve_jet, ResolvedJet};
 use super::provenance::{provenance, Defaults};
-use crate::physics::gas::{Gas, GAMMA};
+use crate::physics::gas::Gas;
 use crate::physics::guided::{
     self, Closure, ClosureOptions, GuidedMode, ModeBand, ModePoint, ModePrediction, ModeShape, Scale,
     VortexSheet,
@@ -17,8 +18,6 @@ use jetloop_proto::pb;
 
 /// Most modes in one request.
 pub const MAX_MODES: usize = 12;
-/// Points per dispersion curve when none are asked for.
-pub const DEFAULT_CURVE_POINTS: u32 = 100;
 
 /// Values a screech request already gives, used where its `guided_modes` leaves a field
 /// unset: the convection ratio of `options.convection` and the factor of `options.cells`.
@@ -85,22 +84,9 @@ pub fn closure_options_with(
         };
     let convection_ratio = from(defaults, convection_ratio, fb.convection_ratio, "convection_ratio");
     let spacing_factor = from(defaults, spacing_factor, fb.spacing_factor, "spacing_factor");
-    let conv = defaults.or(
-        convection_ratio,
-        &format!("{path}.convection_ratio"),
-        guided::DEFAULT_CONVECTION_RATIO,
-        "",
-        "Uc = 0.7 Uj (Tam 1986)",
-    );
-    let conv = check.range(path, guided::CONVECTION_RATIO.check("convection_ratio", conv));
-    let factor = defaults.or(
-        spacing_factor,
-        &format!("{path}.spacing_factor"),
-        crate::physics::cells::DEFAULT_SPACING_FACTOR,
-        "",
-        "pure vortex-sheet shock-cell spacing",
-    );
-    let factor = check.range(path, crate::physics::cells::SPACING_FACTOR.check("spacing_factor", factor));
+    let mut f = Fields::new(check, defaults, path);
+    let conv = f.read(convection_ratio, &ClosureOptions::CONVECTION_RATIO);
+    let factor = f.read(spacing_factor, &ClosureOptions::SPACING_FACTOR);
     let cells = match cell_modes {
         None => {
             defaults.note(
@@ -275,8 +261,7 @@ fn sheet_of_ratios(
             true
         }
     };
-    let g = defaults.or(gamma, &format!("{p}.gamma"), crate::physics::gas::AIR_GAMMA, "", "air");
-    let g = check.range(p, GAMMA.check("gamma", g));
+    let g = Fields::new(check, defaults, p).read(gamma, &crate::physics::gas::JET_GAMMA);
     let mach = check.range(p, guided::MACH.check("fully_expanded_mach_number", mj));
     let tj = match temperature {
         None => {
@@ -349,14 +334,8 @@ impl TryFrom<pb::GuidedModesRequest> for GuidedQuery {
             }
         };
         let options = closure_options(&mut check, &mut defaults, options, "options", round);
-        let n = defaults.or(
-            curve_points.map(f64::from),
-            "curve_points",
-            f64::from(DEFAULT_CURVE_POINTS),
-            "",
-            "enough for a smooth plot",
-        );
-        let n = check.range("", guided::CURVE_POINTS.check("curve_points", n)).map(|v| v as usize);
+        let n = Fields::new(&mut check, &mut defaults, "")
+            .read_count(curve_points, &ClosureOptions::CURVE_POINTS);
         let q = match (sheet, options, n) {
             (Some(sheet), Some(options), Some(curve_points)) => {
                 Some(GuidedQuery { source, sheet, scale, round, options, curve_points, defaults })
@@ -507,14 +486,8 @@ pub fn label_settings(
     round: bool,
 ) -> Option<(ClosureOptions, f64)> {
     let options = closure_options(check, defaults, modes, &format!("{path}.modes"), round);
-    let tol = defaults.or(
-        band_tolerance_fraction,
-        &format!("{path}.band_tolerance_fraction"),
-        guided::DEFAULT_BAND_TOLERANCE,
-        "",
-        "measured stages spread by about this much between facilities; the inviscid m = 1 band is often narrower",
-    );
-    let tol = check.range(path, guided::BAND_TOLERANCE.check("band_tolerance_fraction", tol));
+    let tol = Fields::new(check, defaults, path)
+        .read(band_tolerance_fraction, &ClosureOptions::BAND_TOLERANCE_FRACTION);
     Some((options?, tol?))
 }
 

@@ -80,20 +80,11 @@ pub fn convert_jet(input: Option<pb::JetInput>, path: &str) -> Result<ResolvedJe
             let mut defaults = Defaults::default();
             let gas = gas_from(&mut check, &mut defaults, gas_msg, &format!("{p}.gas"), false);
             let ambient = gas_from(&mut check, &mut defaults, ambient_gas, &format!("{p}.ambient_gas"), true);
-            let t_amb = defaults.or(
-                ambient_temperature_k,
-                &format!("{p}.ambient_temperature_k"),
-                jet::ISA_SEA_LEVEL_TEMPERATURE_K,
-                "K",
-                "ICAO standard atmosphere, sea level",
-            );
-            let t0 = defaults.or(
-                total_temperature_k,
-                &format!("{p}.total_temperature_k"),
-                t_amb,
-                "K",
-                "unheated jet: reservoir at the ambient temperature",
-            );
+            let mut f = super::field::Fields::new(&mut check, &mut defaults, &p);
+            let t_amb = f
+                .read(ambient_temperature_k, &jet::AMBIENT_TEMPERATURE)
+                .unwrap_or(jet::ISA_SEA_LEVEL_TEMPERATURE_K);
+            let t0 = f.read_or(total_temperature_k, &jet::TOTAL_TEMPERATURE, t_amb).unwrap_or(t_amb);
             let size = match size {
                 None => {
                     check.missing(
@@ -142,13 +133,9 @@ pub fn cell_options(
     default_modes: u32,
 ) -> Option<CellOptions> {
     let pb::CellOptions { spacing_factor, modes, shock_count } = o.unwrap_or_default();
-    let factor = defaults.or(
-        spacing_factor,
-        &format!("{path}.spacing_factor"),
-        cells::DEFAULT_SPACING_FACTOR,
-        "",
-        "pure vortex-sheet spacing",
-    );
+    let factor = super::field::Fields::new(check, defaults, path)
+        .read(spacing_factor, &CellOptions::SPACING_FACTOR)
+        .unwrap_or(cells::DEFAULT_SPACING_FACTOR);
     let shocks = match shock_count {
         Some(n) => n,
         None => {

@@ -22,19 +22,8 @@ pub struct Default {
 pub struct Defaults(pub Vec<Default>);
 
 impl Defaults {
-    /// Returns `given`, or `value` after recording that the default was used.
-    pub fn or(&mut self, given: Option<f64>, field: &str, value: f64, unit: &str, reason: &str) -> f64 {
-        given.unwrap_or_else(|| {
-            self.0.push(Default {
-                field: field.to_string(),
-                value: if unit.is_empty() { format!("{value}") } else { format!("{value} {unit}") },
-                reason: reason.to_string(),
-            });
-            value
-        })
-    }
-
-    /// Records a default that is not a number (an enum choice).
+    /// Records a default that is not a number (an enum choice). Numeric defaults are read
+    /// through [`crate::api::field::Fields`], which records them.
     pub fn note(&mut self, field: &str, value: &str, reason: &str) {
         self.0.push(Default { field: field.into(), value: value.into(), reason: reason.into() });
     }

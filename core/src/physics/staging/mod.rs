@@ -170,7 +170,8 @@ pub struct FitDefaults {
 impl FitDefaults {
     /// Relative frequency change that separates stages: 5 %, above the drift of a stage
     /// over a sweep step and below the 10-20 % jumps between stages (common practice).
-    pub const JUMP_FRACTION: Setting = Setting::new("jump_fraction", limits::JUMP, 0.05, "5 % separates stages");
+    pub const JUMP_FRACTION: Setting =
+        Setting::new("jump_fraction", limits::JUMP, 0.05, "5 % separates stages");
     /// Highest loop order searched.
     pub const MAX_LOOP_ORDER: Setting =
         Setting::new("max_loop_order", limits::ORDER, 10.0, "loop orders searched up to 10");

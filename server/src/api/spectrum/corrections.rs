@@ -14,8 +14,6 @@ const DISTANCE: Bounds = Bounds::open_closed(0.0, 1e4, "m");
 const AIR_T: Bounds = Bounds::closed(223.15, 333.15, "K");
 /// Allowed relative humidity, percent.
 const RH: Bounds = Bounds::closed(0.0, 100.0, "%");
-/// Allowed atmospheric pressure, Pa.
-const AIR_P: Bounds = Bounds::closed(50_000.0, 120_000.0, "Pa");
 /// Most curves per channel.
 const MAX_CURVES: usize = 8;
 /// Most points per curve.
@@ -94,16 +92,8 @@ pub(super) fn level_corrections(
             let a = format!("{p}.atmosphere");
             let t = check.range(&a, AIR_T.check("temperature_k", temperature_k));
             let rh = check.range(&a, RH.check("relative_humidity_percent", relative_humidity_percent));
-            let pa = match pressure_pa {
-                Some(v) => check.range(&a, AIR_P.check("pressure_pa", v)),
-                None => Some(defaults.or(
-                    None,
-                    &format!("{a}.pressure_pa"),
-                    101_325.0,
-                    "Pa",
-                    "ISO 9613-1 reference pressure",
-                )),
-            };
+            let pa = crate::api::field::Fields::new(check, defaults, &a)
+                .read(pressure_pa, &crate::dsp::corrections::ATMOSPHERE_PRESSURE);
             match (t, rh, pa) {
                 (Some(temperature_k), Some(relative_humidity_percent), Some(pressure_pa)) => {
                     Some(Atmosphere { temperature_k, relative_humidity_percent, pressure_pa })

@@ -3,12 +3,8 @@
 use super::*;
 use crate::dsp::ramp::{analyse_ramp, Control, ControlQuantity, RampConfig, RampFrame};
 
-/// Allowed frame duration, s.
-const FRAME_S: Bounds = Bounds::open_closed(0.0, 3600.0, "s");
 /// Allowed |units per sample| and |offset| of the control.
 const CONTROL_SCALE: Bounds = Bounds::closed(-1e9, 1e9, "");
-/// Allowed ambient pressure, Pa.
-const AMBIENT: Bounds = Bounds::open_closed(0.0, 1e9, "Pa");
 /// Relative NPR change within one frame above which its tones are flagged as smeared.
 const SMEAR_FRACTION: f64 = 0.02;
 
@@ -72,15 +68,9 @@ fn control(
         Some(o) => check.range(p, CONTROL_SCALE.check("offset", o)),
         None => Some(0.0),
     };
-    let mut ambient = || match ambient_pressure_pa {
-        Some(a) => check.range(p, AMBIENT.check("ambient_pressure_pa", a)),
-        None => Some(defaults.or(
-            None,
-            &format!("{p}.ambient_pressure_pa"),
-            101_325.0,
-            "Pa",
-            "ICAO standard atmosphere, sea level",
-        )),
+    let mut ambient = || {
+        crate::api::field::Fields::new(check, defaults, p)
+            .read(ambient_pressure_pa, &crate::dsp::ramp::AMBIENT_PRESSURE)
     };
     let quantity = match pb::ControlQuantity::try_from(quantity) {
         Ok(pb::ControlQuantity::NozzlePressureRatio) => Some(ControlQuantity::Npr),
@@ -121,10 +111,8 @@ impl TryFrom<pb::AnalyseRampRequest> for RampQuery {
         let channels = samples.recording.channel_count();
         let mut check = Check::new();
         let control = control(&mut check, &mut defaults, ctl, channels);
-        let secs = match frame_duration_s {
-            Some(t) => check.range("", FRAME_S.check("frame_duration_s", t)),
-            None => Some(defaults.or(None, "frame_duration_s", 0.25, "s", "a quarter second per point")),
-        };
+        let secs = crate::api::field::Fields::new(&mut check, &mut defaults, "")
+            .read(frame_duration_s, &crate::dsp::ramp::FRAME_DURATION);
         let frame = secs.map(|t| (t * samples.fs).round() as usize);
         if let Some(f) = frame {
             if f > samples.recording.len() || f == 0 {

@@ -8,8 +8,6 @@ use crate::dsp::track::{EventKind, Tracker, TrackerConfig, Update};
 const WINDOW_S: Bounds = Bounds::open_closed(0.0, 60.0, "s");
 /// Allowed update interval, s.
 const UPDATE_S: Bounds = Bounds::closed(0.01, 60.0, "s");
-/// Allowed jump fraction.
-const JUMP_FRACTION: Bounds = Bounds::open_closed(0.0, 1.0, "");
 
 /// A tracking stream in progress.
 #[derive(Debug)]
@@ -134,14 +132,8 @@ impl TrackSession {
                 .range("config", UPDATE_S.check("update_interval_s", u))
                 .map_or(1, |u| ((u * fs).round() as usize).max(1)),
         };
-        let jump = defaults.or(
-            jump_fraction,
-            "config.jump_fraction",
-            0.05,
-            "",
-            "a stage jump is a few per cent or more",
-        );
-        let jump = check.range("config", JUMP_FRACTION.check("jump_fraction", jump));
+        let jump = crate::api::field::Fields::new(&mut check, &mut defaults, "config")
+            .read(jump_fraction, &crate::dsp::track::JUMP_FRACTION);
         if !check.is_clean() {
             return check.finish(None);
         }
