@@ -3,6 +3,8 @@
 use super::error::{ApiError, Check};
 use super::field::Fields;
 use super::provenance::{provenance, provenance_owned, Defaults};
+use super::Compute;
+use crate::cancel::Cancel;
 use crate::physics::gas::{self, Branch, Gas, Isentropic, IsentropicInput, NormalShock};
 use crate::physics::jet::{self, JetSize, JetState, Nozzle, OperatingPoint, Regime};
 use crate::physics::models;
@@ -389,28 +391,38 @@ fn operating_point_from(
     }
 }
 
-/// Solves the isentropic question ([`Gas::isentropic`]) and builds the response.
-///
-/// # Errors
-/// [`ApiError::Invalid`] naming the input whose result lies outside the Mach range.
-pub fn isentropic_answer(q: IsentropicQuery) -> Result<pb::IsentropicRatiosResponse, ApiError> {
-    let mut check = Check::new();
-    let r = check.range("", q.gas.isentropic(q.input));
-    Ok(isentropic_response(q, &check.finish(r)?))
+impl Compute for IsentropicQuery {
+    type Response = pb::IsentropicRatiosResponse;
+
+    /// Solves the isentropic question ([`Gas::isentropic`]) and builds the response.
+    ///
+    /// # Errors
+    /// [`ApiError::Invalid`] naming the input whose result lies outside the Mach range.
+    fn compute(self, cancel: &Cancel) -> Result<pb::IsentropicRatiosResponse, ApiError> {
+        let (q, _) = (self, cancel);
+        let mut check = Check::new();
+        let r = check.range("", q.gas.isentropic(q.input));
+        Ok(isentropic_message(q, &check.finish(r)?))
+    }
 }
 
-/// Computes the normal shock ([`Gas::normal_shock`]) and builds the response.
-///
-/// # Errors
-/// [`ApiError::Invalid`] naming `upstream_mach_number` (already checked in the conversion).
-pub fn normal_shock_answer(q: &NormalShockQuery) -> Result<pb::NormalShockResponse, ApiError> {
-    let mut check = Check::new();
-    let s = check.range("", q.gas.normal_shock(q.m1));
-    Ok(normal_shock_response(q, &check.finish(s)?))
+impl Compute for NormalShockQuery {
+    type Response = pb::NormalShockResponse;
+
+    /// Computes the normal shock ([`Gas::normal_shock`]) and builds the response.
+    ///
+    /// # Errors
+    /// [`ApiError::Invalid`] naming `upstream_mach_number` (already checked in the conversion).
+    fn compute(self, cancel: &Cancel) -> Result<pb::NormalShockResponse, ApiError> {
+        let (q, _) = (&self, cancel);
+        let mut check = Check::new();
+        let s = check.range("", q.gas.normal_shock(q.m1));
+        Ok(normal_shock_message(q, &check.finish(s)?))
+    }
 }
 
 /// Builds the IsentropicRatios response.
-pub fn isentropic_response(q: IsentropicQuery, r: &Isentropic) -> pb::IsentropicRatiosResponse {
+pub fn isentropic_message(q: IsentropicQuery, r: &Isentropic) -> pb::IsentropicRatiosResponse {
     let both = [models::ISENTROPIC, models::PRANDTL_MEYER];
     let used = if r.prandtl_meyer_deg.is_some() { &both[..] } else { &both[..1] };
     pb::IsentropicRatiosResponse {
@@ -428,7 +440,7 @@ pub fn isentropic_response(q: IsentropicQuery, r: &Isentropic) -> pb::Isentropic
 }
 
 /// Builds the NormalShock response.
-pub fn normal_shock_response(q: &NormalShockQuery, s: &NormalShock) -> pb::NormalShockResponse {
+pub fn normal_shock_message(q: &NormalShockQuery, s: &NormalShock) -> pb::NormalShockResponse {
     pb::NormalShockResponse {
         gamma: q.gas.gamma(),
         upstream_mach_number: s.upstream_mach,
@@ -512,7 +524,7 @@ local codes, the facility's procedures and licensed practice; these numbers are 
 safety decisions.";
 
 /// Builds the JetState response.
-pub fn jet_state_response(spec: &JetSpec, s: &JetState) -> pb::JetStateResponse {
+pub fn jet_state_response_message(spec: &JetSpec, s: &JetState) -> pb::JetStateResponse {
     let mut notes = s.notes();
     notes.push(PRESSURE_CAUTION.to_string());
     let mut used = vec![models::FULLY_EXPANDED_JET, models::ISENTROPIC, models::CHOKED_MASS_FLOW];
@@ -526,8 +538,26 @@ pub fn jet_state_response(spec: &JetSpec, s: &JetState) -> pb::JetStateResponse 
 }
 
 /// Computes the jet state for validated conditions.
-pub fn compute_jet_state(spec: &JetSpec) -> JetState {
-    jet::jet_state(&spec.gas, &spec.nozzle, &spec.op)
+/// A validated JetState question: the conditions.
+#[derive(Debug, Clone)]
+pub struct JetStateQuery(pub JetSpec);
+
+impl TryFrom<pb::JetStateRequest> for JetStateQuery {
+    type Error = ApiError;
+
+    fn try_from(req: pb::JetStateRequest) -> Result<Self, ApiError> {
+        jet_spec(req.conditions, "conditions").map(JetStateQuery)
+    }
+}
+
+impl Compute for JetStateQuery {
+    type Response = pb::JetStateResponse;
+
+    /// The jet state ([`jet::jet_state`]) and its response.
+    fn compute(self, _cancel: &Cancel) -> Result<pb::JetStateResponse, ApiError> {
+        let spec = &self.0;
+        Ok(jet_state_response_message(spec, &jet::jet_state(&spec.gas, &spec.nozzle, &spec.op)))
+    }
 }
 
 #[cfg(test)]

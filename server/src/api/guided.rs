@@ -7,6 +7,8 @@ use super::field::Fields;
 use super::gas::jet_state_message;
 use super::jet_input::{jet_summary, resolve_jet, ResolvedJet};
 use super::provenance::{provenance, Defaults};
+use super::Compute;
+use crate::cancel::Cancel;
 use crate::physics::gas::Gas;
 use crate::physics::guided::{
     self, Closure, ClosureOptions, GuidedMode, ModeBand, ModePoint, ModePrediction, ModeShape, Scale,
@@ -438,8 +440,17 @@ pub fn guided_notes() -> Vec<String> {
     ]
 }
 
+impl Compute for GuidedQuery {
+    type Response = pb::GuidedModesResponse;
+
+    /// The bands and closures of the modes asked for, and the response.
+    fn compute(self, _cancel: &Cancel) -> Result<pb::GuidedModesResponse, ApiError> {
+        Ok(guided_message(&self))
+    }
+}
+
 /// Computes and builds the GuidedModes response.
-pub fn guided_response(q: &GuidedQuery) -> pb::GuidedModesResponse {
+pub fn guided_message(q: &GuidedQuery) -> pb::GuidedModesResponse {
     let preds = guided::predict(&q.sheet, q.round, &q.options);
     let (state, jet, mut notes) = match &q.source {
         Source::Jet(j) => (

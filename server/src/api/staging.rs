@@ -5,6 +5,7 @@ use super::error::{ApiError, Check};
 use super::field::Fields;
 use super::gas::jet_spec;
 use super::provenance::{provenance, Defaults};
+use super::Compute;
 use crate::cancel::Cancel;
 use crate::physics::bounds::Bounds;
 use crate::physics::gas::Gas;
@@ -513,146 +514,151 @@ fn direction_msg(d: Direction) -> pb::SweepDirection {
     }
 }
 
-/// Runs the staging and builds the response.
-///
-/// # Errors
-/// [`ApiError::Stopped`] once `cancel` is set.
-pub fn staging_response(q: StagingQuery, cancel: &Cancel) -> Result<pb::FitStagesResponse, ApiError> {
-    let StagingQuery { kind, mut points, physics, labels, config, defaults, started } = q;
-    infer_directions(&mut points);
-    let res: StagingResult = fit_stages_until(&points, kind, physics.as_deref(), &config, cancel)?;
-    let point_labels = match &labels {
-        Some(plan) => Some(label_points(plan, kind, &points, cancel)?),
-        None => None,
-    };
-    let mut out_points: Vec<pb::PointResult> = points
-        .iter()
-        .enumerate()
-        .map(|(i, p)| pb::PointResult {
-            index: i as u32,
-            stage: res.stage_of[i] as u32,
-            direction: direction_msg(p.direction) as i32,
-            best_stage: point_labels.as_ref().and_then(|l| l[i].clone()),
-            ..Default::default()
-        })
-        .collect();
-    let mut stages = Vec::with_capacity(res.stages.len());
-    for (s, st) in res.stages.iter().enumerate() {
-        let mut msg = pb::StageResult {
-            stage: s as u32,
-            x_min: st.x_range.0,
-            x_max: st.x_range.1,
-            point_count: st.points.len() as u32,
-            smooth_coefficients: st.smooth.clone(),
-            smooth_rms_hz: st.smooth_rms_hz,
-            ..Default::default()
+impl Compute for StagingQuery {
+    type Response = pb::FitStagesResponse;
+
+    /// Runs the staging and builds the response.
+    ///
+    /// # Errors
+    /// [`ApiError::Stopped`] once `cancel` is set.
+    fn compute(self, cancel: &Cancel) -> Result<pb::FitStagesResponse, ApiError> {
+        let q = self;
+        let StagingQuery { kind, mut points, physics, labels, config, defaults, started } = q;
+        infer_directions(&mut points);
+        let res: StagingResult = fit_stages_until(&points, kind, physics.as_deref(), &config, cancel)?;
+        let point_labels = match &labels {
+            Some(plan) => Some(label_points(plan, kind, &points, cancel)?),
+            None => None,
         };
-        msg.rms_relative_error = st.rms_relative_error(&points);
-        if let Some(l) = &point_labels {
-            if let Some((best, fraction)) = stage_label(&st.points, &points, l) {
-                msg.best_stage = Some(best);
-                msg.best_stage_point_fraction = fraction;
+        let mut out_points: Vec<pb::PointResult> = points
+            .iter()
+            .enumerate()
+            .map(|(i, p)| pb::PointResult {
+                index: i as u32,
+                stage: res.stage_of[i] as u32,
+                direction: direction_msg(p.direction) as i32,
+                best_stage: point_labels.as_ref().and_then(|l| l[i].clone()),
+                ..Default::default()
+            })
+            .collect();
+        let mut stages = Vec::with_capacity(res.stages.len());
+        for (s, st) in res.stages.iter().enumerate() {
+            let mut msg = pb::StageResult {
+                stage: s as u32,
+                x_min: st.x_range.0,
+                x_max: st.x_range.1,
+                point_count: st.points.len() as u32,
+                smooth_coefficients: st.smooth.clone(),
+                smooth_rms_hz: st.smooth_rms_hz,
+                ..Default::default()
+            };
+            msg.rms_relative_error = st.rms_relative_error(&points);
+            if let Some(l) = &point_labels {
+                if let Some((best, fraction)) = stage_label(&st.points, &points, l) {
+                    msg.best_stage = Some(best);
+                    msg.best_stage_point_fraction = fraction;
+                }
             }
-        }
-        if let Some(fit) = &st.fit {
-            for (k, &i) in st.points.iter().enumerate() {
-                let model = fit.model_hz[k];
-                let p = &mut out_points[i];
-                p.loop_order = Some(fit.n);
-                p.model_frequency_hz = Some(model);
-                p.residual_hz = Some(points[i].f - model);
+            if let Some(fit) = &st.fit {
+                for (k, &i) in st.points.iter().enumerate() {
+                    let model = fit.model_hz[k];
+                    let p = &mut out_points[i];
+                    p.loop_order = Some(fit.n);
+                    p.model_frequency_hz = Some(model);
+                    p.residual_hz = Some(points[i].f - model);
+                }
+                msg.loop_order = Some(fit.n);
+                msg.parameters = fit.params.iter().map(param_msg).collect();
+                msg.equivalent_loop_orders = fit.equivalent_orders.clone();
+                msg.alias_resolution = fit.resolution.clone();
+                msg.chi_square = Some(fit.chi2);
+                msg.fit_verdict = verdict_msg(fit.verdict) as i32;
+                msg.fit_p_value = fit.p_value;
+                let dof = st.points.len().saturating_sub(fit.free);
+                msg.reduced_chi_square = (dof > 0).then(|| fit.chi2 / dof as f64);
             }
-            msg.loop_order = Some(fit.n);
-            msg.parameters = fit.params.iter().map(param_msg).collect();
-            msg.equivalent_loop_orders = fit.equivalent_orders.clone();
-            msg.alias_resolution = fit.resolution.clone();
-            msg.chi_square = Some(fit.chi2);
-            msg.fit_verdict = verdict_msg(fit.verdict) as i32;
-            msg.fit_p_value = fit.p_value;
-            let dof = st.points.len().saturating_sub(fit.free);
-            msg.reduced_chi_square = (dof > 0).then(|| fit.chi2 / dof as f64);
+            stages.push(msg);
         }
-        stages.push(msg);
-    }
-    let jumps = res
-        .jumps
-        .iter()
-        .map(|j| pb::StageJump {
-            direction: direction_msg(j.direction) as i32,
-            x_before: j.x_before,
-            x_after: j.x_after,
-            from_stage: j.from as u32,
-            to_stage: j.to as u32,
-            frequency_before_hz: j.f_before,
-            frequency_after_hz: j.f_after,
-        })
-        .collect();
-    let hysteresis = res
-        .hysteresis
-        .iter()
-        .map(|h| pb::HysteresisInterval {
-            x_low: h.x_low,
-            x_high: h.x_high,
-            lower_stage: h.stages.0 as u32,
-            upper_stage: h.stages.1 as u32,
-        })
-        .collect();
-    let models_cmp: Vec<pb::ModelComparison> = compare_models(&res)
-        .into_iter()
-        .map(|m| pb::ModelComparison {
-            model: m.name.into(),
-            parameter_count: m.parameter_count as u32,
-            chi_square: m.chi2,
-            aic: m.aic,
-            bic: m.bic,
-            preferred: m.preferred,
-        })
-        .collect();
-    let shared_loop = res.shared.as_ref().map(|sh| pb::SharedLoopResult {
-        loop_orders: sh.orders.clone(),
-        parameters: sh.params.iter().map(param_msg).collect(),
-        alias_resolution: sh.resolution.clone(),
-        fit_verdict: verdict_msg(sh.verdict) as i32,
-        fit_p_value: sh.p_value,
-    });
-    let mut used = vec![models::STAGE_SEGMENTATION];
-    let mut notes = Vec::new();
-    match kind {
-        SweepKind::Npr | SweepKind::Mach => {
-            used.extend([models::POWELL_LOOP, models::VORTEX_SHEET_CELLS, models::FULLY_EXPANDED_JET])
+        let jumps = res
+            .jumps
+            .iter()
+            .map(|j| pb::StageJump {
+                direction: direction_msg(j.direction) as i32,
+                x_before: j.x_before,
+                x_after: j.x_after,
+                from_stage: j.from as u32,
+                to_stage: j.to as u32,
+                frequency_before_hz: j.f_before,
+                frequency_after_hz: j.f_after,
+            })
+            .collect();
+        let hysteresis = res
+            .hysteresis
+            .iter()
+            .map(|h| pb::HysteresisInterval {
+                x_low: h.x_low,
+                x_high: h.x_high,
+                lower_stage: h.stages.0 as u32,
+                upper_stage: h.stages.1 as u32,
+            })
+            .collect();
+        let models_cmp: Vec<pb::ModelComparison> = compare_models(&res)
+            .into_iter()
+            .map(|m| pb::ModelComparison {
+                model: m.name.into(),
+                parameter_count: m.parameter_count as u32,
+                chi_square: m.chi2,
+                aic: m.aic,
+                bic: m.bic,
+                preferred: m.preferred,
+            })
+            .collect();
+        let shared_loop = res.shared.as_ref().map(|sh| pb::SharedLoopResult {
+            loop_orders: sh.orders.clone(),
+            parameters: sh.params.iter().map(param_msg).collect(),
+            alias_resolution: sh.resolution.clone(),
+            fit_verdict: verdict_msg(sh.verdict) as i32,
+            fit_p_value: sh.p_value,
+        });
+        let mut used = vec![models::STAGE_SEGMENTATION];
+        let mut notes = Vec::new();
+        match kind {
+            SweepKind::Npr | SweepKind::Mach => {
+                used.extend([models::POWELL_LOOP, models::VORTEX_SHEET_CELLS, models::FULLY_EXPANDED_JET])
+            }
+            SweepKind::Reflector => used.push(models::POWELL_LOOP),
+            SweepKind::Plain => notes.push(
+                "A plain control variable has no loop model: stages, jumps and smooth fits only.".to_string(),
+            ),
         }
-        SweepKind::Reflector => used.push(models::POWELL_LOOP),
-        SweepKind::Plain => notes.push(
-            "A plain control variable has no loop model: stages, jumps and smooth fits only.".to_string(),
-        ),
+        if matches!(kind, SweepKind::Npr | SweepKind::Mach) && config.source_cells_fixed.is_none() {
+            notes.push(
+                "The source cell was searched, not given: one stage of a pressure sweep constrains the loop time, so \
+                 neighbouring (n, N) pairs can fit almost equally well; see each stage's alias_resolution."
+                    .to_string(),
+            );
+        }
+        if let Some(plan) = &labels {
+            used.push(models::GUIDED_JET_MODES);
+            notes.extend(super::guided::guided_notes());
+            notes.push(format!(
+                "Stage labels: each point's tone against the guided-mode bands of the jet at its x \
+                 (in a band or within {} % of an edge); a stage takes the mode most of its points fit.",
+                100.0 * plan.tolerance
+            ));
+        }
+        Ok(pb::FitStagesResponse {
+            points: out_points,
+            stages,
+            jumps,
+            hysteresis,
+            models: models_cmp,
+            shared_loop,
+            compute_time_s: started.elapsed().as_secs_f64(),
+            warnings: res.warnings,
+            provenance: Some(provenance(&used, &defaults, notes)),
+        })
     }
-    if matches!(kind, SweepKind::Npr | SweepKind::Mach) && config.source_cells_fixed.is_none() {
-        notes.push(
-            "The source cell was searched, not given: one stage of a pressure sweep constrains the loop time, so \
-             neighbouring (n, N) pairs can fit almost equally well; see each stage's alias_resolution."
-                .to_string(),
-        );
-    }
-    if let Some(plan) = &labels {
-        used.push(models::GUIDED_JET_MODES);
-        notes.extend(super::guided::guided_notes());
-        notes.push(format!(
-            "Stage labels: each point's tone against the guided-mode bands of the jet at its x \
-             (in a band or within {} % of an edge); a stage takes the mode most of its points fit.",
-            100.0 * plan.tolerance
-        ));
-    }
-    Ok(pb::FitStagesResponse {
-        points: out_points,
-        stages,
-        jumps,
-        hysteresis,
-        models: models_cmp,
-        shared_loop,
-        compute_time_s: started.elapsed().as_secs_f64(),
-        warnings: res.warnings,
-        provenance: Some(provenance(&used, &defaults, notes)),
-    })
 }
 
 fn verdict_msg(v: FitVerdict) -> pb::FitVerdict {

@@ -6,6 +6,7 @@ use super::jet_input::{
     cell_options, convection, convert_jet, jet_summary, loop_spec, resolve_jet, ResolvedJet,
 };
 use super::provenance::{provenance, Defaults};
+use super::Compute;
 use crate::cancel::Cancel;
 use crate::physics::cells::{self, CellOptions};
 use crate::physics::guided;
@@ -72,7 +73,7 @@ fn notes(r: &ResolvedJet) -> Vec<String> {
 }
 
 /// Computes and builds the CellSpacing response.
-pub fn cell_response(q: &CellQuery) -> pb::CellSpacingResponse {
+pub fn cell_message(q: &CellQuery) -> pb::CellSpacingResponse {
     let c = cells::cells(&q.jet.jet, &q.options);
     let l = q.jet.jet.reference_length_m();
     pb::CellSpacingResponse {
@@ -255,108 +256,113 @@ fn guided_model_name(m: &guided::GuidedMode) -> String {
     format!("guided jet mode {shape}, radial order {}", m.radial)
 }
 
-/// Computes and builds the PredictScreech response.
-///
-/// # Errors
-/// [`ApiError::Invalid`] naming `options.loop` when the loop takes no time.
-pub fn screech_response(q: &ScreechQuery) -> Result<pb::PredictScreechResponse, ApiError> {
-    let jet = &q.jet.jet;
-    let s = &q.settings;
-    let r = screech::predict(jet, s).map_err(|_| zero_loop("options.loop"))?;
-    let (uc, mc) = (r.uc_m_s, r.convective_mach);
-    let mut predictions = vec![prediction(
-        &models::POWELL_FUNDAMENTAL,
-        r.powell_hz,
-        s.harmonics,
-        jet,
-        vec![
-            format!("Convection speed Uc = {uc:.2} m/s (Mc = {mc:.4})."),
-            format!(
-                "Source spacing: vortex-sheet shock-cell spacing times {} = {:.6} m.",
-                r.cells.factor,
-                r.cells.spacing_m()
+impl Compute for ScreechQuery {
+    type Response = pb::PredictScreechResponse;
+
+    /// Computes and builds the PredictScreech response.
+    ///
+    /// # Errors
+    /// [`ApiError::Invalid`] naming `options.loop` when the loop takes no time.
+    fn compute(self, cancel: &Cancel) -> Result<pb::PredictScreechResponse, ApiError> {
+        let (q, _) = (&self, cancel);
+        let jet = &q.jet.jet;
+        let s = &q.settings;
+        let r = screech::predict(jet, s).map_err(|_| zero_loop("options.loop"))?;
+        let (uc, mc) = (r.uc_m_s, r.convective_mach);
+        let mut predictions = vec![prediction(
+            &models::POWELL_FUNDAMENTAL,
+            r.powell_hz,
+            s.harmonics,
+            jet,
+            vec![
+                format!("Convection speed Uc = {uc:.2} m/s (Mc = {mc:.4})."),
+                format!(
+                    "Source spacing: vortex-sheet shock-cell spacing times {} = {:.6} m.",
+                    r.cells.factor,
+                    r.cells.spacing_m()
+                ),
+            ],
+        )];
+        let mut used = vec![models::POWELL_FUNDAMENTAL, models::POWELL_LOOP];
+        used.extend(cell_models(jet));
+        let mut notes = notes(&q.jet);
+        match r.tam_1986_hz {
+            Some(f) => {
+                used.push(models::TAM_1986);
+                predictions.push(prediction(
+                    &models::TAM_1986,
+                    f,
+                    s.harmonics,
+                    jet,
+                    vec![
+                        "Uc = 0.7 Uj and 0.8 of the round-jet vortex-sheet spacing, built into the constant 0.67 (= 0.7 j0,1 / (0.8 pi) rounded).".into(),
+                        "Temperature term uses the reservoir-to-ambient ratio T0/Ta.".into(),
+                    ],
+                ));
+            }
+            None => notes.push(
+                "Tam, Seiner & Yu (1986) applies to round jets only; for this jet Powell's fundamental \
+                 uses the rectangular or planar spacing (Tam 1988)."
+                    .into(),
             ),
-        ],
-    )];
-    let mut used = vec![models::POWELL_FUNDAMENTAL, models::POWELL_LOOP];
-    used.extend(cell_models(jet));
-    let mut notes = notes(&q.jet);
-    match r.tam_1986_hz {
-        Some(f) => {
-            used.push(models::TAM_1986);
-            predictions.push(prediction(
-                &models::TAM_1986,
-                f,
-                s.harmonics,
-                jet,
-                vec![
-                    "Uc = 0.7 Uj and 0.8 of the round-jet vortex-sheet spacing, built into the constant 0.67 (= 0.7 j0,1 / (0.8 pi) rounded).".into(),
-                    "Temperature term uses the reservoir-to-ambient ratio T0/Ta.".into(),
-                ],
-            ));
         }
-        None => notes.push(
-            "Tam, Seiner & Yu (1986) applies to round jets only; for this jet Powell's fundamental \
-             uses the rectangular or planar spacing (Tam 1988)."
-                .into(),
-        ),
-    }
-    let guided_modes = match &r.guided {
-        Some(g) => {
-            used.push(models::GUIDED_JET_MODES);
-            notes.extend(super::guided::guided_notes());
-            for m in &g.modes {
-                let first = m.closures.first();
-                if let Some((_, _, guided::Closure::InBand(p))) = first {
-                    let f = g.scale.hz(p.omega);
-                    let mode = &m.band.mode;
-                    let stage = mode.customary_stage(g.sheet.mach());
-                    let mut p = prediction(
-                        &models::GUIDED_JET_MODES,
-                        f,
-                        s.harmonics,
-                        jet,
-                        vec![
-                            format!(
-                                "Closure omega/Uc - k_s,1 = k_guided(omega) in the mode's band, Uc/Uj = {}, spacing factor {}.",
-                                g_opts(s).convection_ratio,
-                                g_opts(s).spacing_factor
-                            ),
-                            format!(
-                                "Stage family: {}{}.",
-                                mode.family(),
-                                if stage.is_empty() { String::new() } else { format!(" (customary stage {stage})") }
-                            ),
-                        ],
-                    );
-                    p.model = guided_model_name(mode);
-                    predictions.push(p);
+        let guided_modes = match &r.guided {
+            Some(g) => {
+                used.push(models::GUIDED_JET_MODES);
+                notes.extend(super::guided::guided_notes());
+                for m in &g.modes {
+                    let first = m.closures.first();
+                    if let Some((_, _, guided::Closure::InBand(p))) = first {
+                        let f = g.scale.hz(p.omega);
+                        let mode = &m.band.mode;
+                        let stage = mode.customary_stage(g.sheet.mach());
+                        let mut p = prediction(
+                            &models::GUIDED_JET_MODES,
+                            f,
+                            s.harmonics,
+                            jet,
+                            vec![
+                                format!(
+                                    "Closure omega/Uc - k_s,1 = k_guided(omega) in the mode's band, Uc/Uj = {}, spacing factor {}.",
+                                    g_opts(s).convection_ratio,
+                                    g_opts(s).spacing_factor
+                                ),
+                                format!(
+                                    "Stage family: {}{}.",
+                                    mode.family(),
+                                    if stage.is_empty() { String::new() } else { format!(" (customary stage {stage})") }
+                                ),
+                            ],
+                        );
+                        p.model = guided_model_name(mode);
+                        predictions.push(p);
+                    }
                 }
+                g.modes.iter().map(|m| super::guided::mode_message(&g.sheet, Some(&g.scale), m, 0)).collect()
             }
-            g.modes.iter().map(|m| super::guided::mode_message(&g.sheet, Some(&g.scale), m, 0)).collect()
-        }
-        None => {
-            if s.guided.is_some() {
-                notes.push(
-                    "Guided modes were asked for but not computed: the jet lies outside the \
-                     solver's range (Mj above 5 or an extreme temperature ratio)."
-                        .into(),
-                );
+            None => {
+                if s.guided.is_some() {
+                    notes.push(
+                        "Guided modes were asked for but not computed: the jet lies outside the \
+                         solver's range (Mj above 5 or an extreme temperature ratio)."
+                            .into(),
+                    );
+                }
+                Vec::new()
             }
-            Vec::new()
-        }
-    };
-    let used = with_state_models(used, &q.jet);
-    Ok(pb::PredictScreechResponse {
-        guided_modes,
-        state: q.jet.state.as_ref().map(jet_state_message),
-        jet: Some(jet_summary(jet)),
-        spacing_m: r.cells.spacing_m(),
-        spacing_factor: r.cells.factor,
-        predictions,
-        feedback_loop: Some(loop_message(&r.feedback, mc, jet)),
-        provenance: Some(provenance(&used, &q.jet.defaults, notes)),
-    })
+        };
+        let used = with_state_models(used, &q.jet);
+        Ok(pb::PredictScreechResponse {
+            guided_modes,
+            state: q.jet.state.as_ref().map(jet_state_message),
+            jet: Some(jet_summary(jet)),
+            spacing_m: r.cells.spacing_m(),
+            spacing_factor: r.cells.factor,
+            predictions,
+            feedback_loop: Some(loop_message(&r.feedback, mc, jet)),
+            provenance: Some(provenance(&used, &q.jet.defaults, notes)),
+        })
+    }
 }
 
 /// A validated shock-noise question.
@@ -405,7 +411,7 @@ impl TryFrom<pb::PredictShockNoiseRequest> for ShockNoiseQuery {
 }
 
 /// Computes and builds the PredictShockNoise response.
-pub fn shock_noise_response(q: &ShockNoiseQuery) -> pb::PredictShockNoiseResponse {
+pub fn shock_noise_message(q: &ShockNoiseQuery) -> pb::PredictShockNoiseResponse {
     let jet = &q.jet.jet;
     let c = cells::cells(jet, &q.cells);
     let r = tones::shock_noise_peaks(jet, &c, q.convection, &q.angles);
@@ -601,89 +607,119 @@ impl TryFrom<pb::SweepScreechRequest> for SweepQuery {
     }
 }
 
-/// Runs the sweep ([`screech::sweep`]) and builds the response.
-///
-/// # Errors
-/// [`ApiError::Invalid`] naming `options.loop` when the loop takes no time, or
-/// [`ApiError::Precondition`] for a reflector sweep of a jet that is not supersonic.
-pub fn sweep_response(q: &SweepQuery, cancel: &Cancel) -> Result<pb::SweepScreechResponse, ApiError> {
-    let t = std::time::Instant::now();
-    let base = match &q.jet.spec {
-        Some(spec) => SweepBase::Conditions { gas: spec.gas, nozzle: spec.nozzle, op: spec.op },
-        None => SweepBase::Jet(q.jet.jet),
-    };
-    let sweep = screech::sweep_until(&base, q.kind, &q.values, &q.settings, cancel).map_err(|e| match e {
-        SweepError::Stopped(s) => ApiError::Stopped(s),
-        SweepError::ZeroLoop(_) => zero_loop("options.loop"),
-        SweepError::NotSupersonic(e) => ApiError::not_supersonic("jet.conditions", &e),
-        // Values are checked against their bounds, and the kind against the jet, in the
-        // conversion: these name the field all the same.
-        SweepError::Value { index, source } => ApiError::Invalid(vec![super::error::FieldViolation {
-            field: "values".into(),
-            description: format!("values: sweep value {index}: {source}"),
-        }]),
-        SweepError::NeedsConditions(_) => ApiError::Invalid(vec![super::error::FieldViolation {
-            field: "jet.conditions".into(),
-            description: e.to_string(),
-        }]),
-    })?;
-    let points = sweep
-        .points
-        .into_iter()
-        .map(|p| {
-            let mut m = pb::SweepPoint {
-                value: p.value,
-                nozzle_pressure_ratio: p.npr,
-                fully_expanded_mach_number: p.mj,
-                regime: p.regime.map_or(pb::ExpansionRegime::Unspecified, regime) as i32,
-                supersonic: p.prediction.is_some(),
-                fully_expanded_velocity_m_per_s: p.uj_m_s,
-                reference_length_m: p.reference_length_m,
-                ..Default::default()
-            };
-            if let Some(r) = p.prediction {
-                m.spacing_m = Some(r.spacing_m);
-                m.powell_fundamental_hz = Some(r.powell_hz);
-                m.tam_1986_hz = r.tam_1986_hz;
-                m.loop_frequencies_hz = r.loop_frequencies_hz;
-                if let Some(g) = &r.guided {
-                    m.guided_modes = g
-                        .modes
-                        .iter()
-                        .map(|md| super::guided::mode_message(&g.sheet, Some(&g.scale), md, 0))
-                        .collect();
+impl Compute for SweepQuery {
+    type Response = pb::SweepScreechResponse;
+
+    /// Runs the sweep ([`screech::sweep`]) and builds the response.
+    ///
+    /// # Errors
+    /// [`ApiError::Invalid`] naming `options.loop` when the loop takes no time, or
+    /// [`ApiError::Precondition`] for a reflector sweep of a jet that is not supersonic.
+    fn compute(self, cancel: &Cancel) -> Result<pb::SweepScreechResponse, ApiError> {
+        let q = &self;
+        let t = std::time::Instant::now();
+        let base = match &q.jet.spec {
+            Some(spec) => SweepBase::Conditions { gas: spec.gas, nozzle: spec.nozzle, op: spec.op },
+            None => SweepBase::Jet(q.jet.jet),
+        };
+        let sweep =
+            screech::sweep_until(&base, q.kind, &q.values, &q.settings, cancel).map_err(|e| match e {
+                SweepError::Stopped(s) => ApiError::Stopped(s),
+                SweepError::ZeroLoop(_) => zero_loop("options.loop"),
+                SweepError::NotSupersonic(e) => ApiError::not_supersonic("jet.conditions", &e),
+                // Values are checked against their bounds, and the kind against the jet, in the
+                // conversion: these name the field all the same.
+                SweepError::Value { index, source } => {
+                    ApiError::Invalid(vec![super::error::FieldViolation {
+                        field: "values".into(),
+                        description: format!("values: sweep value {index}: {source}"),
+                    }])
                 }
-            }
-            m
+                SweepError::NeedsConditions(_) => ApiError::Invalid(vec![super::error::FieldViolation {
+                    field: "jet.conditions".into(),
+                    description: e.to_string(),
+                }]),
+            })?;
+        let points = sweep
+            .points
+            .into_iter()
+            .map(|p| {
+                let mut m = pb::SweepPoint {
+                    value: p.value,
+                    nozzle_pressure_ratio: p.npr,
+                    fully_expanded_mach_number: p.mj,
+                    regime: p.regime.map_or(pb::ExpansionRegime::Unspecified, regime) as i32,
+                    supersonic: p.prediction.is_some(),
+                    fully_expanded_velocity_m_per_s: p.uj_m_s,
+                    reference_length_m: p.reference_length_m,
+                    ..Default::default()
+                };
+                if let Some(r) = p.prediction {
+                    m.spacing_m = Some(r.spacing_m);
+                    m.powell_fundamental_hz = Some(r.powell_hz);
+                    m.tam_1986_hz = r.tam_1986_hz;
+                    m.loop_frequencies_hz = r.loop_frequencies_hz;
+                    if let Some(g) = &r.guided {
+                        m.guided_modes = g
+                            .modes
+                            .iter()
+                            .map(|md| super::guided::mode_message(&g.sheet, Some(&g.scale), md, 0))
+                            .collect();
+                    }
+                }
+                m
+            })
+            .collect();
+        // The pressure-equipment caution once per sweep, when the points are reservoir conditions.
+        let mut notes = if q.jet.spec.is_some() { vec![PRESSURE_CAUTION.to_string()] } else { Vec::new() };
+        if sweep.not_supersonic > 0 {
+            notes.push(format!(
+                "{} of {} points are not supersonic jets (no shock cells): they are kept with supersonic = false and no frequencies.",
+                sweep.not_supersonic,
+                q.values.len()
+            ));
+        }
+        let mut used = vec![
+            models::POWELL_FUNDAMENTAL,
+            models::POWELL_LOOP,
+            models::TAM_1986,
+            models::VORTEX_SHEET_CELLS,
+        ];
+        if q.jet.spec.is_some() {
+            used.push(models::FULLY_EXPANDED_JET);
+        }
+        if q.settings.guided.is_some() {
+            used.push(models::GUIDED_JET_MODES);
+            notes.extend(super::guided::guided_notes());
+        }
+        Ok(pb::SweepScreechResponse {
+            variable: match q.kind {
+                SweepKind::Npr => pb::SweepVariable::NozzlePressureRatio,
+                SweepKind::Mach => pb::SweepVariable::FullyExpandedMachNumber,
+                SweepKind::Reflector => pb::SweepVariable::ReflectorDistanceM,
+                SweepKind::Plain => pb::SweepVariable::Unspecified,
+            } as i32,
+            points,
+            compute_time_s: t.elapsed().as_secs_f64(),
+            provenance: Some(provenance(&used, &q.jet.defaults, notes)),
         })
-        .collect();
-    // The pressure-equipment caution once per sweep, when the points are reservoir conditions.
-    let mut notes = if q.jet.spec.is_some() { vec![PRESSURE_CAUTION.to_string()] } else { Vec::new() };
-    if sweep.not_supersonic > 0 {
-        notes.push(format!(
-            "{} of {} points are not supersonic jets (no shock cells): they are kept with supersonic = false and no frequencies.",
-            sweep.not_supersonic,
-            q.values.len()
-        ));
     }
-    let mut used =
-        vec![models::POWELL_FUNDAMENTAL, models::POWELL_LOOP, models::TAM_1986, models::VORTEX_SHEET_CELLS];
-    if q.jet.spec.is_some() {
-        used.push(models::FULLY_EXPANDED_JET);
+}
+
+impl Compute for CellQuery {
+    type Response = pb::CellSpacingResponse;
+
+    /// The shock-cell spacings and the response.
+    fn compute(self, _cancel: &Cancel) -> Result<pb::CellSpacingResponse, ApiError> {
+        Ok(cell_message(&self))
     }
-    if q.settings.guided.is_some() {
-        used.push(models::GUIDED_JET_MODES);
-        notes.extend(super::guided::guided_notes());
+}
+
+impl Compute for ShockNoiseQuery {
+    type Response = pb::PredictShockNoiseResponse;
+
+    /// The shock-noise peaks and the response.
+    fn compute(self, _cancel: &Cancel) -> Result<pb::PredictShockNoiseResponse, ApiError> {
+        Ok(shock_noise_message(&self))
     }
-    Ok(pb::SweepScreechResponse {
-        variable: match q.kind {
-            SweepKind::Npr => pb::SweepVariable::NozzlePressureRatio,
-            SweepKind::Mach => pb::SweepVariable::FullyExpandedMachNumber,
-            SweepKind::Reflector => pb::SweepVariable::ReflectorDistanceM,
-            SweepKind::Plain => pb::SweepVariable::Unspecified,
-        } as i32,
-        points,
-        compute_time_s: t.elapsed().as_secs_f64(),
-        provenance: Some(provenance(&used, &q.jet.defaults, notes)),
-    })
 }

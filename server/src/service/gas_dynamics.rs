@@ -1,9 +1,8 @@
 //! `jetloop.v1.GasDynamicsService`.
 
-use crate::api::gas::{
-    compute_jet_state, isentropic_answer, jet_spec, jet_state_response, normal_shock_answer, IsentropicQuery,
-    NormalShockQuery,
-};
+use crate::api::gas::{IsentropicQuery, JetStateQuery, NormalShockQuery};
+use crate::api::Compute;
+use crate::cancel::Cancel;
 use jetloop_proto::pb::{self, gas_dynamics_service_server::GasDynamicsService};
 use tonic::{Request, Response, Status};
 
@@ -19,7 +18,7 @@ impl GasDynamicsService for GasDynamics {
         request: Request<pb::IsentropicRatiosRequest>,
     ) -> Result<Response<pb::IsentropicRatiosResponse>, Status> {
         let q = IsentropicQuery::try_from(request.into_inner())?;
-        Ok(Response::new(isentropic_answer(q)?))
+        Ok(Response::new(q.compute(&Cancel::default())?))
     }
 
     async fn normal_shock(
@@ -27,15 +26,14 @@ impl GasDynamicsService for GasDynamics {
         request: Request<pb::NormalShockRequest>,
     ) -> Result<Response<pb::NormalShockResponse>, Status> {
         let q = NormalShockQuery::try_from(request.into_inner())?;
-        Ok(Response::new(normal_shock_answer(&q)?))
+        Ok(Response::new(q.compute(&Cancel::default())?))
     }
 
     async fn jet_state(
         &self,
         request: Request<pb::JetStateRequest>,
     ) -> Result<Response<pb::JetStateResponse>, Status> {
-        let spec = jet_spec(request.into_inner().conditions, "conditions")?;
-        let s = compute_jet_state(&spec);
-        Ok(Response::new(jet_state_response(&spec, &s)))
+        let q = JetStateQuery::try_from(request.into_inner())?;
+        Ok(Response::new(q.compute(&Cancel::default())?))
     }
 }

@@ -1,6 +1,8 @@
 //! `jetloop.v1.ShockCellService`.
 
-use crate::api::tones::{cell_response, CellQuery};
+use crate::api::tones::CellQuery;
+use crate::api::Compute;
+use crate::cancel::Cancel;
 use jetloop_proto::pb::{self, shock_cell_service_server::ShockCellService};
 use tonic::{Request, Response, Status};
 
@@ -15,6 +17,6 @@ impl ShockCellService for ShockCells {
         request: Request<pb::CellSpacingRequest>,
     ) -> Result<Response<pb::CellSpacingResponse>, Status> {
         let q = CellQuery::try_from(request.into_inner())?;
-        Ok(Response::new(cell_response(&q)))
+        Ok(Response::new(q.compute(&Cancel::default())?))
     }
 }

@@ -2,10 +2,10 @@
 
 use crate::api::error::PreconditionViolation;
 use crate::api::spectrum::{
-    bands_response, cross_response, held_bytes, ramp_response, sample_width, tones_response, values_in,
-    BandQuery, CrossQuery, RampQuery, ToneQuery, ToneStream, TrackSession,
+    held_bytes, sample_width, values_in, BandQuery, CrossQuery, RampQuery, ToneQuery, ToneStream,
+    TrackSession,
 };
-use crate::api::ApiError;
+use crate::api::{ApiError, Compute};
 use crate::metrics::Metrics;
 use crate::runtime::budget::{Held, SampleBudget};
 use jetloop_proto::pb::{self, spectrum_service_server::SpectrumService};
@@ -73,7 +73,7 @@ impl SpectrumService for Spectrum {
             request,
             |r| r.samples.as_ref(),
             "spectral analysis",
-            |req, c| tones_response(&ToneQuery::try_from(req)?.with_cancel(c.clone())),
+            |req, c| ToneQuery::try_from(req)?.compute(c),
         )
         .await
     }
@@ -271,7 +271,7 @@ impl SpectrumService for Spectrum {
             request,
             |r| r.samples.as_ref(),
             "cross-channel analysis",
-            |req, c| cross_response(&CrossQuery::try_from(req)?.with_cancel(c.clone())),
+            |req, c| CrossQuery::try_from(req)?.compute(c),
         )
         .await
     }
@@ -284,7 +284,7 @@ impl SpectrumService for Spectrum {
             request,
             |r| r.samples.as_ref(),
             "ramp analysis",
-            |req, c| ramp_response(&RampQuery::try_from(req)?.with_cancel(c.clone())),
+            |req, c| RampQuery::try_from(req)?.compute(c),
         )
         .await
     }
@@ -297,7 +297,7 @@ impl SpectrumService for Spectrum {
             request,
             |r| r.samples.as_ref(),
             "spectral analysis",
-            |req, c| bands_response(&BandQuery::try_from(req)?.with_cancel(c.clone())),
+            |req, c| BandQuery::try_from(req)?.compute(c),
         )
         .await
     }

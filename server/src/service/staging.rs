@@ -1,6 +1,7 @@
 //! `jetloop.v1.StagingService`.
 
-use crate::api::staging::{staging_response, StagingQuery};
+use crate::api::staging::StagingQuery;
+use crate::api::Compute;
 use jetloop_proto::pb::{self, staging_service_server::StagingService};
 use tonic::{Request, Response, Status};
 
@@ -16,10 +17,8 @@ impl StagingService for Staging {
     ) -> Result<Response<pb::FitStagesResponse>, Status> {
         let work = crate::runtime::work_of(&request);
         let req = request.into_inner();
-        let r = crate::runtime::blocking("stage fit", work, move |c| {
-            staging_response(StagingQuery::try_from(req)?, c)
-        })
-        .await?;
+        let r = crate::runtime::blocking("stage fit", work, move |c| StagingQuery::try_from(req)?.compute(c))
+            .await?;
         Ok(Response::new(r))
     }
 }

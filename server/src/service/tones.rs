@@ -1,9 +1,9 @@
 //! `jetloop.v1.ToneService`.
 
-use crate::api::guided::{guided_response, GuidedQuery};
-use crate::api::tones::{
-    screech_response, shock_noise_response, sweep_response, ScreechQuery, ShockNoiseQuery, SweepQuery,
-};
+use crate::api::guided::GuidedQuery;
+use crate::api::tones::{ScreechQuery, ShockNoiseQuery, SweepQuery};
+use crate::api::Compute;
+use crate::cancel::Cancel;
 use jetloop_proto::pb::{self, tone_service_server::ToneService};
 use tonic::{Request, Response, Status};
 
@@ -22,12 +22,10 @@ impl ToneService for Tones {
         let work = crate::runtime::work_of(&request);
         let q = ScreechQuery::try_from(request.into_inner())?;
         if q.settings.guided.is_none() {
-            return Ok(Response::new(screech_response(&q)?));
+            return Ok(Response::new(q.compute(&Cancel::default())?));
         }
         // Guided modes take about a millisecond: off the reactor.
-        Ok(Response::new(
-            crate::runtime::blocking("screech prediction", work, move |_| screech_response(&q)).await?,
-        ))
+        Ok(Response::new(crate::runtime::blocking("screech prediction", work, move |c| q.compute(c)).await?))
     }
 
     async fn predict_shock_noise(
@@ -35,7 +33,7 @@ impl ToneService for Tones {
         request: Request<pb::PredictShockNoiseRequest>,
     ) -> Result<Response<pb::PredictShockNoiseResponse>, Status> {
         let q = ShockNoiseQuery::try_from(request.into_inner())?;
-        Ok(Response::new(shock_noise_response(&q)))
+        Ok(Response::new(q.compute(&Cancel::default())?))
     }
 
     async fn sweep_screech(
@@ -44,9 +42,7 @@ impl ToneService for Tones {
     ) -> Result<Response<pb::SweepScreechResponse>, Status> {
         let work = crate::runtime::work_of(&request);
         let q = SweepQuery::try_from(request.into_inner())?;
-        Ok(Response::new(
-            crate::runtime::blocking("sweep computation", work, move |c| sweep_response(&q, c)).await?,
-        ))
+        Ok(Response::new(crate::runtime::blocking("sweep computation", work, move |c| q.compute(c)).await?))
     }
 
     async fn guided_modes(
@@ -56,8 +52,7 @@ impl ToneService for Tones {
         let work = crate::runtime::work_of(&request);
         let q = GuidedQuery::try_from(request.into_inner())?;
         Ok(Response::new(
-            crate::runtime::blocking("guided-mode computation", work, move |_| Ok(guided_response(&q)))
-                .await?,
+            crate::runtime::blocking("guided-mode computation", work, move |c| q.compute(c)).await?,
         ))
     }
 }

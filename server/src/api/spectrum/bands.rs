@@ -1,6 +1,8 @@
 //! One-third-octave band levels: the validated question and the answer.
 
 use super::*;
+use crate::api::Compute;
+use crate::cancel::Cancel;
 
 /// A validated band-level question.
 #[derive(Debug, Clone)]
@@ -61,31 +63,39 @@ pub(super) fn band_summary(b: &BandLevels) -> pb::BandSummary {
     }
 }
 
-/// Runs the band analysis and builds the response.
-///
-/// # Errors
-/// As [`tones_response`].
-pub fn bands_response(q: &BandQuery) -> Result<pb::BandLevelsResponse, ApiError> {
-    let mut out = Vec::new();
-    for c in 0..q.samples.recording.channel_count() {
-        let mut psd = q.samples.psd(c, q.welch)?;
-        let applied = q.corrections.get(c).map(|cc| cc.apply(&mut psd)).unwrap_or_default();
-        let b = band_levels(&psd, q.max_hz);
-        let mut cautions = Vec::new();
-        if b.overall_db >= CAUTION_LEVEL_DB {
-            cautions.push(caution(b.overall_db, "The overall level"));
+impl Compute for BandQuery {
+    type Response = pb::BandLevelsResponse;
+
+    /// Runs the band analysis and builds the response.
+    ///
+    /// # Errors
+    /// As [`ToneQuery::compute`].
+    fn compute(self, cancel: &Cancel) -> Result<pb::BandLevelsResponse, ApiError> {
+        let q = &self.with_cancel(cancel.clone());
+        let mut out = Vec::new();
+        for c in 0..q.samples.recording.channel_count() {
+            let mut psd = q.samples.psd(c, q.welch)?;
+            let applied = q.corrections.get(c).map(|cc| cc.apply(&mut psd)).unwrap_or_default();
+            let b = band_levels(&psd, q.max_hz);
+            let mut cautions = Vec::new();
+            if b.overall_db >= CAUTION_LEVEL_DB {
+                cautions.push(caution(b.overall_db, "The overall level"));
+            }
+            out.push(pb::ChannelBands {
+                channel: c as u32,
+                name: q.samples.names.get(c).cloned().unwrap_or_default(),
+                analysis: Some(analysis(&psd, q.samples.recording.len(), None)),
+                bands: Some(band_summary(&b)),
+                cautions,
+                corrections_applied: applied.notes.into_iter().chain(applied.warnings).collect(),
+            });
         }
-        out.push(pb::ChannelBands {
-            channel: c as u32,
-            name: q.samples.names.get(c).cloned().unwrap_or_default(),
-            analysis: Some(analysis(&psd, q.samples.recording.len(), None)),
-            bands: Some(band_summary(&b)),
-            cautions,
-            corrections_applied: applied.notes.into_iter().chain(applied.warnings).collect(),
-        });
+        let mut used = SPECTRUM_MODELS.to_vec();
+        used.extend([models::THIRD_OCTAVE, models::A_WEIGHTING]);
+        used.extend(super::corrections::correction_models(&q.corrections));
+        Ok(pb::BandLevelsResponse {
+            channels: out,
+            provenance: Some(provenance(&used, &q.defaults, Vec::new())),
+        })
     }
-    let mut used = SPECTRUM_MODELS.to_vec();
-    used.extend([models::THIRD_OCTAVE, models::A_WEIGHTING]);
-    used.extend(super::corrections::correction_models(&q.corrections));
-    Ok(pb::BandLevelsResponse { channels: out, provenance: Some(provenance(&used, &q.defaults, Vec::new())) })
 }

@@ -1,6 +1,8 @@
 //! Cross-channel analysis: the validated question and the answer.
 
 use super::*;
+use crate::api::Compute;
+use crate::cancel::Cancel;
 use crate::dsp::cross::CrossAtBin;
 use crate::dsp::cross::{azimuthal_modes, cross_spectra, pair_symmetry, radians, Pattern};
 use crate::dsp::tones::Tone;
@@ -207,73 +209,78 @@ pub(crate) fn cross_tone(
     }
 }
 
-/// Computes and builds the CrossSpectra response.
-///
-/// # Errors
-/// As the spectral analysis: a non-finite sample, a recording shorter than one segment, or a
-/// call stopped by its deadline.
-pub fn cross_response(q: &CrossQuery) -> Result<pb::CrossSpectraResponse, ApiError> {
-    let s = &q.samples;
-    let channels = s.recording.channel_count();
-    let views: Vec<ChannelView<'_>> = (0..channels).map(|c| s.recording.channel(c)).collect();
-    let cs = cross_spectra(&views, q.reference, s.fs, q.welch, &s.cancel).map_err(|e| match e {
-        WelchError::NotFinite { .. } => ApiError::Invalid(vec![FieldViolation {
-            field: s.field.into(),
-            description: format!("{}: {e}", s.field),
-        }]),
-        e => welch_error(e, s.field),
-    })?;
-    // Tones of the reference channel from its own PSD (the same estimate as ExtractTones).
-    let psd = s.psd(q.reference, q.welch)?;
-    let set = find_tones(&psd, &q.tones);
-    let others: Vec<usize> = (0..channels).filter(|&c| c != q.reference).collect();
-    let mut order: Vec<usize> = (0..set.tones.len()).collect();
-    order.sort_by(|&a, &b| set.tones[b].level_db.total_cmp(&set.tones[a].level_db));
-    let tones = order
-        .iter()
-        .map(|&ti| {
-            let t = &set.tones[ti];
-            cross_tone(&cs.at_bin(t.peak_bin), q.reference, q.azimuths_deg.as_deref(), t)
-        })
-        .collect();
-    let spectra = match q.spectra_points {
-        None => Vec::new(),
-        Some(max) => {
-            let bins = cs.reference_psd.len();
-            let stride = bins.div_ceil(max).max(1);
-            let ks: Vec<usize> = (0..bins).step_by(stride).collect();
-            others
-                .iter()
-                .enumerate()
-                .map(|(i, &c)| pb::CrossSpectrum {
-                    channel: c as u32,
-                    frequency_hz: ks.iter().map(|&k| k as f64 * cs.resolution_hz()).collect(),
-                    magnitude_pa2_per_hz: ks.iter().map(|&k| cs.csd[i][k].norm()).collect(),
-                    phase_deg: ks.iter().map(|&k| cs.phase_deg(i, k)).collect(),
-                    coherence: ks.iter().map(|&k| cs.coherence(i, k)).collect(),
-                })
-                .collect()
+impl Compute for CrossQuery {
+    type Response = pb::CrossSpectraResponse;
+
+    /// Computes and builds the CrossSpectra response.
+    ///
+    /// # Errors
+    /// As the spectral analysis: a non-finite sample, a recording shorter than one segment, or a
+    /// call stopped by its deadline.
+    fn compute(self, cancel: &Cancel) -> Result<pb::CrossSpectraResponse, ApiError> {
+        let q = &self.with_cancel(cancel.clone());
+        let s = &q.samples;
+        let channels = s.recording.channel_count();
+        let views: Vec<ChannelView<'_>> = (0..channels).map(|c| s.recording.channel(c)).collect();
+        let cs = cross_spectra(&views, q.reference, s.fs, q.welch, &s.cancel).map_err(|e| match e {
+            WelchError::NotFinite { .. } => ApiError::Invalid(vec![FieldViolation {
+                field: s.field.into(),
+                description: format!("{}: {e}", s.field),
+            }]),
+            e => welch_error(e, s.field),
+        })?;
+        // Tones of the reference channel from its own PSD (the same estimate as ExtractTones).
+        let psd = s.psd(q.reference, q.welch)?;
+        let set = find_tones(&psd, &q.tones);
+        let others: Vec<usize> = (0..channels).filter(|&c| c != q.reference).collect();
+        let mut order: Vec<usize> = (0..set.tones.len()).collect();
+        order.sort_by(|&a, &b| set.tones[b].level_db.total_cmp(&set.tones[a].level_db));
+        let tones = order
+            .iter()
+            .map(|&ti| {
+                let t = &set.tones[ti];
+                cross_tone(&cs.at_bin(t.peak_bin), q.reference, q.azimuths_deg.as_deref(), t)
+            })
+            .collect();
+        let spectra = match q.spectra_points {
+            None => Vec::new(),
+            Some(max) => {
+                let bins = cs.reference_psd.len();
+                let stride = bins.div_ceil(max).max(1);
+                let ks: Vec<usize> = (0..bins).step_by(stride).collect();
+                others
+                    .iter()
+                    .enumerate()
+                    .map(|(i, &c)| pb::CrossSpectrum {
+                        channel: c as u32,
+                        frequency_hz: ks.iter().map(|&k| k as f64 * cs.resolution_hz()).collect(),
+                        magnitude_pa2_per_hz: ks.iter().map(|&k| cs.csd[i][k].norm()).collect(),
+                        phase_deg: ks.iter().map(|&k| cs.phase_deg(i, k)).collect(),
+                        coherence: ks.iter().map(|&k| cs.coherence(i, k)).collect(),
+                    })
+                    .collect()
+            }
+        };
+        let mut notes =
+            vec!["Phase is arg(conj(X_ref) X_channel): positive when the channel leads the reference."
+                .to_string()];
+        if q.azimuths_deg.is_some() && channels >= 3 {
+            notes.push(
+                "Azimuthal orders: a pattern cos(omega t - m theta) with m > 0 spins towards increasing azimuth; \
+                 the decomposition is exact for equally spaced microphones, and orders above M/2 alias onto lower ones."
+                    .into(),
+            );
         }
-    };
-    let mut notes = vec![
-        "Phase is arg(conj(X_ref) X_channel): positive when the channel leads the reference.".to_string(),
-    ];
-    if q.azimuths_deg.is_some() && channels >= 3 {
-        notes.push(
-            "Azimuthal orders: a pattern cos(omega t - m theta) with m > 0 spins towards increasing azimuth; \
-             the decomposition is exact for equally spaced microphones, and orders above M/2 alias onto lower ones."
-                .into(),
-        );
+        let mut used = SPECTRUM_MODELS.to_vec();
+        used.push(models::TONE_EXTRACTION);
+        used.push(models::CROSS_SPECTRA);
+        Ok(pb::CrossSpectraResponse {
+            reference_channel: q.reference as u32,
+            analysis: Some(analysis(&psd, s.recording.len(), Some(&set))),
+            tones,
+            spectra,
+            compute_time_s: q.started.elapsed().as_secs_f64(),
+            provenance: Some(provenance(&used, &q.defaults, notes)),
+        })
     }
-    let mut used = SPECTRUM_MODELS.to_vec();
-    used.push(models::TONE_EXTRACTION);
-    used.push(models::CROSS_SPECTRA);
-    Ok(pb::CrossSpectraResponse {
-        reference_channel: q.reference as u32,
-        analysis: Some(analysis(&psd, s.recording.len(), Some(&set))),
-        tones,
-        spectra,
-        compute_time_s: q.started.elapsed().as_secs_f64(),
-        provenance: Some(provenance(&used, &q.defaults, notes)),
-    })
 }

@@ -1,6 +1,8 @@
 //! AnalyseRamp: a continuous ramp's request validated into domain types, and its answer.
 
 use super::*;
+use crate::api::Compute;
+use crate::cancel::Cancel;
 use crate::dsp::ramp::{analyse_ramp, Control, ControlQuantity, RampConfig, RampFrame};
 
 /// Allowed |units per sample| and |offset| of the control.
@@ -169,76 +171,81 @@ fn direction(fr: &RampFrame) -> pb::SweepDirection {
     }
 }
 
-/// Runs the short-time analysis and builds the response.
-///
-/// # Errors
-/// As [`tones_response`].
-pub fn ramp_response(q: &RampQuery) -> Result<pb::AnalyseRampResponse, ApiError> {
-    let rec = &q.samples.recording;
-    let mics: Vec<_> = q.mics.iter().map(|&c| rec.channel(c)).collect();
-    let ctl = rec.channel(q.control.channel).unscaled();
-    let cfg = RampConfig { fs: q.samples.fs, frame: q.frame, welch: q.welch, tones: q.tones };
-    let frames = analyse_ramp(&mics, &ctl, &q.control, &cfg, &q.samples.cancel)
-        .map_err(|e| welch_error(e, q.samples.field))?;
-    let fs = q.samples.fs;
-    let fit_index = q.mics.iter().position(|&c| c == q.fit_channel).unwrap_or(0);
-    let mut warnings = Vec::new();
-    let smeared = frames.iter().filter(|f| (f.npr_change / f.npr_mean).abs() > SMEAR_FRACTION).count();
-    if smeared > 0 {
-        warnings.push(format!(
-            "in {smeared} of {} frames the NPR changes by more than {} % within the frame: a stage jump inside \
-             such a frame is smeared over it; use shorter frames or a slower ramp",
-            frames.len(),
-            100.0 * SMEAR_FRACTION
-        ));
-    }
-    let tail = rec.len() % q.frame;
-    if tail > 0 {
-        warnings.push(format!("the last {tail} samples per channel (less than one frame) are left out"));
-    }
-    let fit_points = frames
-        .iter()
-        .enumerate()
-        .filter(|(_, f)| f.npr_mean > 1.0)
-        .filter_map(|(i, f)| {
-            f.tones[fit_index].map(|t| pb::MeasuredTone {
-                x: f.npr_mean,
-                frequency_hz: t.frequency_hz,
-                level_db: Some(t.level_db),
-                frequency_uncertainty_hz: None,
-                direction: direction(f) as i32,
-                acquisition_index: Some(i as u64),
-            })
-        })
-        .collect();
-    let out_frames = frames
-        .iter()
-        .map(|f| pb::RampFrame {
-            start_s: f.start as f64 / fs,
-            end_s: f.end as f64 / fs,
-            nozzle_pressure_ratio: f.npr_mean,
-            nozzle_pressure_ratio_change: f.npr_change,
-            tones: q
-                .mics
-                .iter()
-                .zip(&f.tones)
-                .map(|(&c, t)| pb::RampTone {
-                    channel: c as u32,
-                    frequency_hz: t.map(|t| t.frequency_hz),
-                    level_db: t.map(|t| t.level_db),
-                    tone_to_floor_db: t.map(|t| t.tone_to_floor_db),
+impl Compute for RampQuery {
+    type Response = pb::AnalyseRampResponse;
+
+    /// Runs the short-time analysis and builds the response.
+    ///
+    /// # Errors
+    /// As [`ToneQuery::compute`].
+    fn compute(self, cancel: &Cancel) -> Result<pb::AnalyseRampResponse, ApiError> {
+        let q = &self.with_cancel(cancel.clone());
+        let rec = &q.samples.recording;
+        let mics: Vec<_> = q.mics.iter().map(|&c| rec.channel(c)).collect();
+        let ctl = rec.channel(q.control.channel).unscaled();
+        let cfg = RampConfig { fs: q.samples.fs, frame: q.frame, welch: q.welch, tones: q.tones };
+        let frames = analyse_ramp(&mics, &ctl, &q.control, &cfg, &q.samples.cancel)
+            .map_err(|e| welch_error(e, q.samples.field))?;
+        let fs = q.samples.fs;
+        let fit_index = q.mics.iter().position(|&c| c == q.fit_channel).unwrap_or(0);
+        let mut warnings = Vec::new();
+        let smeared = frames.iter().filter(|f| (f.npr_change / f.npr_mean).abs() > SMEAR_FRACTION).count();
+        if smeared > 0 {
+            warnings.push(format!(
+                "in {smeared} of {} frames the NPR changes by more than {} % within the frame: a stage jump inside \
+                 such a frame is smeared over it; use shorter frames or a slower ramp",
+                frames.len(),
+                100.0 * SMEAR_FRACTION
+            ));
+        }
+        let tail = rec.len() % q.frame;
+        if tail > 0 {
+            warnings.push(format!("the last {tail} samples per channel (less than one frame) are left out"));
+        }
+        let fit_points = frames
+            .iter()
+            .enumerate()
+            .filter(|(_, f)| f.npr_mean > 1.0)
+            .filter_map(|(i, f)| {
+                f.tones[fit_index].map(|t| pb::MeasuredTone {
+                    x: f.npr_mean,
+                    frequency_hz: t.frequency_hz,
+                    level_db: Some(t.level_db),
+                    frequency_uncertainty_hz: None,
+                    direction: direction(f) as i32,
+                    acquisition_index: Some(i as u64),
                 })
-                .collect(),
+            })
+            .collect();
+        let out_frames = frames
+            .iter()
+            .map(|f| pb::RampFrame {
+                start_s: f.start as f64 / fs,
+                end_s: f.end as f64 / fs,
+                nozzle_pressure_ratio: f.npr_mean,
+                nozzle_pressure_ratio_change: f.npr_change,
+                tones: q
+                    .mics
+                    .iter()
+                    .zip(&f.tones)
+                    .map(|(&c, t)| pb::RampTone {
+                        channel: c as u32,
+                        frequency_hz: t.map(|t| t.frequency_hz),
+                        level_db: t.map(|t| t.level_db),
+                        tone_to_floor_db: t.map(|t| t.tone_to_floor_db),
+                    })
+                    .collect(),
+            })
+            .collect();
+        let mut used = SPECTRUM_MODELS.to_vec();
+        used.push(models::TONE_EXTRACTION);
+        Ok(pb::AnalyseRampResponse {
+            frames: out_frames,
+            fit_points,
+            fit_channel: q.fit_channel as u32,
+            warnings,
+            compute_time_s: q.started.elapsed().as_secs_f64(),
+            provenance: Some(provenance(&used, &q.defaults, Vec::new())),
         })
-        .collect();
-    let mut used = SPECTRUM_MODELS.to_vec();
-    used.push(models::TONE_EXTRACTION);
-    Ok(pb::AnalyseRampResponse {
-        frames: out_frames,
-        fit_points,
-        fit_channel: q.fit_channel as u32,
-        warnings,
-        compute_time_s: q.started.elapsed().as_secs_f64(),
-        provenance: Some(provenance(&used, &q.defaults, Vec::new())),
-    })
+    }
 }

@@ -110,6 +110,6 @@ impl ToneStream {
             .enumerate()
             .map(|(c, w)| q.samples.finish_psd(c, w))
             .collect::<Result<Vec<_>, _>>()?;
-        Ok(tones_answer(q, &psds, t))
+        Ok(tones_message(q, &psds, t))
     }
 }

@@ -1,6 +1,8 @@
 //! Tone extraction: options, the validated question and the per-channel answer.
 
 use super::*;
+use crate::api::Compute;
+use crate::cancel::Cancel;
 
 /// Tone options at `tones`: each checked against its bounds or its default applied and
 /// recorded (defaults are the [`ToneConfig`] settings).
@@ -247,20 +249,25 @@ fn psd_data(psd: &Psd, floor: Option<&[f64]>, max_points: Option<usize>) -> pb::
 
 pub(super) const SPECTRUM_MODELS: [Model; 2] = [models::WELCH_PSD, models::SPL];
 
-/// Runs the tone extraction and builds the response.
-///
-/// # Errors
-/// None in practice: every configuration was checked against the data length; a failure is
-/// reported as FAILED_PRECONDITION.
-pub fn tones_response(q: &ToneQuery) -> Result<pb::ExtractTonesResponse, ApiError> {
-    let psds = (0..q.samples.recording.channel_count())
-        .map(|c| q.samples.psd(c, q.welch))
-        .collect::<Result<Vec<_>, _>>()?;
-    Ok(tones_answer(q, &psds, q.started))
+impl Compute for ToneQuery {
+    type Response = pb::ExtractTonesResponse;
+
+    /// Runs the tone extraction and builds the response.
+    ///
+    /// # Errors
+    /// None in practice: every configuration was checked against the data length; a failure is
+    /// reported as FAILED_PRECONDITION.
+    fn compute(self, cancel: &Cancel) -> Result<pb::ExtractTonesResponse, ApiError> {
+        let q = &self.with_cancel(cancel.clone());
+        let psds = (0..q.samples.recording.channel_count())
+            .map(|c| q.samples.psd(c, q.welch))
+            .collect::<Result<Vec<_>, _>>()?;
+        Ok(tones_message(q, &psds, q.started))
+    }
 }
 
 /// The answer from one PSD per channel; `t` is when the server's work began.
-pub(super) fn tones_answer(q: &ToneQuery, psds: &[Psd], t: std::time::Instant) -> pb::ExtractTonesResponse {
+pub(super) fn tones_message(q: &ToneQuery, psds: &[Psd], t: std::time::Instant) -> pb::ExtractTonesResponse {
     let mut out = Vec::with_capacity(psds.len());
     for (c, measured) in psds.iter().enumerate() {
         // Corrections act on a copy of the PSD; the rms then comes from the corrected density.
