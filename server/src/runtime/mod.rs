@@ -1,5 +1,5 @@
 //! What a call's computation runs with, shared by the layers that attach it and the services
-//! that use it: work placement on the blocking pool ([`blocking`]), the call's [`Work`]
+//! that use it: work placement on the blocking pool (`blocking`), the call's [`Work`]
 //! context (cancellation flag and the gauge of running computations), a live stream's
 //! [`StreamDeadline`], and the server-wide [`budget::SampleBudget`].
 
