@@ -1,11 +1,13 @@
 //! Conversion of the inputs shared by the shock-cell and tone services: the jet (conditions or
 //! a fully expanded state), cell options, convection, the feedback loop.
 
+use super::conditions::{gas_from, jet_spec, JetSpec};
 use super::error::{ApiError, Check};
-use super::gas::{gas_from, jet_spec, JetSpec};
+use super::gas::PRESSURE_CAUTION;
 use super::provenance::Defaults;
 use crate::physics::cells::{self, CellOptions};
 use crate::physics::jet::{self, jet_state, ExpandedJet, JetSize, JetState};
+use crate::physics::models::{self, Model};
 use crate::physics::screech;
 use crate::physics::tones::{self, Convection, LoopSpec, PathLength, PathSpeed, Segment, Source};
 use jetloop_proto::pb;
@@ -320,4 +322,30 @@ pub fn jet_summary(j: &ExpandedJet) -> pb::ExpandedJetSummary {
         total_temperature_k: j.total_temperature_k,
         ambient_temperature_k: j.ambient_temperature_k,
     }
+}
+
+pub(super) fn cell_models(jet: &ExpandedJet) -> Vec<Model> {
+    let mut m = vec![models::VORTEX_SHEET_CELLS];
+    if matches!(jet.size, crate::physics::jet::JetSize::Rectangular { .. }) {
+        m.push(models::TAM_1988_RECTANGULAR);
+    }
+    m
+}
+
+pub(super) fn with_state_models(mut m: Vec<Model>, r: &ResolvedJet) -> Vec<Model> {
+    if r.state.is_some() {
+        m.push(models::FULLY_EXPANDED_JET);
+    }
+    m
+}
+
+/// Notes of an answer about one jet: the jet state's notes and, when the jet came from
+/// reservoir conditions (a pressurized rig), the pressure-equipment caution; a jet given
+/// directly (Mj, Dj) has no reservoir to warn about.
+pub(super) fn notes(r: &ResolvedJet) -> Vec<String> {
+    let mut n = r.state.as_ref().map(JetState::notes).unwrap_or_default();
+    if r.state.is_some() {
+        n.push(PRESSURE_CAUTION.to_string());
+    }
+    n
 }

@@ -3,6 +3,8 @@
 //!
 //! Nothing below this module sees a proto message; nothing above it sees an unchecked number.
 
+pub mod cells;
+pub mod conditions;
 pub mod error;
 pub mod field;
 pub mod gas;
@@ -10,7 +12,9 @@ pub mod guided;
 pub mod jet_input;
 pub mod provenance;
 pub mod spectrum;
+pub mod stage_labels;
 pub mod staging;
+pub mod sweep;
 pub mod tones;
 
 pub use error::{ApiError, Check, FieldViolation};

@@ -1,9 +1,9 @@
 //! StagingService: measured sweeps converted to domain points (with the jet physics at each
 //! x for pressure sweeps), and the staging result turned into the response.
 
+use super::conditions::jet_spec;
 use super::error::{ApiError, Check};
 use super::field::Fields;
-use super::gas::jet_spec;
 use super::provenance::{provenance, Defaults};
 use super::Compute;
 use crate::cancel::Cancel;
@@ -414,7 +414,7 @@ fn label_plan(
                         None
                     } else {
                         let round = matches!(size, jet::JetSize::Round { .. });
-                        super::guided::label_settings(
+                        super::stage_labels::label_settings(
                             check,
                             defaults,
                             modes,
@@ -459,7 +459,7 @@ fn label_points(
         let jet = op
             .and_then(|op| jet::ExpandedJet::from_state(&jet::jet_state(&plan.gas, &plan.nozzle, &op)).ok());
         let ctx = jet.and_then(|j| {
-            super::guided::StageContext::for_jet(&j, &plan.options, plan.tolerance, Vec::new())
+            super::stage_labels::StageContext::for_jet(&j, &plan.options, plan.tolerance, Vec::new())
         });
         out.push(ctx.and_then(|c| c.label(p.f).into_iter().next()));
     }

@@ -1,6 +1,6 @@
 //! `jetloop.v1.ShockCellService`.
 
-use crate::api::tones::CellQuery;
+use crate::api::cells::CellQuery;
 use crate::api::Compute;
 use crate::cancel::Cancel;
 use jetloop_proto::pb::{self, shock_cell_service_server::ShockCellService};

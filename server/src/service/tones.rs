@@ -1,7 +1,8 @@
 //! `jetloop.v1.ToneService`.
 
 use crate::api::guided::GuidedQuery;
-use crate::api::tones::{ScreechQuery, ShockNoiseQuery, SweepQuery};
+use crate::api::sweep::SweepQuery;
+use crate::api::tones::{ScreechQuery, ShockNoiseQuery};
 use crate::api::Compute;
 use crate::cancel::Cancel;
 use jetloop_proto::pb::{self, tone_service_server::ToneService};

@@ -49,7 +49,7 @@ pub struct ToneQuery {
     pub(super) predicted: Option<(f64, f64)>,
     pub(super) bands: Option<f64>,
     pub(super) psd_points: Option<Option<usize>>,
-    pub(super) stages: Option<crate::api::guided::StageContext>,
+    pub(super) stages: Option<crate::api::stage_labels::StageContext>,
     /// Level corrections, one per channel, or none.
     pub(super) corrections: Vec<crate::dsp::corrections::ChannelCorrection>,
     pub(super) defaults: Defaults,
@@ -98,7 +98,7 @@ pub(super) fn tone_query(
         Some(None) => usize::MAX,
     };
     let stages = match stage_labels {
-        Some(o) => Some(crate::api::guided::stage_context(o, "stage_labels", &mut defaults)?),
+        Some(o) => Some(crate::api::stage_labels::stage_context(o, "stage_labels", &mut defaults)?),
         None => None,
     };
     let mut check = Check::new();
@@ -377,7 +377,7 @@ pub(super) fn tones_message(q: &ToneQuery, psds: &[Psd], t: std::time::Instant) 
         used.push(models::THIRD_OCTAVE);
         used.push(models::A_WEIGHTING);
     }
-    let notes = q.stages.as_ref().map(crate::api::guided::StageContext::notes).unwrap_or_default();
+    let notes = q.stages.as_ref().map(crate::api::stage_labels::StageContext::notes).unwrap_or_default();
     if q.stages.is_some() {
         used.push(models::GUIDED_JET_MODES);
         used.push(models::FULLY_EXPANDED_JET);
@@ -385,8 +385,8 @@ pub(super) fn tones_message(q: &ToneQuery, psds: &[Psd], t: std::time::Instant) 
     pb::ExtractTonesResponse {
         channels: out,
         compute_time_s: t.elapsed().as_secs_f64(),
-        stage_bands: q.stages.as_ref().map(crate::api::guided::StageContext::bands).unwrap_or_default(),
-        stage_sheet: q.stages.as_ref().map(crate::api::guided::StageContext::sheet),
+        stage_bands: q.stages.as_ref().map(crate::api::stage_labels::StageContext::bands).unwrap_or_default(),
+        stage_sheet: q.stages.as_ref().map(crate::api::stage_labels::StageContext::sheet),
         provenance: Some(provenance(&used, &q.defaults, notes)),
     }
 }

@@ -21,7 +21,7 @@ pub struct TrackSession {
     /// Microphone azimuths, degrees, when given (live mode decomposition).
     azimuths_deg: Option<Vec<f64>>,
     /// The jet's guided-mode bands, when stage labels were asked for.
-    stages: Option<crate::api::guided::StageContext>,
+    stages: Option<crate::api::stage_labels::StageContext>,
 }
 
 fn config_missing() -> ApiError {
@@ -221,7 +221,7 @@ impl TrackSession {
 fn update_message(
     u: Update,
     azimuths_deg: Option<&[f64]>,
-    stages: Option<&crate::api::guided::StageContext>,
+    stages: Option<&crate::api::stage_labels::StageContext>,
 ) -> pb::TrackUpdate {
     let strongest_cross = u
         .cross
