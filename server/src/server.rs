@@ -161,11 +161,14 @@ pub async fn serve_observed(
         .layer(ShedLayer::new(limits.max_concurrent_requests).with_metrics(metrics.clone()))
         // Then the deadline, only for admitted calls: DEADLINE_EXCEEDED at the caller's
         // grpc-timeout (answered just before it) or the server's limit, whichever is sooner
-        // (live tracking streams have their own, longer limit).
+        // (live tracking streams have their own, longer limit). It wraps each ready answer in
+        // the send guard (layers/send_guard.rs): the answer keeps its permit until its last
+        // byte has left, and must leave by the deadline.
         .layer(DeadlineLayer::new(limits.request_timeout, limits.stream_timeout, computing.clone()))
         // Innermost, nearest the routes: a request body that does not decode, or is over the
         // size limit, is the caller's error (INVALID_ARGUMENT, RESOURCE_EXHAUSTED), not the
-        // server's (tonic's INTERNAL, OUT_OF_RANGE).
+        // server's (tonic's INTERNAL, OUT_OF_RANGE); every failed call, unary or a live
+        // stream failing part-way, is logged here once at info.
         .layer(InboundErrorsLayer)
         .into_inner();
 
