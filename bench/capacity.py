@@ -14,7 +14,7 @@ the echo beside it): the latency with one call in flight, the p99 at half its ma
 throughput (open loop), and tone extraction (8192 samples per call) at full load.
 
 Usage (from the repository root):
-  cargo build --release -p jetloop-server -p jetloop-tests --bins
+  cargo build --release -p jetloop-server -p jetloop-bench --bins
   pip install ./clients/python
   python3 bench/capacity.py [--rounds 3] [--seconds 3]
 """

@@ -11,7 +11,7 @@ jetloop is timed four ways:
 Request messages are built before timing, as the SciPy input array is. Every way must find the
 same tones.
 
-Usage: cargo build --release -p jetloop-server -p jetloop-tests --bins
+Usage: cargo build --release -p jetloop-server -p jetloop-bench --bins
        python3 bench/spectrum_vs_scipy.py [--repeats 21] [--block-bytes 524288]
 (starts its own server on a free loopback port; needs grpcio, grpcio-tools, numpy, scipy).
 """

@@ -18,7 +18,7 @@ const SET_UP: [&str; 8] = [
     "cargo run --release -p jetloop-server",
     "cargo install --path client-cli",
     "cargo test --workspace",
-    "cargo run --release -p jetloop-tests --bin ",
+    "cargo run --release -p jetloop-bench --bin ",
     "python3 -m pip install ",
     "mkdir -p build/python",
     "python3 -m grpc_tools.protoc ",

@@ -2,7 +2,7 @@
 //! compute time from each response, for 1,000 points in 6 stages and how it scales with the
 //! number of points and n_max.
 //!
-//! Run with `cargo run --release -p jetloop-tests --bin bench-staging`.
+//! Run with `cargo run --release -p jetloop-bench --bin bench-staging`.
 #![forbid(unsafe_code)]
 
 use jetloop_proto::pb::{self, nozzle::Kind, staging_service_client::StagingServiceClient};

@@ -1,7 +1,7 @@
 //! Benchmark: cross-channel analysis against the single-channel analysis of the same samples,
 //! over loopback gRPC.
 //!
-//! Run with `cargo run --release -p jetloop-tests --bin bench-cross [-- REPEATS]`. Eight
+//! Run with `cargo run --release -p jetloop-bench --bin bench-cross [-- REPEATS]`. Eight
 //! channels of 2^21 f32 samples each (raw interleaved bytes, 204.8 kHz, invented ring data):
 //! server compute time of ExtractTones (a PSD and tones per channel) and of CrossSpectra
 //! (cross-spectra of seven channels against the first, tones, phase, coherence and the

@@ -1,6 +1,6 @@
 //! Benchmark: guided-jet-mode screech maps and single predictions, over loopback gRPC.
 //!
-//! Run with `cargo run --release -p jetloop-tests --bin bench-guided [-- REPEATS]`. Prints the
+//! Run with `cargo run --release -p jetloop-bench --bin bench-guided [-- REPEATS]`. Prints the
 //! server compute time of a 100-point Mj sweep with 4 guided modes (bands and closure tones;
 //! target < 100 ms) and the round trip of a single PredictScreech with the guided model
 //! (target < 2 ms), median, min and max, so the figures need no timed test.

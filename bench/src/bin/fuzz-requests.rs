@@ -3,7 +3,7 @@
 //! through the sample decoders against a plain reference decode. Stops at the first failure
 //! and prints how to replay it.
 //!
-//! Usage: `cargo run --release -p jetloop-tests --bin fuzz-requests -- [SECONDS] [SEED]`
+//! Usage: `cargo run --release -p jetloop-bench --bin fuzz-requests -- [SECONDS] [SEED]`
 //! (default 60 s, a seed from the clock). CI runs a short fixed-seed slice of the same code
 //! (`tests/tests/fuzz_short.rs`).
 #![forbid(unsafe_code)]

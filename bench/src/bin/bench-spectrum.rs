@@ -2,7 +2,7 @@
 //! tones + bands): the Welch PSD alone in-process, and ExtractTones end to end over loopback
 //! gRPC with a Rust client. `bench/spectrum_vs_scipy.py` compares with SciPy from Python.
 //!
-//! Run with `cargo run --release -p jetloop-tests --bin bench-spectrum [-- REPEATS]`.
+//! Run with `cargo run --release -p jetloop-bench --bin bench-spectrum [-- REPEATS]`.
 #![forbid(unsafe_code)]
 
 use jetloop_proto::pb::{

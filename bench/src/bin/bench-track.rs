@@ -2,7 +2,7 @@
 //! 204.8 kHz (f32, invented ring data), cross-spectra against channel 0 and the azimuthal mode
 //! in every update.
 //!
-//! Run with `cargo run --release -p jetloop-tests --bin bench-track [-- SECONDS]`.
+//! Run with `cargo run --release -p jetloop-bench --bin bench-track [-- SECONDS]`.
 //! 1. As fast as possible: stream seconds per wall-clock second (target: at least 20x real time).
 //! 2. At real-time pace (50 ms blocks sent at their own time): update latency, from the moment
 //!    the block that completes an update is sent to the moment the update arrives (target:

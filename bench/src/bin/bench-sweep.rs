@@ -1,6 +1,6 @@
 //! Benchmark: a screech sweep of 10,000 operating points with every model, over loopback gRPC.
 //!
-//! Run with `cargo run --release -p jetloop-tests --bin bench-sweep [-- REPEATS]`. Prints the
+//! Run with `cargo run --release -p jetloop-bench --bin bench-sweep [-- REPEATS]`. Prints the
 //! server compute time reported in each response and the client round-trip time (median, min,
 //! max), so the figure can be compared with the 20 ms target without a timed test.
 #![forbid(unsafe_code)]
