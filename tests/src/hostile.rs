@@ -168,16 +168,7 @@ pub fn base_calls() -> Vec<BaseCall> {
         },
         BaseCall {
             path: "/jetloop.v1.ToneService/SweepScreech",
-            messages: vec![enc(&pb::SweepScreechRequest {
-                jet: Some(inch_nozzle(3.0)),
-                variable: pb::SweepVariable::NozzlePressureRatio as i32,
-                values: Some(pb::sweep_screech_request::Values::Range(pb::SweepRange {
-                    start: 2.5,
-                    stop: 4.5,
-                    count: 5,
-                })),
-                options: None,
-            })],
+            messages: vec![enc(&crate::fixtures::npr_sweep(inch_nozzle(3.0), 2.5, 4.5, 5))],
             weight: 5,
         },
         BaseCall {
@@ -582,8 +573,8 @@ pub mod in_process {
     use jetloop_server::dsp::samples::{Format, Layout, Recording};
     use jetloop_server::runtime::budget::SampleBudget;
     use jetloop_server::service::{
-        gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells,
-        spectrum::Spectrum, staging::Staging, tones::Tones,
+        gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells, spectrum::Spectrum, staging::Staging,
+        tones::Tones,
     };
     use prost::Message;
     use tonic::{Code, Request};

@@ -274,6 +274,17 @@ pub mod fixtures {
         input(conditions(round(0.0254), npr))
     }
 
+    /// A screech sweep of `jet` over `count` nozzle pressure ratios from `start` to `stop`,
+    /// every option left to the server.
+    pub fn npr_sweep(jet: pb::JetInput, start: f64, stop: f64, count: u32) -> pb::SweepScreechRequest {
+        pb::SweepScreechRequest {
+            jet: Some(jet),
+            variable: pb::SweepVariable::NozzlePressureRatio as i32,
+            values: Some(pb::sweep_screech_request::Values::Range(pb::SweepRange { start, stop, count })),
+            options: None,
+        }
+    }
+
     /// `m` points of a pressure sweep: six stages over NPR 2.2-5.0 whose frequencies follow
     /// a smooth trend with 12 % jumps (synthetic, for timing and load only).
     pub fn pressure_sweep_points(m: usize) -> Vec<pb::MeasuredTone> {
@@ -325,6 +336,42 @@ pub mod fixtures {
             })),
         }
     }
+}
+
+/// Samples sent as values already in pascals: one channel of `values` at `fs` Hz (more
+/// channels: `values` interleaved frame by frame and `channels` set on the result).
+pub fn pascals(values: Vec<f64>, fs: f64) -> jetloop_proto::pb::Samples {
+    jetloop_proto::pb::Samples {
+        sample_rate_hz: fs,
+        data: Some(jetloop_proto::pb::samples::Data::Values(jetloop_proto::pb::SampleValues { values })),
+        calibration: in_pascals(),
+        ..Default::default()
+    }
+}
+
+/// Samples sent as raw little-endian f32 `frames` of `channels` channels at `fs` Hz, already in
+/// pascals (a DAQ's native float dump).
+pub fn f32_pascals(frames: impl Into<bytes::Bytes>, fs: f64, channels: u32) -> jetloop_proto::pb::Samples {
+    jetloop_proto::pb::Samples {
+        sample_rate_hz: fs,
+        channel_count: channels,
+        data: Some(jetloop_proto::pb::samples::Data::Raw(jetloop_proto::pb::RawSamples {
+            data: frames.into(),
+            format: jetloop_proto::pb::SampleFormat::F32Le as i32,
+        })),
+        calibration: in_pascals(),
+        ..Default::default()
+    }
+}
+
+/// An ExtractTones request for `samples` with every option left to the server.
+pub fn tones_request(samples: jetloop_proto::pb::Samples) -> jetloop_proto::pb::ExtractTonesRequest {
+    jetloop_proto::pb::ExtractTonesRequest { samples: Some(samples), ..Default::default() }
+}
+
+/// `n` samples at `fs` Hz of a sinusoid of frequency `f` Hz and amplitude `amplitude`.
+pub fn sine(n: usize, fs: f64, f: f64, amplitude: f64) -> Vec<f64> {
+    (0..n).map(|i| amplitude * (2.0 * std::f64::consts::PI * f * i as f64 / fs).sin()).collect()
 }
 
 /// The explicit "samples already in pascals" calibration (the API assumes no unit).

@@ -2,7 +2,7 @@
 //! microphones and a pair, and its bad inputs. The spectra themselves are checked against
 //! scipy.signal.csd / coherence in tests/python/test_cross_spectra.py.
 
-use jetloop_proto::pb::{self, samples::Data, spectrum_service_client::SpectrumServiceClient};
+use jetloop_proto::pb::{self, spectrum_service_client::SpectrumServiceClient};
 use jetloop_tests::{assert_field, TestServer};
 use std::f64::consts::PI;
 use tonic::Code;
@@ -41,16 +41,7 @@ fn ring(
             distance_m: Some(0.5),
         })
         .collect();
-    (
-        pb::Samples {
-            sample_rate_hz: fs,
-            channel_count: m as u32,
-            data: Some(Data::Values(pb::SampleValues { values })),
-            calibration: jetloop_tests::in_pascals(),
-            ..Default::default()
-        },
-        positions,
-    )
+    (pb::Samples { channel_count: m as u32, ..jetloop_tests::pascals(values, fs) }, positions)
 }
 
 #[tokio::test]

@@ -66,13 +66,18 @@ async fn bad_inputs_name_their_field() {
     };
     let e = t.guided_modes(ask(expanded(6.5, None, None), None)).await.unwrap_err();
     assert_field(&e, Code::InvalidArgument, "jet.fully_expanded.fully_expanded_mach_number");
-    let e = t.guided_modes(ask(pb::guided_modes_request::Source::Jet(inch_nozzle(600.0)), None)).await.unwrap_err();
+    let e = t
+        .guided_modes(ask(pb::guided_modes_request::Source::Jet(inch_nozzle(600.0)), None))
+        .await
+        .unwrap_err();
     assert_field(&e, Code::InvalidArgument, "jet.conditions.operating_point.nozzle_pressure_ratio");
     // Tj / Ta = (5000 K / 1.8) / 20 K = 139: density ratio 0.007, below the solver's 0.01.
     let e = t.guided_modes(ask(expanded(2.0, Some(5000.0), Some(20.0)), None)).await.unwrap_err();
     assert_field(&e, Code::InvalidArgument, "jet.fully_expanded.total_temperature_k");
     assert_field(&e, Code::InvalidArgument, "jet.fully_expanded.ambient_temperature_k");
-    for v in tonic_types::StatusExt::get_error_details(&e).bad_request().expect("details").field_violations.iter() {
+    for v in
+        tonic_types::StatusExt::get_error_details(&e).bad_request().expect("details").field_violations.iter()
+    {
         assert!(!v.field.ends_with(".density_ratio") && v.field != "jet.fully_expanded_mach_number", "{v:?}");
     }
     // A subsonic jet given by conditions is a precondition failure, not an argument error.
@@ -180,23 +185,17 @@ async fn screech_and_sweep_carry_guided_modes_on_request() {
     // Guided sweeps are bounded.
     let e = t
         .sweep_screech(pb::SweepScreechRequest {
-            jet: Some(inch_nozzle(3.0)),
-            variable: pb::SweepVariable::NozzlePressureRatio as i32,
-            values: Some(pb::sweep_screech_request::Values::Range(pb::SweepRange {
-                start: 2.0,
-                stop: 5.0,
-                count: 2001,
-            })),
             options: Some(options),
+            ..jetloop_tests::fixtures::npr_sweep(inch_nozzle(3.0), 2.0, 5.0, 2001)
         })
         .await
         .unwrap_err();
     assert_eq!(e.code(), Code::ResourceExhausted);
 }
 
+/// 200 Pa amplitude: a screech tone of about 137 dB (below the 140 dB caution).
 fn sine(n: usize, fs: f64, f: f64) -> Vec<f64> {
-    // 200 Pa amplitude: a screech tone of about 137 dB (below the 140 dB caution).
-    (0..n).map(|i| 200.0 * (2.0 * PI * f * i as f64 / fs).sin()).collect()
+    jetloop_tests::sine(n, fs, f, 200.0)
 }
 
 #[tokio::test]
@@ -236,12 +235,7 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
     let n = 1 << 17;
     let values: Vec<f64> = sine(n, fs, f_stage).iter().zip(sine(n, fs, f_none)).map(|(a, b)| a + b).collect();
     let req = pb::ExtractTonesRequest {
-        samples: Some(pb::Samples {
-            sample_rate_hz: fs,
-            data: Some(Data::Values(pb::SampleValues { values })),
-            calibration: jetloop_tests::in_pascals(),
-            ..Default::default()
-        }),
+        samples: Some(jetloop_tests::pascals(values, fs)),
         stage_labels: Some(pb::StageLabelOptions {
             jet: Some(inch_nozzle(3.0)),
             modes: Some(modes),
@@ -254,15 +248,7 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
     let Some(Data::Values(v)) = req.samples.as_ref().and_then(|x| x.data.clone()) else { unreachable!() };
     let raw: Vec<u8> = v.values.iter().flat_map(|x| (*x as f32).to_le_bytes()).collect();
     let mut first = req.clone();
-    first.samples = Some(pb::Samples {
-        sample_rate_hz: fs,
-        data: Some(Data::Raw(pb::RawSamples {
-            format: pb::SampleFormat::F32Le as i32,
-            data: Vec::new().into(),
-        })),
-        calibration: jetloop_tests::in_pascals(),
-        ..Default::default()
-    });
+    first.samples = Some(jetloop_tests::f32_pascals(Vec::new(), fs, 0));
     let msgs = vec![
         pb::SampleBlock { request: Some(first.clone()), ..Default::default() },
         pb::SampleBlock { frames: raw.clone().into(), ..Default::default() },
@@ -312,12 +298,7 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
     // Stage labels need a round or planar jet.
     let e = s
         .extract_tones(pb::ExtractTonesRequest {
-            samples: Some(pb::Samples {
-                sample_rate_hz: fs,
-                data: Some(Data::Values(pb::SampleValues { values: sine(4096, fs, 1000.0) })),
-                calibration: jetloop_tests::in_pascals(),
-                ..Default::default()
-            }),
+            samples: Some(jetloop_tests::pascals(sine(4096, fs, 1000.0), fs)),
             stage_labels: Some(pb::StageLabelOptions {
                 jet: None,
                 modes: None,

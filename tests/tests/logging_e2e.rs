@@ -2,8 +2,8 @@
 //! (its own test binary, because it installs the process-wide log subscriber).
 
 use jetloop_proto::pb::{
-    self, gas_dynamics_service_client::GasDynamicsServiceClient, spectrum_service_client::SpectrumServiceClient,
-    tone_service_client::ToneServiceClient,
+    self, gas_dynamics_service_client::GasDynamicsServiceClient,
+    spectrum_service_client::SpectrumServiceClient, tone_service_client::ToneServiceClient,
 };
 use jetloop_tests::TestServer;
 use std::io::Write;
@@ -74,16 +74,8 @@ async fn failures_and_expiries_are_logged_once_with_method_code_and_peer_and_ref
     assert!(failed[0].contains("InvalidArgument") && failed[0].contains("127.0.0.1:"), "{}", failed[0]);
 
     // One expired call: one line.
-    let sweep = pb::SweepScreechRequest {
-        jet: Some(jetloop_tests::fixtures::inch_nozzle(3.0)),
-        variable: pb::SweepVariable::NozzlePressureRatio as i32,
-        values: Some(pb::sweep_screech_request::Values::Range(pb::SweepRange {
-            start: 2.0,
-            stop: 6.0,
-            count: 10_000,
-        })),
-        options: None,
-    };
+    let sweep =
+        jetloop_tests::fixtures::npr_sweep(jetloop_tests::fixtures::inch_nozzle(3.0), 2.0, 6.0, 10_000);
     let mut req = tonic::Request::new(sweep.clone());
     req.set_timeout(Duration::from_millis(5));
     let e = ToneServiceClient::new(ch.clone()).sweep_screech(req).await.unwrap_err();

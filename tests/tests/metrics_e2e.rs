@@ -84,12 +84,7 @@ async fn the_metrics_endpoint_counts_what_happened() {
     let mut spec = SpectrumServiceClient::new(server.channel().await);
     let values: Vec<f64> = (0..4096).map(|i| (i as f64 * 0.3).sin()).collect();
     let req = pb::ExtractTonesRequest {
-        samples: Some(pb::Samples {
-            sample_rate_hz: 48_000.0,
-            data: Some(pb::samples::Data::Values(pb::SampleValues { values })),
-            calibration: jetloop_tests::in_pascals(),
-            ..Default::default()
-        }),
+        samples: Some(jetloop_tests::pascals(values, 48_000.0)),
         welch: Some(pb::WelchOptions {
             segment: Some(pb::welch_options::Segment::SegmentLength(1024)),
             ..Default::default()

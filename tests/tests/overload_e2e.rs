@@ -21,17 +21,7 @@ const CAPACITY: usize = 4;
 
 fn request() -> pb::ExtractTonesRequest {
     let fs = 48_000.0;
-    let values: Vec<f64> =
-        (0..1 << 14).map(|i| (2.0 * std::f64::consts::PI * 3000.0 * f64::from(i) / fs).sin()).collect();
-    pb::ExtractTonesRequest {
-        samples: Some(pb::Samples {
-            sample_rate_hz: fs,
-            data: Some(pb::samples::Data::Values(pb::SampleValues { values })),
-            calibration: jetloop_tests::in_pascals(),
-            ..Default::default()
-        }),
-        ..Default::default()
-    }
+    jetloop_tests::tones_request(jetloop_tests::pascals(jetloop_tests::sine(1 << 14, fs, 3000.0, 1.0), fs))
 }
 
 /// `clients` tasks calling back to back until `stop`; OK answers counted in `ok` and every

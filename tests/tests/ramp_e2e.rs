@@ -51,16 +51,7 @@ fn ramp_recording() -> Vec<u8> {
 
 fn request(data: Vec<u8>) -> pb::AnalyseRampRequest {
     pb::AnalyseRampRequest {
-        samples: Some(pb::Samples {
-            sample_rate_hz: FS,
-            channel_count: 2,
-            data: Some(pb::samples::Data::Raw(pb::RawSamples {
-                data: data.into(),
-                format: pb::SampleFormat::F32Le as i32,
-            })),
-            calibration: jetloop_tests::in_pascals(),
-            ..Default::default()
-        }),
+        samples: Some(jetloop_tests::f32_pascals(data, FS, 2)),
         control: Some(pb::ControlChannel {
             channel: 1,
             quantity: pb::ControlQuantity::ReservoirGaugePressurePa as i32,

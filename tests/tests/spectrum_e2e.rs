@@ -9,22 +9,7 @@ use jetloop_tests::{assert_field, TestServer};
 use std::f64::consts::PI;
 use tonic::Code;
 
-fn tone(n: usize, fs: f64, f: f64, amp: f64) -> Vec<f64> {
-    (0..n).map(|i| amp * (2.0 * PI * f * i as f64 / fs).sin()).collect()
-}
-
-fn samples(values: Vec<f64>, fs: f64) -> pb::Samples {
-    pb::Samples {
-        sample_rate_hz: fs,
-        data: Some(Data::Values(pb::SampleValues { values })),
-        calibration: jetloop_tests::in_pascals(),
-        ..Default::default()
-    }
-}
-
-fn request(s: pb::Samples) -> pb::ExtractTonesRequest {
-    pb::ExtractTonesRequest { samples: Some(s), ..Default::default() }
-}
+use jetloop_tests::{pascals as samples, sine as tone, tones_request as request};
 
 #[tokio::test]
 async fn tones_levels_bands_and_caution() {
@@ -345,16 +330,9 @@ async fn every_default_applied_to_a_tone_analysis_is_listed() {
     let server = TestServer::start().await;
     let mut c = SpectrumServiceClient::new(server.channel().await);
     let fs = 48_000.0;
-    let values: Vec<f64> = (0..1 << 15).map(|i| (2.0 * PI * 1000.0 * i as f64 / fs).sin()).collect();
     let req = pb::ExtractTonesRequest {
-        samples: Some(pb::Samples {
-            sample_rate_hz: fs,
-            data: Some(Data::Values(pb::SampleValues { values })),
-            calibration: jetloop_tests::in_pascals(),
-            ..Default::default()
-        }),
         tones: Some(pb::ToneOptions { max_tones: Some(7), ..Default::default() }),
-        ..Default::default()
+        ..request(samples(tone(1 << 15, fs, 1000.0, 1.0), fs))
     };
     let r = c.extract_tones(req).await.unwrap().into_inner();
     let applied = r.provenance.expect("provenance").defaults_applied;

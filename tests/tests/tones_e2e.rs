@@ -119,12 +119,7 @@ async fn sweeps_keep_subsonic_points_and_enforce_the_limit() {
     let server = TestServer::start().await;
     let mut t = ToneServiceClient::new(server.channel().await);
     let r = t
-        .sweep_screech(pb::SweepScreechRequest {
-            jet: Some(conditions(3.0)),
-            variable: pb::SweepVariable::NozzlePressureRatio as i32,
-            values: Some(Values::Range(pb::SweepRange { start: 1.5, stop: 5.0, count: 36 })),
-            options: None,
-        })
+        .sweep_screech(jetloop_tests::fixtures::npr_sweep(conditions(3.0), 1.5, 5.0, 36))
         .await
         .unwrap()
         .into_inner();
@@ -156,12 +151,7 @@ async fn sweeps_keep_subsonic_points_and_enforce_the_limit() {
     }
 
     let e = t
-        .sweep_screech(pb::SweepScreechRequest {
-            jet: Some(conditions(3.0)),
-            variable: pb::SweepVariable::NozzlePressureRatio as i32,
-            values: Some(Values::Range(pb::SweepRange { start: 2.0, stop: 5.0, count: 10_001 })),
-            options: None,
-        })
+        .sweep_screech(jetloop_tests::fixtures::npr_sweep(conditions(3.0), 2.0, 5.0, 10_001))
         .await
         .unwrap_err();
     assert_field(&e, Code::ResourceExhausted, "range.count");
@@ -304,12 +294,7 @@ async fn excess_concurrent_calls_are_refused_with_unavailable_and_a_retry_hint()
     let limits = jetloop_server::config::Limits { max_concurrent_requests: 1, ..Default::default() };
     let server = TestServer::start_with(limits).await;
     let ch = server.channel().await;
-    let req = pb::SweepScreechRequest {
-        jet: Some(conditions(3.0)),
-        variable: pb::SweepVariable::NozzlePressureRatio as i32,
-        values: Some(Values::Range(pb::SweepRange { start: 2.0, stop: 6.0, count: 10_000 })),
-        options: None,
-    };
+    let req = jetloop_tests::fixtures::npr_sweep(conditions(3.0), 2.0, 6.0, 10_000);
     let calls: Vec<_> = (0..8)
         .map(|_| {
             let mut t = ToneServiceClient::new(ch.clone());
@@ -376,12 +361,7 @@ async fn excess_concurrent_calls_are_refused_with_unavailable_and_a_retry_hint()
 async fn a_client_deadline_is_answered_with_deadline_exceeded() {
     let server = TestServer::start().await;
     let mut t = ToneServiceClient::new(server.channel().await);
-    let sweep = || pb::SweepScreechRequest {
-        jet: Some(conditions(3.0)),
-        variable: pb::SweepVariable::NozzlePressureRatio as i32,
-        values: Some(Values::Range(pb::SweepRange { start: 2.0, stop: 6.0, count: 10_000 })),
-        options: None,
-    };
+    let sweep = || jetloop_tests::fixtures::npr_sweep(conditions(3.0), 2.0, 6.0, 10_000);
     // A block stream that never ends, with a 500 ms deadline: the server answers
     // DEADLINE_EXCEEDED just before the deadline (tonic's client would otherwise give up
     // locally with CANCELLED).
