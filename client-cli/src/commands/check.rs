@@ -17,8 +17,12 @@
 //! `{dir}` in an argument stands for the folder of the case file (for recordings kept beside
 //! it).
 
-use crate::output::{Report, Table, Val};
-use crate::{Ctx, Failure, Run};
+use crate::commands::Run;
+use crate::connect::Ctx;
+use crate::failure::Failure;
+use crate::render::report::Report;
+use crate::render::report::Table;
+use crate::render::report::Val;
 use clap::Args;
 use serde_json::Value;
 use std::path::PathBuf;
@@ -33,7 +37,7 @@ pub struct CheckCmd {
 
 /// One expected value.
 #[derive(Debug, Clone, PartialEq)]
-struct Expect {
+pub(crate) struct Expect {
     key: String,
     value: f64,
     tolerance: Tolerance,
@@ -41,7 +45,7 @@ struct Expect {
 }
 
 #[derive(Debug, Clone, Copy, PartialEq)]
-enum Tolerance {
+pub(crate) enum Tolerance {
     Abs(f64),
     Rel(f64),
 }
@@ -64,14 +68,14 @@ impl Tolerance {
 
 /// One case: a command line and its expected values.
 #[derive(Debug, Clone, PartialEq)]
-struct Case {
+pub(crate) struct Case {
     file: String,
     name: String,
     args: Vec<String>,
     expects: Vec<Expect>,
 }
 
-fn parse_cases(file: &str, text: &str) -> Result<Vec<Case>, Failure> {
+pub(crate) fn parse_cases(file: &str, text: &str) -> Result<Vec<Case>, Failure> {
     let dir = std::path::Path::new(file).parent().map_or(".".to_string(), |d| {
         if d.as_os_str().is_empty() {
             ".".to_string()
@@ -127,7 +131,7 @@ fn parse_cases(file: &str, text: &str) -> Result<Vec<Case>, Failure> {
 }
 
 /// The value at `path` (`a.b`, `a[2].c`) in `v`.
-fn lookup<'a>(v: &'a Value, path: &str) -> Option<&'a Value> {
+pub(crate) fn lookup<'a>(v: &'a Value, path: &str) -> Option<&'a Value> {
     let mut cur = v;
     for part in path.split('.') {
         let (name, indices) = match part.find('[') {
@@ -145,13 +149,13 @@ fn lookup<'a>(v: &'a Value, path: &str) -> Option<&'a Value> {
 }
 
 /// The outcome of one expected value.
-struct Outcome {
+pub(crate) struct Outcome {
     got: Option<f64>,
     pass: bool,
     note: String,
 }
 
-fn judge(answer: &Result<Value, String>, e: &Expect) -> Outcome {
+pub(crate) fn judge(answer: &Result<Value, String>, e: &Expect) -> Outcome {
     match answer {
         Err(m) => Outcome { got: None, pass: false, note: m.clone() },
         Ok(v) => match lookup(v, &e.key).and_then(Value::as_f64) {
@@ -188,7 +192,7 @@ impl Run for CheckCmd {
         for case in &cases {
             let answer = match crate::run_args(ctx, &case.args).await {
                 Ok(r) => Ok(r.to_json()),
-                Err(f) => Err(crate::failure_text(&f)),
+                Err(f) => Err(crate::failure::failure_text(&f)),
             };
             for e in &case.expects {
                 let o = judge(&answer, e);

@@ -10,27 +10,36 @@
 //! the sweep go to FitStages: the summary says whether the fitted loop orders are the ones
 //! the scenario was built with. Plots and the points go to the output folder.
 
-use crate::output::{Report, Table, Val};
-use crate::{Ctx, Failure, Run};
+use crate::commands::Run;
+use crate::connect::Ctx;
+use crate::failure::Failure;
+use crate::render::report::Report;
+use crate::render::report::Table;
+use crate::render::report::Val;
 use clap::Args;
-use jetloop_proto::pb::{
-    self, spectrum_service_client::SpectrumServiceClient, staging_service_client::StagingServiceClient,
-    tone_service_client::ToneServiceClient,
-};
+use jetloop_proto::pb;
+use jetloop_proto::pb::spectrum_service_client::SpectrumServiceClient;
+use jetloop_proto::pb::staging_service_client::StagingServiceClient;
+use jetloop_proto::pb::tone_service_client::ToneServiceClient;
 use std::path::PathBuf;
 
 /// Convection ratio Uc/Uj of each stage (invented).
-const STAGES: [f64; 3] = [0.72, 0.58, 0.68];
+pub(crate) const STAGES: [f64; 3] = [0.72, 0.58, 0.68];
+
 /// Loop order and source cell of every stage.
-const ORDER: u32 = 4;
+pub(crate) const ORDER: u32 = 4;
+
 /// NPR at which the tone moves up a stage on the way up.
-const UP: [f64; 2] = [3.125, 3.825];
+pub(crate) const UP: [f64; 2] = [3.125, 3.825];
+
 /// NPR at which the tone moves down a stage on the way down.
-const DOWN: [f64; 2] = [2.875, 3.625];
+pub(crate) const DOWN: [f64; 2] = [2.875, 3.625];
+
 /// Nozzle exit diameter, m.
-const DIAMETER_M: f64 = 0.0254;
+pub(crate) const DIAMETER_M: f64 = 0.0254;
+
 /// Sample rate of the synthesized microphone, Hz.
-const FS: f64 = 51_200.0;
+pub(crate) const FS: f64 = 51_200.0;
 
 /// `jetloop demo`.
 #[derive(Debug, Args)]
@@ -42,7 +51,7 @@ pub struct DemoCmd {
     small: bool,
 }
 
-fn jet() -> pb::JetInput {
+pub(crate) fn jet() -> pb::JetInput {
     pb::JetInput {
         source: Some(pb::jet_input::Source::Conditions(pb::JetConditions {
             nozzle: Some(pb::Nozzle {
@@ -61,7 +70,7 @@ fn jet() -> pb::JetInput {
 
 /// One second of a microphone at `f` Hz: tone at 130 dB re 20 uPa, second harmonic 9 dB
 /// below, white noise at 110 dB overall; `seconds` long, seeded.
-fn microphone(f: f64, seconds: f64, seed: u64) -> Vec<u8> {
+pub(crate) fn microphone(f: f64, seconds: f64, seed: u64) -> Vec<u8> {
     let n = (seconds * FS) as usize;
     let amp = |db: f64| 20e-6 * 10f64.powf(db / 20.0) * 2f64.sqrt();
     let (a1, a2, sigma) = (amp(130.0), amp(121.0), 20e-6 * 10f64.powf(110.0 / 20.0));
@@ -83,14 +92,14 @@ fn microphone(f: f64, seconds: f64, seed: u64) -> Vec<u8> {
     out
 }
 
-fn write(path: &std::path::Path, text: &str) -> Result<(), Failure> {
+pub(crate) fn write(path: &std::path::Path, text: &str) -> Result<(), Failure> {
     std::fs::write(path, text).map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))
 }
 
 /// A plot as `name.svg` and `name.png` in `dir`.
-fn plot(dir: &std::path::Path, name: &str, svg: &str) -> Result<(), Failure> {
+pub(crate) fn plot(dir: &std::path::Path, name: &str, svg: &str) -> Result<(), Failure> {
     write(&dir.join(format!("{name}.svg")), svg)?;
-    crate::plot::write_plot(&dir.join(format!("{name}.png")), svg).map_err(Failure::Usage)
+    crate::render::plot::write_plot(&dir.join(format!("{name}.png")), svg).map_err(Failure::Usage)
 }
 
 impl Run for DemoCmd {
@@ -226,13 +235,21 @@ impl Run for DemoCmd {
             ));
         }
         write(&self.out.join("points.csv"), &csv)?;
-        plot(&self.out, "stages", &crate::staging::svg(&points, &fit, "nozzle pressure ratio"))?;
+        plot(
+            &self.out,
+            "stages",
+            &crate::render::charts::stages_plot(&points, &fit, "nozzle pressure ratio"),
+        )?;
         if let Some(m) = &map {
-            plot(&self.out, "screech-map", &crate::tones::sweep_plot(m, "nozzle pressure ratio"))?;
+            plot(&self.out, "screech-map", &crate::render::charts::sweep_plot(m, "nozzle pressure ratio"))?;
         }
         if let Some((p, t)) = &first_psd {
             let label = format!("NPR {:.2}", grid[0]);
-            plot(&self.out, "spectrum", &crate::spectrum::svg_plot(&label, &[(label.clone(), p, t)], false))?;
+            plot(
+                &self.out,
+                "spectrum",
+                &crate::render::charts::svg_plot(&label, &[(label.clone(), p, t)], false),
+            )?;
         }
         let mut t = Table::new("stages", "Stages found against the scenario")
             .col("stage", "stage")

@@ -1,12 +1,12 @@
 //! SVG plots: one small canvas with axes, grid, labelled ticks, series and a legend, used by
 //! every command that draws (spectra, stage maps).
 
-use std::fmt::Write as _;
+use std::fmt::Write;
 use std::path::Path;
 
 /// The font every plot is drawn with, built into the binary so a machine without fonts draws
 /// the same PNG (DejaVu Sans; Bitstream Vera licence, see assets/DejaVuSans-LICENSE.txt).
-static FONT: &[u8] = include_bytes!("../assets/DejaVuSans.ttf");
+pub(crate) static FONT: &[u8] = include_bytes!("../../assets/DejaVuSans.ttf");
 
 /// Rasterizes an SVG document drawn by [`Plot`] to PNG bytes at its own size.
 ///
@@ -58,7 +58,7 @@ pub struct Axis {
     pub max: f64,
     /// Scale.
     pub scale: Scale,
-    /// Label with unit, e.g. "frequency [Hz]".
+    /// Label with unit, e.g. "frequency \[Hz\]".
     pub label: String,
 }
 
@@ -117,7 +117,7 @@ impl Axis {
 }
 
 /// The 1, 2 or 5 times a power of ten nearest above `raw`.
-fn nice_step(raw: f64) -> f64 {
+pub(crate) fn nice_step(raw: f64) -> f64 {
     if !raw.is_finite() || raw <= 0.0 {
         return 1.0;
     }
@@ -126,7 +126,7 @@ fn nice_step(raw: f64) -> f64 {
 }
 
 /// A tick label with as many decimals as the step needs, in plain notation.
-fn number(v: f64, step: f64) -> String {
+pub(crate) fn number(v: f64, step: f64) -> String {
     let decimals = if step >= 1.0 { 0 } else { (-step.log10().floor()) as usize };
     format!("{v:.decimals$}")
 }

@@ -1,7 +1,9 @@
 //! `jetloop synth`: demo recordings of an imagined jet rig, written without a server.
 
-use crate::output::Report;
-use crate::{Ctx, Failure, Run};
+use crate::commands::Run;
+use crate::connect::Ctx;
+use crate::failure::Failure;
+use crate::render::report::Report;
 use clap::Args;
 use std::path::PathBuf;
 
@@ -87,7 +89,7 @@ pub enum PatternArg {
 
 /// The kinds of file `synth` writes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum OutKind {
+pub(crate) enum OutKind {
     Wav,
     Csv,
     RawI16,
@@ -116,17 +118,19 @@ impl OutKind {
 }
 
 /// Ambient pressure of the demo ramp, Pa (ICAO standard atmosphere, sea level).
-const AMBIENT_PA: f64 = 101_325.0;
+pub(crate) const AMBIENT_PA: f64 = 101_325.0;
+
 /// The demo ramp's gauge transducer: pascals per volt (0-10 V over 0-1 MPa).
-const PA_PER_VOLT: f64 = 1e5;
+pub(crate) const PA_PER_VOLT: f64 = 1e5;
+
 /// Full scale of the transducer channel, V (WAV 1.0 and int16 32768 counts stand for it).
-const CONTROL_FULL_SCALE_V: f64 = 10.0;
+pub(crate) const CONTROL_FULL_SCALE_V: f64 = 10.0;
 
 /// Powell's fundamental of a cold round convergent jet at `npr`, up to a constant (nozzle
 /// diameter 1): Mj from isentropic expansion (NACA Report 1135), Dj from the area ratio,
 /// Ls = pi sqrt(Mj^2 - 1) Dj / 2.405 (vortex sheet), Uc = 0.7 Uj, f = Uc / (Ls (1 + Uc/a));
 /// None while the jet is not supersonic. For demo data only.
-fn powell_shape(npr: f64) -> Option<f64> {
+pub(crate) fn powell_shape(npr: f64) -> Option<f64> {
     let (g, r, t0) = (1.4f64, 287.05, 288.15);
     let m2 = 2.0 / (g - 1.0) * (npr.powf((g - 1.0) / g) - 1.0);
     if m2 <= 1.0 + 1e-6 {
@@ -142,7 +146,7 @@ fn powell_shape(npr: f64) -> Option<f64> {
     Some(uc / (ls * (1.0 + uc / (g * r * t0).sqrt())))
 }
 
-fn rms_of(db: f64) -> f64 {
+pub(crate) fn rms_of(db: f64) -> f64 {
     20e-6 * 10f64.powf(db / 20.0)
 }
 

@@ -1,12 +1,18 @@
 //! `jetloop ramp`: tones against NPR from a continuous ramp (a recording with an NPR or
 //! reservoir-pressure channel beside the microphones), with the points written for `fit`.
 
-use crate::output::{Report, Table, Val};
-use crate::readers::InputArgs;
-use crate::spectrum::WelchArgs;
-use crate::{Ctx, Failure, Run};
-use clap::{Args, ValueEnum};
-use jetloop_proto::pb::{self, spectrum_service_client::SpectrumServiceClient};
+use crate::args::input::InputArgs;
+use crate::args::spectral::WelchArgs;
+use crate::commands::Run;
+use crate::connect::Ctx;
+use crate::failure::Failure;
+use crate::render::report::Report;
+use crate::render::report::Table;
+use crate::render::report::Val;
+use clap::Args;
+use clap::ValueEnum;
+use jetloop_proto::pb;
+use jetloop_proto::pb::spectrum_service_client::SpectrumServiceClient;
 use std::path::PathBuf;
 
 /// What the control channel measures once scaled.

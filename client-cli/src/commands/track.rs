@@ -1,12 +1,17 @@
 //! `jetloop track`: a recording streamed to the live tracking RPC (TrackTones), as fast as
 //! possible or at its own pace, with events printed as they come.
 
-use crate::output::{Report, Table, Val};
-use crate::readers::InputArgs;
-use crate::spectrum::WelchArgs;
-use crate::{Ctx, Failure, Run};
+use crate::args::input::InputArgs;
+use crate::args::spectral::WelchArgs;
+use crate::commands::Run;
+use crate::connect::Ctx;
+use crate::failure::Failure;
+use crate::render::report::Report;
+use crate::render::report::Table;
+use crate::render::report::Val;
 use clap::Args;
-use jetloop_proto::pb::{self, spectrum_service_client::SpectrumServiceClient};
+use jetloop_proto::pb;
+use jetloop_proto::pb::spectrum_service_client::SpectrumServiceClient;
 use std::time::Duration;
 
 /// `jetloop track`.
@@ -50,12 +55,12 @@ pub struct TrackCmd {
 }
 
 /// The mode (or pair symmetry) of an update's strongest tone, in words.
-fn mode_text(x: &pb::CrossTone) -> Option<String> {
+pub(crate) fn mode_text(x: &pb::CrossTone) -> Option<String> {
     if let Some(m) = &x.modes {
         return Some(format!(
             "m = {} {} ({:.0} % of the energy)",
             m.dominant_order,
-            crate::spectrum::pattern_name(m.pattern),
+            crate::render::rows::pattern_name(m.pattern),
             100.0 * m.dominant_share
         ));
     }
@@ -68,7 +73,7 @@ fn mode_text(x: &pb::CrossTone) -> Option<String> {
     })
 }
 
-fn kind_name(k: i32) -> &'static str {
+pub(crate) fn kind_name(k: i32) -> &'static str {
     match pb::TrackEventKind::try_from(k) {
         Ok(pb::TrackEventKind::Appeared) => "appeared",
         Ok(pb::TrackEventKind::Vanished) => "vanished",
@@ -79,7 +84,7 @@ fn kind_name(k: i32) -> &'static str {
 
 /// Interleaved raw frames of the recording: its own bytes when it is raw and interleaved, else
 /// the values as f32.
-fn frames_of(s: &pb::Samples) -> Result<(i32, usize, Vec<u8>), Failure> {
+pub(crate) fn frames_of(s: &pb::Samples) -> Result<(i32, usize, Vec<u8>), Failure> {
     let ch = s.channel_count.max(1) as usize;
     let planar = s.layout == pb::ChannelLayout::Planar as i32;
     match &s.data {
@@ -131,7 +136,7 @@ impl Run for TrackCmd {
                 update_interval_s: a.update_interval_s,
                 jump_fraction: a.jump_fraction,
                 reference_channel: a.reference_channel,
-                positions: crate::spectrum::positions(&a.azimuths_deg),
+                positions: crate::args::spectral::positions(&a.azimuths_deg),
             })),
         };
         if !(a.block_s > 0.0 && a.block_s <= 10.0) {

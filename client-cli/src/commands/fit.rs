@@ -1,11 +1,17 @@
-//! `jetloop fit`: stage segmentation and loop fits of a measured sweep from a CSV file.
+//! `jetloop fit`.
 
-use crate::gas::JetArgs;
-use crate::output::{Report, Table, Val};
-use crate::plot::{Axis, Marker, Plot, COLOURS};
-use crate::{Ctx, Failure, Run};
-use clap::{Args, ValueEnum};
-use jetloop_proto::pb::{self, staging_service_client::StagingServiceClient};
+use crate::args::jet::JetArgs;
+use crate::commands::Run;
+use crate::connect::Ctx;
+use crate::failure::Failure;
+use crate::render::charts::stages_plot;
+use crate::render::report::Report;
+use crate::render::report::Table;
+use crate::render::report::Val;
+use clap::Args;
+use clap::ValueEnum;
+use jetloop_proto::pb;
+use jetloop_proto::pb::staging_service_client::StagingServiceClient;
 use std::path::PathBuf;
 
 /// Meaning of the x column.
@@ -68,7 +74,7 @@ pub struct FitCmd {
     spacing_factor: Option<f64>,
 }
 
-fn direction(s: &str) -> Option<pb::SweepDirection> {
+pub(crate) fn direction(s: &str) -> Option<pb::SweepDirection> {
     match s.trim().to_ascii_lowercase().as_str() {
         "up" | "increasing" | "+" | "inc" => Some(pb::SweepDirection::Increasing),
         "down" | "decreasing" | "-" | "dec" => Some(pb::SweepDirection::Decreasing),
@@ -77,7 +83,7 @@ fn direction(s: &str) -> Option<pb::SweepDirection> {
     }
 }
 
-fn read_points(path: &PathBuf) -> Result<Vec<pb::MeasuredTone>, Failure> {
+pub(crate) fn read_points(path: &PathBuf) -> Result<Vec<pb::MeasuredTone>, Failure> {
     let text = std::fs::read_to_string(path)
         .map_err(|e| Failure::Usage(format!("cannot read {}: {e}", path.display())))?;
     let mut out = Vec::new();
@@ -111,10 +117,10 @@ fn read_points(path: &PathBuf) -> Result<Vec<pb::MeasuredTone>, Failure> {
     Ok(out)
 }
 
-fn param_text(p: &pb::FittedParameter) -> String {
+pub(crate) fn param_text(p: &pb::FittedParameter) -> String {
     let mut s = match p.standard_error {
-        Some(se) => crate::output::fmt_uncertain(p.value, se),
-        None => crate::output::fmt_plain(p.value),
+        Some(se) => crate::render::report::fmt_uncertain(p.value, se),
+        None => crate::render::report::fmt_plain(p.value),
     };
     if p.fixed {
         s.push_str(" (fixed)");
@@ -126,7 +132,7 @@ fn param_text(p: &pb::FittedParameter) -> String {
 }
 
 /// The loop fit's verdict against the stated noise, with its reduced chi^2.
-fn verdict_text(s: &pb::StageResult) -> Option<Val> {
+pub(crate) fn verdict_text(s: &pb::StageResult) -> Option<Val> {
     let chi = s.reduced_chi_square.map(|c| format!(" (chi^2/dof {c:.2})")).unwrap_or_default();
     match pb::FitVerdict::try_from(s.fit_verdict) {
         Ok(pb::FitVerdict::Consistent) => Some(Val::Text(format!("ok{chi}"))),
@@ -136,7 +142,7 @@ fn verdict_text(s: &pb::StageResult) -> Option<Val> {
     }
 }
 
-fn find<'a>(ps: &'a [pb::FittedParameter], name: &str) -> Option<&'a pb::FittedParameter> {
+pub(crate) fn find<'a>(ps: &'a [pb::FittedParameter], name: &str) -> Option<&'a pb::FittedParameter> {
     ps.iter().find(|p| p.name == name)
 }
 
@@ -196,7 +202,7 @@ impl Run for FitCmd {
         for s in &r.stages {
             let text = |n: &str| find(&s.parameters, n).map(|p| Val::Text(param_text(p)));
             let label = s.best_stage.as_ref().map(|b| {
-                let id = b.mode.as_ref().map(crate::tones::mode_label).unwrap_or_default();
+                let id = b.mode.as_ref().map(crate::render::rows::mode_label).unwrap_or_default();
                 let letters = if b.customary_stage.is_empty() {
                     String::new()
                 } else {
@@ -305,72 +311,10 @@ impl Run for FitCmd {
                 ControlArg::Reflector => "reflector distance [m]",
                 ControlArg::Plain => "x",
             };
-            crate::plot::write_plot(path, &svg(&points, &r, x_label)).map_err(Failure::Usage)?;
+            crate::render::plot::write_plot(path, &stages_plot(&points, &r, x_label))
+                .map_err(Failure::Usage)?;
             eprintln!("wrote stage plot {}", path.display());
         }
         Ok(rep.provenance(r.provenance))
     }
-}
-
-/// Frequency against x, one colour per stage, up-sweep points as upward and down-sweep points
-/// as downward triangles (hysteresis shows as two colours at one x), model frequencies as
-/// crosses, jumps as dashed segments.
-pub(crate) fn svg(points: &[pb::MeasuredTone], r: &pb::FitStagesResponse, x_label: &str) -> String {
-    let xs = || points.iter().map(|p| p.x);
-    let fs =
-        || points.iter().map(|p| p.frequency_hz).chain(r.points.iter().filter_map(|p| p.model_frequency_hz));
-    let (x0, x1) = (xs().fold(f64::MAX, f64::min), xs().fold(f64::MIN, f64::max));
-    let (f0, f1) = (fs().fold(f64::MAX, f64::min), fs().fold(f64::MIN, f64::max));
-    let mut plot = Plot::new(
-        "Tone frequency by stage",
-        900.0,
-        520.0,
-        Axis::linear(x0, x1, x_label),
-        Axis::linear(f0 * 0.97, f1 * 1.03, "frequency [Hz]"),
-    );
-    for st in &r.stages {
-        let c = COLOURS[st.stage as usize % COLOURS.len()];
-        let label = match st.loop_order {
-            Some(n) => format!("stage {} (n = {n})", st.stage),
-            None => format!("stage {}", st.stage),
-        };
-        for (dir, marker) in [
-            (pb::SweepDirection::Increasing, Marker::Up),
-            (pb::SweepDirection::Decreasing, Marker::Down),
-            (pb::SweepDirection::Unspecified, Marker::Dot),
-        ] {
-            let pts: Vec<(f64, f64)> = points
-                .iter()
-                .zip(&r.points)
-                .filter(|(_, res)| res.stage == st.stage && res.direction == dir as i32)
-                .map(|(p, _)| (p.x, p.frequency_hz))
-                .collect();
-            if !pts.is_empty() {
-                let dir_name = match dir {
-                    pb::SweepDirection::Increasing => ", rising x",
-                    pb::SweepDirection::Decreasing => ", falling x",
-                    pb::SweepDirection::Unspecified => "",
-                };
-                plot.markers(&pts, c, marker, Some(&format!("{label}{dir_name}")));
-            }
-        }
-    }
-    let model: Vec<(f64, f64)> = points
-        .iter()
-        .zip(&r.points)
-        .filter_map(|(p, res)| res.model_frequency_hz.map(|m| (p.x, m)))
-        .collect();
-    if !model.is_empty() {
-        plot.markers(&model, "#333", Marker::Cross, Some("loop model"));
-    }
-    for (k, j) in r.jumps.iter().enumerate() {
-        let label = (k == 0).then_some("jumps");
-        plot.line(
-            &[(j.x_before, j.frequency_before_hz), (j.x_after, j.frequency_after_hz)],
-            "#555",
-            true,
-            label,
-        );
-    }
-    plot.finish()
 }

@@ -2,7 +2,9 @@
 //! description of the result.
 
 use jetloop_proto::pb;
-use serde_json::{json, Map, Value};
+use serde_json::json;
+use serde_json::Map;
+use serde_json::Value;
 
 /// A value in a report.
 #[derive(Debug, Clone, PartialEq)]
@@ -137,7 +139,7 @@ impl Table {
     }
 }
 
-fn val_json(v: &Val) -> Value {
+pub(crate) fn val_json(v: &Val) -> Value {
     match v {
         Val::Num(x) | Val::Plain(x) => json!(x),
         Val::Int(x) => json!(x),

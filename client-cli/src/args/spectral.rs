@@ -1,0 +1,153 @@
+//! Argument groups of the spectral commands: Welch options, level corrections (response
+//! curve, distance, air absorption) and microphone positions on a ring.
+
+use crate::failure::Failure;
+use clap::Args;
+use clap::ValueEnum;
+use jetloop_proto::pb;
+use std::path::PathBuf;
+
+/// Windows on the command line.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum WindowArg {
+    /// Hann (default).
+    Hann,
+    /// Hamming.
+    Hamming,
+    /// 4-term Blackman-Harris.
+    BlackmanHarris,
+    /// 5-term flat-top.
+    FlatTop,
+}
+
+/// Welch options.
+#[derive(Debug, Args)]
+pub struct WelchArgs {
+    /// Window (server default Hann).
+    #[arg(long, value_enum)]
+    pub(crate) window: Option<WindowArg>,
+    /// Segment length in samples.
+    #[arg(long, conflicts_with = "resolution_hz")]
+    pub(crate) segment: Option<u32>,
+    /// Wanted frequency resolution in Hz (the segment is the next power of two).
+    #[arg(long)]
+    pub(crate) resolution_hz: Option<f64>,
+    /// Overlap fraction (server default 0.5).
+    #[arg(long)]
+    pub(crate) overlap: Option<f64>,
+}
+
+impl WelchArgs {
+    pub fn options(&self) -> pb::WelchOptions {
+        use pb::welch_options::Segment;
+        pb::WelchOptions {
+            window: match self.window {
+                None => pb::WindowKind::Unspecified,
+                Some(WindowArg::Hann) => pb::WindowKind::Hann,
+                Some(WindowArg::Hamming) => pb::WindowKind::Hamming,
+                Some(WindowArg::BlackmanHarris) => pb::WindowKind::BlackmanHarris,
+                Some(WindowArg::FlatTop) => pb::WindowKind::FlatTop,
+            } as i32,
+            segment: match (self.segment, self.resolution_hz) {
+                (Some(n), _) => Some(Segment::SegmentLength(n)),
+                (None, Some(r)) => Some(Segment::ResolutionHz(r)),
+                _ => None,
+            },
+            overlap_fraction: self.overlap,
+            detrend: 0,
+        }
+    }
+}
+
+/// Level corrections: microphone response curves, distance and atmospheric absorption.
+#[derive(Debug, Args)]
+pub struct CorrectionArgs {
+    /// A response correction curve applied to every channel (free-field or pressure response,
+    /// protective grid, ...): CSV with a header row and columns frequency_hz,correction_db; the
+    /// correction is added to the measured level. Repeat for several curves (they add up).
+    #[arg(long)]
+    pub(crate) response_curve: Vec<PathBuf>,
+    /// Microphone distance from the source in m: one value for every channel, or one per
+    /// channel, comma separated (with --reference-distance-m).
+    #[arg(long, value_delimiter = ',', requires = "reference_distance_m")]
+    pub(crate) mic_distance_m: Vec<f64>,
+    /// Correct levels to this distance in m by spherical spreading 20 log10(r / r_ref).
+    #[arg(long, requires = "mic_distance_m")]
+    pub(crate) reference_distance_m: Option<f64>,
+    /// Also correct for atmospheric absorption (ISO 9613-1) over r - r_ref: air temperature
+    /// in K (with --relative-humidity-percent).
+    #[arg(long, requires_all = ["relative_humidity_percent", "reference_distance_m"])]
+    pub(crate) air_temperature_k: Option<f64>,
+    /// Relative humidity in percent, for the absorption.
+    #[arg(long, requires = "air_temperature_k")]
+    pub(crate) relative_humidity_percent: Option<f64>,
+    /// Atmospheric pressure in Pa, for the absorption (server default 101325).
+    #[arg(long, requires = "air_temperature_k")]
+    pub(crate) air_pressure_pa: Option<f64>,
+}
+
+impl CorrectionArgs {
+    /// The corrections message, or none when no option was given.
+    pub fn corrections(&self) -> Result<Option<pb::LevelCorrections>, Failure> {
+        if self.response_curve.is_empty() && self.reference_distance_m.is_none() {
+            return Ok(None);
+        }
+        let curves = self.response_curve.iter().map(|p| read_curve(p)).collect::<Result<Vec<_>, _>>()?;
+        let distances: Vec<Option<f64>> = if self.mic_distance_m.is_empty() {
+            vec![None]
+        } else {
+            self.mic_distance_m.iter().map(|d| Some(*d)).collect()
+        };
+        Ok(Some(pb::LevelCorrections {
+            channels: distances
+                .into_iter()
+                .map(|distance_m| pb::ChannelCorrection { curves: curves.clone(), distance_m })
+                .collect(),
+            reference_distance_m: self.reference_distance_m,
+            atmosphere: self.air_temperature_k.map(|t| pb::Atmosphere {
+                temperature_k: t,
+                relative_humidity_percent: self.relative_humidity_percent.unwrap_or_default(),
+                pressure_pa: self.air_pressure_pa,
+            }),
+        }))
+    }
+}
+
+/// Reads a response curve CSV (header row, then frequency_hz,correction_db).
+pub(crate) fn read_curve(path: &std::path::Path) -> Result<pb::ResponseCurve, Failure> {
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| Failure::Usage(format!("cannot read {}: {e}", path.display())))?;
+    let (mut frequencies_hz, mut corrections_db) = (Vec::new(), Vec::new());
+    let mut header = false;
+    for (i, line) in text.lines().enumerate() {
+        let line = line.trim();
+        if line.is_empty() || line.starts_with('#') {
+            continue;
+        }
+        let cells: Vec<&str> = line.split(',').map(str::trim).collect();
+        match (cells.first().map(|c| c.parse::<f64>()), cells.get(1).map(|c| c.parse::<f64>())) {
+            (Some(Ok(f)), Some(Ok(db))) if cells.len() == 2 => {
+                frequencies_hz.push(f);
+                corrections_db.push(db);
+            }
+            _ if frequencies_hz.is_empty() && !header => header = true, // the header row
+            _ => {
+                return Err(Failure::Usage(format!(
+                    "{} line {}: expected frequency_hz,correction_db",
+                    path.display(),
+                    i + 1
+                )))
+            }
+        }
+    }
+    let name = path.file_stem().and_then(|s| s.to_str()).unwrap_or("curve").chars().take(64).collect();
+    Ok(pb::ResponseCurve { name, frequencies_hz, corrections_db })
+}
+
+/// Microphone positions from azimuths alone (degrees).
+pub(crate) fn positions(azimuths_deg: &[f64]) -> Vec<pb::MicrophonePosition> {
+    azimuths_deg
+        .iter()
+        .map(|&azimuth_deg| pb::MicrophonePosition { azimuth_deg, polar_angle_deg: None, distance_m: None })
+        .collect()
+}
