@@ -194,3 +194,49 @@ async fn main() -> ExitCode {
     let json = cli.json;
     failure::finish(run(cli).await, json)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use clap::CommandFactory;
+
+    #[test]
+    fn the_argument_tree_is_consistent() {
+        Cli::command().debug_assert();
+    }
+
+    #[test]
+    fn every_example_in_the_help_parses_into_its_command() {
+        let mut seen = 0;
+        for sub in Cli::command().get_subcommands() {
+            let texts = [sub.get_after_help(), sub.get_long_about(), sub.get_about()];
+            let Some(help) =
+                texts.into_iter().flatten().map(|t| t.to_string()).find(|t| t.contains("Example: jetloop "))
+            else {
+                continue;
+            };
+            let Some(at) = help.find("Example: jetloop ") else { continue };
+            let line: String = help[at + "Example: ".len()..].lines().next().unwrap_or_default().to_string();
+            let words: Vec<&str> = line.split_whitespace().take_while(|w| *w != ">").collect();
+            let cli = Cli::try_parse_from(&words).unwrap_or_else(|e| panic!("{line}: {e}"));
+            // The parsed command is the one the example is documented under.
+            let name = format!("{:?}", cli.command).to_lowercase().replace('_', "");
+            assert!(name.starts_with(&sub.get_name().replace('-', "")), "{line} parsed as {name}");
+            seen += 1;
+        }
+        assert!(seen >= 18, "only {seen} examples");
+    }
+
+    #[test]
+    fn global_flags_reach_the_connection_settings() {
+        let cli =
+            Cli::try_parse_from(["jetloop", "--server", "http://rig:50051", "--timeout", "2.5", "info"])
+                .expect("parses");
+        assert_eq!(cli.server, "http://rig:50051");
+        assert_eq!(cli.timeout, Some(2.5));
+        assert!(
+            Cli::try_parse_from(["jetloop", "--client-cert", "c.pem", "info"]).is_err(),
+            "needs --ca-file and --client-key"
+        );
+    }
+}

@@ -234,3 +234,72 @@ impl InputArgs {
         })
     }
 }
+
+#[cfg(test)]
+mod tests {
+    //! Recording arguments -> `Samples`, without a server.
+
+    use super::*;
+    use clap::Parser;
+
+    #[derive(Debug, Parser)]
+    struct Input {
+        #[command(flatten)]
+        input: InputArgs,
+    }
+
+    fn parse(args: &str) -> InputArgs {
+        Input::try_parse_from(std::iter::once("t").chain(args.split_whitespace())).expect("parses").input
+    }
+
+    #[test]
+    fn every_calibration_form_and_none_refused() {
+        use pb::calibration::Scale;
+        assert_eq!(
+            parse("x.wav --pa-per-unit 2000").calibration().expect("cal").scale,
+            Some(Scale::PascalsPerUnit(2000.0))
+        );
+        assert_eq!(
+            parse("x.wav --sensitivity-v-per-pa 0.0036 --volts-per-unit 0.0003")
+                .calibration()
+                .expect("cal")
+                .scale,
+            Some(Scale::Microphone(pb::MicrophoneChain {
+                sensitivity_v_per_pa: 0.0036,
+                volts_per_unit: 0.0003
+            }))
+        );
+        assert_eq!(
+            parse("x.csv --in-pascals").calibration().expect("cal").scale,
+            Some(Scale::InPascals(true))
+        );
+        let e = parse("x.wav").calibration().unwrap_err();
+        assert!(matches!(e, Failure::Usage(ref m) if m.contains("no calibration")), "{e:?}");
+    }
+
+    #[test]
+    fn the_kind_comes_from_the_extension_unless_given() {
+        assert!(matches!(parse("a.WAV --in-pascals").kind(), InputKind::Wav));
+        assert!(matches!(parse("a.txt --in-pascals").kind(), InputKind::Csv));
+        assert!(matches!(parse("a.bin --in-pascals").kind(), InputKind::Raw));
+        assert!(matches!(parse("a.bin --in-pascals --input-kind csv").kind(), InputKind::Csv));
+    }
+
+    #[test]
+    fn a_two_column_csv_becomes_two_named_channels_one_after_the_other() {
+        let dir = std::env::temp_dir().join(format!("jetloop-csv-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).expect("dir");
+        let f = dir.join("mics.csv");
+        std::fs::write(&f, "p1_pa,p2_pa\n0.5,-1\n1.5,2\n").expect("write");
+        let s =
+            parse(&format!("{} --sample-rate-hz 51200 --in-pascals", f.display())).read().expect("samples");
+        assert_eq!((s.sample_rate_hz, s.channel_count), (51_200.0, 2));
+        assert_eq!(s.layout, pb::ChannelLayout::Planar as i32);
+        assert_eq!(s.channel_names, vec!["p1_pa".to_string(), "p2_pa".to_string()]);
+        let Some(pb::samples::Data::Values(v)) = s.data else { panic!("{:?}", s.data) };
+        assert_eq!(v.values, vec![0.5, 1.5, -1.0, 2.0], "column by column");
+        let e = parse(&format!("{} --in-pascals", f.display())).read().unwrap_err();
+        assert!(matches!(e, Failure::Usage(ref m) if m.contains("--sample-rate-hz")), "{e:?}");
+        let _ = std::fs::remove_dir_all(dir);
+    }
+}

@@ -340,3 +340,108 @@ impl ScreechArgs {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    //! Arguments -> request, without a server: what each flag puts in the message.
+
+    use super::*;
+    use clap::Parser;
+
+    #[derive(Debug, Parser)]
+    #[command(allow_negative_numbers = true)]
+    struct Jet {
+        #[command(flatten)]
+        jet: JetSourceArgs,
+        #[command(flatten)]
+        screech: ScreechArgs,
+    }
+
+    fn parse(args: &str) -> Jet {
+        Jet::try_parse_from(std::iter::once("t").chain(args.split_whitespace())).expect("parses")
+    }
+
+    fn conditions(args: &str) -> pb::JetConditions {
+        match parse(args).jet.input().expect("a jet").source {
+            Some(Source::Conditions(c)) => c,
+            other => panic!("not conditions: {other:?}"),
+        }
+    }
+
+    #[test]
+    fn a_round_convergent_nozzle_at_an_npr() {
+        let c = conditions("--diameter-m 0.0254 --npr 3.5 --total-temperature-k 300");
+        assert_eq!(
+            c.nozzle.and_then(|n| n.kind),
+            Some(Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: 0.0254 }))
+        );
+        let op = c.operating_point.expect("operating point");
+        assert_eq!(op.pressure, Some(Pressure::NozzlePressureRatio(3.5)));
+        assert_eq!(op.total_temperature_k, Some(300.0));
+        assert_eq!(op.ambient_temperature_k, None, "left to the server's default");
+        assert_eq!(op.ambient_pressure_pa, None);
+    }
+
+    #[test]
+    fn a_gauge_pressure_carries_its_ambient_pressure() {
+        let c = conditions("--diameter-m 0.02 --gauge-pressure-pa 253312 --ambient-pressure-pa 101325");
+        let op = c.operating_point.expect("operating point");
+        assert_eq!(
+            op.pressure,
+            Some(Pressure::Gauge(pb::GaugeAndAmbientPressure {
+                reservoir_gauge_pressure_pa: 253_312.0,
+                ambient_pressure_pa: 101_325.0
+            }))
+        );
+        assert_eq!(op.ambient_pressure_pa, None, "the ambient pressure travels inside `gauge`");
+    }
+
+    #[test]
+    fn a_cd_nozzle_by_design_mach_or_area_ratio_and_one_without_either_is_refused() {
+        use pb::round_convergent_divergent_nozzle::Design;
+        let cd = |args: &str| match conditions(args).nozzle.and_then(|n| n.kind) {
+            Some(Kind::RoundConvergentDivergent(n)) => n.design,
+            other => panic!("{other:?}"),
+        };
+        assert_eq!(
+            cd("--nozzle cd --diameter-m 0.03 --design-mach 1.5 --npr 4"),
+            Some(Design::DesignMachNumber(1.5))
+        );
+        assert_eq!(
+            cd("--nozzle cd --diameter-m 0.03 --area-ratio 1.2 --npr 4"),
+            Some(Design::ExitToThroatAreaRatio(1.2))
+        );
+        let e = parse("--nozzle cd --diameter-m 0.03 --npr 4").jet.input().unwrap_err();
+        assert!(matches!(e, Failure::Usage(ref m) if m.contains("--design-mach")), "{e:?}");
+        let e = parse("--nozzle rectangular --height-m 0.01 --npr 4").jet.input().unwrap_err();
+        assert!(matches!(e, Failure::Usage(ref m) if m.contains("--width-m")), "{e:?}");
+    }
+
+    #[test]
+    fn a_jet_given_by_mj_and_dj_is_a_fully_expanded_jet() {
+        let j = parse("--mj 1.4 --dj-m 0.02 --total-temperature-k 600").jet.input().expect("a jet");
+        let Some(Source::FullyExpanded(f)) = j.source else { panic!("{j:?}") };
+        assert_eq!(f.fully_expanded_mach_number, 1.4);
+        assert_eq!(f.size, Some(pb::fully_expanded_jet::Size::FullyExpandedDiameterM(0.02)));
+        assert_eq!(f.total_temperature_k, Some(600.0));
+    }
+
+    #[test]
+    fn screech_options_carry_the_loop_the_cells_and_the_guided_model() {
+        let o = parse("--diameter-m 0.0254 --npr 3 --source-cells 4 --reflector-distance-m 0.012 --delay-s 1e-5 --delay-s 2e-5 --spacing-factor 0.8 --convection-ratio 0.65 --harmonics 2 --guided").screech.options();
+        let l = o.r#loop.expect("loop");
+        assert_eq!(l.source, Some(pb::feedback_loop::Source::SourceCells(4.0)));
+        assert_eq!(l.reflector_distance_m, Some(0.012));
+        assert_eq!(l.fixed_delays_s, vec![1e-5, 2e-5]);
+        assert_eq!(o.cells.and_then(|c| c.spacing_factor), Some(0.8));
+        assert_eq!(
+            o.convection,
+            Some(pb::Convection { speed: Some(pb::convection::Speed::ConvectionRatio(0.65)) })
+        );
+        assert_eq!(o.harmonics, Some(2));
+        assert!(o.guided_modes.is_some());
+        let o = parse("--diameter-m 0.0254 --npr 3 --source-distance-m 0.05").screech.options();
+        assert_eq!(o.r#loop.and_then(|l| l.source), Some(pb::feedback_loop::Source::SourceDistanceM(0.05)));
+        assert!(o.guided_modes.is_none() && o.convection.is_none());
+    }
+}

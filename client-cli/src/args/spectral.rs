@@ -151,3 +151,75 @@ pub(crate) fn positions(azimuths_deg: &[f64]) -> Vec<pb::MicrophonePosition> {
         .map(|&azimuth_deg| pb::MicrophonePosition { azimuth_deg, polar_angle_deg: None, distance_m: None })
         .collect()
 }
+
+#[cfg(test)]
+mod tests {
+    //! Arguments -> request parts, without a server.
+
+    use super::*;
+    use clap::Parser;
+
+    #[derive(Debug, Parser)]
+    struct Spectral {
+        #[command(flatten)]
+        welch: WelchArgs,
+        #[command(flatten)]
+        corrections: CorrectionArgs,
+    }
+
+    fn parse(args: &str) -> Spectral {
+        Spectral::try_parse_from(std::iter::once("t").chain(args.split_whitespace())).expect("parses")
+    }
+
+    #[test]
+    fn welch_flags_set_window_segment_and_overlap_and_unset_ones_stay_unset() {
+        let o = parse("--window flat-top --segment 8192 --overlap 0.75").welch.options();
+        assert_eq!(o.window, pb::WindowKind::FlatTop as i32);
+        assert_eq!(o.segment, Some(pb::welch_options::Segment::SegmentLength(8192)));
+        assert_eq!(o.overlap_fraction, Some(0.75));
+        let o = parse("--resolution-hz 5").welch.options();
+        assert_eq!(o.window, pb::WindowKind::Unspecified as i32, "the server chooses (and records) it");
+        assert_eq!(o.segment, Some(pb::welch_options::Segment::ResolutionHz(5.0)));
+        assert_eq!(o.overlap_fraction, None);
+    }
+
+    #[test]
+    fn distances_per_channel_and_absorption_make_one_correction_per_channel() {
+        let c = parse("--mic-distance-m 2,2.5 --reference-distance-m 1 --air-temperature-k 293.15 --relative-humidity-percent 50")
+            .corrections
+            .corrections()
+            .expect("corrections")
+            .expect("some");
+        assert_eq!(c.channels.iter().map(|x| x.distance_m).collect::<Vec<_>>(), vec![Some(2.0), Some(2.5)]);
+        assert_eq!(c.reference_distance_m, Some(1.0));
+        let a = c.atmosphere.expect("atmosphere");
+        assert_eq!((a.temperature_k, a.relative_humidity_percent, a.pressure_pa), (293.15, 50.0, None));
+        assert!(parse("").corrections.corrections().expect("none").is_none());
+    }
+
+    #[test]
+    fn a_response_curve_file_is_read_with_its_header_and_a_bad_line_is_named() {
+        let dir = std::env::temp_dir().join(format!("jetloop-curve-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).expect("dir");
+        let good = dir.join("quarter-inch.csv");
+        std::fs::write(&good, "frequency_hz,correction_db\n1000,0.1\n10000,1.5\n").expect("write");
+        let c = read_curve(&good).expect("curve");
+        assert_eq!(
+            (c.name.as_str(), c.frequencies_hz, c.corrections_db),
+            ("quarter-inch", vec![1000.0, 10000.0], vec![0.1, 1.5])
+        );
+        let bad = dir.join("bad.csv");
+        std::fs::write(&bad, "frequency_hz,correction_db\n1000,0.1\n2000\n").expect("write");
+        let e = read_curve(&bad).unwrap_err();
+        assert!(matches!(e, Failure::Usage(ref m) if m.contains("line 3")), "{e:?}");
+        let _ = std::fs::remove_dir_all(dir);
+    }
+
+    #[test]
+    fn azimuths_become_positions_with_nothing_else_assumed() {
+        let p = positions(&[0.0, 45.0]);
+        assert_eq!(p.len(), 2);
+        assert_eq!(p[1].azimuth_deg, 45.0);
+        assert!(p[1].polar_angle_deg.is_none() && p[1].distance_m.is_none());
+    }
+}

@@ -1,4 +1,4 @@
-//! `jetloop bands`.
+//! `jetloop bands`: one-third-octave band levels (IEC 61260-1), overall and A-weighted levels of a recording.
 
 use crate::args::input::InputArgs;
 use crate::args::spectral::CorrectionArgs;

@@ -1,4 +1,4 @@
-//! `jetloop cells`.
+//! `jetloop cells`: shock-cell spacing (vortex-sheet model) and shock positions of a jet.
 
 use crate::args::jet::CellArgs;
 use crate::args::jet::JetSourceArgs;

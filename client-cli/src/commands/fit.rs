@@ -1,4 +1,4 @@
-//! `jetloop fit`.
+//! `jetloop fit`: stages, jumps, hysteresis and loop-model fits of a measured sweep read from CSV.
 
 use crate::args::jet::JetArgs;
 use crate::commands::Run;

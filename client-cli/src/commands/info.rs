@@ -1,4 +1,4 @@
-//! `jetloop info`.
+//! `jetloop info`: the server's version, models with their references, and limits.
 
 use crate::commands::Run;
 use crate::connect::Ctx;

@@ -1,4 +1,4 @@
-//! `jetloop isentropic`.
+//! `jetloop isentropic`: isentropic ratios from a Mach number, or the Mach number from one ratio.
 
 use crate::commands::Run;
 use crate::connect::Ctx;

@@ -1,4 +1,4 @@
-//! `jetloop jet`.
+//! `jetloop jet`: the fully expanded jet state of a nozzle at an operating point.
 
 use crate::args::jet::JetArgs;
 use crate::commands::Run;

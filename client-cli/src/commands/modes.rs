@@ -1,4 +1,4 @@
-//! `jetloop modes`.
+//! `jetloop modes`: guided-jet-mode bands, closure tones and dispersion curves.
 
 use crate::args::jet::JetSourceArgs;
 use crate::commands::Run;

@@ -1,4 +1,4 @@
-//! `jetloop screech`.
+//! `jetloop screech`: screech frequency by several models, harmonics and the feedback loop.
 
 use crate::args::jet::JetSourceArgs;
 use crate::args::jet::ScreechArgs;

@@ -1,4 +1,4 @@
-//! `jetloop shock`.
+//! `jetloop shock`: normal-shock jump conditions.
 
 use crate::commands::Run;
 use crate::connect::Ctx;

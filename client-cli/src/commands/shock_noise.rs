@@ -1,4 +1,4 @@
-//! `jetloop shock-noise`.
+//! `jetloop shock-noise`: peak frequency of shock-associated noise against observer angle.
 
 use crate::args::jet::CellArgs;
 use crate::args::jet::ConvectionArgs;

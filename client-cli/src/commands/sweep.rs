@@ -1,4 +1,4 @@
-//! `jetloop sweep`.
+//! `jetloop sweep`: screech predictions over NPR, Mj or reflector distance (table, JSON or CSV).
 
 use crate::args::jet::JetSourceArgs;
 use crate::args::jet::ScreechArgs;
@@ -61,29 +61,35 @@ pub struct SweepCmd {
 }
 
 /// Runs `sweep`; the CSV file, when asked for, is written here.
-impl Run for SweepCmd {
-    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
-        let (ch, a) = (ctx.channel().await?, self);
+impl SweepCmd {
+    /// The SweepScreech request these arguments describe.
+    fn request(&self) -> Result<pb::SweepScreechRequest, Failure> {
         use pb::sweep_screech_request::Values;
-        let values = match (a.from, a.to, a.count) {
+        let values = match (self.from, self.to, self.count) {
             (Some(start), Some(stop), Some(count)) => Values::Range(pb::SweepRange { start, stop, count }),
-            _ if !a.values.is_empty() => Values::List(pb::SweepValues { values: a.values.clone() }),
+            _ if !self.values.is_empty() => Values::List(pb::SweepValues { values: self.values.clone() }),
             _ => return Err(Failure::Usage("give --from, --to and --count, or --values".into())),
         };
-        let variable = match a.vary {
+        let variable = match self.vary {
             VaryArg::Npr => pb::SweepVariable::NozzlePressureRatio,
             VaryArg::Mj => pb::SweepVariable::FullyExpandedMachNumber,
             VaryArg::Reflector => pb::SweepVariable::ReflectorDistanceM,
         };
+        Ok(pb::SweepScreechRequest {
+            jet: Some(self.jet.input()?),
+            variable: variable as i32,
+            values: Some(values),
+            options: Some(self.screech.options()),
+        })
+    }
+}
+
+impl Run for SweepCmd {
+    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
+        let (ch, a) = (ctx.channel().await?, self);
+        let request = a.request()?;
         let s = crate::readers::spinner("sweeping on the server");
-        let r = ToneServiceClient::new(ch)
-            .sweep_screech(pb::SweepScreechRequest {
-                jet: Some(a.jet.input()?),
-                variable: variable as i32,
-                values: Some(values),
-                options: Some(a.screech.options()),
-            })
-            .await;
+        let r = ToneServiceClient::new(ch).sweep_screech(request).await;
         s.finish_and_clear();
         let r = r?.into_inner();
         let orders = r.points.iter().map(|p| p.loop_frequencies_hz.len()).max().unwrap_or(0);
@@ -177,5 +183,37 @@ impl Run for SweepCmd {
         .hide(&["compute_time_s"])
         .table(t)
         .provenance(r.provenance))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use clap::Parser;
+
+    #[derive(Debug, Parser)]
+    struct T {
+        #[command(flatten)]
+        cmd: SweepCmd,
+    }
+
+    fn request(args: &str) -> Result<pb::SweepScreechRequest, Failure> {
+        T::try_parse_from(std::iter::once("t").chain(args.split_whitespace())).expect("parses").cmd.request()
+    }
+
+    #[test]
+    fn a_range_or_a_list_of_the_swept_variable() {
+        use pb::sweep_screech_request::Values;
+        let r =
+            request("--diameter-m 0.0254 --npr 3 --vary npr --from 1.5 --to 6 --count 200").expect("request");
+        assert_eq!(r.variable, pb::SweepVariable::NozzlePressureRatio as i32);
+        assert_eq!(r.values, Some(Values::Range(pb::SweepRange { start: 1.5, stop: 6.0, count: 200 })));
+        let r = request("--mj 1.4 --dj-m 0.02 --vary reflector --values 0,0.01,0.02 --max-loop-order 4")
+            .expect("request");
+        assert_eq!(r.variable, pb::SweepVariable::ReflectorDistanceM as i32);
+        assert_eq!(r.values, Some(Values::List(pb::SweepValues { values: vec![0.0, 0.01, 0.02] })));
+        assert_eq!(r.options.and_then(|o| o.r#loop).and_then(|l| l.max_loop_order), Some(4));
+        let e = request("--diameter-m 0.0254 --npr 3 --vary mj").unwrap_err();
+        assert!(matches!(e, Failure::Usage(ref m) if m.contains("--values")), "{e:?}");
     }
 }

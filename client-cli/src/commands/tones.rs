@@ -1,4 +1,4 @@
-//! `jetloop tones`.
+//! `jetloop tones`: tones, levels, harmonics, stage labels, band levels and cross-spectra of a recording.
 
 use crate::args::input::InputArgs;
 use crate::args::spectral::positions;

@@ -240,3 +240,158 @@ pub fn mode_tables(modes: &[pb::GuidedModeResult], hz: bool) -> (Table, Table) {
     }
     (bands, tones)
 }
+
+#[cfg(test)]
+mod tests {
+    //! Response -> rows, without a server: messages built by hand, the rows they give.
+
+    use super::*;
+    use serde_json::json;
+
+    fn round(m: u32, r: u32) -> pb::GuidedModeId {
+        pb::GuidedModeId { shape: pb::ModeShape::Round as i32, azimuthal_order: m, radial_order: r }
+    }
+
+    #[test]
+    fn names_of_regimes_modes_outcomes_and_patterns() {
+        assert_eq!(regime_name(pb::ExpansionRegime::UnderExpanded as i32), "under-expanded");
+        assert_eq!(regime_name(pb::ExpansionRegime::Unspecified as i32), "n/a (jet given directly)");
+        assert_eq!(regime_name(99), "unknown (99)");
+        assert_eq!(mode_label(&round(1, 1)), "m=1 r1");
+        let planar = pb::GuidedModeId {
+            shape: pb::ModeShape::PlanarAntisymmetric as i32,
+            azimuthal_order: 0,
+            radial_order: 2,
+        };
+        assert_eq!(mode_label(&planar), "anti r2");
+        assert_eq!(outcome_name(pb::ClosureOutcome::BelowBand as i32), "below band");
+        assert_eq!(pattern_name(pb::AzimuthalPattern::Standing as i32), "standing (flapping)");
+    }
+
+    #[test]
+    fn a_tone_table_has_one_row_per_harmonic_in_csv_and_json() {
+        let tones = [
+            pb::Tone { order: 1, frequency_hz: 5230.5, strouhal_number: 0.31 },
+            pb::Tone { order: 2, frequency_hz: 10461.0, strouhal_number: 0.62 },
+        ];
+        let t = tone_table("powell", "Powell", &tones);
+        assert_eq!(t.to_csv(), "order,frequency_hz,strouhal_number\n1,5230.5,0.31\n2,10461,0.62\n");
+        let j = Report::new("x").table(t).to_json();
+        assert_eq!(j["powell"][1], json!({"order": 2, "frequency_hz": 10461.0, "strouhal_number": 0.62}));
+    }
+
+    #[test]
+    fn jet_rows_carry_every_summary_field_and_the_width_only_when_there_is_one() {
+        let j = pb::ExpandedJetSummary {
+            fully_expanded_mach_number: 1.5,
+            fully_expanded_velocity_m_per_s: 448.0,
+            fully_expanded_width_m: None,
+            ..Default::default()
+        };
+        let v = jet_rows(Report::new("jet"), &Some(j)).to_json();
+        assert_eq!(v["fully_expanded_mach_number"], json!(1.5));
+        assert_eq!(v["fully_expanded_velocity_m_per_s"], json!(448.0));
+        assert!(v.get("fully_expanded_width_m").is_none(), "{v}");
+    }
+
+    #[test]
+    fn band_rows_keep_nominal_and_exact_centres() {
+        let b = pb::BandSummary {
+            bands: vec![pb::OneThirdOctaveBand {
+                nominal_hz: 1000.0,
+                exact_hz: 1000.0,
+                level_db: 94.0,
+                a_weighted_level_db: 94.0,
+                resolved: true,
+                ..Default::default()
+            }],
+            ..Default::default()
+        };
+        assert_eq!(
+            band_table(&b).to_csv(),
+            "nominal_hz,exact_hz,level_db,a_weighted_level_db,resolved\n1000,1000,94,94,true\n"
+        );
+    }
+
+    #[test]
+    fn stage_text_names_the_stage_its_distance_and_leaves_harmonics_to_their_fundamental() {
+        let stage = pb::StageMatch {
+            mode: Some(round(1, 1)),
+            customary_stage: "C".into(),
+            relative_deviation: Some(-0.012),
+            band_distance: 0.0,
+            ..Default::default()
+        };
+        let t = pb::ExtractedTone {
+            best_stage: Some(stage.clone()),
+            stages: vec![stage.clone(), stage],
+            ..Default::default()
+        };
+        assert_eq!(stage_text(&t), "m=1 r1 C, in band, -1.2 % from closure (+1 more)");
+        let h = pb::ExtractedTone { harmonic_order: Some(2), ..t.clone() };
+        assert_eq!(stage_text(&h), "(harmonic)");
+        assert_eq!(stage_text(&pb::ExtractedTone::default()), "none");
+    }
+
+    #[test]
+    fn mode_tables_list_bands_and_closures_with_hertz_when_asked() {
+        let p = |st: f64, hz: f64| pb::ModePoint {
+            strouhal_number: st,
+            frequency_hz: Some(hz),
+            ..Default::default()
+        };
+        let m = pb::GuidedModeResult {
+            mode: Some(round(0, 1)),
+            family: "axisymmetric".into(),
+            customary_stage: "A1".into(),
+            branch_point: Some(p(0.40, 6000.0)),
+            saddle_point: Some(p(0.45, 6750.0)),
+            has_band: true,
+            tones: vec![
+                pb::ClosureTone {
+                    cell_mode: 1,
+                    outcome: pb::ClosureOutcome::InBand as i32,
+                    tone: Some(p(0.42, 6300.0)),
+                    ..Default::default()
+                },
+                pb::ClosureTone {
+                    cell_mode: 2,
+                    outcome: pb::ClosureOutcome::AboveBand as i32,
+                    tone: None,
+                    ..Default::default()
+                },
+            ],
+            ..Default::default()
+        };
+        let (bands, tones) = mode_tables(std::slice::from_ref(&m), true);
+        assert_eq!(bands.to_csv().lines().nth(1), Some("m=0 r1,axisymmetric,A1,0.4,0.45,6000,6750"));
+        assert_eq!(
+            tones.to_csv().lines().skip(1).collect::<Vec<_>>(),
+            vec!["m=0 r1,1,in band,0.42,6300", "m=0 r1,2,above band,,"]
+        );
+        let (bands, _) = mode_tables(&[m], false);
+        assert!(!bands.to_csv().contains("band_low_hz"));
+    }
+
+    #[test]
+    fn a_summary_of_several_channels_shows_each_channel_once_and_the_loudest_caution() {
+        let tone = |f: f64, l: f64| pb::ExtractedTone { frequency_hz: f, level_db: l, ..Default::default() };
+        let ch = |i: u32, l: f64, cautions: Vec<String>| pb::ChannelSpectrum {
+            channel: i,
+            overall_level_db: l,
+            tones: vec![tone(5230.0, l - 3.0), tone(10460.0, l - 10.0)],
+            cautions,
+            ..Default::default()
+        };
+        let v = channel_summary(
+            Report::new("x"),
+            &[ch(0, 120.0, vec![]), ch(1, 150.0, vec!["above 140 dB".into()])],
+        )
+        .to_json();
+        assert_eq!(v["summary"].as_array().map(Vec::len), Some(2));
+        assert_eq!(v["summary"][1]["strongest_tone_hz"], json!(5230.0));
+        assert_eq!(v["summary"][1]["tone_count"], json!(2));
+        assert_eq!(v["summary"][0]["channel"], json!("channel 0"));
+        assert_eq!(v["caution"], json!("above 140 dB"));
+    }
+}
