@@ -230,7 +230,7 @@ async fn fit_reads_the_demo_sweep_and_reports_hysteresis() {
     let server = TestServer::start().await;
     let u = server.url();
     let out = tokio::task::spawn_blocking(move || {
-        let csv = concat!(env!("CARGO_MANIFEST_DIR"), "/../examples/npr-sweep-up-down.csv");
+        let csv = concat!(env!("CARGO_MANIFEST_DIR"), "/../sample-data/npr-sweep-up-down.csv");
         let svg = std::env::temp_dir().join(format!("jetloop-fit-{}.svg", std::process::id()));
         let o = jetloop(
             &u,

@@ -41,7 +41,7 @@ async fn every_plot_as_svg_and_png() {
     let dir = std::env::temp_dir().join(format!("jetloop-plots-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&dir);
     std::fs::create_dir_all(&dir).expect("dir");
-    let examples = Path::new(env!("CARGO_MANIFEST_DIR")).join("../examples/npr-sweep-up-down.csv");
+    let sample_data = Path::new(env!("CARGO_MANIFEST_DIR")).join("../sample-data/npr-sweep-up-down.csv");
     let d = dir.clone();
     tokio::task::spawn_blocking(move || {
         jetloop(&url, &d, &["synth", "demo.wav", "--seconds", "0.5"]);
@@ -50,7 +50,7 @@ async fn every_plot_as_svg_and_png() {
             &d,
             &["synth", "mics.csv", "--ring", "2", "--seconds", "0.5", "--sample-rate-hz", "51200"],
         );
-        let sweep = examples.to_str().expect("path");
+        let sweep = sample_data.to_str().expect("path");
         // (command, plot name, labels the SVG must hold)
         let cases: Vec<(Vec<&str>, &str, Vec<&str>)> = vec![
             (

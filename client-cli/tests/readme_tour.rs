@@ -1,6 +1,6 @@
 //! Every shell command of README.md, taken from the README itself so the two cannot drift:
 //! the tour's `cargo run -q -p jetloop-cli -- ...` commands run in order, in a fresh folder
-//! holding a copy of `examples/`, against a real server, and each must succeed. Any other
+//! holding a copy of `sample-data/`, against a real server, and each must succeed. Any other
 //! command must be one of the set-up commands this test knows (server start, install, tests),
 //! so a new kind of command cannot slip past untested.
 
@@ -56,7 +56,7 @@ fn readme_commands(text: &str) -> Vec<String> {
 
 fn copy_dir(from: &Path, to: &Path) {
     std::fs::create_dir_all(to).expect("create folder");
-    for e in std::fs::read_dir(from).expect("read examples") {
+    for e in std::fs::read_dir(from).expect("read sample data") {
         let e = e.expect("entry");
         if e.file_type().expect("type").is_file() {
             std::fs::copy(e.path(), to.join(e.file_name())).expect("copy example");
@@ -79,7 +79,7 @@ async fn every_readme_command_runs_in_order_on_a_fresh_folder() {
     let url = server.url();
     let dir = std::env::temp_dir().join(format!("jetloop-readme-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&dir);
-    copy_dir(&root.join("examples"), &dir.join("examples"));
+    copy_dir(&root.join("sample-data"), &dir.join("sample-data"));
     copy_dir(&root.join("tests/data"), &dir.join("tests/data"));
     let failures = tokio::task::spawn_blocking(move || {
         let bin = env!("CARGO_BIN_EXE_jetloop");

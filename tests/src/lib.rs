@@ -127,7 +127,7 @@ pub fn ring_f32(m: usize, frames: usize, fs: f64, seed: u64) -> Vec<u8> {
     bytes
 }
 
-/// The demo NPR sweep of `examples/npr-sweep-up-down.csv` (invented rig): Powell's loop
+/// The demo NPR sweep of `sample-data/npr-sweep-up-down.csv` (invented rig): Powell's loop
 /// f = n / (N Ls (1/(kappa Uj) + 1/a)) for a cold 25.4 mm round convergent nozzle (ISA sea
 /// level, reservoir at 288.15 K), with Ls the vortex-sheet spacing and Uj the fully expanded
 /// velocity from the server's own jet model, N = 4 and n = 4 in every stage and a convection

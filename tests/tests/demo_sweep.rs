@@ -1,4 +1,4 @@
-//! The committed demo sweep `examples/npr-sweep-up-down.csv` lies on its stated loop model:
+//! The committed demo sweep `sample-data/npr-sweep-up-down.csv` lies on its stated loop model:
 //! every point within 4 % (four standard deviations of the stated 1 % noise) of
 //! `jetloop_tests::demo_sweep::model_hz` for its stage and direction, and the model itself is
 //! in the range the server predicts for this nozzle (Powell's fundamental within 25 %).
@@ -7,7 +7,7 @@ use jetloop_tests::demo_sweep::{model_hz, stage_at, NOISE};
 
 #[test]
 fn demo_sweep_points_lie_on_the_loop_model() {
-    let text = include_str!("../../examples/npr-sweep-up-down.csv");
+    let text = include_str!("../../sample-data/npr-sweep-up-down.csv");
     let mut n = 0;
     for line in text.lines().filter(|l| !l.starts_with('#')).skip(1) {
         let f: Vec<&str> = line.split(',').collect();
@@ -48,14 +48,14 @@ fn demo_sweep_model_is_near_the_powell_fundamental() {
     }
 }
 
-/// The committed demo reflector sweep `examples/reflector-sweep.csv` lies on its stated loop
+/// The committed demo reflector sweep `sample-data/reflector-sweep.csv` lies on its stated loop
 /// model `f = n / (tau0 + 2 d / a)` (the reflector loop of physics/staging, g = 2: twice the
 /// displacement, common practice): every point within 4 standard deviations of the stated
 /// 0.5 % noise, at every displacement of the sweep.
 #[test]
 fn demo_reflector_points_lie_on_the_loop_model() {
     use jetloop_tests::demo_reflector::{displacements, model_hz, NOISE};
-    let text = include_str!("../../examples/reflector-sweep.csv");
+    let text = include_str!("../../sample-data/reflector-sweep.csv");
     let rows: Vec<(f64, f64)> = text
         .lines()
         .filter(|l| !l.starts_with('#'))

@@ -2,9 +2,9 @@
 //! of 0.05 from the loop model in `jetloop_tests::demo_sweep`, with 1 % seeded Gaussian
 //! frequency noise. `tests/tests/demo_sweep.rs` checks the committed file against the model.
 //!
-//! Run with `cargo run -q -p jetloop-bench --bin make-demo-sweep > examples/npr-sweep-up-down.csv`.
+//! Run with `cargo run -q -p jetloop-bench --bin make-demo-sweep > sample-data/npr-sweep-up-down.csv`.
 //! With the argument `reflector` it writes the demo reflector sweep of
-//! `jetloop_tests::demo_reflector` instead (`> examples/reflector-sweep.csv`), checked by the
+//! `jetloop_tests::demo_reflector` instead (`> sample-data/reflector-sweep.csv`), checked by the
 //! same test file.
 #![forbid(unsafe_code)]
 
