@@ -41,6 +41,9 @@ impl CellOptions {
     /// Yu 1986 use 0.8): 1 when unset, the pure vortex-sheet spacing.
     pub const SPACING_FACTOR: Setting =
         Setting::new("spacing_factor", SPACING_FACTOR, DEFAULT_SPACING_FACTOR, "pure vortex-sheet spacing");
+    /// Shock positions listed.
+    pub const SHOCK_COUNT: Setting =
+        Setting::new("shock_count", SHOCKS, DEFAULT_SHOCKS as f64, "the first shocks");
 }
 
 impl Default for CellOptions {

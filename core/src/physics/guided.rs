@@ -548,6 +548,13 @@ impl ClosureOptions {
         super::cells::DEFAULT_SPACING_FACTOR,
         "pure vortex-sheet shock-cell spacing",
     );
+    /// Shock-cell modes n = 1..cell_modes whose wavenumbers close the loop.
+    pub const CELL_MODES: Setting = Setting::new(
+        "cell_modes",
+        CELL_MODES,
+        DEFAULT_CELL_MODES as f64,
+        "first and second shock-cell modes",
+    );
     /// Points per dispersion curve in an answer.
     pub const CURVE_POINTS: Setting =
         Setting::new("curve_points", CURVE_POINTS, 100.0, "enough for a smooth plot");

@@ -41,6 +41,13 @@ pub struct ScreechOptions {
 pub const DEFAULT_CONVECTION_RATIO: f64 = tones::TAM_1986_CONVECTION;
 /// Harmonics per model when none are asked for.
 pub const DEFAULT_HARMONICS: u32 = 3;
+/// Harmonics per model (the fundamental included) when unset.
+pub const HARMONICS: crate::physics::Setting = crate::physics::Setting::new(
+    "harmonics",
+    tones::HARMONICS,
+    DEFAULT_HARMONICS as f64,
+    "fundamental and two harmonics",
+);
 
 impl Default for ScreechOptions {
     fn default() -> Self {

@@ -14,7 +14,7 @@
 //!   `f_p(psi) = Uc / (Ls (1 - Mc cos psi))`, `psi` from the downstream jet axis.
 
 use super::bessel;
-use super::bounds::{Bounds, RangeError};
+use super::bounds::{Bounds, RangeError, Setting};
 use super::jet::{ExpandedJet, JetSize};
 use std::f64::consts::PI;
 
@@ -147,6 +147,9 @@ pub struct LoopSpec {
 pub const DEFAULT_SOURCE_CELLS: f64 = 1.0;
 /// Highest loop order when none is given.
 pub const DEFAULT_MAX_ORDER: u32 = 4;
+/// Highest loop order n_max of a feedback loop when unset.
+pub const MAX_LOOP_ORDER: Setting =
+    Setting::new("max_loop_order", LOOP_ORDER, DEFAULT_MAX_ORDER as f64, "loop orders 1 to 4");
 
 impl Default for LoopSpec {
     fn default() -> Self {

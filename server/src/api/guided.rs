@@ -89,17 +89,9 @@ pub fn closure_options_with(
     let mut f = Fields::new(check, defaults, path);
     let conv = f.read(convection_ratio, &ClosureOptions::CONVECTION_RATIO);
     let factor = f.read(spacing_factor, &ClosureOptions::SPACING_FACTOR);
-    let cells = match cell_modes {
-        None => {
-            defaults.note(
-                &format!("{path}.cell_modes"),
-                &guided::DEFAULT_CELL_MODES.to_string(),
-                "first and second shock-cell modes",
-            );
-            Some(guided::DEFAULT_CELL_MODES)
-        }
-        Some(n) => check.range(path, guided::CELL_MODES.check("cell_modes", f64::from(n))).map(|v| v as u32),
-    };
+    let cells = Fields::new(check, defaults, path)
+        .read_count(cell_modes, &ClosureOptions::CELL_MODES)
+        .map(|v| v as u32);
     Some(ClosureOptions { modes, convection_ratio: conv?, spacing_factor: factor?, cell_modes: cells? })
 }
 

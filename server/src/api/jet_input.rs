@@ -138,17 +138,9 @@ pub fn cell_options(
     let factor = super::field::Fields::new(check, defaults, path)
         .read(spacing_factor, &CellOptions::SPACING_FACTOR)
         .unwrap_or(cells::DEFAULT_SPACING_FACTOR);
-    let shocks = match shock_count {
-        Some(n) => n,
-        None => {
-            defaults.note(
-                &format!("{path}.shock_count"),
-                &cells::DEFAULT_SHOCKS.to_string(),
-                "the first shocks",
-            );
-            cells::DEFAULT_SHOCKS
-        }
-    };
+    let shocks = super::field::Fields::new(check, defaults, path)
+        .read_count(shock_count, &CellOptions::SHOCK_COUNT)
+        .map_or(cells::DEFAULT_SHOCKS, |n| n as u32);
     let modes = match modes {
         Some(m) => m,
         None => {
@@ -291,15 +283,11 @@ pub fn loop_spec(
             )
         })
         .collect();
-    let d = tones::DEFAULT_MAX_ORDER;
-    let max_order = match max_loop_order {
-        None => {
-            defaults.note(&format!("{path}.max_loop_order"), &d.to_string(), "loop orders 1 to 4");
-            d
-        }
-        Some(n) => {
-            check.range(path, tones::LOOP_ORDER.check("max_loop_order", f64::from(n))).map_or(d, |v| v as u32)
-        }
+    let max_order = match super::field::Fields::new(check, defaults, path)
+        .read_count(max_loop_order, &tones::MAX_LOOP_ORDER)
+    {
+        Some(n) => n as u32,
+        None => tones::DEFAULT_MAX_ORDER,
     };
     LoopSpec { source, reflector_m, segments: segs, delays_s: delays, max_order }
 }

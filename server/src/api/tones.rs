@@ -61,16 +61,11 @@ pub(super) fn screech_settings(
         }
     };
     let loop_spec = loop_spec(check, defaults, r#loop, &format!("{path}.loop"));
-    let d = screech::DEFAULT_HARMONICS;
-    let harmonics = match harmonics {
-        None => {
-            defaults.note(&format!("{path}.harmonics"), &d.to_string(), "fundamental and two harmonics");
-            d
-        }
-        Some(h) => {
-            check.range(path, tones::HARMONICS.check("harmonics", f64::from(h))).map_or(d, |v| v as u32)
-        }
-    };
+    let harmonics =
+        match super::field::Fields::new(check, defaults, path).read_count(harmonics, &screech::HARMONICS) {
+            Some(h) => h as u32,
+            None => screech::DEFAULT_HARMONICS,
+        };
     Some(ScreechOptions { convection: conv?, cells: cells?, loop_spec, harmonics, guided })
 }
 
