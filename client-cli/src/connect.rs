@@ -6,9 +6,13 @@ use crate::failure::Failure;
 /// Where the server is; commands connect when they need it (`synth` never does).
 #[derive(Debug)]
 pub(crate) struct Ctx {
+    /// The server's URL.
     server: String,
+    /// The time limit of a call (connecting gets at least a second).
     timeout: Option<std::time::Duration>,
+    /// The token sent with every call.
     bearer: Bearer,
+    /// TLS settings, when the server is reached over TLS.
     tls: Option<tonic::transport::ClientTlsConfig>,
 }
 
@@ -28,7 +32,11 @@ impl tonic::service::Interceptor for Bearer {
 /// A connection to the server with the token (if any) on every call.
 pub(crate) type Conn = tonic::service::interceptor::InterceptedService<tonic::transport::Channel, Bearer>;
 
-/// The bearer token from `--token-file` or `JETLOOP_TOKEN`.
+/// The bearer token from `--token-file` (its first line that is neither blank nor a `#`
+/// comment) or `JETLOOP_TOKEN`.
+///
+/// # Errors
+/// [`Failure::Usage`] when the file cannot be read or the token is not printable ASCII.
 pub(crate) fn bearer(token_file: Option<&std::path::Path>) -> Result<Bearer, Failure> {
     let token = match token_file {
         Some(p) => {
@@ -47,7 +55,11 @@ pub(crate) fn bearer(token_file: Option<&std::path::Path>) -> Result<Bearer, Fai
     }
 }
 
-/// The TLS settings of `--ca-file` and, for mutual TLS, `--client-cert` / `--client-key`.
+/// The TLS settings of `--ca-file` and, for mutual TLS, `--client-cert` / `--client-key`;
+/// none without a CA file.
+///
+/// # Errors
+/// [`Failure::Usage`] when a file cannot be read.
 pub(crate) fn client_tls(
     ca: Option<&std::path::Path>,
     cert: Option<&std::path::Path>,
@@ -68,7 +80,47 @@ pub(crate) fn client_tls(
     Ok(Some(tls))
 }
 
+/// The global connection flags as given on the command line.
+#[derive(Debug, Default)]
+pub(crate) struct Flags {
+    /// `--server`: the server's URL.
+    pub server: String,
+    /// `--timeout`: the time limit of a call in s.
+    pub timeout_s: Option<f64>,
+    /// `--token-file`: the file holding the bearer token.
+    pub token_file: Option<std::path::PathBuf>,
+    /// `--ca-file`: the CA certificate (PEM) for TLS.
+    pub ca_file: Option<std::path::PathBuf>,
+    /// `--client-cert`: the client certificate (PEM) for mutual TLS.
+    pub client_cert: Option<std::path::PathBuf>,
+    /// `--client-key`: the client certificate's private key (PEM).
+    pub client_key: Option<std::path::PathBuf>,
+}
+
+/// The time limit of `--timeout`, in s.
+///
+/// # Errors
+/// [`Failure::Usage`] outside (0, 1e6] s.
+pub(crate) fn time_limit(timeout_s: Option<f64>) -> Result<Option<std::time::Duration>, Failure> {
+    match timeout_s {
+        None => Ok(None),
+        Some(t) if t > 0.0 && t <= 1e6 => Ok(Some(std::time::Duration::from_secs_f64(t))),
+        Some(t) => Err(Failure::Usage(format!("--timeout {t}: give seconds in (0, 1e6]"))),
+    }
+}
+
 impl Ctx {
+    /// The connection the global flags describe (nothing is connected yet): the time limit
+    /// checked, the TLS files and the token read.
+    ///
+    /// # Errors
+    /// [`Failure::Usage`] for a time limit out of range or a file that cannot be read.
+    pub(crate) fn from_flags(f: Flags) -> Result<Self, Failure> {
+        let timeout = time_limit(f.timeout_s)?;
+        let tls = client_tls(f.ca_file.as_deref(), f.client_cert.as_deref(), f.client_key.as_deref())?;
+        Ok(Ctx::new(f.server, timeout, bearer(f.token_file.as_deref())?, tls))
+    }
+
     /// The server at `server` (a URL), calls limited to `timeout`, with `bearer` on every call
     /// and `tls` when given.
     pub(crate) fn new(
@@ -115,5 +167,45 @@ impl Ctx {
             .await
             .map_err(|e| Failure::Connect(format!("cannot reach the jetloop server at {url}: {e}")))?;
         Ok(tonic::service::interceptor::InterceptedService::new(channel, self.bearer.clone()))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    //! Global flags -> connection settings, without a server.
+
+    use super::*;
+
+    #[test]
+    fn the_time_limit_is_in_seconds_and_refused_outside_its_range() {
+        assert_eq!(time_limit(None).expect("none"), None);
+        assert_eq!(time_limit(Some(2.5)).expect("some"), Some(std::time::Duration::from_millis(2500)));
+        for bad in [0.0, -1.0, 2e6] {
+            let e = time_limit(Some(bad)).unwrap_err();
+            assert!(matches!(e, Failure::Usage(ref m) if m.contains("give seconds in (0, 1e6]")), "{e:?}");
+        }
+    }
+
+    #[test]
+    fn the_token_is_the_first_line_that_is_not_a_comment() {
+        let f = std::env::temp_dir().join(format!("jetloop-token-{}", std::process::id()));
+        std::fs::write(&f, "# rig token\n\n  s3cret-token-0123  \nsecond\n").expect("write");
+        let Bearer(Some(v)) = bearer(Some(&f)).expect("bearer") else { panic!("no token") };
+        assert_eq!(v.to_str().ok(), Some("Bearer s3cret-token-0123"));
+        let _ = std::fs::remove_file(&f);
+        let e = bearer(Some(std::path::Path::new("/nonexistent/token"))).unwrap_err();
+        assert!(matches!(e, Failure::Usage(ref m) if m.contains("cannot read the token file")), "{e:?}");
+    }
+
+    #[test]
+    fn an_https_address_without_a_ca_file_is_refused_before_connecting() {
+        let ctx =
+            Ctx::from_flags(Flags { server: "https://rig:50051".into(), ..Flags::default() }).expect("ctx");
+        assert!(ctx.tls.is_none());
+        let rt = tokio::runtime::Builder::new_current_thread().enable_all().build().expect("runtime");
+        let e = rt.block_on(ctx.channel()).unwrap_err();
+        assert!(matches!(e, Failure::Usage(ref m) if m.contains("give --ca-file")), "{e:?}");
+        let e = Ctx::from_flags(Flags { timeout_s: Some(0.0), ..Flags::default() }).unwrap_err();
+        assert!(matches!(e, Failure::Usage(_)), "{e:?}");
     }
 }

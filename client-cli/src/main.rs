@@ -52,10 +52,12 @@ struct Cli {
     /// Private key (PEM) of --client-cert.
     #[arg(long, global = true, env = "JETLOOP_CLIENT_KEY", requires = "client_cert")]
     client_key: Option<std::path::PathBuf>,
+    /// The subcommand.
     #[command(subcommand)]
     command: Command,
 }
 
+/// The subcommands, each with its arguments.
 #[derive(Debug, Subcommand)]
 enum Command {
     /// Isentropic ratios from a Mach number, or the Mach number from one ratio.
@@ -148,18 +150,20 @@ pub(crate) async fn run_args(ctx: &Ctx, args: &[String]) -> Result<Report, Failu
     f.await
 }
 
+/// Sets up the connection from the global flags and runs the command.
 async fn run(cli: Cli) -> Result<Report, Failure> {
-    let timeout = match cli.timeout {
-        None => None,
-        Some(t) if t > 0.0 && t <= 1e6 => Some(std::time::Duration::from_secs_f64(t)),
-        Some(t) => return Err(Failure::Usage(format!("--timeout {t}: give seconds in (0, 1e6]"))),
-    };
-    let tls =
-        connect::client_tls(cli.ca_file.as_deref(), cli.client_cert.as_deref(), cli.client_key.as_deref())?;
-    let ctx = Ctx::new(cli.server, timeout, connect::bearer(cli.token_file.as_deref())?, tls);
+    let ctx = Ctx::from_flags(connect::Flags {
+        server: cli.server,
+        timeout_s: cli.timeout,
+        token_file: cli.token_file,
+        ca_file: cli.ca_file,
+        client_cert: cli.client_cert,
+        client_key: cli.client_key,
+    })?;
     run_command(cli.command, &ctx).await
 }
 
+/// Runs `command` against `ctx`'s server: the dispatch.
 async fn run_command(command: Command, ctx: &Ctx) -> Result<Report, Failure> {
     match command {
         Command::Isentropic(a) => a.run(ctx).await,
@@ -199,6 +203,14 @@ async fn main() -> ExitCode {
 mod tests {
     use super::*;
     use clap::CommandFactory;
+
+    /// The command a `jetloop` command line parses into (`line` without the program name,
+    /// words split at blanks), for the request-builder tests of the command modules.
+    pub(crate) fn command(line: &str) -> Command {
+        Cli::try_parse_from(std::iter::once("jetloop").chain(line.split_whitespace()))
+            .unwrap_or_else(|e| panic!("{line}: {e}"))
+            .command
+    }
 
     #[test]
     fn the_argument_tree_is_consistent() {

@@ -1,8 +1,8 @@
 //! The recording argument group: file, format, layout, sample rate and calibration, turned
-//! into the `Samples` of a request.
+//! into the `Samples` of a request (the file itself is decoded by [`crate::readers`]).
 
 use crate::failure::Failure;
-use crate::readers::csv_rows;
+use crate::readers;
 use crate::readers::read_with_progress;
 use clap::Args;
 use clap::ValueEnum;
@@ -78,6 +78,8 @@ pub struct InputArgs {
 }
 
 impl InputArgs {
+    /// The file kind: --input-kind, else from the extension (.wav; .csv or .txt; anything
+    /// else is raw).
     pub(crate) fn kind(&self) -> InputKind {
         self.input_kind.unwrap_or_else(|| {
             match self.file.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase).as_deref() {
@@ -111,127 +113,48 @@ impl InputArgs {
     }
 
     /// Reads the file into a `Samples` message, with a progress bar on a terminal.
+    ///
+    /// # Errors
+    /// [`Failure::Usage`] without a calibration, for a file that cannot be read, CSV or raw
+    /// without --sample-rate-hz, or content its reader refuses.
     pub fn read(&self) -> Result<pb::Samples, Failure> {
-        self.calibration()?;
+        let calibration = self.calibration()?;
         let bytes = read_with_progress(&self.file)?;
         match self.kind() {
-            InputKind::Wav => self.wav(&bytes),
-            InputKind::Csv => self.csv(&bytes),
-            InputKind::Raw => self.raw(bytes),
+            InputKind::Wav => readers::wav(&self.file, &bytes, calibration),
+            InputKind::Csv => readers::csv(&self.file, &bytes, self.rate("CSV")?, calibration),
+            InputKind::Raw => Ok(readers::raw(
+                bytes,
+                self.rate("raw")?,
+                self.sample_format(),
+                self.channels,
+                self.channel_layout(),
+                calibration,
+            )),
         }
     }
 
+    /// The sample rate a `what` (CSV or raw) file needs from --sample-rate-hz, in Hz.
     pub(crate) fn rate(&self, what: &str) -> Result<f64, Failure> {
         self.sample_rate_hz.ok_or_else(|| Failure::Usage(format!("{what} files need --sample-rate-hz")))
     }
 
-    pub(crate) fn wav(&self, bytes: &[u8]) -> Result<pb::Samples, Failure> {
-        let bad = |e: hound::Error| {
-            Failure::Usage(format!("{}: not a readable WAV file: {e}", self.file.display()))
-        };
-        let mut r = hound::WavReader::new(std::io::Cursor::new(bytes)).map_err(bad)?;
-        let spec = r.spec();
-        let (data, format) = match (spec.sample_format, spec.bits_per_sample) {
-            (hound::SampleFormat::Float, 32) => {
-                let mut out = Vec::with_capacity(r.len() as usize * 4);
-                for s in r.samples::<f32>() {
-                    out.extend_from_slice(&s.map_err(bad)?.to_le_bytes());
-                }
-                (out, pb::SampleFormat::F32Le)
-            }
-            (hound::SampleFormat::Int, 16) => {
-                let mut out = Vec::with_capacity(r.len() as usize * 2);
-                for s in r.samples::<i16>() {
-                    out.extend_from_slice(&s.map_err(bad)?.to_le_bytes());
-                }
-                (out, pb::SampleFormat::I16Le)
-            }
-            (hound::SampleFormat::Int, 24 | 32) => {
-                let mut out = Vec::with_capacity(r.len() as usize * 4);
-                for s in r.samples::<i32>() {
-                    out.extend_from_slice(&s.map_err(bad)?.to_le_bytes());
-                }
-                (out, pb::SampleFormat::I32Le)
-            }
-            (f, b) => {
-                return Err(Failure::Usage(format!(
-                "{}: {b}-bit {f:?} WAV samples are not supported (use 16/24/32-bit integer or 32-bit float)",
-                self.file.display()
-            )))
-            }
-        };
-        Ok(pb::Samples {
-            sample_rate_hz: f64::from(spec.sample_rate),
-            channel_count: u32::from(spec.channels),
-            layout: pb::ChannelLayout::Interleaved as i32,
-            data: Some(pb::samples::Data::Raw(pb::RawSamples { data: data.into(), format: format as i32 })),
-            calibration: Some(self.calibration()?),
-            channel_names: Vec::new(),
-        })
-    }
-
-    pub(crate) fn csv(&self, bytes: &[u8]) -> Result<pb::Samples, Failure> {
-        let fs = self.rate("CSV")?;
-        let text = std::str::from_utf8(bytes)
-            .map_err(|_| Failure::Usage(format!("{}: CSV files must be UTF-8 text", self.file.display())))?;
-        let mut names = Vec::new();
-        let mut columns: Vec<Vec<f64>> = Vec::new();
-        for (i, cells) in csv_rows(text) {
-            if columns.is_empty() && names.is_empty() && cells.iter().any(|c| c.parse::<f64>().is_err()) {
-                names = cells.iter().map(|c| c.to_string()).collect();
-                continue;
-            }
-            if columns.is_empty() {
-                columns = vec![Vec::new(); cells.len()];
-            }
-            if cells.len() != columns.len() {
-                return Err(Failure::Usage(format!(
-                    "{} line {}: {} columns, expected {}",
-                    self.file.display(),
-                    i + 1,
-                    cells.len(),
-                    columns.len()
-                )));
-            }
-            for (col, c) in columns.iter_mut().zip(&cells) {
-                col.push(c.parse::<f64>().map_err(|_| {
-                    Failure::Usage(format!("{} line {}: '{c}' is not a number", self.file.display(), i + 1))
-                })?);
-            }
-        }
-        let channels = columns.len() as u32;
-        if !names.is_empty() && names.len() != columns.len() {
-            names.clear();
-        }
-        Ok(pb::Samples {
-            sample_rate_hz: fs,
-            channel_count: channels.max(1),
-            layout: pb::ChannelLayout::Planar as i32,
-            data: Some(pb::samples::Data::Values(pb::SampleValues { values: columns.concat() })),
-            calibration: Some(self.calibration()?),
-            channel_names: names,
-        })
-    }
-
-    pub(crate) fn raw(&self, bytes: Vec<u8>) -> Result<pb::Samples, Failure> {
-        let fs = self.rate("raw")?;
-        let format = match self.raw_format {
+    /// The encoding of a raw file.
+    pub(crate) fn sample_format(&self) -> pb::SampleFormat {
+        match self.raw_format {
             RawFormat::F32 => pb::SampleFormat::F32Le,
             RawFormat::F64 => pb::SampleFormat::F64Le,
             RawFormat::I16 => pb::SampleFormat::I16Le,
             RawFormat::I32 => pb::SampleFormat::I32Le,
-        };
-        Ok(pb::Samples {
-            sample_rate_hz: fs,
-            channel_count: self.channels,
-            layout: match self.layout {
-                LayoutArg::Interleaved => pb::ChannelLayout::Interleaved,
-                LayoutArg::Planar => pb::ChannelLayout::Planar,
-            } as i32,
-            data: Some(pb::samples::Data::Raw(pb::RawSamples { data: bytes.into(), format: format as i32 })),
-            calibration: Some(self.calibration()?),
-            channel_names: Vec::new(),
-        })
+        }
+    }
+
+    /// The channel layout of a raw file.
+    pub(crate) fn channel_layout(&self) -> pb::ChannelLayout {
+        match self.layout {
+            LayoutArg::Interleaved => pb::ChannelLayout::Interleaved,
+            LayoutArg::Planar => pb::ChannelLayout::Planar,
+        }
     }
 }
 
@@ -300,6 +223,27 @@ mod tests {
         assert_eq!(v.values, vec![0.5, 1.5, -1.0, 2.0], "column by column");
         let e = parse(&format!("{} --in-pascals", f.display())).read().unwrap_err();
         assert!(matches!(e, Failure::Usage(ref m) if m.contains("--sample-rate-hz")), "{e:?}");
+        let _ = std::fs::remove_dir_all(dir);
+    }
+
+    #[test]
+    fn a_raw_file_keeps_its_encoding_channels_and_layout() {
+        let dir = std::env::temp_dir().join(format!("jetloop-raw-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).expect("dir");
+        let f = dir.join("daq.bin");
+        std::fs::write(&f, [1u8, 0, 2, 0, 3, 0, 4, 0]).expect("write");
+        let args = format!(
+            "{} --raw-format i16 --channels 2 --layout planar --sample-rate-hz 102400 --pa-per-unit 0.0847",
+            f.display()
+        );
+        let s = parse(&args).read().expect("samples");
+        assert_eq!((s.sample_rate_hz, s.channel_count), (102_400.0, 2));
+        assert_eq!(s.layout, pb::ChannelLayout::Planar as i32);
+        assert_eq!(s.calibration.and_then(|c| c.scale), Some(pb::calibration::Scale::PascalsPerUnit(0.0847)));
+        let Some(pb::samples::Data::Raw(r)) = s.data else { panic!("{:?}", s.data) };
+        assert_eq!((r.format, r.data.len()), (pb::SampleFormat::I16Le as i32, 8));
+        let e = parse(&format!("{} --in-pascals", f.display())).read().unwrap_err();
+        assert!(matches!(e, Failure::Usage(ref m) if m == "raw files need --sample-rate-hz"), "{e:?}");
         let _ = std::fs::remove_dir_all(dir);
     }
 }

@@ -83,6 +83,10 @@ pub struct JetArgs {
     pub(crate) ideal_tolerance: Option<f64>,
 }
 
+/// The value of `flag`, which `--nozzle nozzle` needs.
+///
+/// # Errors
+/// [`Failure::Usage`] naming the missing flag.
 pub(crate) fn need(v: Option<f64>, flag: &str, nozzle: &str) -> Result<f64, Failure> {
     v.ok_or_else(|| Failure::Usage(format!("--nozzle {nozzle} needs {flag}")))
 }
@@ -99,6 +103,7 @@ impl JetArgs {
         self.conditions_inner(true)
     }
 
+    /// The jet conditions; with `pressure_optional` a missing pressure is left unset.
     pub(crate) fn conditions_inner(&self, pressure_optional: bool) -> Result<pb::JetConditions, Failure> {
         use pb::round_convergent_divergent_nozzle::Design;
         let kind = match self.nozzle {
@@ -187,6 +192,7 @@ impl JetArgs {
 #[command(allow_negative_numbers = true)]
 pub struct JetSourceArgs {
     #[command(flatten)]
+    /// The nozzle, operating point and gases (the jet with --npr or a pressure).
     pub(crate) conditions: JetArgs,
     /// Give the fully expanded jet directly: its Mach number (then --dj-m, or --hj-m [--bj-m]).
     #[arg(long, conflicts_with_all = ["npr", "total_pressure_pa"])]
@@ -257,6 +263,7 @@ pub struct CellArgs {
 }
 
 impl CellArgs {
+    /// The shock-cell options message (unset ones left to the server).
     pub(crate) fn options(&self) -> pb::CellOptions {
         pb::CellOptions { spacing_factor: self.spacing_factor, modes: self.modes, shock_count: self.shocks }
     }
@@ -274,6 +281,7 @@ pub struct ConvectionArgs {
 }
 
 impl ConvectionArgs {
+    /// The convection speed given (a ratio Uc/Uj or a speed in m/s), if any.
     pub(crate) fn convection(&self) -> Option<pb::Convection> {
         use pb::convection::Speed;
         let speed = match (self.convection_ratio, self.convection_speed_m_per_s) {
@@ -290,8 +298,10 @@ impl ConvectionArgs {
 #[command(allow_negative_numbers = true)]
 pub struct ScreechArgs {
     #[command(flatten)]
+    /// Convection speed of the loop.
     pub(crate) convection: ConvectionArgs,
     #[command(flatten)]
+    /// Shock-cell model options.
     pub(crate) cells: CellArgs,
     /// Loop source at the end of this many shock cells (server default 1).
     #[arg(long, conflicts_with = "source_distance_m")]
@@ -318,6 +328,8 @@ pub struct ScreechArgs {
 }
 
 impl ScreechArgs {
+    /// The screech options message: convection, cells, the feedback loop (source, reflector,
+    /// fixed delays in s, highest order), harmonics and the guided-mode model.
     pub(crate) fn options(&self) -> pb::ScreechOptions {
         use pb::feedback_loop::Source as S;
         let source = match (self.source_cells, self.source_distance_m) {

@@ -2,6 +2,7 @@
 //! curve, distance, air absorption) and microphone positions on a ring.
 
 use crate::failure::Failure;
+use crate::readers::read_curve;
 use clap::Args;
 use clap::ValueEnum;
 use jetloop_proto::pb;
@@ -38,6 +39,7 @@ pub struct WelchArgs {
 }
 
 impl WelchArgs {
+    /// The Welch options message; options not given are left for the server to choose.
     pub fn options(&self) -> pb::WelchOptions {
         use pb::welch_options::Segment;
         pb::WelchOptions {
@@ -87,7 +89,11 @@ pub struct CorrectionArgs {
 }
 
 impl CorrectionArgs {
-    /// The corrections message, or none when no option was given.
+    /// The corrections message (one channel correction per --mic-distance-m value, each
+    /// with every response curve), or none when no option was given.
+    ///
+    /// # Errors
+    /// [`Failure::Usage`] when a response curve file cannot be read.
     pub fn corrections(&self) -> Result<Option<pb::LevelCorrections>, Failure> {
         if self.response_curve.is_empty() && self.reference_distance_m.is_none() {
             return Ok(None);
@@ -113,38 +119,7 @@ impl CorrectionArgs {
     }
 }
 
-/// Reads a response curve CSV (header row, then frequency_hz,correction_db).
-pub(crate) fn read_curve(path: &std::path::Path) -> Result<pb::ResponseCurve, Failure> {
-    let text = std::fs::read_to_string(path)
-        .map_err(|e| Failure::Usage(format!("cannot read {}: {e}", path.display())))?;
-    let (mut frequencies_hz, mut corrections_db) = (Vec::new(), Vec::new());
-    let mut header = false;
-    for (i, line) in text.lines().enumerate() {
-        let line = line.trim();
-        if line.is_empty() || line.starts_with('#') {
-            continue;
-        }
-        let cells: Vec<&str> = line.split(',').map(str::trim).collect();
-        match (cells.first().map(|c| c.parse::<f64>()), cells.get(1).map(|c| c.parse::<f64>())) {
-            (Some(Ok(f)), Some(Ok(db))) if cells.len() == 2 => {
-                frequencies_hz.push(f);
-                corrections_db.push(db);
-            }
-            _ if frequencies_hz.is_empty() && !header => header = true, // the header row
-            _ => {
-                return Err(Failure::Usage(format!(
-                    "{} line {}: expected frequency_hz,correction_db",
-                    path.display(),
-                    i + 1
-                )))
-            }
-        }
-    }
-    let name = path.file_stem().and_then(|s| s.to_str()).unwrap_or("curve").chars().take(64).collect();
-    Ok(pb::ResponseCurve { name, frequencies_hz, corrections_db })
-}
-
-/// Microphone positions from azimuths alone (degrees).
+/// Microphone positions from azimuths alone (degrees); polar angle and distance unset.
 pub(crate) fn positions(azimuths_deg: &[f64]) -> Vec<pb::MicrophonePosition> {
     azimuths_deg
         .iter()
@@ -195,24 +170,6 @@ mod tests {
         let a = c.atmosphere.expect("atmosphere");
         assert_eq!((a.temperature_k, a.relative_humidity_percent, a.pressure_pa), (293.15, 50.0, None));
         assert!(parse("").corrections.corrections().expect("none").is_none());
-    }
-
-    #[test]
-    fn a_response_curve_file_is_read_with_its_header_and_a_bad_line_is_named() {
-        let dir = std::env::temp_dir().join(format!("jetloop-curve-{}", std::process::id()));
-        std::fs::create_dir_all(&dir).expect("dir");
-        let good = dir.join("quarter-inch.csv");
-        std::fs::write(&good, "frequency_hz,correction_db\n1000,0.1\n10000,1.5\n").expect("write");
-        let c = read_curve(&good).expect("curve");
-        assert_eq!(
-            (c.name.as_str(), c.frequencies_hz, c.corrections_db),
-            ("quarter-inch", vec![1000.0, 10000.0], vec![0.1, 1.5])
-        );
-        let bad = dir.join("bad.csv");
-        std::fs::write(&bad, "frequency_hz,correction_db\n1000,0.1\n2000\n").expect("write");
-        let e = read_curve(&bad).unwrap_err();
-        assert!(matches!(e, Failure::Usage(ref m) if m.contains("line 3")), "{e:?}");
-        let _ = std::fs::remove_dir_all(dir);
     }
 
     #[test]

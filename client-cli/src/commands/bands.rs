@@ -6,12 +6,10 @@ use crate::args::spectral::WelchArgs;
 use crate::commands::Run;
 use crate::connect::Ctx;
 use crate::failure::Failure;
-use crate::readers::spinner;
 use crate::render::charts::bands_plot;
+use crate::render::progress::spinner;
 use crate::render::report::Report;
-use crate::render::rows::band_table;
-use crate::render::rows::caution_rows;
-use crate::render::rows::correction_rows;
+use crate::render::spectra::bands_report;
 use clap::Args;
 use jetloop_proto::pb;
 use jetloop_proto::pb::spectrum_service_client::SpectrumServiceClient;
@@ -20,10 +18,13 @@ use std::path::PathBuf;
 /// `jetloop bands`.
 #[derive(Debug, Args)]
 pub struct BandsCmd {
+    /// The recording and its calibration.
     #[command(flatten)]
     input: InputArgs,
+    /// Welch (PSD) options.
     #[command(flatten)]
     welch: WelchArgs,
+    /// Level corrections.
     #[command(flatten)]
     corrections: CorrectionArgs,
     /// Highest band centre in Hz (server default 100000).
@@ -34,42 +35,35 @@ pub struct BandsCmd {
     plot: Option<PathBuf>,
 }
 
+impl BandsCmd {
+    /// The BandLevels request for `samples` (the recording read): Welch options, highest
+    /// band (Hz) and level corrections.
+    ///
+    /// # Errors
+    /// [`Failure::Usage`] when a response curve cannot be read.
+    pub(crate) fn request(&self, samples: pb::Samples) -> Result<pb::BandLevelsRequest, Failure> {
+        Ok(pb::BandLevelsRequest {
+            samples: Some(samples),
+            welch: Some(self.welch.options()),
+            max_band_frequency_hz: self.max_band_hz,
+            corrections: self.corrections.corrections()?,
+        })
+    }
+}
+
 /// Runs `bands`.
 impl Run for BandsCmd {
     async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
         let (ch, a) = (ctx.channel().await?, self);
         let samples = a.input.read()?;
+        let request = a.request(samples)?;
         let s = spinner("uploading and analysing on the server");
         let r = SpectrumServiceClient::new(ch)
             .max_encoding_message_size(256 * 1024 * 1024)
-            .band_levels(pb::BandLevelsRequest {
-                samples: Some(samples),
-                welch: Some(a.welch.options()),
-                max_band_frequency_hz: a.max_band_hz,
-                corrections: a.corrections.corrections()?,
-            })
+            .band_levels(request)
             .await;
         s.finish_and_clear();
         let r = r?.into_inner();
-        let mut top = Report::new(format!("Band levels of {}", a.input.file.display()));
-        for c in &r.channels {
-            let label = if c.name.is_empty() { format!("channel {}", c.channel) } else { c.name.clone() };
-            let b = c.bands.clone().unwrap_or_default();
-            let mut rep = Report::new(format!("-- {label}"))
-                .text("channel", "channel", label)
-                .num("overall_level_db", "overall level", b.overall_level_db, "dB re 20 uPa")
-                .num("a_weighted_overall_db", "A-weighted overall", b.a_weighted_overall_db, "dB(A)")
-                .num(
-                    "outside_span_level_db",
-                    "level outside the bands",
-                    b.outside_span_level_db,
-                    "dB re 20 uPa",
-                )
-                .table(band_table(&b));
-            rep = correction_rows(rep, &c.corrections_applied);
-            rep = caution_rows(rep, &c.cautions);
-            top = top.child(rep);
-        }
         if let Some(path) = &a.plot {
             crate::render::plot::write_plot(
                 path,
@@ -78,6 +72,26 @@ impl Run for BandsCmd {
             .map_err(Failure::Usage)?;
             eprintln!("wrote {}", path.display());
         }
-        Ok(top.provenance(r.provenance))
+        Ok(bands_report(r, &a.input.file))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    //! Command line -> BandLevels request, without a server.
+
+    use super::*;
+
+    #[test]
+    fn the_highest_band_the_welch_options_and_the_distances_reach_the_request() {
+        let line = "bands mics.csv --sample-rate-hz 51200 --in-pascals --max-band-hz 10000 --overlap 0.75 \
+                    --mic-distance-m 2,3 --reference-distance-m 1";
+        let crate::Command::Bands(a) = crate::tests::command(line) else { panic!("not bands") };
+        let r = a.request(pb::Samples::default()).expect("request");
+        assert_eq!(r.max_band_frequency_hz, Some(10_000.0));
+        assert_eq!(r.welch.and_then(|w| w.overlap_fraction), Some(0.75));
+        let c = r.corrections.expect("corrections");
+        assert_eq!(c.channels.iter().map(|x| x.distance_m).collect::<Vec<_>>(), vec![Some(2.0), Some(3.0)]);
+        assert_eq!(c.reference_distance_m, Some(1.0));
     }
 }

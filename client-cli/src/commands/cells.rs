@@ -7,9 +7,7 @@ use crate::connect::Ctx;
 use crate::failure::Failure;
 use crate::render::charts::cells_plot;
 use crate::render::report::Report;
-use crate::render::report::Table;
-use crate::render::report::Val;
-use crate::render::rows::jet_rows;
+use crate::render::screech::cells_report;
 use clap::Args;
 use jetloop_proto::pb;
 use jetloop_proto::pb::shock_cell_service_client::ShockCellServiceClient;
@@ -18,8 +16,10 @@ use jetloop_proto::pb::shock_cell_service_client::ShockCellServiceClient;
 #[derive(Debug, Args)]
 #[command(allow_negative_numbers = true)]
 pub struct CellsCmd {
+    /// The jet: nozzle and operating point, or the fully expanded state.
     #[command(flatten)]
     jet: JetSourceArgs,
+    /// Shock-cell model options.
     #[command(flatten)]
     cells: CellArgs,
     /// Write the shock positions along the jet as a plot (SVG, or PNG for a .png name).
@@ -27,53 +27,54 @@ pub struct CellsCmd {
     plot: Option<std::path::PathBuf>,
 }
 
+impl CellsCmd {
+    /// The CellSpacing request: the jet and the shock-cell options.
+    ///
+    /// # Errors
+    /// [`Failure::Usage`] when the jet is incompletely given.
+    pub(crate) fn request(&self) -> Result<pb::CellSpacingRequest, Failure> {
+        Ok(pb::CellSpacingRequest { jet: Some(self.jet.input()?), options: Some(self.cells.options()) })
+    }
+}
+
 /// Runs `cells`.
 impl Run for CellsCmd {
     async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
         let (ch, a) = (ctx.channel().await?, self);
-        let r = ShockCellServiceClient::new(ch)
-            .cell_spacing(pb::CellSpacingRequest {
-                jet: Some(a.jet.input()?),
-                options: Some(a.cells.options()),
-            })
-            .await?
-            .into_inner();
-        let mut modes = Table::new("modes", "Waveguide modes")
-            .col("mode", "mode")
-            .col("vortex_sheet_spacing_m", "vortex sheet [m]")
-            .col("spacing_m", "spacing [m]")
-            .col("spacing_over_reference_length", "spacing / L")
-            .col("bessel_zero", "j0,n");
-        for m in &r.modes {
-            modes.row(vec![
-                Some(Val::Int(m.mode.into())),
-                Some(Val::Num(m.vortex_sheet_spacing_m)),
-                Some(Val::Num(m.spacing_m)),
-                Some(Val::Num(m.spacing_over_reference_length)),
-                m.bessel_zero.map(Val::Num),
-            ]);
-        }
-        let mut shocks = Table::new("shocks", "Shock positions (fundamental mode)")
-            .col("index", "shock")
-            .col("axial_position_m", "x [m]")
-            .col("axial_position_over_reference_length", "x / L");
-        for s in &r.shocks {
-            shocks.row(vec![
-                Some(Val::Int(s.index.into())),
-                Some(Val::Num(s.axial_position_m)),
-                Some(Val::Num(s.axial_position_over_reference_length)),
-            ]);
-        }
-        let rep = jet_rows(Report::new("Shock cells (vortex-sheet model)"), &r.jet).num(
-            "spacing_factor",
-            "spacing factor",
-            r.spacing_factor,
-            "",
-        );
+        let r = ShockCellServiceClient::new(ch).cell_spacing(a.request()?).await?.into_inner();
         if let Some(path) = &a.plot {
             crate::render::plot::write_plot(path, &cells_plot(&r)).map_err(Failure::Usage)?;
             eprintln!("wrote {}", path.display());
         }
-        Ok(rep.table(modes).table(shocks).provenance(r.provenance))
+        Ok(cells_report(r))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    //! Command line -> CellSpacing request, without a server.
+
+    use super::*;
+
+    fn request(line: &str) -> Result<pb::CellSpacingRequest, Failure> {
+        let crate::Command::Cells(a) = crate::tests::command(line) else { panic!("{line}") };
+        a.request()
+    }
+
+    #[test]
+    fn the_cell_options_and_a_planar_jet_given_directly_reach_the_request() {
+        let r =
+            request("cells --mj 1.4 --hj-m 0.01 --modes 3 --shocks 6 --spacing-factor 0.8").expect("request");
+        assert_eq!(
+            r.options,
+            Some(pb::CellOptions { spacing_factor: Some(0.8), modes: Some(3), shock_count: Some(6) })
+        );
+        let Some(pb::jet_input::Source::FullyExpanded(j)) = r.jet.and_then(|j| j.source) else {
+            panic!("not a fully expanded jet")
+        };
+        assert_eq!(j.fully_expanded_mach_number, 1.4);
+        assert_eq!(j.size, Some(pb::fully_expanded_jet::Size::PlanarHeightM(0.01)));
+        let e = request("cells --mj 1.4").unwrap_err();
+        assert!(matches!(e, Failure::Usage(ref m) if m.contains("--dj-m")), "{e:?}");
     }
 }

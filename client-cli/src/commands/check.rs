@@ -38,19 +38,27 @@ pub struct CheckCmd {
 /// One expected value.
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct Expect {
+    /// Path into the JSON answer (`a.b`, `a[0].b`).
     key: String,
+    /// The expected value.
     value: f64,
+    /// How far the answer may be from it.
     tolerance: Tolerance,
+    /// The published source of the value.
     source: String,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq)]
+/// How far a value may be from the expected one.
 pub(crate) enum Tolerance {
+    /// At most this far (in the value's unit).
     Abs(f64),
+    /// At most this fraction of the expected value.
     Rel(f64),
 }
 
 impl Tolerance {
+    /// True when `got` is within the tolerance of `want`.
     fn allows(self, want: f64, got: f64) -> bool {
         match self {
             Tolerance::Abs(t) => (got - want).abs() <= t,
@@ -58,6 +66,7 @@ impl Tolerance {
         }
     }
 
+    /// The tolerance as table text.
     fn text(self) -> String {
         match self {
             Tolerance::Abs(t) => format!("± {t:e}"),
@@ -69,12 +78,22 @@ impl Tolerance {
 /// One case: a command line and its expected values.
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct Case {
+    /// The case file it came from.
     file: String,
+    /// Its name.
     name: String,
+    /// The `jetloop` command line, without the program name.
     args: Vec<String>,
+    /// The values the answer must hold.
     expects: Vec<Expect>,
 }
 
+/// The cases of the case file `file` (its text `text`), with `{dir}` in arguments replaced
+/// by the file's folder.
+///
+/// # Errors
+/// [`Failure::Usage`] naming the file and case for TOML that is not a case file, a case
+/// without arguments or expected values, or a value without a tolerance or source.
 pub(crate) fn parse_cases(file: &str, text: &str) -> Result<Vec<Case>, Failure> {
     let dir = std::path::Path::new(file).parent().map_or(".".to_string(), |d| {
         if d.as_os_str().is_empty() {
@@ -150,11 +169,15 @@ pub(crate) fn lookup<'a>(v: &'a Value, path: &str) -> Option<&'a Value> {
 
 /// The outcome of one expected value.
 pub(crate) struct Outcome {
+    /// The value found in the answer, if any.
     got: Option<f64>,
+    /// True when it is within the tolerance.
     pass: bool,
+    /// Why it failed, when it could not be compared.
     note: String,
 }
 
+/// Compares the expected value `e` with the `answer` (the command's JSON, or why it failed).
 pub(crate) fn judge(answer: &Result<Value, String>, e: &Expect) -> Outcome {
     match answer {
         Err(m) => Outcome { got: None, pass: false, note: m.clone() },

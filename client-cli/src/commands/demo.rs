@@ -51,6 +51,8 @@ pub struct DemoCmd {
     small: bool,
 }
 
+/// The scenario's jet: the round convergent nozzle ([`DIAMETER_M`]) at NPR 3 (sweeps set
+/// the NPR per point).
 pub(crate) fn jet() -> pb::JetInput {
     pb::JetInput {
         source: Some(pb::jet_input::Source::Conditions(pb::JetConditions {
@@ -92,6 +94,10 @@ pub(crate) fn microphone(f: f64, seconds: f64, seed: u64) -> Vec<u8> {
     out
 }
 
+/// Writes `text` to `path`.
+///
+/// # Errors
+/// [`Failure::Usage`] when the file cannot be written.
 pub(crate) fn write(path: &std::path::Path, text: &str) -> Result<(), Failure> {
     std::fs::write(path, text).map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))
 }
@@ -288,5 +294,27 @@ impl Run for DemoCmd {
         .table(t);
         write(&self.out.join("summary.txt"), &summary.to_table())?;
         Ok(summary)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    //! The scenario's fixed inputs, without a server.
+
+    use super::*;
+
+    #[test]
+    fn the_scenario_jet_is_the_convergent_nozzle_and_the_microphone_is_seeded() {
+        let Some(pb::jet_input::Source::Conditions(c)) = jet().source else { panic!("not conditions") };
+        assert_eq!(
+            c.nozzle.and_then(|n| n.kind),
+            Some(pb::nozzle::Kind::RoundConvergent(pb::RoundConvergentNozzle {
+                exit_diameter_m: DIAMETER_M
+            }))
+        );
+        let m = microphone(5000.0, 0.01, 1);
+        assert_eq!(m.len(), 4 * 512, "0.01 s at 51.2 kHz as f32");
+        assert_eq!(m, microphone(5000.0, 0.01, 1), "the same seed, the same signal");
+        assert_ne!(m, microphone(5000.0, 0.01, 2));
     }
 }

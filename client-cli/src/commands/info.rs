@@ -8,11 +8,11 @@ use clap::Args;
 use jetloop_proto::pb;
 use jetloop_proto::pb::info_service_client::InfoServiceClient;
 
-/// Runs `info`.
 /// `jetloop info`: no arguments.
 #[derive(Debug, Args)]
 pub struct InfoCmd {}
 
+/// Runs `info`.
 impl Run for InfoCmd {
     async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
         let ch = ctx.channel().await?;

@@ -3,6 +3,7 @@
 use crate::commands::Run;
 use crate::connect::Ctx;
 use crate::failure::Failure;
+use crate::render::gas::isentropic_report;
 use crate::render::report::Report;
 use clap::Args;
 use clap::ValueEnum;
@@ -54,41 +55,61 @@ pub struct IsentropicArgs {
     gamma: Option<f64>,
 }
 
-/// Runs `isentropic`.
-impl Run for IsentropicArgs {
-    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
-        let (ch, a) = (ctx.channel().await?, self);
+impl IsentropicArgs {
+    /// The IsentropicRatios request: the one quantity given, the root for an area ratio and
+    /// gamma (unset ones left to the server).
+    pub(crate) fn request(&self) -> pb::IsentropicRatiosRequest {
         let given = [
-            a.mach.map(Given::MachNumber),
-            a.temperature_ratio.map(Given::TemperatureRatio),
-            a.pressure_ratio.map(Given::PressureRatio),
-            a.density_ratio.map(Given::DensityRatio),
-            a.area_ratio.map(Given::AreaRatio),
-            a.mach_angle_deg.map(Given::MachAngleDeg),
-            a.prandtl_meyer_deg.map(Given::PrandtlMeyerAngleDeg),
+            self.mach.map(Given::MachNumber),
+            self.temperature_ratio.map(Given::TemperatureRatio),
+            self.pressure_ratio.map(Given::PressureRatio),
+            self.density_ratio.map(Given::DensityRatio),
+            self.area_ratio.map(Given::AreaRatio),
+            self.mach_angle_deg.map(Given::MachAngleDeg),
+            self.prandtl_meyer_deg.map(Given::PrandtlMeyerAngleDeg),
         ]
         .into_iter()
         .flatten()
         .next();
-        let branch = match a.branch {
+        let branch = match self.branch {
             None => pb::MachBranch::Unspecified,
             Some(BranchArg::Subsonic) => pb::MachBranch::Subsonic,
             Some(BranchArg::Supersonic) => pb::MachBranch::Supersonic,
         };
-        let r = GasDynamicsServiceClient::new(ch)
-            .isentropic_ratios(pb::IsentropicRatiosRequest { gamma: a.gamma, given, branch: branch as i32 })
-            .await?
-            .into_inner();
-        Ok(Report::new("Isentropic flow")
-            .num("gamma", "gamma", r.gamma, "")
-            .num("mach_number", "Mach number", r.mach_number, "")
-            .num("temperature_ratio", "T/T0", r.temperature_ratio, "")
-            .num("pressure_ratio", "p/p0", r.pressure_ratio, "")
-            .num("density_ratio", "rho/rho0", r.density_ratio, "")
-            .num("area_ratio", "A/A*", r.area_ratio, "")
-            .num("critical_velocity_ratio", "V/a*", r.critical_velocity_ratio, "")
-            .opt("mach_angle_deg", "Mach angle", r.mach_angle_deg, "deg")
-            .opt("prandtl_meyer_angle_deg", "Prandtl-Meyer angle", r.prandtl_meyer_angle_deg, "deg")
-            .provenance(r.provenance))
+        pb::IsentropicRatiosRequest { gamma: self.gamma, given, branch: branch as i32 }
+    }
+}
+
+/// Runs `isentropic`.
+impl Run for IsentropicArgs {
+    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
+        let (ch, a) = (ctx.channel().await?, self);
+        let r = GasDynamicsServiceClient::new(ch).isentropic_ratios(a.request()).await?.into_inner();
+        Ok(isentropic_report(r))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    //! Command line -> IsentropicRatios request, without a server.
+
+    use super::*;
+
+    fn request(line: &str) -> pb::IsentropicRatiosRequest {
+        let crate::Command::Isentropic(a) = crate::tests::command(line) else { panic!("{line}") };
+        a.request()
+    }
+
+    #[test]
+    fn the_quantity_given_its_branch_and_gamma_reach_the_request() {
+        let r = request("isentropic --mach 2");
+        assert_eq!((r.given, r.gamma), (Some(Given::MachNumber(2.0)), None));
+        assert_eq!(r.branch, pb::MachBranch::Unspecified as i32, "the server picks the root");
+        let r = request("isentropic --area-ratio 1.6875 --branch subsonic");
+        assert_eq!(r.given, Some(Given::AreaRatio(1.6875)));
+        assert_eq!(r.branch, pb::MachBranch::Subsonic as i32);
+        let r = request("isentropic --prandtl-meyer-deg 26.38 --gamma 1.3");
+        assert_eq!((r.given, r.gamma), (Some(Given::PrandtlMeyerAngleDeg(26.38)), Some(1.3)));
+        assert_eq!(request("isentropic --pressure-ratio 0.5").given, Some(Given::PressureRatio(0.5)));
     }
 }

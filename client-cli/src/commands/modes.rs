@@ -6,7 +6,7 @@ use crate::connect::Ctx;
 use crate::failure::Failure;
 use crate::render::charts::dispersion_plot;
 use crate::render::report::Report;
-use crate::render::rows::mode_tables;
+use crate::render::screech::modes_report;
 use clap::Args;
 use jetloop_proto::pb;
 use jetloop_proto::pb::tone_service_client::ToneServiceClient;
@@ -47,57 +47,86 @@ pub struct ModesCmd {
     plot: Option<PathBuf>,
 }
 
-/// Runs `modes`.
-impl Run for ModesCmd {
-    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
-        let (ch, a) = (ctx.channel().await?, self);
+impl ModesCmd {
+    /// The GuidedModes request: a dimensionless vortex sheet (--mj with a temperature ratio),
+    /// else the jet given; the closure options and the points per dispersion curve.
+    ///
+    /// # Errors
+    /// [`Failure::Usage`] when the jet is incompletely given.
+    pub(crate) fn request(&self) -> Result<pb::GuidedModesRequest, Failure> {
         use pb::guided_modes_request::Source;
         use pb::vortex_sheet_jet::Temperature;
-        let temperature = match (a.tj_over_ta, a.t0_over_ta) {
+        let temperature = match (self.tj_over_ta, self.t0_over_ta) {
             (Some(t), _) => Some(Temperature::StaticTemperatureRatio(t)),
             (None, Some(t)) => Some(Temperature::TotalTemperatureRatio(t)),
             _ => None,
         };
-        let source = match (temperature, a.jet.mach()) {
+        let source = match (temperature, self.jet.mach()) {
             (Some(t), Some(mj)) => Source::VortexSheet(pb::VortexSheetJet {
                 fully_expanded_mach_number: mj,
                 temperature: Some(t),
                 gamma: None,
-                geometry: if a.planar { pb::SheetGeometry::Planar } else { pb::SheetGeometry::Round } as i32,
+                geometry: if self.planar { pb::SheetGeometry::Planar } else { pb::SheetGeometry::Round }
+                    as i32,
             }),
-            _ => Source::Jet(a.jet.input()?),
+            _ => Source::Jet(self.jet.input()?),
         };
-        let r = ToneServiceClient::new(ch)
-            .guided_modes(pb::GuidedModesRequest {
-                source: Some(source),
-                options: Some(pb::GuidedModeOptions {
-                    modes: Vec::new(),
-                    convection_ratio: a.convection_ratio,
-                    spacing_factor: a.spacing_factor,
-                    cell_modes: a.cell_modes,
-                }),
-                curve_points: a.curve_points,
-            })
-            .await?
-            .into_inner();
-        let sheet = r.sheet.unwrap_or_default();
-        let hz = sheet.reference_length_m.is_some();
-        let (bands, tones) = mode_tables(&r.modes, hz);
+        Ok(pb::GuidedModesRequest {
+            source: Some(source),
+            options: Some(pb::GuidedModeOptions {
+                modes: Vec::new(),
+                convection_ratio: self.convection_ratio,
+                spacing_factor: self.spacing_factor,
+                cell_modes: self.cell_modes,
+            }),
+            curve_points: self.curve_points,
+        })
+    }
+}
+
+/// Runs `modes`.
+impl Run for ModesCmd {
+    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
+        let (ch, a) = (ctx.channel().await?, self);
+        let r = ToneServiceClient::new(ch).guided_modes(a.request()?).await?.into_inner();
         if let Some(path) = &a.plot {
+            let sheet = r.sheet.unwrap_or_default();
             crate::render::plot::write_plot(path, &dispersion_plot(&r, &sheet)).map_err(Failure::Usage)?;
             eprintln!("wrote {}", path.display());
         }
-        Ok(Report::new(format!(
-            "Guided jet modes, Mj {:.4} ({})",
-            sheet.fully_expanded_mach_number,
-            if sheet.round { "round" } else { "planar" }
-        ))
-        .num("sound_speed_ratio", "a_ambient / aj", sheet.sound_speed_ratio, "")
-        .num("density_ratio", "rho_j / rho_ambient", sheet.density_ratio, "")
-        .num("convection_ratio", "Uc / Uj", r.convection_ratio, "")
-        .num("spacing_factor", "spacing factor", r.spacing_factor, "")
-        .table(bands)
-        .table(tones)
-        .provenance(r.provenance))
+        Ok(modes_report(r))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    //! Command line -> GuidedModes request, without a server.
+
+    use super::*;
+    use pb::guided_modes_request::Source;
+
+    fn request(line: &str) -> Result<pb::GuidedModesRequest, Failure> {
+        let crate::Command::Modes(a) = crate::tests::command(line) else { panic!("{line}") };
+        a.request()
+    }
+
+    #[test]
+    fn mj_with_a_temperature_ratio_is_a_dimensionless_vortex_sheet() {
+        let r = request("modes --mj 1.3 --t0-over-ta 1 --planar --curve-points 20 --cell-modes 3")
+            .expect("request");
+        let Some(Source::VortexSheet(v)) = r.source else { panic!("{:?}", r.source) };
+        assert_eq!(v.fully_expanded_mach_number, 1.3);
+        assert_eq!(v.temperature, Some(pb::vortex_sheet_jet::Temperature::TotalTemperatureRatio(1.0)));
+        assert_eq!(v.geometry, pb::SheetGeometry::Planar as i32);
+        assert_eq!(r.curve_points, Some(20));
+        assert_eq!(r.options.and_then(|o| o.cell_modes), Some(3));
+    }
+
+    #[test]
+    fn a_nozzle_at_an_npr_is_sent_as_the_jet() {
+        let r = request("modes --diameter-m 0.0254 --npr 3 --spacing-factor 0.8").expect("request");
+        let Some(Source::Jet(j)) = r.source else { panic!("{:?}", r.source) };
+        assert!(matches!(j.source, Some(pb::jet_input::Source::Conditions(_))), "{j:?}");
+        assert_eq!(r.options.and_then(|o| o.spacing_factor), Some(0.8));
     }
 }

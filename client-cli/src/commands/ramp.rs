@@ -6,9 +6,12 @@ use crate::args::spectral::WelchArgs;
 use crate::commands::Run;
 use crate::connect::Ctx;
 use crate::failure::Failure;
+use crate::render::progress::spinner;
 use crate::render::report::Report;
-use crate::render::report::Table;
-use crate::render::report::Val;
+use crate::render::tracks::ramp_points_csv;
+use crate::render::tracks::ramp_report;
+use crate::render::tracks::ramp_title;
+use crate::render::tracks::ramp_written_report;
 use clap::Args;
 use clap::ValueEnum;
 use jetloop_proto::pb;
@@ -29,8 +32,10 @@ pub enum ControlArg {
 /// `jetloop ramp`.
 #[derive(Debug, Args)]
 pub struct RampCmd {
+    /// The recording and its calibration.
     #[command(flatten)]
     input: InputArgs,
+    /// Welch (PSD) options.
     #[command(flatten)]
     welch: WelchArgs,
     /// Channel (0-based) that carries the control signal; the others are microphones.
@@ -63,98 +68,78 @@ pub struct RampCmd {
     points_csv: Option<PathBuf>,
 }
 
+impl RampCmd {
+    /// The AnalyseRamp request for `samples` (the recording read): the control channel and
+    /// its scaling, the frame length (s), the Welch options and the fit channel.
+    pub(crate) fn request(&self, samples: pb::Samples) -> pb::AnalyseRampRequest {
+        pb::AnalyseRampRequest {
+            samples: Some(samples),
+            control: Some(pb::ControlChannel {
+                channel: self.control_channel,
+                quantity: match self.control {
+                    ControlArg::Npr => pb::ControlQuantity::NozzlePressureRatio,
+                    ControlArg::GaugePa => pb::ControlQuantity::ReservoirGaugePressurePa,
+                    ControlArg::AbsolutePa => pb::ControlQuantity::ReservoirAbsolutePressurePa,
+                } as i32,
+                units_per_sample: self.control_per_unit,
+                offset: self.control_offset,
+                ambient_pressure_pa: self.ambient_pressure_pa,
+            }),
+            frame_duration_s: self.frame_s,
+            welch: Some(self.welch.options()),
+            tones: None,
+            fit_channel: self.fit_channel,
+        }
+    }
+}
+
+/// Runs `ramp`; the fit points, when asked for, are written here.
 impl Run for RampCmd {
     async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
         let (ch, a) = (ctx.channel().await?, self);
         let samples = a.input.read()?;
-        let s = crate::readers::spinner("uploading and analysing the ramp on the server");
+        let s = spinner("uploading and analysing the ramp on the server");
         let r = SpectrumServiceClient::new(ch)
             .max_encoding_message_size(256 * 1024 * 1024)
-            .analyse_ramp(pb::AnalyseRampRequest {
-                samples: Some(samples),
-                control: Some(pb::ControlChannel {
-                    channel: a.control_channel,
-                    quantity: match a.control {
-                        ControlArg::Npr => pb::ControlQuantity::NozzlePressureRatio,
-                        ControlArg::GaugePa => pb::ControlQuantity::ReservoirGaugePressurePa,
-                        ControlArg::AbsolutePa => pb::ControlQuantity::ReservoirAbsolutePressurePa,
-                    } as i32,
-                    units_per_sample: a.control_per_unit,
-                    offset: a.control_offset,
-                    ambient_pressure_pa: a.ambient_pressure_pa,
-                }),
-                frame_duration_s: a.frame_s,
-                welch: Some(a.welch.options()),
-                tones: None,
-                fit_channel: a.fit_channel,
-            })
+            .analyse_ramp(a.request(samples))
             .await;
         s.finish_and_clear();
         let r = r?.into_inner();
-        let title = format!(
-            "Ramp in {} ({} frames, {:.1} ms server time)",
-            a.input.file.display(),
-            r.frames.len(),
-            r.compute_time_s * 1e3
-        );
+        let title = ramp_title(&r, &a.input.file);
         if let Some(path) = &a.points_csv {
-            let mut csv = String::from("npr,frequency_hz,level_db,direction\n");
-            for p in &r.fit_points {
-                let dir = match pb::SweepDirection::try_from(p.direction) {
-                    Ok(pb::SweepDirection::Increasing) => "up",
-                    Ok(pb::SweepDirection::Decreasing) => "down",
-                    _ => "",
-                };
-                let level = p.level_db.map_or(String::new(), |l| format!("{l:.2}"));
-                csv.push_str(&format!("{:.5},{:.2},{level},{dir}\n", p.x, p.frequency_hz));
-            }
-            std::fs::write(path, csv)
+            std::fs::write(path, ramp_points_csv(&r.fit_points))
                 .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
-            let mut rep = Report::new(format!(
-                "{title}: {} points of channel {} written to {}",
-                r.fit_points.len(),
-                r.fit_channel,
-                path.display()
-            ));
-            for w in &r.warnings {
-                rep = rep.text("warning", "WARNING", w.clone());
-            }
-            return Ok(rep.provenance(r.provenance));
+            return Ok(ramp_written_report(r, &title, path));
         }
-        let channels: Vec<u32> =
-            r.frames.first().map(|f| f.tones.iter().map(|t| t.channel).collect()).unwrap_or_default();
-        let mut t = Table::new("frames", "Frames (strongest tone per microphone)")
-            .col("start_s", "from [s]")
-            .col("end_s", "to [s]")
-            .col("nozzle_pressure_ratio", "NPR")
-            .col("nozzle_pressure_ratio_change", "NPR change");
-        for c in &channels {
-            t = t
-                .col(format!("ch{c}_frequency_hz"), format!("ch {c} f [Hz]"))
-                .col(format!("ch{c}_level_db"), format!("ch {c} L [dB re 20 uPa]"));
-        }
-        for f in &r.frames {
-            let mut row = vec![
-                Some(Val::Num(f.start_s)),
-                Some(Val::Num(f.end_s)),
-                Some(Val::Num(f.nozzle_pressure_ratio)),
-                Some(Val::Num(f.nozzle_pressure_ratio_change)),
-            ];
-            for tone in &f.tones {
-                row.push(tone.frequency_hz.map(Val::Num));
-                row.push(tone.level_db.map(Val::Num));
-            }
-            t.row(row);
-        }
-        let mut rep = Report::new(title).int("fit_points", "fit points", r.fit_points.len() as u64, "").int(
-            "fit_channel",
-            "fit points from channel",
-            r.fit_channel.into(),
-            "",
+        Ok(ramp_report(r, title))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    //! Command line -> AnalyseRamp request, without a server.
+
+    use super::*;
+
+    #[test]
+    fn the_control_channel_its_scaling_and_the_frames_reach_the_request() {
+        let line = "ramp ramp.wav --pa-per-unit 2000 --control-channel 1 --control gauge-pa \
+                    --control-per-unit 1000000 --control-offset -500 --ambient-pressure-pa 95000 --frame-s 0.1 \
+                    --fit-channel 0 --window blackman-harris";
+        let crate::Command::Ramp(a) = crate::tests::command(line) else { panic!("not ramp") };
+        let r = a.request(pb::Samples { sample_rate_hz: 51_200.0, ..Default::default() });
+        assert_eq!(r.samples.map(|s| s.sample_rate_hz), Some(51_200.0));
+        assert_eq!(
+            r.control,
+            Some(pb::ControlChannel {
+                channel: 1,
+                quantity: pb::ControlQuantity::ReservoirGaugePressurePa as i32,
+                units_per_sample: 1e6,
+                offset: Some(-500.0),
+                ambient_pressure_pa: Some(95_000.0),
+            })
         );
-        for w in &r.warnings {
-            rep = rep.text("warning", "WARNING", w.clone());
-        }
-        Ok(rep.table(t).provenance(r.provenance))
+        assert_eq!((r.frame_duration_s, r.fit_channel), (Some(0.1), Some(0)));
+        assert_eq!(r.welch.map(|w| w.window), Some(pb::WindowKind::BlackmanHarris as i32));
     }
 }

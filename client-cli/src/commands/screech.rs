@@ -6,10 +6,7 @@ use crate::commands::Run;
 use crate::connect::Ctx;
 use crate::failure::Failure;
 use crate::render::report::Report;
-use crate::render::report::Table;
-use crate::render::report::Val;
-use crate::render::rows::jet_rows;
-use crate::render::rows::tone_table;
+use crate::render::screech::screech_report;
 use clap::Args;
 use jetloop_proto::pb;
 use jetloop_proto::pb::tone_service_client::ToneServiceClient;
@@ -18,69 +15,53 @@ use jetloop_proto::pb::tone_service_client::ToneServiceClient;
 #[derive(Debug, Args)]
 #[command(allow_negative_numbers = true)]
 pub struct ScreechCmd {
+    /// The jet: nozzle and operating point, or the fully expanded state.
     #[command(flatten)]
     jet: JetSourceArgs,
+    /// Screech-model options.
     #[command(flatten)]
     screech: ScreechArgs,
+}
+
+impl ScreechCmd {
+    /// The PredictScreech request: the jet and the screech-model options.
+    ///
+    /// # Errors
+    /// [`Failure::Usage`] when the jet is incompletely given.
+    pub(crate) fn request(&self) -> Result<pb::PredictScreechRequest, Failure> {
+        Ok(pb::PredictScreechRequest { jet: Some(self.jet.input()?), options: Some(self.screech.options()) })
+    }
 }
 
 /// Runs `screech`.
 impl Run for ScreechCmd {
     async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
         let (ch, a) = (ctx.channel().await?, self);
-        let r = ToneServiceClient::new(ch)
-            .predict_screech(pb::PredictScreechRequest {
-                jet: Some(a.jet.input()?),
-                options: Some(a.screech.options()),
-            })
-            .await?
-            .into_inner();
-        let mut models = Table::new("predictions", "Screech predictions")
-            .col("model", "model")
-            .col("fundamental_hz", "f [Hz]")
-            .col("strouhal_number", "St = f L/Uj")
-            .col("harmonics_hz", "harmonics [Hz]");
-        for p in &r.predictions {
-            let h: Vec<String> =
-                p.harmonics.iter().skip(1).map(|t| format!("{:.0}", t.frequency_hz)).collect();
-            models.row(vec![
-                Some(Val::Text(p.model.clone())),
-                Some(Val::Num(p.fundamental_hz)),
-                Some(Val::Num(p.strouhal_number)),
-                Some(Val::Text(h.join(" "))),
-            ]);
-        }
-        let fl = r.feedback_loop.clone().unwrap_or_default();
-        let mut paths = Table::new("loop_segments", "Feedback loop paths")
-            .col("label", "path")
-            .col("length_m", "length [m]")
-            .col("speed_m_per_s", "speed [m/s]")
-            .col("time_s", "time [s]");
-        for s in &fl.segments {
-            paths.row(vec![
-                Some(Val::Text(s.label.clone())),
-                Some(Val::Num(s.length_m)),
-                Some(Val::Num(s.speed_m_per_s)),
-                Some(Val::Num(s.time_s)),
-            ]);
-        }
-        let rep = jet_rows(Report::new("Screech prediction"), &r.jet)
-            .num("spacing_m", "shock-cell spacing", r.spacing_m, "m")
-            .num("spacing_factor", "spacing factor", r.spacing_factor, "")
-            .num("convection_speed_m_per_s", "Uc", fl.convection_speed_m_per_s, "m/s")
-            .num("convective_mach_number", "Mc = Uc/a", fl.convective_mach_number, "")
-            .num("source_distance_m", "loop source distance", fl.source_distance_m, "m")
-            .num("fixed_delay_s", "fixed delays", fl.fixed_delay_s, "s")
-            .num("loop_time_s", "loop time tau", fl.loop_time_s, "s");
-        let mut rep = rep.table(models).table(paths).table(tone_table(
-            "loop_orders",
-            "Loop orders (n periods in the loop time: f = n / tau)",
-            &fl.orders,
-        ));
-        if !r.guided_modes.is_empty() {
-            let (bands, closures) = crate::render::rows::mode_tables(&r.guided_modes, true);
-            rep = rep.table(bands).table(closures);
-        }
-        Ok(rep.provenance(r.provenance))
+        let r = ToneServiceClient::new(ch).predict_screech(a.request()?).await?.into_inner();
+        Ok(screech_report(r))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    //! Command line -> PredictScreech request, without a server.
+
+    use super::*;
+    use jetloop_proto::pb::operating_point::Pressure;
+
+    #[test]
+    fn the_nozzle_the_npr_and_the_loop_options_reach_the_request() {
+        let line = "screech --diameter-m 0.0254 --npr 3.5 --source-cells 4 --max-loop-order 6 --guided";
+        let crate::Command::Screech(a) = crate::tests::command(line) else { panic!("not screech") };
+        let r = a.request().expect("request");
+        let Some(pb::jet_input::Source::Conditions(c)) = r.jet.and_then(|j| j.source) else {
+            panic!("not conditions")
+        };
+        assert_eq!(c.operating_point.and_then(|o| o.pressure), Some(Pressure::NozzlePressureRatio(3.5)));
+        let o = r.options.expect("options");
+        let l = o.r#loop.expect("loop");
+        assert_eq!(l.source, Some(pb::feedback_loop::Source::SourceCells(4.0)));
+        assert_eq!(l.max_loop_order, Some(6));
+        assert!(o.guided_modes.is_some());
     }
 }

@@ -3,6 +3,7 @@
 use crate::commands::Run;
 use crate::connect::Ctx;
 use crate::failure::Failure;
+use crate::render::gas::shock_report;
 use crate::render::report::Report;
 use clap::Args;
 use jetloop_proto::pb;
@@ -20,23 +21,35 @@ pub struct ShockArgs {
     gamma: Option<f64>,
 }
 
+impl ShockArgs {
+    /// The NormalShock request: upstream Mach number and gamma.
+    pub(crate) fn request(&self) -> pb::NormalShockRequest {
+        pb::NormalShockRequest { gamma: self.gamma, upstream_mach_number: self.mach }
+    }
+}
+
 /// Runs `shock`.
 impl Run for ShockArgs {
     async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
         let (ch, a) = (ctx.channel().await?, self);
-        let r = GasDynamicsServiceClient::new(ch)
-            .normal_shock(pb::NormalShockRequest { gamma: a.gamma, upstream_mach_number: a.mach })
-            .await?
-            .into_inner();
-        Ok(Report::new("Normal shock")
-            .num("gamma", "gamma", r.gamma, "")
-            .num("upstream_mach_number", "upstream Mach M1", r.upstream_mach_number, "")
-            .num("downstream_mach_number", "downstream Mach M2", r.downstream_mach_number, "")
-            .num("static_pressure_ratio", "p2/p1", r.static_pressure_ratio, "")
-            .num("density_ratio", "rho2/rho1", r.density_ratio, "")
-            .num("static_temperature_ratio", "T2/T1", r.static_temperature_ratio, "")
-            .num("total_pressure_ratio", "p02/p01", r.total_pressure_ratio, "")
-            .num("pitot_to_upstream_static_ratio", "p02/p1 (pitot)", r.pitot_to_upstream_static_ratio, "")
-            .provenance(r.provenance))
+        let r = GasDynamicsServiceClient::new(ch).normal_shock(a.request()).await?.into_inner();
+        Ok(shock_report(r))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    //! Command line -> NormalShock request, without a server.
+
+    use super::*;
+
+    #[test]
+    fn the_upstream_mach_number_and_gamma_reach_the_request() {
+        let crate::Command::Shock(a) = crate::tests::command("shock --mach 2.5 --gamma 1.3") else {
+            panic!("not shock")
+        };
+        assert_eq!(a.request(), pb::NormalShockRequest { gamma: Some(1.3), upstream_mach_number: 2.5 });
+        let crate::Command::Shock(a) = crate::tests::command("shock --mach 3") else { panic!("not shock") };
+        assert_eq!(a.request().gamma, None, "left to the server (1.4)");
     }
 }

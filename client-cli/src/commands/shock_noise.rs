@@ -8,9 +8,7 @@ use crate::connect::Ctx;
 use crate::failure::Failure;
 use crate::render::charts::shock_noise_plot;
 use crate::render::report::Report;
-use crate::render::report::Table;
-use crate::render::report::Val;
-use crate::render::rows::jet_rows;
+use crate::render::screech::shock_noise_report;
 use clap::Args;
 use jetloop_proto::pb;
 use jetloop_proto::pb::tone_service_client::ToneServiceClient;
@@ -19,10 +17,13 @@ use jetloop_proto::pb::tone_service_client::ToneServiceClient;
 #[derive(Debug, Args)]
 #[command(allow_negative_numbers = true)]
 pub struct ShockNoiseCmd {
+    /// The jet: nozzle and operating point, or the fully expanded state.
     #[command(flatten)]
     jet: JetSourceArgs,
+    /// Convection speed.
     #[command(flatten)]
     convection: ConvectionArgs,
+    /// Shock-cell model options.
     #[command(flatten)]
     cells: CellArgs,
     /// Observer angles from the downstream jet axis in degrees, comma separated (server
@@ -35,39 +36,51 @@ pub struct ShockNoiseCmd {
     plot: Option<std::path::PathBuf>,
 }
 
+impl ShockNoiseCmd {
+    /// The PredictShockNoise request: the jet, convection, cell options and observer angles
+    /// (deg).
+    ///
+    /// # Errors
+    /// [`Failure::Usage`] when the jet is incompletely given.
+    pub(crate) fn request(&self) -> Result<pb::PredictShockNoiseRequest, Failure> {
+        Ok(pb::PredictShockNoiseRequest {
+            jet: Some(self.jet.input()?),
+            convection: self.convection.convection(),
+            cells: Some(self.cells.options()),
+            observer_angles_deg: self.angles_deg.clone(),
+        })
+    }
+}
+
 /// Runs `shock-noise`.
 impl Run for ShockNoiseCmd {
     async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
         let (ch, a) = (ctx.channel().await?, self);
-        let r = ToneServiceClient::new(ch)
-            .predict_shock_noise(pb::PredictShockNoiseRequest {
-                jet: Some(a.jet.input()?),
-                convection: a.convection.convection(),
-                cells: Some(a.cells.options()),
-                observer_angles_deg: a.angles_deg,
-            })
-            .await?
-            .into_inner();
-        let mut t = Table::new("peaks", "Shock-associated noise peak")
-            .col("observer_angle_deg", "angle [deg]")
-            .col("mode", "mode")
-            .col("peak_frequency_hz", "f_peak [Hz]")
-            .col("strouhal_number", "St");
-        for p in &r.peaks {
-            t.row(vec![
-                Some(Val::Num(p.observer_angle_deg)),
-                Some(Val::Int(p.mode.into())),
-                p.peak_frequency_hz.map(Val::Num),
-                p.strouhal_number.map(Val::Num),
-            ]);
-        }
-        let rep = jet_rows(Report::new("Shock-associated noise"), &r.jet)
-            .num("convection_speed_m_per_s", "Uc", r.convection_speed_m_per_s, "m/s")
-            .num("convective_mach_number", "Mc = Uc/a", r.convective_mach_number, "");
+        let r = ToneServiceClient::new(ch).predict_shock_noise(a.request()?).await?.into_inner();
         if let Some(path) = &a.plot {
             crate::render::plot::write_plot(path, &shock_noise_plot(&r)).map_err(Failure::Usage)?;
             eprintln!("wrote {}", path.display());
         }
-        Ok(rep.table(t).provenance(r.provenance))
+        Ok(shock_noise_report(r))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    //! Command line -> PredictShockNoise request, without a server.
+
+    use super::*;
+
+    #[test]
+    fn the_angles_and_the_convection_speed_reach_the_request() {
+        let line = "shock-noise --mj 1.4 --dj-m 0.02 --angles-deg 30,60,90 --convection-speed-m-per-s 230";
+        let crate::Command::ShockNoise(a) = crate::tests::command(line) else { panic!("not shock-noise") };
+        let r = a.request().expect("request");
+        assert_eq!(r.observer_angles_deg, vec![30.0, 60.0, 90.0]);
+        assert_eq!(
+            r.convection,
+            Some(pb::Convection { speed: Some(pb::convection::Speed::ConvectionSpeedMPerS(230.0)) })
+        );
+        assert_eq!(r.cells, Some(pb::CellOptions::default()), "cell options left to the server");
     }
 }

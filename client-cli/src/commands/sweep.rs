@@ -6,10 +6,11 @@ use crate::commands::Run;
 use crate::connect::Ctx;
 use crate::failure::Failure;
 use crate::render::charts::sweep_plot;
+use crate::render::progress::spinner;
 use crate::render::report::Report;
-use crate::render::report::Table;
-use crate::render::report::Val;
-use crate::render::rows::regime_name;
+use crate::render::screech::sweep_report;
+use crate::render::screech::sweep_table;
+use crate::render::screech::sweep_written_report;
 use clap::Args;
 use clap::ValueEnum;
 use jetloop_proto::pb;
@@ -30,8 +31,10 @@ pub enum VaryArg {
 #[derive(Debug, Args)]
 #[command(allow_negative_numbers = true)]
 pub struct SweepCmd {
+    /// The jet: nozzle and operating point, or the fully expanded state.
     #[command(flatten)]
     jet: JetSourceArgs,
+    /// Screech-model options.
     #[command(flatten)]
     screech: ScreechArgs,
     /// What to vary.
@@ -60,10 +63,13 @@ pub struct SweepCmd {
     plot: Option<std::path::PathBuf>,
 }
 
-/// Runs `sweep`; the CSV file, when asked for, is written here.
 impl SweepCmd {
-    /// The SweepScreech request these arguments describe.
-    fn request(&self) -> Result<pb::SweepScreechRequest, Failure> {
+    /// The SweepScreech request: the jet, the swept variable and its values (a range or a
+    /// list), and the screech-model options.
+    ///
+    /// # Errors
+    /// [`Failure::Usage`] without values to sweep, or when the jet is incompletely given.
+    pub(crate) fn request(&self) -> Result<pb::SweepScreechRequest, Failure> {
         use pb::sweep_screech_request::Values;
         let values = match (self.from, self.to, self.count) {
             (Some(start), Some(stop), Some(count)) => Values::Range(pb::SweepRange { start, stop, count }),
@@ -84,65 +90,22 @@ impl SweepCmd {
     }
 }
 
+/// Runs `sweep`; the CSV file, when asked for, is written here.
 impl Run for SweepCmd {
     async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
         let (ch, a) = (ctx.channel().await?, self);
         let request = a.request()?;
-        let s = crate::readers::spinner("sweeping on the server");
+        let s = spinner("sweeping on the server");
         let r = ToneServiceClient::new(ch).sweep_screech(request).await;
         s.finish_and_clear();
         let r = r?.into_inner();
-        let orders = r.points.iter().map(|p| p.loop_frequencies_hz.len()).max().unwrap_or(0);
-        let value_key = match a.vary {
-            VaryArg::Npr => ("nozzle_pressure_ratio_swept", "NPR"),
-            VaryArg::Mj => ("fully_expanded_mach_number_swept", "Mj set"),
-            VaryArg::Reflector => ("reflector_distance_m", "reflector [m]"),
+        // The swept NPR is the NPR column; any other swept value has its own column.
+        let swept = match a.vary {
+            VaryArg::Npr => None,
+            VaryArg::Mj => Some(("fully_expanded_mach_number_swept", "Mj set")),
+            VaryArg::Reflector => Some(("reflector_distance_m", "reflector [m]")),
         };
-        // The swept NPR is the NPR column; the regime column only when the jet came from
-        // reservoir conditions (a jet given directly has none).
-        let npr_swept = matches!(a.vary, VaryArg::Npr);
-        let regimes = r.points.iter().any(|p| p.regime != pb::ExpansionRegime::Unspecified as i32);
-        let mut t = Table::new("points", "Sweep");
-        t = if npr_swept {
-            t.col("nozzle_pressure_ratio", "NPR")
-        } else {
-            t.col(value_key.0, value_key.1).col("nozzle_pressure_ratio", "NPR")
-        };
-        t = t.col("fully_expanded_mach_number", "Mj");
-        if regimes {
-            t = t.col("regime", "regime");
-        }
-        t = t
-            .col("fully_expanded_velocity_m_per_s", "Uj [m/s]")
-            .col("reference_length_m", "L [m]")
-            .col("spacing_m", "Ls [m]")
-            .col("powell_fundamental_hz", "Powell [Hz]")
-            .col("tam_1986_hz", "Tam 1986 [Hz]");
-        for n in 1..=orders {
-            t = t.col(format!("loop_n{n}_hz"), format!("n={n} [Hz]"));
-        }
-        for p in &r.points {
-            let mut row = Vec::new();
-            if !npr_swept {
-                row.push(Some(Val::Num(p.value)));
-            }
-            row.push(Some(Val::Num(p.nozzle_pressure_ratio)));
-            row.push(Some(Val::Num(p.fully_expanded_mach_number)));
-            if regimes {
-                row.push(Some(Val::Text(regime_name(p.regime))));
-            }
-            row.extend([
-                Some(Val::Num(p.fully_expanded_velocity_m_per_s)),
-                Some(Val::Num(p.reference_length_m)),
-                p.spacing_m.map(Val::Num),
-                p.powell_fundamental_hz.map(Val::Num),
-                p.tam_1986_hz.map(Val::Num),
-            ]);
-            for n in 0..orders {
-                row.push(p.loop_frequencies_hz.get(n).copied().map(Val::Num));
-            }
-            t.row(row);
-        }
+        let t = sweep_table(&r, swept);
         if let Some(path) = &a.plot {
             let x_label = match a.vary {
                 VaryArg::Npr => "nozzle pressure ratio",
@@ -160,29 +123,10 @@ impl Run for SweepCmd {
             }
             std::fs::write(path, csv)
                 .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
-            // The points went to the file: one summary line, not the table again (cautions
-            // and sources stay in --json).
-            let rep = Report::new(format!(
-                "Screech sweep: {} points written to {} ({:.3} ms server time)",
-                r.points.len(),
-                path.display(),
-                r.compute_time_s * 1e3
-            ))
-            .int("points", "points", r.points.len() as u64, "")
-            .text("csv_file", "CSV file", path.display().to_string())
-            .num("compute_time_s", "server compute time", r.compute_time_s, "s")
-            .hide(&["compute_time_s"]);
-            return Ok(rep.provenance(r.provenance).title_only());
+            // The points went to the file: one summary line, not the table again.
+            return Ok(sweep_written_report(r, path));
         }
-        Ok(Report::new(format!(
-            "Screech sweep ({} points, {:.3} ms server time)",
-            r.points.len(),
-            r.compute_time_s * 1e3
-        ))
-        .num("compute_time_s", "server compute time", r.compute_time_s, "s")
-        .hide(&["compute_time_s"])
-        .table(t)
-        .provenance(r.provenance))
+        Ok(sweep_report(r, t))
     }
 }
 

@@ -90,12 +90,19 @@ pub enum PatternArg {
 /// The kinds of file `synth` writes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub(crate) enum OutKind {
+    /// WAV, 32-bit float.
     Wav,
+    /// CSV of pascals.
     Csv,
+    /// Raw interleaved int16.
     RawI16,
 }
 
 impl OutKind {
+    /// The kind the extension of `path` names.
+    ///
+    /// # Errors
+    /// [`Failure::Usage`] for any other extension.
     fn of(path: &std::path::Path) -> Result<Self, Failure> {
         match path.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase).as_deref() {
             Some("wav") => Ok(Self::Wav),
@@ -108,6 +115,7 @@ impl OutKind {
         }
     }
 
+    /// The kind of file in words, for the report.
     fn describe(self) -> &'static str {
         match self {
             Self::Wav => "WAV, 32-bit float, 1.0 = full scale",
@@ -146,6 +154,7 @@ pub(crate) fn powell_shape(npr: f64) -> Option<f64> {
     Some(uc / (ls * (1.0 + uc / (g * r * t0).sqrt())))
 }
 
+/// The rms pressure in Pa of a level `db` in dB re 20 uPa.
 pub(crate) fn rms_of(db: f64) -> f64 {
     20e-6 * 10f64.powf(db / 20.0)
 }
@@ -363,5 +372,50 @@ impl Run for SynthCmd {
             .num("full_scale_pa", "full scale", a.full_scale_pa, "Pa")
             .int("microphones", "microphones on the ring", u64::from(a.ring), "")
             .text("analyse_with", "analyse with", analyse))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    //! Command line -> demo file and report, without a server (synth never connects).
+
+    use super::*;
+
+    #[test]
+    fn powell_shape_is_silent_until_the_jet_is_supersonic_and_falls_with_npr() {
+        assert_eq!(powell_shape(1.8), None, "sonic below NPR 1.893");
+        let (lo, hi) = (powell_shape(2.5).expect("supersonic"), powell_shape(4.5).expect("supersonic"));
+        assert!(lo > hi && hi > 0.0, "{lo} {hi}");
+        assert!((rms_of(94.0) - 1.002_4).abs() < 1e-4, "94 dB re 20 uPa is about 1 Pa rms");
+    }
+
+    #[test]
+    fn a_ring_of_two_is_written_as_csv_columns_named_by_azimuth() {
+        let dir = std::env::temp_dir().join(format!("jetloop-synth-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).expect("dir");
+        let out = dir.join("mics.csv");
+        let line = format!(
+            "synth {} --ring 2 --seconds 0.01 --sample-rate-hz 8000 --screech-hz 1000 --hump-hz 2000",
+            out.display()
+        );
+        let crate::Command::Synth(a) = crate::tests::command(&line) else { panic!("not synth") };
+        let ctx = Ctx::new("http://127.0.0.1:1".into(), None, Default::default(), None);
+        let rt = tokio::runtime::Builder::new_current_thread().build().expect("runtime");
+        let v = rt.block_on(a.run(&ctx)).expect("written").to_json();
+        let text = std::fs::read_to_string(&out).expect("csv");
+        assert_eq!(text.lines().next(), Some("mic_000deg,mic_180deg"));
+        assert_eq!(text.lines().count(), 1 + 80, "header and 0.01 s at 8 kHz");
+        assert_eq!(v["microphones"], serde_json::json!(2));
+        assert_eq!(
+            v["analyse_with"],
+            serde_json::json!(format!(
+                "jetloop tones {} --sample-rate-hz 8000 --in-pascals --azimuths-deg 0,180",
+                out.display()
+            ))
+        );
+        let crate::Command::Synth(a) = crate::tests::command("synth x.txt") else { panic!("not synth") };
+        let e = rt.block_on(a.run(&ctx)).unwrap_err();
+        assert!(matches!(e, Failure::Usage(ref m) if m.contains(".wav, .csv or .bin/.raw")), "{e:?}");
+        let _ = std::fs::remove_dir_all(dir);
     }
 }

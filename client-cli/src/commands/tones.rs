@@ -7,19 +7,13 @@ use crate::args::spectral::WelchArgs;
 use crate::commands::Run;
 use crate::connect::Ctx;
 use crate::failure::Failure;
-use crate::readers::spinner;
 use crate::render::charts::svg_plot;
+use crate::render::progress::spinner;
 use crate::render::report::Report;
-use crate::render::report::Table;
-use crate::render::report::Val;
-use crate::render::rows::analysis_rows;
-use crate::render::rows::band_table;
-use crate::render::rows::caution_rows;
-use crate::render::rows::channel_summary;
-use crate::render::rows::correction_rows;
-use crate::render::rows::pattern_name;
-use crate::render::rows::stage_text;
-use crate::render::rows::PER_CHANNEL_SUMMARY;
+use crate::render::rows::channel_label;
+use crate::render::spectra::cross_report;
+use crate::render::spectra::psd_csv;
+use crate::render::spectra::tones_report;
 use clap::Args;
 use jetloop_proto::pb;
 use jetloop_proto::pb::spectrum_service_client::SpectrumServiceClient;
@@ -28,10 +22,13 @@ use std::path::PathBuf;
 /// `jetloop tones`.
 #[derive(Debug, Args)]
 pub struct TonesCmd {
+    /// The recording and its calibration.
     #[command(flatten)]
     input: InputArgs,
+    /// Welch (PSD) options.
     #[command(flatten)]
     welch: WelchArgs,
+    /// Level corrections.
     #[command(flatten)]
     corrections: CorrectionArgs,
     /// Minimum tone-to-floor ratio in dB (server default 6).
@@ -97,45 +94,6 @@ pub struct TonesCmd {
     reference_channel: Option<u32>,
 }
 
-/// The cross-channel report: one row per tone of the reference channel.
-pub(crate) fn cross_report(r: &pb::CrossSpectraResponse) -> Report {
-    let mut t =
-        Table::new("cross_tones", format!("Cross-channel, reference channel {}", r.reference_channel))
-            .col("frequency_hz", "f [Hz]")
-            .col("level_db", "L [dB re 20 uPa]")
-            .col("channels", "channel: phase [deg] / coherence")
-            .col("mode", "mode");
-    for x in &r.tones {
-        let chans: Vec<String> = x
-            .channels
-            .iter()
-            .map(|c| format!("{}: {:+.1} / {:.3}", c.channel, c.phase_deg, c.coherence))
-            .collect();
-        let mode = match (&x.modes, &x.pair) {
-            (Some(m), _) => format!(
-                "m = {} {} ({:.0} % of energy, spin ratio {:+.2})",
-                m.dominant_order,
-                pattern_name(m.pattern),
-                100.0 * m.dominant_share,
-                m.spin_ratio
-            ),
-            (None, Some(p)) => format!(
-                "{} (confidence {:.2})",
-                if p.symmetric { "symmetric" } else { "antisymmetric" },
-                p.confidence
-            ),
-            _ => String::new(),
-        };
-        t.row(vec![
-            Some(Val::Num(x.frequency_hz)),
-            Some(Val::Num(x.level_db)),
-            Some(Val::Text(chans.join("; "))),
-            Some(Val::Text(mode)),
-        ]);
-    }
-    Report::new("-- cross-channel").table(t)
-}
-
 impl TonesCmd {
     /// The tone-search options given on the command line.
     fn tone_options(&self) -> pb::ToneOptions {
@@ -145,6 +103,102 @@ impl TonesCmd {
             max_tones: self.max_tones,
             ..Default::default()
         }
+    }
+
+    /// The ExtractTones request for `samples` (the recording read): Welch and tone options,
+    /// the predicted frequency (Hz), band levels, the PSD when a plot or CSV of it is asked
+    /// for, stage labels when a jet is given, and level corrections.
+    ///
+    /// # Errors
+    /// [`Failure::Usage`] when the jet is incompletely given or a response curve cannot be
+    /// read.
+    pub(crate) fn request(&self, samples: pb::Samples) -> Result<pb::ExtractTonesRequest, Failure> {
+        let want_psd = self.plot.is_some() || self.psd_csv.is_some();
+        Ok(pb::ExtractTonesRequest {
+            samples: Some(samples),
+            welch: Some(self.welch.options()),
+            tones: Some(self.tone_options()),
+            predicted_screech_hz: self.predicted_hz,
+            match_tolerance_fraction: None,
+            include_band_levels: self.bands,
+            max_band_frequency_hz: None,
+            psd_output: Some(pb::PsdOutputOptions { include: want_psd, max_points: None }),
+            stage_labels: if self.jet.given() {
+                Some(pb::StageLabelOptions {
+                    jet: Some(self.jet.input()?),
+                    modes: Some(pb::GuidedModeOptions {
+                        spacing_factor: self.spacing_factor,
+                        convection_ratio: self.convection_ratio,
+                        ..Default::default()
+                    }),
+                    band_tolerance_fraction: self.band_tolerance,
+                })
+            } else {
+                None
+            },
+            corrections: self.corrections.corrections()?,
+        })
+    }
+
+    /// The CrossSpectra request for `samples`: the same Welch and tone options, the reference
+    /// channel and the microphone positions (azimuths in degrees).
+    pub(crate) fn cross_request(&self, samples: pb::Samples) -> pb::CrossSpectraRequest {
+        pb::CrossSpectraRequest {
+            samples: Some(samples),
+            welch: Some(self.welch.options()),
+            tones: Some(self.tone_options()),
+            reference_channel: self.reference_channel,
+            positions: positions(&self.azimuths_deg),
+            spectra_max_points: None,
+        }
+    }
+
+    /// Writes each channel's PSD as a plot and as CSV when asked for (one file per channel,
+    /// NAME-chK.ext, with several channels; one plot of them all with --overlay).
+    fn write_psd_files(&self, r: &pb::ExtractTonesResponse) -> Result<(), Failure> {
+        let several = r.channels.len() > 1;
+        for c in &r.channels {
+            let Some(p) = &c.psd else { continue };
+            let label = channel_label(&c.name, c.channel);
+            let suffix = |path: &PathBuf| -> PathBuf {
+                if several {
+                    let stem = path.file_stem().and_then(|s| s.to_str()).unwrap_or("psd");
+                    let ext = path.extension().and_then(|s| s.to_str()).unwrap_or("");
+                    path.with_file_name(format!("{stem}-ch{}.{ext}", c.channel))
+                } else {
+                    path.clone()
+                }
+            };
+            if let Some(path) = self.plot.as_ref().filter(|_| !(several && self.overlay)) {
+                let path = suffix(path);
+                crate::render::plot::write_plot(
+                    &path,
+                    &svg_plot(&label, &[(label.clone(), p, &c.tones)], self.linear_frequency),
+                )
+                .map_err(Failure::Usage)?;
+                eprintln!("wrote PSD plot {}", path.display());
+            }
+            if let Some(path) = &self.psd_csv {
+                let path = suffix(path);
+                std::fs::write(&path, psd_csv(p))
+                    .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
+                eprintln!("wrote PSD {}", path.display());
+            }
+        }
+        if let Some(path) = self.plot.as_ref().filter(|_| several && self.overlay) {
+            let series: Vec<(String, &pb::PsdData, &[pb::ExtractedTone])> = r
+                .channels
+                .iter()
+                .filter_map(|c| {
+                    c.psd.as_ref().map(|p| (channel_label(&c.name, c.channel), p, c.tones.as_slice()))
+                })
+                .collect();
+            let title = self.input.file.display().to_string();
+            crate::render::plot::write_plot(path, &svg_plot(&title, &series, self.linear_frequency))
+                .map_err(Failure::Usage)?;
+            eprintln!("wrote PSD plot of {} channels {}", series.len(), path.display());
+        }
+        Ok(())
     }
 }
 
@@ -214,31 +268,7 @@ impl Run for TonesCmd {
         let (ch, a) = (ctx.channel().await?, self);
         let samples = a.input.read()?;
         let cross_samples = (a.cross || !a.azimuths_deg.is_empty()).then(|| samples.clone());
-        let want_psd = a.plot.is_some() || a.psd_csv.is_some();
-        let req = pb::ExtractTonesRequest {
-            samples: Some(samples),
-            welch: Some(a.welch.options()),
-            tones: Some(a.tone_options()),
-            predicted_screech_hz: a.predicted_hz,
-            match_tolerance_fraction: None,
-            include_band_levels: a.bands,
-            max_band_frequency_hz: None,
-            psd_output: Some(pb::PsdOutputOptions { include: want_psd, max_points: None }),
-            stage_labels: if a.jet.given() {
-                Some(pb::StageLabelOptions {
-                    jet: Some(a.jet.input()?),
-                    modes: Some(pb::GuidedModeOptions {
-                        spacing_factor: a.spacing_factor,
-                        convection_ratio: a.convection_ratio,
-                        ..Default::default()
-                    }),
-                    band_tolerance_fraction: a.band_tolerance,
-                })
-            } else {
-                None
-            },
-            corrections: a.corrections.corrections()?,
-        };
+        let req = a.request(samples)?;
         let labelled = a.jet.given();
         let mut client = SpectrumServiceClient::new(ch)
             .max_decoding_message_size(256 * 1024 * 1024)
@@ -268,166 +298,93 @@ impl Run for TonesCmd {
                 (r, t)
             }
         };
-        let mut top = Report::new(format!(
-            "Tones in {} ({} channel(s), {timing})",
-            a.input.file.display(),
-            r.channels.len(),
-        ));
-        let several = r.channels.len() > 1;
-        for c in &r.channels {
-            let label = if c.name.is_empty() { format!("channel {}", c.channel) } else { c.name.clone() };
-            let mut rep = Report::new(format!("-- {label}"));
-            if let Some(an) = &c.analysis {
-                rep = analysis_rows(rep.text("channel", "channel", label.clone()), an)
-                    .num("rms_pa", "rms pressure", c.rms_pa, "Pa")
-                    .num("overall_level_db", "overall level", c.overall_level_db, "dB re 20 uPa");
-            }
-            let mut t = Table::new("tones", format!("Tones, {label}"))
-                .col("frequency_hz", "f [Hz]")
-                .col("level_db", "L [dB re 20 uPa]")
-                .col("tone_to_floor_db", "above floor [dB]")
-                .col("bandwidth_3db_hz", "-3 dB width [Hz]")
-                .col("family", "family")
-                .col("harmonic_order", "order");
-            if labelled {
-                t = t.col("stage", "stage (guided mode)");
-            }
-            for x in &c.tones {
-                let mut row = vec![
-                    Some(Val::Num(x.frequency_hz)),
-                    Some(Val::Num(x.level_db)),
-                    Some(Val::Num(x.tone_to_floor_db)),
-                    Some(Val::Num(x.bandwidth_3db_hz)),
-                    x.family.map(|v| Val::Int(v.into())),
-                    x.harmonic_order.map(|v| Val::Int(v.into())),
-                ];
-                if labelled {
-                    row.push(Some(Val::Text(stage_text(x))));
-                }
-                t.row(row);
-            }
-            rep = rep.table(t);
-            let mut fam = Table::new("families", format!("Harmonic families, {label}"))
-                .col("id", "family")
-                .col("fundamental_hz", "f0 [Hz]")
-                .col("orders", "orders")
-                .col("level_db", "L [dB]");
-            for f in &c.families {
-                let orders: Vec<String> = f.orders.iter().map(u32::to_string).collect();
-                fam.row(vec![
-                    Some(Val::Int(f.id.into())),
-                    Some(Val::Num(f.fundamental_hz)),
-                    Some(Val::Text(orders.join(" "))),
-                    Some(Val::Num(f.level_db)),
-                ]);
-            }
-            rep = rep.table(fam);
-            for comb in &c.combinations {
-                let kind = if comb.is_sum { "sum" } else { "difference" };
-                rep = rep.text(
-                    "combination",
-                    "combination tone",
-                    format!(
-                        "tone {} at the {kind} of families {} and {} ({:.1} Hz)",
-                        comb.tone_index, comb.family_a, comb.family_b, comb.expected_hz
-                    ),
-                );
-            }
-            if let Some(m) = &c.predicted_match {
-                let text = match (m.tone_frequency_hz, m.difference_hz) {
-                    (Some(f), Some(d)) => format!(
-                        "predicted {:.1} Hz, nearest tone {:.1} Hz ({:+.1} Hz, {:+.2} %): {}",
-                        m.predicted_hz,
-                        f,
-                        d,
-                        100.0 * m.relative_difference.unwrap_or(0.0),
-                        if m.matched { "matched" } else { "outside the tolerance" }
-                    ),
-                    _ => format!("predicted {:.1} Hz: no tones found", m.predicted_hz),
-                };
-                rep = rep.text("predicted_match", "screech prediction", text);
-            }
-            if let Some(b) = &c.bands {
-                rep = rep
-                    .num("a_weighted_overall_db", "A-weighted overall", b.a_weighted_overall_db, "dB(A)")
-                    .table(band_table(b));
-            }
-            rep = correction_rows(rep, &c.corrections_applied);
-            rep = caution_rows(rep, &c.cautions);
-            for (i, w) in c.warnings.iter().enumerate() {
-                rep = rep.text(if i == 0 { "warning" } else { "warning_more" }, "WARNING", w.clone());
-            }
-            if let Some(p) = &c.psd {
-                let suffix = |path: &PathBuf| -> PathBuf {
-                    if several {
-                        let stem = path.file_stem().and_then(|s| s.to_str()).unwrap_or("psd");
-                        let ext = path.extension().and_then(|s| s.to_str()).unwrap_or("");
-                        path.with_file_name(format!("{stem}-ch{}.{ext}", c.channel))
-                    } else {
-                        path.clone()
-                    }
-                };
-                if let Some(path) = a.plot.as_ref().filter(|_| !(several && a.overlay)) {
-                    let path = suffix(path);
-                    crate::render::plot::write_plot(
-                        &path,
-                        &svg_plot(&label, &[(label.clone(), p, &c.tones)], a.linear_frequency),
-                    )
-                    .map_err(Failure::Usage)?;
-                    eprintln!("wrote PSD plot {}", path.display());
-                }
-                if let Some(path) = &a.psd_csv {
-                    let path = suffix(path);
-                    let mut csv = String::from("frequency_hz,density_pa2_per_hz,floor_pa2_per_hz\n");
-                    for (i, f) in p.frequency_hz.iter().enumerate() {
-                        let fl = p.floor_pa2_per_hz.get(i).map_or(String::new(), |v| v.to_string());
-                        csv.push_str(&format!("{f},{},{fl}\n", p.density_pa2_per_hz[i]));
-                    }
-                    std::fs::write(&path, csv)
-                        .map_err(|e| Failure::Usage(format!("cannot write {}: {e}", path.display())))?;
-                    eprintln!("wrote PSD {}", path.display());
-                }
-            }
-            if several {
-                // Shown once for all channels in the summary above the sections.
-                rep = rep.hide(&PER_CHANNEL_SUMMARY);
-            }
-            top = top.child(rep);
-        }
-        if several {
-            top = channel_summary(top, &r.channels);
-        }
-        if let Some(path) = a.plot.as_ref().filter(|_| several && a.overlay) {
-            let series: Vec<(String, &pb::PsdData, &[pb::ExtractedTone])> = r
-                .channels
-                .iter()
-                .filter_map(|c| {
-                    let label =
-                        if c.name.is_empty() { format!("channel {}", c.channel) } else { c.name.clone() };
-                    c.psd.as_ref().map(|p| (label, p, c.tones.as_slice()))
-                })
-                .collect();
-            let title = a.input.file.display().to_string();
-            crate::render::plot::write_plot(path, &svg_plot(&title, &series, a.linear_frequency))
-                .map_err(Failure::Usage)?;
-            eprintln!("wrote PSD plot of {} channels {}", series.len(), path.display());
-        }
+        a.write_psd_files(&r)?;
+        let mut top = tones_report(r, &a.input.file, &timing, labelled);
         if let Some(samples) = cross_samples {
-            let positions = positions(&a.azimuths_deg);
             let s = spinner("cross-channel analysis on the server");
-            let x = client
-                .cross_spectra(pb::CrossSpectraRequest {
-                    samples: Some(samples),
-                    welch: Some(a.welch.options()),
-                    tones: Some(a.tone_options()),
-                    reference_channel: a.reference_channel,
-                    positions,
-                    spectra_max_points: None,
-                })
-                .await;
+            let x = client.cross_spectra(a.cross_request(samples)).await;
             s.finish_and_clear();
             top = top.child(cross_report(&x?.into_inner()));
         }
-        Ok(top.provenance(r.provenance))
+        Ok(top)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    //! Command line -> ExtractTones and CrossSpectra requests, and samples -> blocks, without
+    //! a server.
+
+    use super::*;
+
+    fn tones(line: &str) -> TonesCmd {
+        let crate::Command::Tones(a) = crate::tests::command(line) else { panic!("{line}") };
+        a
+    }
+
+    #[test]
+    fn the_tone_options_prediction_bands_and_psd_reach_the_request() {
+        let a = tones(
+            "tones demo.wav --pa-per-unit 2000 --threshold-db 8 --min-separation-hz 50 --max-tones 10 \
+             --predicted-hz 5100 --bands --psd-csv psd.csv --window hamming",
+        );
+        let r = a.request(pb::Samples { sample_rate_hz: 204_800.0, ..Default::default() }).expect("request");
+        let t = r.tones.expect("tone options");
+        assert_eq!((t.threshold_db, t.min_separation_hz, t.max_tones), (Some(8.0), Some(50.0), Some(10)));
+        assert_eq!(r.predicted_screech_hz, Some(5100.0));
+        assert!(r.include_band_levels);
+        assert_eq!(r.psd_output.map(|p| p.include), Some(true), "the PSD is asked for by --psd-csv");
+        assert_eq!(r.welch.map(|w| w.window), Some(pb::WindowKind::Hamming as i32));
+        assert_eq!(r.samples.map(|s| s.sample_rate_hz), Some(204_800.0));
+        assert!(r.stage_labels.is_none() && r.corrections.is_none());
+        let r = tones("tones demo.wav --pa-per-unit 2000").request(pb::Samples::default()).expect("request");
+        assert_eq!(r.psd_output.map(|p| p.include), Some(false));
+    }
+
+    #[test]
+    fn a_jet_asks_for_stage_labels_with_the_closure_options() {
+        let a = tones(
+            "tones demo.wav --pa-per-unit 2000 --diameter-m 0.0254 --npr 3.75 --spacing-factor 0.8 \
+             --convection-ratio 0.6 --band-tolerance 0.05",
+        );
+        let l = a.request(pb::Samples::default()).expect("request").stage_labels.expect("stage labels");
+        let Some(pb::jet_input::Source::Conditions(c)) = l.jet.and_then(|j| j.source) else {
+            panic!("not conditions")
+        };
+        assert_eq!(
+            c.operating_point.and_then(|o| o.pressure),
+            Some(pb::operating_point::Pressure::NozzlePressureRatio(3.75))
+        );
+        let m = l.modes.expect("modes");
+        assert_eq!((m.spacing_factor, m.convection_ratio), (Some(0.8), Some(0.6)));
+        assert_eq!(l.band_tolerance_fraction, Some(0.05));
+    }
+
+    #[test]
+    fn the_cross_request_carries_the_ring_and_the_reference_channel() {
+        let a = tones("tones ring.wav --pa-per-unit 2000 --azimuths-deg 0,90,180,270 --reference-channel 2");
+        let x = a.cross_request(pb::Samples::default());
+        assert_eq!(x.reference_channel, Some(2));
+        assert_eq!(
+            x.positions.iter().map(|p| p.azimuth_deg).collect::<Vec<_>>(),
+            vec![0.0, 90.0, 180.0, 270.0]
+        );
+    }
+
+    #[test]
+    fn interleaved_raw_samples_are_cut_into_whole_frames() {
+        let s = pb::Samples {
+            channel_count: 4,
+            data: Some(pb::samples::Data::Raw(pb::RawSamples {
+                data: vec![0u8; 100].into(),
+                format: pb::SampleFormat::I16Le as i32,
+            })),
+            ..Default::default()
+        };
+        // Frames of 4 x 2 bytes: a 30-byte block holds 3 whole frames (24 bytes).
+        let b = blocks_of(&s, 30).expect("blocks");
+        assert_eq!(b.iter().map(bytes::Bytes::len).collect::<Vec<_>>(), vec![24, 24, 24, 24, 4]);
+        let planar = pb::Samples { layout: pb::ChannelLayout::Planar as i32, ..s };
+        assert!(blocks_of(&planar, 30).is_none(), "planar samples go in one request");
     }
 }

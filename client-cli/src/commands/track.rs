@@ -2,13 +2,21 @@
 //! possible or at its own pace, with events printed as they come.
 
 use crate::args::input::InputArgs;
+use crate::args::spectral::positions;
 use crate::args::spectral::WelchArgs;
 use crate::commands::Run;
 use crate::connect::Ctx;
 use crate::failure::Failure;
 use crate::render::report::Report;
-use crate::render::report::Table;
-use crate::render::report::Val;
+use crate::render::tracks::event_line;
+use crate::render::tracks::event_row;
+use crate::render::tracks::events_table;
+use crate::render::tracks::mode_line;
+use crate::render::tracks::mode_row;
+use crate::render::tracks::mode_text;
+use crate::render::tracks::modes_table;
+use crate::render::tracks::track_report;
+use crate::render::tracks::update_json;
 use clap::Args;
 use jetloop_proto::pb;
 use jetloop_proto::pb::spectrum_service_client::SpectrumServiceClient;
@@ -17,8 +25,10 @@ use std::time::Duration;
 /// `jetloop track`.
 #[derive(Debug, Args)]
 pub struct TrackCmd {
+    /// The recording and its calibration.
     #[command(flatten)]
     input: InputArgs,
+    /// Welch (PSD) options.
     #[command(flatten)]
     welch: WelchArgs,
     /// Send the frames at the recording's own pace (as a DAQ would), not as fast as possible.
@@ -54,34 +64,6 @@ pub struct TrackCmd {
     reference_channel: Option<u32>,
 }
 
-/// The mode (or pair symmetry) of an update's strongest tone, in words.
-pub(crate) fn mode_text(x: &pb::CrossTone) -> Option<String> {
-    if let Some(m) = &x.modes {
-        return Some(format!(
-            "m = {} {} ({:.0} % of the energy)",
-            m.dominant_order,
-            crate::render::rows::pattern_name(m.pattern),
-            100.0 * m.dominant_share
-        ));
-    }
-    x.pair.as_ref().map(|p| {
-        format!(
-            "{} (confidence {:.2})",
-            if p.symmetric { "symmetric" } else { "antisymmetric" },
-            p.confidence
-        )
-    })
-}
-
-pub(crate) fn kind_name(k: i32) -> &'static str {
-    match pb::TrackEventKind::try_from(k) {
-        Ok(pb::TrackEventKind::Appeared) => "appeared",
-        Ok(pb::TrackEventKind::Vanished) => "vanished",
-        Ok(pb::TrackEventKind::Jumped) => "JUMP",
-        _ => "?",
-    }
-}
-
 /// Interleaved raw frames of the recording: its own bytes when it is raw and interleaved, else
 /// the values as f32.
 pub(crate) fn frames_of(s: &pb::Samples) -> Result<(i32, usize, Vec<u8>), Failure> {
@@ -107,18 +89,16 @@ pub(crate) fn frames_of(s: &pb::Samples) -> Result<(i32, usize, Vec<u8>), Failur
     }
 }
 
-/// Runs `track`.
-impl Run for TrackCmd {
-    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
-        let (ch, a) = (ctx.channel().await?, self);
-        let samples = a.input.read()?;
-        let fs = samples.sample_rate_hz;
-        let (format, frame_bytes, bytes) = frames_of(&samples)?;
-        let config = pb::TrackRequest {
+impl TrackCmd {
+    /// The first message of the TrackTones stream: the analysis settings, with the samples'
+    /// rate, channels, calibration and names but no frames (sent as interleaved raw frames of
+    /// `format`, see [`frames_of`]), the tracking settings and the microphone positions.
+    pub(crate) fn config(&self, samples: &pb::Samples, format: i32) -> pb::TrackRequest {
+        pb::TrackRequest {
             item: Some(pb::track_request::Item::Config(pb::TrackConfig {
                 analysis: Some(pb::ExtractTonesRequest {
                     samples: Some(pb::Samples {
-                        sample_rate_hz: fs,
+                        sample_rate_hz: samples.sample_rate_hz,
                         channel_count: samples.channel_count,
                         layout: pb::ChannelLayout::Interleaved as i32,
                         data: Some(pb::samples::Data::Raw(pb::RawSamples {
@@ -128,17 +108,28 @@ impl Run for TrackCmd {
                         calibration: samples.calibration,
                         channel_names: samples.channel_names.clone(),
                     }),
-                    welch: Some(a.welch.options()),
-                    tones: Some(pb::ToneOptions { threshold_db: a.threshold_db, ..Default::default() }),
+                    welch: Some(self.welch.options()),
+                    tones: Some(pb::ToneOptions { threshold_db: self.threshold_db, ..Default::default() }),
                     ..Default::default()
                 }),
-                window_s: a.window_s,
-                update_interval_s: a.update_interval_s,
-                jump_fraction: a.jump_fraction,
-                reference_channel: a.reference_channel,
-                positions: crate::args::spectral::positions(&a.azimuths_deg),
+                window_s: self.window_s,
+                update_interval_s: self.update_interval_s,
+                jump_fraction: self.jump_fraction,
+                reference_channel: self.reference_channel,
+                positions: positions(&self.azimuths_deg),
             })),
-        };
+        }
+    }
+}
+
+/// Runs `track`.
+impl Run for TrackCmd {
+    async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
+        let (ch, a) = (ctx.channel().await?, self);
+        let samples = a.input.read()?;
+        let fs = samples.sample_rate_hz;
+        let (format, frame_bytes, bytes) = frames_of(&samples)?;
+        let config = a.config(&samples, format);
         if !(a.block_s > 0.0 && a.block_s <= 10.0) {
             return Err(Failure::Usage("--block-s must be in (0, 10]".into()));
         }
@@ -166,17 +157,8 @@ impl Run for TrackCmd {
             .track_tones(tokio_stream::wrappers::ReceiverStream::new(rx))
             .await?
             .into_inner();
-        let mut events = Table::new("events", "Events")
-            .col("stream_time_s", "t [s]")
-            .col("channel", "channel")
-            .col("event", "event")
-            .col("frequency_hz", "f [Hz]")
-            .col("from_frequency_hz", "from [Hz]")
-            .col("track_id", "track");
-        let mut modes = Table::new("modes", "Mode of the strongest tone (when it changed)")
-            .col("stream_time_s", "t [s]")
-            .col("frequency_hz", "f [Hz]")
-            .col("mode", "mode");
+        let mut events = events_table();
+        let mut modes = modes_table();
         let (mut count, mut jumps) = (0u64, 0u64);
         let mut last_mode: Option<String> = None;
         while let Some(u) = updates.message().await? {
@@ -188,74 +170,90 @@ impl Run for TrackCmd {
                 if key.is_some() && key != last_mode {
                     let text = mode.unwrap_or_default();
                     if !a.json_lines {
-                        eprintln!("t = {:8.3} s  mode at {:.1} Hz: {text}", u.stream_time_s, x.frequency_hz);
+                        eprintln!("{}", mode_line(u.stream_time_s, x, &text));
                     }
-                    modes.row(vec![
-                        Some(Val::Num(u.stream_time_s)),
-                        Some(Val::Num(x.frequency_hz)),
-                        Some(Val::Text(text)),
-                    ]);
+                    modes.row(mode_row(u.stream_time_s, x, text));
                     last_mode = key;
                 }
             }
             if a.json_lines {
-                let line = serde_json::json!({
-                    "stream_time_s": u.stream_time_s,
-                    "channels": u.channels.iter().map(|c| serde_json::json!({
-                        "channel": c.channel,
-                        "strongest_track_id": c.strongest_track_id,
-                        "tones": c.tones.iter().map(|t| serde_json::json!({
-                            "track_id": t.track_id, "frequency_hz": t.frequency_hz, "level_db": t.level_db,
-                        })).collect::<Vec<_>>(),
-                    })).collect::<Vec<_>>(),
-                    "strongest_cross": u.strongest_cross.as_ref().map(|x| serde_json::json!({
-                        "frequency_hz": x.frequency_hz,
-                        "mode": mode_text(x),
-                        "channels": x.channels.iter().map(|c| serde_json::json!({
-                            "channel": c.channel, "phase_deg": c.phase_deg, "coherence": c.coherence,
-                        })).collect::<Vec<_>>(),
-                    })),
-                    "events": u.events.iter().map(|e| serde_json::json!({
-                        "kind": kind_name(e.kind), "channel": e.channel, "track_id": e.track_id,
-                        "frequency_hz": e.frequency_hz, "from_frequency_hz": e.from_frequency_hz,
-                        "stream_time_s": e.stream_time_s,
-                    })).collect::<Vec<_>>(),
-                });
-                println!("{line}");
+                println!("{}", update_json(&u));
             }
             for e in &u.events {
                 if e.kind == pb::TrackEventKind::Jumped as i32 {
                     jumps += 1;
                 }
                 if !a.json_lines {
-                    let from = e.from_frequency_hz.map_or(String::new(), |f| format!(" from {f:.1} Hz"));
-                    eprintln!(
-                        "t = {:8.3} s  channel {}  {:8}  {:.1} Hz{from}  (track {})",
-                        e.stream_time_s,
-                        e.channel,
-                        kind_name(e.kind),
-                        e.frequency_hz,
-                        e.track_id
-                    );
+                    eprintln!("{}", event_line(e));
                 }
-                events.row(vec![
-                    Some(Val::Num(e.stream_time_s)),
-                    Some(Val::Int(e.channel.into())),
-                    Some(Val::Text(kind_name(e.kind).into())),
-                    Some(Val::Num(e.frequency_hz)),
-                    e.from_frequency_hz.map(Val::Num),
-                    Some(Val::Int(e.track_id)),
-                ]);
+                events.row(event_row(e));
             }
         }
-        let rep = Report::new(format!("Tracked {} ({count} updates, {jumps} jumps)", a.input.file.display()));
         if a.json_lines {
-            return Ok(rep.quiet());
+            let title = format!("Tracked {} ({count} updates, {jumps} jumps)", a.input.file.display());
+            return Ok(Report::new(title).quiet());
         }
-        Ok(rep
-            .int("updates", "updates", count, "")
-            .int("jumps", "stage jumps", jumps, "")
-            .table(modes)
-            .table(events))
+        Ok(track_report(&a.input.file, count, jumps, modes, events))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    //! Command line and samples -> the tracking stream's first message and frames, without a
+    //! server.
+
+    use super::*;
+
+    fn track(line: &str) -> TrackCmd {
+        let crate::Command::Track(a) = crate::tests::command(line) else { panic!("{line}") };
+        a
+    }
+
+    #[test]
+    fn the_config_carries_the_tracking_settings_and_no_frames() {
+        let a = track(
+            "track jump.wav --pa-per-unit 2000 --threshold-db 8 --jump-fraction 0.04 --window-s 0.3 \
+             --update-interval-s 0.2 --azimuths-deg 0,90,180,270 --reference-channel 1 --segment 2048",
+        );
+        let samples = pb::Samples {
+            sample_rate_hz: 51_200.0,
+            channel_count: 4,
+            data: Some(pb::samples::Data::Values(pb::SampleValues { values: vec![0.0; 8] })),
+            channel_names: vec!["a".into(), "b".into(), "c".into(), "d".into()],
+            ..Default::default()
+        };
+        let Some(pb::track_request::Item::Config(c)) =
+            a.config(&samples, pb::SampleFormat::F32Le as i32).item
+        else {
+            panic!("not a config")
+        };
+        assert_eq!((c.window_s, c.update_interval_s, c.jump_fraction), (Some(0.3), Some(0.2), Some(0.04)));
+        assert_eq!(c.reference_channel, Some(1));
+        assert_eq!(
+            c.positions.iter().map(|p| p.azimuth_deg).collect::<Vec<_>>(),
+            vec![0.0, 90.0, 180.0, 270.0]
+        );
+        let an = c.analysis.expect("analysis");
+        assert_eq!(an.tones.and_then(|t| t.threshold_db), Some(8.0));
+        assert_eq!(an.welch.and_then(|w| w.segment), Some(pb::welch_options::Segment::SegmentLength(2048)));
+        let s = an.samples.expect("samples");
+        assert_eq!((s.sample_rate_hz, s.channel_count, s.channel_names.len()), (51_200.0, 4, 4));
+        assert_eq!(s.layout, pb::ChannelLayout::Interleaved as i32);
+        let Some(pb::samples::Data::Raw(r)) = s.data else { panic!("{:?}", s.data) };
+        assert!(r.data.is_empty(), "the frames follow in their own messages");
+    }
+
+    #[test]
+    fn planar_values_are_interleaved_as_f32_frames() {
+        let s = pb::Samples {
+            channel_count: 2,
+            layout: pb::ChannelLayout::Planar as i32,
+            data: Some(pb::samples::Data::Values(pb::SampleValues { values: vec![1.0, 2.0, 10.0, 20.0] })),
+            ..Default::default()
+        };
+        let (format, frame_bytes, bytes) = frames_of(&s).expect("frames");
+        assert_eq!((format, frame_bytes), (pb::SampleFormat::F32Le as i32, 8));
+        let got: Vec<f32> = bytes.chunks(4).map(|b| f32::from_le_bytes([b[0], b[1], b[2], b[3]])).collect();
+        assert_eq!(got, vec![1.0, 10.0, 2.0, 20.0], "frame by frame");
     }
 }

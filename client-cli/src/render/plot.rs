@@ -80,6 +80,7 @@ impl Axis {
         Self { min: lo, max: hi.max(lo * 1.000_001), scale: Scale::Log, label: label.into() }
     }
 
+    /// Where `v` lies along the axis, 0 at its minimum and 1 at its maximum.
     fn frac(&self, v: f64) -> f64 {
         match self.scale {
             Scale::Linear => (v - self.min) / (self.max - self.min),
@@ -139,15 +140,25 @@ pub fn escape(s: &str) -> String {
 /// A plot being drawn.
 #[derive(Debug)]
 pub struct Plot {
+    /// Page width, px.
     w: f64,
+    /// Page height, px.
     h: f64,
+    /// Left margin (to the plot area), px.
     left: f64,
+    /// Right margin, px.
     right: f64,
+    /// Top margin, px.
     top: f64,
+    /// Bottom margin, px.
     bottom: f64,
+    /// The horizontal axis.
     x: Axis,
+    /// The vertical axis.
     y: Axis,
+    /// The SVG drawn so far.
     body: String,
+    /// Legend entries: label, colour and marker name.
     legend: Vec<(String, String, &'static str)>,
     /// Page positions of the data drawn, to place the legend where it hides the least.
     drawn: Vec<(f64, f64)>,
@@ -370,6 +381,7 @@ pub enum Marker {
 }
 
 impl Marker {
+    /// The marker's name (for legend entries).
     fn name(self) -> &'static str {
         match self {
             Marker::Dot => "dot",
@@ -380,6 +392,7 @@ impl Marker {
         }
     }
 
+    /// The marker a name stands for (a dot for an unknown name).
     fn from_name(n: &str) -> Self {
         match n {
             "ring" => Marker::Ring,
@@ -390,6 +403,7 @@ impl Marker {
         }
     }
 
+    /// The marker centred at (`cx`, `cy`) px in `colour`, as SVG.
     fn svg(self, cx: f64, cy: f64, colour: &str) -> String {
         match self {
             Marker::Dot => format!("<circle cx=\"{cx:.1}\" cy=\"{cy:.1}\" r=\"3\" fill=\"{colour}\"/>"),

@@ -24,9 +24,13 @@ pub enum Val {
 /// One line of a report: JSON key (with unit suffix), label for people, value, unit.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Row {
+    /// JSON key (with the unit as suffix).
     key: &'static str,
+    /// Label for people.
     label: &'static str,
+    /// The value.
     value: Val,
+    /// Unit shown after the value.
     unit: &'static str,
     /// Left out of the table form (kept in JSON): shown once elsewhere.
     hidden: bool,
@@ -35,9 +39,13 @@ pub struct Row {
 /// A table inside a report: JSON key, columns (JSON key, header with unit), rows.
 #[derive(Debug, Clone, Default)]
 pub struct Table {
+    /// JSON key.
     key: &'static str,
+    /// Title shown above the table.
     title: String,
+    /// Columns: JSON key and header (with unit).
     columns: Vec<(String, String)>,
+    /// Rows, one cell per column (`None`: empty).
     rows: Vec<Vec<Option<Val>>>,
 }
 
@@ -58,6 +66,7 @@ impl Table {
         self.rows.push(cells);
     }
 
+    /// A cell as table text ("-" when empty).
     fn cell_text(v: &Option<Val>) -> String {
         match v {
             None => "-".into(),
@@ -69,6 +78,7 @@ impl Table {
         }
     }
 
+    /// The rows as a JSON array of objects keyed by column.
     fn to_json(&self) -> Value {
         Value::Array(
             self.rows
@@ -86,6 +96,7 @@ impl Table {
         )
     }
 
+    /// The title, the header and the rows, aligned; nothing for a table without rows.
     fn to_text(&self) -> String {
         if self.rows.is_empty() {
             return String::new();
@@ -139,6 +150,7 @@ impl Table {
     }
 }
 
+/// A value as JSON (numbers as numbers, flags as booleans).
 pub(crate) fn val_json(v: &Val) -> Value {
     match v {
         Val::Num(x) | Val::Plain(x) => json!(x),
@@ -151,12 +163,19 @@ pub(crate) fn val_json(v: &Val) -> Value {
 /// A result to print.
 #[derive(Debug, Clone, Default)]
 pub struct Report {
+    /// Prints nothing (the content went elsewhere).
     quiet: bool,
+    /// Prints its title line alone in table form.
     title_only: bool,
+    /// The title line.
     title: String,
+    /// Label-value rows.
     rows: Vec<Row>,
+    /// Tables, after the rows.
     tables: Vec<Table>,
+    /// Per-channel sections.
     children: Vec<Report>,
+    /// Where the answer came from (models, defaults, notes).
     provenance: Option<pb::Provenance>,
 }
 

@@ -26,6 +26,8 @@ pub fn mode_label(m: &pb::GuidedModeId) -> String {
     }
 }
 
+/// Adds the fully expanded jet summary to `r`: Mj, sqrt(Mj^2-1), Uj (m/s), the ambient
+/// sound speed (m/s), the reference length (m) and bj (m) when the jet has a width.
 pub(crate) fn jet_rows(r: Report, j: &Option<pb::ExpandedJetSummary>) -> Report {
     let j = j.clone().unwrap_or_default();
     r.num("fully_expanded_mach_number", "Mj", j.fully_expanded_mach_number, "")
@@ -36,6 +38,8 @@ pub(crate) fn jet_rows(r: Report, j: &Option<pb::ExpandedJetSummary>) -> Report 
         .opt("fully_expanded_width_m", "bj", j.fully_expanded_width_m, "m")
 }
 
+/// A table stored under `key`, titled `title`, of harmonic tones: order, frequency (Hz) and
+/// Strouhal number.
 pub(crate) fn tone_table(key: &'static str, title: &str, tones: &[pb::Tone]) -> Table {
     let mut t =
         Table::new(key, title).col("order", "n").col("frequency_hz", "f [Hz]").col("strouhal_number", "St");
@@ -49,6 +53,7 @@ pub(crate) fn tone_table(key: &'static str, title: &str, tones: &[pb::Tone]) -> 
     t
 }
 
+/// Adds the level corrections applied, one row each.
 pub(crate) fn correction_rows(mut r: Report, c: &[String]) -> Report {
     for (i, s) in c.iter().enumerate() {
         r = r.text(if i == 0 { "correction" } else { "correction_more" }, "level correction", s.clone());
@@ -56,6 +61,7 @@ pub(crate) fn correction_rows(mut r: Report, c: &[String]) -> Report {
     r
 }
 
+/// The name of an azimuthal pattern (axisymmetric, standing, spinning and which way).
 pub(crate) fn pattern_name(p: i32) -> &'static str {
     match pb::AzimuthalPattern::try_from(p) {
         Ok(pb::AzimuthalPattern::Axisymmetric) => "axisymmetric",
@@ -91,6 +97,8 @@ pub(crate) fn stage_text(t: &pb::ExtractedTone) -> String {
     }
 }
 
+/// Adds the analysis settings: window, segment, overlap, averages, resolution and ENBW
+/// (Hz), the PSD random error and the samples left over.
 pub(crate) fn analysis_rows(r: Report, a: &pb::AnalysisParameters) -> Report {
     r.text("window", "window", a.window.clone())
         .int("segment_length", "segment length", a.segment_length.into(), "samples")
@@ -102,6 +110,8 @@ pub(crate) fn analysis_rows(r: Report, a: &pb::AnalysisParameters) -> Report {
         .int("unused_samples", "samples after the last segment", a.unused_samples, "")
 }
 
+/// The one-third-octave band table: nominal and exact centres (Hz), level (dB re 20 uPa),
+/// A-weighted level (dB(A)) and whether the band is resolved.
 pub(crate) fn band_table(b: &pb::BandSummary) -> Table {
     let mut t = Table::new("bands", "One-third-octave bands (IEC 61260-1, base ten)")
         .col("nominal_hz", "band [Hz]")
@@ -121,11 +131,21 @@ pub(crate) fn band_table(b: &pb::BandSummary) -> Table {
     t
 }
 
+/// Adds the cautions, one row each.
 pub(crate) fn caution_rows(mut r: Report, c: &[String]) -> Report {
     for (i, s) in c.iter().enumerate() {
         r = r.text(if i == 0 { "caution" } else { "caution_more" }, "CAUTION", s.clone());
     }
     r
+}
+
+/// A channel's name for tables and plots: its name in the recording, else "channel N".
+pub(crate) fn channel_label(name: &str, channel: u32) -> String {
+    if name.is_empty() {
+        format!("channel {channel}")
+    } else {
+        name.to_string()
+    }
 }
 
 /// Rows of a channel section that the summary of several channels shows once.
@@ -159,7 +179,7 @@ pub(crate) fn channel_summary(mut top: Report, channels: &[pb::ChannelSpectrum])
         .col("strongest_tone_hz", "strongest tone [Hz]")
         .col("strongest_tone_level_db", "its level [dB re 20 uPa]");
     for c in channels {
-        let label = if c.name.is_empty() { format!("channel {}", c.channel) } else { c.name.clone() };
+        let label = channel_label(&c.name, c.channel);
         let top_tone = c.tones.iter().max_by(|a, b| a.level_db.total_cmp(&b.level_db));
         t.row(vec![
             Some(Val::Text(label)),
@@ -180,6 +200,7 @@ pub(crate) fn channel_summary(mut top: Report, channels: &[pb::ChannelSpectrum])
     top.table(t)
 }
 
+/// The name of a closure outcome (in, below or above the band, or no band).
 pub(crate) fn outcome_name(o: i32) -> &'static str {
     match pb::ClosureOutcome::try_from(o) {
         Ok(pb::ClosureOutcome::InBand) => "in band",
