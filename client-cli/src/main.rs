@@ -58,6 +58,8 @@ struct Cli {
 }
 
 /// The subcommands, each with its arguments.
+// Parsed once per process: the size of its largest variant costs nothing worth boxing for.
+#[allow(clippy::large_enum_variant)]
 #[derive(Debug, Subcommand)]
 enum Command {
     /// Isentropic ratios from a Mach number, or the Mach number from one ratio.

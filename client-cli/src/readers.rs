@@ -95,6 +95,7 @@ pub(crate) fn wav(path: &Path, bytes: &[u8], calibration: pb::Calibration) -> Re
         data: Some(pb::samples::Data::Raw(pb::RawSamples { data: data.into(), format: format as i32 })),
         calibration: Some(calibration),
         channel_names: Vec::new(),
+        channel_calibrations: Vec::new(),
     })
 }
 
@@ -149,6 +150,7 @@ pub(crate) fn csv(
         data: Some(pb::samples::Data::Values(pb::SampleValues { values: columns.concat() })),
         calibration: Some(calibration),
         channel_names: names,
+        channel_calibrations: Vec::new(),
     })
 }
 
@@ -169,6 +171,7 @@ pub(crate) fn raw(
         data: Some(pb::samples::Data::Raw(pb::RawSamples { data: bytes.into(), format: format as i32 })),
         calibration: Some(calibration),
         channel_names: Vec::new(),
+        channel_calibrations: Vec::new(),
     }
 }
 

@@ -64,7 +64,7 @@ pub struct InputArgs {
     pub layout: LayoutArg,
     /// Pascals per sample unit (WAV: per count for integer files, per full-scale unit for
     /// float files). One calibration is required: this, the microphone chain, or --in-pascals.
-    #[arg(long, conflicts_with_all = ["sensitivity_v_per_pa", "in_pascals"])]
+    #[arg(long, conflicts_with_all = ["sensitivity_v_per_pa", "in_pascals", "calibration_file"])]
     pub pa_per_unit: Option<f64>,
     /// The samples are already in pascals (1 Pa per unit): say so explicitly, nothing is assumed.
     #[arg(long, conflicts_with = "sensitivity_v_per_pa")]
@@ -75,6 +75,68 @@ pub struct InputArgs {
     /// DAQ volts per sample unit (with --sensitivity-v-per-pa).
     #[arg(long, requires = "sensitivity_v_per_pa")]
     pub volts_per_unit: Option<f64>,
+    /// One calibration per channel (a ring or array of microphones, each with its own
+    /// sensitivity): a TOML file with one [[channel]] table per channel, in channel order, each
+    /// giving pa_per_unit, or sensitivity_v_per_pa and volts_per_unit, and optionally a name.
+    /// Replaces --pa-per-unit, --sensitivity-v-per-pa and --in-pascals.
+    #[arg(long, conflicts_with_all = ["sensitivity_v_per_pa", "in_pascals"])]
+    pub calibration_file: Option<PathBuf>,
+}
+
+/// One channel's calibration from a calibration file, and its name ("" when not given).
+pub(crate) type ChannelCalibration = (pb::Calibration, String);
+
+/// Reads a calibration file (`--calibration-file`): one `[[channel]]` table per channel.
+///
+/// # Errors
+/// [`Failure::Usage`] naming the file and the channel entry for anything it cannot use.
+pub(crate) fn read_calibration_file(path: &std::path::Path) -> Result<Vec<ChannelCalibration>, Failure> {
+    use pb::calibration::Scale;
+    let bad = |what: String| Failure::Usage(format!("{}: {what}", path.display()));
+    let text = std::fs::read_to_string(path).map_err(|e| bad(format!("cannot read it: {e}")))?;
+    let doc: toml::Table = text.parse().map_err(|e: toml::de::Error| bad(e.to_string()))?;
+    let Some(toml::Value::Array(channels)) = doc.get("channel") else {
+        return Err(bad("no [[channel]] tables: give one per channel, in channel order".into()));
+    };
+    channels
+        .iter()
+        .enumerate()
+        .map(|(i, c)| {
+            let entry = format!("channel entry {} ([[channel]] number {})", i, i + 1);
+            let t = c.as_table().ok_or_else(|| bad(format!("{entry} is not a table")))?;
+            let num = |key: &str| match t.get(key) {
+                None => Ok(None),
+                Some(v) => v
+                    .as_float()
+                    .or_else(|| v.as_integer().map(|n| n as f64))
+                    .map(Some)
+                    .ok_or_else(|| bad(format!("{entry}: {key} must be a number"))),
+            };
+            if let Some(k) = t.keys().find(|k| {
+                !["name", "pa_per_unit", "sensitivity_v_per_pa", "volts_per_unit"].contains(&k.as_str())
+            }) {
+                return Err(bad(format!(
+                    "{entry}: unknown key {k} (known: name, pa_per_unit, sensitivity_v_per_pa, volts_per_unit)"
+                )));
+            }
+            let scale = match (num("pa_per_unit")?, num("sensitivity_v_per_pa")?, num("volts_per_unit")?) {
+                (Some(k), None, None) => Scale::PascalsPerUnit(k),
+                (None, Some(s), Some(v)) => {
+                    Scale::Microphone(pb::MicrophoneChain { sensitivity_v_per_pa: s, volts_per_unit: v })
+                }
+                _ => {
+                    return Err(bad(format!(
+                        "{entry}: give pa_per_unit, or sensitivity_v_per_pa and volts_per_unit (not both)"
+                    )))
+                }
+            };
+            let name = match t.get("name") {
+                None => String::new(),
+                Some(v) => v.as_str().map(str::to_string).ok_or_else(|| bad(format!("{entry}: name must be text")))?,
+            };
+            Ok((pb::Calibration { scale: Some(scale) }, name))
+        })
+        .collect()
 }
 
 impl InputArgs {
@@ -104,7 +166,8 @@ impl InputArgs {
             _ => {
                 return Err(Failure::Usage(format!(
                     "{}: no calibration given; give --pa-per-unit, or --sensitivity-v-per-pa and \
-                     --volts-per-unit, or --in-pascals if the samples are already pascals",
+                     --volts-per-unit, or --in-pascals if the samples are already pascals, or \
+                     --calibration-file with one calibration per channel",
                     self.file.display()
                 )))
             }
@@ -118,8 +181,35 @@ impl InputArgs {
     /// [`Failure::Usage`] without a calibration, for a file that cannot be read, CSV or raw
     /// without --sample-rate-hz, or content its reader refuses.
     pub fn read(&self) -> Result<pb::Samples, Failure> {
-        let calibration = self.calibration()?;
+        let per_channel = self.calibration_file.as_deref().map(read_calibration_file).transpose()?;
+        // With a calibration file the common calibration is replaced below, per channel.
+        let calibration =
+            if per_channel.is_some() { pb::Calibration::default() } else { self.calibration()? };
         let bytes = read_with_progress(&self.file)?;
+        let mut samples = self.decode(bytes, calibration)?;
+        if let (Some(per_channel), Some(path)) = (per_channel, &self.calibration_file) {
+            let channels = samples.channel_count.max(1) as usize;
+            if per_channel.len() != channels {
+                return Err(Failure::Usage(format!(
+                    "{}: {} [[channel]] entries for the {channels} channels of {}: give one per channel",
+                    path.display(),
+                    per_channel.len(),
+                    self.file.display()
+                )));
+            }
+            let named = per_channel.iter().all(|(_, n)| !n.is_empty());
+            let (cals, names): (Vec<_>, Vec<_>) = per_channel.into_iter().unzip();
+            samples.calibration = None;
+            samples.channel_calibrations = cals;
+            if samples.channel_names.is_empty() && named {
+                samples.channel_names = names;
+            }
+        }
+        Ok(samples)
+    }
+
+    /// Decodes the file's bytes by its kind, with `calibration` for every channel.
+    fn decode(&self, bytes: Vec<u8>, calibration: pb::Calibration) -> Result<pb::Samples, Failure> {
         match self.kind() {
             InputKind::Wav => readers::wav(&self.file, &bytes, calibration),
             InputKind::Csv => readers::csv(&self.file, &bytes, self.rate("CSV")?, calibration),
@@ -244,6 +334,66 @@ mod tests {
         assert_eq!((r.format, r.data.len()), (pb::SampleFormat::I16Le as i32, 8));
         let e = parse(&format!("{} --in-pascals", f.display())).read().unwrap_err();
         assert!(matches!(e, Failure::Usage(ref m) if m == "raw files need --sample-rate-hz"), "{e:?}");
+        let _ = std::fs::remove_dir_all(dir);
+    }
+
+    #[test]
+    fn a_calibration_file_gives_each_channel_its_own_factor_and_name() {
+        use pb::calibration::Scale;
+        let dir = std::env::temp_dir().join(format!("jetloop-cal-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).expect("dir");
+        let cal = dir.join("ring.toml");
+        std::fs::write(
+            &cal,
+            "[[channel]]\nname = \"mic 0 deg\"\npa_per_unit = 0.001\n\n[[channel]]\nname = \"mic 90 deg\"\n\
+             sensitivity_v_per_pa = 0.0036\nvolts_per_unit = 0.0003\n",
+        )
+        .expect("write");
+        let rec = dir.join("two.csv");
+        std::fs::write(&rec, "0.5,-1\n1.5,2\n").expect("write");
+        let s =
+            parse(&format!("{} --sample-rate-hz 51200 --calibration-file {}", rec.display(), cal.display()))
+                .read()
+                .expect("samples");
+        assert_eq!(s.calibration, None, "one calibration per channel replaces the common one");
+        assert_eq!(
+            s.channel_calibrations.iter().map(|c| c.scale).collect::<Vec<_>>(),
+            vec![
+                Some(Scale::PascalsPerUnit(0.001)),
+                Some(Scale::Microphone(pb::MicrophoneChain {
+                    sensitivity_v_per_pa: 0.0036,
+                    volts_per_unit: 0.0003
+                }))
+            ]
+        );
+        assert_eq!(s.channel_names, vec!["mic 0 deg".to_string(), "mic 90 deg".to_string()]);
+        // One entry for two channels: refused, naming both counts.
+        std::fs::write(&cal, "[[channel]]\npa_per_unit = 0.001\n").expect("write");
+        let e =
+            parse(&format!("{} --sample-rate-hz 51200 --calibration-file {}", rec.display(), cal.display()))
+                .read()
+                .unwrap_err();
+        assert!(
+            matches!(e, Failure::Usage(ref m) if m.contains("1 [[channel]] entries for the 2 channels")),
+            "{e:?}"
+        );
+        // An entry with both forms, and an unknown key, are named.
+        std::fs::write(
+            &cal,
+            "[[channel]]\npa_per_unit = 0.001\nsensitivity_v_per_pa = 0.004\nvolts_per_unit = 1\n",
+        )
+        .expect("write");
+        let e = read_calibration_file(&cal).unwrap_err();
+        assert!(
+            matches!(e, Failure::Usage(ref m) if m.contains("channel entry 0") && m.contains("not both")),
+            "{e:?}"
+        );
+        std::fs::write(&cal, "[[channel]]\nsensitivity_mv_per_pa = 3.6\n").expect("write");
+        let e = read_calibration_file(&cal).unwrap_err();
+        assert!(
+            matches!(e, Failure::Usage(ref m) if m.contains("unknown key sensitivity_mv_per_pa")),
+            "{e:?}"
+        );
         let _ = std::fs::remove_dir_all(dir);
     }
 }

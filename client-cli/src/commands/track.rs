@@ -107,6 +107,7 @@ impl TrackCmd {
                         })),
                         calibration: samples.calibration,
                         channel_names: samples.channel_names.clone(),
+                        channel_calibrations: samples.channel_calibrations.clone(),
                     }),
                     welch: Some(self.welch.options()),
                     tones: Some(pb::ToneOptions { threshold_db: self.threshold_db, ..Default::default() }),

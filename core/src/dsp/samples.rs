@@ -59,6 +59,14 @@ pub enum DecodeError {
         /// Bytes per sample.
         width: usize,
     },
+    /// Per-channel calibrations not one per channel.
+    #[error("{given} channel calibrations for {channels} channels: give one per channel")]
+    Calibrations {
+        /// Calibrations given.
+        given: usize,
+        /// Channels.
+        channels: usize,
+    },
 }
 
 #[derive(Debug, Clone)]
@@ -82,6 +90,9 @@ pub struct Recording {
     channels: usize,
     per_channel: usize,
     scale_pa: f64,
+    /// Pascals per unit of each channel when the channels differ (a ring of microphones,
+    /// each with its own sensitivity); empty: `scale_pa` for every channel.
+    channel_scales_pa: Vec<f64>,
 }
 
 impl Recording {
@@ -107,13 +118,20 @@ impl Recording {
         let (blocks, starts) =
             if bytes.is_empty() { (Vec::new(), Vec::new()) } else { (vec![bytes], vec![0]) };
         let storage = Storage::Blocks { blocks, starts, total, format };
-        Ok(Self { storage, layout, channels, per_channel, scale_pa })
+        Ok(Self { storage, layout, channels, per_channel, scale_pa, channel_scales_pa: Vec::new() })
     }
 
     /// An interleaved recording that will grow block by block (see [`Recording::push_block`]).
     pub fn stream(format: Format, channels: usize, scale_pa: f64) -> Self {
         let storage = Storage::Blocks { blocks: Vec::new(), starts: Vec::new(), total: 0, format };
-        Self { storage, layout: Layout::Interleaved, channels: channels.max(1), per_channel: 0, scale_pa }
+        Self {
+            storage,
+            layout: Layout::Interleaved,
+            channels: channels.max(1),
+            per_channel: 0,
+            scale_pa,
+            channel_scales_pa: Vec::new(),
+        }
     }
 
     /// Appends a block of whole interleaved frames (kept, not copied).
@@ -156,7 +174,32 @@ impl Recording {
             return Err(DecodeError::Ragged { bytes: values.len() * 8, channels, width: 8 });
         }
         let per_channel = values.len() / channels;
-        Ok(Self { storage: Storage::Values(values), layout, channels, per_channel, scale_pa })
+        Ok(Self {
+            storage: Storage::Values(values),
+            layout,
+            channels,
+            per_channel,
+            scale_pa,
+            channel_scales_pa: Vec::new(),
+        })
+    }
+
+    /// The same recording with one factor per channel, pascals per unit, in channel order
+    /// (each microphone's own calibration); `scales` must hold one entry per channel.
+    ///
+    /// # Errors
+    /// [`DecodeError::Calibrations`] when the count differs from the channel count.
+    pub fn with_channel_scales(mut self, scales: Vec<f64>) -> Result<Self, DecodeError> {
+        if scales.len() != self.channels {
+            return Err(DecodeError::Calibrations { given: scales.len(), channels: self.channels });
+        }
+        self.channel_scales_pa = scales;
+        Ok(self)
+    }
+
+    /// Pascals per unit of channel `c`.
+    pub fn scale_of(&self, c: usize) -> f64 {
+        self.channel_scales_pa.get(c).copied().unwrap_or(self.scale_pa)
     }
 
     /// Number of channels.
@@ -195,7 +238,7 @@ impl Recording {
             Storage::Blocks { format: Format::I32, .. } => 2_147_483_647.0,
             _ => return None,
         };
-        let k = self.scale_pa.abs();
+        let k = self.scale_of(c).abs();
         let limit = (counts - 1.0) * k;
         let view = self.channel(c);
         let mut buf = vec![0.0; 65_536];
@@ -221,7 +264,7 @@ impl Recording {
             }
             Storage::Values(v) => Source::Values(v),
         };
-        ChannelView { src, first, stride, len: self.per_channel, scale: self.scale_pa }
+        ChannelView { src, first, stride, len: self.per_channel, scale: self.scale_of(c) }
     }
 }
 

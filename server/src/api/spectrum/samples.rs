@@ -98,11 +98,17 @@ pub(super) fn sample_set_for(
     defaults: &mut Defaults,
     stream: bool,
 ) -> Result<SampleSet, ApiError> {
-    use pb::calibration::Scale;
     use pb::samples::Data;
     let mut check = Check::new();
-    let Some(pb::Samples { sample_rate_hz, channel_count, layout: lay, data, calibration, channel_names }) =
-        s
+    let Some(pb::Samples {
+        sample_rate_hz,
+        channel_count,
+        layout: lay,
+        data,
+        calibration,
+        channel_names,
+        channel_calibrations,
+    }) = s
     else {
         check.missing("samples", "give the sample rate and the samples");
         return check.finish(None);
@@ -127,33 +133,35 @@ pub(super) fn sample_set_for(
         );
     }
     let layout = layout(&mut check, lay);
-    let scale = match calibration.and_then(|c| c.scale) {
-        None => {
-            check.missing(
-                "samples.calibration",
-                "give pascals_per_unit, microphone (sensitivity and volts per unit), or in_pascals = true \
-                 for samples already in pascals; no unit is assumed",
-            );
-            None
+    // One calibration for every channel, or one per channel (never both, never neither).
+    let (scale, channel_scales) = match (calibration, channel_calibrations.is_empty()) {
+        (Some(c), true) => (scale_of(&mut check, Some(c), "samples.calibration"), None),
+        (None, false) => {
+            if channel_calibrations.len() != channels as usize {
+                check.other(
+                    "samples.channel_calibrations",
+                    format!(
+                        "samples.channel_calibrations has {} entries for {channels} channels: give one per channel",
+                        channel_calibrations.len()
+                    ),
+                );
+            }
+            let scales: Vec<Option<f64>> = channel_calibrations
+                .into_iter()
+                .enumerate()
+                .map(|(i, c)| scale_of(&mut check, Some(c), &format!("samples.channel_calibrations[{i}]")))
+                .collect();
+            (Some(1.0), scales.into_iter().collect::<Option<Vec<f64>>>())
         }
-        Some(Scale::InPascals(true)) => Some(1.0),
-        Some(Scale::InPascals(false)) => {
+        (Some(_), false) => {
             check.other(
-                "samples.calibration.in_pascals",
-                "samples.calibration.in_pascals = false: set it true only for samples already in pascals; \
-                 otherwise give pascals_per_unit or microphone",
+                "samples.channel_calibrations",
+                "samples.channel_calibrations and samples.calibration are both set: give one calibration for \
+                 all channels or one per channel, not both",
             );
-            None
+            (None, None)
         }
-        Some(Scale::PascalsPerUnit(k)) => {
-            check.range("samples.calibration", SCALE.check("pascals_per_unit", k))
-        }
-        Some(Scale::Microphone(pb::MicrophoneChain { sensitivity_v_per_pa, volts_per_unit })) => {
-            let p = "samples.calibration.microphone";
-            let s = check.range(p, SENSITIVITY.check("sensitivity_v_per_pa", sensitivity_v_per_pa));
-            let v = check.range(p, VOLTS.check("volts_per_unit", volts_per_unit));
-            s.zip(v).map(|(s, v)| v / s)
-        }
+        (None, true) => (scale_of(&mut check, None, "samples.calibration"), None),
     };
     let mut raw_format = None;
     let (count, field) = match &data {
@@ -220,6 +228,10 @@ pub(super) fn sample_set_for(
         }
         Data::Values(v) => Recording::from_values(v.values, layout, channels as usize, scale),
     };
+    let recording = match channel_scales {
+        Some(scales) => recording.and_then(|r| r.with_channel_scales(scales)),
+        None => recording,
+    };
     match recording {
         Ok(recording) => {
             Ok(SampleSet { fs, recording, names: channel_names, field, cancel: Cancel::default() })
@@ -227,6 +239,45 @@ pub(super) fn sample_set_for(
         Err(e @ DecodeError::Ragged { .. }) => {
             check.other(field, format!("{field}: {e} (samples.channel_count = {channels})"));
             check.finish(None)
+        }
+        Err(e @ DecodeError::Calibrations { .. }) => {
+            check.other("samples.channel_calibrations", format!("samples.channel_calibrations: {e}"));
+            check.finish(None)
+        }
+    }
+}
+
+/// Pascals per unit of one calibration message at `path` (`samples.calibration` or an entry of
+/// `samples.channel_calibrations`); `None` with the violation recorded when it is missing or
+/// out of range.
+fn scale_of(check: &mut Check, calibration: Option<pb::Calibration>, path: &str) -> Option<f64> {
+    use pb::calibration::Scale;
+    match calibration.and_then(|c| c.scale) {
+        None => {
+            check.missing(
+                path,
+                "give pascals_per_unit, microphone (sensitivity and volts per unit), or in_pascals = true \
+                 for samples already in pascals; no unit is assumed",
+            );
+            None
+        }
+        Some(Scale::InPascals(true)) => Some(1.0),
+        Some(Scale::InPascals(false)) => {
+            check.other(
+                format!("{path}.in_pascals"),
+                format!(
+                    "{path}.in_pascals = false: set it true only for samples already in pascals; \
+                     otherwise give pascals_per_unit or microphone"
+                ),
+            );
+            None
+        }
+        Some(Scale::PascalsPerUnit(k)) => check.range(path, SCALE.check("pascals_per_unit", k)),
+        Some(Scale::Microphone(pb::MicrophoneChain { sensitivity_v_per_pa, volts_per_unit })) => {
+            let p = format!("{path}.microphone");
+            let s = check.range(&p, SENSITIVITY.check("sensitivity_v_per_pa", sensitivity_v_per_pa));
+            let v = check.range(&p, VOLTS.check("volts_per_unit", volts_per_unit));
+            s.zip(v).map(|(s, v)| v / s)
         }
     }
 }
