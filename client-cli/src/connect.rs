@@ -138,36 +138,69 @@ impl Ctx {
     /// [`Failure::Usage`] for a malformed address, [`Failure::Connect`] when it cannot be
     /// reached.
     pub async fn channel(&self) -> Result<Conn, Failure> {
-        let url = &self.server;
-        let tls_url;
-        let url = match (&self.tls, url.strip_prefix("http://")) {
-            (Some(_), Some(rest)) => {
-                tls_url = format!("https://{rest}");
-                &tls_url
-            }
-            (None, _) if url.starts_with("https://") => {
-                return Err(Failure::Usage(format!(
-                    "--server {url}: give --ca-file (the CA the server's certificate chains to) for TLS"
-                )))
-            }
-            _ => url,
-        };
+        let url = endpoint_url(&self.server, self.tls.is_some())?;
         let mut ep = tonic::transport::Endpoint::from_shared(url.clone())
             .map_err(|e| Failure::Usage(format!("--server {url}: {e}")))?;
         if let Some(tls) = &self.tls {
             ep = ep.tls_config(tls.clone()).map_err(|e| Failure::Usage(format!("TLS settings: {e}")))?;
         }
-        if let Some(t) = self.timeout {
+        ep = match self.timeout {
             // Connecting gets at least a second whatever the call's limit (a loopback connect
             // takes far less, a remote one may take more).
-            ep = ep.timeout(t).connect_timeout(t.max(std::time::Duration::from_secs(1)));
-        }
-        let channel = ep
-            .connect()
-            .await
-            .map_err(|e| Failure::Connect(format!("cannot reach the jetloop server at {url}: {e}")))?;
+            Some(t) => ep.timeout(t).connect_timeout(t.max(std::time::Duration::from_secs(1))),
+            // A host that takes the connection and never answers, or drops the packets, must
+            // not hold the command forever.
+            None => ep.connect_timeout(CONNECT_TIMEOUT),
+        };
+        let channel = ep.connect().await.map_err(|e| {
+            Failure::Connect(format!("cannot reach the jetloop server at {url}: {}", error_chain(&e)))
+        })?;
         Ok(tonic::service::interceptor::InterceptedService::new(channel, self.bearer.clone()))
     }
+}
+
+/// Time allowed to connect when --timeout is not given.
+pub(crate) const CONNECT_TIMEOUT: std::time::Duration = std::time::Duration::from_secs(5);
+
+/// The URL to connect to: `--server` as `host:port`, `http://host:port` or `https://host:port`;
+/// without a scheme, `https://` with TLS settings and `http://` without; `http://` with TLS
+/// settings is upgraded to `https://`.
+///
+/// # Errors
+/// [`Failure::Usage`] for `https://` without TLS settings (no CA to check the server with).
+pub(crate) fn endpoint_url(server: &str, tls: bool) -> Result<String, Failure> {
+    let server = server.trim();
+    let (scheme, rest) = match server.split_once("://") {
+        Some((scheme, rest)) => (Some(scheme.to_ascii_lowercase()), rest),
+        None => (None, server),
+    };
+    match (scheme.as_deref(), tls) {
+        (Some("https"), false) => Err(Failure::Usage(format!(
+            "--server {server}: give --ca-file (the CA the server's certificate chains to) for TLS"
+        ))),
+        (Some("http") | Some("https") | None, true) => Ok(format!("https://{rest}")),
+        (Some("http") | None, false) => Ok(format!("http://{rest}")),
+        (Some(other), _) => Err(Failure::Usage(format!(
+            "--server {server}: the scheme {other}:// is not one jetloop speaks; give host:port, \
+             http://host:port or https://host:port"
+        ))),
+    }
+}
+
+/// An error with its causes, outermost first ("transport error: Connection refused (os error
+/// 111)"), so a failed connection says why.
+fn error_chain(e: &dyn std::error::Error) -> String {
+    let mut text = e.to_string();
+    let mut source = e.source();
+    while let Some(s) = source {
+        let more = s.to_string();
+        if !text.contains(&more) {
+            text.push_str(": ");
+            text.push_str(&more);
+        }
+        source = s.source();
+    }
+    text
 }
 
 #[cfg(test)]
@@ -207,5 +240,30 @@ mod tests {
         assert!(matches!(e, Failure::Usage(ref m) if m.contains("give --ca-file")), "{e:?}");
         let e = Ctx::from_flags(Flags { timeout_s: Some(0.0), ..Flags::default() }).unwrap_err();
         assert!(matches!(e, Failure::Usage(_)), "{e:?}");
+    }
+
+    #[test]
+    fn a_server_address_with_or_without_a_scheme() {
+        assert_eq!(endpoint_url("127.0.0.1:50051", false).expect("url"), "http://127.0.0.1:50051");
+        assert_eq!(endpoint_url("http://rig:50051", false).expect("url"), "http://rig:50051");
+        assert_eq!(endpoint_url("rig:50051", true).expect("url"), "https://rig:50051");
+        assert_eq!(endpoint_url("http://rig:50051", true).expect("url"), "https://rig:50051");
+        assert!(matches!(endpoint_url("https://rig:50051", false), Err(Failure::Usage(_))));
+        let e = endpoint_url("grpc://rig:50051", false).unwrap_err();
+        assert!(matches!(e, Failure::Usage(ref m) if m.contains("grpc://")), "{e:?}");
+    }
+
+    #[test]
+    fn a_refused_connection_says_where_and_why() {
+        // A port nobody listens on: bind one and close it again.
+        let port =
+            std::net::TcpListener::bind("127.0.0.1:0").expect("bind").local_addr().expect("addr").port();
+        let ctx =
+            Ctx::from_flags(Flags { server: format!("127.0.0.1:{port}"), ..Flags::default() }).expect("ctx");
+        let rt = tokio::runtime::Builder::new_current_thread().enable_all().build().expect("runtime");
+        let e = rt.block_on(ctx.channel()).unwrap_err();
+        let Failure::Connect(m) = e else { panic!("{e:?}") };
+        assert!(m.contains(&format!("http://127.0.0.1:{port}")), "{m}");
+        assert!(m.to_lowercase().contains("refused"), "{m}");
     }
 }

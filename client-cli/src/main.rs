@@ -26,15 +26,15 @@ use std::process::ExitCode;
 #[derive(Debug, Parser)]
 #[command(name = "jetloop", version, about)]
 struct Cli {
-    /// Server address.
+    /// Server address: host:port, http://host:port, or https://host:port (TLS, with --ca-file).
     #[arg(long, global = true, env = "JETLOOP_SERVER", default_value = "http://127.0.0.1:50051")]
     server: String,
     /// Print JSON instead of a table.
     #[arg(long, global = true)]
     json: bool,
     /// Give up on a call after this many seconds (the server is told the deadline too;
-    /// connecting may take at least a second). Default: no client-side limit (the server's own
-    /// limits apply).
+    /// connecting may take at least a second). Default: connecting gives up after 5 s, and a
+    /// call has no client-side limit (the server's own limits apply).
     #[arg(long, global = true, env = "JETLOOP_TIMEOUT_S")]
     timeout: Option<f64>,
     /// File holding the bearer token for a server that requires one (its first non-comment

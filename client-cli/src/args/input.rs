@@ -76,7 +76,7 @@ pub struct InputArgs {
     #[arg(long, requires = "sensitivity_v_per_pa")]
     pub volts_per_unit: Option<f64>,
     /// One calibration per channel (a ring or array of microphones, each with its own
-    /// sensitivity): a TOML file with one [[channel]] table per channel, in channel order, each
+    /// sensitivity): a TOML file with one `[[channel]]` table per channel, in channel order, each
     /// giving pa_per_unit, or sensitivity_v_per_pa and volts_per_unit, and optionally a name.
     /// Replaces --pa-per-unit, --sensitivity-v-per-pa and --in-pascals.
     #[arg(long, conflicts_with_all = ["sensitivity_v_per_pa", "in_pascals"])]
