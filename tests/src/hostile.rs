@@ -8,6 +8,8 @@
 //! of 100,000 mutated requests.
 
 use crate::fixtures;
+use crate::samples::{f32_pascals, frames_block, opening_block, pascals, track_frames, welch_segment};
+use crate::signals::{f32_le, ring_f32, sine};
 use bytes::Bytes;
 use jetloop_proto::pb;
 use prost::Message;
@@ -59,45 +61,18 @@ fn enc(m: &impl Message) -> Vec<u8> {
 }
 
 fn tone_values(n: usize, fs: f64, f: f64) -> Vec<f64> {
-    (0..n)
-        .map(|i| {
-            2.0 * (2.0 * std::f64::consts::PI * f * i as f64 / fs).sin() + 0.01 * ((i * 7919) % 13) as f64
-        })
-        .collect()
+    sine(n, fs, f, 2.0).iter().enumerate().map(|(i, v)| v + 0.01 * ((i * 7919) % 13) as f64).collect()
 }
 
 fn welch(segment: u32) -> Option<pb::WelchOptions> {
-    Some(pb::WelchOptions {
-        segment: Some(pb::welch_options::Segment::SegmentLength(segment)),
-        ..Default::default()
-    })
-}
-
-fn raw_f32(channels: u32, fs: f64, data: Vec<u8>) -> Option<pb::Samples> {
-    Some(pb::Samples {
-        sample_rate_hz: fs,
-        channel_count: channels,
-        data: Some(pb::samples::Data::Raw(pb::RawSamples {
-            data: data.into(),
-            format: pb::SampleFormat::F32Le as i32,
-        })),
-        calibration: crate::in_pascals(),
-        ..Default::default()
-    })
+    Some(welch_segment(segment))
 }
 
 /// The tones request used by the spectral base_calls: 2048 values of a 3 kHz tone at 48 kHz,
 /// 512-sample segments.
 fn tones_request() -> pb::ExtractTonesRequest {
     pb::ExtractTonesRequest {
-        samples: Some(pb::Samples {
-            sample_rate_hz: 48_000.0,
-            data: Some(pb::samples::Data::Values(pb::SampleValues {
-                values: tone_values(2048, 48_000.0, 3000.0),
-            })),
-            calibration: crate::in_pascals(),
-            ..Default::default()
-        }),
+        samples: Some(pascals(tone_values(2048, 48_000.0, 3000.0), 48_000.0)),
         welch: welch(512),
         ..Default::default()
     }
@@ -106,9 +81,7 @@ fn tones_request() -> pb::ExtractTonesRequest {
 /// One valid base call per RPC of every jetloop service, and the health check.
 pub fn base_calls() -> Vec<BaseCall> {
     use fixtures::{conditions, inch_nozzle, round};
-    let f32s = |n: usize, f: f64| -> Vec<u8> {
-        tone_values(n, 48_000.0, f).iter().flat_map(|v| (*v as f32).to_le_bytes()).collect()
-    };
+    let f32s = |n: usize, f: f64| f32_le(&tone_values(n, 48_000.0, f));
     // A ramp: microphone and an NPR channel (2.5 -> 3.5) interleaved.
     let ramp: Vec<u8> = (0..4096)
         .flat_map(|i| {
@@ -117,16 +90,12 @@ pub fn base_calls() -> Vec<BaseCall> {
             [mic.to_le_bytes(), npr.to_le_bytes()].concat()
         })
         .collect();
-    let stream_first = pb::SampleBlock {
-        request: Some(pb::ExtractTonesRequest {
-            samples: raw_f32(1, 48_000.0, Vec::new()),
-            welch: welch(512),
-            ..Default::default()
-        }),
+    let stream_first = opening_block(pb::ExtractTonesRequest {
+        samples: Some(f32_pascals(Vec::new(), 48_000.0, 1)),
+        welch: welch(512),
         ..Default::default()
-    };
+    });
     let track_first = fixtures::track_config(48_000.0, 512, 0.02);
-    let frames = |b: Vec<u8>| pb::TrackRequest { item: Some(pb::track_request::Item::Frames(b.into())) };
     vec![
         BaseCall {
             path: "/jetloop.v1.GasDynamicsService/IsentropicRatios",
@@ -168,7 +137,7 @@ pub fn base_calls() -> Vec<BaseCall> {
         },
         BaseCall {
             path: "/jetloop.v1.ToneService/SweepScreech",
-            messages: vec![enc(&crate::fixtures::npr_sweep(inch_nozzle(3.0), 2.5, 4.5, 5))],
+            messages: vec![enc(&fixtures::npr_sweep(inch_nozzle(3.0), 2.5, 4.5, 5))],
             weight: 5,
         },
         BaseCall {
@@ -206,7 +175,7 @@ pub fn base_calls() -> Vec<BaseCall> {
         BaseCall {
             path: "/jetloop.v1.SpectrumService/CrossSpectra",
             messages: vec![enc(&pb::CrossSpectraRequest {
-                samples: raw_f32(2, 48_000.0, crate::ring_f32(2, 2048, 48_000.0, 3)),
+                samples: Some(f32_pascals(ring_f32(2, 2048, 48_000.0, 3), 48_000.0, 2)),
                 welch: welch(512),
                 ..Default::default()
             })],
@@ -215,7 +184,7 @@ pub fn base_calls() -> Vec<BaseCall> {
         BaseCall {
             path: "/jetloop.v1.SpectrumService/AnalyseRamp",
             messages: vec![enc(&pb::AnalyseRampRequest {
-                samples: raw_f32(2, 48_000.0, ramp),
+                samples: Some(f32_pascals(ramp, 48_000.0, 2)),
                 control: Some(pb::ControlChannel {
                     channel: 1,
                     quantity: pb::ControlQuantity::NozzlePressureRatio as i32,
@@ -233,8 +202,8 @@ pub fn base_calls() -> Vec<BaseCall> {
             path: "/jetloop.v1.SpectrumService/ExtractTonesStream",
             messages: vec![
                 enc(&stream_first),
-                enc(&pb::SampleBlock { frames: f32s(1024, 3000.0).into(), ..Default::default() }),
-                enc(&pb::SampleBlock { frames: f32s(1024, 3000.0).into(), ..Default::default() }),
+                enc(&frames_block(f32s(1024, 3000.0))),
+                enc(&frames_block(f32s(1024, 3000.0))),
             ],
             weight: 4,
         },
@@ -242,8 +211,8 @@ pub fn base_calls() -> Vec<BaseCall> {
             path: "/jetloop.v1.SpectrumService/TrackTones",
             messages: vec![
                 enc(&track_first),
-                enc(&frames(f32s(1024, 3000.0))),
-                enc(&frames(f32s(1024, 5000.0))),
+                enc(&track_frames(f32s(1024, 3000.0))),
+                enc(&track_frames(f32s(1024, 5000.0))),
             ],
             weight: 3,
         },

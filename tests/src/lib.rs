@@ -1,7 +1,16 @@
-//! Helpers for end-to-end tests: a real jetloop server on a loopback socket.
+//! Helpers for end-to-end tests: a real jetloop server on a loopback socket, and the request
+//! builders the tests and the benchmarks share: [`fixtures`] (nozzles, jets, sweeps, staging
+//! points), [`samples`] (recordings and their calibration, Welch options, block and tracking
+//! stream messages) and [`signals`] (synthetic signals and seeded noise).
 #![forbid(unsafe_code)]
 
+pub mod fixtures;
 pub mod hostile;
+pub mod samples;
+pub mod signals;
+
+pub use samples::{f32_pascals, in_pascals, pascals, tones_request};
+pub use signals::{ring_f32, sine};
 
 use jetloop_server::config::{Limits, ServeOptions};
 use std::net::SocketAddr;
@@ -108,25 +117,6 @@ impl TestServer {
     }
 }
 
-/// Benchmark data (invented): `frames` interleaved f32 frames of `m` microphones equally
-/// spaced on a ring, a tone of amplitude 10 at 5 kHz spinning as m = 1 (cos(omega t - theta)),
-/// plus a deterministic pseudo-random floor (uniform in [-0.5, 0.5], LCG seeded with `seed`).
-pub fn ring_f32(m: usize, frames: usize, fs: f64, seed: u64) -> Vec<u8> {
-    let mut state = seed;
-    let mut bytes = Vec::with_capacity(m * frames * 4);
-    for k in 0..frames {
-        let t = k as f64 / fs;
-        for j in 0..m {
-            state = state.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
-            let r = ((state >> 11) as f64 / (1u64 << 53) as f64) - 0.5;
-            let th = 2.0 * std::f64::consts::PI * j as f64 / m as f64;
-            let v = 10.0 * (2.0 * std::f64::consts::PI * 5000.0 * t - th).cos() + r;
-            bytes.extend_from_slice(&(v as f32).to_le_bytes());
-        }
-    }
-    bytes
-}
-
 /// The demo NPR sweep of `sample-data/npr-sweep-up-down.csv` (invented rig): Powell's loop
 /// f = n / (N Ls (1/(kappa Uj) + 1/a)) for a cold 25.4 mm round convergent nozzle (ISA sea
 /// level, reservoir at 288.15 K), with Ls the vortex-sheet spacing and Uj the fully expanded
@@ -214,6 +204,14 @@ pub fn stats(mut v: Vec<f64>) -> (f64, f64, f64) {
     (v[v.len() / 2], v[0], v[v.len() - 1])
 }
 
+/// Median of timings (benchmarks): the middle of [`stats`].
+///
+/// # Panics
+/// When `v` is empty.
+pub fn median(v: Vec<f64>) -> f64 {
+    stats(v).0
+}
+
 /// Asserts that `status` has `code` and a `google.rpc.BadRequest` violation on `field`.
 ///
 /// # Panics
@@ -227,156 +225,24 @@ pub fn assert_field(status: &tonic::Status, code: tonic::Code, field: &str) {
     assert!(bad.field_violations.iter().all(|v| !v.description.is_empty()));
 }
 
-/// Request pieces shared by the end-to-end tests and the benchmarks: nozzles, jet conditions
-/// at a pressure ratio (cold, ISA ambient unless changed), jet inputs, and relative error.
-pub mod fixtures {
-    use jetloop_proto::pb::{self, jet_input::Source, nozzle::Kind, operating_point::Pressure};
+/// `msg` as a call carrying the bearer `token` (`authorization: Bearer <token>`).
+///
+/// # Panics
+/// When `token` is not visible ASCII.
+pub fn bearer<T>(msg: T, token: &str) -> tonic::Request<T> {
+    let mut r = tonic::Request::new(msg);
+    r.metadata_mut().insert("authorization", format!("Bearer {token}").parse().expect("ascii"));
+    r
+}
 
-    /// |a - b| / |b|.
-    pub fn rel(a: f64, b: f64) -> f64 {
-        ((a - b) / b).abs()
-    }
-
-    /// A round convergent nozzle of exit diameter `d` m.
-    pub fn round(d: f64) -> Kind {
-        Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: d })
-    }
-
-    /// A round convergent-divergent nozzle of exit diameter `d` m and design Mach `md`.
-    pub fn cd(d: f64, md: f64) -> Kind {
-        Kind::RoundConvergentDivergent(pb::RoundConvergentDivergentNozzle {
-            exit_diameter_m: d,
-            design: Some(pb::round_convergent_divergent_nozzle::Design::DesignMachNumber(md)),
-        })
-    }
-
-    /// Conditions of nozzle `kind` at NPR `npr`, every other field left to the server.
-    pub fn conditions(kind: Kind, npr: f64) -> pb::JetConditions {
-        pb::JetConditions {
-            nozzle: Some(pb::Nozzle { kind: Some(kind) }),
-            operating_point: Some(pb::OperatingPoint {
-                pressure: Some(Pressure::NozzlePressureRatio(npr)),
-                ..Default::default()
-            }),
-            gas: None,
-            ambient_gas: None,
-            ideal_expansion_tolerance: None,
+/// Reads `stream` until it fails: the status it ended with, or `None` when it ended cleanly
+/// (the updates before are dropped).
+pub async fn stream_error<T>(stream: &mut tonic::Streaming<T>) -> Option<tonic::Status> {
+    loop {
+        match stream.message().await {
+            Ok(Some(_)) => continue,
+            Ok(None) => return None,
+            Err(e) => return Some(e),
         }
     }
-
-    /// The jet input of conditions.
-    pub fn input(c: pb::JetConditions) -> pb::JetInput {
-        pb::JetInput { source: Some(Source::Conditions(c)) }
-    }
-
-    /// A 25.4 mm round convergent nozzle at NPR `npr` as a jet input.
-    pub fn inch_nozzle(npr: f64) -> pb::JetInput {
-        input(conditions(round(0.0254), npr))
-    }
-
-    /// A screech sweep of `jet` over `count` nozzle pressure ratios from `start` to `stop`,
-    /// every option left to the server.
-    pub fn npr_sweep(jet: pb::JetInput, start: f64, stop: f64, count: u32) -> pb::SweepScreechRequest {
-        pb::SweepScreechRequest {
-            jet: Some(jet),
-            variable: pb::SweepVariable::NozzlePressureRatio as i32,
-            values: Some(pb::sweep_screech_request::Values::Range(pb::SweepRange { start, stop, count })),
-            options: None,
-        }
-    }
-
-    /// `m` points of a pressure sweep: six stages over NPR 2.2-5.0 whose frequencies follow
-    /// a smooth trend with 12 % jumps (synthetic, for timing and load only).
-    pub fn pressure_sweep_points(m: usize) -> Vec<pb::MeasuredTone> {
-        (0..m)
-            .map(|k| {
-                let npr = 2.2 + 2.8 * k as f64 / m as f64;
-                let stage = (6 * k / m) as i32;
-                let f = 6000.0 / (npr - 1.0) * 1.12f64.powi(stage % 2 * 2 - 1 + stage / 2);
-                pb::MeasuredTone { x: npr, frequency_hz: f, ..Default::default() }
-            })
-            .collect()
-    }
-
-    /// The first message of a tracking stream: f32 frames of one channel at `fs` Hz already in
-    /// pascals, Welch segments of `segment` samples, an update every `update_s` s; every other
-    /// setting left to the server.
-    pub fn track_config(fs: f64, segment: u32, update_s: f64) -> pb::TrackRequest {
-        pb::TrackRequest {
-            item: Some(pb::track_request::Item::Config(pb::TrackConfig {
-                analysis: Some(pb::ExtractTonesRequest {
-                    samples: Some(pb::Samples {
-                        sample_rate_hz: fs,
-                        data: Some(pb::samples::Data::Raw(pb::RawSamples {
-                            format: pb::SampleFormat::F32Le as i32,
-                            data: Vec::new().into(),
-                        })),
-                        calibration: crate::in_pascals(),
-                        ..Default::default()
-                    }),
-                    welch: Some(pb::WelchOptions {
-                        segment: Some(pb::welch_options::Segment::SegmentLength(segment)),
-                        ..Default::default()
-                    }),
-                    ..Default::default()
-                }),
-                update_interval_s: Some(update_s),
-                ..Default::default()
-            })),
-        }
-    }
-
-    /// A cold round jet given directly: Mj and Dj in m.
-    pub fn direct(mj: f64, dj: f64) -> pb::JetInput {
-        pb::JetInput {
-            source: Some(Source::FullyExpanded(pb::FullyExpandedJet {
-                fully_expanded_mach_number: mj,
-                size: Some(pb::fully_expanded_jet::Size::FullyExpandedDiameterM(dj)),
-                ..Default::default()
-            })),
-        }
-    }
-}
-
-/// Samples sent as values already in pascals: one channel of `values` at `fs` Hz (more
-/// channels: `values` interleaved frame by frame and `channels` set on the result).
-pub fn pascals(values: Vec<f64>, fs: f64) -> jetloop_proto::pb::Samples {
-    jetloop_proto::pb::Samples {
-        sample_rate_hz: fs,
-        data: Some(jetloop_proto::pb::samples::Data::Values(jetloop_proto::pb::SampleValues { values })),
-        calibration: in_pascals(),
-        ..Default::default()
-    }
-}
-
-/// Samples sent as raw little-endian f32 `frames` of `channels` channels at `fs` Hz, already in
-/// pascals (a DAQ's native float dump).
-pub fn f32_pascals(frames: impl Into<bytes::Bytes>, fs: f64, channels: u32) -> jetloop_proto::pb::Samples {
-    jetloop_proto::pb::Samples {
-        sample_rate_hz: fs,
-        channel_count: channels,
-        data: Some(jetloop_proto::pb::samples::Data::Raw(jetloop_proto::pb::RawSamples {
-            data: frames.into(),
-            format: jetloop_proto::pb::SampleFormat::F32Le as i32,
-        })),
-        calibration: in_pascals(),
-        ..Default::default()
-    }
-}
-
-/// An ExtractTones request for `samples` with every option left to the server.
-pub fn tones_request(samples: jetloop_proto::pb::Samples) -> jetloop_proto::pb::ExtractTonesRequest {
-    jetloop_proto::pb::ExtractTonesRequest { samples: Some(samples), ..Default::default() }
-}
-
-/// `n` samples at `fs` Hz of a sinusoid of frequency `f` Hz and amplitude `amplitude`.
-pub fn sine(n: usize, fs: f64, f: f64, amplitude: f64) -> Vec<f64> {
-    (0..n).map(|i| amplitude * (2.0 * std::f64::consts::PI * f * i as f64 / fs).sin()).collect()
-}
-
-/// The explicit "samples already in pascals" calibration (the API assumes no unit).
-pub fn in_pascals() -> Option<jetloop_proto::pb::Calibration> {
-    Some(jetloop_proto::pb::Calibration {
-        scale: Some(jetloop_proto::pb::calibration::Scale::InPascals(true)),
-    })
 }

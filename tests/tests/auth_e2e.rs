@@ -3,7 +3,7 @@
 
 use jetloop_proto::pb::{self, info_service_client::InfoServiceClient};
 use jetloop_server::config::ServeOptions;
-use jetloop_tests::TestServer;
+use jetloop_tests::{bearer, TestServer};
 use tonic::Code;
 use tonic_health::pb::{
     health_check_response::ServingStatus, health_client::HealthClient, HealthCheckRequest,
@@ -12,9 +12,7 @@ use tonic_health::pb::{
 const TOKEN: &str = "lab-7-rig-token-0123456789";
 
 fn with_token(token: &str) -> tonic::Request<pb::ServerInfoRequest> {
-    let mut r = tonic::Request::new(pb::ServerInfoRequest {});
-    r.metadata_mut().insert("authorization", format!("Bearer {token}").parse().expect("ascii"));
-    r
+    bearer(pb::ServerInfoRequest {}, token)
 }
 
 #[tokio::test]

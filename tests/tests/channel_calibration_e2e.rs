@@ -4,22 +4,14 @@
 //! pascals with one calibration.
 
 use jetloop_proto::pb::{self, spectrum_service_client::SpectrumServiceClient};
+use jetloop_tests::samples::{pascals_per_unit, raw, ring_positions, welch_segment};
+use jetloop_tests::signals::ring_channels;
 use jetloop_tests::{assert_field, TestServer};
 use std::f64::consts::PI;
 use tonic::Code;
 
 /// Pascals per count of each of 4 invented microphones (spread about +-2 dB, a typical ring).
 const PA_PER_COUNT: [f64; 4] = [1.0e-3, 1.26e-3, 0.79e-3, 1.12e-3];
-
-/// `m` channels of `n` frames at `fs` Hz of pressure `p(theta_j, t)` in pascals.
-fn ring_pa(m: usize, n: usize, fs: f64, p: impl Fn(f64, f64) -> f64) -> Vec<Vec<f64>> {
-    (0..m)
-        .map(|j| {
-            let th = 2.0 * PI * j as f64 / m as f64;
-            (0..n).map(|i| p(th, i as f64 / fs)).collect()
-        })
-        .collect()
-}
 
 /// The channels as interleaved int16 counts, channel j at `pa_per_count[j]`.
 fn counts(channels: &[Vec<f64>], pa_per_count: &[f64]) -> Vec<u8> {
@@ -35,21 +27,12 @@ fn counts(channels: &[Vec<f64>], pa_per_count: &[f64]) -> Vec<u8> {
 }
 
 fn per_channel(k: &[f64]) -> Vec<pb::Calibration> {
-    k.iter().map(|k| pb::Calibration { scale: Some(pb::calibration::Scale::PascalsPerUnit(*k)) }).collect()
+    k.iter().copied().map(pascals_per_unit).collect()
 }
 
+/// Interleaved int16 `bytes` of `channels` channels at `fs` Hz, one calibration per channel.
 fn int16_samples(bytes: Vec<u8>, fs: f64, channels: u32, cal: Vec<pb::Calibration>) -> pb::Samples {
-    pb::Samples {
-        sample_rate_hz: fs,
-        channel_count: channels,
-        data: Some(pb::samples::Data::Raw(pb::RawSamples {
-            data: bytes.into(),
-            format: pb::SampleFormat::I16Le as i32,
-        })),
-        calibration: None,
-        channel_calibrations: cal,
-        ..Default::default()
-    }
+    pb::Samples { channel_calibrations: cal, ..raw(bytes, pb::SampleFormat::I16Le, fs, channels, None) }
 }
 
 #[tokio::test]
@@ -58,7 +41,7 @@ async fn each_channel_reads_its_own_level_through_its_own_sensitivity() {
     let mut c = SpectrumServiceClient::new(server.channel().await);
     let (fs, n, f0) = (48_000.0, 1 << 16, 1000.0);
     // 1 Pa rms on every microphone: 20 log10(1 / 20e-6) = 93.98 dB (closed form).
-    let p = ring_pa(4, n, fs, |_, t| 2f64.sqrt() * (2.0 * PI * f0 * t).sin());
+    let p = ring_channels(4, n, fs, |_, t| 2f64.sqrt() * (2.0 * PI * f0 * t).sin());
     let r = c
         .extract_tones(jetloop_tests::tones_request(int16_samples(
             counts(&p, &PA_PER_COUNT),
@@ -97,14 +80,11 @@ async fn mode_energies_of_a_ring_with_mixed_sensitivities_equal_those_of_one_cal
     let (fs, n, f0) = (51_200.0, 1 << 16, 2000.0);
     let w = 2.0 * PI * f0;
     // A spinning m = 1 mode with a weaker m = 0 part, 0.5 Pa amplitude.
-    let p = ring_pa(4, n, fs, |th, t| 0.5 * (w * t - th).cos() + 0.2 * (w * t).cos());
-    let positions = jetloop_proto_positions(4);
+    let p = ring_channels(4, n, fs, |th, t| 0.5 * (w * t - th).cos() + 0.2 * (w * t).cos());
+    let positions = ring_positions(4);
     let ask = |samples| pb::CrossSpectraRequest {
         samples: Some(samples),
-        welch: Some(pb::WelchOptions {
-            segment: Some(pb::welch_options::Segment::SegmentLength(4096)),
-            ..Default::default()
-        }),
+        welch: Some(welch_segment(4096)),
         positions: positions.clone(),
         ..Default::default()
     };
@@ -135,16 +115,6 @@ async fn mode_energies_of_a_ring_with_mixed_sensitivities_equal_those_of_one_cal
     server.stop().await;
 }
 
-fn jetloop_proto_positions(m: usize) -> Vec<pb::MicrophonePosition> {
-    (0..m)
-        .map(|j| pb::MicrophonePosition {
-            azimuth_deg: 360.0 * j as f64 / m as f64,
-            polar_angle_deg: None,
-            distance_m: None,
-        })
-        .collect()
-}
-
 #[tokio::test]
 async fn per_channel_calibrations_must_be_one_per_channel_and_not_beside_a_common_one() {
     let server = TestServer::start().await;
@@ -167,7 +137,7 @@ async fn per_channel_calibrations_must_be_one_per_channel_and_not_beside_a_commo
     let e = c.extract_tones(jetloop_tests::tones_request(both)).await.unwrap_err();
     assert_field(&e, Code::InvalidArgument, "samples.channel_calibrations");
     let mut bad = per_channel(&PA_PER_COUNT);
-    bad[2] = pb::Calibration { scale: Some(pb::calibration::Scale::PascalsPerUnit(-1.0)) };
+    bad[2] = pascals_per_unit(-1.0);
     let e = c
         .extract_tones(jetloop_tests::tones_request(int16_samples(bytes, 48_000.0, 4, bad)))
         .await

@@ -3,18 +3,17 @@
 //! scipy.signal.csd / coherence in tests/python/test_cross_spectra.py.
 
 use jetloop_proto::pb::{self, spectrum_service_client::SpectrumServiceClient};
+use jetloop_tests::samples::{ring_positions, welch_segment};
+use jetloop_tests::signals::{interleave, ring_channels, Lcg};
 use jetloop_tests::{assert_field, TestServer};
 use std::f64::consts::PI;
 use tonic::Code;
 
-/// Seeded Gaussian noise (Box-Muller on a 64-bit LCG; synthetic).
+/// Seeded Gaussian noise (Box-Muller on a 64-bit LCG whose first state is skipped; synthetic).
 fn noise(n: usize, seed: u64, sigma: f64) -> Vec<f64> {
-    let mut s = seed.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
-    let mut u = || {
-        s = s.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
-        ((s >> 11) as f64 + 0.5) / (1u64 << 53) as f64
-    };
-    (0..n).map(|_| sigma * (-2.0 * u().ln()).sqrt() * (2.0 * PI * u()).cos()).collect()
+    let mut rng = Lcg::new(seed);
+    rng.next_u64();
+    (0..n).map(|_| rng.normal(sigma)).collect()
 }
 
 /// Interleaved samples of `m` microphones at azimuths 2 pi j / m with pattern `f(theta, t)`
@@ -26,22 +25,17 @@ fn ring(
     f: impl Fn(f64, f64) -> f64,
 ) -> (pb::Samples, Vec<pb::MicrophonePosition>) {
     let sigma = 0.05_f64.sqrt();
-    let chans: Vec<Vec<f64>> = (0..m)
-        .map(|j| {
-            let th = 2.0 * PI * j as f64 / m as f64;
-            let e = noise(n, 40 + j as u64, sigma);
-            (0..n).map(|i| f(th, i as f64 / fs) + e[i]).collect()
-        })
+    let mut chans = ring_channels(m, n, fs, f);
+    for (j, c) in chans.iter_mut().enumerate() {
+        for (x, e) in c.iter_mut().zip(noise(n, 40 + j as u64, sigma)) {
+            *x += e;
+        }
+    }
+    let positions = ring_positions(m)
+        .into_iter()
+        .map(|p| pb::MicrophonePosition { polar_angle_deg: Some(90.0), distance_m: Some(0.5), ..p })
         .collect();
-    let values = (0..n).flat_map(|i| chans.iter().map(move |c| c[i])).collect();
-    let positions = (0..m)
-        .map(|j| pb::MicrophonePosition {
-            azimuth_deg: 360.0 * j as f64 / m as f64,
-            polar_angle_deg: Some(90.0),
-            distance_m: Some(0.5),
-        })
-        .collect();
-    (pb::Samples { channel_count: m as u32, ..jetloop_tests::pascals(values, fs) }, positions)
+    (pb::Samples { channel_count: m as u32, ..jetloop_tests::pascals(interleave(&chans), fs) }, positions)
 }
 
 #[tokio::test]
@@ -62,10 +56,7 @@ async fn a_ring_of_eight_identifies_spinning_standing_and_axisymmetric_tones() {
         let r = c
             .cross_spectra(pb::CrossSpectraRequest {
                 samples: Some(samples),
-                welch: Some(pb::WelchOptions {
-                    segment: Some(pb::welch_options::Segment::SegmentLength(4096)),
-                    ..Default::default()
-                }),
+                welch: Some(welch_segment(4096)),
                 positions,
                 ..Default::default()
             })

@@ -5,17 +5,13 @@ use jetloop_proto::pb::{
     self, gas_dynamics_service_client::GasDynamicsServiceClient, info_service_client::InfoServiceClient,
     isentropic_ratios_request::Given, nozzle::Kind, operating_point::Pressure,
 };
-use jetloop_tests::fixtures::{self, rel, round};
+use jetloop_tests::fixtures::{cd, conditions_at, rel, round};
 use jetloop_tests::TestServer;
 use tonic::Code;
 
 /// Shared conditions with the reservoir temperature given (288.15 K).
 fn conditions(kind: Kind, npr: f64) -> pb::JetConditions {
-    let mut c = fixtures::conditions(kind, npr);
-    if let Some(op) = c.operating_point.as_mut() {
-        op.total_temperature_k = Some(288.15);
-    }
-    c
+    conditions_at(kind, npr, 288.15)
 }
 
 /// Asserts INVALID_ARGUMENT with a BadRequest violation on `field`.
@@ -85,12 +81,8 @@ async fn jet_state_every_nozzle_kind() {
     assert!(prov.notes.iter().any(|n| n.contains("140 dB")));
     assert!(prov.notes.iter().any(|n| n.contains("common practice")));
     // Ideally expanded C-D nozzle, Md = 1.5: design NPR = 1/0.27240 = 3.6710 (NACA 1135).
-    let cd = Kind::RoundConvergentDivergent(pb::RoundConvergentDivergentNozzle {
-        exit_diameter_m: 0.05,
-        design: Some(pb::round_convergent_divergent_nozzle::Design::DesignMachNumber(1.5)),
-    });
     let st = c
-        .jet_state(pb::JetStateRequest { conditions: Some(conditions(cd, 3.671_021_5)) })
+        .jet_state(pb::JetStateRequest { conditions: Some(conditions(cd(0.05, 1.5), 3.671_021_5)) })
         .await
         .unwrap()
         .into_inner()

@@ -6,7 +6,13 @@ use jetloop_proto::pb::{
     self, samples::Data, spectrum_service_client::SpectrumServiceClient,
     tone_service_client::ToneServiceClient,
 };
-use jetloop_tests::fixtures::{direct, inch_nozzle, rel};
+use jetloop_tests::fixtures::{
+    conditions, direct, expanded_input, fully_expanded, inch_nozzle, npr_sweep, point, rel, round,
+};
+use jetloop_tests::samples::{
+    f32_pascals, frames_block, opening_block, pascals, track_frames, track_start, welch_segment,
+};
+use jetloop_tests::signals::f32_le;
 use jetloop_tests::{assert_field, TestServer};
 use std::f64::consts::PI;
 use tonic::Code;
@@ -53,16 +59,11 @@ async fn bad_inputs_name_their_field() {
     // parameters): a fully expanded Mach number given directly, a pressure ratio, and the
     // temperatures that set an extreme density ratio.
     let expanded = |mj: f64, t0: Option<f64>, ta: Option<f64>| {
-        pb::guided_modes_request::Source::Jet(pb::JetInput {
-            source: Some(pb::jet_input::Source::FullyExpanded(pb::FullyExpandedJet {
-                fully_expanded_mach_number: mj,
-                size: Some(pb::fully_expanded_jet::Size::FullyExpandedDiameterM(0.0254)),
-                total_temperature_k: t0,
-                ambient_temperature_k: ta,
-                gas: None,
-                ambient_gas: None,
-            })),
-        })
+        pb::guided_modes_request::Source::Jet(expanded_input(pb::FullyExpandedJet {
+            total_temperature_k: t0,
+            ambient_temperature_k: ta,
+            ..fully_expanded(mj, 0.0254)
+        }))
     };
     let e = t.guided_modes(ask(expanded(6.5, None, None), None)).await.unwrap_err();
     assert_field(&e, Code::InvalidArgument, "jet.fully_expanded.fully_expanded_mach_number");
@@ -186,7 +187,7 @@ async fn screech_and_sweep_carry_guided_modes_on_request() {
     let e = t
         .sweep_screech(pb::SweepScreechRequest {
             options: Some(options),
-            ..jetloop_tests::fixtures::npr_sweep(inch_nozzle(3.0), 2.0, 5.0, 2001)
+            ..npr_sweep(inch_nozzle(3.0), 2.0, 5.0, 2001)
         })
         .await
         .unwrap_err();
@@ -235,7 +236,7 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
     let n = 1 << 17;
     let values: Vec<f64> = sine(n, fs, f_stage).iter().zip(sine(n, fs, f_none)).map(|(a, b)| a + b).collect();
     let req = pb::ExtractTonesRequest {
-        samples: Some(jetloop_tests::pascals(values, fs)),
+        samples: Some(pascals(values, fs)),
         stage_labels: Some(pb::StageLabelOptions {
             jet: Some(inch_nozzle(3.0)),
             modes: Some(modes),
@@ -246,13 +247,10 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
     // The same question as a block stream (raw f32 frames after the first message) must
     // carry the same labels.
     let Some(Data::Values(v)) = req.samples.as_ref().and_then(|x| x.data.clone()) else { unreachable!() };
-    let raw: Vec<u8> = v.values.iter().flat_map(|x| (*x as f32).to_le_bytes()).collect();
+    let raw = f32_le(&v.values);
     let mut first = req.clone();
-    first.samples = Some(jetloop_tests::f32_pascals(Vec::new(), fs, 0));
-    let msgs = vec![
-        pb::SampleBlock { request: Some(first.clone()), ..Default::default() },
-        pb::SampleBlock { frames: raw.clone().into(), ..Default::default() },
-    ];
+    first.samples = Some(f32_pascals(Vec::new(), fs, 0));
+    let msgs = vec![opening_block(first.clone()), frames_block(raw.clone())];
     let streamed = s.extract_tones_stream(tokio_stream::iter(msgs)).await.unwrap().into_inner();
     let r = s.extract_tones(req).await.unwrap().into_inner();
     assert_eq!(r.stage_bands.len(), 4);
@@ -271,17 +269,9 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
     assert!(other.best_stage.is_none() && other.stages.is_empty(), "{other:?}");
     // A live tracking stream labels its tracked tones the same way.
     let mut analysis = first.clone();
-    analysis.welch = Some(pb::WelchOptions {
-        segment: Some(pb::welch_options::Segment::SegmentLength(8192)),
-        ..Default::default()
-    });
-    let config = pb::TrackRequest {
-        item: Some(pb::track_request::Item::Config(pb::TrackConfig {
-            analysis: Some(analysis),
-            ..Default::default()
-        })),
-    };
-    let frames = pb::TrackRequest { item: Some(pb::track_request::Item::Frames(raw.clone().into())) };
+    analysis.welch = Some(welch_segment(8192));
+    let config = track_start(pb::TrackConfig { analysis: Some(analysis), ..Default::default() });
+    let frames = track_frames(raw.clone());
     let mut live = s.track_tones(tokio_stream::iter(vec![config, frames])).await.unwrap().into_inner();
     let mut labelled = 0;
     while let Some(u) = live.message().await.unwrap() {
@@ -298,7 +288,7 @@ async fn a_tone_at_a_closure_frequency_is_labelled_with_its_stage_and_one_outsid
     // Stage labels need a round or planar jet.
     let e = s
         .extract_tones(pb::ExtractTonesRequest {
-            samples: Some(jetloop_tests::pascals(sine(4096, fs, 1000.0), fs)),
+            samples: Some(pascals(sine(4096, fs, 1000.0), fs)),
             stage_labels: Some(pb::StageLabelOptions {
                 jet: None,
                 modes: None,
@@ -335,13 +325,9 @@ async fn fitted_stages_are_labelled_with_the_mode_their_points_fit() {
             .into_inner();
         let tone = g.modes[0].tones.iter().find(|t| t.cell_mode == 1).unwrap();
         assert_eq!(tone.outcome, pb::ClosureOutcome::InBand as i32, "NPR {npr}");
-        points.push(pb::MeasuredTone {
-            x: npr,
-            frequency_hz: tone.tone.unwrap().frequency_hz.unwrap(),
-            ..Default::default()
-        });
+        points.push(point(npr, tone.tone.unwrap().frequency_hz.unwrap()));
     }
-    let jet = jetloop_tests::fixtures::conditions(jetloop_tests::fixtures::round(0.0254), 3.0);
+    let jet = conditions(round(0.0254), 3.0);
     let r = st
         .fit_stages(pb::FitStagesRequest {
             control: pb::ControlVariable::NozzlePressureRatio as i32,
@@ -365,11 +351,7 @@ async fn fitted_stages_are_labelled_with_the_mode_their_points_fit() {
     let e = st
         .fit_stages(pb::FitStagesRequest {
             control: pb::ControlVariable::Plain as i32,
-            points: vec![
-                pb::MeasuredTone { x: 1.0, frequency_hz: 1000.0, ..Default::default() },
-                pb::MeasuredTone { x: 2.0, frequency_hz: 1010.0, ..Default::default() },
-                pb::MeasuredTone { x: 3.0, frequency_hz: 1020.0, ..Default::default() },
-            ],
+            points: vec![point(1.0, 1000.0), point(2.0, 1010.0), point(3.0, 1020.0)],
             jet: None,
             options: None,
             stage_labels: Some(pb::StageLabelSettings::default()),

@@ -5,7 +5,9 @@ use jetloop_proto::pb::{
     self, gas_dynamics_service_client::GasDynamicsServiceClient,
     spectrum_service_client::SpectrumServiceClient, tone_service_client::ToneServiceClient,
 };
-use jetloop_tests::TestServer;
+use jetloop_tests::fixtures::{inch_nozzle, npr_sweep, track_config};
+use jetloop_tests::samples::track_frames;
+use jetloop_tests::{stream_error, TestServer};
 use std::io::Write;
 use std::sync::{Arc, Mutex};
 use std::time::Duration;
@@ -74,8 +76,7 @@ async fn failures_and_expiries_are_logged_once_with_method_code_and_peer_and_ref
     assert!(failed[0].contains("InvalidArgument") && failed[0].contains("127.0.0.1:"), "{}", failed[0]);
 
     // One expired call: one line.
-    let sweep =
-        jetloop_tests::fixtures::npr_sweep(jetloop_tests::fixtures::inch_nozzle(3.0), 2.0, 6.0, 10_000);
+    let sweep = npr_sweep(inch_nozzle(3.0), 2.0, 6.0, 10_000);
     let mut req = tonic::Request::new(sweep.clone());
     req.set_timeout(Duration::from_millis(5));
     let e = ToneServiceClient::new(ch.clone()).sweep_screech(req).await.unwrap_err();
@@ -160,18 +161,9 @@ async fn failures_and_expiries_are_logged_once_with_method_code_and_peer_and_ref
     // trailers) is logged like a failed unary call: one line with the method, code and peer.
     let server = TestServer::start().await;
     let mut c = SpectrumServiceClient::new(server.channel().await);
-    let msgs = vec![
-        jetloop_tests::fixtures::track_config(48_000.0, 2048, 0.1),
-        pb::TrackRequest { item: Some(pb::track_request::Item::Frames(vec![0u8; 6].into())) },
-    ];
+    let msgs = vec![track_config(48_000.0, 2048, 0.1), track_frames(vec![0u8; 6])];
     let mut updates = c.track_tones(tokio_stream::iter(msgs)).await.expect("stream opens").into_inner();
-    let e = loop {
-        match updates.message().await {
-            Ok(Some(_)) => continue,
-            Ok(None) => panic!("the stream ended without an error"),
-            Err(e) => break e,
-        }
-    };
+    let e = stream_error(&mut updates).await.expect("the stream ended without an error");
     assert_eq!(e.code(), Code::InvalidArgument, "{e:?}");
     let mut streamed = Vec::new();
     for _ in 0..500 {

@@ -7,6 +7,7 @@ use jetloop_proto::pb::{
     spectrum_service_client::SpectrumServiceClient,
 };
 use jetloop_server::config::{Limits, ServeOptions};
+use jetloop_tests::samples::{track_frames, welch_segment};
 use jetloop_tests::TestServer;
 use std::collections::HashMap;
 use std::time::Duration;
@@ -40,9 +41,7 @@ fn parse(text: &str) -> HashMap<String, f64> {
 }
 
 fn authed<T>(msg: T) -> tonic::Request<T> {
-    let mut r = tonic::Request::new(msg);
-    r.metadata_mut().insert("authorization", format!("Bearer {TOKEN}").parse().expect("ascii"));
-    r
+    jetloop_tests::bearer(msg, TOKEN)
 }
 
 fn mach(m: f64) -> pb::IsentropicRatiosRequest {
@@ -85,10 +84,7 @@ async fn the_metrics_endpoint_counts_what_happened() {
     let values: Vec<f64> = (0..4096).map(|i| (i as f64 * 0.3).sin()).collect();
     let req = pb::ExtractTonesRequest {
         samples: Some(jetloop_tests::pascals(values, 48_000.0)),
-        welch: Some(pb::WelchOptions {
-            segment: Some(pb::welch_options::Segment::SegmentLength(1024)),
-            ..Default::default()
-        }),
+        welch: Some(welch_segment(1024)),
         ..Default::default()
     };
     spec.extract_tones(authed(req)).await.expect("tones");
@@ -97,9 +93,7 @@ async fn the_metrics_endpoint_counts_what_happened() {
     // A tracking stream holds the only permit; a call meanwhile is shed. 1000 f32 frames.
     let (tx, rx) = tokio::sync::mpsc::channel(4);
     tx.send(jetloop_tests::fixtures::track_config(48_000.0, 2048, 0.1)).await.expect("send config");
-    tx.send(pb::TrackRequest { item: Some(pb::track_request::Item::Frames(vec![0u8; 4000].into())) })
-        .await
-        .expect("send frames");
+    tx.send(track_frames(vec![0u8; 4000])).await.expect("send frames");
     let stream = spec
         .track_tones(authed(tokio_stream::wrappers::ReceiverStream::new(rx)))
         .await

@@ -8,18 +8,13 @@ use jetloop_proto::pb::{
     nozzle::Kind, operating_point::Pressure, shock_cell_service_client::ShockCellServiceClient,
     tone_service_client::ToneServiceClient,
 };
-use jetloop_tests::fixtures::{self, cd, rel, round};
+use jetloop_tests::fixtures::{self, cd, conditions_at, rel, round};
 use jetloop_tests::{assert_field, TestServer};
 use tonic::Code;
 use tonic_types::StatusExt;
 
 fn conditions(kind: Kind, npr: f64, gas: Option<pb::Gas>, t0: f64) -> pb::JetConditions {
-    let mut c = fixtures::conditions(kind, npr);
-    c.gas = gas;
-    if let Some(op) = c.operating_point.as_mut() {
-        op.total_temperature_k = Some(t0);
-    }
-    c
+    pb::JetConditions { gas, ..conditions_at(kind, npr, t0) }
 }
 
 fn input(c: pb::JetConditions) -> Option<pb::JetInput> {

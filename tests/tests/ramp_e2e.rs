@@ -2,10 +2,12 @@
 //! pressure channel, and its fit points fitted by FitStages.
 
 use jetloop_proto::pb::{
-    self, nozzle::Kind, spectrum_service_client::SpectrumServiceClient,
-    staging_service_client::StagingServiceClient,
+    self, spectrum_service_client::SpectrumServiceClient, staging_service_client::StagingServiceClient,
 };
 use jetloop_tests::demo_sweep::{model_hz, stage_at, DOWN, UP};
+use jetloop_tests::fixtures::{nozzle_only, round};
+use jetloop_tests::samples::welch_segment;
+use jetloop_tests::signals::XorShift;
 use jetloop_tests::{assert_field, TestServer};
 use tonic::Code;
 
@@ -28,20 +30,14 @@ fn npr_at(t: f64) -> f64 {
 fn ramp_recording() -> Vec<u8> {
     let n = (2.0 * HALF_S * FS) as usize;
     let mut phase = 0.0f64;
-    let mut state = 7u64;
-    let mut noise = || {
-        state ^= state << 13;
-        state ^= state >> 7;
-        state ^= state << 17;
-        (state >> 11) as f64 / (1u64 << 53) as f64 - 0.5
-    };
+    let mut noise = XorShift::new(7);
     let mut out = Vec::with_capacity(n * 8);
     for i in 0..n {
         let t = i as f64 / FS;
         let npr = npr_at(t);
         let f = model_hz(stage_at(npr, t < HALF_S), npr);
         phase += 2.0 * std::f64::consts::PI * f / FS;
-        let p = 20.0 * phase.sin() + 2.0 * noise();
+        let p = 20.0 * phase.sin() + 2.0 * noise.centered();
         let volts = (npr - 1.0) * AMBIENT_PA / PA_PER_VOLT;
         out.extend_from_slice(&(p as f32).to_le_bytes());
         out.extend_from_slice(&(volts as f32).to_le_bytes());
@@ -60,10 +56,7 @@ fn request(data: Vec<u8>) -> pb::AnalyseRampRequest {
             ambient_pressure_pa: Some(AMBIENT_PA),
         }),
         frame_duration_s: Some(0.2),
-        welch: Some(pb::WelchOptions {
-            segment: Some(pb::welch_options::Segment::SegmentLength(1024)),
-            ..Default::default()
-        }),
+        welch: Some(welch_segment(1024)),
         tones: None,
         fit_channel: None,
     }
@@ -117,12 +110,7 @@ async fn a_continuous_ramp_gives_tones_against_npr_ready_for_a_stage_fit() {
         .fit_stages(pb::FitStagesRequest {
             control: pb::ControlVariable::NozzlePressureRatio as i32,
             points: r.fit_points.clone(),
-            jet: Some(pb::JetConditions {
-                nozzle: Some(pb::Nozzle {
-                    kind: Some(Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: 0.0254 })),
-                }),
-                ..Default::default()
-            }),
+            jet: Some(nozzle_only(round(0.0254))),
             options: Some(pb::FitOptions { source_cells: Some(4), ..Default::default() }),
             stage_labels: None,
         })

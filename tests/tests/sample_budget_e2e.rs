@@ -3,40 +3,20 @@
 //! alone).
 
 use jetloop_proto::pb;
-use jetloop_tests::TestServer;
+use jetloop_tests::samples::{opening_block, pascals_per_unit, raw};
+use jetloop_tests::{tones_request, TestServer};
 use std::time::Duration;
 use tonic::Code;
 
 /// The first message of a one-channel f32 block stream carrying `bytes` bytes of frames.
 fn stream_opening(bytes: usize) -> pb::SampleBlock {
-    pb::SampleBlock {
-        request: Some(pb::ExtractTonesRequest {
-            samples: Some(pb::Samples {
-                sample_rate_hz: 51_200.0,
-                channel_count: 1,
-                data: Some(pb::samples::Data::Raw(pb::RawSamples {
-                    data: vec![0u8; bytes].into(),
-                    format: pb::SampleFormat::F32Le as i32,
-                })),
-                calibration: Some(pb::Calibration {
-                    scale: Some(pb::calibration::Scale::PascalsPerUnit(1.0)),
-                }),
-                ..Default::default()
-            }),
-            ..Default::default()
-        }),
-        ..Default::default()
-    }
+    let samples = raw(vec![0u8; bytes], pb::SampleFormat::F32Le, 51_200.0, 1, Some(pascals_per_unit(1.0)));
+    opening_block(tones_request(samples))
 }
 
 /// Resident memory of this process in bytes (Linux /proc/self/status).
 fn rss_bytes() -> u64 {
-    let s = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
-    s.lines()
-        .find(|l| l.starts_with("VmRSS:"))
-        .and_then(|l| l.split_whitespace().nth(1))
-        .and_then(|k| k.parse::<u64>().ok())
-        .map_or(0, |k| k * 1024)
+    jetloop_tests::hostile::memory().map_or(0, |(_peak, now)| now)
 }
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]

@@ -3,6 +3,7 @@
 
 use jetloop_proto::pb::{self, gas_dynamics_service_client::GasDynamicsServiceClient};
 use jetloop_server::config::Limits;
+use jetloop_tests::samples::{pascals_per_unit, raw, welch_segment};
 use jetloop_tests::TestServer;
 use std::time::{Duration, Instant};
 use tonic::Code;
@@ -14,29 +15,12 @@ fn big_answer_request() -> bytes::Bytes {
     let n = 1 << 18;
     let data: Vec<u8> = (0..n).flat_map(|i| ((i as f32 * 0.37).sin()).to_le_bytes()).collect();
     let req = pb::ExtractTonesRequest {
-        samples: Some(pb::Samples {
-            sample_rate_hz: 51_200.0,
-            channel_count: 1,
-            data: Some(pb::samples::Data::Raw(pb::RawSamples {
-                data: data.into(),
-                format: pb::SampleFormat::F32Le as i32,
-            })),
-            calibration: Some(pb::Calibration { scale: Some(pb::calibration::Scale::PascalsPerUnit(1.0)) }),
-            ..Default::default()
-        }),
-        welch: Some(pb::WelchOptions {
-            segment: Some(pb::welch_options::Segment::SegmentLength(65_536)),
-            ..Default::default()
-        }),
+        samples: Some(raw(data, pb::SampleFormat::F32Le, 51_200.0, 1, Some(pascals_per_unit(1.0)))),
+        welch: Some(welch_segment(65_536)),
         psd_output: Some(pb::PsdOutputOptions { include: true, max_points: None }),
         ..Default::default()
     };
-    let msg = prost::Message::encode_to_vec(&req);
-    let mut frame = Vec::with_capacity(msg.len() + 5);
-    frame.push(0);
-    frame.extend_from_slice(&(msg.len() as u32).to_be_bytes());
-    frame.extend_from_slice(&msg);
-    frame.into()
+    jetloop_tests::hostile::frame(&prost::Message::encode_to_vec(&req)).into()
 }
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]

@@ -1,12 +1,10 @@
 //! End to end over a real socket: SpectrumService tones and bands, bad input with its field,
 //! and the size limits.
 
-use jetloop_proto::pb::{
-    self, samples::Data, spectrum_service_client::SpectrumServiceClient, welch_options::Segment,
-};
+use jetloop_proto::pb::{self, spectrum_service_client::SpectrumServiceClient};
 use jetloop_server::config::Limits;
+use jetloop_tests::samples::{in_pascals, pascals_per_unit, raw, welch_segment};
 use jetloop_tests::{assert_field, TestServer};
-use std::f64::consts::PI;
 use tonic::Code;
 
 use jetloop_tests::{pascals as samples, sine as tone, tones_request as request};
@@ -55,16 +53,8 @@ async fn bad_samples_name_the_field() {
     let mut c = SpectrumServiceClient::new(server.channel().await);
     let fs = 10_000.0;
     let ok = || tone(4096, fs, 500.0, 1.0);
-    let raw = |data: Vec<u8>, format: pb::SampleFormat, channels: u32| pb::Samples {
-        sample_rate_hz: fs,
-        channel_count: channels,
-        data: Some(Data::Raw(pb::RawSamples { data: data.into(), format: format as i32 })),
-        calibration: jetloop_tests::in_pascals(),
-        ..Default::default()
-    };
     let mut nan = ok();
     nan[100] = f64::NAN;
-    let seg = |n: u32| pb::WelchOptions { segment: Some(Segment::SegmentLength(n)), ..Default::default() };
     let cases: Vec<(pb::ExtractTonesRequest, &str)> = vec![
         (request(samples(ok(), 0.0)), "samples.sample_rate_hz"),
         (request(samples(ok(), -48_000.0)), "samples.sample_rate_hz"),
@@ -72,11 +62,11 @@ async fn bad_samples_name_the_field() {
         (request(samples(nan, fs)), "samples.values.values"),
         (request(samples(vec![0.5; 10], fs)), "samples"),
         (
-            pb::ExtractTonesRequest { welch: Some(seg(8192)), ..request(samples(ok(), fs)) },
+            pb::ExtractTonesRequest { welch: Some(welch_segment(8192)), ..request(samples(ok(), fs)) },
             "welch.segment_length",
         ),
-        (request(raw(vec![0; 64], pb::SampleFormat::Unspecified, 1)), "samples.raw.format"),
-        (request(raw(vec![0; 12], pb::SampleFormat::I16Le, 4)), "samples.raw.data"),
+        (request(raw(vec![0; 64], pb::SampleFormat::Unspecified, fs, 1, in_pascals())), "samples.raw.format"),
+        (request(raw(vec![0; 12], pb::SampleFormat::I16Le, fs, 4, in_pascals())), "samples.raw.data"),
         (request(pb::Samples { channel_count: 3, ..samples(vec![0.0; 4096], fs) }), "samples.values.values"),
         (request(pb::Samples { data: None, ..samples(ok(), fs) }), "samples.data"),
         // No unit is assumed: a request without a calibration is refused, and "already in
@@ -125,15 +115,7 @@ async fn sizes_over_the_limits_are_refused() {
     let mut c =
         SpectrumServiceClient::new(server.channel().await).max_encoding_message_size(100 * 1024 * 1024);
     let n = (1usize << 25) + 16;
-    let req = request(pb::Samples {
-        sample_rate_hz: 48_000.0,
-        data: Some(Data::Raw(pb::RawSamples {
-            data: vec![0; 2 * n].into(),
-            format: pb::SampleFormat::I16Le as i32,
-        })),
-        calibration: jetloop_tests::in_pascals(),
-        ..Default::default()
-    });
+    let req = request(raw(vec![0; 2 * n], pb::SampleFormat::I16Le, 48_000.0, 0, in_pascals()));
     let e = c.extract_tones(req).await.unwrap_err();
     assert_field(&e, Code::ResourceExhausted, "samples.raw.data");
     assert!(e.message().contains("33554432"), "{}", e.message());
@@ -154,29 +136,21 @@ async fn figures_that_may_be_wrong_carry_a_warning() {
     let server = TestServer::start().await;
     let mut c = SpectrumServiceClient::new(server.channel().await);
     let fs = 48_000.0;
-    let seg = |n: u32| pb::WelchOptions { segment: Some(Segment::SegmentLength(n)), ..Default::default() };
     let warnings = |r: pb::ExtractTonesResponse| r.channels[0].warnings.clone();
 
     // Clipped int16 data: a sine driven past full scale, saturated at +-32767 counts.
-    let raw: Vec<u8> = (0..1 << 16)
-        .flat_map(|i| {
-            let v = 40_000.0 * (2.0 * PI * 1000.0 * f64::from(i) / fs).sin();
-            (v.clamp(-32_767.0, 32_767.0) as i16).to_le_bytes()
-        })
+    let counts: Vec<u8> = tone(1 << 16, fs, 1000.0, 40_000.0)
+        .iter()
+        .flat_map(|v| (v.clamp(-32_767.0, 32_767.0) as i16).to_le_bytes())
         .collect();
-    let clipped = pb::Samples {
-        sample_rate_hz: fs,
-        data: Some(Data::Raw(pb::RawSamples { format: pb::SampleFormat::I16Le as i32, data: raw.into() })),
-        calibration: Some(pb::Calibration { scale: Some(pb::calibration::Scale::PascalsPerUnit(0.001)) }),
-        ..Default::default()
-    };
+    let clipped = raw(counts, pb::SampleFormat::I16Le, fs, 0, Some(pascals_per_unit(0.001)));
     let w = warnings(c.extract_tones(request(clipped)).await.unwrap().into_inner());
     assert!(w.iter().any(|s| s.contains("clipped")), "{w:?}");
 
     // A large offset with detrending off (a 40 Hz tone of 1 Pa on 10 Pa of DC).
     let offset: Vec<f64> = tone(1 << 16, fs, 40.0, 2f64.sqrt()).iter().map(|v| v + 10.0).collect();
     let mut req = request(samples(offset, fs));
-    req.welch = Some(pb::WelchOptions { detrend: pb::DetrendKind::None as i32, ..seg(8192) });
+    req.welch = Some(pb::WelchOptions { detrend: pb::DetrendKind::None as i32, ..welch_segment(8192) });
     let w = warnings(c.extract_tones(req).await.unwrap().into_inner());
     assert!(w.iter().any(|s| s.contains("detrending is off")), "{w:?}");
 
@@ -188,13 +162,13 @@ async fn figures_that_may_be_wrong_carry_a_warning() {
         .map(|(a, b)| a + b)
         .collect();
     let mut req = request(samples(pair, fs));
-    req.welch = Some(seg(4096));
+    req.welch = Some(welch_segment(4096));
     let w = warnings(c.extract_tones(req).await.unwrap().into_inner());
     assert!(w.iter().any(|s| s.contains("main lobe")), "{w:?}");
 
     // A noise-free sine: rounding noise is not reported as dozens of tones.
     let mut req = request(samples(tone(1 << 16, fs, 1000.0, 1.0), fs));
-    req.welch = Some(seg(4096));
+    req.welch = Some(welch_segment(4096));
     let r = c.extract_tones(req).await.unwrap().into_inner();
     assert!(
         r.channels[0].tones.len() <= 2,

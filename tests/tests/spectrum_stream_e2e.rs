@@ -1,10 +1,10 @@
 //! End to end over a real socket: ExtractTonesStream (samples sent in blocks) gives the answer
 //! of one ExtractTones request, and bad streams are refused with the field named.
 
-use jetloop_proto::pb::{
-    self, samples::Data, spectrum_service_client::SpectrumServiceClient, welch_options::Segment,
-};
+use jetloop_proto::pb::{self, samples::Data, spectrum_service_client::SpectrumServiceClient};
 use jetloop_server::config::Limits;
+use jetloop_tests::samples::{frames_block, opening_block, pascals_per_unit, raw, welch_segment};
+use jetloop_tests::signals::XorShift;
 use jetloop_tests::{assert_field, TestServer};
 use std::f64::consts::PI;
 use tonic::Code;
@@ -14,15 +14,12 @@ const FS: f64 = 51_200.0;
 /// Two microphones: a 3 kHz tone with its second harmonic on a deterministic noise floor,
 /// interleaved f32 frames.
 fn two_channel_frames(frames: usize) -> Vec<u8> {
-    let mut s = 0x9e37_79b9_7f4a_7c15u64;
+    let mut rng = XorShift::new(0x9e37_79b9_7f4a_7c15);
     let mut out = Vec::with_capacity(frames * 8);
     for i in 0..frames {
         let t = i as f64 / FS;
         for c in 0..2 {
-            s ^= s << 13;
-            s ^= s >> 7;
-            s ^= s << 17;
-            let noise = (s >> 11) as f64 / (1u64 << 53) as f64 - 0.5;
+            let noise = rng.centered();
             let v = (c as f64 + 1.0) * 20.0 * (2.0 * PI * 3000.0 * t).sin()
                 + 5.0 * (2.0 * PI * 6000.0 * t + 0.3).sin()
                 + 2.0 * noise;
@@ -32,27 +29,20 @@ fn two_channel_frames(frames: usize) -> Vec<u8> {
     out
 }
 
+/// Two channels of f32 at 0.5 Pa per unit, the first frames (if any) in the request.
 fn question(first_frames: Vec<u8>) -> pb::ExtractTonesRequest {
     pb::ExtractTonesRequest {
-        samples: Some(pb::Samples {
-            sample_rate_hz: FS,
-            channel_count: 2,
-            data: Some(Data::Raw(pb::RawSamples {
-                data: first_frames.into(),
-                format: pb::SampleFormat::F32Le as i32,
-            })),
-            calibration: Some(pb::Calibration { scale: Some(pb::calibration::Scale::PascalsPerUnit(0.5)) }),
-            ..Default::default()
-        }),
-        welch: Some(pb::WelchOptions { segment: Some(Segment::SegmentLength(4096)), ..Default::default() }),
+        samples: Some(raw(first_frames, pb::SampleFormat::F32Le, FS, 2, Some(pascals_per_unit(0.5)))),
+        welch: Some(welch_segment(4096)),
         include_band_levels: true,
         psd_output: Some(pb::PsdOutputOptions { include: true, max_points: None }),
         ..Default::default()
     }
 }
 
+/// A later message of the stream with a copy of `frames`.
 fn block(frames: &[u8]) -> pb::SampleBlock {
-    pb::SampleBlock { frames: frames.to_vec().into(), ..Default::default() }
+    frames_block(frames.to_vec())
 }
 
 #[tokio::test]
@@ -64,8 +54,7 @@ async fn blocks_give_the_answer_of_one_request() {
 
     // The first message carries 1000 frames, then blocks of uneven sizes (some shorter than a
     // segment), as a DAQ might deliver them.
-    let mut msgs =
-        vec![pb::SampleBlock { request: Some(question(bytes[..8000].to_vec())), ..Default::default() }];
+    let mut msgs = vec![opening_block(question(bytes[..8000].to_vec()))];
     let mut at = 1000;
     for (i, len) in [7usize, 2048, 30_000, 1, 12_345].iter().cycle().enumerate() {
         if at == 100_003 {
@@ -108,13 +97,13 @@ async fn bad_streams_name_the_field() {
     let server = TestServer::start().await;
     let mut c = SpectrumServiceClient::new(server.channel().await);
     let good = two_channel_frames(20_000);
-    let first = || pb::SampleBlock { request: Some(question(Vec::new())), ..Default::default() };
+    let first = || opening_block(question(Vec::new()));
     let with_samples = |f: &dyn Fn(&mut pb::Samples)| {
         let mut q = question(Vec::new());
         if let Some(s) = q.samples.as_mut() {
             f(s);
         }
-        pb::SampleBlock { request: Some(q), ..Default::default() }
+        opening_block(q)
     };
     let mut nan = good.clone();
     nan[15_000 * 8 + 4..15_000 * 8 + 8].copy_from_slice(&f32::NAN.to_le_bytes());
@@ -169,15 +158,8 @@ async fn bad_streams_name_the_field() {
     let mut c =
         SpectrumServiceClient::new(server.channel().await).max_encoding_message_size(100 * 1024 * 1024);
     let mut q = question(Vec::new());
-    if let Some(s) = q.samples.as_mut() {
-        s.channel_count = 1;
-        s.data = Some(Data::Raw(pb::RawSamples {
-            data: vec![0; 64].into(),
-            format: pb::SampleFormat::I16Le as i32,
-        }));
-    }
-    let big = pb::SampleBlock { frames: vec![0u8; 2 << 25].into(), ..Default::default() };
-    let msgs = vec![pb::SampleBlock { request: Some(q), ..Default::default() }, big];
+    q.samples = Some(raw(vec![0; 64], pb::SampleFormat::I16Le, FS, 1, Some(pascals_per_unit(0.5))));
+    let msgs = vec![opening_block(q), frames_block(vec![0u8; 2 << 25])];
     let e = c.extract_tones_stream(tokio_stream::iter(msgs)).await.unwrap_err();
     assert_field(&e, Code::ResourceExhausted, "frames");
     assert!(e.message().contains("33554432"), "{}", e.message());
@@ -194,9 +176,7 @@ async fn a_stream_in_flight_finishes_during_graceful_shutdown() {
     let bytes = two_channel_frames(40_000);
     let whole = c.extract_tones(question(bytes.clone())).await.unwrap().into_inner();
     let (tx, rx) = tokio::sync::mpsc::channel::<pb::SampleBlock>(4);
-    tx.send(pb::SampleBlock { request: Some(question(bytes[..8000].to_vec())), ..Default::default() })
-        .await
-        .unwrap();
+    tx.send(opening_block(question(bytes[..8000].to_vec()))).await.unwrap();
     let mut streaming = SpectrumServiceClient::new(ch.clone());
     let call = tokio::spawn(async move {
         streaming.extract_tones_stream(tokio_stream::wrappers::ReceiverStream::new(rx)).await

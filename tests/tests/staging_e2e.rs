@@ -1,23 +1,13 @@
 //! End to end over a real socket: StagingService segmentation and fits, and its limits.
 
-use jetloop_proto::pb::{self, nozzle::Kind, staging_service_client::StagingServiceClient};
+use jetloop_proto::pb::{self, staging_service_client::StagingServiceClient};
+use jetloop_tests::fixtures::{inch_nozzle, nozzle_only, point, round};
 use jetloop_tests::{assert_field, TestServer};
 use tonic::Code;
 
+/// The test nozzle (25.4 mm round convergent), its pressure ratio given by the points.
 fn jet() -> pb::JetConditions {
-    pb::JetConditions {
-        nozzle: Some(pb::Nozzle {
-            kind: Some(Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: 0.0254 })),
-        }),
-        operating_point: None,
-        gas: None,
-        ambient_gas: None,
-        ideal_expansion_tolerance: None,
-    }
-}
-
-fn tone(x: f64, f: f64) -> pb::MeasuredTone {
-    pb::MeasuredTone { x, frequency_hz: f, ..Default::default() }
+    nozzle_only(round(0.0254))
 }
 
 /// Reflector lines f_n(d) = n / (tau0 + g d / a) for n = 2, 3, 4, tau0 = 0.25 ms, d = 0..48 mm
@@ -29,7 +19,7 @@ fn reflector_lines(g: f64, ripple: impl Fn(u32) -> f64) -> Vec<pb::MeasuredTone>
     for n in [2.0, 3.0, 4.0] {
         for k in 0..25 {
             let d = 0.002 * f64::from(k);
-            points.push(tone(d, n / (2.5e-4 + g * d / a) * ripple(k)));
+            points.push(point(d, n / (2.5e-4 + g * d / a) * ripple(k)));
         }
     }
     points
@@ -75,14 +65,9 @@ async fn spacing_and_velocity(
     cells: &mut pb::shock_cell_service_client::ShockCellServiceClient<tonic::transport::Channel>,
     npr: f64,
 ) -> (f64, f64) {
-    let mut cond = jet();
-    cond.operating_point = Some(pb::OperatingPoint {
-        pressure: Some(pb::operating_point::Pressure::NozzlePressureRatio(npr)),
-        ..Default::default()
-    });
     let r = cells
         .cell_spacing(pb::CellSpacingRequest {
-            jet: Some(pb::JetInput { source: Some(pb::jet_input::Source::Conditions(cond)) }),
+            jet: Some(inch_nozzle(npr)),
             options: Some(pb::CellOptions { modes: Some(1), ..Default::default() }),
         })
         .await
@@ -105,7 +90,7 @@ async fn pressure_sweep_over_npr_with_given_source_cell() {
         let npr = 2.2 + 0.02 * f64::from(k);
         let (ls, uj) = spacing_and_velocity(&mut cells, npr).await;
         let (n, kappa) = if npr < 2.8 { (1.0, 0.62) } else { (2.0, 0.65) };
-        points.push(tone(npr, n / (4.0 * ls * (1.0 / (kappa * uj) + 1.0 / a))));
+        points.push(point(npr, n / (4.0 * ls * (1.0 / (kappa * uj) + 1.0 / a))));
     }
     let r = c
         .fit_stages(pb::FitStagesRequest {
@@ -139,14 +124,14 @@ async fn degenerate_input_is_refused_with_the_limit_named() {
                options: Option<pb::FitOptions>| {
         pb::FitStagesRequest { control: control as i32, points, jet, options, stage_labels: None }
     };
-    let three = || vec![tone(2.5, 4000.0), tone(2.6, 3900.0), tone(2.7, 3800.0)];
+    let three = || vec![point(2.5, 4000.0), point(2.6, 3900.0), point(2.7, 3800.0)];
     let cases = vec![
-        (req(pb::ControlVariable::Plain, vec![tone(1.0, 1.0), tone(2.0, 2.0)], None, None), "points"),
-        (req(pb::ControlVariable::Plain, vec![tone(1.0, 100.0); 5], None, None), "points"),
+        (req(pb::ControlVariable::Plain, vec![point(1.0, 1.0), point(2.0, 2.0)], None, None), "points"),
+        (req(pb::ControlVariable::Plain, vec![point(1.0, 100.0); 5], None, None), "points"),
         (
             req(
                 pb::ControlVariable::NozzlePressureRatio,
-                vec![tone(1.5, 4000.0), tone(2.6, 3900.0), tone(2.7, 3800.0)],
+                vec![point(1.5, 4000.0), point(2.6, 3900.0), point(2.7, 3800.0)],
                 Some(jet()),
                 None,
             ),
@@ -155,7 +140,7 @@ async fn degenerate_input_is_refused_with_the_limit_named() {
         (
             req(
                 pb::ControlVariable::FullyExpandedMachNumber,
-                vec![tone(0.9, 4000.0), tone(1.2, 3900.0), tone(1.3, 3800.0)],
+                vec![point(0.9, 4000.0), point(1.2, 3900.0), point(1.3, 3800.0)],
                 Some(jet()),
                 None,
             ),
@@ -164,7 +149,7 @@ async fn degenerate_input_is_refused_with_the_limit_named() {
         (
             req(
                 pb::ControlVariable::ReflectorDistanceM,
-                vec![tone(-0.1, 4000.0), tone(0.0, 3900.0), tone(0.1, 3800.0)],
+                vec![point(-0.1, 4000.0), point(0.0, 3900.0), point(0.1, 3800.0)],
                 None,
                 None,
             ),
@@ -173,7 +158,7 @@ async fn degenerate_input_is_refused_with_the_limit_named() {
         (
             req(
                 pb::ControlVariable::Plain,
-                vec![tone(f64::NAN, 1.0), tone(2.0, 2.0), tone(3.0, 3.0)],
+                vec![point(f64::NAN, 1.0), point(2.0, 2.0), point(3.0, 3.0)],
                 None,
                 None,
             ),
@@ -195,7 +180,7 @@ async fn degenerate_input_is_refused_with_the_limit_named() {
         let e = c.fit_stages(r).await.unwrap_err();
         assert_field(&e, Code::InvalidArgument, field);
     }
-    let many: Vec<pb::MeasuredTone> = (0..100_001).map(|i| tone(f64::from(i), 1000.0)).collect();
+    let many: Vec<pb::MeasuredTone> = (0..100_001).map(|i| point(f64::from(i), 1000.0)).collect();
     let e = c.fit_stages(req(pb::ControlVariable::Plain, many, None, None)).await.unwrap_err();
     assert_field(&e, Code::ResourceExhausted, "points");
     assert!(e.message().contains("100000"));
@@ -225,7 +210,7 @@ async fn npr_sweep_of_another_gas_uses_that_gas_critical_ratio() {
                     .powf((g + 1.0) / (4.0 * (g - 1.0)))
                 / mj.sqrt();
             let ls = std::f64::consts::PI / j01 * (mj * mj - 1.0).sqrt() * dj;
-            tone(npr, 1.0 / (4.0 * ls * (1.0 / (0.65 * uj) + 1.0 / a)))
+            point(npr, 1.0 / (4.0 * ls * (1.0 / (0.65 * uj) + 1.0 / a)))
         })
         .collect();
     let mut jet = jet();
@@ -254,7 +239,7 @@ async fn a_bad_point_field_is_named_with_its_full_path() {
     let e = c
         .fit_stages(pb::FitStagesRequest {
             control: pb::ControlVariable::Plain as i32,
-            points: vec![tone(1.0, 100.0), tone(2.0, 110.0), tone(3.0, -5.0)],
+            points: vec![point(1.0, 100.0), point(2.0, 110.0), point(3.0, -5.0)],
             jet: None,
             options: None,
             stage_labels: None,
@@ -286,7 +271,7 @@ async fn the_shared_loop_keeps_a_given_source_cell_and_whole_cells() {
         } else {
             3.0
         };
-        points.push(tone(npr, n / (4.0 * ls * (1.0 / (0.65 * uj) + 1.0 / a))));
+        points.push(point(npr, n / (4.0 * ls * (1.0 / (0.65 * uj) + 1.0 / a))));
     }
     for given in [Some(4), None] {
         let r = c

@@ -3,12 +3,15 @@
 //! stream with the field named.
 
 use jetloop_proto::pb::{self, spectrum_service_client::SpectrumServiceClient};
-use jetloop_tests::{assert_field, TestServer};
+use jetloop_tests::fixtures::track_config;
+use jetloop_tests::samples::track_frames;
+use jetloop_tests::signals::{f32_le, sine, Lcg};
+use jetloop_tests::{assert_field, stream_error, TestServer};
 use std::f64::consts::PI;
 use tonic::Code;
 
 fn config(fs: f64) -> pb::TrackRequest {
-    let mut r = jetloop_tests::fixtures::track_config(fs, 2048, 0.1);
+    let mut r = track_config(fs, 2048, 0.1);
     if let Some(pb::track_request::Item::Config(c)) = &mut r.item {
         if let Some(a) = &mut c.analysis {
             a.tones = Some(pb::ToneOptions { threshold_db: Some(10.0), ..Default::default() });
@@ -18,11 +21,7 @@ fn config(fs: f64) -> pb::TrackRequest {
 }
 
 fn frames(x: &[f64]) -> pb::TrackRequest {
-    pb::TrackRequest {
-        item: Some(pb::track_request::Item::Frames(
-            x.iter().flat_map(|v| (*v as f32).to_le_bytes()).collect::<Vec<u8>>().into(),
-        )),
-    }
+    track_frames(f32_le(x))
 }
 
 #[tokio::test]
@@ -32,11 +31,10 @@ async fn a_live_stream_reports_one_jump_at_its_time() {
     // Synthetic: 2000 Hz for 3 s, then 2300 Hz, seeded LCG noise at -40 dB.
     let fs = 25_600.0;
     let n = (5.0 * fs) as usize;
-    let mut s = 7u64;
+    let mut rng = Lcg::new(7);
     let x: Vec<f64> = (0..n)
         .map(|i| {
-            s = s.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
-            let r = ((s >> 11) as f64 / (1u64 << 53) as f64) - 0.5;
+            let r = rng.centered();
             let t = i as f64 / fs;
             (2.0 * PI * if t < 3.0 { 2000.0 } else { 2300.0 } * t).sin() + 0.02 * r
         })
@@ -66,7 +64,7 @@ async fn stream_faults_end_the_stream_with_the_field_named() {
     let server = TestServer::start().await;
     let mut c = SpectrumServiceClient::new(server.channel().await);
     let fs = 25_600.0;
-    let tone: Vec<f64> = (0..4096).map(|i| (2.0 * PI * 1000.0 * f64::from(i) / fs).sin()).collect();
+    let tone = sine(4096, fs, 1000.0, 1.0);
     // Configuration missing: frames first.
     let e = c.track_tones(tokio_stream::iter(vec![frames(&tone)])).await.unwrap_err();
     assert_field(&e, Code::InvalidArgument, "config");
@@ -80,23 +78,13 @@ async fn stream_faults_end_the_stream_with_the_field_named() {
     // Configuration sent twice, and half a frame: the stream ends with the field named.
     let cases = [
         (vec![config(fs), frames(&tone), config(fs)], "config"),
-        (
-            vec![
-                config(fs),
-                pb::TrackRequest { item: Some(pb::track_request::Item::Frames(vec![0u8; 6].into())) },
-            ],
-            "frames",
-        ),
+        (vec![config(fs), track_frames(vec![0u8; 6])], "frames"),
     ];
     for (msgs, field) in cases {
         let mut s = c.track_tones(tokio_stream::iter(msgs)).await.unwrap().into_inner();
-        let e = loop {
-            match s.message().await {
-                Ok(Some(_)) => continue,
-                Ok(None) => panic!("the stream ended without an error for {field}"),
-                Err(e) => break e,
-            }
-        };
+        let e = stream_error(&mut s)
+            .await
+            .unwrap_or_else(|| panic!("the stream ended without an error for {field}"));
         assert_field(&e, Code::InvalidArgument, field);
     }
 }
@@ -297,13 +285,12 @@ async fn a_ring_stream_reports_its_mode_live() {
     let m_ch = 8;
     let theta: Vec<f64> = (0..m_ch).map(|j| j as f64 * PI / 4.0).collect();
     let n = (4.0 * fs) as usize;
-    let mut s = 11u64;
+    let mut rng = Lcg::new(11);
     let mut x = Vec::with_capacity(n * m_ch);
     for i in 0..n {
         let t = i as f64 / fs;
         for th in &theta {
-            s = s.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
-            let r = ((s >> 11) as f64 / (1u64 << 53) as f64) - 0.5;
+            let r = rng.centered();
             let v = if t < 2.0 {
                 (2.0 * PI * 2000.0 * t - th).cos()
             } else {

@@ -52,23 +52,11 @@ impl Call {
     }
 }
 
+/// 8192 f32 samples of a unit 4.1 kHz tone at 51.2 kHz, one channel in pascals.
 fn tones_request() -> pb::ExtractTonesRequest {
     let fs = 51_200.0;
-    let data: Vec<u8> = (0..8192)
-        .flat_map(|i| ((2.0 * std::f64::consts::PI * 4100.0 * f64::from(i) / fs).sin() as f32).to_le_bytes())
-        .collect();
-    pb::ExtractTonesRequest {
-        samples: Some(pb::Samples {
-            sample_rate_hz: fs,
-            data: Some(pb::samples::Data::Raw(pb::RawSamples {
-                data: data.into(),
-                format: pb::SampleFormat::F32Le as i32,
-            })),
-            calibration: jetloop_tests::in_pascals(),
-            ..Default::default()
-        }),
-        ..Default::default()
-    }
+    let data = jetloop_tests::signals::f32_le(&jetloop_tests::sine(8192, fs, 4100.0, 1.0));
+    jetloop_tests::tones_request(jetloop_tests::f32_pascals(data, fs, 0))
 }
 
 fn percentile(sorted: &[f64], p: f64) -> f64 {

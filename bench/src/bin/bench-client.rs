@@ -7,9 +7,8 @@
 //! Usage: `bench-client ADDR SAMPLES.f32 SAMPLE_RATE_HZ SEGMENT BLOCK_BYTES`
 #![forbid(unsafe_code)]
 
-use jetloop_proto::pb::{
-    self, samples::Data, spectrum_service_client::SpectrumServiceClient, welch_options::Segment,
-};
+use jetloop_proto::pb::{self, spectrum_service_client::SpectrumServiceClient};
+use jetloop_tests::samples::{f32_pascals, frames_block, opening_block, welch_segment};
 use std::io::BufRead;
 use std::time::Instant;
 
@@ -38,29 +37,17 @@ async fn main() {
         .expect("connect");
     let mut c = SpectrumServiceClient::new(channel).max_encoding_message_size(256 << 20);
     let question = |data: bytes::Bytes| pb::ExtractTonesRequest {
-        samples: Some(pb::Samples {
-            sample_rate_hz: fs,
-            data: Some(Data::Raw(pb::RawSamples { data, format: pb::SampleFormat::F32Le as i32 })),
-            calibration: jetloop_tests::in_pascals(),
-            ..Default::default()
-        }),
-        welch: Some(pb::WelchOptions {
-            segment: Some(Segment::SegmentLength(segment)),
-            ..Default::default()
-        }),
+        samples: Some(f32_pascals(data, fs, 0)),
+        welch: Some(welch_segment(segment)),
         include_band_levels: true,
         ..Default::default()
     };
     // Built once, as the caller's sample array is; cloning shares the bytes.
     let unary = question(data.clone());
-    let mut blocks =
-        vec![pb::SampleBlock { request: Some(question(bytes::Bytes::new())), ..Default::default() }];
+    let mut blocks = vec![opening_block(question(bytes::Bytes::new()))];
     let step = (block / 4).max(1) * 4;
     for a in (0..data.len()).step_by(step) {
-        blocks.push(pb::SampleBlock {
-            frames: data.slice(a..(a + step).min(data.len())),
-            ..Default::default()
-        });
+        blocks.push(frames_block(data.slice(a..(a + step).min(data.len()))));
     }
     for line in std::io::stdin().lock().lines() {
         let Ok(line) = line else { break };

@@ -8,8 +8,9 @@
 //! azimuthal mode); target: CrossSpectra within 1.5x ExtractTones.
 #![forbid(unsafe_code)]
 
-use jetloop_proto::pb::{self, samples::Data, spectrum_service_client::SpectrumServiceClient};
-use jetloop_tests::{ring_f32, stats, TestServer};
+use jetloop_proto::pb::{self, spectrum_service_client::SpectrumServiceClient};
+use jetloop_tests::samples::{ring_positions, welch_segment};
+use jetloop_tests::{f32_pascals, ring_f32, stats, TestServer};
 
 #[tokio::main]
 async fn main() {
@@ -17,17 +18,8 @@ async fn main() {
     let (m, n, fs) = (8usize, 1usize << 21, 204_800.0);
     // A spinning m = 1 tone at 5 kHz on a ring plus a deterministic pseudo-random floor.
     let bytes = ring_f32(m, n, fs, 12345);
-    let samples = pb::Samples {
-        sample_rate_hz: fs,
-        channel_count: m as u32,
-        data: Some(Data::Raw(pb::RawSamples { format: pb::SampleFormat::F32Le as i32, data: bytes.into() })),
-        calibration: jetloop_tests::in_pascals(),
-        ..Default::default()
-    };
-    let welch = pb::WelchOptions {
-        segment: Some(pb::welch_options::Segment::SegmentLength(8192)),
-        ..Default::default()
-    };
+    let samples = f32_pascals(bytes, fs, m as u32);
+    let welch = welch_segment(8192);
     // 64 MiB of samples in one message: above the default request limit.
     let server = TestServer::start_with(jetloop_server::config::Limits {
         max_request_bytes: 128 << 20,
@@ -37,9 +29,7 @@ async fn main() {
     let mut c = SpectrumServiceClient::new(server.channel().await)
         .max_decoding_message_size(256 << 20)
         .max_encoding_message_size(256 << 20);
-    let positions: Vec<pb::MicrophonePosition> = (0..m)
-        .map(|j| pb::MicrophonePosition { azimuth_deg: 45.0 * j as f64, ..Default::default() })
-        .collect();
+    let positions = ring_positions(m);
     let (mut single, mut cross) = (Vec::new(), Vec::new());
     for _ in 0..repeats + 1 {
         let r = c

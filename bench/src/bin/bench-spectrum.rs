@@ -5,30 +5,22 @@
 //! Run with `cargo run --release -p jetloop-bench --bin bench-spectrum [-- REPEATS]`.
 #![forbid(unsafe_code)]
 
-use jetloop_proto::pb::{
-    self, samples::Data, spectrum_service_client::SpectrumServiceClient, welch_options::Segment,
-};
+use jetloop_proto::pb::{self, samples::Data, spectrum_service_client::SpectrumServiceClient};
 use jetloop_server::dsp::welch::{welch, Detrend, WelchConfig};
 use jetloop_server::dsp::window::Window;
-use jetloop_tests::TestServer;
+use jetloop_tests::samples::{f32_pascals, frames_block, opening_block, welch_segment};
+use jetloop_tests::signals::XorShift;
+use jetloop_tests::{median, TestServer};
 use std::time::Instant;
-
-fn median(mut v: Vec<f64>) -> f64 {
-    v.sort_by(f64::total_cmp);
-    v[v.len() / 2]
-}
 
 #[tokio::main]
 async fn main() {
     let repeats: usize = std::env::args().nth(1).and_then(|s| s.parse().ok()).unwrap_or(20);
     let (fs, n) = (204_800.0, 1usize << 21);
-    let mut s = 1u64;
+    let mut rng = XorShift::new(1);
     let x: Vec<f32> = (0..n)
         .map(|i| {
-            s ^= s << 13;
-            s ^= s >> 7;
-            s ^= s << 17;
-            let noise = (s >> 11) as f64 / (1u64 << 53) as f64 - 0.5;
+            let noise = rng.centered();
             let t = i as f64 / fs;
             (10.0 * noise + 300.0 * (2.0 * std::f64::consts::PI * 5230.0 * t).sin()) as f32
         })
@@ -46,16 +38,8 @@ async fn main() {
     let server = TestServer::start().await;
     let mut c = SpectrumServiceClient::new(server.channel().await).max_encoding_message_size(64 << 20);
     let req = pb::ExtractTonesRequest {
-        samples: Some(pb::Samples {
-            sample_rate_hz: fs,
-            data: Some(Data::Raw(pb::RawSamples {
-                data: bytes.into(),
-                format: pb::SampleFormat::F32Le as i32,
-            })),
-            calibration: jetloop_tests::in_pascals(),
-            ..Default::default()
-        }),
-        welch: Some(pb::WelchOptions { segment: Some(Segment::SegmentLength(8192)), ..Default::default() }),
+        samples: Some(f32_pascals(bytes, fs, 0)),
+        welch: Some(welch_segment(8192)),
         include_band_levels: true,
         ..Default::default()
     };
@@ -77,12 +61,9 @@ async fn main() {
         Some(Data::Raw(r)) => r.data.clone(),
         _ => Default::default(),
     };
-    let mut msgs = vec![pb::SampleBlock { request: Some(head), ..Default::default() }];
+    let mut msgs = vec![opening_block(head)];
     for a in (0..raw.len()).step_by(512 * 1024) {
-        msgs.push(pb::SampleBlock {
-            frames: raw.slice(a..(a + 512 * 1024).min(raw.len())),
-            ..Default::default()
-        });
+        msgs.push(frames_block(raw.slice(a..(a + 512 * 1024).min(raw.len()))));
     }
     let (mut st, mut tail) = (Vec::new(), Vec::new());
     for i in 0..repeats + 2 {

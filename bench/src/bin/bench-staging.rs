@@ -5,14 +5,9 @@
 //! Run with `cargo run --release -p jetloop-bench --bin bench-staging`.
 #![forbid(unsafe_code)]
 
-use jetloop_proto::pb::{self, nozzle::Kind, staging_service_client::StagingServiceClient};
-use jetloop_tests::fixtures::pressure_sweep_points as pressure_points;
-use jetloop_tests::TestServer;
-
-fn median(mut v: Vec<f64>) -> f64 {
-    v.sort_by(f64::total_cmp);
-    v[v.len() / 2]
-}
+use jetloop_proto::pb::{self, staging_service_client::StagingServiceClient};
+use jetloop_tests::fixtures::{nozzle_only, point, pressure_sweep_points as pressure_points, round};
+use jetloop_tests::{median, TestServer};
 
 fn reflector_points(m: usize) -> Vec<pb::MeasuredTone> {
     let a = (1.4f64 * 287.05 * 288.15).sqrt();
@@ -20,11 +15,7 @@ fn reflector_points(m: usize) -> Vec<pb::MeasuredTone> {
         .map(|k| {
             let n = 2 + (6 * k / m) as u32;
             let d = 0.05 * (k % (m / 6).max(1)) as f64 / (m / 6).max(1) as f64;
-            pb::MeasuredTone {
-                x: d,
-                frequency_hz: f64::from(n) / (2.5e-4 + 2.0 * d / a),
-                ..Default::default()
-            }
+            point(d, f64::from(n) / (2.5e-4 + 2.0 * d / a))
         })
         .collect()
 }
@@ -33,12 +24,7 @@ fn reflector_points(m: usize) -> Vec<pb::MeasuredTone> {
 async fn main() {
     let server = TestServer::start().await;
     let mut c = StagingServiceClient::new(server.channel().await).max_decoding_message_size(256 << 20);
-    let jet = pb::JetConditions {
-        nozzle: Some(pb::Nozzle {
-            kind: Some(Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m: 0.0254 })),
-        }),
-        ..Default::default()
-    };
+    let jet = nozzle_only(round(0.0254));
     println!("FitStages server compute time (median of 15), 6 stages");
     println!("  {:>22} {:>8} {:>6} {:>12}", "sweep", "points", "n_max", "time [ms]");
     for (label, m, nmax) in [

@@ -10,6 +10,9 @@
 #![forbid(unsafe_code)]
 
 use jetloop_proto::pb::{self, spectrum_service_client::SpectrumServiceClient};
+use jetloop_tests::samples::{
+    pascals_per_unit, raw, ring_positions, track_frames, track_start, welch_segment,
+};
 use jetloop_tests::{ring_f32, stats, TestServer};
 use std::time::{Duration, Instant};
 
@@ -18,39 +21,19 @@ const FS: f64 = 204_800.0;
 const BLOCK_S: f64 = 0.05;
 
 fn config(update_s: f64) -> pb::TrackRequest {
-    pb::TrackRequest {
-        item: Some(pb::track_request::Item::Config(pb::TrackConfig {
-            analysis: Some(pb::ExtractTonesRequest {
-                samples: Some(pb::Samples {
-                    sample_rate_hz: FS,
-                    channel_count: CHANNELS as u32,
-                    data: Some(pb::samples::Data::Raw(pb::RawSamples {
-                        format: pb::SampleFormat::F32Le as i32,
-                        data: Vec::new().into(),
-                    })),
-                    calibration: Some(pb::Calibration {
-                        scale: Some(pb::calibration::Scale::PascalsPerUnit(1.0)),
-                    }),
-                    ..Default::default()
-                }),
-                welch: Some(pb::WelchOptions {
-                    segment: Some(pb::welch_options::Segment::SegmentLength(8192)),
-                    ..Default::default()
-                }),
-                ..Default::default()
-            }),
-            window_s: None,
-            update_interval_s: Some(update_s),
-            jump_fraction: None,
-            reference_channel: Some(0),
-            positions: (0..CHANNELS)
-                .map(|j| pb::MicrophonePosition {
-                    azimuth_deg: 360.0 * j as f64 / CHANNELS as f64,
-                    ..Default::default()
-                })
-                .collect(),
-        })),
-    }
+    let samples = raw(Vec::new(), pb::SampleFormat::F32Le, FS, CHANNELS as u32, Some(pascals_per_unit(1.0)));
+    track_start(pb::TrackConfig {
+        analysis: Some(pb::ExtractTonesRequest {
+            samples: Some(samples),
+            welch: Some(welch_segment(8192)),
+            ..Default::default()
+        }),
+        window_s: None,
+        update_interval_s: Some(update_s),
+        jump_fraction: None,
+        reference_channel: Some(0),
+        positions: ring_positions(CHANNELS),
+    })
 }
 
 /// `seconds` of a spinning m = 1 tone at 5 kHz on the ring plus a pseudo-random floor, as
@@ -72,10 +55,7 @@ async fn main() {
     // 1. As fast as possible.
     let mut c = SpectrumServiceClient::new(ch.clone());
     let mut msgs = vec![config(BLOCK_S)];
-    msgs.extend(
-        data.iter()
-            .map(|b| pb::TrackRequest { item: Some(pb::track_request::Item::Frames(b.clone().into())) }),
-    );
+    msgs.extend(data.iter().map(|b| track_frames(b.clone())));
     let started = Instant::now();
     let mut updates = c.track_tones(tokio_stream::iter(msgs)).await.expect("stream").into_inner();
     let (mut count, mut m1) = (0usize, 0usize);
@@ -107,11 +87,7 @@ async fn main() {
         for (i, b) in feed.into_iter().enumerate() {
             tokio::time::sleep_until(start + pace * i as u32).await;
             log.lock().expect("log").push(Instant::now());
-            if tx
-                .send(pb::TrackRequest { item: Some(pb::track_request::Item::Frames(b.into())) })
-                .await
-                .is_err()
-            {
+            if tx.send(track_frames(b)).await.is_err() {
                 return;
             }
         }

@@ -10,18 +10,12 @@
 
 use jetloop_tests::demo_reflector;
 use jetloop_tests::demo_sweep::{model_hz, stage_at, CELLS, DOWN, KAPPA, NOISE, ORDER, UP};
+use jetloop_tests::signals::Lcg;
 
 /// A seeded standard normal deviate source.
 fn gauss(seed: u64) -> impl FnMut() -> f64 {
-    let mut state = seed;
-    move || {
-        let mut uniform = || {
-            state = state.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
-            ((state >> 11) as f64 + 0.5) / (1u64 << 53) as f64
-        };
-        let (u1, u2) = (uniform(), uniform());
-        (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
-    }
+    let mut rng = Lcg::new(seed);
+    move || rng.normal(1.0)
 }
 
 fn reflector() {
