@@ -93,6 +93,11 @@ pub struct Recording {
     /// Pascals per unit of each channel when the channels differ (a ring of microphones,
     /// each with its own sensitivity); empty: `scale_pa` for every channel.
     channel_scales_pa: Vec<f64>,
+    /// First frame still held: frames before it were analysed and let go
+    /// ([`Recording::release_before`]); 0 for a recording kept whole.
+    held_from: usize,
+    /// Samples at full scale, per channel, among the frames let go.
+    released_clipped: Vec<usize>,
 }
 
 impl Recording {
@@ -118,7 +123,16 @@ impl Recording {
         let (blocks, starts) =
             if bytes.is_empty() { (Vec::new(), Vec::new()) } else { (vec![bytes], vec![0]) };
         let storage = Storage::Blocks { blocks, starts, total, format };
-        Ok(Self { storage, layout, channels, per_channel, scale_pa, channel_scales_pa: Vec::new() })
+        Ok(Self {
+            storage,
+            layout,
+            channels,
+            per_channel,
+            scale_pa,
+            channel_scales_pa: Vec::new(),
+            held_from: 0,
+            released_clipped: Vec::new(),
+        })
     }
 
     /// An interleaved recording that will grow block by block (see [`Recording::push_block`]).
@@ -131,6 +145,8 @@ impl Recording {
             per_channel: 0,
             scale_pa,
             channel_scales_pa: Vec::new(),
+            held_from: 0,
+            released_clipped: Vec::new(),
         }
     }
 
@@ -181,6 +197,8 @@ impl Recording {
             per_channel,
             scale_pa,
             channel_scales_pa: Vec::new(),
+            held_from: 0,
+            released_clipped: Vec::new(),
         })
     }
 
@@ -242,13 +260,85 @@ impl Recording {
         let limit = (counts - 1.0) * k;
         let view = self.channel(c);
         let mut buf = vec![0.0; 65_536];
-        let (mut at, mut n) = (0, 0);
+        let (mut at, mut n) = (self.held_from, self.released_clipped.get(c).copied().unwrap_or(0));
         while at < view.len() {
             let got = view.read(at, &mut buf);
             n += buf[..got].iter().filter(|x| x.abs() >= limit).count();
             at += got;
         }
         Some((n, counts * k))
+    }
+
+    /// First frame still held (0 unless frames were let go by [`Recording::release_before`]):
+    /// views must not be read before it.
+    pub fn held_from(&self) -> usize {
+        self.held_from
+    }
+
+    /// Bytes of samples held now.
+    pub fn held_bytes(&self) -> usize {
+        match &self.storage {
+            Storage::Blocks { blocks, .. } => blocks.iter().map(Bytes::len).sum(),
+            Storage::Values(v) => v.len() * 8,
+        }
+    }
+
+    /// Lets go of every whole block of a growing interleaved recording that lies entirely
+    /// before frame `frame` (an analysis that has taken those frames in needs them no more),
+    /// so a block stream of any length holds only what its analysis still reads. Samples at
+    /// full scale among them are counted first, so [`Recording::clipped`] still covers the
+    /// whole recording. Returns the bytes let go; 0 for packed values or planar channels,
+    /// which are kept whole.
+    pub fn release_before(&mut self, frame: usize) -> usize {
+        if self.layout != Layout::Interleaved {
+            return 0;
+        }
+        let channels = self.channels;
+        let limit = frame.min(self.per_channel).saturating_mul(channels);
+        let Storage::Blocks { blocks, starts, total, format } = &self.storage else {
+            return 0;
+        };
+        // Blocks wholly before `limit`: block b ends where b + 1 starts (or at the total).
+        let mut drop_n = 0;
+        while drop_n < blocks.len() {
+            let end = starts.get(drop_n + 1).copied().unwrap_or(*total);
+            if end > limit {
+                break;
+            }
+            drop_n += 1;
+        }
+        if drop_n == 0 {
+            return 0;
+        }
+        let new_from = starts.get(drop_n).copied().unwrap_or(*total) / channels;
+        let format = *format;
+        if matches!(format, Format::I16 | Format::I32) {
+            if self.released_clipped.len() != channels {
+                self.released_clipped = vec![0; channels];
+            }
+            for c in 0..channels {
+                let view = self.channel(c).range(self.held_from, new_from - self.held_from);
+                let k = self.scale_of(c).abs();
+                let full = if format == Format::I16 { 32_767.0 } else { 2_147_483_647.0 };
+                let limit_pa = (full - 1.0) * k;
+                let mut buf = vec![0.0; 65_536.min(view.len().max(1))];
+                let mut at = 0;
+                let mut n = 0;
+                while at < view.len() {
+                    let got = view.read(at, &mut buf);
+                    n += buf[..got].iter().filter(|x| x.abs() >= limit_pa).count();
+                    at += got;
+                }
+                self.released_clipped[c] += n;
+            }
+        }
+        let Storage::Blocks { blocks, starts, .. } = &mut self.storage else {
+            return 0;
+        };
+        let freed: usize = blocks.drain(..drop_n).map(|b| b.len()).sum();
+        starts.drain(..drop_n);
+        self.held_from = new_from;
+        freed
     }
 
     /// A view of channel `c` (clamped to the last channel).
@@ -540,6 +630,36 @@ mod tests {
             assert_eq!(out.to_vec(), whole.channel(c).to_vec()[3..6].to_vec());
         }
         assert!(grown.push_block(Bytes::from_static(&[0u8; 8])).is_err(), "not a whole frame");
+    }
+
+    #[test]
+    fn blocks_let_go_leave_the_rest_readable_and_their_clipping_counted() {
+        // Two channels of i16 in blocks of 2, 3 and 2 frames; channel 0 at full scale in
+        // frames 1 and 5 (one in a block let go, one kept).
+        let frames: Vec<[i16; 2]> =
+            (0..7).map(|i| [if i == 1 || i == 5 { i16::MAX } else { i as i16 }, -(i as i16)]).collect();
+        let bytes: Vec<u8> = frames.iter().flatten().flat_map(|v| v.to_le_bytes()).collect();
+        let mut grown = Recording::stream(Format::I16, 2, 0.5);
+        for (a, b) in [(0, 2), (2, 5), (5, 7)] {
+            grown.push_block(Bytes::copy_from_slice(&bytes[a * 4..b * 4])).unwrap();
+        }
+        let before = grown.clipped(0);
+        assert_eq!(grown.release_before(1), 0, "the first block ends after frame 1");
+        assert_eq!(grown.release_before(4), 8, "the first block (2 frames x 2 channels x 2 bytes)");
+        assert_eq!((grown.held_from(), grown.held_bytes(), grown.len()), (2, 20, 7));
+        assert_eq!(grown.clipped(0), before);
+        assert_eq!(before.map(|(n, _)| n), Some(2));
+        let mut out = [0.0; 5];
+        assert_eq!(grown.channel(1).read(2, &mut out), 5);
+        assert_eq!(out, [-1.0, -1.5, -2.0, -2.5, -3.0]);
+        assert_eq!(grown.release_before(7), 20);
+        assert_eq!((grown.held_from(), grown.held_bytes()), (7, 0));
+        assert_eq!(grown.clipped(0), before);
+        grown.push_block(Bytes::copy_from_slice(&bytes[..4])).unwrap();
+        assert_eq!(grown.len(), 8);
+        let mut one = [0.0; 1];
+        grown.channel(0).read(7, &mut one);
+        assert_eq!(one, [0.0]);
     }
 
     #[test]

@@ -312,6 +312,12 @@ impl WelchAccumulator {
         self.segments
     }
 
+    /// First sample the estimate still reads (the start of the next segment): samples before
+    /// it are taken in and may be let go.
+    pub fn next_start(&self) -> usize {
+        self.segments * self.step
+    }
+
     /// Adds every whole segment of `x` not yet added, spread over the rayon pool.
     pub fn advance(&mut self, x: &ChannelView<'_>) {
         let (s0, s1) = (self.segments, self.segments_within(x.len()));

@@ -10,7 +10,7 @@ use super::send_guard::send_guarded;
 use super::shed::Admitted;
 use super::{call_names, route_service, BoxFuture};
 use crate::cancel::{Cancel, CancelOnDrop};
-use crate::runtime::{Computing, StreamDeadline, Work};
+use crate::runtime::{BlockGap, Computing, StreamDeadline, Work};
 use std::future::Future;
 use std::task::{Context, Poll};
 use std::time::Duration;
@@ -65,6 +65,12 @@ pub struct Deadline<S> {
 /// Methods whose answer is a stream that lives as long as a test run: they get the stream
 /// time limit, and end their own stream at it with DEADLINE_EXCEEDED ([`StreamDeadline`]).
 pub const LIVE_STREAMS: &[&str] = &["/jetloop.v1.SpectrumService/TrackTones"];
+
+/// Methods that take a recording of any length as a stream of blocks and answer once: the
+/// whole call gets the stream time limit, and the per-call limit applies to the wait for each
+/// block ([`BlockGap`]), so a stalled upload lets go of its samples as soon as a short call
+/// would, and a long recording streaming steadily is not cut off.
+pub const UPLOAD_STREAMS: &[&str] = &["/jetloop.v1.SpectrumService/ExtractTonesStream"];
 
 /// Time after a live stream's limit before a stream that has not ended is cut with its
 /// connection (the handler ends it at the limit; this covers a client that stopped reading).
@@ -122,7 +128,12 @@ impl std::fmt::Display for Why {
 route_service!(Deadline, |self, req| {
     let mut req = req;
     let live = LIVE_STREAMS.contains(&req.uri().path());
-    let (limit, why) = time_limit(req.headers(), if live { self.stream_timeout } else { self.timeout });
+    let upload = UPLOAD_STREAMS.contains(&req.uri().path());
+    let server_limit = if live || upload { self.stream_timeout } else { self.timeout };
+    let (limit, why) = time_limit(req.headers(), server_limit);
+    if upload {
+        req.extensions_mut().insert(BlockGap(self.timeout.min(limit)));
+    }
     // A live stream's answer is ready at once and then streams: its handler ends it at the
     // limit, and the send guard cuts it only after a grace beyond that.
     let send_limit = if live {

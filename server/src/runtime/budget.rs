@@ -17,17 +17,37 @@ pub struct SampleBudget {
     bytes: usize,
 }
 
-/// Sample bytes a call holds; released on drop.
+/// Sample bytes a call holds, one entry per take in the order taken; released on drop.
 #[derive(Debug, Default)]
 pub struct Held {
-    permits: Vec<OwnedSemaphorePermit>,
+    permits: std::collections::VecDeque<(OwnedSemaphorePermit, usize)>,
     bytes: usize,
+    /// Bytes the call has let go in all (see [`Held::release_front`]).
+    let_go: usize,
+    /// Of those, bytes not yet matched by a whole take given back.
+    credit: usize,
 }
 
 impl Held {
     /// Bytes held.
     pub fn bytes(&self) -> usize {
         self.bytes
+    }
+
+    /// Gives back the oldest takes once the call has let go of `let_go_total` bytes in all
+    /// (a running total, so calling it again with the same figure does nothing): a block
+    /// stream lets go of its blocks in the order they came, each one take.
+    pub fn release_front(&mut self, let_go_total: usize) {
+        self.credit += let_go_total.saturating_sub(self.let_go);
+        self.let_go = self.let_go.max(let_go_total);
+        while let Some(&(_, b)) = self.permits.front() {
+            if b > self.credit {
+                break;
+            }
+            self.credit -= b;
+            self.bytes -= b;
+            self.permits.pop_front();
+        }
     }
 }
 
@@ -58,7 +78,7 @@ impl SampleBudget {
         let units = u32::try_from(units).map_err(|_| refused())?;
         match self.units.clone().try_acquire_many_owned(units) {
             Ok(p) => {
-                held.permits.push(p);
+                held.permits.push_back((p, bytes));
                 held.bytes += bytes;
                 Ok(())
             }
@@ -90,5 +110,22 @@ mod tests {
         assert_eq!(b.in_use(), 4 * UNIT);
         b.take(&mut c, 6 * UNIT, "frames").unwrap();
         assert_eq!(c.bytes(), 10 * UNIT);
+    }
+
+    #[test]
+    fn gives_back_the_oldest_takes_as_their_bytes_are_let_go() {
+        let b = SampleBudget::new(10 * UNIT);
+        let mut h = Held::default();
+        for _ in 0..3 {
+            b.take(&mut h, 3 * UNIT, "frames").unwrap();
+        }
+        h.release_front(2 * UNIT);
+        assert_eq!((h.bytes(), b.in_use()), (9 * UNIT, 9 * UNIT), "a part of a take keeps it");
+        h.release_front(2 * UNIT);
+        assert_eq!(h.bytes(), 9 * UNIT, "the same running total again gives nothing back");
+        h.release_front(7 * UNIT);
+        assert_eq!((h.bytes(), b.in_use()), (3 * UNIT, 3 * UNIT));
+        b.take(&mut h, 7 * UNIT, "frames").unwrap();
+        assert_eq!(b.in_use(), 10 * UNIT);
     }
 }

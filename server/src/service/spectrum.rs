@@ -35,6 +35,10 @@ impl Spectrum {
     }
 }
 
+/// Blocks of a block stream waiting for the analysis at most (each one message, so at most
+/// this many times the message size limit).
+const STREAM_FEED_BLOCKS: usize = 4;
+
 /// How often a block stream waiting for its client looks at its cancellation flag.
 const STREAM_CANCEL_POLL: std::time::Duration = std::time::Duration::from_millis(20);
 
@@ -83,6 +87,8 @@ impl SpectrumService for Spectrum {
         request: Request<Streaming<pb::SampleBlock>>,
     ) -> Result<Response<pb::ExtractTonesResponse>, Status> {
         let work = crate::runtime::work_of(&request);
+        // The longest wait for a block (the per-call limit; none outside a server).
+        let gap = request.extensions().get::<crate::runtime::BlockGap>().map(|g| g.0);
         let mut incoming = request.into_inner();
         let first = incoming.message().await?.ok_or_else(|| Status::from(ToneStream::empty()))?;
         // Every block's bytes count against the server-wide budget until the stream ends.
@@ -95,17 +101,23 @@ impl SpectrumService for Spectrum {
         // The analysis runs on one blocking thread (fanning segments out to rayon) and takes
         // blocks from this loop as they arrive; the reactor only moves bytes. The feed ends with
         // `None`; if it closes without one (the caller went away, or the deadline dropped this
-        // handler), the analysis stops without finishing.
-        let (tx, rx) = std::sync::mpsc::channel::<Option<pb::SampleBlock>>();
+        // handler), the analysis stops without finishing. The feed holds a few blocks at most:
+        // a client faster than the analysis waits (HTTP/2 flow control), it is not refused.
+        // Blocks the analysis has taken in are let go and their bytes given back to the budget
+        // (`released`), so a stream of any length holds about one Welch segment per channel.
+        let (tx, mut rx) = tokio::sync::mpsc::channel::<Option<pb::SampleBlock>>(STREAM_FEED_BLOCKS);
+        let released = Arc::new(std::sync::atomic::AtomicUsize::new(0));
+        let released_by_worker = released.clone();
         let (cancel, computing) = (work.cancel, work.computing);
         let worker = tokio::task::spawn_blocking(move || -> Result<_, ApiError> {
             let _running = crate::runtime::Running::start(&computing);
             let mut stream = ToneStream::start(first)?;
             loop {
-                match rx.recv() {
-                    Ok(Some(block)) => stream.next(block)?,
-                    Ok(None) => return stream.finish(),
-                    Err(_) => {
+                released_by_worker.store(stream.released_bytes(), std::sync::atomic::Ordering::Release);
+                match rx.blocking_recv() {
+                    Some(Some(block)) => stream.next(block)?,
+                    Some(None) => return stream.finish(),
+                    None => {
                         return Err(ApiError::Precondition(PreconditionViolation::new(
                             "STREAM_CUT_OFF",
                             "frames",
@@ -118,34 +130,48 @@ impl SpectrumService for Spectrum {
         let mut received = Ok(());
         loop {
             // Wait for the next block, looking at the cancellation flag meanwhile: a stalled
-            // stream past its deadline lets go of its samples at once.
+            // stream past its deadline, or waited for longer than the per-call limit, lets go
+            // of its samples at once.
+            let waiting = tokio::time::Instant::now();
             let next = loop {
                 if cancel.is_cancelled() {
-                    break None;
+                    break Err(Status::from(ApiError::Stopped(crate::cancel::Stopped)));
+                }
+                if let Some(g) = gap.filter(|g| waiting.elapsed() >= *g) {
+                    cancel.cancel();
+                    break Err(Status::deadline_exceeded(format!(
+                        "stopped: no block for {} s (the server's time limit per call applies to the \
+                         wait for each block of a stream)",
+                        g.as_secs_f64()
+                    )));
                 }
                 if let Ok(m) = tokio::time::timeout(STREAM_CANCEL_POLL, incoming.message()).await {
-                    break Some(m);
+                    break Ok(m);
                 }
             };
-            let Some(next) = next else {
-                received = Err(Status::from(ApiError::Stopped(crate::cancel::Stopped)));
-                break;
+            let next = match next {
+                Ok(m) => m,
+                Err(e) => {
+                    received = Err(e);
+                    break;
+                }
             };
             match next {
                 Ok(Some(block)) => {
+                    held.release_front(released.load(std::sync::atomic::Ordering::Acquire));
                     if let Err(e) = self.budget.take(&mut held, block.frames.len(), "frames") {
                         received = Err(Status::from(e));
                         break;
                     }
                     self.count(block.frames.len(), width);
-                    if tx.send(Some(block)).is_err() {
+                    if tx.send(Some(block)).await.is_err() {
                         // The analysis stopped on an error; it is reported below.
                         break;
                     }
                 }
                 Ok(None) => {
                     // The analysis may have stopped on an error already; it is reported below.
-                    let _ = tx.send(None);
+                    let _ = tx.send(None).await;
                     break;
                 }
                 Err(e) => {

@@ -2,13 +2,17 @@
 
 use super::*;
 
-/// A block stream being analysed: the validated question, the recording as it grows, and one
-/// Welch accumulator per channel that takes each segment as soon as its last frame arrives.
+/// A block stream being analysed: the validated question, the part of the recording still
+/// needed, and one Welch accumulator per channel that takes each segment as soon as its last
+/// frame arrives. Blocks wholly before the next segment are let go once taken in, so a stream
+/// of any length holds about one segment per channel plus the block being read: no limit on
+/// the stream's length, only on one message's size.
 #[derive(Debug)]
 pub struct ToneStream {
     query: ToneQuery,
     welch: Vec<WelchAccumulator>,
     blocks: usize,
+    released_bytes: usize,
 }
 
 fn not_first(field: &str) -> ApiError {
@@ -49,7 +53,7 @@ impl ToneStream {
             .map(|_| WelchAccumulator::new(fs, config))
             .collect::<Result<Vec<_>, _>>()
             .map_err(|e| welch_error(e, "frames"))?;
-        let mut stream = Self { query, welch, blocks: 0 };
+        let mut stream = Self { query, welch, blocks: 0, released_bytes: 0 };
         stream.push(frames)?;
         Ok(stream)
     }
@@ -57,8 +61,7 @@ impl ToneStream {
     /// Takes a later message.
     ///
     /// # Errors
-    /// A `request` or `expected_frames` after the first message; frames that are not whole;
-    /// more than [`MAX_TOTAL_SAMPLES`] in all (`RESOURCE_EXHAUSTED`).
+    /// A `request` or `expected_frames` after the first message; frames that are not whole.
     pub fn next(&mut self, block: pb::SampleBlock) -> Result<(), ApiError> {
         if block.request.is_some() {
             return Err(not_first("request"));
@@ -78,18 +81,24 @@ impl ToneStream {
                 description: format!("frames of message {}: {e}", self.blocks),
             }])
         })?;
-        let total = rec.len() * rec.channel_count();
-        if total > MAX_TOTAL_SAMPLES {
-            return Err(ApiError::TooLarge {
-                field: "frames".into(),
-                limit: format!("{MAX_TOTAL_SAMPLES} samples per stream (all channels)"),
-                actual: format!("{total} samples after message {}", self.blocks),
-            });
-        }
         for (c, w) in self.welch.iter_mut().enumerate() {
             w.advance(&rec.channel(c));
         }
+        // Every channel has the same segments: the frames before the next one are taken in.
+        if let Some(next) = self.welch.first().map(WelchAccumulator::next_start) {
+            self.released_bytes += rec.release_before(next);
+        }
         Ok(())
+    }
+
+    /// Sample bytes let go so far (blocks wholly taken in by the analysis).
+    pub fn released_bytes(&self) -> usize {
+        self.released_bytes
+    }
+
+    /// Sample bytes held now.
+    pub fn held_bytes(&self) -> usize {
+        self.query.samples.recording.held_bytes()
     }
 
     /// Messages taken so far.
