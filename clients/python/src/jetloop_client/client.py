@@ -23,7 +23,7 @@ from jetloop.v1 import staging_pb2_grpc as stg
 from jetloop.v1 import tones_pb2 as t
 from jetloop.v1 import tones_pb2_grpc as tg
 
-from .calibration import Calibration, CalibrationLike
+from .calibration import Calibration, CalibrationLike  # noqa: F401 (Calibration kept importable from here)
 from .connection import CALL_TIMEOUT_S, CONNECT_TIMEOUT_S, REQUEST_ID, new_request_id, open_channel, parse_address
 from .errors import ServerBusy, retry_delay_s, typed
 from .recording import samples_message

@@ -35,7 +35,8 @@ def _rate(path: PathLike, value, where: str) -> float:
     except (TypeError, ValueError):
         fs = float("nan")
     if not (math.isfinite(fs) and fs > 0):
-        raise ValueError(f"{path}: {where} = {value!r}: expected one sample rate in Hz above 0")
+        shown = repr(value) if np.size(value) == 1 else f"an array of shape {np.shape(value)} ({np.asarray(value).dtype})"
+        raise ValueError(f"{path}: {where} = {shown}: expected one sample rate in Hz above 0")
     return fs
 
 
