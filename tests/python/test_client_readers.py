@@ -183,3 +183,21 @@ def test_a_recording_goes_straight_into_an_analysis(server_address, tmp_path):
     levels = [max(ch.tones, key=lambda x: x.level_db).level_db for ch in r.channels]
     # SPL definition: 20 log10(A / sqrt 2 / 20 uPa) (16-bit rounding is far below 0.05 dB here).
     assert levels == pytest.approx([20 * math.log10(a / math.sqrt(2) / 20e-6) for a in amp], abs=0.05)
+
+
+def test_unreadable_content_is_a_value_error_naming_the_file(tmp_path):
+    text = tmp_path / "notes.bin"
+    text.write_text("mic 3 moved 2 cm downstream\n")
+    # nptdms and h5py refuse text (no TDSm lead-in, no HDF5 signature); the messages are theirs.
+    with pytest.raises(ValueError, match=rf"{text}: not a readable TDMS file"):
+        read_tdms(text)
+    with pytest.raises(ValueError, match=rf"{text}: not a readable HDF5 file"):
+        read_hdf5(text, "mics")
+    # A WAV header cut inside its fmt chunk (RIFF layout: 16-byte PCM fmt body).
+    cut = tmp_path / "cut.wav"
+    cut.write_bytes(b"RIFF\x10\x00\x00\x00WAVEfmt \x10\x00\x00\x00\x01\x00\x01\x00")
+    with pytest.raises(ValueError, match=rf"{cut}: the fmt chunk at byte 20 holds 4 bytes: expected at least 16"):
+        read_wav(cut)
+    for read, args in ((read_wav, ()), (read_tdms, ()), (read_hdf5, ("mics",)), (read_mat, ("p", "fs"))):
+        with pytest.raises(FileNotFoundError, match="missing.file"):
+            read(tmp_path / "missing.file", *args)

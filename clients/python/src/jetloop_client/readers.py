@@ -29,6 +29,13 @@ def _need(module: str, path: PathLike, what: str):
                           f'pip install "jetloop-client[files]"') from None
 
 
+def _readable(path: PathLike) -> None:
+    """Raises OSError (FileNotFoundError, PermissionError, naming the file) unless `path` can be
+    opened for reading: file-system errors stay OSError, content errors are ValueError."""
+    with open(path, "rb"):
+        pass
+
+
 def _rate(path: PathLike, value, where: str) -> float:
     try:
         fs = float(np.asarray(value).reshape(-1)[0]) if np.size(value) == 1 else float("nan")
@@ -68,7 +75,9 @@ def _wav_format(path: PathLike):
                 raise ValueError(f"{path}: no fmt chunk before the end of the file (byte {f.tell()})")
             cid, size = chunk[:4], struct.unpack("<I", chunk[4:])[0]
             if cid == b"fmt ":
-                body = f.read(size)
+                at, body = f.tell(), f.read(size)
+                if len(body) < 16:
+                    raise ValueError(f"{path}: the fmt chunk at byte {at} holds {len(body)} bytes: expected at least 16")
                 tag, _, _, _, _, bits = struct.unpack("<HHIIHH", body[:16])
                 if tag == 0xFFFE and len(body) >= 26:  # WAVE_FORMAT_EXTENSIBLE: the sub-format's tag
                     tag = struct.unpack("<H", body[24:26])[0]
@@ -122,9 +131,10 @@ def read_tdms(path: PathLike, group: Optional[str] = None, channels: Optional[Se
     (NI linear and other scalings stored in the file applied); the rate is 1 / wf_increment;
     units from `unit_string`. All channels must share length and rate."""
     nptdms = _need("nptdms", path, "TDMS files")
+    _readable(path)
     try:
         f = nptdms.TdmsFile.read(path)
-    except (OSError, ValueError, KeyError) as e:
+    except (OSError, ValueError, KeyError, struct.error) as e:
         raise ValueError(f"{path}: not a readable TDMS file: {e}") from None
     groups = [g.name for g in f.groups()]
     if group is None:
@@ -189,6 +199,7 @@ def read_hdf5(path: PathLike, dataset: str, rate_attribute: Optional[str] = None
     (Hz) or INTERVAL_ATTRIBUTES (s) found on the dataset, its group or the file. Channel names
     and units come from `channel_names` and `units` attributes where present."""
     h5py = _need("h5py", path, "HDF5 files")
+    _readable(path)
     try:
         f = h5py.File(path, "r")
     except OSError as e:
