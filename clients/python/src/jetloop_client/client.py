@@ -4,7 +4,6 @@ fully expanded jet (`fully_expanded_mach_number` with `fully_expanded_diameter_m
 numpy arrays of shape (frames,) or (frames, channels) sent as little-endian float32 bytes (no
 per-sample Python loop); a calibration is always required (no unit is assumed)."""
 import time
-from dataclasses import dataclass
 from typing import Dict, Iterable, Iterator, Optional, Sequence
 
 import grpc
@@ -24,50 +23,21 @@ from jetloop.v1 import staging_pb2_grpc as stg
 from jetloop.v1 import tones_pb2 as t
 from jetloop.v1 import tones_pb2_grpc as tg
 
+from .calibration import Calibration, CalibrationLike  # noqa: F401 (Calibration kept importable from here)
+from .connection import CALL_TIMEOUT_S, CONNECT_TIMEOUT_S, REQUEST_ID, new_request_id, open_channel, parse_address
 from .errors import ServerBusy, retry_delay_s, typed
+from .recording import samples_message
 
-RETRYABLE = (grpc.StatusCode.UNAVAILABLE, grpc.StatusCode.RESOURCE_EXHAUSTED)
-
-
-@dataclass(frozen=True)
-class Calibration:
-    """How sample units become pascals; build it with one of the class methods."""
-
-    message: s.Calibration
-
-    @classmethod
-    def pascals(cls) -> "Calibration":
-        """The samples are already in pascals (1 Pa per unit)."""
-        return cls(s.Calibration(in_pascals=True))
-
-    @classmethod
-    def pascals_per_unit(cls, pa_per_unit: float) -> "Calibration":
-        """Pascals per sample unit."""
-        return cls(s.Calibration(pascals_per_unit=pa_per_unit))
-
-    @classmethod
-    def microphone(cls, sensitivity_v_per_pa: float, volts_per_unit: float) -> "Calibration":
-        """From the microphone sensitivity (V/Pa) and the DAQ's volts per sample unit."""
-        return cls(s.Calibration(microphone=s.MicrophoneChain(
-            sensitivity_v_per_pa=sensitivity_v_per_pa, volts_per_unit=volts_per_unit)))
-
-
-def _frames(samples: np.ndarray) -> (bytes, int):
-    """Interleaved little-endian float32 bytes and the channel count of (frames[, channels])."""
-    x = np.asarray(samples)
-    if x.ndim == 1:
+def _block(block, channels: int, k: int) -> bytes:
+    """Block `k` of a stream as interleaved little-endian float32 bytes; its shape must be
+    (frames, channels), or (frames,) for one channel."""
+    x = np.asarray(block)
+    if x.ndim == 1 and channels == 1:
         x = x[:, None]
-    if x.ndim != 2:
-        raise ValueError("samples must have shape (frames,) or (frames, channels)")
-    return np.ascontiguousarray(x, dtype="<f4").tobytes(), x.shape[1]
-
-
-def _samples(samples: np.ndarray, sample_rate_hz: float, calibration: Calibration,
-             channel_names: Sequence[str] = ()) -> s.Samples:
-    data, channels = _frames(samples)
-    return s.Samples(sample_rate_hz=sample_rate_hz, channel_count=channels,
-                     raw=s.RawSamples(data=data, format=s.SAMPLE_FORMAT_F32_LE),
-                     calibration=calibration.message, channel_names=list(channel_names))
+    if x.ndim != 2 or x.shape[1] != channels or x.dtype.kind not in "iuf":
+        raise ValueError(f"block {k} has shape {x.shape} and dtype {x.dtype}: expected real numbers of shape "
+                         f"(frames, {channels}), i.e. (frames, channels)")
+    return np.ascontiguousarray(x, dtype="<f4").tobytes()
 
 
 def _welch(segment_length: Optional[int]) -> Optional[s.WelchOptions]:
@@ -102,32 +72,40 @@ def _jet(diameter_m=None, fully_expanded_mach_number=None, fully_expanded_diamet
 
 
 class Client:
-    """A connection to a jetloop server at `address` ("host:port").
+    """A connection to a jetloop server at `address`: `host:port`, `http://host:port` or
+    `https://host:port` (TLS; so is any address when `ca_pem` is given).
 
-    `token` is sent as `authorization: Bearer <token>` with every call (servers started with
-    --token-file). `timeout_s` bounds every call (the server is told the deadline); calls refused with
-    UNAVAILABLE or RESOURCE_EXHAUSTED are retried up to `retries` times after the server's
-    RetryInfo delay (or 0.2 s). Errors raise `InvalidRequest` (with `.violations`),
-    `PhysicsRefused` (with `.kind`), `ServerBusy` or `JetloopError`.
+    `connect_timeout_s` bounds connecting (5 s by default, as the CLI); a server that cannot be
+    reached raises `ServerUnavailable` naming the address and the cause. `timeout_s` is the
+    deadline of every unary call (300 s by default; the server is told it); streams have
+    `stream_timeout_s` (none by default). Every call carries an `x-request-id` (the server
+    echoes it and writes it in its log lines; `last_request_id` is the latest, and an error
+    carries its own as `.request_id`). Only answers carrying a RetryInfo delay (a server
+    shedding load) are retried, up to `retries` times after that delay, with the same request
+    id. `token` is sent as `authorization: Bearer <token>`. Errors raise `InvalidRequest` (with
+    `.violations`; also requests over a server limit), `PhysicsRefused` (with `.kind`),
+    `ServerBusy`, `ServerUnavailable` or `JetloopError`.
     """
 
-    def __init__(self, address: str = "127.0.0.1:50051", timeout_s: float = 60.0, retries: int = 3,
-                 channel: Optional[grpc.Channel] = None, token: Optional[str] = None,
+    def __init__(self, address: str = "127.0.0.1:50051", timeout_s: Optional[float] = CALL_TIMEOUT_S,
+                 retries: int = 3, channel: Optional[grpc.Channel] = None, token: Optional[str] = None,
                  ca_pem: Optional[bytes] = None, client_cert_pem: Optional[bytes] = None,
-                 client_key_pem: Optional[bytes] = None):
-        """`ca_pem` connects with TLS trusting that CA (the server's --tls-cert chains to it);
-        `client_cert_pem` and `client_key_pem` add a client certificate for a server with
-        --tls-client-ca; `token` is sent as `authorization: Bearer` on every call."""
-        opts = [("grpc.max_send_message_length", 256 << 20), ("grpc.max_receive_message_length", 256 << 20)]
-        if channel is None and ca_pem is not None:
-            creds = grpc.ssl_channel_credentials(root_certificates=ca_pem, private_key=client_key_pem,
-                                                 certificate_chain=client_cert_pem)
-            channel = grpc.secure_channel(address, creds, options=opts)
-        self.channel = channel or grpc.insecure_channel(address, options=opts)
+                 client_key_pem: Optional[bytes] = None, connect_timeout_s: float = CONNECT_TIMEOUT_S,
+                 stream_timeout_s: Optional[float] = None):
+        """`ca_pem` connects with TLS trusting that CA (the server's --tls-cert chains to it;
+        `https://` without it trusts the system's roots); `client_cert_pem` and
+        `client_key_pem` add a client certificate for a server with --tls-client-ca; `channel`
+        replaces the connection made from the other arguments."""
+        target, use_tls = parse_address(address, ca_pem is not None)
+        self.address = address
+        self.channel = channel or open_channel(target, use_tls, connect_timeout_s, ca_pem, client_cert_pem,
+                                               client_key_pem)
         self.timeout_s = timeout_s
+        self.stream_timeout_s = stream_timeout_s
         self.retries = retries
+        self.last_request_id: Optional[str] = None
         # Sent with every call when the server requires a bearer token (--token-file).
-        self.metadata = [("authorization", f"Bearer {token}")] if token else None
+        self._auth = [("authorization", f"Bearer {token}")] if token else []
         self._gas = gg.GasDynamicsServiceStub(self.channel)
         self._info = ig.InfoServiceStub(self.channel)
         self._cells = scg.ShockCellServiceStub(self.channel)
@@ -144,15 +122,24 @@ class Client:
     def __exit__(self, *exc):
         self.close()
 
+    def _metadata(self):
+        """(metadata of a new call: the token and a new request id, that id)."""
+        rid = new_request_id()
+        self.last_request_id = rid
+        return self._auth + [(REQUEST_ID, rid)], rid
+
     def _call(self, method, request):
+        """A unary call; retried only after an answer carrying RetryInfo, with the same id."""
+        metadata, rid = self._metadata()
         for attempt in range(self.retries + 1):
             try:
-                return method(request, timeout=self.timeout_s, metadata=self.metadata)
+                return method(request, timeout=self.timeout_s, metadata=metadata)
             except grpc.RpcError as e:
-                if e.code() in RETRYABLE and attempt < self.retries:
-                    time.sleep(retry_delay_s(e) or 0.2)
+                delay = retry_delay_s(e)
+                if delay is not None and attempt < self.retries:
+                    time.sleep(delay)
                     continue
-                raise typed(e) from None
+                raise typed(e, self.address, rid) from None
         raise ServerBusy(grpc.StatusCode.UNAVAILABLE, "no attempts left", None)
 
     # Information and gas dynamics.
@@ -160,10 +147,12 @@ class Client:
         """True when the server's gRPC health service answers SERVING."""
         from grpc_health.v1 import health_pb2, health_pb2_grpc
 
+        metadata, rid = self._metadata()
         try:
-            r = health_pb2_grpc.HealthStub(self.channel).Check(health_pb2.HealthCheckRequest(), timeout=self.timeout_s)
+            r = health_pb2_grpc.HealthStub(self.channel).Check(health_pb2.HealthCheckRequest(), timeout=self.timeout_s,
+                                                               metadata=metadata)
         except grpc.RpcError as e:
-            raise typed(e) from None
+            raise typed(e, self.address, rid) from None
         return r.status == health_pb2.HealthCheckResponse.SERVING
 
     def services(self) -> list:
@@ -250,59 +239,90 @@ class Client:
             getattr(o, "loop").max_loop_order = max_loop_order
         return o
 
-    # Spectra.
-    def extract_tones(self, samples: np.ndarray, sample_rate_hz: float, calibration: Calibration,
-                      segment_length: Optional[int] = None, include_psd: bool = False,
-                      channel_names: Sequence[str] = ()) -> s.ExtractTonesResponse:
+    # Spectra. `samples` is an array of shape (frames, channels) or (frames,), with
+    # `sample_rate_hz` (Hz), or a `Recording` (from the readers) carrying its rate, names and
+    # possibly its calibration. `calibration` is a `Calibration` (every channel) or a list with
+    # one `Calibration` or `ChannelCalibration` per channel (e.g. `load_calibration_file(path)`).
+    def extract_tones(self, samples, sample_rate_hz: Optional[float] = None,
+                      calibration: Optional[CalibrationLike] = None, segment_length: Optional[int] = None,
+                      include_psd: bool = False, channel_names: Sequence[str] = ()) -> s.ExtractTonesResponse:
         """Welch PSD, tones with levels, harmonic families of every channel."""
         return self._call(self._spectrum.ExtractTones, s.ExtractTonesRequest(
-            samples=_samples(samples, sample_rate_hz, calibration, channel_names), welch=_welch(segment_length),
-            psd_output=s.PsdOutputOptions(include=include_psd)))
+            samples=samples_message(samples, sample_rate_hz, calibration, channel_names),
+            welch=_welch(segment_length), psd_output=s.PsdOutputOptions(include=include_psd)))
+
+    @staticmethod
+    def _checked(messages):
+        """(`messages` passed through, the list that receives a ValueError a bad block raised:
+        grpc would report it only as UNKNOWN)."""
+        refused = []
+
+        def checked():
+            try:
+                yield from messages
+            except ValueError as e:
+                refused.append(e)
+                raise
+
+        return checked(), refused
+
+    def _stream_error(self, e: grpc.RpcError, rid: str, refused: list) -> Exception:
+        return refused[0] if refused else typed(e, self.address, rid)
+
+    def _stream(self, method, messages):
+        """A client stream of `messages` with the stream deadline; its answer."""
+        requests, refused = self._checked(messages)
+        metadata, rid = self._metadata()
+        try:
+            return method(requests, timeout=self.stream_timeout_s, metadata=metadata)
+        except grpc.RpcError as e:
+            raise self._stream_error(e, rid, refused) from None
 
     def extract_tones_stream(self, blocks: Iterable[np.ndarray], sample_rate_hz: float, channels: int,
-                             calibration: Calibration, segment_length: Optional[int] = None) -> s.ExtractTonesResponse:
+                             calibration: CalibrationLike, segment_length: Optional[int] = None,
+                             channel_names: Sequence[str] = ()) -> s.ExtractTonesResponse:
         """The same analysis for blocks of shape (frames, channels) sent as they are acquired."""
         first = s.SampleBlock(request=s.ExtractTonesRequest(
-            samples=s.Samples(sample_rate_hz=sample_rate_hz, channel_count=channels,
-                              raw=s.RawSamples(format=s.SAMPLE_FORMAT_F32_LE), calibration=calibration.message),
+            samples=samples_message(None, sample_rate_hz, calibration, channel_names, with_data=False,
+                                    channels=channels),
             welch=_welch(segment_length)))
 
         def messages():
             yield first
-            for b in blocks:
-                yield s.SampleBlock(frames=_frames(b)[0])
+            for k, b in enumerate(blocks):
+                yield s.SampleBlock(frames=_block(b, channels, k))
 
-        try:
-            return self._spectrum.ExtractTonesStream(messages(), timeout=self.timeout_s, metadata=self.metadata)
-        except grpc.RpcError as e:
-            raise typed(e) from None
+        return self._stream(self._spectrum.ExtractTonesStream, messages())
 
-    def band_levels(self, samples: np.ndarray, sample_rate_hz: float, calibration: Calibration,
-                    segment_length: Optional[int] = None) -> s.BandLevelsResponse:
+    def band_levels(self, samples, sample_rate_hz: Optional[float] = None,
+                    calibration: Optional[CalibrationLike] = None, segment_length: Optional[int] = None,
+                    channel_names: Sequence[str] = ()) -> s.BandLevelsResponse:
         """One-third-octave band levels, overall and A-weighted levels."""
         return self._call(self._spectrum.BandLevels, s.BandLevelsRequest(
-            samples=_samples(samples, sample_rate_hz, calibration), welch=_welch(segment_length)))
+            samples=samples_message(samples, sample_rate_hz, calibration, channel_names),
+            welch=_welch(segment_length)))
 
-    def cross_spectra(self, samples: np.ndarray, sample_rate_hz: float, calibration: Calibration,
-                      azimuths_deg: Sequence[float] = (), reference_channel: int = 0,
-                      segment_length: Optional[int] = None) -> s.CrossSpectraResponse:
+    def cross_spectra(self, samples, sample_rate_hz: Optional[float] = None,
+                      calibration: Optional[CalibrationLike] = None, azimuths_deg: Sequence[float] = (),
+                      reference_channel: int = 0, segment_length: Optional[int] = None,
+                      channel_names: Sequence[str] = ()) -> s.CrossSpectraResponse:
         """Cross-spectra, coherence and phase against a reference; the azimuthal mode of a ring."""
         return self._call(self._spectrum.CrossSpectra, s.CrossSpectraRequest(
-            samples=_samples(samples, sample_rate_hz, calibration), welch=_welch(segment_length),
-            reference_channel=reference_channel,
+            samples=samples_message(samples, sample_rate_hz, calibration, channel_names),
+            welch=_welch(segment_length), reference_channel=reference_channel,
             positions=[s.MicrophonePosition(azimuth_deg=a) for a in azimuths_deg]))
 
-    def analyse_ramp(self, samples: np.ndarray, sample_rate_hz: float, calibration: Calibration,
-                     control_channel: int, control: str, control_per_unit: float,
-                     ambient_pressure_pa: Optional[float] = None, frame_duration_s: Optional[float] = None,
+    def analyse_ramp(self, samples, sample_rate_hz: Optional[float] = None,
+                     calibration: Optional[CalibrationLike] = None, *, control_channel: int, control: str,
+                     control_per_unit: float, ambient_pressure_pa: Optional[float] = None, frame_duration_s: Optional[float] = None,
                      segment_length: Optional[int] = None) -> Dict[str, np.ndarray]:
-        """A continuous ramp: `control` is "npr", "gauge_pa" or "absolute_pa". Returns arrays of
-        the fit points (npr, frequency_hz, level_db, direction +1/-1/0) and of the frames
-        (start_s, frame_npr)."""
+        """A continuous ramp: `control` is "npr", "gauge_pa" or "absolute_pa", read from
+        `control_channel` at `control_per_unit` per sample unit. Returns arrays of the fit points
+        (npr, frequency_hz, level_db, direction +1/-1/0) and of the frames (start_s, frame_npr)."""
         q = {"npr": s.CONTROL_QUANTITY_NOZZLE_PRESSURE_RATIO, "gauge_pa": s.CONTROL_QUANTITY_RESERVOIR_GAUGE_PRESSURE_PA,
              "absolute_pa": s.CONTROL_QUANTITY_RESERVOIR_ABSOLUTE_PRESSURE_PA}[control]
         r = self._call(self._spectrum.AnalyseRamp, s.AnalyseRampRequest(
-            samples=_samples(samples, sample_rate_hz, calibration),
+            samples=samples_message(samples, sample_rate_hz, calibration),
             control=s.ControlChannel(channel=control_channel, quantity=q, units_per_sample=control_per_unit,
                                      ambient_pressure_pa=ambient_pressure_pa),
             frame_duration_s=frame_duration_s, welch=_welch(segment_length)))
@@ -318,26 +338,29 @@ class Client:
         }
 
     def track_tones(self, blocks: Iterable[np.ndarray], sample_rate_hz: float, channels: int,
-                    calibration: Calibration, update_interval_s: Optional[float] = None,
-                    window_s: Optional[float] = None, segment_length: Optional[int] = None) -> Iterator[s.TrackUpdate]:
+                    calibration: CalibrationLike, update_interval_s: Optional[float] = None,
+                    window_s: Optional[float] = None, segment_length: Optional[int] = None,
+                    channel_names: Sequence[str] = ()) -> Iterator[s.TrackUpdate]:
         """Live tracking: yields an update (tones with track ids, events) as each interval of
         stream time completes, while `blocks` (frames, channels) are still being sent."""
         config = s.TrackRequest(config=s.TrackConfig(
             analysis=s.ExtractTonesRequest(
-                samples=s.Samples(sample_rate_hz=sample_rate_hz, channel_count=channels,
-                                  raw=s.RawSamples(format=s.SAMPLE_FORMAT_F32_LE), calibration=calibration.message),
+                samples=samples_message(None, sample_rate_hz, calibration, channel_names, with_data=False,
+                                        channels=channels),
                 welch=_welch(segment_length)),
             update_interval_s=update_interval_s, window_s=window_s))
 
         def messages():
             yield config
-            for b in blocks:
-                yield s.TrackRequest(frames=_frames(b)[0])
+            for k, b in enumerate(blocks):
+                yield s.TrackRequest(frames=_block(b, channels, k))
 
+        requests, refused = self._checked(messages())
+        metadata, rid = self._metadata()
         try:
-            yield from self._spectrum.TrackTones(messages(), timeout=self.timeout_s, metadata=self.metadata)
+            yield from self._spectrum.TrackTones(requests, timeout=self.stream_timeout_s, metadata=metadata)
         except grpc.RpcError as e:
-            raise typed(e) from None
+            raise self._stream_error(e, rid, refused) from None
 
     # Stages.
     def fit_stages(self, x: Sequence[float], frequency_hz: Sequence[float], control: str = "npr",

@@ -17,16 +17,21 @@ class FieldViolation:
 
 
 class JetloopError(Exception):
-    """Any error answer of the server: `code` (grpc.StatusCode) and `message`."""
+    """Any error answer of the server: `code` (grpc.StatusCode), `message`, and `request_id`
+    (the `x-request-id` the call was sent with, which the server writes in its log lines;
+    None where the error arose before a call was sent)."""
 
     def __init__(self, code: grpc.StatusCode, message: str):
         super().__init__(f"{code.name}: {message}")
         self.code = code
         self.message = message
+        self.request_id: Optional[str] = None
 
 
 class InvalidRequest(JetloopError):
-    """INVALID_ARGUMENT: `violations` lists every bad field with its value and allowed range."""
+    """INVALID_ARGUMENT, or RESOURCE_EXHAUSTED for a request over a server limit (too many
+    samples or values; never retried): `violations` lists every bad field with its value and
+    allowed range."""
 
     def __init__(self, code, message, violations: List[FieldViolation]):
         super().__init__(code, message)
@@ -48,19 +53,40 @@ class PhysicsRefused(JetloopError):
 
 
 class ServerBusy(JetloopError):
-    """UNAVAILABLE or RESOURCE_EXHAUSTED after the retries: `retry_after_s` is the server's hint."""
+    """The server shed the call (an answer carrying RetryInfo) on every attempt: `retry_after_s`
+    is the server's hint."""
 
     def __init__(self, code, message, retry_after_s: Optional[float]):
         super().__init__(code, message)
         self.retry_after_s = retry_after_s
 
 
+class ServerUnavailable(JetloopError):
+    """No server answered at `address` (connection refused, no answer within the connect time,
+    an unknown host, a failed TLS handshake, a server going away): `reason` says which. Not
+    retried."""
+
+    def __init__(self, code, message, address: str, reason: str):
+        super().__init__(code, message)
+        self.address = address
+        self.reason = reason
+
+    def __str__(self):
+        return f"cannot reach the jetloop server at {self.address}: {self.reason}"
+
+
+def _details(err: grpc.RpcError) -> list:
+    """The google.rpc details of an error answer ([] when there are none or they do not parse)."""
+    try:
+        status = rpc_status.from_call(err)
+    except (AttributeError, ValueError):
+        return []
+    return list(status.details) if status is not None else []
+
+
 def retry_delay_s(err: grpc.RpcError) -> Optional[float]:
     """The google.rpc.RetryInfo delay of an error answer, in seconds, if the server sent one."""
-    status = rpc_status.from_call(err)
-    if status is None:
-        return None
-    for d in status.details:
+    for d in _details(err):
         if d.Is(error_details_pb2.RetryInfo.DESCRIPTOR):
             info = error_details_pb2.RetryInfo()
             d.Unpack(info)
@@ -68,12 +94,32 @@ def retry_delay_s(err: grpc.RpcError) -> Optional[float]:
     return None
 
 
-def typed(err: grpc.RpcError) -> JetloopError:
-    """The typed error for a failed call."""
+def _reason(message: str) -> str:
+    """The cause in grpc's connection failure text ("... last error: UNKNOWN: ipv4:...: Failed to
+    connect to remote host: Connection refused" -> "Failed to connect to remote host: Connection
+    refused"), else the whole text."""
+    tail = message.rsplit("last error: ", 1)[-1]
+    parts = tail.split(": ")
+    # Drop the status name and the peer address grpc puts before the cause.
+    while len(parts) > 1 and (parts[0].isupper() or parts[0].startswith(("ipv4:", "ipv6:", "unix:", "dns:"))):
+        parts = parts[1:]
+    return ": ".join(parts) or message
+
+
+def typed(err: grpc.RpcError, address: str = "", request_id: Optional[str] = None) -> JetloopError:
+    """The typed error for a failed call to the server at `address`, sent with `request_id`."""
+    e = _typed(err, address)
+    e.request_id = request_id
+    return e
+
+
+def _typed(err: grpc.RpcError, address: str) -> JetloopError:
     code, message = err.code(), err.details() or ""
-    status = rpc_status.from_call(err)
-    details = status.details if status is not None else []
-    if code == grpc.StatusCode.INVALID_ARGUMENT:
+    details = _details(err)
+    retry = any(d.Is(error_details_pb2.RetryInfo.DESCRIPTOR) for d in details)
+    # RESOURCE_EXHAUSTED without RetryInfo is a request over a server limit (the BadRequest
+    # detail names the field): sent again it would be refused again, so it is a bad request.
+    if code == grpc.StatusCode.INVALID_ARGUMENT or (code == grpc.StatusCode.RESOURCE_EXHAUSTED and not retry):
         violations = []
         for d in details:
             if d.Is(error_details_pb2.BadRequest.DESCRIPTOR):
@@ -90,6 +136,9 @@ def typed(err: grpc.RpcError) -> JetloopError:
                     v = pf.violations[0]
                     return PhysicsRefused(code, message, v.type, v.subject)
         return PhysicsRefused(code, message, None, None)
-    if code in (grpc.StatusCode.UNAVAILABLE, grpc.StatusCode.RESOURCE_EXHAUSTED):
-        return ServerBusy(code, message, retry_delay_s(err))
+    delay = retry_delay_s(err)
+    if delay is not None:
+        return ServerBusy(code, message, delay)
+    if code == grpc.StatusCode.UNAVAILABLE:
+        return ServerUnavailable(code, message, address, _reason(message))
     return JetloopError(code, message)
