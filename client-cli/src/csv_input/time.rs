@@ -32,6 +32,15 @@ const TIME_NAMES: [&str; 8] = ["time", "t", "zeit", "temps", "tiempo", "tempo", 
 const TIME_SUFFIXES: [(&str, f64); 6] =
     [("_s", 1.0), ("_sec", 1.0), ("_ms", 1e-3), ("_us", 1e-6), ("_ns", 1e-9), ("_min", 60.0)];
 
+/// A time in s with 6 significant digits and no trailing zeros (`1e-4`, `2.5e-5`, `0e0`).
+fn sig(x: f64) -> String {
+    let s = format!("{x:.5e}");
+    match s.split_once('e') {
+        Some((m, e)) if m.contains('.') => format!("{}e{e}", m.trim_end_matches('0').trim_end_matches('.')),
+        _ => s,
+    }
+}
+
 /// Seconds per unit of a time unit written in a header (`s`, `ms`, `us`, `µs`, `ns`, `min`).
 fn seconds_per(unit: &str) -> Option<f64> {
     match unit.trim().to_lowercase().as_str() {
@@ -171,19 +180,25 @@ pub(super) fn check(
     let fit = uniform_step(&t_s, q).map_err(|f| {
         Failure::Usage(match f {
             TimeFault::NotIncreasing { index, step_s } => format!(
-                "{file}: {what} does not increase: row {} is {step_s} s after the row before; {uniform}",
-                row(index)
+                "{file}: {what} does not increase: row {} is {} s after the row before; {uniform}",
+                row(index),
+                sig(step_s)
             ),
             TimeFault::Step { index, step_s, median_s, tolerance_s } => format!(
-                "{file}: {what} is not uniform: row {} is {step_s:e} s after the row before, the usual \
-                 step is {median_s:e} s (tolerance {tolerance_s:.3e} s; a missing, repeated or \
-                 out-of-order sample?); {uniform}",
-                row(index)
+                "{file}: {what} is not uniform: row {} is {} s after the row before, the usual \
+                 step is {} s (tolerance {} s; a missing, repeated or out-of-order sample?); {uniform}",
+                row(index),
+                sig(step_s),
+                sig(median_s),
+                sig(tolerance_s)
             ),
             TimeFault::Drift { index, off_s, step_s, tolerance_s } => format!(
-                "{file}: {what} is not uniform: row {} is {off_s:.3e} s off the grid of one step of \
-                 {step_s:e} s from the first row (tolerance {tolerance_s:.3e} s); {uniform}",
-                row(index)
+                "{file}: {what} is not uniform: row {} is {} s off the grid of one step of {} s \
+                 from the first row (tolerance {} s); {uniform}",
+                row(index),
+                sig(off_s),
+                sig(step_s),
+                sig(tolerance_s)
             ),
         })
     })?;
@@ -194,12 +209,12 @@ pub(super) fn check(
         if over_file_s.is_nan() || over_file_s.abs() > fit.tolerance_s {
             return Err(Failure::Usage(format!(
                 "{file}: --sample-rate-hz {given} disagrees with the {what}, which gives {derived} Hz \
-                 (rows {} to {}): over the file the two differ by {:.3e} s, more than the tolerance \
-                 {:.3e} s; give one of them (or --no-time-column)",
+                 (rows {} to {}): over the file the two differ by {} s, more than the tolerance \
+                 {} s; give one of them (or --no-time-column)",
                 row(0),
                 row(t_s.len() - 1),
-                over_file_s.abs(),
-                fit.tolerance_s
+                sig(over_file_s.abs()),
+                sig(fit.tolerance_s)
             )));
         }
     }
