@@ -11,6 +11,7 @@
 mod args;
 mod commands;
 mod connect;
+mod csv_input;
 mod failure;
 mod readers;
 mod render;

@@ -41,13 +41,10 @@ pub(crate) fn read_with_progress(path: &Path) -> Result<Vec<u8>, Failure> {
 }
 
 /// The rows of a delimited text file: (line index from 0, trimmed cells), skipping blank
-/// lines and `#` comments. Cells are separated by commas, semicolons or tabs.
-pub fn csv_rows(text: &str) -> impl Iterator<Item = (usize, Vec<&str>)> {
-    text.lines().enumerate().filter_map(|(i, line)| {
-        let line = line.trim();
-        (!line.is_empty() && !line.starts_with('#'))
-            .then(|| (i, line.split([',', ';', '\t']).map(str::trim).collect()))
-    })
+/// lines and `#` comments; one delimiter (comma, semicolon or tab) for the whole file, quoted
+/// cells unquoted ([`crate::csv_input::rows`]).
+pub fn csv_rows(text: &str) -> Vec<(usize, Vec<String>)> {
+    crate::csv_input::rows(text)
 }
 
 /// A WAV file's `bytes` (16/24/32-bit integer or 32-bit float samples, interleaved) as raw
@@ -99,59 +96,19 @@ pub(crate) fn wav(path: &Path, bytes: &[u8], calibration: pb::Calibration) -> Re
     })
 }
 
-/// A CSV file's `bytes` (one column per channel, an optional header row of channel names) as
-/// sample values, channel by channel, at `sample_rate_hz` (Hz); `path` names the file in
-/// messages.
+/// A CSV recording's `bytes` (one column per channel, an optional header row of names, an
+/// optional time column) read with `options` ([`crate::csv_input::read`]); `path` names the
+/// file in messages.
 ///
 /// # Errors
-/// [`Failure::Usage`] for text that is not UTF-8, a row with another number of columns, or a
-/// cell that is not a number (the line is named).
+/// [`Failure::Usage`] naming the row and column of what cannot be read.
 pub(crate) fn csv(
     path: &Path,
     bytes: &[u8],
-    sample_rate_hz: f64,
+    options: &crate::csv_input::CsvOptions,
     calibration: pb::Calibration,
-) -> Result<pb::Samples, Failure> {
-    let text = std::str::from_utf8(bytes)
-        .map_err(|_| Failure::Usage(format!("{}: CSV files must be UTF-8 text", path.display())))?;
-    let mut names = Vec::new();
-    let mut columns: Vec<Vec<f64>> = Vec::new();
-    for (i, cells) in csv_rows(text) {
-        if columns.is_empty() && names.is_empty() && cells.iter().any(|c| c.parse::<f64>().is_err()) {
-            names = cells.iter().map(|c| c.to_string()).collect();
-            continue;
-        }
-        if columns.is_empty() {
-            columns = vec![Vec::new(); cells.len()];
-        }
-        if cells.len() != columns.len() {
-            return Err(Failure::Usage(format!(
-                "{} line {}: {} columns, expected {}",
-                path.display(),
-                i + 1,
-                cells.len(),
-                columns.len()
-            )));
-        }
-        for (col, c) in columns.iter_mut().zip(&cells) {
-            col.push(c.parse::<f64>().map_err(|_| {
-                Failure::Usage(format!("{} line {}: '{c}' is not a number", path.display(), i + 1))
-            })?);
-        }
-    }
-    let channels = columns.len() as u32;
-    if !names.is_empty() && names.len() != columns.len() {
-        names.clear();
-    }
-    Ok(pb::Samples {
-        sample_rate_hz,
-        channel_count: channels.max(1),
-        layout: pb::ChannelLayout::Planar as i32,
-        data: Some(pb::samples::Data::Values(pb::SampleValues { values: columns.concat() })),
-        calibration: Some(calibration),
-        channel_names: names,
-        channel_calibrations: Vec::new(),
-    })
+) -> Result<crate::csv_input::CsvRecording, Failure> {
+    crate::csv_input::read(path, bytes, options, calibration)
 }
 
 /// Raw little-endian samples as they are: `channels` channels of `format` in `layout`, at
@@ -232,7 +189,9 @@ pub(crate) fn read_points(path: &PathBuf) -> Result<Vec<pb::MeasuredTone>, Failu
         .map_err(|e| Failure::Usage(format!("cannot read {}: {e}", path.display())))?;
     let mut out = Vec::new();
     for (i, cells) in csv_rows(&text) {
-        let (Ok(x), Ok(f)) = (cells[0].parse::<f64>(), cells.get(1).unwrap_or(&"").parse::<f64>()) else {
+        let (Ok(x), Ok(f)) =
+            (cells[0].parse::<f64>(), cells.get(1).map_or("", String::as_str).parse::<f64>())
+        else {
             if out.is_empty() {
                 continue; // header
             }
@@ -321,20 +280,6 @@ mod tests {
     }
 
     #[test]
-    fn a_csv_row_of_the_wrong_width_or_a_word_is_named_by_its_line() {
-        let s = csv(Path::new("m.csv"), b"# two mics\n1,2\n3,4\n", 1000.0, cal()).expect("samples");
-        assert!(s.channel_names.is_empty(), "no header row");
-        assert_eq!(
-            s.data,
-            Some(pb::samples::Data::Values(pb::SampleValues { values: vec![1.0, 3.0, 2.0, 4.0] }))
-        );
-        let e = csv(Path::new("m.csv"), b"a,b\n1,2\n3\n", 1000.0, cal()).unwrap_err();
-        assert!(matches!(e, Failure::Usage(ref m) if m == "m.csv line 3: 1 columns, expected 2"), "{e:?}");
-        let e = csv(Path::new("m.csv"), b"1,2\n3,x\n", 1000.0, cal()).unwrap_err();
-        assert!(matches!(e, Failure::Usage(ref m) if m == "m.csv line 2: 'x' is not a number"), "{e:?}");
-    }
-
-    #[test]
     fn raw_bytes_are_sent_as_they_are_with_their_format_and_layout() {
         let s = raw(vec![0; 16], 102_400.0, pb::SampleFormat::I16Le, 4, pb::ChannelLayout::Planar, cal());
         assert_eq!((s.sample_rate_hz, s.channel_count), (102_400.0, 4));
@@ -349,7 +294,7 @@ mod tests {
         let f = dir.join("sweep.csv");
         std::fs::write(
             &f,
-            "npr,frequency_hz,level_db,direction\n3.0,5230,131.5,up\n3.1,5100,,down\n3.2;4900\n",
+            "npr,frequency_hz,level_db,direction\n3.0,5230,131.5,up\n3.1,5100,,down\n3.2,4900\n",
         )
         .expect("write");
         let p = read_points(&f).expect("points");

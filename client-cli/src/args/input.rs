@@ -1,6 +1,8 @@
 //! The recording argument group: file, format, layout, sample rate and calibration, turned
 //! into the `Samples` of a request (the file itself is decoded by [`crate::readers`]).
 
+use crate::csv_input::CsvOptions;
+use crate::csv_input::TimeColumn;
 use crate::failure::Failure;
 use crate::readers;
 use crate::readers::read_with_progress;
@@ -14,7 +16,7 @@ use std::path::PathBuf;
 pub enum InputKind {
     /// RIFF WAVE (16/24/32-bit integer or 32-bit float).
     Wav,
-    /// Text, one column per channel, optional header row of names.
+    /// Text, one column per channel, optional header row of names, optional time column.
     Csv,
     /// Raw little-endian samples (give --raw-format, --channels, --layout).
     Raw,
@@ -50,9 +52,28 @@ pub struct InputArgs {
     /// File kind (default: from the extension; anything else is raw).
     #[arg(long, value_enum)]
     pub input_kind: Option<InputKind>,
-    /// Sample rate in Hz (required for CSV and raw; WAV files carry their own).
+    /// Sample rate in Hz (required for raw, and for CSV without a time column; WAV files
+    /// carry their own). With a CSV time column it must agree with the rate the column gives.
     #[arg(long)]
     pub sample_rate_hz: Option<f64>,
+    /// CSV column separator: `,` (comma), `;` (semicolon) or `tab`. Default: detected from the
+    /// header and first rows (one separator per file).
+    #[arg(long, value_parser = parse_delimiter, value_name = ",|;|tab")]
+    pub delimiter: Option<u8>,
+    /// CSV numbers are written with a decimal comma (0,25 for 0.25), as European exports do;
+    /// a cell with a decimal point is then refused. Default: detected, one decimal mark per
+    /// file.
+    #[arg(long)]
+    pub decimal_comma: bool,
+    /// CSV time column, by header name or 1-based position, in seconds unless its header
+    /// gives a unit (`time [ms]`, `t_us`): left out of the channels, and the sample rate in Hz
+    /// is derived from it after checking the rows are uniformly spaced. Default: a header
+    /// column named time, t, time_s, `time [s]`, `Time (s)`, zeit, temps, tiempo or tempo.
+    #[arg(long, value_name = "NAME|INDEX", conflicts_with = "no_time_column")]
+    pub time_column: Option<String>,
+    /// CSV: no time column; every column is a channel (give --sample-rate-hz).
+    #[arg(long)]
+    pub no_time_column: bool,
     /// Raw sample encoding.
     #[arg(long, value_enum, default_value = "f32")]
     pub raw_format: RawFormat,
@@ -81,6 +102,16 @@ pub struct InputArgs {
     /// Replaces --pa-per-unit, --sensitivity-v-per-pa and --in-pascals.
     #[arg(long, conflicts_with_all = ["sensitivity_v_per_pa", "in_pascals"])]
     pub calibration_file: Option<PathBuf>,
+}
+
+/// `--delimiter`: `,` or comma, `;` or semicolon, `tab` (or a tab character).
+fn parse_delimiter(text: &str) -> Result<u8, String> {
+    match text {
+        "," | "comma" => Ok(b','),
+        ";" | "semicolon" => Ok(b';'),
+        "tab" | "\t" | "\\t" => Ok(b'\t'),
+        other => Err(format!("'{other}' is not a CSV delimiter: give ',', ';' or tab")),
+    }
 }
 
 /// One channel's calibration from a calibration file, and its name ("" when not given).
@@ -212,7 +243,11 @@ impl InputArgs {
     fn decode(&self, bytes: Vec<u8>, calibration: pb::Calibration) -> Result<pb::Samples, Failure> {
         match self.kind() {
             InputKind::Wav => readers::wav(&self.file, &bytes, calibration),
-            InputKind::Csv => readers::csv(&self.file, &bytes, self.rate("CSV")?, calibration),
+            InputKind::Csv => {
+                let read = readers::csv(&self.file, &bytes, &self.csv_options(), calibration)?;
+                eprintln!("{}", read.summary(&self.file));
+                Ok(read.samples)
+            }
             InputKind::Raw => Ok(readers::raw(
                 bytes,
                 self.rate("raw")?,
@@ -221,6 +256,21 @@ impl InputArgs {
                 self.channel_layout(),
                 calibration,
             )),
+        }
+    }
+
+    /// How to read a CSV recording: the CSV flags and --sample-rate-hz.
+    pub(crate) fn csv_options(&self) -> CsvOptions {
+        let time_column = match (&self.time_column, self.no_time_column) {
+            (_, true) => TimeColumn::None,
+            (Some(t), false) => TimeColumn::parse(t),
+            (None, false) => TimeColumn::Auto,
+        };
+        CsvOptions {
+            delimiter: self.delimiter,
+            decimal_comma: self.decimal_comma,
+            time_column,
+            sample_rate_hz: self.sample_rate_hz,
         }
     }
 

@@ -128,10 +128,12 @@ impl Table {
         out
     }
 
-    /// CSV with the JSON keys as header; empty cells for missing values.
+    /// CSV with the JSON keys as header; empty cells for missing values; text quoted where
+    /// RFC 4180 needs it (a comma, a quote or a line break inside), never altered.
     pub fn to_csv(&self) -> String {
-        let mut out = self.columns.iter().map(|(k, _)| k.as_str()).collect::<Vec<_>>().join(",");
-        out.push('\n');
+        let mut w = csv::WriterBuilder::new().terminator(csv::Terminator::Any(b'\n')).from_writer(Vec::new());
+        // Writing into memory cannot fail (the writer's errors are I/O errors).
+        let _ = w.write_record(self.columns.iter().map(|(k, _)| k.as_str()));
         for r in &self.rows {
             let line: Vec<String> = r
                 .iter()
@@ -139,14 +141,13 @@ impl Table {
                     None => String::new(),
                     Some(Val::Num(x)) | Some(Val::Plain(x)) => format!("{x}"),
                     Some(Val::Int(x)) => x.to_string(),
-                    Some(Val::Text(t)) => t.replace(',', ";"),
+                    Some(Val::Text(t)) => t.clone(),
                     Some(Val::Flag(b)) => b.to_string(),
                 })
                 .collect();
-            out.push_str(&line.join(","));
-            out.push('\n');
+            let _ = w.write_record(&line);
         }
-        out
+        String::from_utf8(w.into_inner().unwrap_or_default()).unwrap_or_default()
     }
 }
 
@@ -400,6 +401,22 @@ mod tests {
         assert_eq!(fmt_plain(20.0), "20");
         assert_eq!(fmt_plain(31.5), "31.5");
         assert_eq!(fmt_plain(12_500.0), "12500");
+    }
+
+    #[test]
+    fn csv_text_cells_are_quoted_not_altered() {
+        let mut t = Table::new("t", "T").col("channel", "channel").col("rms_pa", "rms [Pa]");
+        t.row(vec![Some(Val::Text("mic \"A\", 90 deg".into())), Some(Val::Num(1.5))]);
+        t.row(vec![Some(Val::Text("plain".into())), None]);
+        let text = t.to_csv();
+        // RFC 4180 section 2, rules 6 and 7: a field holding a comma or a quote is enclosed in
+        // quotes, and a quote inside is written twice; other fields are left bare.
+        assert_eq!(text, "channel,rms_pa\n\"mic \"\"A\"\", 90 deg\",1.5\nplain,\n");
+        // Read back by the csv crate's reader (an RFC 4180 parser): the text is unchanged.
+        let mut r = csv::ReaderBuilder::new().from_reader(text.as_bytes());
+        let rows: Vec<csv::StringRecord> = r.records().map(|x| x.expect("record")).collect();
+        assert_eq!(rows[0].get(0), Some("mic \"A\", 90 deg"));
+        assert_eq!((rows[0].get(1), rows[1].get(1)), (Some("1.5"), Some("")));
     }
 
     #[test]
