@@ -138,26 +138,44 @@ impl Ctx {
     /// [`Failure::Usage`] for a malformed address, [`Failure::Connect`] when it cannot be
     /// reached.
     pub async fn channel(&self) -> Result<Conn, Failure> {
+        self.connect(Some(self.timeout.unwrap_or(DEFAULT_CALL_LIMIT))).await
+    }
+
+    /// A connection for a stream (live tracking, a recording sent in blocks), which lasts as
+    /// long as its recording: limited by `--timeout` only.
+    ///
+    /// # Errors
+    /// As [`Ctx::channel`].
+    pub async fn stream_channel(&self) -> Result<Conn, Failure> {
+        self.connect(self.timeout).await
+    }
+
+    async fn connect(&self, limit: Option<std::time::Duration>) -> Result<Conn, Failure> {
         let url = endpoint_url(&self.server, self.tls.is_some())?;
         let mut ep = tonic::transport::Endpoint::from_shared(url.clone())
             .map_err(|e| Failure::Usage(format!("--server {url}: {e}")))?;
         if let Some(tls) = &self.tls {
             ep = ep.tls_config(tls.clone()).map_err(|e| Failure::Usage(format!("TLS settings: {e}")))?;
         }
-        ep = match self.timeout {
-            // Connecting gets at least a second whatever the call's limit (a loopback connect
-            // takes far less, a remote one may take more).
-            Some(t) => ep.timeout(t).connect_timeout(t.max(std::time::Duration::from_secs(1))),
-            // A host that takes the connection and never answers, or drops the packets, must
-            // not hold the command forever.
-            None => ep.connect_timeout(CONNECT_TIMEOUT),
-        };
+        // Connecting: --timeout (at least a second: a loopback connect takes far less, a
+        // remote one may take more), else CONNECT_TIMEOUT, so a host that takes the connection
+        // and never answers, or drops the packets, cannot hold the command forever.
+        let connect = self.timeout.map_or(CONNECT_TIMEOUT, |t| t.max(std::time::Duration::from_secs(1)));
+        ep = ep.connect_timeout(connect);
+        if let Some(t) = limit {
+            ep = ep.timeout(t);
+        }
         let channel = ep.connect().await.map_err(|e| {
             Failure::Connect(format!("cannot reach the jetloop server at {url}: {}", error_chain(&e)))
         })?;
         Ok(tonic::service::interceptor::InterceptedService::new(channel, self.bearer.clone()))
     }
 }
+
+/// Time a call (not a stream) may take when --timeout is not given: above the server's own
+/// default limit (60 s) and any sweep or fit it allows, so it only ends calls to a server that
+/// took the connection and never answers.
+pub(crate) const DEFAULT_CALL_LIMIT: std::time::Duration = std::time::Duration::from_secs(600);
 
 /// Time allowed to connect when --timeout is not given.
 pub(crate) const CONNECT_TIMEOUT: std::time::Duration = std::time::Duration::from_secs(5);

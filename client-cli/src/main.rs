@@ -34,8 +34,8 @@ struct Cli {
     #[arg(long, global = true)]
     json: bool,
     /// Give up on a call after this many seconds (the server is told the deadline too;
-    /// connecting may take at least a second). Default: connecting gives up after 5 s, and a
-    /// call has no client-side limit (the server's own limits apply).
+    /// connecting may take at least a second). Default: connecting gives up after 5 s, a call
+    /// after 600 s; streams (track, recordings sent in blocks) have no client-side limit.
     #[arg(long, global = true, env = "JETLOOP_TIMEOUT_S")]
     timeout: Option<f64>,
     /// File holding the bearer token for a server that requires one (its first non-comment

@@ -126,7 +126,7 @@ impl TrackCmd {
 /// Runs `track`.
 impl Run for TrackCmd {
     async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
-        let (ch, a) = (ctx.channel().await?, self);
+        let (ch, a) = (ctx.stream_channel().await?, self);
         let samples = a.input.read()?;
         let fs = samples.sample_rate_hz;
         let (format, frame_bytes, bytes) = frames_of(&samples)?;

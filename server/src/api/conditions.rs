@@ -5,7 +5,7 @@ use super::error::{ApiError, Check};
 use super::field::Fields;
 use super::provenance::Defaults;
 use crate::physics::gas::{self, Gas};
-use crate::physics::jet::{self, Nozzle, OperatingPoint};
+use crate::physics::jet::{self, plausible, Nozzle, OperatingPoint, Section};
 use jetloop_proto::pb;
 
 /// Validated jet conditions: gas, nozzle and operating point.
@@ -104,7 +104,16 @@ fn nozzle_from(
             return None;
         }
     };
-    match kind {
+    let kind_path = format!(
+        "{path}.{}",
+        match &kind {
+            Kind::RoundConvergent(_) => "round_convergent",
+            Kind::RoundConvergentDivergent(_) => "round_convergent_divergent",
+            Kind::Rectangular(_) => "rectangular",
+            Kind::Planar(_) => "planar",
+        }
+    );
+    let nozzle = match kind {
         Kind::RoundConvergent(pb::RoundConvergentNozzle { exit_diameter_m }) => {
             check.range(&format!("{path}.round_convergent"), Nozzle::round_convergent(exit_diameter_m))
         }
@@ -138,6 +147,43 @@ fn nozzle_from(
             let md = design(check, design_mach_number, &p);
             check.range(&p, Nozzle::planar(exit_height_m, md))
         }
+    };
+    if let Some(n) = &nozzle {
+        size_cautions(defaults, &kind_path, "exit_", n.shape());
+    }
+    nozzle
+}
+
+/// Cautions for a nozzle exit or jet size given in metres that is far larger than any nozzle
+/// (millimetres typed as metres); `prefix` is how the message's length fields begin (`exit_`
+/// for a nozzle, empty for a jet's own size messages).
+pub fn size_cautions(defaults: &mut Defaults, path: &str, prefix: &str, shape: Section) {
+    let mut note = |name: &str, v: f64| {
+        defaults.caution(plausible::length_caution(&format!("{path}.{prefix}{name}"), v))
+    };
+    match shape {
+        Section::Round { diameter_m } => note("diameter_m", diameter_m),
+        Section::Rectangular { height_m, width_m } => {
+            note("height_m", height_m);
+            note("width_m", width_m);
+        }
+        Section::Planar { height_m } => note("height_m", height_m),
+    }
+}
+
+/// Cautions for temperatures given at `path` (an operating point or a directly given jet) that
+/// a laboratory rarely means (degrees Celsius typed as kelvin).
+pub fn temperature_cautions(
+    defaults: &mut Defaults,
+    path: &str,
+    total_given: Option<f64>,
+    ambient_given: Option<f64>,
+) {
+    if let Some(t) = total_given {
+        defaults.caution(plausible::total_temperature_caution(&format!("{path}.total_temperature_k"), t));
+    }
+    if let Some(t) = ambient_given {
+        defaults.caution(plausible::ambient_temperature_caution(&format!("{path}.ambient_temperature_k"), t));
     }
 }
 
@@ -187,6 +233,20 @@ fn operating_point_from(
     let t_amb =
         f.read(ambient_temperature_k, &jet::AMBIENT_TEMPERATURE).unwrap_or(jet::ISA_SEA_LEVEL_TEMPERATURE_K);
     let t0 = f.read_or(total_temperature_k, &jet::TOTAL_TEMPERATURE, t_amb).unwrap_or(t_amb);
+    temperature_cautions(defaults, path, total_temperature_k, ambient_temperature_k);
+    let ambient_field = match &pressure {
+        Some(Pressure::Pressures(_)) => format!("{path}.pressures.ambient_pressure_pa"),
+        Some(Pressure::Gauge(_)) => format!("{path}.gauge.ambient_pressure_pa"),
+        _ => format!("{path}.ambient_pressure_pa"),
+    };
+    let given_ambient = match &pressure {
+        Some(Pressure::Pressures(p)) => Some(p.ambient_pressure_pa),
+        Some(Pressure::Gauge(g)) => Some(g.ambient_pressure_pa),
+        _ => ambient_pressure_pa,
+    };
+    if let Some(pa) = given_ambient {
+        defaults.caution(plausible::ambient_pressure_caution(&ambient_field, pa));
+    }
     match pressure {
         None => {
             check.missing(

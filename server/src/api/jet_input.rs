@@ -120,6 +120,29 @@ pub fn convert_jet(input: Option<pb::JetInput>, path: &str) -> Result<ResolvedJe
                 }
                 _ => None,
             };
+            super::conditions::temperature_cautions(
+                &mut defaults,
+                &p,
+                total_temperature_k,
+                ambient_temperature_k,
+            );
+            if let Some(j) = &jet {
+                let shape = match j.size {
+                    JetSize::Round { diameter_m } => crate::physics::jet::Section::Round { diameter_m },
+                    JetSize::Planar { height_m } => crate::physics::jet::Section::Planar { height_m },
+                    JetSize::Rectangular { height_m, width_m } => {
+                        crate::physics::jet::Section::Rectangular { height_m, width_m }
+                    }
+                };
+                // Field names as the message spells them: fully_expanded_diameter_m,
+                // planar_height_m, rectangular.height_m and rectangular.width_m.
+                let (sizes, prefix) = match j.size {
+                    JetSize::Round { .. } => (p.clone(), "fully_expanded_"),
+                    JetSize::Planar { .. } => (p.clone(), "planar_"),
+                    JetSize::Rectangular { .. } => (format!("{p}.rectangular"), ""),
+                };
+                super::conditions::size_cautions(&mut defaults, &sizes, prefix, shape);
+            }
             let r = jet.map(|jet| ResolvedJet { jet, state: None, spec: None, defaults });
             check.finish(r)
         }

@@ -17,11 +17,30 @@ pub struct Default {
     pub reason: String,
 }
 
-/// Defaults applied while converting one request.
+/// Defaults applied while converting one request (`.0`), and cautions about values given
+/// that a laboratory rarely means (`.1`, e.g. millimetres typed as metres), which the answer's
+/// provenance notes carry.
 #[derive(Debug, Clone, PartialEq, Eq, core::default::Default)]
-pub struct Defaults(pub Vec<Default>);
+pub struct Defaults(pub Vec<Default>, pub Vec<String>);
 
 impl Defaults {
+    /// Records a caution sentence (once).
+    pub fn caution(&mut self, text: Option<String>) {
+        if let Some(t) = text {
+            if !self.1.contains(&t) {
+                self.1.push(t);
+            }
+        }
+    }
+
+    /// Takes in what `other` recorded: its defaults and its cautions.
+    pub fn absorb(&mut self, other: &Defaults) {
+        self.0.extend(other.0.iter().cloned());
+        for c in &other.1 {
+            self.caution(Some(c.clone()));
+        }
+    }
+
     /// Records a default that is not a number (an enum choice). Numeric defaults are read
     /// through [`crate::api::field::Fields`], which records them.
     pub fn note(&mut self, field: &str, value: &str, reason: &str) {
@@ -36,12 +55,17 @@ pub fn provenance(models: &[Model], defaults: &Defaults, notes: Vec<String>) -> 
 
 /// [`provenance`] taking the defaults, whose texts then move into the message instead of
 /// being copied (the physics calls answered most often use this).
-pub fn provenance_owned(models: &[Model], defaults: Defaults, notes: Vec<String>) -> pb::Provenance {
+pub fn provenance_owned(models: &[Model], defaults: Defaults, mut notes: Vec<String>) -> pb::Provenance {
+    let Defaults(applied, cautions) = defaults;
+    for c in cautions {
+        if !notes.contains(&c) {
+            notes.push(c);
+        }
+    }
     pb::Provenance {
         server_version: SERVER_VERSION.to_string(),
         models: models.iter().map(model).collect(),
-        defaults_applied: defaults
-            .0
+        defaults_applied: applied
             .into_iter()
             .map(|d| pb::AppliedDefault { field: d.field, value: d.value, reason: d.reason })
             .collect(),

@@ -58,7 +58,7 @@ pub fn stage_context(
         );
         return check.finish(None);
     }
-    defaults.0.extend(jet.defaults.0.iter().cloned());
+    defaults.absorb(&jet.defaults);
     let round = matches!(jet.jet.size, JetSize::Round { .. });
     let settings = label_settings(&mut check, defaults, modes, band_tolerance_fraction, path, round);
     let state_notes = jet.state.as_ref().map(JetState::notes).unwrap_or_default();

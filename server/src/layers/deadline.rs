@@ -132,7 +132,7 @@ route_service!(Deadline, |self, req| {
     let server_limit = if live || upload { self.stream_timeout } else { self.timeout };
     let (limit, why) = time_limit(req.headers(), server_limit);
     if upload {
-        req.extensions_mut().insert(BlockGap(self.timeout.min(limit)));
+        req.extensions_mut().insert(BlockGap(self.timeout));
     }
     // A live stream's answer is ready at once and then streams: its handler ends it at the
     // limit, and the send guard cuts it only after a grace beyond that.
@@ -163,7 +163,14 @@ route_service!(Deadline, |self, req| {
             // Ready at once: no need to read the clock again.
             Poll::Ready(r) => (Ok(r), started),
             Poll::Pending => {
-                let r = tokio::time::timeout(limit, &mut fut).await;
+                // The limit is looked at first: an answer that became ready only after the
+                // limit passed (a busy machine may wake this task late) is still past it.
+                let end = tokio::time::sleep_until(started + limit);
+                let r = tokio::select! {
+                    biased;
+                    () = end => Err(()),
+                    r = &mut fut => Ok(r),
+                };
                 (r, tokio::time::Instant::now())
             }
         };

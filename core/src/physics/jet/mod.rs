@@ -96,6 +96,7 @@ pub const AIR_DISSOCIATION_K: f64 = 2000.0;
 mod expanded;
 mod nozzle;
 mod operating_point;
+pub mod plausible;
 mod state;
 
 pub use expanded::*;

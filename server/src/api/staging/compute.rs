@@ -100,7 +100,8 @@ impl Compute for StagingQuery {
     /// [`ApiError::Stopped`] once `cancel` is set.
     fn compute(self, cancel: &Cancel) -> Result<pb::FitStagesResponse, ApiError> {
         let q = self;
-        let StagingQuery { kind, mut points, physics, labels, config, defaults, started } = q;
+        let StagingQuery { kind, mut points, physics, labels, config, mut defaults, started, nozzle_size_m } =
+            q;
         infer_directions(&mut points);
         let res: StagingResult = fit_stages_until(&points, kind, physics.as_deref(), &config, cancel)?;
         let point_labels = match &labels {
@@ -153,6 +154,11 @@ impl Compute for StagingQuery {
                 msg.fit_p_value = fit.p_value;
                 let dof = st.points.len().saturating_sub(fit.free);
                 msg.reduced_chi_square = (dof > 0).then(|| fit.chi2 / dof as f64);
+                if let (Some(r), Some(d), SweepKind::Npr | SweepKind::Mach) =
+                    (msg.reduced_chi_square, nozzle_size_m, kind)
+                {
+                    defaults.caution(misfit_caution(r, d));
+                }
             }
             stages.push(msg);
         }
@@ -244,4 +250,27 @@ fn verdict_msg(v: FitVerdict) -> pb::FitVerdict {
         FitVerdict::ResidualsAboveNoise => pb::FitVerdict::ResidualsAboveNoise,
         FitVerdict::NoFreedom => pb::FitVerdict::NoFreedom,
     }
+}
+
+/// Reduced chi-square above which a loop fit is said to miss by orders of magnitude: a fit
+/// within its stated noise has chi^2/dof near 1 (Bevington & Robinson, Data Reduction and
+/// Error Analysis, ch. 11), so 10^3 is three orders beyond it.
+pub const MISFIT_REDUCED_CHI_SQUARE: f64 = 1e3;
+
+/// A caution for a stage fit of an NPR or Mj sweep whose chi^2/dof `reduced` is orders of
+/// magnitude above the stated noise, naming the nozzle size `d_m` (m) that scales the loop
+/// frequencies (millimetres typed as metres give a loop 1000 times too slow).
+fn misfit_caution(reduced: f64, d_m: f64) -> Option<String> {
+    (reduced > MISFIT_REDUCED_CHI_SQUARE).then(|| {
+        format!(
+            "caution: a stage's loop fit misses its points by far more than their stated noise \
+             (chi^2/dof = {reduced:.3e}); the loop frequencies scale with 1/(nozzle size): check the unit of \
+             jet.nozzle's exit size ({d_m} m){}",
+            if d_m > crate::physics::jet::plausible::LARGEST_USUAL_LENGTH_M {
+                format!(", which reads as millimetres ({} m)", d_m / 1000.0)
+            } else {
+                String::new()
+            }
+        )
+    })
 }

@@ -41,6 +41,9 @@ pub struct StagingQuery {
     config: FitConfig,
     defaults: Defaults,
     started: std::time::Instant,
+    /// The nozzle's size (m) that scales the loop model of an NPR or Mj sweep, for the caution
+    /// when the fit misses by orders of magnitude (a size in the wrong unit).
+    nozzle_size_m: Option<f64>,
 }
 
 /// Records the first five bad points, each at `points[i].<leaf>` (the point itself when the
@@ -77,8 +80,17 @@ impl TryFrom<pb::FitStagesRequest> for StagingQuery {
         config.a_amb = jet.a_amb;
         let labels = label_plan(&mut check, &mut defaults, stage_labels, kind, &jet);
         let physics = jet.physics;
-        let q =
-            kind.map(|kind| StagingQuery { kind, points: pts, physics, labels, config, defaults, started });
+        let nozzle_size_m = jet.spec.as_ref().map(|(_, n, _)| n.shape().reference_length_m());
+        let q = kind.map(|kind| StagingQuery {
+            kind,
+            points: pts,
+            physics,
+            labels,
+            config,
+            defaults,
+            started,
+            nozzle_size_m,
+        });
         check.finish(q)
     }
 }
@@ -341,7 +353,7 @@ fn sweep_jet(
                 Ok(spec) => {
                     a_amb = spec.op.ambient_gas().sound_speed(spec.op.ambient_temperature_k());
                     spec_kept = Some((spec.gas, spec.nozzle, spec.op));
-                    defaults.0.extend(spec.defaults.0.iter().cloned());
+                    defaults.absorb(&spec.defaults);
                     if let (true, Some(kind)) = (needs_jet && check.is_clean(), kind) {
                         let xs: Vec<f64> = pts.iter().map(|p| p.x).collect();
                         let (ph, not_supersonic) =
