@@ -28,12 +28,13 @@
 //! Every error names the file, the byte offset where one applies, and what was expected.
 
 mod data;
+mod encoding;
 mod layout;
 mod scaling;
 #[cfg(test)]
-mod tests;
+pub(crate) mod tests;
 
-pub use layout::Value;
+pub use encoding::Value;
 pub use scaling::Linear;
 
 use layout::Segment;
@@ -306,5 +307,5 @@ impl<R: Read + Seek> TdmsFile<R> {
 
 /// A short name of a TDMS data type code, for messages and listings.
 pub fn type_name(code: u32) -> String {
-    layout::type_name(code)
+    encoding::type_name(code)
 }

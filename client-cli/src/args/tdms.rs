@@ -219,3 +219,146 @@ fn calibrations(
         Ok((None, per))
     }
 }
+
+#[cfg(test)]
+mod tests {
+    //! TDMS files built from the documented layout (see `crate::tdms::tests`) -> `Samples`:
+    //! group and channel choice, rate from `wf_increment`, calibration by unit.
+
+    use super::*;
+    use crate::tdms::tests::{le_f64, num, segment, text, Bytes, META, NEW_LIST, RAW};
+    use clap::Parser;
+    use pb::calibration::Scale;
+
+    #[derive(Debug, Parser)]
+    struct Input {
+        #[command(flatten)]
+        input: InputArgs,
+    }
+
+    fn parse(args: &str) -> InputArgs {
+        Input::try_parse_from(std::iter::once("t").chain(args.split_whitespace())).expect("parses").input
+    }
+
+    /// A file with group "mics" (p_pa: float64 in Pa; v_mic: int16 scaled to V by 0.5 V per
+    /// count; both at 1/wf_increment = 25600 Hz) and group "aux" (two channels of 1 and 2 values).
+    fn rig_file(name: &str) -> std::path::PathBuf {
+        let dt = num(false, &(1.0f64 / 25600.0).to_le_bytes());
+        let mut o = Bytes::new(false);
+        o.object(
+            "/'mics'/'p_pa'",
+            Some((10, 3)),
+            &[("wf_increment", 10, dt.clone()), ("unit_string", 0x20, text(false, "Pa"))],
+        )
+        .object(
+            "/'mics'/'v_mic'",
+            Some((2, 3)),
+            &[
+                ("wf_increment", 10, dt),
+                ("NI_UnitDescription", 0x20, text(false, "V")),
+                ("NI_Scale[0]_Scale_Type", 0x20, text(false, "Linear")),
+                ("NI_Scale[0]_Linear_Slope", 10, num(false, &0.5f64.to_le_bytes())),
+                ("NI_Scale[0]_Linear_Y_Intercept", 10, num(false, &0f64.to_le_bytes())),
+            ],
+        )
+        .object("/'aux'/'short'", Some((10, 1)), &[])
+        .object("/'aux'/'long'", Some((10, 2)), &[]);
+        let mut raw = le_f64(&[1.0, -2.0, 3.0]);
+        raw.extend([2i16, 4, -6].iter().flat_map(|v| v.to_le_bytes()));
+        raw.extend(le_f64(&[7.0, 8.0, 9.0]));
+        let dir = std::env::temp_dir().join(format!("jetloop-tdms-args-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).expect("dir");
+        let path = dir.join(name);
+        std::fs::write(&path, segment(META | NEW_LIST | RAW, 4, &o, &raw)).expect("write");
+        path
+    }
+
+    fn usage(e: Failure) -> String {
+        match e {
+            Failure::Usage(m) => m,
+            other => panic!("{other:?}"),
+        }
+    }
+
+    #[test]
+    fn a_pascal_channel_needs_no_calibration_and_keeps_its_rate_and_name() {
+        let f = rig_file("pa.tdms");
+        let s = parse(&format!("{} --tdms-group mics --tdms-channels p_pa", f.display()))
+            .read()
+            .expect("samples");
+        assert_eq!((s.sample_rate_hz, s.channel_count), (25600.0, 1));
+        assert_eq!(s.channel_names, vec!["p_pa".to_string()]);
+        assert_eq!(s.calibration, Some(pb::Calibration { scale: Some(Scale::InPascals(true)) }));
+        assert_eq!(
+            s.data,
+            Some(pb::samples::Data::Values(pb::SampleValues { values: vec![1.0, -2.0, 3.0] }))
+        );
+    }
+
+    #[test]
+    fn volts_take_the_microphone_flags_while_pascals_keep_one_pa_per_unit() {
+        let f = rig_file("v.tdms");
+        let e = usage(parse(&format!("{} --tdms-group mics", f.display())).read().unwrap_err());
+        assert!(e.contains("no calibration given") && e.contains("'v_mic' (V)"), "{e}");
+        let s = parse(&format!(
+            "{} --tdms-group mics --sensitivity-v-per-pa 0.004 --volts-per-unit 1",
+            f.display()
+        ))
+        .read()
+        .expect("samples");
+        let mic = pb::Calibration {
+            scale: Some(Scale::Microphone(pb::MicrophoneChain {
+                sensitivity_v_per_pa: 0.004,
+                volts_per_unit: 1.0,
+            })),
+        };
+        assert_eq!(s.calibration, None);
+        assert_eq!(
+            s.channel_calibrations,
+            vec![pb::Calibration { scale: Some(Scale::InPascals(true)) }, mic]
+        );
+        // Planar: p_pa, then v_mic scaled to volts (0.5 V per count).
+        let Some(pb::samples::Data::Values(v)) = s.data else { panic!("{:?}", s.data) };
+        assert_eq!(v.values, vec![1.0, -2.0, 3.0, 1.0, 2.0, -3.0]);
+        // --pa-per-unit applies to every channel as given.
+        let s = parse(&format!("{} --tdms-group mics --pa-per-unit 2", f.display())).read().expect("samples");
+        assert_eq!(
+            (s.calibration, s.channel_calibrations.len()),
+            (Some(pb::Calibration { scale: Some(Scale::PascalsPerUnit(2.0)) }), 0)
+        );
+    }
+
+    #[test]
+    fn groups_channels_and_mismatched_lengths_are_named_when_refused() {
+        let f = rig_file("sel.tdms");
+        let e = usage(parse(&format!("{} --in-pascals", f.display())).read().unwrap_err());
+        assert!(e.contains("2 groups ('mics', 'aux'): choose one with --tdms-group"), "{e}");
+        let e = usage(parse(&format!("{} --in-pascals --tdms-group nope", f.display())).read().unwrap_err());
+        assert!(e.contains("no group 'nope'; its groups: 'mics', 'aux'"), "{e}");
+        let e = usage(
+            parse(&format!("{} --in-pascals --tdms-group mics --tdms-channels p_pa,x", f.display()))
+                .read()
+                .unwrap_err(),
+        );
+        assert!(e.contains("group 'mics' has no channel 'x'; its channels: 'p_pa', 'v_mic'"), "{e}");
+        let e = usage(parse(&format!("{} --in-pascals --tdms-group aux", f.display())).read().unwrap_err());
+        assert!(e.contains("'short' 1 samples at no rate, 'long' 2 samples at no rate"), "{e}");
+        // One channel without wf_increment needs --sample-rate-hz.
+        let e = usage(
+            parse(&format!("{} --in-pascals --tdms-group aux --tdms-channels long", f.display()))
+                .read()
+                .unwrap_err(),
+        );
+        assert!(e.contains("no wf_increment property: give --sample-rate-hz"), "{e}");
+        let s = parse(&format!(
+            "{} --in-pascals --tdms-group aux --tdms-channels long --sample-rate-hz 1000",
+            f.display()
+        ))
+        .read()
+        .expect("samples");
+        assert_eq!(
+            (s.sample_rate_hz, s.data),
+            (1000.0, Some(pb::samples::Data::Values(pb::SampleValues { values: vec![8.0, 9.0] })))
+        );
+    }
+}

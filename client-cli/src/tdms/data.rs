@@ -4,8 +4,8 @@
 //! frame by frame in blocks of at most 1 MiB.
 
 use super::at;
-use super::layout::type_name;
-use super::layout::type_size;
+use super::encoding::type_name;
+use super::encoding::type_size;
 use super::layout::Segment;
 use super::Object;
 use super::TdmsError;
