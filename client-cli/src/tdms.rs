@@ -31,8 +31,6 @@ mod data;
 mod encoding;
 mod layout;
 mod scaling;
-#[cfg(test)]
-pub(crate) mod tests;
 
 pub use encoding::Value;
 pub use scaling::Linear;
@@ -309,3 +307,6 @@ impl<R: Read + Seek> TdmsFile<R> {
 pub fn type_name(code: u32) -> String {
     encoding::type_name(code)
 }
+
+#[cfg(test)]
+pub(crate) mod tests;

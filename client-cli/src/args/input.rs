@@ -191,7 +191,14 @@ impl InputArgs {
         let per_channel = self.calibration_file.as_deref().map(read_calibration_file).transpose()?;
         // With a calibration file the common calibration is replaced below, per channel.
         let mut samples = if self.kind() == InputKind::Tdms {
-            crate::args::tdms::read(self, per_channel.is_some())?
+            let given = self.calibration().ok();
+            crate::args::tdms::read(
+                &self.file,
+                &self.tdms,
+                self.sample_rate_hz,
+                given,
+                per_channel.is_some(),
+            )?
         } else {
             let calibration =
                 if per_channel.is_some() { pb::Calibration::default() } else { self.calibration()? };
@@ -224,7 +231,9 @@ impl InputArgs {
             InputKind::Wav => readers::wav(&self.file, &bytes, calibration),
             InputKind::Csv => readers::csv(&self.file, &bytes, self.rate("CSV")?, calibration),
             // `read` opens TDMS files itself (only the channels asked are read, not the bytes).
-            InputKind::Tdms => crate::args::tdms::read(self, false),
+            InputKind::Tdms => {
+                crate::args::tdms::read(&self.file, &self.tdms, self.sample_rate_hz, Some(calibration), false)
+            }
             InputKind::Raw => Ok(readers::raw(
                 bytes,
                 self.rate("raw")?,

@@ -3,7 +3,6 @@
 //! scaled to engineering units by the file's own scaling, and a calibration chosen by unit
 //! (pascals need none; volts take the microphone flags; anything else is warned about).
 
-use crate::args::input::InputArgs;
 use crate::failure::Failure;
 use crate::tdms::ChannelInfo;
 use crate::tdms::TdmsFile;
@@ -11,6 +10,7 @@ use clap::Args;
 use jetloop_proto::pb;
 use std::io::Read;
 use std::io::Seek;
+use std::path::Path;
 
 /// Which part of a TDMS file to read.
 #[derive(Debug, Clone, Default, Args)]
@@ -121,23 +121,30 @@ fn unit_kind(unit: Option<&str>) -> Unit {
     }
 }
 
-/// Reads the TDMS file of `input` into `Samples`: the chosen channels, planar, scaled to their
-/// engineering units; the calibration from the flags, or from the channels' unit (pascals: 1 Pa
-/// per unit) when no flag gives one; `per_channel` when a calibration file replaces it later.
+/// Reads the TDMS file at `file` into `Samples`: the channels `sel` chooses, planar, scaled
+/// to their engineering units, at the channels' own rate unless `sample_rate_hz` (Hz) is
+/// given; the calibration the flags `given`, or from the channels' unit (pascals: 1 Pa per
+/// unit) when they give none; `per_channel` when a calibration file replaces it later.
 ///
 /// # Errors
 /// [`Failure::Usage`] for a file the reader refuses, a group or channel choice that does not
 /// fit, no sample rate, or channels not in pascals without a calibration.
-pub(crate) fn read(input: &InputArgs, per_channel: bool) -> Result<pb::Samples, Failure> {
-    let name = input.file.display().to_string();
+pub(crate) fn read(
+    file: &Path,
+    sel: &TdmsArgs,
+    sample_rate_hz: Option<f64>,
+    given: Option<pb::Calibration>,
+    per_channel: bool,
+) -> Result<pb::Samples, Failure> {
+    let name = file.display().to_string();
     let usage = |e: crate::tdms::TdmsError| Failure::Usage(e.to_string());
-    let mut f = TdmsFile::open(&input.file).map_err(usage)?;
+    let mut f = TdmsFile::open(file).map_err(usage)?;
     for w in f.warnings() {
         eprintln!("warning: {w}");
     }
-    let group = input.tdms.group(&f, &name)?;
-    let channels = input.tdms.channels(&f, &group, &name)?;
-    let rate = match (input.sample_rate_hz, channels[0].sample_rate_hz) {
+    let group = sel.group(&f, &name)?;
+    let channels = sel.channels(&f, &group, &name)?;
+    let rate = match (sample_rate_hz, channels[0].sample_rate_hz) {
         (Some(given), Some(file)) => {
             if (given - file).abs() > 1e-9 * file {
                 eprintln!(
@@ -168,7 +175,7 @@ pub(crate) fn read(input: &InputArgs, per_channel: bool) -> Result<pb::Samples, 
     let (calibration, channel_calibrations) = if per_channel {
         (Some(pb::Calibration::default()), Vec::new())
     } else {
-        calibrations(input, &channels, &units)?
+        calibrations(&name, given, &channels, &units)?
     };
     let values = f.read_planar(&channels).map_err(usage)?;
     Ok(pb::Samples {
@@ -185,13 +192,13 @@ pub(crate) fn read(input: &InputArgs, per_channel: bool) -> Result<pb::Samples, 
 /// The calibration of the channels: the flags' (with the microphone flags, channels in pascals
 /// keep 1 Pa per unit), else 1 Pa per unit when every channel is in pascals.
 fn calibrations(
-    input: &InputArgs,
+    name: &str,
+    given: Option<pb::Calibration>,
     channels: &[ChannelInfo],
     units: &[Unit],
 ) -> Result<(Option<pb::Calibration>, Vec<pb::Calibration>), Failure> {
     use pb::calibration::Scale;
     let in_pascals = pb::Calibration { scale: Some(Scale::InPascals(true)) };
-    let given = input.calibration().ok();
     let per: Vec<pb::Calibration> = match &given {
         Some(c @ pb::Calibration { scale: Some(Scale::Microphone(_)) }) => {
             units.iter().map(|u| if *u == Unit::Pascal { in_pascals } else { *c }).collect()
@@ -206,9 +213,8 @@ fn calibrations(
                 .map(|(c, _)| format!("'{}' ({})", c.name, c.unit.as_deref().unwrap_or("no unit")))
                 .collect();
             return Err(Failure::Usage(format!(
-                "{}: no calibration given and channel(s) {} are not in Pa: give --sensitivity-v-per-pa and \
+                "{name}: no calibration given and channel(s) {} are not in Pa: give --sensitivity-v-per-pa and \
                  --volts-per-unit for volts, --pa-per-unit, or --calibration-file",
-                input.file.display(),
                 not_pa.join(", ")
             )));
         }
@@ -226,6 +232,7 @@ mod tests {
     //! group and channel choice, rate from `wf_increment`, calibration by unit.
 
     use super::*;
+    use crate::args::input::InputArgs;
     use crate::tdms::tests::{le_f64, num, segment, text, Bytes, META, NEW_LIST, RAW};
     use clap::Parser;
     use pb::calibration::Scale;
