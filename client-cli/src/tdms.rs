@@ -104,7 +104,8 @@ pub struct ChannelInfo {
     pub group: String,
     /// Channel name.
     pub name: String,
-    /// TDMS data type code of its raw data (the last segment's; 0 when it has none).
+    /// TDMS data type code of its raw data (of the last segment where it has data; 0 when it
+    /// has none).
     pub data_type: u32,
     /// Number of samples in the file.
     pub length: u64,
@@ -132,6 +133,8 @@ pub struct TdmsFile<R> {
     segments: Vec<Segment>,
     /// Samples per object, over all segments.
     lengths: Vec<u64>,
+    /// Data type code per object (of the last segment where it has data; 0 if none).
+    types: Vec<u32>,
     /// TDMS version of the first segment (4712 or 4713).
     version: u32,
     /// Things read but worth telling (a segment cut short, a partial last chunk).
@@ -165,9 +168,11 @@ impl<R: Read + Seek> TdmsFile<R> {
         };
         let scan = layout::scan(&mut src).map_err(named)?;
         let mut lengths = vec![0u64; scan.objects.len()];
+        let mut types = vec![0u32; scan.objects.len()];
         for s in &scan.segments {
             for (k, o) in s.data_objects().enumerate() {
-                lengths[o.object] = lengths[o.object].saturating_add(s.values_of(k));
+                lengths[o.object] = lengths[o.object].saturating_add(s.values_of(k, o));
+                types[o.object] = Segment::index(o).data_type;
             }
         }
         Ok(Self {
@@ -176,6 +181,7 @@ impl<R: Read + Seek> TdmsFile<R> {
             objects: scan.objects,
             segments: scan.segments,
             lengths,
+            types,
             version: scan.version,
             warnings: scan.warnings,
         })
@@ -226,16 +232,10 @@ impl<R: Read + Seek> TdmsFile<R> {
             .filter(|(_, o)| o.group.as_deref() == Some(group))
             .filter_map(|(i, o)| {
                 let name = o.channel.clone()?;
-                let data_type = self
-                    .segments
-                    .iter()
-                    .rev()
-                    .find_map(|s| s.objects.iter().find(|so| so.object == i).and_then(|so| so.index))
-                    .map_or(0, |ix| ix.data_type);
                 Some(ChannelInfo {
                     group: group.to_string(),
                     name,
-                    data_type,
+                    data_type: self.types[i],
                     length: self.lengths[i],
                     sample_rate_hz: scaling::sample_rate_hz(o).ok().flatten(),
                     unit: scaling::unit(o),

@@ -6,9 +6,11 @@
 use super::at;
 use super::encoding::type_name;
 use super::encoding::type_size;
+use super::layout::SegObject;
 use super::layout::Segment;
 use super::Object;
 use super::TdmsError;
+use std::collections::HashMap;
 use std::io::Read;
 use std::io::Seek;
 use std::io::SeekFrom;
@@ -27,7 +29,29 @@ pub(crate) fn read<R: Read + Seek>(
 ) -> Result<Vec<f64>, TdmsError> {
     let total = lengths.iter().try_fold(0usize, |a, &n| a.checked_add(usize::try_from(n).ok()?));
     let total = total.ok_or_else(|| super::whole("more samples than this machine can address"))?;
-    let mut out = vec![0f64; total];
+    // Every segment's data type of the channels asked is checked before memory is taken.
+    let asked: std::collections::HashSet<usize> = wanted.iter().copied().collect();
+    for seg in segments {
+        for o in seg.data_objects().filter(|o| asked.contains(&o.object)) {
+            let code = Segment::index(o).data_type;
+            if !decodable(code) {
+                return Err(at(
+                    seg.start,
+                    format!(
+                        "channel {} holds {} data in this segment: expected int8..int64, uint8..uint64, \
+                         float32 or float64",
+                        objects[o.object].path,
+                        type_name(code)
+                    ),
+                ));
+            }
+        }
+    }
+    let mut out = Vec::new();
+    out.try_reserve_exact(total).map_err(|_| {
+        super::whole(format!("{total} samples ({} MiB) do not fit in memory", total / (1 << 17)))
+    })?;
+    out.resize(total, 0f64);
     // Where the next value of each wanted channel goes.
     let mut next: Vec<usize> = lengths
         .iter()
@@ -41,28 +65,18 @@ pub(crate) fn read<R: Read + Seek>(
     let mut buf = Vec::new();
     let start = src.stream_position().map_err(|e| super::whole(format!("cannot read it: {e}")))?;
     let mut src = Walker { src, pos: start };
+    // (position among the data objects, which wanted channel) for the wanted ones present,
+    // worked out again only when the object list changes.
+    let mut here: Vec<(usize, usize)> = Vec::new();
+    let mut list: Option<&std::rc::Rc<Vec<SegObject>>> = None;
     for seg in segments {
-        // (position among the data objects, which wanted channel) for the wanted ones present.
         let data: Vec<_> = seg.data_objects().collect();
-        let mut here: Vec<(usize, usize)> = Vec::new();
-        for (w, &obj) in wanted.iter().enumerate() {
-            if let Some(k) = data.iter().position(|o| o.object == obj) {
-                let ix = Segment::index(data[k]);
-                if !decodable(ix.data_type) {
-                    return Err(at(
-                        seg.start,
-                        format!(
-                            "channel {} holds {} data in this segment: expected int8..int64, uint8..uint64, \
-                             float32 or float64",
-                            objects[obj].path,
-                            type_name(ix.data_type)
-                        ),
-                    ));
-                }
-                here.push((k, w));
-            }
+        if !list.is_some_and(|l| std::rc::Rc::ptr_eq(l, &seg.objects)) {
+            let at_k: HashMap<usize, usize> = data.iter().enumerate().map(|(k, o)| (o.object, k)).collect();
+            here = wanted.iter().enumerate().filter_map(|(w, obj)| Some((*at_k.get(obj)?, w))).collect();
+            here.sort_unstable(); // file order, so that reads move forward
+            list = Some(&seg.objects);
         }
-        here.sort_unstable(); // file order, so that reads move forward
         if here.is_empty() || seg.chunk_bytes == 0 {
             continue;
         }
@@ -148,7 +162,7 @@ fn decodable(code: u32) -> bool {
 fn contiguous<R: Read + Seek>(
     src: &mut Walker<R>,
     seg: &Segment,
-    data: &[&super::layout::SegObject],
+    data: &[&SegObject],
     counts: &[u64],
     chunk_start: u64,
     here: &[(usize, usize)],
@@ -184,7 +198,7 @@ fn contiguous<R: Read + Seek>(
 fn interleaved<R: Read + Seek>(
     src: &mut Walker<R>,
     seg: &Segment,
-    data: &[&super::layout::SegObject],
+    data: &[&SegObject],
     counts: &[u64],
     chunk_start: u64,
     here: &[(usize, usize)],

@@ -93,9 +93,9 @@ impl Segment {
         o.index.unwrap_or(Index { data_type: 0, values: 0, bytes: 0 })
     }
 
-    /// Values of the `k`-th data object in the whole segment.
-    pub(crate) fn values_of(&self, k: usize) -> u64 {
-        let per_chunk = self.data_objects().nth(k).map_or(0, |o| Self::index(o).values);
+    /// Values in the whole segment of `o`, the `k`-th data object.
+    pub(crate) fn values_of(&self, k: usize, o: &SegObject) -> u64 {
+        let per_chunk = Self::index(o).values;
         let last = self.last.as_ref().and_then(|l| l.get(k)).copied().unwrap_or(0);
         per_chunk.saturating_mul(self.chunks).saturating_add(last)
     }
