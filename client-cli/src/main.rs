@@ -15,6 +15,7 @@ mod csv_input;
 mod failure;
 mod readers;
 mod render;
+mod tdms;
 
 use clap::{Parser, Subcommand};
 use commands::Run;
@@ -90,7 +91,7 @@ enum Command {
     /// through each, and the dispersion curves.
     #[command(after_help = "Example: jetloop modes --mj 1.3 --t0-over-ta 1 --plot modes.svg")]
     Modes(commands::modes::ModesCmd),
-    /// Tones, levels, harmonics (and bands) of a recording: WAV, CSV or raw.
+    /// Tones, levels, harmonics (and bands) of a recording: WAV, CSV, TDMS or raw.
     #[command(after_help = "Example: jetloop tones demo.wav --pa-per-unit 2000 --bands --plot psd.png")]
     Tones(commands::tones::TonesCmd),
     /// Live tone tracking: stream a recording (at its pace with --realtime) and see tones keep
@@ -106,6 +107,11 @@ enum Command {
         after_help = "Example: jetloop ramp ramp.wav --pa-per-unit 2000 --control-channel 1 --control gauge-pa --control-per-unit 1000000"
     )]
     Ramp(commands::ramp::RampCmd),
+    /// What a TDMS file holds: groups, channels, lengths, sample rates, units and scaling (no
+    /// server needed); with --values N, the chosen channels' first samples and RMS as the
+    /// analysis commands read them.
+    #[command(after_help = "Example: jetloop tdms-info run42.tdms --tdms-group mics --values 5")]
+    TdmsInfo(commands::tdms_info::TdmsInfoCmd),
     /// Write a demo recording of an imagined jet rig (WAV, CSV or raw int16; ring of
     /// microphones, stage jump, NPR ramp with its pressure channel).
     #[command(after_help = "Example: jetloop synth ring.wav --ring 8 --pattern spinning --order 1")]
@@ -180,6 +186,7 @@ async fn run_command(command: Command, ctx: &Ctx) -> Result<Report, Failure> {
         Command::Tones(a) => a.run(ctx).await,
         Command::Track(a) => a.run(ctx).await,
         Command::Bands(a) => a.run(ctx).await,
+        Command::TdmsInfo(a) => a.run(ctx).await,
         Command::Synth(a) => a.run(ctx).await,
         Command::Ramp(a) => a.run(ctx).await,
         Command::Fit(a) => a.run(ctx).await,

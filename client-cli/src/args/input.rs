@@ -20,6 +20,9 @@ pub enum InputKind {
     Csv,
     /// Raw little-endian samples (give --raw-format, --channels, --layout).
     Raw,
+    /// NI TDMS: the channels of one group (see --tdms-group, --tdms-channels), with their own
+    /// sample rate and scaling.
+    Tdms,
 }
 
 /// Raw sample encodings.
@@ -47,7 +50,7 @@ pub enum LayoutArg {
 /// Where the samples come from and how to turn them into pascals.
 #[derive(Debug, Args)]
 pub struct InputArgs {
-    /// Recording to analyse (.wav, .csv, or raw binary).
+    /// Recording to analyse (.wav, .csv, .tdms, or raw binary).
     pub file: PathBuf,
     /// File kind (default: from the extension; anything else is raw).
     #[arg(long, value_enum)]
@@ -102,6 +105,9 @@ pub struct InputArgs {
     /// Replaces --pa-per-unit, --sensitivity-v-per-pa and --in-pascals.
     #[arg(long, conflicts_with_all = ["sensitivity_v_per_pa", "in_pascals"])]
     pub calibration_file: Option<PathBuf>,
+    /// Group and channels of a TDMS file.
+    #[command(flatten)]
+    pub tdms: crate::args::tdms::TdmsArgs,
 }
 
 /// `--delimiter`: `,` or comma, `;` or semicolon, `tab` (or a tab character).
@@ -171,13 +177,14 @@ pub(crate) fn read_calibration_file(path: &std::path::Path) -> Result<Vec<Channe
 }
 
 impl InputArgs {
-    /// The file kind: --input-kind, else from the extension (.wav; .csv or .txt; anything
-    /// else is raw).
+    /// The file kind: --input-kind, else from the extension (.wav; .csv or .txt; .tdms;
+    /// anything else is raw).
     pub(crate) fn kind(&self) -> InputKind {
         self.input_kind.unwrap_or_else(|| {
             match self.file.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase).as_deref() {
                 Some("wav") => InputKind::Wav,
                 Some("csv") | Some("txt") => InputKind::Csv,
+                Some("tdms") => InputKind::Tdms,
                 _ => InputKind::Raw,
             }
         })
@@ -214,10 +221,20 @@ impl InputArgs {
     pub fn read(&self) -> Result<pb::Samples, Failure> {
         let per_channel = self.calibration_file.as_deref().map(read_calibration_file).transpose()?;
         // With a calibration file the common calibration is replaced below, per channel.
-        let calibration =
-            if per_channel.is_some() { pb::Calibration::default() } else { self.calibration()? };
-        let bytes = read_with_progress(&self.file)?;
-        let mut samples = self.decode(bytes, calibration)?;
+        let mut samples = if self.kind() == InputKind::Tdms {
+            let given = self.calibration().ok();
+            crate::args::tdms::read(
+                &self.file,
+                &self.tdms,
+                self.sample_rate_hz,
+                given,
+                per_channel.is_some(),
+            )?
+        } else {
+            let calibration =
+                if per_channel.is_some() { pb::Calibration::default() } else { self.calibration()? };
+            self.decode(read_with_progress(&self.file)?, calibration)?
+        };
         if let (Some(per_channel), Some(path)) = (per_channel, &self.calibration_file) {
             let channels = samples.channel_count.max(1) as usize;
             if per_channel.len() != channels {
@@ -247,6 +264,10 @@ impl InputArgs {
                 let read = readers::csv(&self.file, &bytes, &self.csv_options(), calibration)?;
                 eprintln!("{}", read.summary(&self.file));
                 Ok(read.samples)
+            }
+            // `read` opens TDMS files itself (only the channels asked are read, not the bytes).
+            InputKind::Tdms => {
+                crate::args::tdms::read(&self.file, &self.tdms, self.sample_rate_hz, Some(calibration), false)
             }
             InputKind::Raw => Ok(readers::raw(
                 bytes,

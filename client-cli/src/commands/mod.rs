@@ -20,6 +20,7 @@ pub mod shock;
 pub mod shock_noise;
 pub mod sweep;
 pub mod synth;
+pub mod tdms_info;
 pub mod tones;
 pub mod track;
 
