@@ -14,6 +14,7 @@ mod connect;
 mod failure;
 mod readers;
 mod render;
+mod upload;
 
 use clap::{Parser, Subcommand};
 use commands::Run;
@@ -96,6 +97,10 @@ enum Command {
     /// their track ids and stage jumps reported as they happen.
     #[command(after_help = "Example: jetloop track jump.wav --pa-per-unit 2000 --realtime")]
     Track(commands::track::TrackCmd),
+    /// What jetloop reads from a recording, without a server: container, sample encoding,
+    /// rate, channels, frames, warnings, and each channel's range, mean, RMS and first samples.
+    #[command(after_help = "Example: jetloop inspect demo.wav --first 4")]
+    Inspect(commands::inspect::InspectCmd),
     /// One-third-octave band levels, overall and A-weighted levels of a recording.
     #[command(after_help = "Example: jetloop bands mics.csv --sample-rate-hz 51200 --in-pascals")]
     Bands(commands::bands::BandsCmd),
@@ -179,6 +184,7 @@ async fn run_command(command: Command, ctx: &Ctx) -> Result<Report, Failure> {
         Command::Tones(a) => a.run(ctx).await,
         Command::Track(a) => a.run(ctx).await,
         Command::Bands(a) => a.run(ctx).await,
+        Command::Inspect(a) => a.run(ctx).await,
         Command::Synth(a) => a.run(ctx).await,
         Command::Ramp(a) => a.run(ctx).await,
         Command::Fit(a) => a.run(ctx).await,

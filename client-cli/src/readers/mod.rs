@@ -10,20 +10,19 @@ use std::io::Read;
 use std::path::Path;
 
 mod csv;
-mod raw;
+pub(crate) mod disk;
+pub(crate) mod raw;
 mod tables;
-mod wav;
+pub(crate) mod wav;
 
 pub(crate) use csv::csv;
 // The paths of the single-file reader module stay valid; `csv_rows` and `direction` have no
 // caller outside their own files today.
 #[allow(unused_imports)]
 pub use csv::csv_rows;
-pub(crate) use raw::raw;
 #[allow(unused_imports)]
 pub(crate) use tables::direction;
 pub(crate) use tables::{read_curve, read_points};
-pub(crate) use wav::wav;
 
 /// The bytes of the file at `path`, with a progress bar on a terminal.
 ///
