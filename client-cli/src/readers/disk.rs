@@ -66,6 +66,12 @@ impl Encoding {
         }
     }
 
+    /// True when the file's bytes are already the wire format (16- and 32-bit integers with
+    /// no unused bits, floats).
+    pub(crate) fn is_wire(self) -> bool {
+        matches!(self, Encoding::Pcm { bytes: 2 | 4, shift: 0 } | Encoding::Float { .. })
+    }
+
     /// Appends the samples of `src` (whole samples of this encoding) to `out` in the wire
     /// format, little-endian.
     pub(crate) fn convert(self, src: &[u8], out: &mut Vec<u8>) {
@@ -258,6 +264,13 @@ impl BlockReader {
                     out.extend_from_slice(&run[k * ww..(k + 1) * ww]);
                 }
             }
+        } else if self.rec.encoding.is_wire() {
+            // Stored as sent: read straight into the block, no copy.
+            let at = self.rec.data_offset + self.next_frame * w * ch;
+            std::mem::swap(&mut self.buf, &mut out);
+            let read = self.read_at(at, (n * w * ch) as usize);
+            std::mem::swap(&mut self.buf, &mut out);
+            read?;
         } else {
             let at = self.rec.data_offset + self.next_frame * w * ch;
             self.read_at(at, (n * w * ch) as usize)?;
