@@ -16,6 +16,7 @@ mod failure;
 mod readers;
 mod render;
 mod tdms;
+mod upload;
 
 use clap::{Parser, Subcommand};
 use commands::Run;
@@ -98,6 +99,10 @@ enum Command {
     /// their track ids and stage jumps reported as they happen.
     #[command(after_help = "Example: jetloop track jump.wav --pa-per-unit 2000 --realtime")]
     Track(commands::track::TrackCmd),
+    /// What jetloop reads from a recording, without a server: container, sample encoding,
+    /// rate, channels, frames, warnings, and each channel's range, mean, RMS and first samples.
+    #[command(after_help = "Example: jetloop inspect demo.wav --first 4")]
+    Inspect(commands::inspect::InspectCmd),
     /// One-third-octave band levels, overall and A-weighted levels of a recording.
     #[command(after_help = "Example: jetloop bands mics.csv --sample-rate-hz 51200 --in-pascals")]
     Bands(commands::bands::BandsCmd),
@@ -187,6 +192,7 @@ async fn run_command(command: Command, ctx: &Ctx) -> Result<Report, Failure> {
         Command::Track(a) => a.run(ctx).await,
         Command::Bands(a) => a.run(ctx).await,
         Command::TdmsInfo(a) => a.run(ctx).await,
+        Command::Inspect(a) => a.run(ctx).await,
         Command::Synth(a) => a.run(ctx).await,
         Command::Ramp(a) => a.run(ctx).await,
         Command::Fit(a) => a.run(ctx).await,

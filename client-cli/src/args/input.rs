@@ -5,6 +5,8 @@ use crate::csv_input::CsvOptions;
 use crate::csv_input::TimeColumn;
 use crate::failure::Failure;
 use crate::readers;
+use crate::readers::disk::DiskRecording;
+use crate::readers::disk::Encoding;
 use crate::readers::read_with_progress;
 use clap::Args;
 use clap::ValueEnum;
@@ -14,7 +16,8 @@ use std::path::PathBuf;
 /// File kinds.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
 pub enum InputKind {
-    /// RIFF WAVE (16/24/32-bit integer or 32-bit float).
+    /// WAV: RIFF, RF64 or BW64; PCM 8 (unsigned), 16, 24, 32-bit or IEEE float 32/64-bit,
+    /// plain or WAVE_FORMAT_EXTENSIBLE headers.
     Wav,
     /// Text, one column per channel, optional header row of names, optional time column.
     Csv,
@@ -55,8 +58,9 @@ pub struct InputArgs {
     /// File kind (default: from the extension; anything else is raw).
     #[arg(long, value_enum)]
     pub input_kind: Option<InputKind>,
-    /// Sample rate in Hz (required for raw, and for CSV without a time column; WAV files
-    /// carry their own). With a CSV time column it must agree with the rate the column gives.
+    /// Sample rate in Hz (required for raw, and for CSV without a time column; WAV and TDMS
+    /// files carry their own, and a value given for a WAV file must match its header). With a
+    /// CSV time column it must agree with the rate the column gives.
     #[arg(long)]
     pub sample_rate_hz: Option<f64>,
     /// CSV column separator: `,` (comma), `;` (semicolon) or `tab`. Default: detected from the
@@ -77,15 +81,15 @@ pub struct InputArgs {
     /// CSV: no time column; every column is a channel (give --sample-rate-hz).
     #[arg(long)]
     pub no_time_column: bool,
-    /// Raw sample encoding.
-    #[arg(long, value_enum, default_value = "f32")]
-    pub raw_format: RawFormat,
-    /// Channels in a raw file.
-    #[arg(long, default_value_t = 1)]
-    pub channels: u32,
-    /// Channel layout of a raw file.
-    #[arg(long, value_enum, default_value = "interleaved")]
-    pub layout: LayoutArg,
+    /// Raw sample encoding (default f32; given for a WAV file, it must match the header).
+    #[arg(long, value_enum)]
+    pub raw_format: Option<RawFormat>,
+    /// Channels in a raw file (default 1; given for a WAV file, it must match the header).
+    #[arg(long)]
+    pub channels: Option<u32>,
+    /// Channel layout of a raw file (default interleaved; WAV files are interleaved).
+    #[arg(long, value_enum)]
+    pub layout: Option<LayoutArg>,
     /// Pascals per sample unit (WAV: per count for integer files, per full-scale unit for
     /// float files). One calibration is required: this, the microphone chain, or --in-pascals.
     #[arg(long, conflicts_with_all = ["sensitivity_v_per_pa", "in_pascals", "calibration_file"])]
@@ -117,6 +121,57 @@ fn parse_delimiter(text: &str) -> Result<u8, String> {
         ";" | "semicolon" => Ok(b';'),
         "tab" | "\t" | "\\t" => Ok(b'\t'),
         other => Err(format!("'{other}' is not a CSV delimiter: give ',', ';' or tab")),
+    }
+}
+
+/// The file encoding a --raw-format names.
+fn raw_encoding(f: RawFormat) -> Encoding {
+    match f {
+        RawFormat::F32 => Encoding::Float { bytes: 4 },
+        RawFormat::F64 => Encoding::Float { bytes: 8 },
+        RawFormat::I16 => Encoding::Pcm { bytes: 2, shift: 0 },
+        RawFormat::I32 => Encoding::Pcm { bytes: 4, shift: 0 },
+    }
+}
+
+/// A recording opened by [`InputArgs::open`]: the `Samples` of a request with its rate,
+/// channels, calibration(s) and names, and where the samples are: on disk (WAV, raw; then
+/// `samples` carries no sample bytes yet) or already in `samples` (CSV).
+#[derive(Debug)]
+pub(crate) struct Recording {
+    /// The request's samples: complete for CSV, without sample bytes for a file on disk.
+    pub samples: pb::Samples,
+    /// The file's samples on disk, for WAV and raw files.
+    pub disk: Option<DiskRecording>,
+}
+
+impl Recording {
+    /// Samples of all channels together.
+    pub(crate) fn sample_count(&self) -> u64 {
+        match (&self.disk, &self.samples.data) {
+            (Some(d), _) => d.sample_count(),
+            (None, Some(pb::samples::Data::Values(v))) => v.values.len() as u64,
+            (None, Some(pb::samples::Data::Raw(r))) => {
+                let w = readers::disk::wire_width(r.format()) as u64;
+                r.data.len() as u64 / w.max(1)
+            }
+            (None, None) => 0,
+        }
+    }
+
+    /// The whole recording as one `Samples` message (a disk file is read here).
+    ///
+    /// # Errors
+    /// [`Failure::Usage`] when the file cannot be read.
+    pub(crate) fn into_samples(self) -> Result<pb::Samples, Failure> {
+        let mut samples = self.samples;
+        if let Some(d) = &self.disk {
+            samples.data = Some(pb::samples::Data::Raw(pb::RawSamples {
+                data: d.read_all()?,
+                format: d.encoding.wire() as i32,
+            }));
+        }
+        Ok(samples)
     }
 }
 
@@ -217,25 +272,45 @@ impl InputArgs {
     ///
     /// # Errors
     /// [`Failure::Usage`] without a calibration, for a file that cannot be read, CSV or raw
-    /// without --sample-rate-hz, or content its reader refuses.
+    /// without --sample-rate-hz, a flag the WAV header contradicts, or content its reader
+    /// refuses.
     pub fn read(&self) -> Result<pb::Samples, Failure> {
+        self.open()?.into_samples()
+    }
+
+    /// Opens the recording: a WAV or raw file's header and length only (its samples stay on
+    /// disk until read or streamed), a CSV file whole; with the calibration(s) and channel
+    /// names the flags give. Warnings about the file (cut short, placeholder sizes) are
+    /// printed on standard error.
+    ///
+    /// # Errors
+    /// As [`InputArgs::read`], before any sample is read.
+    pub(crate) fn open(&self) -> Result<Recording, Failure> {
         let per_channel = self.calibration_file.as_deref().map(read_calibration_file).transpose()?;
         // With a calibration file the common calibration is replaced below, per channel.
-        let mut samples = if self.kind() == InputKind::Tdms {
+        let mut rec = if self.kind() == InputKind::Tdms {
+            // TDMS files carry units per channel: the calibration flags apply to the channels
+            // whose unit needs them (see args/tdms.rs).
             let given = self.calibration().ok();
-            crate::args::tdms::read(
+            let samples = crate::args::tdms::read(
                 &self.file,
                 &self.tdms,
                 self.sample_rate_hz,
                 given,
                 per_channel.is_some(),
-            )?
+            )?;
+            Recording { samples, disk: None }
         } else {
             let calibration =
                 if per_channel.is_some() { pb::Calibration::default() } else { self.calibration()? };
-            self.decode(read_with_progress(&self.file)?, calibration)?
+            let rec = self.open_uncalibrated(calibration)?;
+            for w in rec.disk.iter().flat_map(|d| &d.warnings) {
+                eprintln!("warning: {w}");
+            }
+            rec
         };
         if let (Some(per_channel), Some(path)) = (per_channel, &self.calibration_file) {
+            let samples = &mut rec.samples;
             let channels = samples.channel_count.max(1) as usize;
             if per_channel.len() != channels {
                 return Err(Failure::Usage(format!(
@@ -253,31 +328,76 @@ impl InputArgs {
                 samples.channel_names = names;
             }
         }
-        Ok(samples)
+        Ok(rec)
     }
 
-    /// Decodes the file's bytes by its kind, with `calibration` for every channel.
-    fn decode(&self, bytes: Vec<u8>, calibration: pb::Calibration) -> Result<pb::Samples, Failure> {
-        match self.kind() {
-            InputKind::Wav => readers::wav(&self.file, &bytes, calibration),
+    /// True when any calibration flag or file is given.
+    pub(crate) fn calibrated(&self) -> bool {
+        self.pa_per_unit.is_some()
+            || self.sensitivity_v_per_pa.is_some()
+            || self.in_pascals
+            || self.calibration_file.is_some()
+    }
+
+    /// Opens the file by its kind with `calibration` for every channel (see
+    /// [`InputArgs::open`]), without printing its warnings.
+    pub(crate) fn open_uncalibrated(&self, calibration: pb::Calibration) -> Result<Recording, Failure> {
+        let disk = match self.kind() {
             InputKind::Csv => {
+                let bytes = read_with_progress(&self.file)?;
                 let read = readers::csv(&self.file, &bytes, &self.csv_options(), calibration)?;
                 eprintln!("{}", read.summary(&self.file));
-                Ok(read.samples)
+                return Ok(Recording { samples: read.samples, disk: None });
             }
-            // `read` opens TDMS files itself (only the channels asked are read, not the bytes).
+            // TDMS files are opened by args/tdms.rs (only the channels asked are read).
             InputKind::Tdms => {
-                crate::args::tdms::read(&self.file, &self.tdms, self.sample_rate_hz, Some(calibration), false)
+                let samples = crate::args::tdms::read(
+                    &self.file,
+                    &self.tdms,
+                    self.sample_rate_hz,
+                    Some(calibration),
+                    false,
+                )?;
+                return Ok(Recording { samples, disk: None });
             }
-            InputKind::Raw => Ok(readers::raw(
-                bytes,
+            InputKind::Wav => {
+                let d = readers::wav::open(&self.file)?;
+                self.agree_with_header(&d)?;
+                d
+            }
+            InputKind::Raw => readers::raw::open(
+                &self.file,
                 self.rate("raw")?,
                 self.sample_format(),
-                self.channels,
+                self.channels.unwrap_or(1),
                 self.channel_layout(),
-                calibration,
-            )),
+            )?,
+        };
+        Ok(Recording { samples: disk.samples_with(bytes::Bytes::new(), calibration), disk: Some(disk) })
+    }
+
+    /// Refuses a flag that contradicts the WAV header `d`, naming both values.
+    fn agree_with_header(&self, d: &DiskRecording) -> Result<(), Failure> {
+        let refuse = |flag: String, header: String| {
+            Err(Failure::Usage(format!(
+                "{}: {flag} contradicts the WAV header, which gives {header}: leave the flag out or correct it",
+                self.file.display()
+            )))
+        };
+        if let Some(fs) = self.sample_rate_hz.filter(|fs| *fs != d.sample_rate_hz) {
+            return refuse(format!("--sample-rate-hz {fs}"), format!("{} Hz", d.sample_rate_hz));
         }
+        if let Some(c) = self.channels.filter(|c| *c != d.channels) {
+            return refuse(format!("--channels {c}"), format!("{} channels", d.channels));
+        }
+        if let Some(f) = self.raw_format.filter(|f| raw_encoding(*f) != d.encoding) {
+            let name = f.to_possible_value().map(|v| v.get_name().to_string()).unwrap_or_default();
+            return refuse(format!("--raw-format {name}"), d.encoding.describe());
+        }
+        if self.layout == Some(LayoutArg::Planar) {
+            return refuse("--layout planar".into(), "interleaved frames (as every WAV file)".into());
+        }
+        Ok(())
     }
 
     /// How to read a CSV recording: the CSV flags and --sample-rate-hz.
@@ -302,7 +422,7 @@ impl InputArgs {
 
     /// The encoding of a raw file.
     pub(crate) fn sample_format(&self) -> pb::SampleFormat {
-        match self.raw_format {
+        match self.raw_format.unwrap_or(RawFormat::F32) {
             RawFormat::F32 => pb::SampleFormat::F32Le,
             RawFormat::F64 => pb::SampleFormat::F64Le,
             RawFormat::I16 => pb::SampleFormat::I16Le,
@@ -312,7 +432,7 @@ impl InputArgs {
 
     /// The channel layout of a raw file.
     pub(crate) fn channel_layout(&self) -> pb::ChannelLayout {
-        match self.layout {
+        match self.layout.unwrap_or(LayoutArg::Interleaved) {
             LayoutArg::Interleaved => pb::ChannelLayout::Interleaved,
             LayoutArg::Planar => pb::ChannelLayout::Planar,
         }
@@ -388,7 +508,7 @@ mod tests {
     }
 
     #[test]
-    fn a_raw_file_keeps_its_encoding_channels_and_layout() {
+    fn a_raw_planar_file_keeps_its_encoding_and_channels_and_is_sent_interleaved() {
         let dir = std::env::temp_dir().join(format!("jetloop-raw-{}", std::process::id()));
         std::fs::create_dir_all(&dir).expect("dir");
         let f = dir.join("daq.bin");
@@ -399,12 +519,49 @@ mod tests {
         );
         let s = parse(&args).read().expect("samples");
         assert_eq!((s.sample_rate_hz, s.channel_count), (102_400.0, 2));
-        assert_eq!(s.layout, pb::ChannelLayout::Planar as i32);
+        // Read channel by channel from the file, sent frame by frame: [1 2 | 3 4] -> 1 3 2 4.
+        assert_eq!(s.layout, pb::ChannelLayout::Interleaved as i32);
         assert_eq!(s.calibration.and_then(|c| c.scale), Some(pb::calibration::Scale::PascalsPerUnit(0.0847)));
         let Some(pb::samples::Data::Raw(r)) = s.data else { panic!("{:?}", s.data) };
-        assert_eq!((r.format, r.data.len()), (pb::SampleFormat::I16Le as i32, 8));
+        assert_eq!(r.format, pb::SampleFormat::I16Le as i32);
+        assert_eq!(r.data.as_ref(), [1u8, 0, 3, 0, 2, 0, 4, 0]);
         let e = parse(&format!("{} --in-pascals", f.display())).read().unwrap_err();
         assert!(matches!(e, Failure::Usage(ref m) if m == "raw files need --sample-rate-hz"), "{e:?}");
+        let _ = std::fs::remove_dir_all(dir);
+    }
+
+    #[test]
+    fn flags_that_contradict_a_wav_header_are_refused_naming_both_values() {
+        let dir = std::env::temp_dir().join(format!("jetloop-wavflags-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).expect("dir");
+        let f = dir.join("mono.wav");
+        // Written by hound (outside this reader): 16-bit mono at 48 kHz.
+        let spec = hound::WavSpec {
+            channels: 1,
+            sample_rate: 48_000,
+            bits_per_sample: 16,
+            sample_format: hound::SampleFormat::Int,
+        };
+        let mut w = hound::WavWriter::create(&f, spec).expect("writer");
+        w.write_sample(7i16).expect("sample");
+        w.finalize().expect("finalize");
+        let run = |flags: &str| parse(&format!("{} --in-pascals {flags}", f.display())).read();
+        assert!(
+            run("--sample-rate-hz 48000 --channels 1 --raw-format i16").is_ok(),
+            "agreeing flags are fine"
+        );
+        for (flags, both) in [
+            ("--sample-rate-hz 51200", ["--sample-rate-hz 51200", "48000 Hz"]),
+            ("--channels 2", ["--channels 2", "1 channels"]),
+            ("--raw-format f32", ["--raw-format f32", "PCM 16-bit"]),
+            ("--layout planar", ["--layout planar", "interleaved"]),
+        ] {
+            let e = run(flags).unwrap_err();
+            assert!(
+                matches!(e, Failure::Usage(ref m) if both.iter().all(|b| m.contains(b))),
+                "{flags}: {e:?}"
+            );
+        }
         let _ = std::fs::remove_dir_all(dir);
     }
 

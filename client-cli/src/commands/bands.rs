@@ -55,7 +55,10 @@ impl BandsCmd {
 impl Run for BandsCmd {
     async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
         let (ch, a) = (ctx.channel().await?, self);
-        let samples = a.input.read()?;
+        let rec = a.input.open()?;
+        let limit = crate::upload::max_request_samples(ch.clone()).await;
+        crate::upload::fits_one_request(&rec, &a.input.file, limit, "BandLevels")?;
+        let samples = rec.into_samples()?;
         let request = a.request(samples)?;
         let s = spinner("uploading and analysing on the server");
         let r = SpectrumServiceClient::new(ch)

@@ -23,6 +23,12 @@ impl Run for InfoCmd {
         Ok(Report::new(format!("jetloop server {}", r.server_version))
             .text("services", "services", r.services.join(", "))
             .int("max_request_bytes", "largest request", l.max_request_bytes, "bytes")
+            .int(
+                "max_request_samples",
+                "most samples per request (longer: tones streams)",
+                l.max_request_samples,
+                "",
+            )
             .num("request_timeout_s", "time limit per call", l.request_timeout_s, "s")
             .num("stream_timeout_s", "time limit per live tracking stream", l.stream_timeout_s, "s")
             .int("max_concurrent_requests", "calls at once (server-wide)", l.max_concurrent_requests, "")

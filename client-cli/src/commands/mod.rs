@@ -11,6 +11,7 @@ pub mod fit;
 pub mod health;
 pub mod help_markdown;
 pub mod info;
+pub mod inspect;
 pub mod isentropic;
 pub mod jet;
 pub mod modes;

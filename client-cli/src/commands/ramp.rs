@@ -97,7 +97,10 @@ impl RampCmd {
 impl Run for RampCmd {
     async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
         let (ch, a) = (ctx.channel().await?, self);
-        let samples = a.input.read()?;
+        let rec = a.input.open()?;
+        let limit = crate::upload::max_request_samples(ch.clone()).await;
+        crate::upload::fits_one_request(&rec, &a.input.file, limit, "AnalyseRamp")?;
+        let samples = rec.into_samples()?;
         let s = spinner("uploading and analysing the ramp on the server");
         let r = SpectrumServiceClient::new(ch)
             .max_encoding_message_size(256 * 1024 * 1024)

@@ -14,6 +14,7 @@ use crate::render::rows::channel_label;
 use crate::render::spectra::cross_report;
 use crate::render::spectra::psd_csv;
 use crate::render::spectra::tones_report;
+use crate::upload;
 use clap::Args;
 use jetloop_proto::pb;
 use jetloop_proto::pb::spectrum_service_client::SpectrumServiceClient;
@@ -60,10 +61,11 @@ pub struct TonesCmd {
     /// Write the PSD as CSV (frequency_hz, density_pa2_per_hz, floor_pa2_per_hz).
     #[arg(long)]
     psd_csv: Option<PathBuf>,
-    /// Send the samples in blocks of about this many bytes (ExtractTonesStream), so the server
-    /// analyses while the upload runs; 0 sends one request. Unset: blocks of 1 MiB for raw
-    /// interleaved data over 4 MiB, else one request.
-    #[arg(long)]
+    /// Send the samples in blocks of about this many bytes (ExtractTonesStream, 1024 to
+    /// 33554432), so the server analyses while the upload runs; WAV and raw files are then
+    /// read from disk a block at a time. Unset: blocks of 1 MiB for WAV and raw recordings over
+    /// 4 MiB or over the server's limit on samples per request (ServerInfo), else one request.
+    #[arg(long, value_parser = crate::upload::parse_block_bytes)]
     block_bytes: Option<usize>,
     /// The jet the recording was made at (nozzle and --npr, or --mj with --dj-m / --hj-m):
     /// each tone is then labelled with the screech stages (guided jet modes) it fits.
@@ -202,87 +204,47 @@ impl TonesCmd {
     }
 }
 
-/// Raw interleaved samples cut into blocks of whole frames of about `block` bytes; `None` when
-/// the samples are values or planar.
-pub(crate) fn blocks_of(samples: &pb::Samples, block: usize) -> Option<Vec<bytes::Bytes>> {
-    let Some(pb::samples::Data::Raw(raw)) = &samples.data else {
-        return None;
-    };
-    if samples.layout == pb::ChannelLayout::Planar as i32 {
-        return None;
-    }
-    let width = match pb::SampleFormat::try_from(raw.format).ok()? {
-        pb::SampleFormat::I16Le => 2,
-        pb::SampleFormat::F32Le | pb::SampleFormat::I32Le => 4,
-        pb::SampleFormat::F64Le => 8,
-        pb::SampleFormat::Unspecified => return None,
-    };
-    let frame = width * samples.channel_count.max(1) as usize;
-    let step = (block / frame).max(1) * frame;
-    Some(
-        (0..raw.data.len())
-            .step_by(step)
-            .map(|a| raw.data.slice(a..(a + step).min(raw.data.len())))
-            .collect(),
-    )
-}
-
-/// Sends the question and then the blocks, with a progress bar of bytes sent on a terminal.
-pub(crate) async fn extract_in_blocks(
-    client: &mut SpectrumServiceClient<crate::connect::Conn>,
-    mut req: pb::ExtractTonesRequest,
-    blocks: Vec<bytes::Bytes>,
-) -> Result<pb::ExtractTonesResponse, tonic::Status> {
-    use tokio_stream::StreamExt;
-    if let Some(pb::samples::Data::Raw(raw)) = req.samples.as_mut().and_then(|s| s.data.as_mut()) {
-        raw.data = bytes::Bytes::new();
-    }
-    let total: u64 = blocks.iter().map(|b| b.len() as u64).sum();
-    let bar = indicatif::ProgressBar::new(total);
-    bar.set_style(
-        indicatif::ProgressStyle::with_template("sending {bar:30} {bytes}/{total_bytes} ({bytes_per_sec})")
-            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
-    );
-    let shown = bar.clone();
-    let first = pb::SampleBlock { request: Some(req), ..Default::default() };
-    let rest = blocks.into_iter().map(|frames| pb::SampleBlock { frames, ..Default::default() });
-    let msgs = tokio_stream::iter(std::iter::once(first).chain(rest)).map(move |m| {
-        shown.inc(m.frames.len() as u64);
-        if shown.position() >= total {
-            shown.set_style(
-                indicatif::ProgressStyle::with_template("{spinner} last block sent; finishing the analysis")
-                    .unwrap_or_else(|_| indicatif::ProgressStyle::default_spinner()),
-            );
-            shown.enable_steady_tick(std::time::Duration::from_millis(120));
-        }
-        m
-    });
-    let r = client.extract_tones_stream(msgs).await;
-    bar.finish_and_clear();
-    r.map(tonic::Response::into_inner)
-}
-
 /// Runs `tones`.
 impl Run for TonesCmd {
     async fn run(self, ctx: &Ctx) -> Result<Report, Failure> {
         let (ch, a) = (ctx.channel().await?, self);
-        let samples = a.input.read()?;
-        let cross_samples = (a.cross || !a.azimuths_deg.is_empty()).then(|| samples.clone());
-        let req = a.request(samples)?;
+        let rec = a.input.open()?;
+        let cross = a.cross || !a.azimuths_deg.is_empty();
+        let limit = upload::max_request_samples(ch.clone()).await;
+        let over = rec.sample_count() > limit;
+        if cross {
+            upload::fits_one_request(&rec, &a.input.file, limit, "CrossSpectra (--cross, --azimuths-deg)")?;
+        }
+        if rec.disk.is_none() {
+            // Values read from text travel in one request.
+            upload::fits_one_request(&rec, &a.input.file, limit, "ExtractTones of a CSV recording")?;
+        }
+        let wire_bytes = match (&rec.disk, &rec.samples.data) {
+            (Some(d), _) => d.frames * d.wire_frame_bytes() as u64,
+            (None, Some(pb::samples::Data::Raw(r))) => r.data.len() as u64,
+            _ => 0,
+        };
+        let block = a.block_bytes.or((over || wire_bytes > 4 << 20).then_some(1 << 20));
         let labelled = a.jet.given();
         let mut client = SpectrumServiceClient::new(ch)
             .max_decoding_message_size(256 * 1024 * 1024)
             .max_encoding_message_size(256 * 1024 * 1024);
-        let raw_len = match req.samples.as_ref().and_then(|s| s.data.as_ref()) {
-            Some(pb::samples::Data::Raw(r)) => r.data.len(),
-            _ => 0,
+        // From disk, block by block, unless the cross-channel analysis needs the samples in
+        // memory anyway (it fits one request, checked above).
+        let (req, blocks, cross_samples) = match (block, rec.disk.clone()) {
+            (Some(block), Some(disk)) if !cross => {
+                (a.request(rec.samples)?, Some(upload::Blocks::Disk(disk, block)), None)
+            }
+            _ => {
+                let samples = rec.into_samples()?;
+                let blocks = block.and_then(|b| upload::blocks_of(&samples, b)).map(upload::Blocks::Memory);
+                let cross_samples = cross.then(|| samples.clone());
+                (a.request(samples)?, blocks, cross_samples)
+            }
         };
-        let block = a.block_bytes.unwrap_or(if raw_len > 4 << 20 { 1 << 20 } else { 0 });
-        let blocks = if block == 0 { None } else { req.samples.as_ref().and_then(|s| blocks_of(s, block)) };
         let (r, timing) = match blocks {
             Some(blocks) => {
-                let n = blocks.len();
-                let r = extract_in_blocks(&mut client, req, blocks).await?;
+                let (r, n) = upload::extract_in_blocks(&mut client, req, blocks).await?;
                 let t = format!(
                     "sent in {n} blocks; {:.1} ms from the last block to the answer",
                     r.compute_time_s * 1e3
@@ -369,22 +331,5 @@ mod tests {
             x.positions.iter().map(|p| p.azimuth_deg).collect::<Vec<_>>(),
             vec![0.0, 90.0, 180.0, 270.0]
         );
-    }
-
-    #[test]
-    fn interleaved_raw_samples_are_cut_into_whole_frames() {
-        let s = pb::Samples {
-            channel_count: 4,
-            data: Some(pb::samples::Data::Raw(pb::RawSamples {
-                data: vec![0u8; 100].into(),
-                format: pb::SampleFormat::I16Le as i32,
-            })),
-            ..Default::default()
-        };
-        // Frames of 4 x 2 bytes: a 30-byte block holds 3 whole frames (24 bytes).
-        let b = blocks_of(&s, 30).expect("blocks");
-        assert_eq!(b.iter().map(bytes::Bytes::len).collect::<Vec<_>>(), vec![24, 24, 24, 24, 4]);
-        let planar = pb::Samples { layout: pb::ChannelLayout::Planar as i32, ..s };
-        assert!(blocks_of(&planar, 30).is_none(), "planar samples go in one request");
     }
 }
