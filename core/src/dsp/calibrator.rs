@@ -228,10 +228,13 @@ impl std::fmt::Display for Warning {
                 "clipped: {samples} samples at the format's full scale (+-{full_scale} units); the level \
                  reads low"
             ),
+            // The value to 7 significant digits (as single precision), enough to recognise a
+            // converter's full scale or an amplifier's rail.
             Warning::FlatTopped { run, expected, value } => write!(
                 f,
-                "flat-topped: {run} consecutive samples at {value} units (an unclipped tone of this \
-                 amplitude shows at most {expected}); the input or the converter is clipping"
+                "flat-topped: {run} consecutive samples at {} units (an unclipped tone of this \
+                 amplitude shows at most {expected}); the input or the converter is clipping",
+                *value as f32
             ),
             Warning::FrequencyOff { measured_hz, stated_hz, tolerance } => write!(
                 f,
