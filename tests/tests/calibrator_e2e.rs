@@ -148,3 +148,44 @@ async fn a_short_recording_and_a_calibrated_one_are_refused_with_their_reasons()
     assert_field(&e, Code::InvalidArgument, "samples.calibration");
     server.stop().await;
 }
+
+#[tokio::test]
+async fn the_service_is_listed_by_info_health_and_reflection() {
+    use tonic_health::pb::{
+        health_check_response::ServingStatus, health_client::HealthClient, HealthCheckRequest,
+    };
+    use tonic_reflection::pb::v1::{
+        server_reflection_client::ServerReflectionClient, server_reflection_request::MessageRequest,
+        server_reflection_response::MessageResponse, ServerReflectionRequest,
+    };
+    let server = TestServer::start().await;
+    let ch = server.channel().await;
+    let name = "jetloop.v1.CalibrationService";
+    let info = pb::info_service_client::InfoServiceClient::new(ch.clone())
+        .server_info(pb::ServerInfoRequest {})
+        .await
+        .expect("info")
+        .into_inner();
+    assert!(info.services.iter().any(|s| s == name), "{:?}", info.services);
+    let r = HealthClient::new(ch.clone())
+        .check(HealthCheckRequest { service: name.into() })
+        .await
+        .expect("health");
+    assert_eq!(r.into_inner().status, ServingStatus::Serving as i32);
+    let req = ServerReflectionRequest {
+        host: String::new(),
+        message_request: Some(MessageRequest::ListServices(String::new())),
+    };
+    let mut stream = ServerReflectionClient::new(ch)
+        .server_reflection_info(tokio_stream::iter(vec![req]))
+        .await
+        .expect("reflection")
+        .into_inner();
+    let Some(MessageResponse::ListServicesResponse(list)) =
+        stream.message().await.expect("answer").and_then(|m| m.message_response)
+    else {
+        panic!("unexpected reflection answer");
+    };
+    assert!(list.service.iter().any(|s| s.name == name), "{:?}", list.service);
+    server.stop().await;
+}
