@@ -106,6 +106,13 @@ enum Command {
     /// One-third-octave band levels, overall and A-weighted levels of a recording.
     #[command(after_help = "Example: jetloop bands mics.csv --sample-rate-hz 51200 --in-pascals")]
     Bands(commands::bands::BandsCmd),
+    /// Microphone sensitivities from a sound-calibrator recording (in volts or counts): tone
+    /// frequency, stability, THD and clipping per channel, and the calibration file for
+    /// --calibration-file (-o).
+    #[command(
+        after_help = "Example: jetloop calibrate cal.wav --level-db 94 --frequency-hz 1000 --volts-per-unit 0.000305176 -o mics.toml"
+    )]
+    Calibrate(commands::calibrate::CalibrateCmd),
     /// Tones against NPR from a continuous ramp: a recording with an NPR or reservoir-pressure
     /// channel beside the microphones, in short-time frames; points written for `fit`.
     #[command(
@@ -193,6 +200,7 @@ async fn run_command(command: Command, ctx: &Ctx) -> Result<Report, Failure> {
         Command::Bands(a) => a.run(ctx).await,
         Command::TdmsInfo(a) => a.run(ctx).await,
         Command::Inspect(a) => a.run(ctx).await,
+        Command::Calibrate(a) => a.run(ctx).await,
         Command::Synth(a) => a.run(ctx).await,
         Command::Ramp(a) => a.run(ctx).await,
         Command::Fit(a) => a.run(ctx).await,

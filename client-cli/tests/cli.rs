@@ -264,3 +264,82 @@ async fn fit_reads_the_demo_sweep_and_reports_hysteresis() {
     assert!(out.1.contains("nozzle pressure ratio"));
     server.stop().await;
 }
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn calibrate_writes_a_file_that_tones_reads_back_at_the_calibrator_level() {
+    // Two invented microphones of 50 and 3.16 mV/Pa on a 94 dB, 1 kHz calibrator, recorded in
+    // volts as raw f32 at 48 kHz: V_rms = S x 20e-6 x 10^(94/20) Pa (closed form, ISO 1683).
+    let server = TestServer::start().await;
+    let u = server.url();
+    let (cal, tones, toml) = tokio::task::spawn_blocking(move || {
+        let dir = std::env::temp_dir().join(format!("jetloop-calibrate-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let rec = dir.join("calibrator.bin");
+        let p = 20e-6 * 10f64.powf(94.0 / 20.0);
+        let bytes: Vec<u8> = (0..2 * 48_000)
+            .flat_map(|i| {
+                let x =
+                    2f64.sqrt() * p * (2.0 * std::f64::consts::PI * 1000.0 * f64::from(i) / 48_000.0).sin();
+                [50e-3, 3.16e-3].map(|s| ((s * x) as f32).to_le_bytes())
+            })
+            .flatten()
+            .collect();
+        std::fs::write(&rec, bytes).unwrap();
+        let out = dir.join("mics.toml");
+        let (r, o) = (rec.to_str().unwrap(), out.to_str().unwrap());
+        let cal = jetloop(
+            &u,
+            &[
+                "--json",
+                "calibrate",
+                r,
+                "--sample-rate-hz",
+                "48000",
+                "--channels",
+                "2",
+                "--level-db",
+                "94",
+                "--frequency-hz",
+                "1000",
+                "--volts-per-unit",
+                "1",
+                "--names",
+                "mic a,mic b",
+                "-o",
+                o,
+            ],
+        );
+        // The same recording analysed through the written file: every channel reads 94 dB.
+        let tones = jetloop(
+            &u,
+            &["--json", "tones", r, "--sample-rate-hz", "48000", "--channels", "2", "--calibration-file", o],
+        );
+        let toml = std::fs::read_to_string(&out).unwrap_or_default();
+        let _ = std::fs::remove_dir_all(dir);
+        (cal, tones, toml)
+    })
+    .await
+    .unwrap();
+    let c = json(&cal);
+    let rows = c["channels"].as_array().expect("channel rows");
+    assert_eq!(rows.len(), 2, "{c}");
+    for (row, s) in rows.iter().zip([50.0, 3.16]) {
+        let got = row["sensitivity_mv_per_pa"].as_f64().expect("sensitivity");
+        assert!((20.0 * (got / s).log10()).abs() < 0.05, "{got} mV/Pa against {s}");
+    }
+    assert!(toml.contains("name = \"mic b\"") && toml.contains("volts_per_unit = 1.0"), "{toml}");
+    let t = json(&tones);
+    let chans = t["channels"].as_array().expect("channels");
+    assert_eq!(chans.len(), 2, "{t}");
+    for ch in chans {
+        let top = ch["tones"]
+            .as_array()
+            .expect("tones")
+            .iter()
+            .filter_map(|x| x["level_db"].as_f64())
+            .fold(f64::MIN, f64::max);
+        // 20 log10(1.0024 / 20e-6) = 94.0 dB (the stated level, closed form).
+        assert!((top - 94.0).abs() < 0.05, "{ch}");
+    }
+    server.stop().await;
+}

@@ -22,6 +22,7 @@ mod tests {
     fn descriptor_set_decodes_and_names_every_service() {
         let fds = prost_types_shim::decode(super::FILE_DESCRIPTOR_SET);
         for svc in [
+            "CalibrationService",
             "GasDynamicsService",
             "InfoService",
             "ShockCellService",

@@ -5,11 +5,12 @@ use crate::layers::{AuthLayer, DeadlineLayer, InboundErrorsLayer, MetricsLayer, 
 use crate::metrics::Metrics;
 use crate::runtime::budget::SampleBudget;
 use crate::service::{
-    gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells, spectrum::Spectrum, staging::Staging,
-    tones::Tones,
+    calibration::Calibration, gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells,
+    spectrum::Spectrum, staging::Staging, tones::Tones,
 };
 pub use crate::service::{JETLOOP_SERVICES, STANDARD_SERVICES};
 use jetloop_proto::pb::{
+    calibration_service_server::CalibrationServiceServer,
     gas_dynamics_service_server::GasDynamicsServiceServer, info_service_server::InfoServiceServer,
     shock_cell_service_server::ShockCellServiceServer, spectrum_service_server::SpectrumServiceServer,
     staging_service_server::StagingServiceServer, tone_service_server::ToneServiceServer,
@@ -217,6 +218,10 @@ pub async fn serve_observed(
         .add_service(limited!(InfoServiceServer::new(Info::new(limits, budget.clone(), computing)), max))
         .add_service(limited!(ShockCellServiceServer::new(ShockCells), max))
         .add_service(limited!(ToneServiceServer::new(Tones), max))
+        .add_service(limited!(
+            CalibrationServiceServer::new(Calibration::new(budget.clone(), metrics.clone())),
+            max
+        ))
         .add_service(limited!(SpectrumServiceServer::new(Spectrum::new(budget, metrics)), max))
         .add_service(limited!(StagingServiceServer::new(Staging), max))
         // Connections through the capped accept loop (handshake timeout, back-off on accept

@@ -217,6 +217,23 @@ pub fn base_calls() -> Vec<BaseCall> {
             weight: 3,
         },
         BaseCall {
+            path: "/jetloop.v1.CalibrationService/CalibratorSensitivity",
+            messages: vec![enc(&pb::CalibratorSensitivityRequest {
+                samples: Some(crate::samples::raw(
+                    f32_le(&sine(1 << 13, 8000.0, 250.0, 0.05)),
+                    pb::SampleFormat::F32Le,
+                    8000.0,
+                    1,
+                    None,
+                )),
+                stated_level_db: 94.0,
+                stated_frequency_hz: 250.0,
+                volts_per_unit: vec![1.0],
+                ..Default::default()
+            })],
+            weight: 3,
+        },
+        BaseCall {
             path: "/grpc.health.v1.Health/Check",
             messages: vec![enc(&tonic_health::pb::HealthCheckRequest { service: String::new() })],
             weight: 2,
@@ -534,7 +551,8 @@ pub fn memory() -> Option<(u64, u64)> {
 pub mod in_process {
     use super::{mutate_message, pick, BaseCall, Rng};
     use jetloop_proto::pb::{
-        self, gas_dynamics_service_server::GasDynamicsService, info_service_server::InfoService,
+        self, calibration_service_server::CalibrationService,
+        gas_dynamics_service_server::GasDynamicsService, info_service_server::InfoService,
         shock_cell_service_server::ShockCellService, spectrum_service_server::SpectrumService,
         staging_service_server::StagingService, tone_service_server::ToneService,
     };
@@ -542,8 +560,8 @@ pub mod in_process {
     use jetloop_server::dsp::samples::{Format, Layout, Recording};
     use jetloop_server::runtime::budget::SampleBudget;
     use jetloop_server::service::{
-        gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells, spectrum::Spectrum, staging::Staging,
-        tones::Tones,
+        calibration::Calibration, gas_dynamics::GasDynamics, info::Info, shock_cells::ShockCells,
+        spectrum::Spectrum, staging::Staging, tones::Tones,
     };
     use prost::Message;
     use tonic::{Code, Request};
@@ -553,6 +571,7 @@ pub mod in_process {
     pub struct Handlers {
         info: Info,
         spectrum: Spectrum,
+        calibration: Calibration,
     }
 
     impl Default for Handlers {
@@ -561,7 +580,8 @@ pub mod in_process {
             let budget = SampleBudget::new(512 << 20);
             Self {
                 info: Info::new(limits, budget.clone(), jetloop_server::runtime::Computing::default()),
-                spectrum: Spectrum::new(budget, None),
+                spectrum: Spectrum::new(budget.clone(), None),
+                calibration: Calibration::new(budget, None),
             }
         }
     }
@@ -613,6 +633,9 @@ pub mod in_process {
                 u!(h.spectrum, cross_spectra, pb::CrossSpectraRequest)
             }
             "/jetloop.v1.SpectrumService/AnalyseRamp" => u!(h.spectrum, analyse_ramp, pb::AnalyseRampRequest),
+            "/jetloop.v1.CalibrationService/CalibratorSensitivity" => {
+                u!(h.calibration, calibrator_sensitivity, pb::CalibratorSensitivityRequest)
+            }
             "/jetloop.v1.SpectrumService/ExtractTonesStream" => {
                 let Some(blocks) =
                     messages.iter().map(|m| decode::<pb::SampleBlock>(m)).collect::<Option<Vec<_>>>()

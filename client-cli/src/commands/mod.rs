@@ -3,6 +3,7 @@
 //! with [`crate::render`].
 
 pub mod bands;
+pub mod calibrate;
 pub mod cells;
 pub mod check;
 pub mod completions;

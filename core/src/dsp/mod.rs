@@ -5,6 +5,7 @@
 //! in Pa^2/Hz, frequencies in Hz.
 
 pub mod bands;
+pub mod calibrator;
 pub mod corrections;
 pub mod cross;
 pub mod limits;

@@ -100,6 +100,14 @@ pub const LEVEL_CORRECTIONS: Model = Model {
 pub const ATMOSPHERIC_ABSORPTION: Model =
     Model { name: "pure-tone atmospheric absorption", reference: "ISO 9613-1:1993" };
 
+/// Microphone sensitivity from a sound-calibrator recording.
+pub const CALIBRATOR_READING: Model = Model {
+    name: "sound-calibrator reading: tone power summed over its bins of a Blackman-Harris Welch PSD above \
+           the local floor, power-centroid frequency, block spans, THD_F and THD+N (20 Hz-20 kHz)",
+    reference: "IEC 60942:2017 (sound calibrators); Welch (1967); Harris (1978), Proc. IEEE 66; AES17 \
+                measurement bandwidth",
+};
+
 /// Stage segmentation.
 pub const STAGE_SEGMENTATION: Model = Model {
     name: "stage segmentation by frequency-continuity branch tracking, quadratic smooth fits",
@@ -126,6 +134,7 @@ pub const ALL: &[Model] = &[
     THIRD_OCTAVE,
     A_WEIGHTING,
     STAGE_SEGMENTATION,
+    CALIBRATOR_READING,
 ];
 
 /// Guided jet modes of the vortex sheet, their bands and the screech closure through them.

@@ -97,7 +97,8 @@ mod tests {
     use std::collections::HashMap;
 
     /// The proto sources, read at compile time.
-    const PROTOS: [(&str, &str); 6] = [
+    const PROTOS: [(&str, &str); 7] = [
+        ("calibration.proto", include_str!("../../../proto/jetloop/v1/calibration.proto")),
         ("common.proto", include_str!("../../../proto/jetloop/v1/common.proto")),
         ("gas_dynamics.proto", include_str!("../../../proto/jetloop/v1/gas_dynamics.proto")),
         ("shock_cells.proto", include_str!("../../../proto/jetloop/v1/shock_cells.proto")),
@@ -186,6 +187,16 @@ mod tests {
             ("ControlChannel.ambient_pressure_pa", crate::dsp::ramp::AMBIENT_PRESSURE, Unset::Value),
             ("TrackConfig.jump_fraction", crate::dsp::track::JUMP_FRACTION, Unset::Value),
             ("Atmosphere.pressure_pa", crate::dsp::corrections::ATMOSPHERE_PRESSURE, Unset::Value),
+            (
+                "CalibratorSensitivityRequest.frequency_tolerance_fraction",
+                crate::dsp::calibrator::CalibratorConfig::FREQUENCY_TOLERANCE_FRACTION,
+                Unset::Value,
+            ),
+            (
+                "CalibratorSensitivityRequest.max_harmonic_order",
+                crate::dsp::calibrator::CalibratorConfig::MAX_HARMONIC_ORDER,
+                Unset::Value,
+            ),
         ]
     }
 

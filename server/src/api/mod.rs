@@ -3,6 +3,7 @@
 //!
 //! Nothing below this module sees a proto message; nothing above it sees an unchecked number.
 
+pub mod calibration;
 pub mod cells;
 pub mod conditions;
 pub mod error;

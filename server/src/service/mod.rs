@@ -1,5 +1,6 @@
 //! Thin gRPC handlers: convert, compute, convert back. One file per service.
 
+pub mod calibration;
 pub mod gas_dynamics;
 pub mod info;
 pub mod shock_cells;
@@ -7,9 +8,11 @@ pub mod spectrum;
 pub mod staging;
 pub mod tones;
 
+use calibration::Calibration;
 use gas_dynamics::GasDynamics;
 use info::Info;
 use jetloop_proto::pb::{
+    calibration_service_server::CalibrationServiceServer,
     gas_dynamics_service_server::GasDynamicsServiceServer, info_service_server::InfoServiceServer,
     shock_cell_service_server::ShockCellServiceServer, spectrum_service_server::SpectrumServiceServer,
     staging_service_server::StagingServiceServer, tone_service_server::ToneServiceServer,
@@ -29,6 +32,7 @@ pub const JETLOOP_SERVICES: &[&str] = &[
     <ToneServiceServer<Tones> as NamedService>::NAME,
     <SpectrumServiceServer<Spectrum> as NamedService>::NAME,
     <StagingServiceServer<Staging> as NamedService>::NAME,
+    <CalibrationServiceServer<Calibration> as NamedService>::NAME,
 ];
 
 /// The standard services served beside them: health and reflection (v1 and v1alpha).
