@@ -180,6 +180,22 @@ pub enum CalibratorError {
     /// No tone stands above the floor (a silent or disconnected channel).
     #[error("no tone stands above the floor: the channel is silent or holds only noise")]
     NoTone,
+    /// Nothing near the stated frequency, and a tone elsewhere is far stronger: the
+    /// calibrator is not the tone this channel recorded (another source, a wrong frequency
+    /// stated, or the wrong sample rate).
+    #[error(
+        "the strongest tone is at {found_hz:.1} Hz, {above_db:.1} dB above anything within {SEARCH_FRACTION} of \
+         the stated {stated_hz} Hz: check the stated frequency and the sample rate, or what else the \
+         microphone heard"
+    )]
+    NotNearStated {
+        /// Stated frequency, Hz.
+        stated_hz: f64,
+        /// Frequency of the strongest bin, Hz.
+        found_hz: f64,
+        /// How much stronger than the strongest bin near the stated frequency, dB.
+        above_db: f64,
+    },
     /// The PSD could not be computed (a non-finite sample, or stopped).
     #[error(transparent)]
     Welch(#[from] WelchError),
@@ -323,6 +339,16 @@ fn band(p: &[f64], k: usize) -> (f64, f64) {
 }
 
 /// Index of the largest value of `p` in `lo..hi`.
+/// How far from the stated frequency the calibrator's tone is looked for, as a fraction of
+/// it: twenty times the class 1 frequency tolerance (1 %, IEC 60942, recalled from memory), so
+/// a tone off by more than the tolerance is still found and warned about.
+pub const SEARCH_FRACTION: f64 = 0.2;
+
+/// Power ratio (20 dB): a bin near the stated frequency that does not stand this far above the
+/// median there is no tone, and a reading with no tone near the stated frequency is refused
+/// when a bin elsewhere stands this far above it.
+const ELSEWHERE_RATIO: f64 = 100.0;
+
 fn peak(p: &[f64], lo: usize, hi: usize) -> usize {
     (lo..hi.min(p.len())).max_by(|&a, &b| p[a].total_cmp(&p[b])).unwrap_or(lo)
 }
@@ -362,8 +388,27 @@ pub fn read_channel(
     let df = plan.resolution_hz();
     let p: Vec<f64> = psd.density.iter().map(|d| d * df).collect();
     let last = p.len() - 1;
-    // The fundamental: the strongest bin clear of the DC lobe and of Nyquist.
-    let kp = peak(&p, LOBE_BINS + 1, last.saturating_sub(LOBE_BINS));
+    // The fundamental: the strongest bin within SEARCH_FRACTION of the stated frequency (so
+    // rumble, handling noise or another source cannot be taken for the calibrator), clear of
+    // the DC lobe and of Nyquist. A far stronger tone elsewhere means the calibrator is not
+    // what was recorded there.
+    let (lo, hi) = (LOBE_BINS + 1, last.saturating_sub(LOBE_BINS));
+    let stated_bin = cfg.stated_frequency_hz / df;
+    let near_lo = ((stated_bin * (1.0 - SEARCH_FRACTION)).floor() as usize).max(lo);
+    let near_hi = ((stated_bin * (1.0 + SEARCH_FRACTION)).ceil() as usize + 1).min(hi).max(near_lo + 1);
+    let kp = peak(&p, near_lo, near_hi);
+    let kg = peak(&p, lo, hi);
+    let mut near: Vec<f64> = p[near_lo..near_hi].to_vec();
+    near.sort_by(f64::total_cmp);
+    let near_floor = near[near.len() / 2];
+    let no_tone_near = p[kp] <= ELSEWHERE_RATIO * near_floor;
+    if no_tone_near && p[kg] > ELSEWHERE_RATIO * p[kp] && kg.abs_diff(kp) > LOBE_BINS {
+        return Err(CalibratorError::NotNearStated {
+            stated_hz: cfg.stated_frequency_hz,
+            found_hz: kg as f64 * df,
+            above_db: 10.0 * (p[kg] / p[kp]).log10(),
+        });
+    }
     let (ms1, centroid) = band(&p, kp);
     if ms1 <= 0.0 || !ms1.is_finite() {
         return Err(CalibratorError::NoTone);

@@ -160,6 +160,28 @@ fn a_tone_off_its_stated_frequency_is_reported() {
 }
 
 #[test]
+fn rumble_louder_than_the_calibrator_is_not_taken_for_it() {
+    // A 94 dB 1 kHz tone under a 40 Hz rumble ten times its amplitude (handling noise): the
+    // reading is the 1 kHz tone's rms A / sqrt(2) (closed form), not the rumble's.
+    let (fs, n) = (48_000.0, 1 << 17);
+    let c = cfg(94.0, 1000.0);
+    let calibrator = tone(n, fs, 1000.0, &[0.1]);
+    let rumble = tone(n, fs, 40.0, &[1.0]);
+    let x: Vec<f64> = calibrator.iter().zip(&rumble).map(|(a, b)| a + b).collect();
+    let r = read(x, fs, &c);
+    assert!((r.frequency_hz - 1000.0).abs() < 1e-3, "{}", r.frequency_hz);
+    assert!((r.tone_rms / (0.1 / 2f64.sqrt()) - 1.0).abs() < 1e-3, "{}", r.tone_rms);
+    // A 2 kHz tone stated as 250 Hz, with nothing near 250 Hz: refused, naming where it is.
+    let e = read_channel(&one(tone(n, fs, 2000.0, &[1.0])), 0, fs, &cfg(94.0, 250.0), &Cancel::new())
+        .unwrap_err();
+    assert!(
+        matches!(e, CalibratorError::NotNearStated { found_hz, .. } if (found_hz - 2000.0).abs() < 10.0),
+        "{e:?}"
+    );
+    assert!(e.to_string().contains("stated 250 Hz"), "{e}");
+}
+
+#[test]
 fn a_recording_shorter_than_eight_blocks_is_refused_naming_the_minimum() {
     // 48 kHz, 1 kHz: bins of at most 10 Hz need 4800 samples, the next power of two is 8192.
     let (fs, c) = (48_000.0, cfg(94.0, 1000.0));

@@ -163,7 +163,7 @@ fn reading_error(e: CalibratorError, field: &str, channel: usize) -> ApiError {
         CalibratorError::AboveBand { .. } | CalibratorError::Resolution(_) => ApiError::Precondition(
             PreconditionViolation::new(FREQUENCY_ABOVE_BAND, "stated_frequency_hz", description),
         ),
-        CalibratorError::NoTone => {
+        CalibratorError::NoTone | CalibratorError::NotNearStated { .. } => {
             ApiError::Precondition(PreconditionViolation::new(NO_CALIBRATOR_TONE, field, description))
         }
         CalibratorError::Welch(WelchError::Stopped) => ApiError::Stopped(crate::cancel::Stopped),
