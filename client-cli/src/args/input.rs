@@ -440,7 +440,7 @@ impl InputArgs {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     //! Recording arguments -> `Samples`, without a server.
 
     use super::*;
@@ -452,7 +452,9 @@ mod tests {
         input: InputArgs,
     }
 
-    fn parse(args: &str) -> InputArgs {
+    /// The recording arguments of a command line `args` (split at spaces), for tests here and
+    /// in the other argument modules.
+    pub(crate) fn parse(args: &str) -> InputArgs {
         Input::try_parse_from(std::iter::once("t").chain(args.split_whitespace())).expect("parses").input
     }
 

@@ -232,20 +232,9 @@ mod tests {
     //! group and channel choice, rate from `wf_increment`, calibration by unit.
 
     use super::*;
-    use crate::args::input::InputArgs;
+    use crate::args::input::tests::parse;
     use crate::tdms::tests::{le_f64, num, segment, text, Bytes, META, NEW_LIST, RAW};
-    use clap::Parser;
     use pb::calibration::Scale;
-
-    #[derive(Debug, Parser)]
-    struct Input {
-        #[command(flatten)]
-        input: InputArgs,
-    }
-
-    fn parse(args: &str) -> InputArgs {
-        Input::try_parse_from(std::iter::once("t").chain(args.split_whitespace())).expect("parses").input
-    }
 
     /// A file with group "mics" (p_pa: float64 in Pa; v_mic: int16 scaled to V by 0.5 V per
     /// count; both at 1/wf_increment = 25600 Hz) and group "aux" (two channels of 1 and 2 values).

@@ -123,7 +123,18 @@ impl Recording {
         let (blocks, starts) =
             if bytes.is_empty() { (Vec::new(), Vec::new()) } else { (vec![bytes], vec![0]) };
         let storage = Storage::Blocks { blocks, starts, total, format };
-        Ok(Self {
+        Ok(Self::with_storage(storage, layout, channels, per_channel, scale_pa))
+    }
+
+    /// A recording of `storage` with one calibration for every channel, held whole.
+    fn with_storage(
+        storage: Storage,
+        layout: Layout,
+        channels: usize,
+        per_channel: usize,
+        scale_pa: f64,
+    ) -> Self {
+        Self {
             storage,
             layout,
             channels,
@@ -132,22 +143,13 @@ impl Recording {
             channel_scales_pa: Vec::new(),
             held_from: 0,
             released_clipped: Vec::new(),
-        })
+        }
     }
 
     /// An interleaved recording that will grow block by block (see [`Recording::push_block`]).
     pub fn stream(format: Format, channels: usize, scale_pa: f64) -> Self {
         let storage = Storage::Blocks { blocks: Vec::new(), starts: Vec::new(), total: 0, format };
-        Self {
-            storage,
-            layout: Layout::Interleaved,
-            channels: channels.max(1),
-            per_channel: 0,
-            scale_pa,
-            channel_scales_pa: Vec::new(),
-            held_from: 0,
-            released_clipped: Vec::new(),
-        }
+        Self::with_storage(storage, Layout::Interleaved, channels.max(1), 0, scale_pa)
     }
 
     /// Appends a block of whole interleaved frames (kept, not copied).
@@ -190,16 +192,7 @@ impl Recording {
             return Err(DecodeError::Ragged { bytes: values.len() * 8, channels, width: 8 });
         }
         let per_channel = values.len() / channels;
-        Ok(Self {
-            storage: Storage::Values(values),
-            layout,
-            channels,
-            per_channel,
-            scale_pa,
-            channel_scales_pa: Vec::new(),
-            held_from: 0,
-            released_clipped: Vec::new(),
-        })
+        Ok(Self::with_storage(Storage::Values(values), layout, channels, per_channel, scale_pa))
     }
 
     /// The same recording with one factor per channel, pascals per unit, in channel order
