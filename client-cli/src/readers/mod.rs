@@ -1,7 +1,7 @@
 //! File readers: recordings (WAV, CSV, raw little-endian binary) into `Samples` messages,
 //! response-correction curves and measured sweeps (CSV), and the delimited-text rows they
 //! share. Which reader runs, with which sample rate and calibration, is decided by the
-//! recording arguments ([`crate::args::input`]).
+//! recording arguments (`args::input`).
 
 use crate::failure::Failure;
 use indicatif::ProgressBar;

@@ -1,5 +1,5 @@
 //! The tower layers around every call, one file each. The stack is assembled, in order and
-//! with the reason for the order, in [`crate::server`]; the layers are:
+//! with the reason for the order, in the `server` module; the layers are:
 //!
 //! - [`request_id`]: a request id per call, echoed and logged;
 //! - [`auth`]: bearer tokens;
