@@ -216,6 +216,32 @@ def test_tones_from_disk_in_blocks_match_one_request(tmp_path, server_address):
         assert r["channels"][0]["rms_pa"] == pytest.approx(rms, rel=1e-9)
 
 
+def test_a_wav_file_over_twice_the_request_limit_streams_to_its_closed_form_level(tmp_path, server_address, pb, channel):
+    # Twice the server's per-request limit plus a second (2 channels of int16 at 51.2 kHz,
+    # 2 x 2^25 + 102400 samples, 134 MB): jetloop tones streams it from disk and reads the
+    # closed-form levels of its two tones. Source of the file: soundfile (libsndfile), RF64
+    # because it is written as a long recording would be.
+    limit = pb.info_grpc.InfoServiceStub(channel).ServerInfo(pb.info.ServerInfoRequest()).limits.max_request_samples
+    rate = 51200
+    frames = limit + rate
+    t = np.arange(rate) / rate
+    second = np.stack([8000 * np.sin(2 * np.pi * 3000 * t), 2000 * np.sin(2 * np.pi * 5000 * t)], axis=1).astype(np.int16)
+    path = tmp_path / "long.wav"
+    with soundfile.SoundFile(path, "w", rate, 2, subtype="PCM_16", format="RF64") as f:
+        for _ in range(frames // rate):
+            f.write(second)
+    assert frames // rate * rate * 2 > 2 * limit
+    r = cli("--json", "tones", path, "--pa-per-unit", "0.001", "--resolution-hz", "25", server=server_address)
+    assert r.returncode == 0, r.stderr
+    report = json.loads(r.stdout)
+    for ch, (hz, counts) in zip(report["channels"], [(3000.0, 8000), (5000.0, 2000)]):
+        strongest = max(ch["tones"], key=lambda x: x["level_db"])
+        # Closed form: amplitude A Pa -> 20 log10(A / sqrt(2) / 20 uPa); A = counts x 0.001 Pa.
+        level = 20 * np.log10(counts * 0.001 / np.sqrt(2) / 20e-6)
+        assert abs(strongest["frequency_hz"] - hz) < 25, strongest
+        assert strongest["level_db"] == pytest.approx(level, abs=0.1), strongest
+
+
 def test_a_recording_over_the_request_limit_is_refused_by_bands_before_upload(tmp_path, server_address, pb, channel):
     limit = pb.info_grpc.InfoServiceStub(channel).ServerInfo(pb.info.ServerInfoRequest()).limits.max_request_samples
     assert limit > 0
