@@ -20,6 +20,8 @@ impl Run for InfoCmd {
         let l = r.limits.unwrap_or_default();
         let mut p = r.provenance.unwrap_or_default();
         p.models = r.models;
+        // Where the sized limits came from (the container's memory or the machine's).
+        p.notes.extend(l.limit_sources.iter().map(|s| format!("limit: {s}")));
         Ok(Report::new(format!("jetloop server {}", r.server_version))
             .text("services", "services", r.services.join(", "))
             .int("max_request_bytes", "largest request", l.max_request_bytes, "bytes")
@@ -32,6 +34,7 @@ impl Run for InfoCmd {
             .num("request_timeout_s", "time limit per call", l.request_timeout_s, "s")
             .num("stream_timeout_s", "time limit per live tracking stream", l.stream_timeout_s, "s")
             .int("max_concurrent_requests", "calls at once (server-wide)", l.max_concurrent_requests, "")
+            .int("sample_budget_bytes", "sample bytes all calls may hold", l.sample_budget_bytes, "bytes")
             .provenance(Some(p)))
     }
 }

@@ -97,6 +97,9 @@ async fn main() -> ExitCode {
     }
     let _ = std::io::stdout().flush();
     tracing::info!(%addr, version = env!("CARGO_PKG_VERSION"), "serving");
+    for note in options.limits.sizing_notes() {
+        tracing::info!("limit: {note}");
+    }
     match server::serve_observed(listener, options, shutdown_signal(), metrics).await {
         Ok(()) => {
             tracing::info!("stopped");

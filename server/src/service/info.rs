@@ -41,6 +41,7 @@ impl InfoService for Info {
                 sample_budget_bytes: self.limits.sample_budget_bytes as u64,
                 stream_timeout_s: self.limits.stream_timeout.as_secs_f64(),
                 max_request_samples: crate::api::spectrum::MAX_TOTAL_SAMPLES as u64,
+                limit_sources: self.limits.sizing_notes(),
             }),
             safety_notice: PRESSURE_CAUTION.to_string(),
             computations_in_flight: self.computing.count() as u64,

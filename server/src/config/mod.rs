@@ -1,5 +1,7 @@
 //! Server configuration: command-line flags with environment fallbacks and safe defaults.
 
+pub mod sizing;
+
 use crate::transport::{default_max_connections, ConnectionLimits};
 use clap::Parser;
 use std::net::SocketAddr;
@@ -21,6 +23,35 @@ pub struct Limits {
     /// Sample bytes all calls together may hold at once; beyond it a call is refused with
     /// RESOURCE_EXHAUSTED.
     pub sample_budget_bytes: usize,
+    /// The memory the defaults were sized from, when the server sized them
+    /// ([`sizing::size`]); `None` for limits set in code.
+    pub sized_from: Option<SizedFrom>,
+}
+
+/// The memory a server's default limits were sized from, and which of the three limits were
+/// given rather than derived.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct SizedFrom {
+    /// The memory limit read at start.
+    pub memory: sizing::MemoryLimit,
+    /// Given by flag (not derived): sample budget, request size, concurrency.
+    pub given: [bool; 3],
+}
+
+impl Limits {
+    /// One sentence per sized limit: its value and where it came from (empty for limits set
+    /// in code).
+    pub fn sizing_notes(&self) -> Vec<String> {
+        let Some(s) = self.sized_from else { return Vec::new() };
+        let pick = |given: bool, v: usize| given.then_some(v);
+        sizing::size(
+            s.memory,
+            pick(s.given[0], self.sample_budget_bytes),
+            pick(s.given[1], self.max_request_bytes),
+            pick(s.given[2], self.max_concurrent_requests),
+        )
+        .notes
+    }
 }
 
 impl Default for Limits {
@@ -31,19 +62,24 @@ impl Default for Limits {
             stream_timeout: Duration::from_secs(12 * 3600),
             max_concurrent_requests: 256,
             sample_budget_bytes: default_sample_budget(),
+            sized_from: None,
         }
     }
 }
 
-/// Half the machine's physical memory (Linux `/proc/meminfo`), at least 256 MiB; 4 GiB where
-/// the memory size cannot be read.
+/// Half the memory this process may use (the container's cgroup limit where one is set, else
+/// the machine's: [`sizing::memory_limit`]), at least 256 MiB.
 pub fn default_sample_budget() -> usize {
-    let total_kib = std::fs::read_to_string("/proc/meminfo").ok().and_then(|m| {
-        m.lines().find(|l| l.starts_with("MemTotal:"))?.split_whitespace().nth(1)?.parse::<usize>().ok()
-    });
-    match total_kib {
-        Some(kib) => (kib.saturating_mul(1024) / 2).max(256 << 20),
-        None => 4 << 30,
+    sizing::size(sizing::memory_limit(), None, None, None).sample_budget_bytes
+}
+
+/// `--max-request-bytes`: 0 (sized to the memory) or 1024 to 1 GiB.
+fn parse_request_bytes(s: &str) -> Result<u64, String> {
+    let v: u64 = s.trim().parse().map_err(|e| format!("{s}: {e}"))?;
+    if v == 0 || (1024..=1 << 30).contains(&v) {
+        Ok(v)
+    } else {
+        Err(format!("{v} is outside the allowed range: 0 (sized to the memory) or 1024 to 1073741824 bytes"))
     }
 }
 
@@ -54,9 +90,10 @@ pub struct Config {
     /// Address to listen on (port 0 picks a free port; the bound address is printed).
     #[arg(long, env = "JETLOOP_LISTEN", default_value = "127.0.0.1:50051")]
     pub listen: SocketAddr,
-    /// Largest accepted request message in bytes.
-    #[arg(long, env = "JETLOOP_MAX_REQUEST_BYTES", default_value_t = 64 * 1024 * 1024,
-          value_parser = clap::value_parser!(u64).range(1024..=1024 * 1024 * 1024))]
+    /// Largest accepted request message in bytes (0: 64 MiB or an eighth of the sample
+    /// budget, the smaller; otherwise 1024 to 1 GiB).
+    #[arg(long, env = "JETLOOP_MAX_REQUEST_BYTES", default_value_t = 0,
+          value_parser = parse_request_bytes)]
     pub max_request_bytes: u64,
     /// Server-side time limit for one call, in seconds.
     #[arg(long, env = "JETLOOP_REQUEST_TIMEOUT_S", default_value_t = 60,
@@ -68,12 +105,14 @@ pub struct Config {
           value_parser = clap::value_parser!(u64).range(1..=7 * 24 * 3600))]
     pub stream_timeout_s: u64,
     /// Calls processed at once, server-wide (the excess is refused with UNAVAILABLE and a
-    /// retry hint; health checks are exempt).
-    #[arg(long, env = "JETLOOP_MAX_CONCURRENT", default_value_t = 256,
-          value_parser = clap::value_parser!(u64).range(1..=65536))]
+    /// retry hint; health checks are exempt). 0: 256 or the sample budget over the request
+    /// size limit, the smaller, so calls in flight cannot hold more than the budget.
+    #[arg(long, env = "JETLOOP_MAX_CONCURRENT", default_value_t = 0,
+          value_parser = clap::value_parser!(u64).range(0..=65536))]
     pub max_concurrent_requests: u64,
-    /// Sample bytes all calls together may hold at once, in MiB (0: half the machine's
-    /// memory). Calls beyond it are refused with RESOURCE_EXHAUSTED naming the budget.
+    /// Sample bytes all calls together may hold at once, in MiB (0: half the memory the
+    /// process may use: the container's cgroup limit where one is set, else the machine's).
+    /// Calls beyond it are refused with RESOURCE_EXHAUSTED naming the budget.
     #[arg(long, env = "JETLOOP_SAMPLE_BUDGET_MIB", default_value_t = 0,
           value_parser = clap::value_parser!(u64).range(0..=1 << 22))]
     pub sample_budget_mib: u64,
@@ -417,15 +456,30 @@ impl Config {
 
     /// Limits from the flags.
     pub fn limits(&self) -> Limits {
+        self.limits_for(sizing::memory_limit())
+    }
+
+    /// Limits from the flags, those left at 0 sized for `memory` ([`sizing::size`]).
+    pub fn limits_for(&self, memory: sizing::MemoryLimit) -> Limits {
+        let given = |v: u64, scale: u64| {
+            (v > 0).then(|| usize::try_from(v.saturating_mul(scale)).unwrap_or(usize::MAX))
+        };
+        let (budget, request, concurrency) = (
+            given(self.sample_budget_mib, 1 << 20),
+            given(self.max_request_bytes, 1),
+            given(self.max_concurrent_requests, 1),
+        );
+        let s = sizing::size(memory, budget, request, concurrency);
         Limits {
-            max_request_bytes: usize::try_from(self.max_request_bytes).unwrap_or(usize::MAX),
+            max_request_bytes: s.max_request_bytes,
             request_timeout: Duration::from_secs(self.request_timeout_s),
             stream_timeout: Duration::from_secs(self.stream_timeout_s),
-            max_concurrent_requests: usize::try_from(self.max_concurrent_requests).unwrap_or(usize::MAX),
-            sample_budget_bytes: match self.sample_budget_mib {
-                0 => default_sample_budget(),
-                mib => usize::try_from(mib << 20).unwrap_or(usize::MAX),
-            },
+            max_concurrent_requests: s.max_concurrent_requests,
+            sample_budget_bytes: s.sample_budget_bytes,
+            sized_from: Some(SizedFrom {
+                memory,
+                given: [budget.is_some(), request.is_some(), concurrency.is_some()],
+            }),
         }
     }
 }
