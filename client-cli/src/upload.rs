@@ -1,7 +1,8 @@
 //! Getting a recording to the server: one request when it fits the server's limit on samples
-//! per request (asked with ServerInfo), else the block stream `ExtractTonesStream`, read from
-//! disk a block at a time so the client holds a few blocks, not the recording. Commands
-//! without a streaming RPC refuse a recording over the limit before anything is sent.
+//! per request (asked with ServerInfo), else the block streams `ExtractTonesStream` and
+//! `CrossSpectraStream`, read from disk a block at a time so the client holds a few blocks,
+//! not the recording. Commands without a streaming RPC refuse a recording over the limit
+//! before anything is sent.
 
 use crate::args::input::Recording;
 use crate::connect::Conn;
@@ -107,21 +108,76 @@ pub(crate) enum Blocks {
     Disk(DiskRecording, usize),
 }
 
-/// Sends the question (its sample bytes emptied) and then the blocks, with a progress bar of
-/// bytes sent on a terminal. From disk, a reader thread keeps at most four blocks ahead of
-/// the upload; a read error stops the upload and is returned instead of the answer.
+/// The messages of a block stream as they go out.
+pub(crate) type BlockStream<M> = std::pin::Pin<Box<dyn tokio_stream::Stream<Item = M> + Send + 'static>>;
+
+/// Empties the raw sample bytes of a question sent as the first message of a block stream
+/// (the frames follow in blocks).
+fn without_frames(samples: Option<&mut pb::Samples>) {
+    if let Some(pb::samples::Data::Raw(raw)) = samples.and_then(|s| s.data.as_mut()) {
+        raw.data = bytes::Bytes::new();
+    }
+}
+
+/// Sends ExtractTones' question (its sample bytes emptied) and then the blocks through
+/// `ExtractTonesStream`, as [`send_in_blocks`].
 ///
 /// # Errors
-/// [`Failure::Server`] for the server's answer, [`Failure::Usage`] for a read error.
+/// As [`send_in_blocks`].
 pub(crate) async fn extract_in_blocks(
     client: &mut SpectrumServiceClient<Conn>,
     mut req: pb::ExtractTonesRequest,
     blocks: Blocks,
 ) -> Result<(pb::ExtractTonesResponse, usize), Failure> {
+    without_frames(req.samples.as_mut());
+    send_in_blocks(
+        blocks,
+        |expected_frames| pb::SampleBlock { request: Some(req), expected_frames, ..Default::default() },
+        |frames| pb::SampleBlock { frames, ..Default::default() },
+        |s| client.extract_tones_stream(s),
+    )
+    .await
+}
+
+/// Sends CrossSpectra's question (its sample bytes emptied) and then the blocks through
+/// `CrossSpectraStream`, as [`send_in_blocks`].
+///
+/// # Errors
+/// As [`send_in_blocks`].
+pub(crate) async fn cross_in_blocks(
+    client: &mut SpectrumServiceClient<Conn>,
+    mut req: pb::CrossSpectraRequest,
+    blocks: Blocks,
+) -> Result<(pb::CrossSpectraResponse, usize), Failure> {
+    without_frames(req.samples.as_mut());
+    send_in_blocks(
+        blocks,
+        |expected_frames| pb::CrossSpectraBlock { request: Some(req), expected_frames, ..Default::default() },
+        |frames| pb::CrossSpectraBlock { frames, ..Default::default() },
+        |s| client.cross_spectra_stream(s),
+    )
+    .await
+}
+
+/// Sends the first message (`first`, given the frames per channel when known) and then the
+/// blocks (each wrapped by `later`) through `call`, with a progress bar of bytes sent on a
+/// terminal; answers the reply and the blocks sent. From disk, a reader thread keeps at most
+/// four blocks ahead of the upload; a read error stops the upload and is returned instead of
+/// the answer.
+///
+/// # Errors
+/// [`Failure::Server`] for the server's answer, [`Failure::Usage`] for a read error.
+pub(crate) async fn send_in_blocks<M, R, Fut>(
+    blocks: Blocks,
+    first: impl FnOnce(Option<u64>) -> M,
+    later: fn(bytes::Bytes) -> M,
+    call: impl FnOnce(BlockStream<M>) -> Fut,
+) -> Result<(R, usize), Failure>
+where
+    M: Send + 'static,
+    Fut: std::future::Future<Output = Result<tonic::Response<R>, tonic::Status>>,
+{
     use tokio_stream::StreamExt;
-    if let Some(pb::samples::Data::Raw(raw)) = req.samples.as_mut().and_then(|s| s.data.as_mut()) {
-        raw.data = bytes::Bytes::new();
-    }
     let (tx, rx) = tokio::sync::mpsc::channel::<bytes::Bytes>(4);
     let failed: Arc<Mutex<Option<Failure>>> = Arc::default();
     let (total, expected_frames) = match blocks {
@@ -167,7 +223,7 @@ pub(crate) async fn extract_in_blocks(
             .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
     );
     let shown = bar.clone();
-    let first = pb::SampleBlock { request: Some(req), expected_frames, ..Default::default() };
+    let first = first(expected_frames);
     let sent = Arc::new(std::sync::atomic::AtomicUsize::new(0));
     let counted = sent.clone();
     let rest = tokio_stream::wrappers::ReceiverStream::new(rx).map(move |frames| {
@@ -180,9 +236,9 @@ pub(crate) async fn extract_in_blocks(
             );
             shown.enable_steady_tick(std::time::Duration::from_millis(120));
         }
-        pb::SampleBlock { frames, ..Default::default() }
+        later(frames)
     });
-    let r = client.extract_tones_stream(tokio_stream::once(first).chain(rest)).await;
+    let r = call(Box::pin(tokio_stream::once(first).chain(rest))).await;
     bar.finish_and_clear();
     if let Some(e) = failed.lock().ok().and_then(|mut f| f.take()) {
         return Err(e);

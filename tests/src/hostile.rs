@@ -95,6 +95,20 @@ pub fn base_calls() -> Vec<BaseCall> {
         welch: welch(512),
         ..Default::default()
     });
+    let cross_first = pb::CrossSpectraBlock {
+        request: Some(pb::CrossSpectraRequest {
+            samples: Some(f32_pascals(Vec::new(), 48_000.0, 2)),
+            welch: welch(512),
+            ..Default::default()
+        }),
+        ..Default::default()
+    };
+    // Two blocks of 1024 frames of a ring of two microphones (f32, interleaved).
+    let ring2 = ring_f32(2, 2048, 48_000.0, 3);
+    let cross_frames = |at: usize| pb::CrossSpectraBlock {
+        frames: Bytes::copy_from_slice(&ring2[at * 8192..(at + 1) * 8192]),
+        ..Default::default()
+    };
     let track_first = fixtures::track_config(48_000.0, 512, 0.02);
     vec![
         BaseCall {
@@ -205,6 +219,11 @@ pub fn base_calls() -> Vec<BaseCall> {
                 enc(&frames_block(f32s(1024, 3000.0))),
                 enc(&frames_block(f32s(1024, 3000.0))),
             ],
+            weight: 4,
+        },
+        BaseCall {
+            path: "/jetloop.v1.SpectrumService/CrossSpectraStream",
+            messages: vec![enc(&cross_first), enc(&cross_frames(0)), enc(&cross_frames(1))],
             weight: 4,
         },
         BaseCall {
@@ -556,7 +575,7 @@ pub mod in_process {
         shock_cell_service_server::ShockCellService, spectrum_service_server::SpectrumService,
         staging_service_server::StagingService, tone_service_server::ToneService,
     };
-    use jetloop_server::api::spectrum::{ToneStream, TrackSession};
+    use jetloop_server::api::spectrum::{BlockAnalysis, CrossStream, ToneStream, TrackSession};
     use jetloop_server::dsp::samples::{Format, Layout, Recording};
     use jetloop_server::runtime::budget::SampleBudget;
     use jetloop_server::service::{
@@ -645,6 +664,24 @@ pub mod in_process {
                 let r = tokio::task::spawn_blocking(move || -> Result<(), jetloop_server::api::ApiError> {
                     let mut it = blocks.into_iter();
                     let mut s = ToneStream::start(it.next().unwrap_or_default())?;
+                    for b in it {
+                        s.next(b)?;
+                    }
+                    s.finish().map(|_| ())
+                })
+                .await
+                .map_err(|e| format!("{path}: the stream analysis panicked: {e}"))?;
+                Some(r.map_or_else(|e| tonic::Status::from(e).code(), |()| Code::Ok))
+            }
+            "/jetloop.v1.SpectrumService/CrossSpectraStream" => {
+                let Some(blocks) =
+                    messages.iter().map(|m| decode::<pb::CrossSpectraBlock>(m)).collect::<Option<Vec<_>>>()
+                else {
+                    return Ok(None);
+                };
+                let r = tokio::task::spawn_blocking(move || -> Result<(), jetloop_server::api::ApiError> {
+                    let mut it = blocks.into_iter();
+                    let mut s = CrossStream::start(it.next().unwrap_or_default())?;
                     for b in it {
                         s.next(b)?;
                     }

@@ -61,10 +61,11 @@ pub struct TonesCmd {
     /// Write the PSD as CSV (frequency_hz, density_pa2_per_hz, floor_pa2_per_hz).
     #[arg(long)]
     psd_csv: Option<PathBuf>,
-    /// Send the samples in blocks of about this many bytes (ExtractTonesStream, 1024 to
-    /// 33554432), so the server analyses while the upload runs; WAV and raw files are then
-    /// read from disk a block at a time. Unset: blocks of 1 MiB for WAV and raw recordings over
-    /// 4 MiB or over the server's limit on samples per request (ServerInfo), else one request.
+    /// Send the samples in blocks of about this many bytes (ExtractTonesStream, and
+    /// CrossSpectraStream with --cross or --azimuths-deg; 1024 to 33554432), so the server
+    /// analyses while the upload runs; WAV and raw files are then read from disk a block at a
+    /// time. Unset: blocks of 1 MiB for WAV and raw recordings over 4 MiB or over the server's
+    /// limit on samples per request (ServerInfo), else one request.
     #[arg(long, value_parser = crate::upload::parse_block_bytes)]
     block_bytes: Option<usize>,
     /// The jet the recording was made at (nozzle and --npr, or --mj with --dj-m / --hj-m):
@@ -212,9 +213,6 @@ impl Run for TonesCmd {
         let cross = a.cross || !a.azimuths_deg.is_empty();
         let limit = upload::max_request_samples(ch.clone()).await;
         let over = rec.sample_count() > limit;
-        if cross {
-            upload::fits_one_request(&rec, &a.input.file, limit, "CrossSpectra (--cross, --azimuths-deg)")?;
-        }
         if rec.disk.is_none() {
             // Values read from text travel in one request.
             upload::fits_one_request(&rec, &a.input.file, limit, "ExtractTones of a CSV recording")?;
@@ -226,34 +224,48 @@ impl Run for TonesCmd {
         };
         let block = a.block_bytes.or((over || wire_bytes > 4 << 20).then_some(1 << 20));
         let labelled = a.jet.given();
-        let mut client = SpectrumServiceClient::new(ch)
-            .max_decoding_message_size(256 * 1024 * 1024)
-            .max_encoding_message_size(256 * 1024 * 1024);
-        // From disk, block by block, unless the cross-channel analysis needs the samples in
-        // memory anyway (it fits one request, checked above).
-        let (req, blocks, cross_samples) = match (block, rec.disk.clone()) {
-            (Some(block), Some(disk)) if !cross => {
-                (a.request(rec.samples)?, Some(upload::Blocks::Disk(disk, block)), None)
+        let client = |ch| {
+            SpectrumServiceClient::new(ch)
+                .max_decoding_message_size(256 * 1024 * 1024)
+                .max_encoding_message_size(256 * 1024 * 1024)
+        };
+        // Block streams last as long as their upload: a connection without the default call
+        // limit (--timeout still applies).
+        let mut streams = match block {
+            Some(_) => Some(client(ctx.stream_channel().await?)),
+            None => None,
+        };
+        let mut unary = client(ch);
+        // From disk, block by block: the tones through ExtractTonesStream and, when asked for,
+        // the cross-channel analysis through CrossSpectraStream (the file read a second time),
+        // so a recording of any length is analysed holding a few blocks. Otherwise the samples
+        // are read into memory (they fit one request: checked above).
+        let (req, blocks, cross_input) = match (block, rec.disk.clone()) {
+            (Some(block), Some(disk)) => {
+                let cross_input = cross.then(|| {
+                    (a.cross_request(rec.samples.clone()), Some(upload::Blocks::Disk(disk.clone(), block)))
+                });
+                (a.request(rec.samples)?, Some(upload::Blocks::Disk(disk, block)), cross_input)
             }
             _ => {
                 let samples = rec.into_samples()?;
                 let blocks = block.and_then(|b| upload::blocks_of(&samples, b)).map(upload::Blocks::Memory);
-                let cross_samples = cross.then(|| samples.clone());
-                (a.request(samples)?, blocks, cross_samples)
+                let cross_input = cross.then(|| (a.cross_request(samples.clone()), None));
+                (a.request(samples)?, blocks, cross_input)
             }
         };
-        let (r, timing) = match blocks {
-            Some(blocks) => {
-                let (r, n) = upload::extract_in_blocks(&mut client, req, blocks).await?;
+        let (r, timing) = match (blocks, streams.as_mut()) {
+            (Some(blocks), Some(client)) => {
+                let (r, n) = upload::extract_in_blocks(client, req, blocks).await?;
                 let t = format!(
                     "sent in {n} blocks; {:.1} ms from the last block to the answer",
                     r.compute_time_s * 1e3
                 );
                 (r, t)
             }
-            None => {
+            _ => {
                 let s = spinner("uploading and analysing on the server");
-                let r = client.extract_tones(req).await;
+                let r = unary.extract_tones(req).await;
                 s.finish_and_clear();
                 let r = r?.into_inner();
                 let t = format!("{:.1} ms server time", r.compute_time_s * 1e3);
@@ -262,11 +274,20 @@ impl Run for TonesCmd {
         };
         a.write_psd_files(&r)?;
         let mut top = tones_report(r, &a.input.file, &timing, labelled);
-        if let Some(samples) = cross_samples {
-            let s = spinner("cross-channel analysis on the server");
-            let x = client.cross_spectra(a.cross_request(samples)).await;
-            s.finish_and_clear();
-            top = top.child(cross_report(&x?.into_inner()));
+        let x = match (cross_input, streams.as_mut()) {
+            (None, _) => None,
+            (Some((xreq, Some(blocks))), Some(client)) => {
+                Some(upload::cross_in_blocks(client, xreq, blocks).await?.0)
+            }
+            (Some((xreq, _)), _) => {
+                let s = spinner("cross-channel analysis on the server");
+                let x = unary.cross_spectra(xreq).await;
+                s.finish_and_clear();
+                Some(x?.into_inner())
+            }
+        };
+        if let Some(x) = x {
+            top = top.child(cross_report(&x));
         }
         Ok(top)
     }

@@ -17,14 +17,14 @@
 //!   has equal energy in +m and -m; a spinning (helical) one in one sign only. Exact for
 //!   equally spaced azimuths; orders beyond M/2 alias onto lower ones.
 
-use super::samples::{sum, ChannelView};
-use super::welch::{Detrend, WelchConfig, WelchError};
-use super::window::WindowSums;
+use super::samples::ChannelView;
+use super::welch::{WelchConfig, WelchError};
 use crate::cancel::Cancel;
-use rayon::prelude::*;
 use realfft::num_complex::Complex;
-use realfft::RealFftPlanner;
 use std::f64::consts::PI;
+
+mod accumulator;
+pub use accumulator::CrossAccumulator;
 
 /// Cross-spectral densities of several channels against one reference.
 #[derive(Debug, Clone, PartialEq)]
@@ -124,7 +124,8 @@ fn locked_amplitude(pxx: f64, pxy: Complex<f64>) -> Complex<f64> {
 }
 
 /// Welch cross-spectra of `channels` against `channels[reference]` (the result's `psd` and
-/// `csd` list the other channels in order), stopping when `cancel` is set.
+/// `csd` list the other channels in order), stopping when `cancel` is set: one
+/// [`CrossAccumulator`] fed every channel at once.
 ///
 /// # Errors
 /// [`WelchError`] for a bad segment length or overlap, too few samples, a non-finite sample,
@@ -136,116 +137,7 @@ pub fn cross_spectra(
     config: WelchConfig,
     cancel: &Cancel,
 ) -> Result<CrossSpectra, WelchError> {
-    config.check()?;
-    let n = config.nperseg;
-    let len = channels.first().map_or(0, ChannelView::len);
-    if len < n {
-        return Err(WelchError::TooShort { nperseg: n, samples: len });
-    }
-    let step = n - config.noverlap;
-    let segments = (len - config.noverlap) / step;
-    let window = config.window.values(n);
-    let sums = WindowSums::of(&window);
-    let fft = RealFftPlanner::<f64>::new().plan_fft_forward(n);
-    let bins = n / 2 + 1;
-    let m = channels.len();
-    let others: Vec<usize> = (0..m).filter(|&c| c != reference).collect();
-    // Accumulators: auto spectra of every channel, cross spectra of the others with the
-    // reference.
-    struct Acc {
-        auto: Vec<Vec<f64>>,
-        cross: Vec<Vec<Complex<f64>>>,
-        bad: Option<(usize, usize, f64)>,
-    }
-    let threads = rayon::current_num_threads().max(1).min(segments);
-    let per = segments.div_ceil(threads);
-    let parts: Vec<Acc> = (0..threads)
-        .into_par_iter()
-        .map(|t| {
-            let mut acc = Acc {
-                auto: vec![vec![0.0; bins]; m],
-                cross: vec![vec![Complex::new(0.0, 0.0); bins]; others.len()],
-                bad: None,
-            };
-            let mut buf = vec![0.0; n];
-            let mut spectra = vec![vec![Complex::new(0.0, 0.0); bins]; m];
-            let mut scratch = fft.make_scratch_vec();
-            for s in t * per..((t + 1) * per).min(segments) {
-                if cancel.is_cancelled() {
-                    break;
-                }
-                for (c, x) in channels.iter().enumerate() {
-                    x.read(s * step, &mut buf);
-                    if acc.bad.is_none() {
-                        if let Some((i, v)) = super::samples::first_non_finite(&buf) {
-                            acc.bad = Some((c, s * step + i, v));
-                        }
-                    }
-                    let mean = match config.detrend {
-                        Detrend::Mean => sum(&buf) / n as f64,
-                        Detrend::None => 0.0,
-                    };
-                    for (v, w) in buf.iter_mut().zip(&window) {
-                        *v = (*v - mean) * w;
-                    }
-                    if fft.process_with_scratch(&mut buf, &mut spectra[c], &mut scratch).is_err() {
-                        continue;
-                    }
-                    for (a, z) in acc.auto[c].iter_mut().zip(&spectra[c]) {
-                        *a += z.norm_sqr();
-                    }
-                }
-                for (j, &c) in others.iter().enumerate() {
-                    for ((a, r), y) in acc.cross[j].iter_mut().zip(&spectra[reference]).zip(&spectra[c]) {
-                        *a += r.conj() * y;
-                    }
-                }
-            }
-            acc
-        })
-        .collect();
-    if cancel.is_cancelled() {
-        return Err(WelchError::Stopped);
-    }
-    let mut auto = vec![vec![0.0; bins]; m];
-    let mut cross = vec![vec![Complex::new(0.0, 0.0); bins]; others.len()];
-    let mut bad: Option<(usize, usize, f64)> = None;
-    for p in parts {
-        if let Some(b) = p.bad {
-            if bad.is_none_or(|x| (b.0, b.1) < (x.0, x.1)) {
-                bad = Some(b);
-            }
-        }
-        for (d, s) in auto.iter_mut().zip(&p.auto) {
-            for (a, b) in d.iter_mut().zip(s) {
-                *a += b;
-            }
-        }
-        for (d, s) in cross.iter_mut().zip(&p.cross) {
-            for (a, b) in d.iter_mut().zip(s) {
-                *a += b;
-            }
-        }
-    }
-    if let Some((_, index, value)) = bad {
-        return Err(WelchError::NotFinite { index, value });
-    }
-    let scale = 1.0 / (fs * sums.sum_sq) / segments as f64;
-    let last = if n % 2 == 0 { bins - 1 } else { bins };
-    let factor = |k: usize| if k == 0 || k == last { scale } else { 2.0 * scale };
-    for d in &mut auto {
-        for (k, v) in d.iter_mut().enumerate() {
-            *v *= factor(k);
-        }
-    }
-    for d in &mut cross {
-        for (k, v) in d.iter_mut().enumerate() {
-            *v *= factor(k);
-        }
-    }
-    let reference_psd = auto[reference].clone();
-    let psd = others.iter().map(|&c| auto[c].clone()).collect();
-    Ok(CrossSpectra { fs, config, segments, reference_psd, psd, csd: cross })
+    CrossAccumulator::new(channels.len(), reference, fs, config)?.with_cancel(cancel.clone()).finish(channels)
 }
 
 /// Symmetry of a pair of microphones on opposite sides of the jet at one tone.
@@ -346,6 +238,7 @@ pub fn radians(deg: &[f64]) -> Vec<f64> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::dsp::welch::Detrend;
     use crate::dsp::window::Window;
 
     fn cfg(n: usize) -> WelchConfig {

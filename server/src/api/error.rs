@@ -228,7 +228,7 @@ pub fn inbound_status(status: &Status) -> Option<Status> {
             details.add_bad_request_violation("(request body)", msg.to_string());
             Some(Status::with_error_details(
                 tonic::Code::ResourceExhausted,
-                format!("{msg}; send smaller messages (samples in blocks: ExtractTonesStream)"),
+                format!("{msg}; send smaller messages (samples in blocks: ExtractTonesStream, CrossSpectraStream)"),
                 details,
             ))
         }

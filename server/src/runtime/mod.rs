@@ -94,10 +94,10 @@ pub(crate) fn work_of<T>(request: &tonic::Request<T>) -> Work {
     request.extensions().get::<Work>().cloned().unwrap_or_default()
 }
 
-/// The longest wait for the next message of an upload stream (ExtractTonesStream) before it
-/// is ended as stalled, for its handler (a request extension): the per-call time limit, which
-/// such a stream meets between its blocks, while the stream as a whole may last the stream
-/// time limit.
+/// The longest wait for the next message of an upload stream (ExtractTonesStream,
+/// CrossSpectraStream) before it is ended as stalled, for its handler (a request extension):
+/// the per-call time limit, which such a stream meets between its blocks, while the stream as
+/// a whole may last the stream time limit.
 #[derive(Debug, Clone, Copy)]
 pub struct BlockGap(pub std::time::Duration);
 

@@ -2,8 +2,8 @@
 
 use crate::api::error::PreconditionViolation;
 use crate::api::spectrum::{
-    held_bytes, sample_width, values_in, BandQuery, CrossQuery, RampQuery, ToneQuery, ToneStream,
-    TrackSession,
+    held_bytes, sample_width, values_in, BandQuery, BlockAnalysis, CrossQuery, CrossStream, RampQuery,
+    ToneQuery, ToneStream, TrackSession,
 };
 use crate::api::{ApiError, Compute};
 use crate::metrics::Metrics;
@@ -65,53 +65,38 @@ impl Spectrum {
         drop(held);
         Ok(Response::new(r))
     }
-}
 
-#[tonic::async_trait]
-impl SpectrumService for Spectrum {
-    async fn extract_tones(
+    /// A block stream (`A`: ExtractTonesStream, CrossSpectraStream) analysed as it arrives.
+    ///
+    /// The analysis runs on one blocking thread (fanning segments out to rayon) and takes
+    /// blocks from this loop as they arrive; the reactor only moves bytes. The feed ends with
+    /// `None`; if it closes without one (the caller went away, or the deadline dropped this
+    /// handler), the analysis stops without finishing. The feed holds a few blocks at most: a
+    /// client faster than the analysis waits (HTTP/2 flow control), it is not refused. Every
+    /// block's bytes count against the server-wide budget until the analysis has taken it in;
+    /// then they are given back (`released`), so a stream of any length holds about one Welch
+    /// segment per channel.
+    async fn block_stream<A: BlockAnalysis>(
         &self,
-        request: Request<pb::ExtractTonesRequest>,
-    ) -> Result<Response<pb::ExtractTonesResponse>, Status> {
-        self.held_analysis(
-            request,
-            |r| r.samples.as_ref(),
-            "spectral analysis",
-            |req, c| ToneQuery::try_from(req)?.compute(c),
-        )
-        .await
-    }
-
-    async fn extract_tones_stream(
-        &self,
-        request: Request<Streaming<pb::SampleBlock>>,
-    ) -> Result<Response<pb::ExtractTonesResponse>, Status> {
+        request: Request<Streaming<A::Block>>,
+    ) -> Result<Response<A::Answer>, Status> {
         let work = crate::runtime::work_of(&request);
         // The longest wait for a block (the per-call limit; none outside a server).
         let gap = request.extensions().get::<crate::runtime::BlockGap>().map(|g| g.0);
         let mut incoming = request.into_inner();
-        let first = incoming.message().await?.ok_or_else(|| Status::from(ToneStream::empty()))?;
-        // Every block's bytes count against the server-wide budget until the stream ends.
+        let first = incoming.message().await?.ok_or_else(|| Status::from(A::empty()))?;
         let mut held = Held::default();
-        let first_bytes =
-            first.frames.len() + held_bytes(first.request.as_ref().and_then(|r| r.samples.as_ref()));
+        let first_bytes = A::frame_bytes(&first) + held_bytes(A::opening_samples(&first));
         self.budget.take(&mut held, first_bytes, "request.samples")?;
-        let width = sample_width(first.request.as_ref().and_then(|r| r.samples.as_ref()));
+        let width = sample_width(A::opening_samples(&first));
         self.count(first_bytes, width);
-        // The analysis runs on one blocking thread (fanning segments out to rayon) and takes
-        // blocks from this loop as they arrive; the reactor only moves bytes. The feed ends with
-        // `None`; if it closes without one (the caller went away, or the deadline dropped this
-        // handler), the analysis stops without finishing. The feed holds a few blocks at most:
-        // a client faster than the analysis waits (HTTP/2 flow control), it is not refused.
-        // Blocks the analysis has taken in are let go and their bytes given back to the budget
-        // (`released`), so a stream of any length holds about one Welch segment per channel.
-        let (tx, mut rx) = tokio::sync::mpsc::channel::<Option<pb::SampleBlock>>(STREAM_FEED_BLOCKS);
+        let (tx, mut rx) = tokio::sync::mpsc::channel::<Option<A::Block>>(STREAM_FEED_BLOCKS);
         let released = Arc::new(std::sync::atomic::AtomicUsize::new(0));
         let released_by_worker = released.clone();
         let (cancel, computing) = (work.cancel, work.computing);
         let worker = tokio::task::spawn_blocking(move || -> Result<_, ApiError> {
             let _running = crate::runtime::Running::start(&computing);
-            let mut stream = ToneStream::start(first)?;
+            let mut stream = A::start(first)?;
             loop {
                 released_by_worker.store(stream.released_bytes(), std::sync::atomic::Ordering::Release);
                 match rx.blocking_recv() {
@@ -146,24 +131,18 @@ impl SpectrumService for Spectrum {
                     )));
                 }
                 if let Ok(m) = tokio::time::timeout(STREAM_CANCEL_POLL, incoming.message()).await {
-                    break Ok(m);
-                }
-            };
-            let next = match next {
-                Ok(m) => m,
-                Err(e) => {
-                    received = Err(e);
-                    break;
+                    break m;
                 }
             };
             match next {
                 Ok(Some(block)) => {
                     held.release_front(released.load(std::sync::atomic::Ordering::Acquire));
-                    if let Err(e) = self.budget.take(&mut held, block.frames.len(), "frames") {
+                    let bytes = A::frame_bytes(&block);
+                    if let Err(e) = self.budget.take(&mut held, bytes, "frames") {
                         received = Err(Status::from(e));
                         break;
                     }
-                    self.count(block.frames.len(), width);
+                    self.count(bytes, width);
                     if tx.send(Some(block)).await.is_err() {
                         // The analysis stopped on an error; it is reported below.
                         break;
@@ -181,10 +160,40 @@ impl SpectrumService for Spectrum {
             }
         }
         drop(tx);
-        let answer = crate::runtime::join("spectral analysis", worker.await)?;
+        let answer = crate::runtime::join(A::WHAT, worker.await)?;
         drop(held);
         received?;
         Ok(Response::new(answer.map_err(Status::from)?))
+    }
+}
+
+#[tonic::async_trait]
+impl SpectrumService for Spectrum {
+    async fn extract_tones(
+        &self,
+        request: Request<pb::ExtractTonesRequest>,
+    ) -> Result<Response<pb::ExtractTonesResponse>, Status> {
+        self.held_analysis(
+            request,
+            |r| r.samples.as_ref(),
+            "spectral analysis",
+            |req, c| ToneQuery::try_from(req)?.compute(c),
+        )
+        .await
+    }
+
+    async fn extract_tones_stream(
+        &self,
+        request: Request<Streaming<pb::SampleBlock>>,
+    ) -> Result<Response<pb::ExtractTonesResponse>, Status> {
+        self.block_stream::<ToneStream>(request).await
+    }
+
+    async fn cross_spectra_stream(
+        &self,
+        request: Request<Streaming<pb::CrossSpectraBlock>>,
+    ) -> Result<Response<pb::CrossSpectraResponse>, Status> {
+        self.block_stream::<CrossStream>(request).await
     }
 
     type TrackTonesStream =

@@ -4,7 +4,9 @@ use super::*;
 use crate::api::Compute;
 use crate::cancel::Cancel;
 use crate::dsp::cross::CrossAtBin;
-use crate::dsp::cross::{azimuthal_modes, cross_spectra, pair_symmetry, radians, Pattern};
+use crate::dsp::cross::{
+    azimuthal_modes, cross_spectra, pair_symmetry, radians, CrossAccumulator, CrossSpectra, Pattern,
+};
 use crate::dsp::tones::Tone;
 
 /// Allowed microphone azimuth, degrees.
@@ -19,11 +21,11 @@ const SPECTRA_POINTS: Bounds = Bounds::closed(16.0, 1_048_577.0, "");
 /// A validated cross-channel question with its decoded samples.
 #[derive(Debug, Clone)]
 pub struct CrossQuery {
-    started: std::time::Instant,
-    samples: SampleSet,
-    welch: WelchConfig,
+    pub(super) started: std::time::Instant,
+    pub(super) samples: SampleSet,
+    pub(super) welch: WelchConfig,
     tones: ToneConfig,
-    reference: usize,
+    pub(super) reference: usize,
     azimuths_deg: Option<Vec<f64>>,
     spectra_points: Option<usize>,
     defaults: Defaults,
@@ -41,46 +43,53 @@ impl TryFrom<pb::CrossSpectraRequest> for CrossQuery {
     type Error = ApiError;
 
     fn try_from(req: pb::CrossSpectraRequest) -> Result<Self, ApiError> {
-        let pb::CrossSpectraRequest {
-            samples,
-            welch,
-            tones,
-            reference_channel,
-            positions,
-            spectra_max_points,
-        } = req;
-        let started = std::time::Instant::now();
-        let mut defaults = Defaults::default();
-        let samples = sample_set_for(samples, &mut defaults, false)?;
-        let channels = samples.recording.channel_count();
-        let mut check = Check::new();
-        if channels < 2 {
-            check.other(
-                "samples.channel_count",
-                format!(
-                    "samples.channel_count = {channels}: cross-channel analysis needs at least 2 channels"
-                ),
-            );
-        }
-        let w = welch_config(&mut check, &mut defaults, welch, samples.fs, samples.recording.len());
-        let tones = super::tones::tone_config(&mut check, &mut defaults, tones);
-        let (reference, azimuths_deg) =
-            reference_and_azimuths(&mut check, &mut defaults, reference_channel, &positions, channels, "");
-        let spectra_points = spectra_max_points.and_then(|m| {
-            check.range("", SPECTRA_POINTS.check("spectra_max_points", f64::from(m))).map(|v| v as usize)
-        });
-        let q = w.map(|welch| CrossQuery {
-            started,
-            samples,
-            welch,
-            tones,
-            reference,
-            azimuths_deg,
-            spectra_points,
-            defaults,
-        });
-        check.finish(q)
+        cross_query(req, None)
     }
+}
+
+/// Validates a CrossSpectra question. For the first message of a block stream (`stream`:
+/// the frames per channel it announces, if any) raw interleaved bytes are required, the first
+/// block may be empty, and the segment length is checked against the announced length.
+pub(super) fn cross_query(
+    req: pb::CrossSpectraRequest,
+    stream: Option<Option<u64>>,
+) -> Result<CrossQuery, ApiError> {
+    let pb::CrossSpectraRequest { samples, welch, tones, reference_channel, positions, spectra_max_points } =
+        req;
+    let started = std::time::Instant::now();
+    let mut defaults = Defaults::default();
+    let samples = sample_set_for(samples, &mut defaults, stream.is_some())?;
+    let known = match stream {
+        None => samples.recording.len(),
+        Some(Some(frames)) => usize::try_from(frames).unwrap_or(usize::MAX),
+        Some(None) => usize::MAX,
+    };
+    let channels = samples.recording.channel_count();
+    let mut check = Check::new();
+    if channels < 2 {
+        check.other(
+            "samples.channel_count",
+            format!("samples.channel_count = {channels}: cross-channel analysis needs at least 2 channels"),
+        );
+    }
+    let w = welch_config(&mut check, &mut defaults, welch, samples.fs, known);
+    let tones = super::tones::tone_config(&mut check, &mut defaults, tones);
+    let (reference, azimuths_deg) =
+        reference_and_azimuths(&mut check, &mut defaults, reference_channel, &positions, channels, "");
+    let spectra_points = spectra_max_points.and_then(|m| {
+        check.range("", SPECTRA_POINTS.check("spectra_max_points", f64::from(m))).map(|v| v as usize)
+    });
+    let q = w.map(|welch| CrossQuery {
+        started,
+        samples,
+        welch,
+        tones,
+        reference,
+        azimuths_deg,
+        spectra_points,
+        defaults,
+    });
+    check.finish(q)
 }
 
 fn pattern(p: Pattern) -> pb::AzimuthalPattern {
@@ -222,16 +231,45 @@ impl Compute for CrossQuery {
         let s = &q.samples;
         let channels = s.recording.channel_count();
         let views: Vec<ChannelView<'_>> = (0..channels).map(|c| s.recording.channel(c)).collect();
-        let cs = cross_spectra(&views, q.reference, s.fs, q.welch, &s.cancel).map_err(|e| match e {
-            WelchError::NotFinite { .. } => ApiError::Invalid(vec![FieldViolation {
-                field: s.field.into(),
-                description: format!("{}: {e}", s.field),
-            }]),
-            e => welch_error(e, s.field),
-        })?;
+        let cs =
+            cross_spectra(&views, q.reference, s.fs, q.welch, &s.cancel).map_err(|e| q.cross_error(e))?;
         // Tones of the reference channel from its own PSD (the same estimate as ExtractTones).
         let psd = s.psd(q.reference, q.welch)?;
-        let set = find_tones(&psd, &q.tones);
+        Ok(q.answer(&cs, &psd))
+    }
+}
+
+impl CrossQuery {
+    /// A cross-spectral estimate for this question, stopped by the samples' cancellation flag.
+    ///
+    /// # Errors
+    /// A bad segment length or overlap (already checked when the question was validated).
+    pub(super) fn accumulator(&self) -> Result<CrossAccumulator, ApiError> {
+        let s = &self.samples;
+        CrossAccumulator::new(s.recording.channel_count(), self.reference, s.fs, self.welch)
+            .map(|a| a.with_cancel(s.cancel.clone()))
+            .map_err(|e| welch_error(e, s.field))
+    }
+
+    /// A cross-spectral estimate's error, against the samples field.
+    pub(super) fn cross_error(&self, e: WelchError) -> ApiError {
+        let field = self.samples.field;
+        match e {
+            WelchError::NotFinite { .. } => ApiError::Invalid(vec![FieldViolation {
+                field: field.into(),
+                description: format!("{field}: {e}"),
+            }]),
+            e => welch_error(e, field),
+        }
+    }
+
+    /// Builds the answer from the cross-spectra `cs` and the reference channel's PSD `psd`.
+    pub(super) fn answer(&self, cs: &CrossSpectra, psd: &Psd) -> pb::CrossSpectraResponse {
+        let q = self;
+        let s = &q.samples;
+        let channels = s.recording.channel_count();
+        // Tones of the reference channel from its own PSD (the same estimate as ExtractTones).
+        let set = find_tones(psd, &q.tones);
         let others: Vec<usize> = (0..channels).filter(|&c| c != q.reference).collect();
         let mut order: Vec<usize> = (0..set.tones.len()).collect();
         order.sort_by(|&a, &b| set.tones[b].level_db.total_cmp(&set.tones[a].level_db));
@@ -274,13 +312,13 @@ impl Compute for CrossQuery {
         let mut used = SPECTRUM_MODELS.to_vec();
         used.push(models::TONE_EXTRACTION);
         used.push(models::CROSS_SPECTRA);
-        Ok(pb::CrossSpectraResponse {
+        pb::CrossSpectraResponse {
             reference_channel: q.reference as u32,
-            analysis: Some(analysis(&psd, s.recording.len(), Some(&set))),
+            analysis: Some(analysis(psd, s.recording.len(), Some(&set))),
             tones,
             spectra,
             compute_time_s: q.started.elapsed().as_secs_f64(),
             provenance: Some(provenance(&used, &q.defaults, notes)),
-        })
+        }
     }
 }

@@ -5,7 +5,9 @@
 //! - `welch`: segment, window, overlap and detrend -> `WelchConfig`, and Welch errors;
 //! - `tones`: tone options and [`ToneQuery`], the per-channel answer;
 //! - `bands`: [`BandQuery`] and the band answer;
-//! - `stream`: [`ToneStream`], a block stream analysed as it arrives.
+//! - `stream`: [`BlockAnalysis`] and [`ToneStream`], a block stream analysed as it arrives;
+//! - `cross`, `cross_stream`: [`CrossQuery`] and [`CrossStream`], the cross-channel answer
+//!   for one request or a block stream.
 
 use super::error::{ApiError, Check, FieldViolation, PreconditionViolation};
 use super::provenance::{provenance, Defaults};
@@ -32,6 +34,7 @@ use crate::dsp::limits::*;
 mod bands;
 mod corrections;
 mod cross;
+mod cross_stream;
 mod ramp;
 mod samples;
 mod stream;
@@ -43,10 +46,11 @@ use bands::band_summary;
 pub use bands::BandQuery;
 use corrections::level_corrections;
 pub use cross::CrossQuery;
+pub use cross_stream::CrossStream;
 pub use ramp::RampQuery;
 use samples::sample_set_for;
 pub use samples::{held_bytes, sample_set, sample_width, values_in, SampleSet};
-pub use stream::ToneStream;
+pub use stream::{BlockAnalysis, ToneStream};
 pub use tones::ToneQuery;
 use tones::{analysis, caution, tone_query, tones_message, SPECTRUM_MODELS};
 pub use track::TrackSession;
