@@ -105,8 +105,11 @@ pub struct InputArgs {
     pub volts_per_unit: Option<f64>,
     /// One calibration per channel (a ring or array of microphones, each with its own
     /// sensitivity): a TOML file with one `[[channel]]` table per channel, in channel order, each
-    /// giving pa_per_unit, or sensitivity_v_per_pa and volts_per_unit, and optionally a name.
-    /// Replaces --pa-per-unit, --sensitivity-v-per-pa and --in-pascals.
+    /// giving pa_per_unit, or sensitivity_v_per_pa and volts_per_unit, and optionally a name,
+    /// the microphone's response_curve (CSV frequency_hz,correction_db, relative to the
+    /// calibration file; added to that channel's levels after any --response-curve) and its
+    /// azimuth_deg on a ring (used by --cross when --azimuths-deg is not given). Replaces
+    /// --pa-per-unit, --sensitivity-v-per-pa and --in-pascals.
     #[arg(long, conflicts_with_all = ["sensitivity_v_per_pa", "in_pascals"])]
     pub calibration_file: Option<PathBuf>,
     /// Group and channels of a TDMS file.
@@ -143,9 +146,20 @@ pub(crate) struct Recording {
     pub samples: pb::Samples,
     /// The file's samples on disk, for WAV and raw files.
     pub disk: Option<DiskRecording>,
+    /// Per-channel response curves from the calibration file (empty: none given).
+    pub channel_curves: Vec<Vec<pb::ResponseCurve>>,
+    /// Per-channel ring azimuths in degrees from the calibration file (empty: not given for
+    /// every channel).
+    pub azimuths_deg: Vec<f64>,
 }
 
 impl Recording {
+    /// A recording of `samples` (and the file on disk), nothing per channel from a
+    /// calibration file yet.
+    pub(crate) fn of(samples: pb::Samples, disk: Option<DiskRecording>) -> Self {
+        Self { samples, disk, channel_curves: Vec::new(), azimuths_deg: Vec::new() }
+    }
+
     /// Samples of all channels together.
     pub(crate) fn sample_count(&self) -> u64 {
         match (&self.disk, &self.samples.data) {
@@ -175,8 +189,19 @@ impl Recording {
     }
 }
 
-/// One channel's calibration from a calibration file, and its name ("" when not given).
-pub(crate) type ChannelCalibration = (pb::Calibration, String);
+/// One channel's entry in a calibration file.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct ChannelCalibration {
+    /// Its calibration.
+    pub calibration: pb::Calibration,
+    /// Its name ("" when not given).
+    pub name: String,
+    /// Its microphone's response curve (`response_curve`, a CSV file of frequency_hz and
+    /// correction_db, read relative to the calibration file's folder).
+    pub curve: Option<pb::ResponseCurve>,
+    /// Its azimuth on a ring, degrees (`azimuth_deg`).
+    pub azimuth_deg: Option<f64>,
+}
 
 /// Reads a calibration file (`--calibration-file`): one `[[channel]]` table per channel.
 ///
@@ -204,12 +229,16 @@ pub(crate) fn read_calibration_file(path: &std::path::Path) -> Result<Vec<Channe
                     .map(Some)
                     .ok_or_else(|| bad(format!("{entry}: {key} must be a number"))),
             };
-            if let Some(k) = t.keys().find(|k| {
-                !["name", "pa_per_unit", "sensitivity_v_per_pa", "volts_per_unit"].contains(&k.as_str())
-            }) {
-                return Err(bad(format!(
-                    "{entry}: unknown key {k} (known: name, pa_per_unit, sensitivity_v_per_pa, volts_per_unit)"
-                )));
+            const KEYS: [&str; 6] = [
+                "name",
+                "pa_per_unit",
+                "sensitivity_v_per_pa",
+                "volts_per_unit",
+                "response_curve",
+                "azimuth_deg",
+            ];
+            if let Some(k) = t.keys().find(|k| !KEYS.contains(&k.as_str())) {
+                return Err(bad(format!("{entry}: unknown key {k} (known: {})", KEYS.join(", "))));
             }
             let scale = match (num("pa_per_unit")?, num("sensitivity_v_per_pa")?, num("volts_per_unit")?) {
                 (Some(k), None, None) => Scale::PascalsPerUnit(k),
@@ -224,9 +253,33 @@ pub(crate) fn read_calibration_file(path: &std::path::Path) -> Result<Vec<Channe
             };
             let name = match t.get("name") {
                 None => String::new(),
-                Some(v) => v.as_str().map(str::to_string).ok_or_else(|| bad(format!("{entry}: name must be text")))?,
+                Some(v) => v
+                    .as_str()
+                    .map(str::to_string)
+                    .ok_or_else(|| bad(format!("{entry}: name must be text")))?,
             };
-            Ok((pb::Calibration { scale: Some(scale) }, name))
+            let curve = match t.get("response_curve") {
+                None => None,
+                Some(v) => {
+                    let rel = v
+                        .as_str()
+                        .ok_or_else(|| bad(format!("{entry}: response_curve must be a file name")))?;
+                    let file = path.parent().unwrap_or(std::path::Path::new(".")).join(rel);
+                    Some(crate::readers::read_curve(&file).map_err(|e| {
+                        bad(format!("{entry}: response_curve: {}", crate::failure::failure_text(&e)))
+                    })?)
+                }
+            };
+            let azimuth_deg = num("azimuth_deg")?;
+            if let Some(a) = azimuth_deg.filter(|a| !a.is_finite() || a.abs() > 360.0) {
+                return Err(bad(format!("{entry}: azimuth_deg = {a} is outside [-360, 360] degrees")));
+            }
+            Ok(ChannelCalibration {
+                calibration: pb::Calibration { scale: Some(scale) },
+                name,
+                curve,
+                azimuth_deg,
+            })
         })
         .collect()
 }
@@ -299,7 +352,7 @@ impl InputArgs {
                 given,
                 per_channel.is_some(),
             )?;
-            Recording { samples, disk: None }
+            Recording::of(samples, None)
         } else {
             let calibration =
                 if per_channel.is_some() { pb::Calibration::default() } else { self.calibration()? };
@@ -320,8 +373,15 @@ impl InputArgs {
                     self.file.display()
                 )));
             }
-            let named = per_channel.iter().all(|(_, n)| !n.is_empty());
-            let (cals, names): (Vec<_>, Vec<_>) = per_channel.into_iter().unzip();
+            let named = per_channel.iter().all(|c| !c.name.is_empty());
+            if per_channel.iter().any(|c| c.curve.is_some()) {
+                rec.channel_curves = per_channel.iter().map(|c| c.curve.iter().cloned().collect()).collect();
+            }
+            if per_channel.iter().all(|c| c.azimuth_deg.is_some()) {
+                rec.azimuths_deg = per_channel.iter().filter_map(|c| c.azimuth_deg).collect();
+            }
+            let (cals, names): (Vec<_>, Vec<_>) =
+                per_channel.into_iter().map(|c| (c.calibration, c.name)).unzip();
             samples.calibration = None;
             samples.channel_calibrations = cals;
             if samples.channel_names.is_empty() && named {
@@ -347,7 +407,7 @@ impl InputArgs {
                 let bytes = read_with_progress(&self.file)?;
                 let read = readers::csv(&self.file, &bytes, &self.csv_options(), calibration)?;
                 eprintln!("{}", read.summary(&self.file));
-                return Ok(Recording { samples: read.samples, disk: None });
+                return Ok(Recording::of(read.samples, None));
             }
             // TDMS files are opened by args/tdms.rs (only the channels asked are read).
             InputKind::Tdms => {
@@ -358,7 +418,7 @@ impl InputArgs {
                     Some(calibration),
                     false,
                 )?;
-                return Ok(Recording { samples, disk: None });
+                return Ok(Recording::of(samples, None));
             }
             InputKind::Wav => {
                 let d = readers::wav::open(&self.file)?;
@@ -373,7 +433,7 @@ impl InputArgs {
                 self.channel_layout(),
             )?,
         };
-        Ok(Recording { samples: disk.samples_with(bytes::Bytes::new(), calibration), disk: Some(disk) })
+        Ok(Recording::of(disk.samples_with(bytes::Bytes::new(), calibration), Some(disk)))
     }
 
     /// Refuses a flag that contradicts the WAV header `d`, naming both values.

@@ -119,6 +119,33 @@ impl CorrectionArgs {
     }
 }
 
+/// `corrections` with each channel's own response curve (a calibration file's
+/// `response_curve`) added after the curves common to all channels; unchanged when no channel
+/// has one. The distance of each channel is kept.
+pub(crate) fn with_channel_curves(
+    corrections: Option<pb::LevelCorrections>,
+    curves: &[Vec<pb::ResponseCurve>],
+) -> Option<pb::LevelCorrections> {
+    if curves.is_empty() {
+        return corrections;
+    }
+    let mut c = corrections.unwrap_or_default();
+    let base = std::mem::take(&mut c.channels);
+    c.channels = curves
+        .iter()
+        .enumerate()
+        .map(|(k, own)| {
+            // One common correction applies to every channel; otherwise each has its own.
+            let common = base.get(k).or(base.first()).cloned().unwrap_or_default();
+            pb::ChannelCorrection {
+                curves: common.curves.into_iter().chain(own.iter().cloned()).collect(),
+                distance_m: common.distance_m,
+            }
+        })
+        .collect();
+    Some(c)
+}
+
 /// Microphone positions from azimuths alone (degrees); polar angle and distance unset.
 pub(crate) fn positions(azimuths_deg: &[f64]) -> Vec<pb::MicrophonePosition> {
     azimuths_deg
@@ -156,6 +183,32 @@ mod tests {
         assert_eq!(o.window, pb::WindowKind::Unspecified as i32, "the server chooses (and records) it");
         assert_eq!(o.segment, Some(pb::welch_options::Segment::ResolutionHz(5.0)));
         assert_eq!(o.overlap_fraction, None);
+    }
+
+    #[test]
+    fn each_channel_curve_follows_the_common_ones() {
+        let curve = |f: f64| pb::ResponseCurve {
+            frequencies_hz: vec![f],
+            corrections_db: vec![1.0],
+            ..Default::default()
+        };
+        assert_eq!(with_channel_curves(None, &[]), None);
+        let common = pb::LevelCorrections {
+            channels: vec![pb::ChannelCorrection { curves: vec![curve(1.0)], distance_m: Some(2.0) }],
+            reference_distance_m: Some(1.0),
+            atmosphere: None,
+        };
+        let c =
+            with_channel_curves(Some(common), &[vec![curve(2.0)], vec![], vec![curve(3.0)]]).expect("some");
+        assert_eq!(c.channels.len(), 3);
+        assert_eq!(c.channels[0].curves, vec![curve(1.0), curve(2.0)]);
+        assert_eq!(c.channels[1].curves, vec![curve(1.0)]);
+        assert_eq!(c.channels[2].curves, vec![curve(1.0), curve(3.0)]);
+        assert!(
+            c.channels.iter().all(|ch| ch.distance_m == Some(2.0)) && c.reference_distance_m == Some(1.0)
+        );
+        let c = with_channel_curves(None, &[vec![curve(2.0)], vec![]]).expect("some");
+        assert_eq!((c.channels[0].curves.len(), c.channels[1].curves.len()), (1, 0));
     }
 
     #[test]

@@ -58,8 +58,10 @@ impl Run for BandsCmd {
         let rec = a.input.open()?;
         let limit = crate::upload::max_request_samples(ch.clone()).await;
         crate::upload::fits_one_request(&rec, &a.input.file, limit, "BandLevels")?;
+        let curves = rec.channel_curves.clone();
         let samples = rec.into_samples()?;
-        let request = a.request(samples)?;
+        let mut request = a.request(samples)?;
+        request.corrections = crate::args::spectral::with_channel_curves(request.corrections.take(), &curves);
         let s = spinner("uploading and analysing on the server");
         let r = SpectrumServiceClient::new(ch)
             .max_encoding_message_size(256 * 1024 * 1024)

@@ -1,9 +1,9 @@
 //! `jetloop tones`: tones, levels, harmonics, stage labels, band levels and cross-spectra of a recording.
 
 use crate::args::input::InputArgs;
-use crate::args::spectral::positions;
 use crate::args::spectral::CorrectionArgs;
 use crate::args::spectral::WelchArgs;
+use crate::args::spectral::{positions, with_channel_curves};
 use crate::commands::Run;
 use crate::connect::Ctx;
 use crate::failure::Failure;
@@ -240,7 +240,9 @@ impl Run for TonesCmd {
         // the cross-channel analysis through CrossSpectraStream (the file read a second time),
         // so a recording of any length is analysed holding a few blocks. Otherwise the samples
         // are read into memory (they fit one request: checked above).
-        let (req, blocks, cross_input) = match (block, rec.disk.clone()) {
+        // A calibration file's per-channel response curves and ring azimuths.
+        let (curves, file_azimuths) = (rec.channel_curves.clone(), rec.azimuths_deg.clone());
+        let (mut req, blocks, mut cross_input) = match (block, rec.disk.clone()) {
             (Some(block), Some(disk)) => {
                 let cross_input = cross.then(|| {
                     (a.cross_request(rec.samples.clone()), Some(upload::Blocks::Disk(disk.clone(), block)))
@@ -254,6 +256,10 @@ impl Run for TonesCmd {
                 (a.request(samples)?, blocks, cross_input)
             }
         };
+        req.corrections = with_channel_curves(req.corrections.take(), &curves);
+        if let Some((xreq, _)) = cross_input.as_mut().filter(|(x, _)| x.positions.is_empty()) {
+            xreq.positions = positions(&file_azimuths);
+        }
         let (r, timing) = match (blocks, streams.as_mut()) {
             (Some(blocks), Some(client)) => {
                 let (r, n) = upload::extract_in_blocks(client, req, blocks).await?;

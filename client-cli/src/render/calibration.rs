@@ -166,9 +166,9 @@ mod tests {
         let f = dir.join("cal.toml");
         std::fs::write(&f, calibration_toml(&answer(), Path::new("cal.wav"), (94.0, 1000.0))).expect("write");
         let back = crate::args::input::read_calibration_file(&f).expect("the written file reads back");
-        let names: Vec<&str> = back.iter().map(|(_, n)| n.as_str()).collect();
+        let names: Vec<&str> = back.iter().map(|c| c.name.as_str()).collect();
         assert_eq!(names, ["mic \"A\"", "channel 1", "no volts"]);
-        let scales: Vec<Option<Scale>> = back.iter().map(|(c, _)| c.scale).collect();
+        let scales: Vec<Option<Scale>> = back.iter().map(|c| c.calibration.scale).collect();
         // Exactly the numbers of the answer (TOML floats round-trip f64).
         assert_eq!(
             scales,

@@ -46,6 +46,12 @@ class ChannelCalibration:
     sensitivity_v_per_pa: Optional[float] = None
     pa_per_unit: Optional[float] = None
     volts_per_unit: Optional[float] = None
+    #: The microphone's response-curve file (CSV frequency_hz,correction_db) a calibration
+    #: file names, resolved against the file's folder; the CLI applies it, the Python client
+    #: keeps it for the caller.
+    response_curve: Optional[str] = None
+    #: The microphone's azimuth on a ring, degrees, as a calibration file gives it.
+    azimuth_deg: Optional[float] = None
 
     def message(self, where: str = "") -> s.Calibration:
         """The proto calibration; `where` names the channel in the error.
@@ -90,7 +96,8 @@ class ChannelCalibration:
 
 CalibrationLike = Union[Calibration, Sequence[Union[Calibration, ChannelCalibration]]]
 
-_KEYS = ("name", "pa_per_unit", "sensitivity_v_per_pa", "volts_per_unit")
+_KEYS = ("name", "pa_per_unit", "sensitivity_v_per_pa", "volts_per_unit", "azimuth_deg", "response_curve")
+_NUMBERS = ("pa_per_unit", "sensitivity_v_per_pa", "volts_per_unit", "azimuth_deg")
 
 
 def load_calibration_file(path: Union[str, os.PathLike]) -> List[ChannelCalibration]:
@@ -122,14 +129,19 @@ def load_calibration_file(path: Union[str, os.PathLike]) -> List[ChannelCalibrat
         unknown = [k for k in t if k not in _KEYS]
         if unknown:
             raise ValueError(f"{entry}: unknown key {unknown[0]} (known: {', '.join(_KEYS)})")
-        for k in _KEYS[1:]:
+        for k in _NUMBERS:
             if k in t and (isinstance(t[k], bool) or not isinstance(t[k], (int, float))):
                 raise ValueError(f"{entry}: {k} = {t[k]!r} must be a number")
+        curve = t.get("response_curve")
+        if curve is not None and not isinstance(curve, str):
+            raise ValueError(f"{entry}: response_curve = {curve!r} must be a file name")
         name = t.get("name", "")
         if not isinstance(name, str):
             raise ValueError(f"{entry}: name = {name!r} must be text")
         c = ChannelCalibration(name=name, pa_per_unit=t.get("pa_per_unit"),
-                               sensitivity_v_per_pa=t.get("sensitivity_v_per_pa"), volts_per_unit=t.get("volts_per_unit"))
+                               sensitivity_v_per_pa=t.get("sensitivity_v_per_pa"), volts_per_unit=t.get("volts_per_unit"),
+                               response_curve=None if curve is None else os.path.join(os.path.dirname(os.fspath(path)), curve),
+                               azimuth_deg=t.get("azimuth_deg"))
         c.message(entry)  # checked here so the error names the file and the entry
         out.append(c)
     return out
