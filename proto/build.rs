@@ -28,6 +28,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         .bytes(".jetloop.v1.RawSamples.data")
         .bytes(".jetloop.v1.SampleBlock.frames")
         .bytes(".jetloop.v1.CrossSpectraBlock.frames")
+        .bytes(".jetloop.v1.RampBlock.frames")
         .bytes(".jetloop.v1.TrackRequest.frames")
         .compile_fds(fds)?;
     Ok(())

@@ -159,6 +159,26 @@ pub(crate) async fn cross_in_blocks(
     .await
 }
 
+/// Sends AnalyseRamp's question (its sample bytes emptied) and then the blocks through
+/// `AnalyseRampStream`, as [`send_in_blocks`].
+///
+/// # Errors
+/// As [`send_in_blocks`].
+pub(crate) async fn ramp_in_blocks(
+    client: &mut SpectrumServiceClient<Conn>,
+    mut req: pb::AnalyseRampRequest,
+    blocks: Blocks,
+) -> Result<(pb::AnalyseRampResponse, usize), Failure> {
+    without_frames(req.samples.as_mut());
+    send_in_blocks(
+        blocks,
+        |_| pb::RampBlock { request: Some(req), ..Default::default() },
+        |frames| pb::RampBlock { frames, ..Default::default() },
+        |s| client.analyse_ramp_stream(s),
+    )
+    .await
+}
+
 /// Sends the first message (`first`, given the frames per channel when known) and then the
 /// blocks (each wrapped by `later`) through `call`, with a progress bar of bytes sent on a
 /// terminal; answers the reply and the blocks sent. From disk, a reader thread keeps at most

@@ -251,8 +251,8 @@ def test_a_recording_over_the_request_limit_is_refused_by_bands_before_upload(tm
     r = cli("bands", path, "--pa-per-unit", "1", server=server_address)
     assert r.returncode == 2, r.stderr
     assert f"{n} samples" in r.stderr and f"limit of {limit} samples" in r.stderr and "nothing was sent" in r.stderr
-    r = cli("tones", path, "--pa-per-unit", "1", "--cross", server=server_address)
-    assert r.returncode == 2 and f"limit of {limit} samples" in r.stderr, r.stderr
+    # (tones, tones --cross and ramp stream such a file instead: ExtractTonesStream,
+    # CrossSpectraStream and AnalyseRampStream have no length limit.)
 
 
 @pytest.mark.parametrize("value", ["0", "1023", "33554433"])

@@ -110,6 +110,25 @@ pub fn base_calls() -> Vec<BaseCall> {
         ..Default::default()
     };
     let track_first = fixtures::track_config(48_000.0, 512, 0.02);
+    let ramp_request = |samples: Vec<u8>| pb::AnalyseRampRequest {
+        samples: Some(f32_pascals(samples, 48_000.0, 2)),
+        control: Some(pb::ControlChannel {
+            channel: 1,
+            quantity: pb::ControlQuantity::NozzlePressureRatio as i32,
+            units_per_sample: 1.0,
+            offset: None,
+            ambient_pressure_pa: None,
+        }),
+        frame_duration_s: Some(0.02),
+        welch: welch(256),
+        ..Default::default()
+    };
+    // The same ramp as a block stream: the question, then two blocks of 2048 frames.
+    let ramp_first = pb::RampBlock { request: Some(ramp_request(Vec::new())), ..Default::default() };
+    let ramp_frames = |at: usize| pb::RampBlock {
+        frames: Bytes::copy_from_slice(&ramp[at * 16_384..(at + 1) * 16_384]),
+        ..Default::default()
+    };
     vec![
         BaseCall {
             path: "/jetloop.v1.GasDynamicsService/IsentropicRatios",
@@ -197,19 +216,12 @@ pub fn base_calls() -> Vec<BaseCall> {
         },
         BaseCall {
             path: "/jetloop.v1.SpectrumService/AnalyseRamp",
-            messages: vec![enc(&pb::AnalyseRampRequest {
-                samples: Some(f32_pascals(ramp, 48_000.0, 2)),
-                control: Some(pb::ControlChannel {
-                    channel: 1,
-                    quantity: pb::ControlQuantity::NozzlePressureRatio as i32,
-                    units_per_sample: 1.0,
-                    offset: None,
-                    ambient_pressure_pa: None,
-                }),
-                frame_duration_s: Some(0.02),
-                welch: welch(256),
-                ..Default::default()
-            })],
+            messages: vec![enc(&ramp_request(ramp.clone()))],
+            weight: 3,
+        },
+        BaseCall {
+            path: "/jetloop.v1.SpectrumService/AnalyseRampStream",
+            messages: vec![enc(&ramp_first), enc(&ramp_frames(0)), enc(&ramp_frames(1))],
             weight: 3,
         },
         BaseCall {
@@ -575,7 +587,7 @@ pub mod in_process {
         shock_cell_service_server::ShockCellService, spectrum_service_server::SpectrumService,
         staging_service_server::StagingService, tone_service_server::ToneService,
     };
-    use jetloop_server::api::spectrum::{BlockAnalysis, CrossStream, ToneStream, TrackSession};
+    use jetloop_server::api::spectrum::{BlockAnalysis, CrossStream, RampStream, ToneStream, TrackSession};
     use jetloop_server::dsp::samples::{Format, Layout, Recording};
     use jetloop_server::runtime::budget::SampleBudget;
     use jetloop_server::service::{
@@ -607,6 +619,29 @@ pub mod in_process {
 
     fn decode<M: Message + Default>(bytes: &[u8]) -> Option<M> {
         M::decode(bytes).ok()
+    }
+
+    /// Runs a block stream's messages through its analysis `S` off the reactor: `Ok(None)`
+    /// when a message did not decode, else the answer's code.
+    async fn block_stream<S>(path: &str, messages: &[Vec<u8>]) -> Result<Option<Code>, String>
+    where
+        S: BlockAnalysis,
+        S::Block: Message + Default,
+    {
+        let Some(blocks) = messages.iter().map(|m| decode::<S::Block>(m)).collect::<Option<Vec<_>>>() else {
+            return Ok(None);
+        };
+        let r = tokio::task::spawn_blocking(move || -> Result<(), jetloop_server::api::ApiError> {
+            let mut it = blocks.into_iter();
+            let mut s = S::start(it.next().unwrap_or_default())?;
+            for b in it {
+                s.next(b)?;
+            }
+            s.finish().map(|_| ())
+        })
+        .await
+        .map_err(|e| format!("{path}: the stream analysis panicked: {e}"))?;
+        Ok(Some(r.map_or_else(|e| tonic::Status::from(e).code(), |()| Code::Ok)))
     }
 
     /// Runs `messages` (already mutated) through the handler of `path`: `Ok(Some(code))` with
@@ -656,40 +691,13 @@ pub mod in_process {
                 u!(h.calibration, calibrator_sensitivity, pb::CalibratorSensitivityRequest)
             }
             "/jetloop.v1.SpectrumService/ExtractTonesStream" => {
-                let Some(blocks) =
-                    messages.iter().map(|m| decode::<pb::SampleBlock>(m)).collect::<Option<Vec<_>>>()
-                else {
-                    return Ok(None);
-                };
-                let r = tokio::task::spawn_blocking(move || -> Result<(), jetloop_server::api::ApiError> {
-                    let mut it = blocks.into_iter();
-                    let mut s = ToneStream::start(it.next().unwrap_or_default())?;
-                    for b in it {
-                        s.next(b)?;
-                    }
-                    s.finish().map(|_| ())
-                })
-                .await
-                .map_err(|e| format!("{path}: the stream analysis panicked: {e}"))?;
-                Some(r.map_or_else(|e| tonic::Status::from(e).code(), |()| Code::Ok))
+                block_stream::<ToneStream>(path, messages).await?
             }
             "/jetloop.v1.SpectrumService/CrossSpectraStream" => {
-                let Some(blocks) =
-                    messages.iter().map(|m| decode::<pb::CrossSpectraBlock>(m)).collect::<Option<Vec<_>>>()
-                else {
-                    return Ok(None);
-                };
-                let r = tokio::task::spawn_blocking(move || -> Result<(), jetloop_server::api::ApiError> {
-                    let mut it = blocks.into_iter();
-                    let mut s = CrossStream::start(it.next().unwrap_or_default())?;
-                    for b in it {
-                        s.next(b)?;
-                    }
-                    s.finish().map(|_| ())
-                })
-                .await
-                .map_err(|e| format!("{path}: the stream analysis panicked: {e}"))?;
-                Some(r.map_or_else(|e| tonic::Status::from(e).code(), |()| Code::Ok))
+                block_stream::<CrossStream>(path, messages).await?
+            }
+            "/jetloop.v1.SpectrumService/AnalyseRampStream" => {
+                block_stream::<RampStream>(path, messages).await?
             }
             "/jetloop.v1.SpectrumService/TrackTones" => {
                 let Some(msgs) =

@@ -143,3 +143,38 @@ async fn a_continuous_ramp_gives_tones_against_npr_ready_for_a_stage_fit() {
     assert_field(&s.analyse_ramp(bad).await.unwrap_err(), Code::InvalidArgument, "fit_channel");
     server.stop().await;
 }
+
+#[tokio::test]
+async fn the_ramp_sent_in_blocks_gives_the_frames_of_one_request() {
+    // AnalyseRampStream: the same recording in uneven blocks (some shorter than a frame, one
+    // spanning several) gives frame for frame the answer of one AnalyseRamp request, and the
+    // server lets go of every frame once analysed.
+    let server = TestServer::start().await;
+    let mut c = SpectrumServiceClient::new(server.channel().await).max_encoding_message_size(64 << 20);
+    let data = ramp_recording();
+    let whole = c.analyse_ramp(request(data.clone())).await.unwrap().into_inner();
+    let mut msgs =
+        vec![pb::RampBlock { request: Some(request(data[..8 * 1000].to_vec())), frames: Default::default() }];
+    let mut at = 8 * 1000;
+    for len in [8 * 7, 8 * 20_000, 8 * 3, 8 * 61_000].iter().cycle() {
+        if at >= data.len() {
+            break;
+        }
+        let end = (at + len).min(data.len());
+        msgs.push(pb::RampBlock { request: None, frames: bytes::Bytes::copy_from_slice(&data[at..end]) });
+        at = end;
+    }
+    let streamed = c.analyse_ramp_stream(tokio_stream::iter(msgs)).await.unwrap().into_inner();
+    assert_eq!(streamed.frames, whole.frames);
+    assert_eq!(streamed.fit_points, whole.fit_points);
+    assert_eq!(streamed.warnings, whole.warnings);
+    assert!(!streamed.frames.is_empty());
+    // Bad streams name the field: a question in a later message; a stream shorter than a frame.
+    let first =
+        || pb::RampBlock { request: Some(request(data[..8 * 100].to_vec())), frames: Default::default() };
+    let e = c.analyse_ramp_stream(tokio_stream::iter(vec![first(), first()])).await.unwrap_err();
+    assert_field(&e, Code::InvalidArgument, "request");
+    let e = c.analyse_ramp_stream(tokio_stream::iter(vec![first()])).await.unwrap_err();
+    assert_eq!(e.code(), Code::FailedPrecondition, "{e:?}");
+    server.stop().await;
+}

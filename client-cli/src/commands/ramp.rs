@@ -99,15 +99,26 @@ impl Run for RampCmd {
         let (ch, a) = (ctx.channel().await?, self);
         let rec = a.input.open()?;
         let limit = crate::upload::max_request_samples(ch.clone()).await;
-        crate::upload::fits_one_request(&rec, &a.input.file, limit, "AnalyseRamp")?;
-        let samples = rec.into_samples()?;
-        let s = spinner("uploading and analysing the ramp on the server");
-        let r = SpectrumServiceClient::new(ch)
-            .max_encoding_message_size(256 * 1024 * 1024)
-            .analyse_ramp(a.request(samples))
-            .await;
-        s.finish_and_clear();
-        let r = r?.into_inner();
+        let r = match rec.disk.clone() {
+            // A file on disk over the limit streams frame by frame through AnalyseRampStream
+            // (1 MiB blocks; no default call limit on the stream's connection).
+            Some(disk) if rec.sample_count() > limit => {
+                let mut client = SpectrumServiceClient::new(ctx.stream_channel().await?);
+                let blocks = crate::upload::Blocks::Disk(disk, 1 << 20);
+                crate::upload::ramp_in_blocks(&mut client, a.request(rec.samples), blocks).await?.0
+            }
+            _ => {
+                crate::upload::fits_one_request(&rec, &a.input.file, limit, "AnalyseRamp")?;
+                let samples = rec.into_samples()?;
+                let s = spinner("uploading and analysing the ramp on the server");
+                let r = SpectrumServiceClient::new(ch)
+                    .max_encoding_message_size(256 * 1024 * 1024)
+                    .analyse_ramp(a.request(samples))
+                    .await;
+                s.finish_and_clear();
+                r?.into_inner()
+            }
+        };
         let title = ramp_title(&r, &a.input.file);
         if let Some(path) = &a.points_csv {
             std::fs::write(path, ramp_points_csv(&r.fit_points))

@@ -414,13 +414,17 @@ pub fn read_channel(
         return Err(CalibratorError::NoTone);
     }
     let f1 = centroid * df;
+    // A centroid outside the tone's own bins (a floor above the peak's neighbours) is no tone.
+    if !(f1.is_finite() && f1 > 0.0) {
+        return Err(CalibratorError::NoTone);
+    }
     let tone_rms = ms1.sqrt();
     let max_order = cfg.max_harmonic_order.max(2);
     let harmonics: Vec<Harmonic> = (2..=max_order)
         .map(|order| (order, f64::from(order) * f1))
         .take_while(|(_, f)| (f / df).round() as usize + LOBE_BINS < last)
         .map(|(order, f)| {
-            let k = peak(&p, (f / df).round() as usize - 1, (f / df).round() as usize + 2);
+            let k = peak(&p, ((f / df).round() as usize).saturating_sub(1), (f / df).round() as usize + 2);
             Harmonic { order, frequency_hz: f, rms: band(&p, k).0.sqrt() }
         })
         .collect();

@@ -119,36 +119,52 @@ pub fn analyse_ramp(
     cfg: &RampConfig,
     cancel: &Cancel,
 ) -> Result<Vec<RampFrame>, WelchError> {
-    let (fs, frame, welch, tones) = (cfg.fs, cfg.frame, cfg.welch, &cfg.tones);
-    let n = control_units.len();
+    let (frame, n) = (cfg.frame, control_units.len());
     let mut out = Vec::with_capacity(n / frame.max(1));
-    let mut buf = vec![0.0; frame];
     let mut start = 0;
     while frame > 0 && start + frame <= n {
-        control_units.read(start, &mut buf);
-        let npr: Vec<f64> = buf.iter().map(|&r| control.npr(r)).collect();
-        let tenth = (frame / 10).max(1);
-        let mean = |x: &[f64]| x.iter().sum::<f64>() / x.len() as f64;
-        let npr_mean = mean(&npr);
-        let npr_change = mean(&npr[frame - tenth..]) - mean(&npr[..tenth]);
-        let mut frame_tones = Vec::with_capacity(mics.len());
-        for m in mics {
-            let psd = WelchAccumulator::new(fs, welch)?
-                .with_cancel(cancel.clone())
-                .finish(&m.range(start, frame))?;
-            let set = find_tones(&psd, tones);
-            frame_tones.push(set.tones.iter().max_by(|a, b| a.level_db.total_cmp(&b.level_db)).map(|t| {
-                FrameTone {
-                    frequency_hz: t.frequency_hz,
-                    level_db: t.level_db,
-                    tone_to_floor_db: t.tone_to_floor_db,
-                }
-            }));
-        }
-        out.push(RampFrame { start, end: start + frame, npr_mean, npr_change, tones: frame_tones });
+        out.push(analyse_frame(mics, control_units, control, cfg, start, cancel)?);
         start += frame;
     }
     Ok(out)
+}
+
+/// The frame of `cfg.frame` samples from `start` (the views must hold them): its mean NPR and
+/// NPR change from the control, each microphone's strongest tone. A stream analyses frames
+/// one by one this way as their samples arrive.
+///
+/// # Errors
+/// As [`analyse_ramp`].
+pub fn analyse_frame(
+    mics: &[ChannelView<'_>],
+    control_units: &ChannelView<'_>,
+    control: &Control,
+    cfg: &RampConfig,
+    start: usize,
+    cancel: &Cancel,
+) -> Result<RampFrame, WelchError> {
+    let (fs, frame, welch, tones) = (cfg.fs, cfg.frame, cfg.welch, &cfg.tones);
+    let mut buf = vec![0.0; frame];
+    control_units.read(start, &mut buf);
+    let npr: Vec<f64> = buf.iter().map(|&r| control.npr(r)).collect();
+    let tenth = (frame / 10).max(1);
+    let mean = |x: &[f64]| x.iter().sum::<f64>() / x.len() as f64;
+    let npr_mean = mean(&npr);
+    let npr_change = mean(&npr[frame - tenth..]) - mean(&npr[..tenth]);
+    let mut frame_tones = Vec::with_capacity(mics.len());
+    for m in mics {
+        let psd =
+            WelchAccumulator::new(fs, welch)?.with_cancel(cancel.clone()).finish(&m.range(start, frame))?;
+        let set = find_tones(&psd, tones);
+        frame_tones.push(set.tones.iter().max_by(|a, b| a.level_db.total_cmp(&b.level_db)).map(|t| {
+            FrameTone {
+                frequency_hz: t.frequency_hz,
+                level_db: t.level_db,
+                tone_to_floor_db: t.tone_to_floor_db,
+            }
+        }));
+    }
+    Ok(RampFrame { start, end: start + frame, npr_mean, npr_change, tones: frame_tones })
 }
 
 #[cfg(test)]

@@ -70,8 +70,11 @@ pub const LIVE_STREAMS: &[&str] = &["/jetloop.v1.SpectrumService/TrackTones"];
 /// whole call gets the stream time limit, and the per-call limit applies to the wait for each
 /// block ([`BlockGap`]), so a stalled upload lets go of its samples as soon as a short call
 /// would, and a long recording streaming steadily is not cut off.
-pub const UPLOAD_STREAMS: &[&str] =
-    &["/jetloop.v1.SpectrumService/ExtractTonesStream", "/jetloop.v1.SpectrumService/CrossSpectraStream"];
+pub const UPLOAD_STREAMS: &[&str] = &[
+    "/jetloop.v1.SpectrumService/ExtractTonesStream",
+    "/jetloop.v1.SpectrumService/CrossSpectraStream",
+    "/jetloop.v1.SpectrumService/AnalyseRampStream",
+];
 
 /// Time after a live stream's limit before a stream that has not ended is cut with its
 /// connection (the handler ends it at the limit; this covers a client that stopped reading).

@@ -3,7 +3,7 @@
 use crate::api::error::PreconditionViolation;
 use crate::api::spectrum::{
     held_bytes, sample_width, values_in, BandQuery, BlockAnalysis, CrossQuery, CrossStream, RampQuery,
-    ToneQuery, ToneStream, TrackSession,
+    RampStream, ToneQuery, ToneStream, TrackSession,
 };
 use crate::api::{ApiError, Compute};
 use crate::metrics::Metrics;
@@ -194,6 +194,13 @@ impl SpectrumService for Spectrum {
         request: Request<Streaming<pb::CrossSpectraBlock>>,
     ) -> Result<Response<pb::CrossSpectraResponse>, Status> {
         self.block_stream::<CrossStream>(request).await
+    }
+
+    async fn analyse_ramp_stream(
+        &self,
+        request: Request<Streaming<pb::RampBlock>>,
+    ) -> Result<Response<pb::AnalyseRampResponse>, Status> {
+        self.block_stream::<RampStream>(request).await
     }
 
     type TrackTonesStream =

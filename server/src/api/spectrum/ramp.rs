@@ -14,7 +14,7 @@ const SMEAR_FRACTION: f64 = 0.02;
 #[derive(Debug, Clone)]
 pub struct RampQuery {
     started: std::time::Instant,
-    samples: SampleSet,
+    pub(super) samples: SampleSet,
     control: Control,
     frame: usize,
     welch: WelchConfig,
@@ -105,60 +105,59 @@ impl TryFrom<pb::AnalyseRampRequest> for RampQuery {
     type Error = ApiError;
 
     fn try_from(req: pb::AnalyseRampRequest) -> Result<Self, ApiError> {
-        let pb::AnalyseRampRequest { samples, control: ctl, frame_duration_s, welch, tones, fit_channel } =
-            req;
-        let started = std::time::Instant::now();
-        let mut defaults = Defaults::default();
-        let samples = sample_set(samples, &mut defaults)?;
-        let channels = samples.recording.channel_count();
-        let mut check = Check::new();
-        let control = control(&mut check, &mut defaults, ctl, channels);
-        let secs = crate::api::field::Fields::new(&mut check, &mut defaults, "")
-            .read(frame_duration_s, &crate::dsp::ramp::FRAME_DURATION);
-        let frame = secs.map(|t| (t * samples.fs).round() as usize);
-        if let Some(f) = frame {
-            if f > samples.recording.len() || f == 0 {
-                check.other(
-                    "frame_duration_s",
-                    format!(
-                        "frame_duration_s gives {f} samples per frame but the recording holds {} per channel: \
-                         give a frame shorter than the recording",
-                        samples.recording.len()
-                    ),
-                );
-            }
-        }
-        let w = welch_config(&mut check, &mut defaults, welch, samples.fs, frame.unwrap_or(0).max(1));
-        let tones = super::tones::tone_config(&mut check, &mut defaults, tones);
-        let ctl_channel = control.map(|c| c.channel);
-        let mics: Vec<usize> = (0..channels).filter(|&c| Some(c) != ctl_channel).collect();
-        let fit_channel = match fit_channel {
-            Some(c) if Some(c as usize) == ctl_channel || c as usize >= channels => {
-                check.other(
-                    "fit_channel",
-                    format!("fit_channel = {c} is the control channel or not a channel: give a microphone channel"),
-                );
-                0
-            }
-            Some(c) => c as usize,
-            None => mics.first().copied().unwrap_or(0),
-        };
-        let q = match (control, frame, w) {
-            (Some(control), Some(frame), Some(welch)) => Some(RampQuery {
-                started,
-                samples,
-                control,
-                frame,
-                welch,
-                tones,
-                mics,
-                fit_channel,
-                defaults,
-            }),
-            _ => None,
-        };
-        check.finish(q)
+        ramp_query(req, false)
     }
+}
+
+/// Converts a ramp question; `stream` for the first message of a block stream, whose
+/// recording grows (its length is not checked against the frame).
+pub(super) fn ramp_query(req: pb::AnalyseRampRequest, stream: bool) -> Result<RampQuery, ApiError> {
+    let pb::AnalyseRampRequest { samples, control: ctl, frame_duration_s, welch, tones, fit_channel } = req;
+    let started = std::time::Instant::now();
+    let mut defaults = Defaults::default();
+    let samples = sample_set_for(samples, &mut defaults, stream)?;
+    let channels = samples.recording.channel_count();
+    let mut check = Check::new();
+    let control = control(&mut check, &mut defaults, ctl, channels);
+    let secs = crate::api::field::Fields::new(&mut check, &mut defaults, "")
+        .read(frame_duration_s, &crate::dsp::ramp::FRAME_DURATION);
+    let frame = secs.map(|t| (t * samples.fs).round() as usize);
+    if let Some(f) = frame {
+        if (!stream && f > samples.recording.len()) || f == 0 {
+            check.other(
+                "frame_duration_s",
+                format!(
+                    "frame_duration_s gives {f} samples per frame but the recording holds {} per channel: \
+                         give a frame shorter than the recording",
+                    samples.recording.len()
+                ),
+            );
+        }
+    }
+    let w = welch_config(&mut check, &mut defaults, welch, samples.fs, frame.unwrap_or(0).max(1));
+    let tones = super::tones::tone_config(&mut check, &mut defaults, tones);
+    let ctl_channel = control.map(|c| c.channel);
+    let mics: Vec<usize> = (0..channels).filter(|&c| Some(c) != ctl_channel).collect();
+    let fit_channel = match fit_channel {
+        Some(c) if Some(c as usize) == ctl_channel || c as usize >= channels => {
+            check.other(
+                "fit_channel",
+                format!(
+                    "fit_channel = {c} is the control channel or not a channel: give a microphone channel"
+                ),
+            );
+            0
+        }
+        Some(c) => c as usize,
+        None => mics.first().copied().unwrap_or(0),
+    };
+    let q = match (control, frame, w) {
+        (Some(control), Some(frame), Some(welch)) => {
+            Some(RampQuery { started, samples, control, frame, welch, tones, mics, fit_channel, defaults })
+        }
+        _ => None,
+    };
+    check.finish(q)
 }
 
 fn direction(fr: &RampFrame) -> pb::SweepDirection {
@@ -179,13 +178,47 @@ impl Compute for RampQuery {
     /// # Errors
     /// As [`ToneQuery::compute`].
     fn compute(self, cancel: &Cancel) -> Result<pb::AnalyseRampResponse, ApiError> {
-        let q = &self.with_cancel(cancel.clone());
+        let q = self.with_cancel(cancel.clone());
         let rec = &q.samples.recording;
         let mics: Vec<_> = q.mics.iter().map(|&c| rec.channel(c)).collect();
         let ctl = rec.channel(q.control.channel).unscaled();
-        let cfg = RampConfig { fs: q.samples.fs, frame: q.frame, welch: q.welch, tones: q.tones };
-        let frames = analyse_ramp(&mics, &ctl, &q.control, &cfg, &q.samples.cancel)
+        let frames = analyse_ramp(&mics, &ctl, &q.control, &q.config(), &q.samples.cancel)
             .map_err(|e| welch_error(e, q.samples.field))?;
+        Ok(q.answer(&frames))
+    }
+}
+
+impl RampQuery {
+    /// How frames are cut and analysed.
+    pub(super) fn config(&self) -> RampConfig {
+        RampConfig { fs: self.samples.fs, frame: self.frame, welch: self.welch, tones: self.tones }
+    }
+
+    /// Analyses the frame from `start` (its samples must be held).
+    pub(super) fn frame_at(&self, start: usize) -> Result<RampFrame, ApiError> {
+        let rec = &self.samples.recording;
+        let mics: Vec<_> = self.mics.iter().map(|&c| rec.channel(c)).collect();
+        let ctl = rec.channel(self.control.channel).unscaled();
+        crate::dsp::ramp::analyse_frame(
+            &mics,
+            &ctl,
+            &self.control,
+            &self.config(),
+            start,
+            &self.samples.cancel,
+        )
+        .map_err(|e| welch_error(e, self.samples.field))
+    }
+
+    /// Samples per frame.
+    pub(super) fn frame_len(&self) -> usize {
+        self.frame
+    }
+
+    /// The answer for `frames` (the recording's whole length known).
+    pub(super) fn answer(&self, frames: &[RampFrame]) -> pb::AnalyseRampResponse {
+        let q = self;
+        let rec = &q.samples.recording;
         let fs = q.samples.fs;
         let fit_index = q.mics.iter().position(|&c| c == q.fit_channel).unwrap_or(0);
         let mut warnings = Vec::new();
@@ -239,13 +272,19 @@ impl Compute for RampQuery {
             .collect();
         let mut used = SPECTRUM_MODELS.to_vec();
         used.push(models::TONE_EXTRACTION);
-        Ok(pb::AnalyseRampResponse {
+        pb::AnalyseRampResponse {
             frames: out_frames,
             fit_points,
             fit_channel: q.fit_channel as u32,
             warnings,
             compute_time_s: q.started.elapsed().as_secs_f64(),
             provenance: Some(provenance(&used, &q.defaults, Vec::new())),
-        })
+        }
+    }
+
+    /// The same question, its compute time counted from now (a stream's end).
+    pub(super) fn restarted(mut self) -> Self {
+        self.started = std::time::Instant::now();
+        self
     }
 }
