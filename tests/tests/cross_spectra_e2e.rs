@@ -72,6 +72,41 @@ async fn a_ring_of_eight_identifies_spinning_standing_and_axisymmetric_tones() {
 }
 
 #[tokio::test]
+async fn on_six_microphones_the_sense_of_order_three_is_not_determined() {
+    // p_k = cos(w t - m theta_k), theta_k = 2 pi k / 6: at m = 3 = M/2, e^{i 3 theta_k} =
+    // (-1)^k = e^{-i 3 theta_k} (closed form), so +3 and -3 alias and the spin sense cannot be
+    // told; at m = 2 it can.
+    let server = TestServer::start().await;
+    let mut c = SpectrumServiceClient::new(server.channel().await);
+    let (fs, n, f0) = (51_200.0, 1 << 16, 2000.0);
+    let w = 2.0 * PI * f0;
+    for (m, sense, pattern) in [
+        (3.0, 1.0, pb::AzimuthalPattern::SenseUndetermined),
+        (3.0, -1.0, pb::AzimuthalPattern::SenseUndetermined),
+        (2.0, 1.0, pb::AzimuthalPattern::SpinningIncreasing),
+        (2.0, -1.0, pb::AzimuthalPattern::SpinningDecreasing),
+    ] {
+        let (samples, positions) = ring(6, n, fs, |th, t| (sense * w * t - m * th).cos());
+        let r = c
+            .cross_spectra(pb::CrossSpectraRequest {
+                samples: Some(samples),
+                welch: Some(welch_segment(4096)),
+                positions,
+                ..Default::default()
+            })
+            .await
+            .unwrap()
+            .into_inner();
+        let modes = r.tones[0].modes.as_ref().unwrap();
+        assert_eq!(
+            (modes.dominant_order, modes.pattern),
+            (m as u32, pattern as i32),
+            "m {m} {sense}: {modes:?}"
+        );
+    }
+}
+
+#[tokio::test]
 async fn bad_cross_requests_name_their_field() {
     let server = TestServer::start().await;
     let mut c = SpectrumServiceClient::new(server.channel().await);

@@ -89,6 +89,7 @@ fn pattern(p: Pattern) -> pb::AzimuthalPattern {
         Pattern::Standing => pb::AzimuthalPattern::Standing,
         Pattern::SpinningIncreasing => pb::AzimuthalPattern::SpinningIncreasing,
         Pattern::SpinningDecreasing => pb::AzimuthalPattern::SpinningDecreasing,
+        Pattern::SenseUndetermined => pb::AzimuthalPattern::SenseUndetermined,
     }
 }
 
@@ -267,7 +268,8 @@ impl Compute for CrossQuery {
         if q.azimuths_deg.is_some() && channels >= 3 {
             notes.push(
                 "Azimuthal orders: a pattern cos(omega t - m theta) with m > 0 spins towards increasing azimuth; \
-                 the decomposition is exact for equally spaced microphones, and orders above M/2 alias onto lower ones."
+                 the decomposition is exact for equally spaced microphones, orders above M/2 alias onto lower ones, \
+                 and at M/2 of an even ring +m and -m alias, so the sense there is not determined."
                     .into(),
             );
         }
