@@ -15,6 +15,13 @@ fn with_token(token: &str) -> tonic::Request<pb::ServerInfoRequest> {
     bearer(pb::ServerInfoRequest {}, token)
 }
 
+/// A call carrying `authorization: <scheme> <token>`.
+fn with_scheme(scheme: &str, token: &str) -> tonic::Request<pb::ServerInfoRequest> {
+    let mut r = tonic::Request::new(pb::ServerInfoRequest {});
+    r.metadata_mut().insert("authorization", format!("{scheme} {token}").parse().expect("ascii"));
+    r
+}
+
 #[tokio::test]
 async fn calls_need_a_valid_token_and_health_checks_do_not() {
     let server = TestServer::start_with_options(ServeOptions {
@@ -31,6 +38,16 @@ async fn calls_need_a_valid_token_and_health_checks_do_not() {
     let e = info.server_info(with_token(&TOKEN[..TOKEN.len() - 1])).await.unwrap_err();
     assert_eq!(e.code(), Code::Unauthenticated);
     assert!(info.server_info(with_token(TOKEN)).await.is_ok());
+    // RFC 7235 section 2.1: the auth-scheme is a case-insensitive token, so `bearer` and
+    // `BeArEr` name the same scheme as `Bearer`; the token itself is still compared exactly.
+    for scheme in ["bearer", "BEARER", "BeArEr"] {
+        let ok = info.server_info(with_scheme(scheme, TOKEN)).await;
+        assert!(ok.is_ok(), "{scheme}: {ok:?}");
+        let e = info.server_info(with_scheme(scheme, "lab-7-rig-token-0123456788")).await.unwrap_err();
+        assert_eq!(e.code(), Code::Unauthenticated, "{scheme}");
+    }
+    let e = info.server_info(with_scheme("Basic", TOKEN)).await.unwrap_err();
+    assert_eq!(e.code(), Code::Unauthenticated);
     let h = HealthClient::new(server.channel().await)
         .check(HealthCheckRequest { service: String::new() })
         .await

@@ -72,6 +72,76 @@ async fn a_ring_of_eight_identifies_spinning_standing_and_axisymmetric_tones() {
 }
 
 #[tokio::test]
+async fn on_six_microphones_the_sense_of_order_three_is_not_determined() {
+    // p_k = cos(w t - m theta_k), theta_k = 2 pi k / 6: at m = 3 = M/2, e^{i 3 theta_k} =
+    // (-1)^k = e^{-i 3 theta_k} (closed form), so +3 and -3 alias and the spin sense cannot be
+    // told; at m = 2 it can.
+    let server = TestServer::start().await;
+    let mut c = SpectrumServiceClient::new(server.channel().await);
+    let (fs, n, f0) = (51_200.0, 1 << 16, 2000.0);
+    let w = 2.0 * PI * f0;
+    for (m, sense, pattern) in [
+        (3.0, 1.0, pb::AzimuthalPattern::SenseUndetermined),
+        (3.0, -1.0, pb::AzimuthalPattern::SenseUndetermined),
+        (2.0, 1.0, pb::AzimuthalPattern::SpinningIncreasing),
+        (2.0, -1.0, pb::AzimuthalPattern::SpinningDecreasing),
+    ] {
+        let (samples, positions) = ring(6, n, fs, |th, t| (sense * w * t - m * th).cos());
+        let r = c
+            .cross_spectra(pb::CrossSpectraRequest {
+                samples: Some(samples),
+                welch: Some(welch_segment(4096)),
+                positions,
+                ..Default::default()
+            })
+            .await
+            .unwrap()
+            .into_inner();
+        let modes = r.tones[0].modes.as_ref().unwrap();
+        assert_eq!(
+            (modes.dominant_order, modes.pattern),
+            (m as u32, pattern as i32),
+            "m {m} {sense}: {modes:?}"
+        );
+    }
+}
+
+#[tokio::test]
+async fn a_reference_at_a_node_of_a_standing_mode_draws_a_warning() {
+    // A standing m = 1 pattern p = cos(theta) cos(w t) on four microphones at 0, 90, 180 and
+    // 270 deg: cos(90 deg) = cos(270 deg) = 0 (geometry), so channels 1 and 3 sit at nodes and
+    // hear only the noise, while channels 0 and 2 carry the tone at amplitude 1 (mean square
+    // 0.5 against noise variance 0.05 over the whole band: tens of dB above the noise density
+    // at the tone bin).
+    let server = TestServer::start().await;
+    let mut c = SpectrumServiceClient::new(server.channel().await);
+    let (fs, n, f0) = (51_200.0, 1 << 16, 2000.0);
+    let w = 2.0 * PI * f0;
+    let (samples, positions) = ring(4, n, fs, |th, t| th.cos() * (w * t).cos());
+    let call = |reference: u32| pb::CrossSpectraRequest {
+        samples: Some(samples.clone()),
+        welch: Some(welch_segment(4096)),
+        positions: positions.clone(),
+        reference_channel: Some(reference),
+        ..Default::default()
+    };
+    // Reference at 90 deg (a node): the reference shows no tone at f0, so the answer must say
+    // that one stands elsewhere, naming its frequency and the channels that carry it.
+    let r = c.cross_spectra(call(1)).await.unwrap().into_inner();
+    assert!(r.tones.iter().all(|t| (t.frequency_hz - f0).abs() > 50.0), "{:?}", r.tones);
+    let named: Vec<&String> = r.warnings.iter().filter(|w| w.contains("2000")).collect();
+    assert_eq!(named.len(), 1, "{:?}", r.warnings);
+    assert!(named[0].contains("channels 0, 2"), "{}", named[0]);
+    // The better reference suggested is an antinode, 0 or 180 deg (geometry: |cos| = 1).
+    let suggested = ["reference_channel = 0", "reference_channel = 2"];
+    assert!(suggested.iter().any(|s| named[0].contains(s)), "{}", named[0]);
+    // Reference at 0 deg (an antinode): the tone is the reference's own, no warning.
+    let r = c.cross_spectra(call(0)).await.unwrap().into_inner();
+    assert!((r.tones[0].frequency_hz - f0).abs() < 1.0, "{:?}", r.tones);
+    assert!(r.warnings.is_empty(), "{:?}", r.warnings);
+}
+
+#[tokio::test]
 async fn bad_cross_requests_name_their_field() {
     let server = TestServer::start().await;
     let mut c = SpectrumServiceClient::new(server.channel().await);

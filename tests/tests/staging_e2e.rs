@@ -374,3 +374,40 @@ async fn fit_verdicts_and_noise_warnings_reach_the_answer() {
     );
     server.stop().await;
 }
+
+#[tokio::test]
+async fn a_non_finite_path_factor_is_refused_whatever_the_sweep() {
+    // Regression: options.reflector_path_factor was range-checked only on reflector sweeps, so
+    // NaN and infinities passed on NPR, Mj and plain sweeps. staging.proto documents the field
+    // as "Allowed (0, 10]" for every sweep; NaN and +-inf lie in no real interval (IEEE 754:
+    // every ordered comparison with NaN is false, and inf > 10).
+    let server = TestServer::start().await;
+    let mut c = StagingServiceClient::new(server.channel().await);
+    let sweeps = [
+        (pb::ControlVariable::Plain, [1.0, 2.0, 3.0, 4.0], None),
+        (pb::ControlVariable::NozzlePressureRatio, [2.5, 2.6, 2.7, 2.8], Some(jet())),
+        (pb::ControlVariable::FullyExpandedMachNumber, [1.2, 1.25, 1.3, 1.35], Some(jet())),
+        (pb::ControlVariable::ReflectorDistanceM, [0.01, 0.02, 0.03, 0.04], None),
+    ];
+    let req = |control: pb::ControlVariable, x: [f64; 4], jet: Option<pb::JetConditions>, g: f64| {
+        pb::FitStagesRequest {
+            control: control as i32,
+            points: x.iter().zip([4000.0, 3950.0, 3900.0, 3850.0]).map(|(&x, f)| point(x, f)).collect(),
+            jet,
+            options: Some(pb::FitOptions { reflector_path_factor: Some(g), ..Default::default() }),
+            stage_labels: None,
+        }
+    };
+    for (control, x, jet) in sweeps {
+        for g in [f64::NAN, f64::INFINITY, f64::NEG_INFINITY] {
+            let e = c.fit_stages(req(control, x, jet, g)).await.unwrap_err();
+            assert_field(&e, Code::InvalidArgument, "options.reflector_path_factor");
+            assert!(e.message().contains("reflector_path_factor"), "{control:?} g = {g}: {}", e.message());
+        }
+        // The same sweep with g = 2 (inside (0, 10], staging.proto) draws no complaint about g.
+        if let Err(e) = c.fit_stages(req(control, x, jet, 2.0)).await {
+            assert!(!e.message().contains("reflector_path_factor"), "{control:?}: {e:?}");
+        }
+    }
+    server.stop().await;
+}

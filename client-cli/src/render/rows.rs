@@ -68,6 +68,7 @@ pub(crate) fn pattern_name(p: i32) -> &'static str {
         Ok(pb::AzimuthalPattern::Standing) => "standing (flapping)",
         Ok(pb::AzimuthalPattern::SpinningIncreasing) => "spinning towards increasing azimuth (helical)",
         Ok(pb::AzimuthalPattern::SpinningDecreasing) => "spinning towards decreasing azimuth (helical)",
+        Ok(pb::AzimuthalPattern::SenseUndetermined) => "sense not determined (order M/2 of an even ring)",
         _ => "?",
     }
 }

@@ -175,7 +175,11 @@ pub(crate) fn cross_report(r: &pb::CrossSpectraResponse) -> Report {
             Some(Val::Text(mode)),
         ]);
     }
-    Report::new("-- cross-channel").table(t)
+    let mut rep = Report::new("-- cross-channel").table(t);
+    for (i, w) in r.warnings.iter().enumerate() {
+        rep = rep.text(if i == 0 { "warning" } else { "warning_more" }, "WARNING", w.clone());
+    }
+    rep
 }
 
 /// The BandLevels answer for `file`: one section per channel with its overall,
@@ -329,9 +333,11 @@ mod tests {
                     ..Default::default()
                 },
             ],
+            warnings: vec!["a tone at 2000.0 Hz stands in channels 0, 2".into()],
             ..Default::default()
         };
         let v = cross_report(&r).to_json();
+        assert_eq!(v["warning"], json!("a tone at 2000.0 Hz stands in channels 0, 2"));
         assert_eq!(v["cross_tones"][0]["channels"], json!("0: +0.0 / 1.000; 1: -90.0 / 0.999"));
         assert_eq!(
             v["cross_tones"][0]["mode"],

@@ -167,6 +167,10 @@ pub enum Pattern {
     SpinningIncreasing,
     /// ... or towards decreasing azimuth (m < 0).
     SpinningDecreasing,
+    /// The dominant order is the ring's Nyquist order M/2 (M even), where +m and -m alias
+    /// (e^{i M/2 theta_k} = (-1)^k = e^{-i M/2 theta_k}): standing and either spin look
+    /// alike, so the sense is not determined.
+    SenseUndetermined,
 }
 
 /// Azimuthal decomposition at one tone.
@@ -179,7 +183,8 @@ pub struct ModeDecomposition {
     /// Share of the total energy in +-dominant_order.
     pub dominant_share: f64,
     /// Spin ratio (E(+m) - E(-m)) / (E(+m) + E(-m)) of the dominant order: +1 spinning towards
-    /// increasing azimuth, -1 decreasing, 0 standing.
+    /// increasing azimuth, -1 decreasing, 0 standing (and 0 at the Nyquist order M/2 of an
+    /// even ring, where the sense is not determined).
     pub spin_ratio: f64,
     /// The pattern.
     pub pattern: Pattern,
@@ -221,8 +226,9 @@ pub fn azimuthal_modes(a: &[Complex<f64>], theta_rad: &[f64]) -> ModeDecompositi
         if best > 0 && ep + en > 0.0 && -(best as i32) >= lo { (ep - en) / (ep + en) } else { 0.0 };
     let pattern = match best {
         0 => Pattern::Axisymmetric,
-        // With an even ring the highest order has no separate -m: its sense cannot be told.
-        _ if -(best as i32) < lo => Pattern::Standing,
+        // With an even ring the highest order M/2 has no separate -m (it aliases): neither
+        // spin nor standing can be told.
+        _ if -(best as i32) < lo => Pattern::SenseUndetermined,
         _ if spin_ratio >= SPIN_THRESHOLD => Pattern::SpinningIncreasing,
         _ if spin_ratio <= -SPIN_THRESHOLD => Pattern::SpinningDecreasing,
         _ => Pattern::Standing,
@@ -317,5 +323,46 @@ mod tests {
             assert_eq!(s.symmetric, symmetric);
             assert!(s.confidence > 0.9, "{s:?}");
         }
+    }
+
+    /// Amplitudes of p_k(t) = cos(m theta_k - s w t) locked to p_0 on a ring of `count`
+    /// microphones at theta_k = 2 pi k / count (closed form: p_k = Re(A_k e^{i w t}) with
+    /// A_k = e^{-i s m theta_k}, and A_0 = 1 is real, so no reference rotation is needed).
+    fn spinning_ring(count: usize, m: i32, sense: f64) -> (Vec<Complex<f64>>, Vec<f64>) {
+        let th: Vec<f64> = (0..count).map(|k| 2.0 * PI * k as f64 / count as f64).collect();
+        let a = th.iter().map(|&t| Complex::from_polar(1.0, -sense * f64::from(m) * t)).collect();
+        (a, th)
+    }
+
+    #[test]
+    fn the_sense_at_the_nyquist_order_of_an_even_ring_is_not_determined() {
+        // Six microphones: orders -2 ..= 3. At m = M/2 = 3, e^{i 3 theta_k} = (-1)^k = e^{-i 3
+        // theta_k} (closed form: 3 x 2 pi k / 6 = pi k), so +3 and -3 alias and a spin cannot be
+        // told from a standing pattern (spatial sampling theorem on the ring).
+        for sense in [1.0, -1.0] {
+            let (a, th) = spinning_ring(6, 3, sense);
+            let d = azimuthal_modes(&a, &th);
+            assert_eq!(d.dominant_order, 3, "{d:?}");
+            // All the energy is in order 3: |c_3|^2 = 1 (closed form: the sum of six unit terms
+            // over 6).
+            assert!((d.dominant_share - 1.0).abs() < 1e-12, "{d:?}");
+            assert_eq!(d.pattern, Pattern::SenseUndetermined, "sense {sense}: {d:?}");
+        }
+        // A standing cos(3 theta) cos(w t) pattern at that order is no better told.
+        let th: Vec<f64> = (0..6).map(|k| 2.0 * PI * f64::from(k) / 6.0).collect();
+        let a: Vec<Complex<f64>> = th.iter().map(|&t| Complex::new((3.0 * t).cos(), 0.0)).collect();
+        assert_eq!(azimuthal_modes(&a, &th).pattern, Pattern::SenseUndetermined);
+        // Below the Nyquist order the six microphones still tell the sense: m = 1 and 2
+        // spinning either way (p_k = cos(m theta_k - s w t), closed form above).
+        for m in [1, 2] {
+            for (sense, want) in [(1.0, Pattern::SpinningIncreasing), (-1.0, Pattern::SpinningDecreasing)] {
+                let (a, th) = spinning_ring(6, m, sense);
+                let d = azimuthal_modes(&a, &th);
+                assert_eq!((d.dominant_order, d.pattern), (m as u32, want), "m {m} sense {sense}: {d:?}");
+            }
+        }
+        // An odd ring has no Nyquist order: on 7 microphones m = 3 spins are told apart.
+        let (a, th) = spinning_ring(7, 3, -1.0);
+        assert_eq!(azimuthal_modes(&a, &th).pattern, Pattern::SpinningDecreasing);
     }
 }

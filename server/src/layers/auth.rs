@@ -7,8 +7,8 @@ use tonic::body::Body;
 use tonic::codegen::http;
 
 /// Bearer-token check: with tokens configured, every call but health checks must carry
-/// `authorization: Bearer <token>` with one of them (compared in constant time), else it is
-/// answered UNAUTHENTICATED at once. Without tokens it passes everything.
+/// `authorization: Bearer <token>` (the scheme in any case) with one of them (compared in
+/// constant time), else it is answered UNAUTHENTICATED at once. Without tokens it passes everything.
 #[derive(Debug, Clone)]
 pub struct AuthLayer {
     tokens: Arc<Vec<Vec<u8>>>,
@@ -24,11 +24,24 @@ impl AuthLayer {
     /// compared whole, whatever matched, so the time taken does not tell how much of a guess
     /// was right.
     fn accepts(&self, header: Option<&http::HeaderValue>) -> bool {
-        let Some(given) = header.and_then(|h| h.as_bytes().strip_prefix(b"Bearer ")) else {
+        let Some(given) = header.and_then(|h| bearer_credentials(h.as_bytes())) else {
             return false;
         };
         self.tokens.iter().fold(false, |ok, t| ok | constant_time_eq(t, given))
     }
+}
+
+/// The token of an `authorization` value whose scheme is `Bearer` in any case (RFC 7235
+/// section 2.1: the auth-scheme is a case-insensitive token, followed by one or more spaces),
+/// or `None` for another scheme or no token.
+fn bearer_credentials(value: &[u8]) -> Option<&[u8]> {
+    const SCHEME: &[u8] = b"bearer";
+    let (scheme, rest) = value.split_at_checked(SCHEME.len())?;
+    if !scheme.eq_ignore_ascii_case(SCHEME) || rest.first() != Some(&b' ') {
+        return None;
+    }
+    let start = rest.iter().position(|&b| b != b' ')?;
+    Some(&rest[start..])
 }
 
 /// Equality of two byte strings in time that depends only on their lengths.
@@ -76,5 +89,35 @@ where
             return Either::Left(std::future::ready(Ok(refused.into_http())));
         }
         Either::Right(self.inner.call(req))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn header(v: &str) -> http::HeaderValue {
+        http::HeaderValue::from_str(v).expect("visible ASCII")
+    }
+
+    #[test]
+    fn the_scheme_is_matched_without_regard_to_case() {
+        let layer = AuthLayer::new(&["t0k3n".to_string()]);
+        // RFC 7235 section 2.1: "It uses a case-insensitive token as a means to identify the
+        // authentication scheme"; RFC 6750 section 2.1 names the scheme `Bearer`.
+        for scheme in ["Bearer", "bearer", "BEARER", "bEaReR"] {
+            assert!(layer.accepts(Some(&header(&format!("{scheme} t0k3n")))), "{scheme}");
+        }
+        // RFC 7235 section 2.1: credentials = auth-scheme [ 1*SP ( token68 / #auth-param ) ],
+        // one or more spaces between the scheme and the token.
+        assert!(layer.accepts(Some(&header("bearer   t0k3n"))));
+        // The token itself is compared exactly (RFC 6750 section 2.1: b64token is case-sensitive
+        // base64-like text): a case change or a near miss is still refused.
+        for wrong in
+            ["bearer T0K3N", "Bearer t0k3", "bearer t0k3n0", "bearert0k3n", "Basic t0k3n", "bearer", ""]
+        {
+            assert!(!layer.accepts(Some(&header(wrong))), "{wrong:?}");
+        }
+        assert!(!layer.accepts(None));
     }
 }

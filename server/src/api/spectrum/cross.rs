@@ -98,6 +98,7 @@ fn pattern(p: Pattern) -> pb::AzimuthalPattern {
         Pattern::Standing => pb::AzimuthalPattern::Standing,
         Pattern::SpinningIncreasing => pb::AzimuthalPattern::SpinningIncreasing,
         Pattern::SpinningDecreasing => pb::AzimuthalPattern::SpinningDecreasing,
+        Pattern::SenseUndetermined => pb::AzimuthalPattern::SenseUndetermined,
     }
 }
 
@@ -218,6 +219,99 @@ pub(crate) fn cross_tone(
     }
 }
 
+/// How far above the reference's density at the same bin another channel's tone must stand
+/// to be reported as missed by the reference, dB.
+const NODE_EXCESS_DB: f64 = 10.0;
+
+/// Frequencies reported in node warnings at most (strongest excess first).
+const NODE_WARNINGS_MAX: usize = 5;
+
+/// A tone of another channel that the reference misses.
+#[derive(Debug, Clone, Copy)]
+struct Missed {
+    /// Peak bin.
+    bin: usize,
+    /// Refined frequency, Hz.
+    frequency_hz: f64,
+    /// Channel it stands in.
+    channel: usize,
+    /// Its density over the reference's at the peak bin, dB.
+    excess_db: f64,
+    /// Its density at the peak bin, Pa^2/Hz.
+    density: f64,
+}
+
+/// Warnings for tones the reference channel misses: a tone found in another channel's PSD
+/// (with the reference's tone settings), standing [`NODE_EXCESS_DB`] or more above the
+/// reference's density at its peak bin, with no reference tone within the window's main lobe
+/// of it. Tones are taken from the reference channel only, so with the reference at a node of
+/// a standing mode such a tone would otherwise vanish from the answer without a word. One
+/// sentence per frequency, naming the channels and the strongest one as a better reference.
+/// `template` is the reference's PSD (its settings give the other channels' tone search).
+fn node_warnings(
+    cs: &crate::dsp::cross::CrossSpectra,
+    template: &Psd,
+    reference: usize,
+    reference_tones: &[Tone],
+    tone_cfg: &ToneConfig,
+) -> Vec<String> {
+    let lobe = template.config.window.main_lobe_half_width_bins();
+    let others: Vec<usize> = (0..cs.psd.len() + 1).filter(|&c| c != reference).collect();
+    let ratio = 10f64.powf(NODE_EXCESS_DB / 10.0);
+    let mut missed: Vec<Missed> = Vec::new();
+    for (i, &channel) in others.iter().enumerate() {
+        let psd = Psd { density: cs.psd[i].clone(), ..template.clone() };
+        for t in find_tones(&psd, tone_cfg).tones {
+            let bin = t.peak_bin;
+            let (density, r) = (cs.psd[i][bin], cs.reference_psd[bin]);
+            let in_reference = reference_tones.iter().any(|rt| rt.peak_bin.abs_diff(bin) <= lobe);
+            if !in_reference && density >= ratio * r {
+                let excess_db = 10.0 * (density / r).log10();
+                missed.push(Missed { bin, frequency_hz: t.frequency_hz, channel, excess_db, density });
+            }
+        }
+    }
+    // Tones of different channels within a main lobe of each other are one tone.
+    missed.sort_by(|a, b| a.bin.cmp(&b.bin).then(a.channel.cmp(&b.channel)));
+    let mut groups: Vec<Vec<Missed>> = Vec::new();
+    for m in missed {
+        match groups.last_mut() {
+            Some(g) if m.bin - g[0].bin <= lobe => g.push(m),
+            _ => groups.push(vec![m]),
+        }
+    }
+    let max_excess = |g: &[Missed]| g.iter().map(|m| m.excess_db).fold(f64::MIN, f64::max);
+    groups.sort_by(|a, b| max_excess(b).total_cmp(&max_excess(a)));
+    let more = groups.len().saturating_sub(NODE_WARNINGS_MAX);
+    let mut out: Vec<String> = groups
+        .iter()
+        .take(NODE_WARNINGS_MAX)
+        .filter_map(|g| {
+            let best = g.iter().max_by(|a, b| a.density.total_cmp(&b.density))?;
+            let mut chans: Vec<usize> = g.iter().map(|m| m.channel).collect();
+            chans.sort_unstable();
+            chans.dedup();
+            let list = chans.iter().map(usize::to_string).collect::<Vec<_>>().join(", ");
+            let noun = if chans.len() == 1 { "channel" } else { "channels" };
+            Some(format!(
+                "a tone at {:.1} Hz stands in {noun} {list} (up to {:.1} dB above reference channel \
+                 {reference} at that frequency) but is not found in reference channel {reference}, and \
+                 tones are taken from the reference only: the reference may sit at a node of a standing \
+                 mode; repeat with another reference, e.g. reference_channel = {} (strongest there)",
+                best.frequency_hz,
+                max_excess(g),
+                best.channel
+            ))
+        })
+        .collect();
+    if more > 0 {
+        out.push(format!(
+            "{more} more tones stand in other channels but not in reference channel {reference}"
+        ));
+    }
+    out
+}
+
 impl Compute for CrossQuery {
     type Response = pb::CrossSpectraResponse;
 
@@ -305,7 +399,8 @@ impl CrossQuery {
         if q.azimuths_deg.is_some() && channels >= 3 {
             notes.push(
                 "Azimuthal orders: a pattern cos(omega t - m theta) with m > 0 spins towards increasing azimuth; \
-                 the decomposition is exact for equally spaced microphones, and orders above M/2 alias onto lower ones."
+                 the decomposition is exact for equally spaced microphones, orders above M/2 alias onto lower ones, \
+                 and at M/2 of an even ring +m and -m alias, so the sense there is not determined."
                     .into(),
             );
         }
@@ -317,6 +412,7 @@ impl CrossQuery {
             analysis: Some(analysis(psd, s.recording.len(), Some(&set))),
             tones,
             spectra,
+            warnings: node_warnings(&cs, &psd, q.reference, &set.tones, &q.tones),
             compute_time_s: q.started.elapsed().as_secs_f64(),
             provenance: Some(provenance(&used, &q.defaults, notes)),
         }

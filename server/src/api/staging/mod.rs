@@ -199,7 +199,12 @@ fn fit_options(
                 .unwrap_or(d.path_factor),
         )
     } else {
-        ReflectorPath::Fixed(reflector_path_factor.unwrap_or(d.path_factor))
+        // Not used by this sweep, so no default is recorded; a given value is still checked
+        // against the bounds staging.proto documents for every sweep (NaN and infinities
+        // refused, not carried into the fit configuration).
+        let given = reflector_path_factor
+            .and_then(|g| check.range("options", FitDefaults::REFLECTOR_PATH_FACTOR.check(g)));
+        ReflectorPath::Fixed(given.unwrap_or(d.path_factor))
     };
     let fit_delay = match fit_fixed_delay {
         Some(b) => b,
