@@ -412,7 +412,7 @@ impl CrossQuery {
             analysis: Some(analysis(psd, s.recording.len(), Some(&set))),
             tones,
             spectra,
-            warnings: node_warnings(&cs, &psd, q.reference, &set.tones, &q.tones),
+            warnings: node_warnings(cs, psd, q.reference, &set.tones, &q.tones),
             compute_time_s: q.started.elapsed().as_secs_f64(),
             provenance: Some(provenance(&used, &q.defaults, notes)),
         }
