@@ -96,3 +96,16 @@ pub fn ring_positions(m: usize) -> Vec<pb::MicrophonePosition> {
         })
         .collect()
 }
+
+/// The messages of a block stream sent as a DAQ acquires them: `first`, then `count - 1`
+/// copies of `later`, one every `pause` (a recording streamed at its pace).
+pub fn paced<M: Clone + Send + 'static>(
+    first: M,
+    later: M,
+    count: usize,
+    pause: std::time::Duration,
+) -> impl tokio_stream::Stream<Item = M> + Send + 'static {
+    let rest =
+        tokio_stream::StreamExt::throttle(tokio_stream::iter((1..count).map(move |_| later.clone())), pause);
+    tokio_stream::StreamExt::chain(tokio_stream::iter([first]), rest)
+}

@@ -268,13 +268,8 @@ async fn a_steady_cross_stream_outlasts_the_call_limit_and_a_stalled_one_ends_at
     let mut c = SpectrumServiceClient::new(server.channel().await);
     let one = second_of_ring();
     let paced = |pause_ms: u64, count: usize| {
-        let one = one.clone();
-        let first = opening(int16_question(one.clone()));
-        let rest = tokio_stream::StreamExt::throttle(
-            tokio_stream::iter((1..count).map(move |_| block(one.clone()))),
-            std::time::Duration::from_millis(pause_ms),
-        );
-        tokio_stream::StreamExt::chain(tokio_stream::iter([first]), rest)
+        let (first, later) = (opening(int16_question(one.clone())), block(one.clone()));
+        jetloop_tests::samples::paced(first, later, count, std::time::Duration::from_millis(pause_ms))
     };
     let started = std::time::Instant::now();
     let answer = c.cross_spectra_stream(paced(250, 11)).await.unwrap().into_inner();

@@ -141,13 +141,8 @@ async fn a_steady_stream_outlasts_the_call_limit_and_a_stalled_one_ends_at_it() 
     let mut c = SpectrumServiceClient::new(server.channel().await);
     let block = second_of_int16();
     let paced = |pause_ms: u64, count: usize| {
-        let block = block.clone();
-        let first = opening_block(question(block.clone()));
-        let rest = tokio_stream::StreamExt::throttle(
-            tokio_stream::iter((1..count).map(move |_| frames_block(block.clone()))),
-            std::time::Duration::from_millis(pause_ms),
-        );
-        tokio_stream::StreamExt::chain(tokio_stream::iter([first]), rest)
+        let (first, later) = (opening_block(question(block.clone())), frames_block(block.clone()));
+        jetloop_tests::samples::paced(first, later, count, std::time::Duration::from_millis(pause_ms))
     };
     let started = std::time::Instant::now();
     let answer = c.extract_tones_stream(paced(250, 11)).await.unwrap().into_inner();
