@@ -161,21 +161,31 @@ route_service!(Deadline, |self, req| {
         let guard = CancelOnDrop(cancel.clone());
         let mut fut = Box::pin(fut);
         // Most calls (physics answered on the reactor) are done at their first poll: they
-        // need no timer at all.
+        // need no timer, only one look at the clock.
         let first = std::future::poll_fn(|cx| Poll::Ready(fut.as_mut().poll(cx))).await;
-        let (outcome, ready_at) = match first {
-            // Ready at once: no need to read the clock again.
-            Poll::Ready(r) => (Ok(r), started),
+        let (outcome, ready_at, finished) = match first {
+            // Ready at once (physics answered on the reactor, or work that finished while the
+            // first poll was held up): past the limit all the same if the clock says so.
+            Poll::Ready(r) => {
+                let now = tokio::time::Instant::now();
+                (if now >= started + limit { Err(()) } else { Ok(r) }, now, true)
+            }
             Poll::Pending => {
-                // The limit is looked at first: an answer that became ready only after the
-                // limit passed (a busy machine may wake this task late) is still past it.
+                // The limit is looked at first, and the clock after: an answer that became
+                // ready only after the limit passed (a busy machine may wake this task late)
+                // is still past it.
                 let end = tokio::time::sleep_until(started + limit);
                 let r = tokio::select! {
                     biased;
                     () = end => Err(()),
                     r = &mut fut => Ok(r),
                 };
-                (r, tokio::time::Instant::now())
+                // The timer may not have fired yet on a busy runtime: an answer that comes
+                // after the limit is past it all the same.
+                let finished = r.is_ok();
+                let now = tokio::time::Instant::now();
+                let r = if now >= started + limit { Err(()) } else { r };
+                (r, now, finished)
             }
         };
         match outcome {
@@ -194,11 +204,17 @@ route_service!(Deadline, |self, req| {
                     code = "DEADLINE_EXCEEDED",
                     "call expired: {why}"
                 );
-                tokio::spawn(async move {
-                    let _ = tokio::time::timeout(STOP_GRACE, fut).await;
+                if finished {
+                    // The work ended just past the limit: nothing left to wait for.
                     drop(admitted);
                     drop(guard);
-                });
+                } else {
+                    tokio::spawn(async move {
+                        let _ = tokio::time::timeout(STOP_GRACE, fut).await;
+                        drop(admitted);
+                        drop(guard);
+                    });
+                }
                 Ok(Status::deadline_exceeded(format!("stopped: {why}")).into_http())
             }
         }
