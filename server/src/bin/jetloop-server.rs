@@ -55,14 +55,9 @@ async fn main() -> ExitCode {
         tracing::error!("{e}");
         return ExitCode::from(2);
     }
-    if !config.listen.ip().is_loopback()
-        && options.tokens.is_empty()
-        && options.tls.as_ref().is_some_and(|t| t.client_ca_pem.is_none())
-    {
-        tracing::warn!(
-            "TLS without client certificates or tokens: answers are encrypted, but anyone who reaches the port \
-             can call every RPC"
-        );
+    let client_certificates = options.tls.as_ref().is_some_and(|t| t.client_ca_pem.is_some());
+    if let Some(w) = config.exposure_warning(!options.tokens.is_empty(), client_certificates) {
+        tracing::warn!("{w}");
     }
     let listener = match tokio::net::TcpListener::bind(config.listen).await {
         Ok(l) => l,

@@ -361,6 +361,48 @@ impl Config {
     }
 }
 
+impl Config {
+    /// The warning for a server that will listen beyond loopback unprotected: neither TLS nor
+    /// tokens (allowed by `--allow-insecure-network`), or TLS without client certificates or
+    /// tokens. `None` on loopback or with tokens.
+    pub fn exposure_warning(&self, have_tokens: bool, client_certificates: bool) -> Option<String> {
+        if self.listen.ip().is_loopback() || have_tokens {
+            return None;
+        }
+        match (self.tls_cert.is_some(), client_certificates) {
+            (false, _) => Some(format!(
+                "listening on {} with neither TLS nor tokens (--allow-insecure-network): anyone who reaches the \
+                 port can call every RPC and read every answer; keep it on a network only your lab reaches",
+                self.listen
+            )),
+            (true, false) => Some(
+                "TLS without client certificates or tokens: answers are encrypted, but anyone who reaches the port \
+                 can call every RPC"
+                    .to_string(),
+            ),
+            (true, true) => None,
+        }
+    }
+}
+
+#[cfg(test)]
+mod exposure_tests {
+    use super::*;
+
+    fn config(args: &[&str]) -> Config {
+        Config::try_parse_from(std::iter::once("jetloop-server").chain(args.iter().copied())).expect("flags")
+    }
+
+    #[test]
+    fn an_unprotected_listener_beyond_loopback_is_warned_about() {
+        let open = config(&["--listen", "0.0.0.0:50051", "--allow-insecure-network"]);
+        let w = open.exposure_warning(false, false).expect("a warning");
+        assert!(w.contains("0.0.0.0:50051") && w.contains("neither TLS nor tokens"), "{w}");
+        assert_eq!(open.exposure_warning(true, false), None, "tokens protect it");
+        assert_eq!(config(&[]).exposure_warning(false, false), None, "loopback by default");
+    }
+}
+
 /// Shortest accepted bearer token, characters.
 pub const MIN_TOKEN_CHARS: usize = 16;
 
