@@ -58,12 +58,7 @@ pub(super) fn cross_query(
         req;
     let started = std::time::Instant::now();
     let mut defaults = Defaults::default();
-    let samples = sample_set_for(samples, &mut defaults, stream.is_some())?;
-    let known = match stream {
-        None => samples.recording.len(),
-        Some(Some(frames)) => usize::try_from(frames).unwrap_or(usize::MAX),
-        Some(None) => usize::MAX,
-    };
+    let (samples, known) = samples_and_known(samples, &mut defaults, stream)?;
     let channels = samples.recording.channel_count();
     let mut check = Check::new();
     if channels < 2 {

@@ -91,6 +91,26 @@ pub fn values_in(bytes: usize, width: usize) -> u64 {
     bytes.checked_div(width).unwrap_or(0) as u64
 }
 
+/// The samples of a request (`stream` None) or of a block stream's first message (`Some`, with
+/// the frames per channel the stream announces, if any), and the frames per channel known in
+/// advance for choosing a default segment (the recording's, the announced count, or unbounded).
+///
+/// # Errors
+/// As [`sample_set_for`].
+pub(super) fn samples_and_known(
+    samples: Option<pb::Samples>,
+    defaults: &mut Defaults,
+    stream: Option<Option<u64>>,
+) -> Result<(SampleSet, usize), ApiError> {
+    let samples = sample_set_for(samples, defaults, stream.is_some())?;
+    let known = match stream {
+        None => samples.recording.len(),
+        Some(Some(frames)) => usize::try_from(frames).unwrap_or(usize::MAX),
+        Some(None) => usize::MAX,
+    };
+    Ok((samples, known))
+}
+
 /// As [`sample_set`]; for the first message of a block stream (`stream`), raw interleaved
 /// bytes are required and an empty first block is allowed.
 pub(super) fn sample_set_for(

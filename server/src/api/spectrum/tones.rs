@@ -91,12 +91,7 @@ pub(super) fn tone_query(
     } = req;
     let started = std::time::Instant::now();
     let mut defaults = Defaults::default();
-    let samples = sample_set_for(samples, &mut defaults, stream.is_some())?;
-    let known = match stream {
-        None => samples.recording.len(),
-        Some(Some(frames)) => usize::try_from(frames).unwrap_or(usize::MAX),
-        Some(None) => usize::MAX,
-    };
+    let (samples, known) = samples_and_known(samples, &mut defaults, stream)?;
     let stages = match stage_labels {
         Some(o) => Some(crate::api::stage_labels::stage_context(o, "stage_labels", &mut defaults)?),
         None => None,
